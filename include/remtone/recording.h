@@ -1,0 +1,104 @@
+/* Reading a polysomnography recording: EDF, EDF+ (continuous) and BDF/BDF+.
+ *
+ * The file is opened through EDFlib after remtone's own header checks, so a
+ * malformed header is reported with the field and its byte offset rather than
+ * a bare "format error". Samples are read by channel and sample range, so the
+ * scoring stages read only the stretches they need. Annotations of an EDF+/BDF+
+ * file are read once at open time.
+ *
+ * Ownership: rt_recording_open() returns an object the caller frees with
+ * rt_recording_close(). Pointers returned by accessors live until then.
+ * Thread safety: EDFlib keeps a process-wide table of open files, so opening
+ * and closing are serialised inside remtone; reading one recording from
+ * several threads at once is not supported. */
+#ifndef REMTONE_RECORDING_H
+#define REMTONE_RECORDING_H
+
+#include <stdbool.h>
+#include <stddef.h>
+
+#include "remtone/status.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+typedef struct rt_recording rt_recording;
+
+typedef enum rt_file_kind {
+    RT_FILE_EDF = 0,
+    RT_FILE_EDFPLUS = 1,
+    RT_FILE_BDF = 2,
+    RT_FILE_BDFPLUS = 3
+} rt_file_kind;
+
+typedef struct rt_channel_info {
+    char label[17];       /* header label, trailing spaces removed */
+    char transducer[81];  /* transducer type text */
+    char unit[9];         /* physical dimension text as written ("uV", "mV", ...) */
+    char prefilter[81];   /* prefiltering text */
+    double rate_hz;       /* samples per second */
+    double phys_min;      /* physical minimum, in the header's unit */
+    double phys_max;      /* physical maximum, in the header's unit */
+    int dig_min;          /* digital minimum */
+    int dig_max;          /* digital maximum */
+    long long n_samples;  /* samples of this channel in the file */
+    bool is_voltage;      /* unit recognised as a voltage (V, mV, uV, nV) */
+    double uv_per_unit;   /* factor from the header's unit to microvolts; 1 when not a voltage */
+} rt_channel_info;
+
+typedef struct rt_annotation {
+    double onset_s;       /* seconds from the recording start */
+    double duration_s;    /* seconds; negative when the annotation gives none */
+    char text[513];       /* UTF-8 description */
+} rt_annotation;
+
+typedef struct rt_clock_time {
+    int year, month, day;     /* start date from the header */
+    int hour, minute, second; /* start time from the header */
+    double subsecond;         /* EDF+ sub-second start offset, seconds in [0, 1) */
+} rt_clock_time;
+
+/* Opens path (EDF, EDF+C, BDF, BDF+C). Refuses EDF+D/BDF+D (discontinuous),
+ * truncated files and malformed headers with RT_ERR_RECORDING, a missing or
+ * unreadable file with RT_ERR_IO. Returns NULL on failure. */
+rt_recording *rt_recording_open(const char *path, rt_error *err);
+
+/* Closes and frees; accepts NULL. */
+void rt_recording_close(rt_recording *rec);
+
+const char *rt_recording_path(const rt_recording *rec);
+rt_file_kind rt_recording_kind(const rt_recording *rec);
+/* Duration in seconds (data records x record duration). */
+double rt_recording_duration_s(const rt_recording *rec);
+/* Start date and time from the header. */
+rt_clock_time rt_recording_start(const rt_recording *rec);
+/* Identity text from the header (patient and recording fields, EDF+ subfields
+ * joined). Untrusted text: escape before display. Never NULL. */
+const char *rt_recording_patient_text(const rt_recording *rec);
+const char *rt_recording_recording_text(const rt_recording *rec);
+/* Size of the file in bytes. */
+long long rt_recording_file_size(const rt_recording *rec);
+
+/* Ordinary (non-annotation) channels, numbered 0 .. count-1. */
+int rt_recording_channel_count(const rt_recording *rec);
+/* NULL when index is out of range. */
+const rt_channel_info *rt_recording_channel(const rt_recording *rec, int index);
+/* Index of the channel whose label equals name (case-insensitive, surrounding
+ * spaces ignored); -1 when none. */
+int rt_recording_find_channel(const rt_recording *rec, const char *name);
+
+size_t rt_recording_annotation_count(const rt_recording *rec);
+/* NULL when index is out of range. Ordered by onset. */
+const rt_annotation *rt_recording_annotation(const rt_recording *rec, size_t index);
+
+/* Reads n samples of channel, starting at sample `first` (0 = recording start),
+ * into out, in microvolts (scaled by uv_per_unit). The range must lie inside
+ * the channel: first >= 0 and first + n <= n_samples. */
+rt_status rt_recording_read_uv(rt_recording *rec, int channel, long long first, size_t n,
+                               double *out, rt_error *err);
+
+#ifdef __cplusplus
+}
+#endif
+#endif

@@ -1,0 +1,13 @@
+/* remtone: measuring REM sleep without atonia in polysomnography.
+ * The umbrella header; each part is documented in its own header. */
+#ifndef REMTONE_H
+#define REMTONE_H
+
+#include "remtone/status.h"
+#include "remtone/version.h"
+#include "remtone/recording.h"
+#include "remtone/roles.h"
+#include "remtone/timeline.h"
+#include "remtone/synth.h"
+
+#endif

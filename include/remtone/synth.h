@@ -1,0 +1,56 @@
+/* Synthetic nights with exactly known RSWA content: the demo data and the
+ * test oracle.
+ *
+ * A synthetic night is an EDF+ recording (EEG, EOG, chin, both arms, both
+ * legs, ECG and respiratory placeholders), its stage table and event table,
+ * and truth.json: the activity placed in every REM mini-epoch and the exact
+ * value every index takes on that placed activity. The EMG is band-limited
+ * Gaussian noise whose rectified level follows the stage, with phasic bursts
+ * and tonic stretches laid on a grid chosen so that no index is ambiguous
+ * (docs/synthetic-nights.md gives the design). Output is deterministic for a
+ * given profile, length and seed. */
+#ifndef REMTONE_SYNTH_H
+#define REMTONE_SYNTH_H
+
+#include <stdint.h>
+
+#include "remtone/status.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+typedef enum rt_synth_profile {
+    RT_SYNTH_TYPICAL_OLDER = 0, /* atonia kept: few bursts, rare tonic */
+    RT_SYNTH_RBD,               /* marked tonic and phasic activity */
+    RT_SYNTH_BORDERLINE,        /* SINBAR chin "any" near its 18.2 % cutoff */
+    RT_SYNTH_APNEA,             /* bursts bound to arousals after respiratory events */
+    RT_SYNTH_PROFILE_COUNT
+} rt_synth_profile;
+
+/* "typical-older", "rbd", "borderline", "apnea". */
+const char *rt_synth_profile_name(rt_synth_profile profile);
+/* Returns 0 and sets *profile when name is a profile, -1 otherwise. */
+int rt_synth_profile_from_name(const char *name, rt_synth_profile *profile);
+
+typedef struct rt_synth_options {
+    rt_synth_profile profile;
+    double hours;            /* recording length, 1 .. 12 */
+    uint64_t seed;           /* any value; equal seeds give equal files */
+    const char *patient;     /* EDF+ patient name subfield (fictional); NULL = "X" */
+    const char *recording;   /* EDF+ recording free text; NULL = profile name */
+    int start_hour;          /* clock start, 0..23 (default 22 when negative) */
+    int start_minute;        /* 0..59 */
+} rt_synth_options;
+
+/* Fills *options with defaults: typical-older, 8 hours, seed 1, 22:30 start. */
+void rt_synth_options_default(rt_synth_options *options);
+
+/* Writes dir/night.edf, dir/stages.csv, dir/events.csv and dir/truth.json;
+ * dir must exist. Each file is written to a temporary name and renamed. */
+rt_status rt_synth_write(const rt_synth_options *options, const char *dir, rt_error *err);
+
+#ifdef __cplusplus
+}
+#endif
+#endif

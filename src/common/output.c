@@ -1,0 +1,74 @@
+/* Atomic output files: temporary file in the same folder, then rename(2). */
+#include "output.h"
+
+#include <errno.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
+#include "internal.h"
+
+rt_status rt_output_begin(rt_output *out, const char *path, int open_stream, rt_error *err)
+{
+    memset(out, 0, sizeof *out);
+    if (strlen(path) >= sizeof out->path)
+        return rt_fail(err, RT_ERR_USAGE, "%s: output path too long", path);
+    rt_copy_string(out->path, sizeof out->path, path);
+    snprintf(out->temp_path, sizeof out->temp_path, "%s.tmp-XXXXXX", path);
+    int fd = mkstemp(out->temp_path);
+    if (fd < 0) {
+        out->temp_path[0] = '\0';
+        return rt_fail(err, RT_ERR_IO, "%s: cannot create output: %s", path, strerror(errno));
+    }
+    if (!open_stream) {
+        close(fd);
+        return RT_OK;
+    }
+    out->file = fdopen(fd, "wb");
+    if (!out->file) {
+        close(fd);
+        rt_output_abort(out);
+        return rt_fail(err, RT_ERR_IO, "%s: cannot open output: %s", path, strerror(errno));
+    }
+    return RT_OK;
+}
+
+rt_status rt_output_commit(rt_output *out, rt_error *err)
+{
+    int failed = 0;
+    int saved = 0;
+    if (out->file) {
+        if (fflush(out->file) != 0 || ferror(out->file) || fsync(fileno(out->file)) != 0) {
+            failed = 1;
+            saved = errno;
+        }
+        if (fclose(out->file) != 0 && !failed) {
+            failed = 1;
+            saved = errno;
+        }
+        out->file = NULL;
+    }
+    if (!failed && rename(out->temp_path, out->path) != 0) {
+        failed = 1;
+        saved = errno;
+    }
+    if (failed) {
+        rt_output_abort(out);
+        return rt_fail(err, RT_ERR_IO, "%s: cannot write output: %s", out->path,
+                       strerror(saved ? saved : EIO));
+    }
+    out->temp_path[0] = '\0';
+    return RT_OK;
+}
+
+void rt_output_abort(rt_output *out)
+{
+    if (out->file) {
+        fclose(out->file);
+        out->file = NULL;
+    }
+    if (out->temp_path[0]) {
+        unlink(out->temp_path);
+        out->temp_path[0] = '\0';
+    }
+}

@@ -1,0 +1,28 @@
+/* Output files that are never left half-written: each is written to a
+ * temporary file in the destination folder and renamed into place only when
+ * complete, so a reader sees the previous file or the new one, never a part. */
+#ifndef REMTONE_OUTPUT_H
+#define REMTONE_OUTPUT_H
+
+#include <stdio.h>
+
+#include "remtone/status.h"
+
+typedef struct rt_output {
+    FILE *file;            /* write here (NULL when the writer keeps its own handle) */
+    char path[4096];       /* final destination */
+    char temp_path[4200];  /* where the bytes go until rt_output_commit */
+} rt_output;
+
+/* Creates a unique temporary file beside path. With open_stream false only the
+ * name is reserved (for writers such as EDFlib that open by name). */
+rt_status rt_output_begin(rt_output *out, const char *path, int open_stream, rt_error *err);
+
+/* Flushes, syncs and renames the temporary file onto the destination.
+ * On failure the temporary file is removed and the destination is untouched. */
+rt_status rt_output_commit(rt_output *out, rt_error *err);
+
+/* Removes the temporary file; safe to call after a failed commit or twice. */
+void rt_output_abort(rt_output *out);
+
+#endif
