@@ -1,16 +1,41 @@
 /* remtone command-line program: parses options into a configuration and makes
- * one library call per command. It holds no science. */
+ * one library call per step. It holds no science; it uses the public API only. */
 #include <stdio.h>
 #include <string.h>
 
-#include "remtone/remtone.h"
+#include "cli.h"
+
+static const cli_command *const COMMANDS[] = {&CLI_SCORE, &CLI_SCAN, &CLI_SYNTH, &CLI_RULES};
+enum { N_COMMANDS = sizeof COMMANDS / sizeof COMMANDS[0] };
+
+static void usage(FILE *out)
+{
+    fprintf(out, "remtone %s: REM sleep without atonia from scored polysomnography\n\n"
+                 "usage: remtone COMMAND [options]\n\ncommands:\n", rt_version());
+    for (int i = 0; i < N_COMMANDS; i++)
+        fprintf(out, "  %-8s %s\n", COMMANDS[i]->name, COMMANDS[i]->summary);
+    fprintf(out, "\n'remtone COMMAND --help' lists a command's options. "
+                 "Exit codes: README.md.\n");
+}
 
 int main(int argc, char **argv)
 {
-    if (argc > 1 && strcmp(argv[1], "--version") == 0) {
-        printf("remtone %s\n", rt_version());
-        return 0;
+    if (argc < 2) {
+        usage(stderr);
+        return EXIT_USAGE;
     }
-    fprintf(stderr, "usage: remtone COMMAND ...\n");
-    return 2;
+    if (strcmp(argv[1], "--help") == 0 || strcmp(argv[1], "help") == 0) {
+        usage(stdout);
+        return EXIT_OK;
+    }
+    if (strcmp(argv[1], "--version") == 0) {
+        printf("remtone %s\n", rt_version());
+        return EXIT_OK;
+    }
+    for (int i = 0; i < N_COMMANDS; i++)
+        if (strcmp(argv[1], COMMANDS[i]->name) == 0)
+            return COMMANDS[i]->run(argc - 1, argv + 1);
+    fprintf(stderr, "remtone: unknown command '%s'\n", argv[1]);
+    usage(stderr);
+    return EXIT_USAGE;
 }

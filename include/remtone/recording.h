@@ -8,9 +8,13 @@
  *
  * Ownership: rt_recording_open() returns an object the caller frees with
  * rt_recording_close(). Pointers returned by accessors live until then.
- * Thread safety: EDFlib keeps a process-wide table of open files, so opening
- * and closing are serialised inside remtone; reading one recording from
- * several threads at once is not supported. */
+ * Thread safety: EDFlib keeps a process-wide table of open files and is not
+ * thread-safe, so remtone serialises every EDFlib call (open, close, and each
+ * seek-and-read) behind one lock: recordings may be opened and read from
+ * several threads, but reads do not run in parallel.
+ *
+ * Extra bytes after the last data record are refused (EDFlib 1.23 refuses
+ * them); the message gives the size to cut the file to. See docs/recording.md. */
 #ifndef REMTONE_RECORDING_H
 #define REMTONE_RECORDING_H
 
@@ -60,8 +64,10 @@ typedef struct rt_clock_time {
 } rt_clock_time;
 
 /* Opens path (EDF, EDF+C, BDF, BDF+C). Refuses EDF+D/BDF+D (discontinuous),
- * truncated files and malformed headers with RT_ERR_RECORDING, a missing or
- * unreadable file with RT_ERR_IO. Returns NULL on failure. */
+ * truncated files, trailing bytes and malformed headers with RT_ERR_RECORDING
+ * (the message starts with the path and names the field and byte offset), a
+ * missing, unreadable or directory path with RT_ERR_IO (with the system's
+ * reason). Returns NULL on failure. */
 rt_recording *rt_recording_open(const char *path, rt_error *err);
 
 /* Closes and frees; accepts NULL. */
@@ -97,6 +103,14 @@ const rt_annotation *rt_recording_annotation(const rt_recording *rec, size_t ind
  * the channel: first >= 0 and first + n <= n_samples. */
 rt_status rt_recording_read_uv(rt_recording *rec, int channel, long long first, size_t n,
                                double *out, rt_error *err);
+
+/* Recognises a physical dimension as a voltage: "V", "mV", "uV" (also "UV",
+ * "uv", "\xb5V" in Latin-1, "\xc2\xb5V" and "\xce\xbcV" in UTF-8) and "nV";
+ * the volt letter may be "V" or "v", surrounding spaces are ignored. The
+ * prefix letter is strict: "MV" (mega) and "NV" are not voltages. Returns true
+ * and sets *uv_per_unit (V: 1e6, mV: 1e3, uV: 1, nV: 1e-3) for a voltage;
+ * returns false and sets *uv_per_unit to 1 otherwise. uv_per_unit may be NULL. */
+bool rt_unit_uv_per_unit(const char *unit, double *uv_per_unit);
 
 #ifdef __cplusplus
 }

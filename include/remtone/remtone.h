@@ -9,5 +9,7 @@
 #include "remtone/roles.h"
 #include "remtone/timeline.h"
 #include "remtone/synth.h"
+#include "remtone/score.h"
+#include "remtone/report.h"
 
 #endif

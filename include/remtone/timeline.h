@@ -58,6 +58,12 @@ typedef struct rt_timeline {
     rt_event *events;        /* ordered by onset */
     double lights_off_s;     /* analysis starts here; 0 when not given */
     double lights_on_s;      /* analysis ends here; negative when not given */
+    /* Bookkeeping of rt_timeline_add_stage_run (not for callers): start and
+     * end in seconds of the latest stage run added, and its line (0 = none),
+     * so that an out-of-order or overlapping entry can name both places. */
+    double last_run_start_s;
+    double last_run_end_s;
+    long last_run_line;
 } rt_timeline;
 
 /* Short stage name: "?", "W", "N1", "N2", "N3", "R", "MT". */
@@ -70,50 +76,119 @@ const char *rt_event_type_name(rt_event_type type);
  * N3, R, MT, ?) or an event type name, or `ignore`. Labels compare
  * case-insensitively after trimming. */
 typedef struct rt_labelmap rt_labelmap;
-rt_labelmap *rt_labelmap_load(const char *path, rt_error *err);
-void rt_labelmap_free(rt_labelmap *map);
 
-/* Interprets a stage label: AASM (W, N1, N2, N3, R), R&K (W, 1, 2, 3, 4, REM,
- * MT; 3 and 4 map to N3), EDF+ standard texts ("Sleep stage W" .. "Sleep stage
- * R", "Sleep stage ?", "Movement time"), then the label map (may be NULL).
+/* The map's CSV has a header row naming the columns `label` and `meaning`
+ * (any order, comma or tab, as the stage table). A label listed twice with
+ * different meanings is an error naming the line. The caller frees the map
+ * with rt_labelmap_free(). Returns NULL on failure (RT_ERR_IO, RT_ERR_STAGING). */
+rt_labelmap *rt_labelmap_load(const char *path, rt_error *err);
+/* An empty map, to be filled with rt_labelmap_add(); NULL when out of memory. */
+rt_labelmap *rt_labelmap_new(void);
+/* Adds label -> meaning (meaning as in the CSV: W, N1, N2, N3, R, MT, ? or
+ * unscored, an event type name, or ignore; case-insensitive). The strings are
+ * copied. Fails with RT_ERR_STAGING for an unknown meaning, an empty label,
+ * or a label already mapped to something else (the message names the label). */
+rt_status rt_labelmap_add(rt_labelmap *map, const char *label, const char *meaning, rt_error *err);
+/* Accepts NULL. */
+void rt_labelmap_free(rt_labelmap *map);
+/* True when the map (may be NULL) lists label as `ignore`. */
+bool rt_label_is_ignored(const char *label, const rt_labelmap *map);
+
+/* Interprets a stage label. The label map (may be NULL) is consulted first,
+ * so a lab can redefine any built-in form (a label mapped to an event or to
+ * `ignore` is then not a stage). Then the built-in forms: AASM (W, N1, N2, N3,
+ * R), R&K (W, 1, 2, 3, 4, REM, MT; 3 and 4 map to N3), EDF+ standard texts
+ * ("Sleep stage W" .. "Sleep stage R", "Sleep stage ?", "Movement time") and
+ * the common variants listed in docs/staging.md ("?", "U" and "unscored" give
+ * RT_STAGE_UNSCORED). Built-in forms compare case-insensitively after trimming,
+ * with runs of spaces, '_' and '-' taken as one space.
  * Returns true and sets *stage when the label is a stage. */
 bool rt_stage_parse(const char *label, const rt_labelmap *map, rt_stage *stage);
 
-/* Interprets an event label (event table type names, common annotation texts
- * such as "Obstructive apnea" or "Arousal", then the label map). Returns true
- * and sets *type when the label is an event. */
+/* Interprets an event label: the label map first (may be NULL), then event
+ * table type names and common annotation texts such as "Obstructive apnea"
+ * or "Arousal" (list in docs/staging.md). Returns true and sets *type when
+ * the label is an event. */
 bool rt_event_parse(const char *label, const rt_labelmap *map, rt_event_type *type);
 
 rt_timeline *rt_timeline_new(void);
 void rt_timeline_free(rt_timeline *tl);
 
+/* The one checked path by which every loader (CSV, EDF+ annotations, XML)
+ * adds stages. Adds a run of `stage` from start_s for duration_s seconds.
+ * start_s must be >= 0 and on the epoch grid, duration_s a whole number of
+ * epochs (both within 1e-6 s), and the run must start at or after the end of
+ * the previous run (runs come in time order, without overlap). Epochs between
+ * runs stay RT_STAGE_UNSCORED; a run of RT_STAGE_UNSCORED only advances the
+ * order check, so n_epochs ends at the last epoch with a real stage. Runs may
+ * not reach past 31 days. Messages start with `source` (a file name, or a
+ * place such as "night.edf: annotation 7") and, when line > 0, "line N".
+ * Returns RT_ERR_STAGING or RT_ERR_NOMEM on failure, leaving tl unchanged. */
+rt_status rt_timeline_add_stage_run(rt_timeline *tl, double start_s, double duration_s,
+                                    rt_stage stage, const char *source, long line,
+                                    rt_error *err);
+
+/* Adds an event, keeping events ordered by onset (events of equal onset keep
+ * the order they were added in). onset_s >= 0 and duration_s >= 0, both
+ * finite; source and line as for rt_timeline_add_stage_run. */
+rt_status rt_timeline_add_event(rt_timeline *tl, double onset_s, double duration_s,
+                                rt_event_type type, const char *source, long line,
+                                rt_error *err);
+
+/* Moves src's stages and events into tl, all or nothing, leaving src empty
+ * (still to be freed by its owner). Events are merged in onset order. src's
+ * stages are taken only when tl holds none (a timeline takes its stages from
+ * one source) and both use the same epoch length; lights_off_s/lights_on_s are
+ * taken when src gives them. The loaders build into a scratch timeline and
+ * merge on success, so a failed load leaves tl unchanged. */
+rt_status rt_timeline_merge(rt_timeline *tl, rt_timeline *src, rt_error *err);
+
 /* Loads stages from a stage table CSV (comma or tab). Errors name the file and
  * line: unknown labels (all of them listed), overlapping or non-monotonic
- * entries, durations that are not whole epochs, empty staging. */
+ * entries, durations that are not whole epochs, empty staging. tl must hold
+ * no stages yet; on failure it is left unchanged. Rows whose label the map
+ * marks `ignore` are skipped (their epochs stay unscored). */
 rt_status rt_timeline_load_stages_csv(rt_timeline *tl, const char *path, const rt_labelmap *map,
                                       rt_error *err);
 
-/* Loads events from an event table CSV (comma or tab), appending to tl. */
+/* Loads events from an event table CSV (comma or tab), appending to tl (which
+ * is left unchanged on failure). Durations must be > 0; unknown types are all
+ * listed; rows whose type the map marks `ignore` are skipped. */
 rt_status rt_timeline_load_events_csv(rt_timeline *tl, const char *path, const rt_labelmap *map,
                                       rt_error *err);
 
 /* Takes stages and/or events from a recording's EDF+ annotations. Annotations
  * that are neither a stage nor an event nor listed as ignorable are ignored
  * (EDF+ files carry many other annotations), except that with want_stages an
- * annotation containing "stage" that cannot be read is an error. */
+ * annotation containing "stage" that cannot be read is an error.
+ * A stage annotation with a duration covers duration/epoch_s epochs; one
+ * without (or with duration 0) lasts until the next stage annotation, or one
+ * epoch when it is the last. Stage onsets must lie on the epoch grid within
+ * 1 ms (they are then snapped to it). With want_stages, "Lights off" and
+ * "Lights on" set lights_off_s and lights_on_s. Event annotations without a
+ * duration get duration 0; one with an onset before the file start (EDF+
+ * allows it) is clipped to start at 0 s, or dropped when it ends before 0 s.
+ * Messages number annotations
+ * from 1 in onset order. tl is left unchanged on failure; with want_stages it
+ * must hold no stages yet. */
 rt_status rt_timeline_load_annotations(rt_timeline *tl, const rt_recording *rec,
                                        const rt_labelmap *map, bool want_stages,
                                        bool want_events, rt_error *err);
 
 /* Loads stages (and events, when the file holds them) from `path`, telling the
- * format by content: an EDF/BDF header, an XML document (when the XML module
- * is built in), or a CSV table. */
+ * format by content: an EDF/BDF header ("0       " or "\xffBIOSEMI" in the
+ * first 8 bytes: its annotations are read), an XML document (first
+ * character '<' after an optional BOM and white space: RT_ERR_STAGING "XML
+ * scoring files are not supported yet" until the XML module exists), or
+ * else a stage table CSV. */
 rt_status rt_timeline_load_staging(rt_timeline *tl, const char *path, const rt_labelmap *map,
                                    rt_error *err);
 
-/* Checks the timeline against a recording of recording_s seconds: staging must
- * not run past the end (the message says by how much), must not be empty, and
- * events must lie inside the recording. */
+/* Checks the timeline against a recording of recording_s seconds (> 0):
+ * staging must not run past the end (the message says by how many seconds and
+ * epochs; a final epoch the recording covers only in part counts as past the
+ * end), must not be empty, and events must lie inside the recording (within
+ * 1e-6 s). Returns RT_ERR_STAGING, or RT_ERR_USAGE for a bad recording_s. */
 rt_status rt_timeline_check(const rt_timeline *tl, double recording_s, rt_error *err);
 
 #ifdef __cplusplus

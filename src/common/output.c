@@ -4,6 +4,7 @@
 #include <errno.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
 #include <unistd.h>
 
 #include "internal.h"
@@ -11,6 +12,12 @@
 rt_status rt_output_begin(rt_output *out, const char *path, int open_stream, rt_error *err)
 {
     memset(out, 0, sizeof *out);
+    if (strcmp(path, "-") == 0) {
+        /* standard output: nothing to rename, nothing to remove */
+        rt_copy_string(out->path, sizeof out->path, path);
+        out->file = stdout;
+        return RT_OK;
+    }
     if (strlen(path) >= sizeof out->path)
         return rt_fail(err, RT_ERR_USAGE, "%s: output path too long", path);
     rt_copy_string(out->path, sizeof out->path, path);
@@ -20,6 +27,11 @@ rt_status rt_output_begin(rt_output *out, const char *path, int open_stream, rt_
         out->temp_path[0] = '\0';
         return rt_fail(err, RT_ERR_IO, "%s: cannot create output: %s", path, strerror(errno));
     }
+    /* mkstemp makes the file private; give it the permissions a plain
+     * fopen would (0666 less the umask) */
+    mode_t mask = umask(0);
+    umask(mask);
+    fchmod(fd, 0666 & ~mask);
     if (!open_stream) {
         close(fd);
         return RT_OK;
@@ -35,6 +47,12 @@ rt_status rt_output_begin(rt_output *out, const char *path, int open_stream, rt_
 
 rt_status rt_output_commit(rt_output *out, rt_error *err)
 {
+    if (out->file == stdout) {
+        out->file = NULL;
+        if (fflush(stdout) != 0)
+            return rt_fail(err, RT_ERR_IO, "standard output: cannot write: %s", strerror(errno));
+        return RT_OK;
+    }
     int failed = 0;
     int saved = 0;
     if (out->file) {
@@ -63,6 +81,10 @@ rt_status rt_output_commit(rt_output *out, rt_error *err)
 
 void rt_output_abort(rt_output *out)
 {
+    if (out->file == stdout) {
+        out->file = NULL;
+        return;
+    }
     if (out->file) {
         fclose(out->file);
         out->file = NULL;

@@ -15,7 +15,8 @@ typedef struct rt_output {
 } rt_output;
 
 /* Creates a unique temporary file beside path. With open_stream false only the
- * name is reserved (for writers such as EDFlib that open by name). */
+ * name is reserved (for writers such as EDFlib that open by name). The path
+ * "-" means standard output (open_stream must be true): written directly. */
 rt_status rt_output_begin(rt_output *out, const char *path, int open_stream, rt_error *err);
 
 /* Flushes, syncs and renames the temporary file onto the destination.

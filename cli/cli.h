@@ -1,0 +1,56 @@
+/* The command-line layer: an option table per command drives getopt_long and
+ * the help text, and statuses map to the exit codes documented in README.md. */
+#ifndef REMTONE_CLI_H
+#define REMTONE_CLI_H
+
+#include <stdio.h>
+
+#include "remtone/remtone.h"
+
+/* Exit codes (README.md, "Exit codes"). */
+enum {
+    EXIT_OK = 0,
+    EXIT_USAGE = 2,      /* bad command line */
+    EXIT_INPUT_IO = 3,   /* an input file cannot be opened or read */
+    EXIT_RECORDING = 4,  /* the recording is malformed or unsupported */
+    EXIT_STAGING = 5,    /* staging, events, label map or cutoff file malformed */
+    EXIT_CHANNEL = 6,    /* a channel role is missing, ambiguous or has a wrong unit */
+    EXIT_OUTPUT = 7,     /* an output file cannot be written */
+    EXIT_INTERNAL = 8    /* out of memory or an internal error */
+};
+
+typedef struct cli_option {
+    const char *name;    /* long option without "--" */
+    int has_arg;         /* 0 or 1 */
+    int key;             /* value passed to the handler */
+    const char *metavar; /* shown in help when has_arg */
+    const char *help;
+} cli_option;
+
+typedef struct cli_command {
+    const char *name;
+    const char *usage;     /* after "remtone NAME " */
+    const char *summary;   /* one line */
+    const cli_option *options; /* terminated by a zero entry */
+    int (*run)(int argc, char **argv);
+} cli_command;
+
+/* Parses argv (argv[0] = command name) with the table; calls on_option for
+ * each option and collects positionals into positional[0..*n_positional).
+ * Returns EXIT_OK, or EXIT_USAGE after printing the problem. --help prints
+ * the help and returns -1 (the caller exits 0). */
+int cli_parse(const cli_command *cmd, int argc, char **argv,
+              int (*on_option)(void *ctx, int key, const char *arg), void *ctx,
+              char **positional, int max_positional, int *n_positional);
+
+void cli_print_help(FILE *out, const cli_command *cmd);
+
+/* Maps a library status to an exit code; output = the failed call wrote output. */
+int cli_exit_code(rt_status status, int output);
+
+/* Prints "remtone: message" to stderr and returns the exit code. */
+int cli_report(const rt_error *err, int output);
+
+extern const cli_command CLI_SCAN, CLI_SYNTH, CLI_SCORE, CLI_RULES;
+
+#endif

@@ -1,0 +1,129 @@
+/* remtone score REC --stages FILE: the night result. */
+#include <stdlib.h>
+#include <string.h>
+
+#include "cli.h"
+#include "roles_opts.h"
+
+enum { KEY_STAGES = 1, KEY_EVENTS, KEY_JSON, KEY_CUTOFFS, KEY_LABELS, KEY_MIN_REM, KEY_QUIET };
+
+static const cli_option OPTIONS[] = {
+    {"stages", 1, KEY_STAGES, "FILE", "staging: stage table CSV or EDF+ (default: the recording's own annotations)"},
+    {"events", 1, KEY_EVENTS, "FILE", "event table CSV (arousals, respiratory events, ...)"},
+    {"json", 1, KEY_JSON, "PATH", "write the night result as JSON ('-' for standard output)"},
+    {"cutoffs", 1, KEY_CUTOFFS, "FILE", "a lab's own cutoffs (CSV index,cutoff) instead of the published ones"},
+    {"label-map", 1, KEY_LABELS, "FILE", "map local stage or event labels (CSV label,meaning)"},
+    {"min-rem", 1, KEY_MIN_REM, "MIN", "least scorable REM minutes for an assessable night (default 5)"},
+    {"quiet", 0, KEY_QUIET, NULL, "do not print the text summary"},
+    CLI_ROLE_OPTIONS,
+    {0},
+};
+
+typedef struct score_config {
+    const char *stages, *events, *json, *cutoffs, *labels;
+    double min_rem;
+    int quiet;
+    rt_role_options roles;
+} score_config;
+
+static int on_option(void *ctx, int key, const char *arg)
+{
+    score_config *c = ctx;
+    if (cli_role_option(&c->roles, key, arg))
+        return EXIT_OK;
+    char *end = NULL;
+    switch (key) {
+    case KEY_STAGES: c->stages = arg; break;
+    case KEY_EVENTS: c->events = arg; break;
+    case KEY_JSON: c->json = arg; break;
+    case KEY_CUTOFFS: c->cutoffs = arg; break;
+    case KEY_LABELS: c->labels = arg; break;
+    case KEY_QUIET: c->quiet = 1; break;
+    case KEY_MIN_REM:
+        c->min_rem = strtod(arg, &end);
+        if (*end || !(c->min_rem >= 0 && c->min_rem <= 600)) {
+            fprintf(stderr, "remtone score: --min-rem must be 0 to 600 minutes, got '%s'\n", arg);
+            return EXIT_USAGE;
+        }
+        break;
+    }
+    return EXIT_OK;
+}
+
+/* Everything the night needs, loaded in order; the first failure stops. */
+typedef struct loaded {
+    rt_recording *rec;
+    rt_labelmap *labels;
+    rt_timeline *tl;
+    rt_role_map roles;
+    rt_cutoffs cutoffs;
+} loaded;
+
+static rt_status load_inputs(const score_config *c, const char *rec_path, loaded *l, rt_error *err)
+{
+    rt_cutoffs_published(&l->cutoffs);
+    if (c->cutoffs && rt_cutoffs_load(&l->cutoffs, c->cutoffs, err) != RT_OK)
+        return err->status;
+    if (c->labels && !(l->labels = rt_labelmap_load(c->labels, err)))
+        return err->status;
+    if (!(l->rec = rt_recording_open(rec_path, err)))
+        return err->status;
+    if (!(l->tl = rt_timeline_new()))
+        return RT_ERR_NOMEM;
+    rt_status st = c->stages ? rt_timeline_load_staging(l->tl, c->stages, l->labels, err)
+                             : rt_timeline_load_annotations(l->tl, l->rec, l->labels, true, true, err);
+    if (st == RT_OK && c->events)
+        st = rt_timeline_load_events_csv(l->tl, c->events, l->labels, err);
+    if (st == RT_OK)
+        st = rt_timeline_check(l->tl, rt_recording_duration_s(l->rec), err);
+    if (st == RT_OK)
+        st = rt_roles_resolve(l->rec, &c->roles, &l->roles, err);
+    return st;
+}
+
+static int run(int argc, char **argv)
+{
+    score_config c;
+    memset(&c, 0, sizeof c);
+    c.min_rem = -1;
+    char *pos[1];
+    int npos = 0;
+    int rc = cli_parse(&CLI_SCORE, argc, argv, on_option, &c, pos, 1, &npos);
+    if (rc != EXIT_OK)
+        return rc < 0 ? EXIT_OK : rc;
+    if (npos != 1) {
+        fprintf(stderr, "remtone score: give one recording (remtone score --help)\n");
+        return EXIT_USAGE;
+    }
+    rt_error err;
+    rt_error_clear(&err);
+    loaded l;
+    memset(&l, 0, sizeof l);
+    rt_night *night = NULL;
+    int output_error = 0;
+    rt_status st = load_inputs(&c, pos[0], &l, &err);
+    if (st == RT_OK) {
+        rt_score_params params;
+        rt_score_params_default(&params);
+        if (c.min_rem >= 0)
+            params.min_scorable_min = c.min_rem;
+        st = rt_night_score(l.rec, &l.roles, l.tl, &params, &l.cutoffs, &night, &err);
+    }
+    if (st == RT_OK && !c.quiet && !(c.json && strcmp(c.json, "-") == 0))
+        st = rt_night_write_text(night, stdout, &err);
+    if (st == RT_OK && c.json) {
+        rt_run_inputs in = {pos[0], c.stages, c.events, c.cutoffs, c.labels};
+        st = rt_night_write_json(night, &in, c.json, &err);
+        output_error = 1;
+    }
+    rt_night_free(night);
+    rt_timeline_free(l.tl);
+    rt_labelmap_free(l.labels);
+    rt_recording_close(l.rec);
+    if (st == RT_OK)
+        return EXIT_OK;
+    return cli_report(&err, output_error && st == RT_ERR_IO);
+}
+
+const cli_command CLI_SCORE = {"score", "REC [--stages FILE] [--events FILE] [--json PATH] [options]",
+                               "Score a night: RSWA indices, review flag and cautions.", OPTIONS, run};

@@ -1,0 +1,81 @@
+/* Table-driven option parsing and help for every command. */
+#include <getopt.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "cli.h"
+
+enum { MAX_OPTIONS = 48 };
+
+void cli_print_help(FILE *out, const cli_command *cmd)
+{
+    fprintf(out, "usage: remtone %s %s\n\n%s\n\noptions:\n", cmd->name, cmd->usage, cmd->summary);
+    for (const cli_option *o = cmd->options; o && o->name; o++) {
+        char left[64];
+        snprintf(left, sizeof left, "--%s%s%s", o->name, o->has_arg ? " " : "",
+                 o->has_arg ? o->metavar : "");
+        fprintf(out, "  %-28s %s\n", left, o->help);
+    }
+    fprintf(out, "  %-28s %s\n", "--help", "show this help");
+}
+
+int cli_parse(const cli_command *cmd, int argc, char **argv,
+              int (*on_option)(void *ctx, int key, const char *arg), void *ctx,
+              char **positional, int max_positional, int *n_positional)
+{
+    struct option longs[MAX_OPTIONS + 2];
+    int n = 0;
+    for (const cli_option *o = cmd->options; o && o->name && n < MAX_OPTIONS; o++, n++)
+        longs[n] = (struct option){o->name, o->has_arg ? required_argument : no_argument, NULL,
+                                   o->key};
+    longs[n++] = (struct option){"help", no_argument, NULL, 'h'};
+    longs[n] = (struct option){NULL, 0, NULL, 0};
+    *n_positional = 0;
+    optind = 1;
+    opterr = 0;
+    int c;
+    /* "-" as the first char of optstring keeps positionals in order */
+    while ((c = getopt_long(argc, argv, "-h", longs, NULL)) != -1) {
+        if (c == 1) {
+            if (*n_positional >= max_positional) {
+                fprintf(stderr, "remtone %s: unexpected argument '%s'\n", cmd->name, optarg);
+                return EXIT_USAGE;
+            }
+            positional[(*n_positional)++] = optarg;
+        } else if (c == 'h') {
+            cli_print_help(stdout, cmd);
+            return -1;
+        } else if (c == '?' || c == ':') {
+            fprintf(stderr, "remtone %s: unknown option or missing value: %s\n", cmd->name,
+                    argv[optind - 1]);
+            fprintf(stderr, "run 'remtone %s --help' for the options\n", cmd->name);
+            return EXIT_USAGE;
+        } else {
+            int rc = on_option(ctx, c, optarg);
+            if (rc != EXIT_OK)
+                return rc;
+        }
+    }
+    return EXIT_OK;
+}
+
+int cli_exit_code(rt_status status, int output)
+{
+    switch (status) {
+    case RT_OK: return EXIT_OK;
+    case RT_ERR_USAGE: return EXIT_USAGE;
+    case RT_ERR_IO: return output ? EXIT_OUTPUT : EXIT_INPUT_IO;
+    case RT_ERR_RECORDING: return EXIT_RECORDING;
+    case RT_ERR_STAGING: return EXIT_STAGING;
+    case RT_ERR_CHANNEL: return EXIT_CHANNEL;
+    case RT_ERR_NOMEM:
+    case RT_ERR_INTERNAL: return EXIT_INTERNAL;
+    }
+    return EXIT_INTERNAL;
+}
+
+int cli_report(const rt_error *err, int output)
+{
+    fprintf(stderr, "remtone: %s\n", err->message[0] ? err->message : rt_status_name(err->status));
+    return cli_exit_code(err->status, output);
+}

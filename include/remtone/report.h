@@ -1,0 +1,54 @@
+/* Writing results: the night result as text or JSON, the channel scan, the
+ * rule table, and the clinical cautions every report quotes (SAFETY.md).
+ * Files are written atomically (temporary file, then rename); the path "-"
+ * writes to standard output. */
+#ifndef REMTONE_REPORT_H
+#define REMTONE_REPORT_H
+
+#include <stddef.h>
+#include <stdio.h>
+
+#include "remtone/recording.h"
+#include "remtone/roles.h"
+#include "remtone/score.h"
+#include "remtone/status.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+/* The cautions of SAFETY.md, in its order. Static strings. */
+size_t rt_caution_count(void);
+const char *rt_caution(size_t index);
+/* "Published cutoffs come from visual scoring ..." */
+const char *rt_visual_scoring_note(void);
+
+/* Where a night's inputs came from, for the provenance block. Paths may be
+ * NULL when an input was not given. */
+typedef struct rt_run_inputs {
+    const char *recording;
+    const char *stages;
+    const char *events;
+    const char *cutoffs;
+    const char *label_map;
+} rt_run_inputs;
+
+/* The night result, schema "remtone-night/1" (docs/night-json.md). */
+rt_status rt_night_write_json(const rt_night *night, const rt_run_inputs *inputs,
+                              const char *path, rt_error *err);
+/* The short text summary for people. */
+rt_status rt_night_write_text(const rt_night *night, FILE *out, rt_error *err);
+
+/* The channels of a recording with their detected roles. */
+rt_status rt_scan_write_json(const rt_recording *rec, const rt_role_map *roles, const char *path,
+                             rt_error *err);
+rt_status rt_scan_write_text(const rt_recording *rec, const rt_role_map *roles, FILE *out,
+                             rt_error *err);
+
+/* The rule table with the cutoffs in force. */
+rt_status rt_rules_write_text(const rt_cutoffs *cutoffs, FILE *out, rt_error *err);
+
+#ifdef __cplusplus
+}
+#endif
+#endif

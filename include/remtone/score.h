@@ -1,0 +1,223 @@
+/* Scoring a night: from a staged recording to the published RSWA indices.
+ *
+ * The scorer works REM bout by REM bout (a run of consecutive R epochs). For
+ * every EMG role present it reads the bout, conditions it (zero-phase
+ * band-pass), takes a rectified envelope and a robust local background, finds
+ * phasic bursts and tonic stretches as each published rule set defines them,
+ * labels every mini-epoch, and computes the indices of the rule table
+ * (rt_index_rules) with their cutoffs. The exact signal definitions and why
+ * they were chosen are in docs/scoring.md.
+ *
+ * Ownership: rt_night_score() returns an rt_night the caller frees with
+ * rt_night_free(); every array inside belongs to it. Fields are read-only.
+ * Thread safety: scoring different nights in different threads is safe. */
+#ifndef REMTONE_SCORE_H
+#define REMTONE_SCORE_H
+
+#include <stdbool.h>
+#include <stddef.h>
+
+#include "remtone/recording.h"
+#include "remtone/roles.h"
+#include "remtone/status.h"
+#include "remtone/timeline.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+/* ---- The rule table ---------------------------------------------------- */
+
+typedef enum rt_index_id {
+    RT_IX_AASM_TONIC_CHIN = 0,  /* aasm.tonic_chin_epochs */
+    RT_IX_AASM_PHASIC_CHIN,     /* aasm.phasic_chin_epochs */
+    RT_IX_AASM_PHASIC_ANY,      /* aasm.phasic_any_epochs */
+    RT_IX_AASM_RSWA,            /* aasm.rswa_epochs */
+    RT_IX_SINBAR_CHIN_ANY_3S,   /* sinbar.chin_any_3s */
+    RT_IX_SINBAR_CHIN_PHASIC_3S,/* sinbar.chin_phasic_3s */
+    RT_IX_SINBAR_CHIN_TONIC_30S,/* sinbar.chin_tonic_30s */
+    RT_IX_SINBAR_FDS_PHASIC_3S, /* sinbar.fds_phasic_3s */
+    RT_IX_SINBAR_COMBINED_3S,   /* sinbar.chin_any_fds_phasic_3s */
+    RT_IX_SINBAR_COMBINED_30S,  /* sinbar.chin_any_fds_phasic_30s */
+    RT_IX_MONTREAL_TONIC_CHIN,  /* montreal.tonic_chin */
+    RT_IX_MONTREAL_PHASIC_CHIN, /* montreal.phasic_chin */
+    RT_IX_RAI,                  /* rai */
+    RT_IX_COUNT
+} rt_index_id;
+
+typedef struct rt_index_rule {
+    const char *id;          /* stable id, part of the JSON contract */
+    const char *title;       /* one line in plain words */
+    const char *unit;        /* "%" or "ratio" */
+    bool lower_is_worse;     /* true for the REM Atonia Index */
+    bool has_cutoff;         /* a published cutoff exists */
+    double cutoff;           /* abnormal at or above (or, lower_is_worse, below) */
+    double normal_from;      /* lower_is_worse only: normal above this; between is intermediate */
+    const char *source;      /* citation of the cutoff (or of the definition when none) */
+    bool from_memory;        /* the value was recalled, not checked against the paper */
+    double context_value;    /* a normative value for context, NaN when none */
+    const char *context_source;
+} rt_index_rule;
+
+/* The RT_IX_COUNT rules, in rt_index_id order. Static; never NULL. */
+const rt_index_rule *rt_index_rules(void);
+/* The rule with this id, or NULL; *out_id receives its rt_index_id when not NULL. */
+const rt_index_rule *rt_index_rule_find(const char *id, rt_index_id *out_id);
+
+/* Cutoffs in force: the published ones, or a lab's own loaded from a file. */
+typedef struct rt_cutoffs {
+    bool has[RT_IX_COUNT];
+    double value[RT_IX_COUNT];
+    double normal_from[RT_IX_COUNT]; /* lower_is_worse indices */
+    char origin[512];                /* "published" or the file they came from */
+} rt_cutoffs;
+
+void rt_cutoffs_published(rt_cutoffs *cutoffs);
+/* Loads a cutoff file: CSV with header `index,cutoff` (optional column
+ * `normal_from` for the REM Atonia Index); indices not listed keep their
+ * published cutoff. Errors name the file and line. */
+rt_status rt_cutoffs_load(rt_cutoffs *cutoffs, const char *path, rt_error *err);
+
+/* ---- Parameters -------------------------------------------------------- */
+
+typedef struct rt_score_params {
+    double band_low_hz;          /* band-pass high-pass corner, default 10 */
+    double band_high_hz;         /* low-pass corner, default 100 (clipped below Nyquist) */
+    int band_order;              /* Butterworth order of the zero-phase response, default 4 */
+    double envelope_window_s;    /* rectified moving-average window, default 0.05 */
+    double background_level_quantile; /* the level a second of background reaches: this
+                                    quantile of its envelope, default 0.9 */
+    double background_window_s;  /* background window centred on each second, default 60 */
+    double background_quantile;  /* quantile of those 1-s levels in that window, default 0.2 */
+    double aasm_nrem_quantile;   /* quantile of NREM epoch chin medians taken as "minimum
+                                    NREM amplitude", default 0.05 */
+    double tonic_abs_uv;         /* SINBAR/Montreal absolute tonic level, default 10 (rectified) */
+    double montreal_epoch_s;     /* Montreal tonic epoch, default 20 */
+    double min_rate_hz;          /* below this a channel is scored with a warning, default 200 */
+    double min_scorable_min;     /* less scorable REM is not assessable, default 5 */
+    double near_fraction;        /* "near the cutoff" from this share of it, default 0.8 */
+} rt_score_params;
+
+void rt_score_params_default(rt_score_params *params);
+/* Checks ranges; the message names the parameter. */
+rt_status rt_score_params_check(const rt_score_params *params, rt_error *err);
+
+/* ---- The night result -------------------------------------------------- */
+
+typedef enum rt_index_status {
+    RT_STATUS_ABOVE = 0,      /* at or above the cutoff */
+    RT_STATUS_BELOW,          /* below the cutoff */
+    RT_STATUS_INTERMEDIATE,   /* between abnormal and normal (REM Atonia Index) */
+    RT_STATUS_NO_CUTOFF,      /* computed; no published cutoff */
+    RT_STATUS_NOT_COMPUTED    /* a needed channel or reference is missing: see reason */
+} rt_index_status;
+
+/* "above", "below", "intermediate", "no-cutoff", "not-computed". */
+const char *rt_index_status_name(rt_index_status status);
+
+typedef struct rt_index_value {
+    double value;             /* % (0..100) or ratio (0..1); NaN when not computed */
+    rt_index_status status;
+    size_t numerator;         /* units counted (mini-epochs, epochs or seconds) */
+    size_t denominator;       /* units scored */
+    char reason[200];         /* why not computed, or a note; empty otherwise */
+} rt_index_value;
+
+typedef enum rt_review_level {
+    RT_REVIEW_CLEAR = 0,       /* no index reaches or nears a cutoff */
+    RT_REVIEW_NEAR,            /* an index is near a cutoff, none reaches one */
+    RT_REVIEW_FLAGGED,         /* an index reaches a published cutoff: physician review */
+    RT_REVIEW_NOT_ASSESSABLE   /* too little scorable REM, or no usable chin channel */
+} rt_review_level;
+
+/* "clear", "near-cutoff", "review", "not-assessable". */
+const char *rt_review_level_name(rt_review_level level);
+
+/* Activity labels of one mini-epoch on one channel (bit flags). */
+enum {
+    RT_LABEL_AASM_PHASIC = 1u << 0,    /* burst 0.1-5 s at >= 4x background */
+    RT_LABEL_SINBAR_PHASIC = 1u << 1,  /* burst 0.1-5 s at >= 2x background */
+    RT_LABEL_SINBAR_TONIC = 1u << 2,   /* > 50 % of the mini-epoch at tonic level */
+    RT_LABEL_SINBAR_ANY = 1u << 3,     /* phasic or tonic (SINBAR "any") */
+    RT_LABEL_MONTREAL_PHASIC = 1u << 4,/* 2-s grid: burst 0.1-10 s at >= 4x background */
+    RT_LABEL_ABSENT = 1u << 6,         /* the channel is not in the recording */
+    RT_LABEL_EXCLUDED = 1u << 7        /* not scorable (event, artifact); see excluded_by */
+};
+
+typedef struct rt_mini {
+    size_t epoch;                       /* epoch index in the timeline */
+    int index;                          /* position in the epoch, 0-based */
+    double onset_s;                     /* seconds from the recording start */
+    unsigned char labels[RT_ROLE_COUNT];/* RT_LABEL_* per role (ECG unused) */
+    float envelope_uv[RT_ROLE_COUNT];   /* median rectified envelope, uV */
+    float background_uv[RT_ROLE_COUNT]; /* median background, uV */
+    unsigned excluded_by;               /* bit set of rt_event_type that excluded it */
+} rt_mini;
+
+typedef struct rt_epoch_result {
+    size_t epoch;          /* epoch index in the timeline */
+    double onset_s;
+    size_t bout;           /* REM bout number, 0-based */
+    bool aasm_tonic;       /* chin above the NREM reference >= 50 % of the epoch */
+    int aasm_chin_minis;   /* 3-s minis with an AASM chin burst (0..10) */
+    int aasm_any_minis;    /* with an AASM burst on any EMG channel */
+    bool sinbar_tonic;     /* chin at tonic level > 50 % of the epoch */
+    int sinbar_any_minis;  /* chin "any" or FDS phasic 3-s minis (0..10) */
+    double tonic_share;    /* share of the epoch at the SINBAR tonic level, 0..1 */
+    double activity;       /* ranking score for the evidence list */
+    bool excluded;         /* wholly not scorable */
+} rt_epoch_result;
+
+typedef struct rt_burst {
+    rt_role role;
+    double onset_s;        /* half-height onset, seconds from the recording start */
+    double duration_s;     /* half-height duration */
+    double peak_ratio;     /* median envelope inside the burst / background */
+    unsigned rules;        /* RT_LABEL_AASM_PHASIC | SINBAR | MONTREAL it satisfies */
+} rt_burst;
+
+typedef struct rt_channel_result {
+    bool present;
+    char label[40];
+    double rate_hz;
+    bool low_rate;             /* below params.min_rate_hz: scored with a warning */
+    double band_high_hz;       /* low-pass corner actually used */
+    double rem_median_uv;      /* median rectified envelope over REM */
+} rt_channel_result;
+
+typedef struct rt_night {
+    char recording_path[4096];
+    double recording_s;
+    size_t rem_epochs;
+    double rem_minutes;
+    double scorable_minutes;
+    size_t n_bouts;
+    double nrem_reference_uv;            /* AASM chin reference; NaN when no NREM */
+    rt_channel_result channel[RT_ROLE_COUNT];
+    rt_index_value index[RT_IX_COUNT];
+    rt_cutoffs cutoffs;
+    rt_score_params params;
+    rt_review_level level;
+    size_t n_reasons;
+    char reasons[RT_IX_COUNT + 4][240];  /* plain-words reasons for the level */
+    size_t n_warnings;
+    char warnings[16][240];
+    rt_index_id headline;                /* the "REM with preserved muscle activity" index */
+    size_t n_epochs;  rt_epoch_result *epochs;  /* REM epochs, in time order */
+    size_t n_minis3;  rt_mini *minis3;          /* 3-s REM mini-epochs */
+    size_t n_minis2;  rt_mini *minis2;          /* 2-s REM mini-epochs (Montreal) */
+    size_t n_bursts;  rt_burst *bursts;         /* AASM/SINBAR/Montreal bursts in REM */
+} rt_night;
+
+/* Scores one night. cutoffs may be NULL (published); params may be NULL
+ * (defaults). Fails with RT_ERR_CHANNEL when no chin role is present,
+ * RT_ERR_STAGING when the timeline holds no REM. */
+rt_status rt_night_score(rt_recording *rec, const rt_role_map *roles, const rt_timeline *tl,
+                         const rt_score_params *params, const rt_cutoffs *cutoffs,
+                         rt_night **out, rt_error *err);
+void rt_night_free(rt_night *night);
+
+#ifdef __cplusplus
+}
+#endif
+#endif

@@ -1,0 +1,29 @@
+/* remtone's own checks of an EDF/BDF header, run on the raw bytes before the
+ * file is handed to EDFlib. EDFlib answers a malformed file with a bare
+ * "format error"; these checks name the field, the signal and the byte offset
+ * instead, and tell a truncated file from a lying record count. Internal. */
+#ifndef REMTONE_EDF_HEADER_CHECK_H
+#define REMTONE_EDF_HEADER_CHECK_H
+
+#include <stdbool.h>
+
+#include "remtone/status.h"
+
+/* What the checks learned; only filled when they pass. */
+typedef struct rt_edf_layout {
+    bool is_bdf;              /* "\xffBIOSEMI" version field: 3-byte samples */
+    int n_signals;            /* signals in the file, annotation signals included */
+    long long header_bytes;   /* 256 * (n_signals + 1) */
+    long long n_records;      /* data records the header promises (>= 1) */
+    double record_s;          /* duration of one data record, seconds (> 0) */
+    long long record_bytes;   /* bytes of one data record */
+    long long file_bytes;     /* size of the file; may exceed the data (extra bytes are ignored) */
+} rt_edf_layout;
+
+/* Reads the header of path and checks it. Returns RT_OK and fills layout, or
+ * RT_ERR_IO (cannot open or read the file: the message carries strerror) or
+ * RT_ERR_RECORDING (the message names the path, the field, the signal and the
+ * byte offset). Refuses EDF+D/BDF+D. */
+rt_status rt_edf_header_check(const char *path, rt_edf_layout *layout, rt_error *err);
+
+#endif

@@ -1,0 +1,438 @@
+/* The recording reader: remtone's header checks (edf_header_check.c) first,
+ * then EDFlib for the header values, the annotations and the samples. EDFlib
+ * keeps a process-wide table of open files and its open/close are not
+ * thread-safe (edflib.h, "EDFlib and thread-safety"), so every EDFlib call here
+ * runs under one static mutex. Samples come out in microvolts: the physical
+ * value EDFlib computes from the header's ranges, times the unit's factor. */
+#include "remtone/recording.h"
+
+#include <edflib.h>
+#include <pthread.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "edf_header_check.h"
+#include "internal.h"
+
+enum { IDENTITY_TEXT_MAX = 512, READ_CHUNK = 1 << 20 };
+
+struct rt_recording {
+    char *path;
+    int handle;
+    rt_file_kind kind;
+    double duration_s;
+    rt_clock_time start;
+    char patient[IDENTITY_TEXT_MAX];
+    char recording[IDENTITY_TEXT_MAX];
+    long long file_bytes;
+    int n_channels;
+    rt_channel_info *channels;
+    size_t n_annotations;
+    rt_annotation *annotations;
+};
+
+static pthread_mutex_t edflib_lock = PTHREAD_MUTEX_INITIALIZER;
+
+/* ---- units ------------------------------------------------------------ */
+
+/* Length of the micro prefix at p (ASCII u/U, Latin-1 0xb5, UTF-8 U+00B5 or
+ * U+03BC), 0 when p does not start with one. */
+static size_t micro_prefix_length(const unsigned char *p)
+{
+    if (p[0] == 'u' || p[0] == 'U' || p[0] == 0xb5)
+        return 1;
+    if ((p[0] == 0xc2 && p[1] == 0xb5) || (p[0] == 0xce && p[1] == 0xbc))
+        return 2;
+    return 0;
+}
+
+static bool is_volt_letter(const char *s)
+{
+    return (s[0] == 'V' || s[0] == 'v') && s[1] == '\0';
+}
+
+bool rt_unit_uv_per_unit(const char *unit, double *uv_per_unit)
+{
+    char text[32];
+    rt_copy_string(text, sizeof text, unit ? unit : "");
+    rt_trim(text);
+    double factor = 0;
+    size_t micro = micro_prefix_length((const unsigned char *)text);
+    if (is_volt_letter(text))
+        factor = 1e6;
+    else if (text[0] == 'm' && is_volt_letter(text + 1))
+        factor = 1e3;
+    else if (micro > 0 && is_volt_letter(text + micro))
+        factor = 1.0;
+    else if (text[0] == 'n' && is_volt_letter(text + 1))
+        factor = 1e-3;
+    if (uv_per_unit)
+        *uv_per_unit = factor > 0 ? factor : 1.0;
+    return factor > 0;
+}
+
+/* ---- EDFlib errors ------------------------------------------------------ */
+
+static const char *edflib_error_text(int code)
+{
+    switch (code) {
+    case EDFLIB_MALLOC_ERROR: return "out of memory inside EDFlib";
+    case EDFLIB_NO_SUCH_FILE_OR_DIRECTORY: return "EDFlib cannot open the file";
+    case EDFLIB_FILE_CONTAINS_FORMAT_ERRORS:
+        return "EDFlib reports a format error that remtone's header checks did not pin down "
+               "(often the EDF+ patient or recording subfields, the start date, or the "
+               "annotation signal's time-keeping entries)";
+    case EDFLIB_MAXFILES_REACHED: return "too many recordings open at once (EDFlib's limit)";
+    case EDFLIB_FILE_READ_ERROR: return "read error inside EDFlib";
+    case EDFLIB_FILE_ALREADY_OPENED: return "the file is already open in this process";
+    case EDFLIB_FILETYPE_ERROR: return "not an EDF, EDF+, BDF or BDF+ file";
+    case EDFLIB_NUMBER_OF_SIGNALS_INVALID: return "invalid number of signals";
+    case EDFLIB_FILE_IS_DISCONTINUOUS: return "discontinuous EDF+D is not supported";
+    case EDFLIB_INVALID_READ_ANNOTS_VALUE: return "internal: invalid annotation mode";
+    case EDFLIB_ARCH_ERROR: return "EDFlib does not support this machine architecture";
+    default: return "unknown EDFlib error";
+    }
+}
+
+static rt_status edflib_open_status(int code)
+{
+    switch (code) {
+    case EDFLIB_MALLOC_ERROR: return RT_ERR_NOMEM;
+    case EDFLIB_NO_SUCH_FILE_OR_DIRECTORY:
+    case EDFLIB_FILE_READ_ERROR:
+    case EDFLIB_MAXFILES_REACHED:
+    case EDFLIB_FILE_ALREADY_OPENED: return RT_ERR_IO;
+    case EDFLIB_INVALID_READ_ANNOTS_VALUE:
+    case EDFLIB_ARCH_ERROR: return RT_ERR_INTERNAL;
+    default: return RT_ERR_RECORDING;
+    }
+}
+
+/* ---- filling the object from EDFlib's header -------------------------- */
+
+static rt_file_kind kind_from_edflib(int filetype)
+{
+    switch (filetype) {
+    case EDFLIB_FILETYPE_EDFPLUS: return RT_FILE_EDFPLUS;
+    case EDFLIB_FILETYPE_BDF: return RT_FILE_BDF;
+    case EDFLIB_FILETYPE_BDFPLUS: return RT_FILE_BDFPLUS;
+    default: return RT_FILE_EDF;
+    }
+}
+
+/* Appends word to a space-separated text, skipping empty words. */
+static void append_word(char *text, size_t cap, const char *word)
+{
+    char copy[96];
+    rt_copy_string(copy, sizeof copy, word);
+    rt_trim(copy);
+    if (copy[0] == '\0')
+        return;
+    size_t n = strlen(text);
+    if (n > 0 && n + 1 < cap)
+        text[n++] = ' ';
+    rt_copy_string(text + n, cap - n, copy);
+}
+
+/* EDFlib splits the EDF+ identity fields into subfields and leaves the plain
+ * ones empty, and the other way round for plain EDF; join whatever is there. */
+static void fill_identity(rt_recording *rec, const struct edf_hdr_struct *h)
+{
+    const char *patient[] = {h->patient, h->patientcode, h->gender, h->birthdate, h->patient_name,
+                             h->patient_additional};
+    const char *recording[] = {h->recording, h->admincode, h->technician, h->equipment,
+                               h->recording_additional};
+    for (size_t i = 0; i < sizeof patient / sizeof patient[0]; i++)
+        append_word(rec->patient, sizeof rec->patient, patient[i]);
+    for (size_t i = 0; i < sizeof recording / sizeof recording[0]; i++)
+        append_word(rec->recording, sizeof rec->recording, recording[i]);
+}
+
+static void fill_start(rt_recording *rec, const struct edf_hdr_struct *h)
+{
+    rec->start = (rt_clock_time){
+        .year = h->startdate_year, .month = h->startdate_month, .day = h->startdate_day,
+        .hour = h->starttime_hour, .minute = h->starttime_minute, .second = h->starttime_second,
+        .subsecond = (double)h->starttime_subsecond / (double)EDFLIB_TIME_DIMENSION};
+}
+
+static void fill_channel(rt_channel_info *ch, const struct edf_param_struct *p, double record_s)
+{
+    rt_copy_string(ch->label, sizeof ch->label, p->label);
+    rt_trim(ch->label);
+    rt_copy_string(ch->transducer, sizeof ch->transducer, p->transducer);
+    rt_trim(ch->transducer);
+    rt_copy_string(ch->unit, sizeof ch->unit, p->physdimension);
+    rt_trim(ch->unit);
+    rt_copy_string(ch->prefilter, sizeof ch->prefilter, p->prefilter);
+    rt_trim(ch->prefilter);
+    ch->rate_hz = (double)p->smp_in_datarecord / record_s;
+    ch->phys_min = p->phys_min;
+    ch->phys_max = p->phys_max;
+    ch->dig_min = p->dig_min;
+    ch->dig_max = p->dig_max;
+    ch->n_samples = p->smp_in_file;
+    ch->is_voltage = rt_unit_uv_per_unit(ch->unit, &ch->uv_per_unit);
+}
+
+static rt_status fill_channels(rt_recording *rec, const struct edf_hdr_struct *h, rt_error *err)
+{
+    double record_s = (double)h->datarecord_duration / (double)EDFLIB_TIME_DIMENSION;
+    rec->n_channels = h->edfsignals;
+    rec->channels = rt_calloc((size_t)h->edfsignals, sizeof *rec->channels);
+    if (!rec->channels)
+        return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory for %d channels", rec->path, h->edfsignals);
+    for (int i = 0; i < h->edfsignals; i++)
+        fill_channel(&rec->channels[i], &h->signalparam[i], record_s);
+    return RT_OK;
+}
+
+/* ---- annotations --------------------------------------------------------- */
+
+typedef struct onset_key {
+    double onset_s;
+    size_t index;
+} onset_key;
+
+/* Ties keep file order, so the sort is stable. */
+static int compare_onset(const void *a, const void *b)
+{
+    const onset_key *x = a, *y = b;
+    if (x->onset_s != y->onset_s)
+        return x->onset_s < y->onset_s ? -1 : 1;
+    return (x->index > y->index) - (x->index < y->index);
+}
+
+static rt_status sort_annotations(rt_recording *rec, rt_error *err)
+{
+    size_t n = rec->n_annotations;
+    onset_key *keys = rt_calloc(n, sizeof *keys);
+    rt_annotation *sorted = rt_calloc(n, sizeof *sorted);
+    if (!keys || !sorted) {
+        free(keys);
+        free(sorted);
+        return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory sorting %zu annotations", rec->path, n);
+    }
+    for (size_t i = 0; i < n; i++)
+        keys[i] = (onset_key){rec->annotations[i].onset_s, i};
+    qsort(keys, n, sizeof *keys, compare_onset);
+    for (size_t i = 0; i < n; i++)
+        sorted[i] = rec->annotations[keys[i].index];
+    free(keys);
+    free(rec->annotations);
+    rec->annotations = sorted;
+    return RT_OK;
+}
+
+static void copy_annotation(rt_annotation *out, const struct edf_annotation_struct *a)
+{
+    out->onset_s = (double)a->onset / (double)EDFLIB_TIME_DIMENSION;
+    /* EDFlib leaves the duration text empty when the annotation has none. */
+    out->duration_s = a->duration[0] ? (double)a->duration_l / (double)EDFLIB_TIME_DIMENSION : -1.0;
+    rt_copy_string(out->text, sizeof out->text, a->annotation);
+}
+
+static rt_status read_annotations(rt_recording *rec, long long count, rt_error *err)
+{
+    if (count <= 0)
+        return RT_OK;
+    rec->annotations = rt_calloc((size_t)count, sizeof *rec->annotations);
+    if (!rec->annotations)
+        return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory for %lld annotations", rec->path, count);
+    for (long long i = 0; i < count; i++) {
+        struct edf_annotation_struct a;
+        if (edf_get_annotation(rec->handle, (int)i, &a) != 0)
+            return rt_fail(err, RT_ERR_RECORDING, "%s: EDFlib cannot return annotation %lld of %lld",
+                           rec->path, i + 1, count);
+        copy_annotation(&rec->annotations[i], &a);
+        rec->n_annotations++;
+    }
+    return sort_annotations(rec, err);
+}
+
+/* ---- open / close ---------------------------------------------------------- */
+
+static rt_status open_with_edflib(rt_recording *rec, struct edf_hdr_struct *h, rt_error *err)
+{
+    pthread_mutex_lock(&edflib_lock);
+    int rc = edfopen_file_readonly(rec->path, h, EDFLIB_READ_ALL_ANNOTATIONS);
+    pthread_mutex_unlock(&edflib_lock);
+    if (rc != 0)
+        return rt_fail(err, edflib_open_status(h->filetype), "%s: %s (EDFlib error %d)", rec->path,
+                       edflib_error_text(h->filetype), h->filetype);
+    rec->handle = h->handle;
+    return RT_OK;
+}
+
+static rt_status fill_from_header(rt_recording *rec, const struct edf_hdr_struct *h, rt_error *err)
+{
+    rec->kind = kind_from_edflib(h->filetype);
+    rec->duration_s = (double)h->file_duration / (double)EDFLIB_TIME_DIMENSION;
+    fill_start(rec, h);
+    fill_identity(rec, h);
+    if (h->edfsignals < 1)
+        return rt_fail(err, RT_ERR_RECORDING, "%s: the file holds annotations only, no signals", rec->path);
+    rt_status s = fill_channels(rec, h, err);
+    if (s != RT_OK)
+        return s;
+    pthread_mutex_lock(&edflib_lock);
+    s = read_annotations(rec, h->annotations_in_file, err);
+    pthread_mutex_unlock(&edflib_lock);
+    return s;
+}
+
+static rt_recording *recording_new(const char *path, rt_error *err)
+{
+    rt_recording *rec = rt_calloc(1, sizeof *rec);
+    size_t n = strlen(path);
+    if (rec)
+        rec->path = rt_calloc(n + 1, 1);
+    if (!rec || !rec->path) {
+        free(rec);
+        rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", path);
+        return NULL;
+    }
+    memcpy(rec->path, path, n + 1);
+    rec->handle = -1;
+    return rec;
+}
+
+/* The EDF specification does not forbid bytes after the last data record,
+ * but EDFlib 1.23 refuses any file whose size differs from the header's
+ * promise, with a bare "format error". Say exactly what is wrong and how to
+ * fix it instead. */
+static rt_status check_no_trailing_bytes(const char *path, const rt_edf_layout *layout, rt_error *err)
+{
+    long long end = layout->header_bytes + layout->n_records * layout->record_bytes;
+    if (layout->file_bytes == end)
+        return RT_OK;
+    return rt_fail(err, RT_ERR_RECORDING,
+                   "%s: %lld extra bytes after the last of %lld data records (from byte offset %lld); "
+                   "EDFlib refuses such files: cut the file to %lld bytes (truncate -s %lld FILE)",
+                   path, layout->file_bytes - end, layout->n_records, end, end, end);
+}
+
+rt_recording *rt_recording_open(const char *path, rt_error *err)
+{
+    rt_edf_layout layout;
+    if (!path) {
+        rt_fail(err, RT_ERR_USAGE, "no recording path given");
+        return NULL;
+    }
+    if (rt_edf_header_check(path, &layout, err) != RT_OK || check_no_trailing_bytes(path, &layout, err) != RT_OK)
+        return NULL;
+    rt_recording *rec = recording_new(path, err);
+    struct edf_hdr_struct *h = rt_calloc(1, sizeof *h);
+    rt_status s = !rec ? RT_ERR_NOMEM
+                  : !h ? rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", path)
+                       : open_with_edflib(rec, h, err);
+    if (s == RT_OK) {
+        rec->file_bytes = layout.file_bytes;
+        s = fill_from_header(rec, h, err);
+    }
+    free(h);
+    if (s != RT_OK) {
+        rt_recording_close(rec);
+        return NULL;
+    }
+    return rec;
+}
+
+void rt_recording_close(rt_recording *rec)
+{
+    if (!rec)
+        return;
+    if (rec->handle >= 0) {
+        pthread_mutex_lock(&edflib_lock);
+        edfclose_file(rec->handle);
+        pthread_mutex_unlock(&edflib_lock);
+    }
+    free(rec->channels);
+    free(rec->annotations);
+    free(rec->path);
+    free(rec);
+}
+
+/* ---- accessors ----------------------------------------------------------- */
+
+const char *rt_recording_path(const rt_recording *rec) { return rec->path; }
+rt_file_kind rt_recording_kind(const rt_recording *rec) { return rec->kind; }
+double rt_recording_duration_s(const rt_recording *rec) { return rec->duration_s; }
+rt_clock_time rt_recording_start(const rt_recording *rec) { return rec->start; }
+const char *rt_recording_patient_text(const rt_recording *rec) { return rec->patient; }
+const char *rt_recording_recording_text(const rt_recording *rec) { return rec->recording; }
+long long rt_recording_file_size(const rt_recording *rec) { return rec->file_bytes; }
+int rt_recording_channel_count(const rt_recording *rec) { return rec->n_channels; }
+size_t rt_recording_annotation_count(const rt_recording *rec) { return rec->n_annotations; }
+
+const rt_channel_info *rt_recording_channel(const rt_recording *rec, int index)
+{
+    if (index < 0 || index >= rec->n_channels)
+        return NULL;
+    return &rec->channels[index];
+}
+
+int rt_recording_find_channel(const rt_recording *rec, const char *name)
+{
+    char wanted[64];
+    rt_copy_string(wanted, sizeof wanted, name ? name : "");
+    rt_trim(wanted);
+    for (int i = 0; i < rec->n_channels; i++)
+        if (rt_equal_nocase(rec->channels[i].label, wanted))
+            return i;
+    return -1;
+}
+
+const rt_annotation *rt_recording_annotation(const rt_recording *rec, size_t index)
+{
+    return index < rec->n_annotations ? &rec->annotations[index] : NULL;
+}
+
+/* ---- samples --------------------------------------------------------------- */
+
+static rt_status check_read_range(const rt_recording *rec, int channel, long long first, size_t n,
+                                  rt_error *err)
+{
+    if (channel < 0 || channel >= rec->n_channels)
+        return rt_fail(err, RT_ERR_USAGE, "%s: channel index %d out of range (0..%d)", rec->path, channel,
+                       rec->n_channels - 1);
+    long long total = rec->channels[channel].n_samples;
+    if (first < 0 || first > total || (unsigned long long)n > (unsigned long long)(total - first))
+        return rt_fail(err, RT_ERR_USAGE, "%s: channel \"%s\": samples %lld..+%zu outside 0..%lld",
+                       rec->path, rec->channels[channel].label, first, n, total);
+    return RT_OK;
+}
+
+/* EDFlib takes an int count, so long reads go in chunks. Caller holds the lock. */
+static rt_status read_physical(rt_recording *rec, int channel, long long first, size_t n, double *out,
+                               rt_error *err)
+{
+    if (edfseek(rec->handle, channel, first, EDFSEEK_SET) != first)
+        return rt_fail(err, RT_ERR_IO, "%s: channel \"%s\": cannot seek to sample %lld", rec->path,
+                       rec->channels[channel].label, first);
+    for (size_t done = 0; done < n;) {
+        int want = (int)(n - done < READ_CHUNK ? n - done : READ_CHUNK);
+        int got = edfread_physical_samples(rec->handle, channel, want, out + done);
+        if (got != want)
+            return rt_fail(err, RT_ERR_IO, "%s: channel \"%s\": read failed at sample %lld", rec->path,
+                           rec->channels[channel].label, first + (long long)done);
+        done += (size_t)got;
+    }
+    return RT_OK;
+}
+
+rt_status rt_recording_read_uv(rt_recording *rec, int channel, long long first, size_t n, double *out,
+                               rt_error *err)
+{
+    rt_status s = check_read_range(rec, channel, first, n, err);
+    if (s != RT_OK || n == 0)
+        return s;
+    pthread_mutex_lock(&edflib_lock);
+    s = read_physical(rec, channel, first, n, out, err);
+    pthread_mutex_unlock(&edflib_lock);
+    double factor = rec->channels[channel].uv_per_unit;
+    if (s == RT_OK && factor != 1.0)
+        for (size_t i = 0; i < n; i++)
+            out[i] *= factor;
+    return s;
+}

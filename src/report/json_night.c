@@ -1,0 +1,221 @@
+/* The night result as JSON (schema "remtone-night/1", docs/night-json.md),
+ * built with jansson and written atomically. */
+#include <jansson.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+#include <time.h>
+
+#include "digest.h"
+#include "internal.h"
+#include "output.h"
+#include "remtone/report.h"
+#include "remtone/version.h"
+
+/* jansson refuses NaN and infinities; JSON has null for "no value". */
+static json_t *number(double v) { return isfinite(v) ? json_real(v) : json_null(); }
+
+/* Two decimals for percentages, four for ratios: stable text, honest precision. */
+static double rounded(double v, int decimals)
+{
+    double s = pow(10.0, decimals);
+    return isfinite(v) ? round(v * s) / s : v;
+}
+
+
+static json_t *indices_json(const rt_night *night)
+{
+    const rt_index_rule *rules = rt_index_rules();
+    json_t *o = json_object();
+    for (int i = 0; i < RT_IX_COUNT; i++) {
+        const rt_index_value *v = &night->index[i];
+        bool pct = strcmp(rules[i].unit, "%") == 0;
+        json_t *x = json_object();
+        json_object_set_new(x, "value", number(rounded(v->value, pct ? 2 : 4)));
+        json_object_set_new(x, "unit", json_string(rules[i].unit));
+        json_object_set_new(x, "cutoff", night->cutoffs.has[i] ? number(night->cutoffs.value[i])
+                                                              : json_null());
+        if (rules[i].lower_is_worse && night->cutoffs.has[i])
+            json_object_set_new(x, "normal_from", number(night->cutoffs.normal_from[i]));
+        json_object_set_new(x, "status", json_string(rt_index_status_name(v->status)));
+        json_object_set_new(x, "source", json_string(rules[i].source));
+        json_object_set_new(x, "numerator", json_integer((json_int_t)v->numerator));
+        json_object_set_new(x, "denominator", json_integer((json_int_t)v->denominator));
+        if (v->reason[0])
+            json_object_set_new(x, "reason", json_string(v->reason));
+        json_object_set_new(o, rules[i].id, x);
+    }
+    return o;
+}
+
+static json_t *channels_json(const rt_night *night)
+{
+    json_t *a = json_array();
+    for (int r = 0; r < RT_ROLE_COUNT; r++) {
+        const rt_channel_result *c = &night->channel[r];
+        if (!c->present)
+            continue;
+        json_t *x = json_object();
+        json_object_set_new(x, "role", json_string(rt_role_name((rt_role)r)));
+        json_object_set_new(x, "label", json_string(c->label));
+        json_object_set_new(x, "rate_hz", json_real(c->rate_hz));
+        json_object_set_new(x, "band_hz", json_pack("[ff]", night->params.band_low_hz,
+                                                     c->band_high_hz));
+        json_object_set_new(x, "low_rate", json_boolean(c->low_rate));
+        json_array_append_new(a, x);
+    }
+    return a;
+}
+
+static json_t *strings_json(const char (*items)[240], size_t n)
+{
+    json_t *a = json_array();
+    for (size_t i = 0; i < n; i++)
+        json_array_append_new(a, json_string(items[i]));
+    return a;
+}
+
+static json_t *evidence_json(const rt_night *night, size_t limit)
+{
+    /* the most active epochs, by the ranking score of indices.c */
+    json_t *a = json_array();
+    bool *taken = rt_calloc(night->n_epochs, sizeof *taken);
+    if (!taken)
+        return a;
+    for (size_t rank = 0; rank < limit; rank++) {
+        size_t best = night->n_epochs;
+        for (size_t e = 0; e < night->n_epochs; e++)
+            if (!taken[e] && night->epochs[e].activity > 0 &&
+                (best == night->n_epochs || night->epochs[e].activity > night->epochs[best].activity))
+                best = e;
+        if (best == night->n_epochs)
+            break;
+        taken[best] = true;
+        const rt_epoch_result *er = &night->epochs[best];
+        json_t *x = json_object();
+        json_object_set_new(x, "rank", json_integer((json_int_t)rank + 1));
+        json_object_set_new(x, "epoch", json_integer((json_int_t)er->epoch));
+        json_object_set_new(x, "onset_s", json_real(er->onset_s));
+        json_object_set_new(x, "sinbar_active_minis", json_integer(er->sinbar_any_minis));
+        json_object_set_new(x, "aasm_phasic_minis", json_integer(er->aasm_any_minis));
+        json_object_set_new(x, "tonic", json_boolean(er->sinbar_tonic));
+        json_object_set_new(x, "tonic_share", json_real(rounded(er->tonic_share, 3)));
+        json_array_append_new(a, x);
+    }
+    free(taken);
+    return a;
+}
+
+static json_t *params_json(const rt_score_params *p)
+{
+    return json_pack("{s:f,s:f,s:i,s:f,s:f,s:f,s:f,s:f,s:f,s:f,s:f,s:f,s:f}",
+                     "band_low_hz", p->band_low_hz, "band_high_hz", p->band_high_hz,
+                     "band_order", p->band_order, "envelope_window_s", p->envelope_window_s,
+                     "background_level_quantile", p->background_level_quantile,
+                     "background_window_s", p->background_window_s,
+                     "background_quantile", p->background_quantile,
+                     "aasm_nrem_quantile", p->aasm_nrem_quantile, "tonic_abs_uv", p->tonic_abs_uv,
+                     "montreal_epoch_s", p->montreal_epoch_s, "min_rate_hz", p->min_rate_hz,
+                     "min_scorable_min", p->min_scorable_min, "near_fraction", p->near_fraction);
+}
+
+static rt_status input_json(json_t *inputs, const char *role, const char *path, rt_error *err)
+{
+    if (!path)
+        return RT_OK;
+    long long size = 0;
+    char hex[17];
+    rt_status st = rt_file_digest(path, &size, hex, err);
+    if (st != RT_OK)
+        return st;
+    json_object_set_new(inputs, role, json_pack("{s:s,s:I,s:s}", "path", path, "bytes",
+                                                (json_int_t)size, "xxh3", hex));
+    return RT_OK;
+}
+
+static rt_status provenance_json(const rt_night *night, const rt_run_inputs *in, json_t **out,
+                                 rt_error *err)
+{
+    json_t *inputs = json_object();
+    rt_status st = RT_OK;
+    if (in) {
+        st = input_json(inputs, "recording", in->recording, err);
+        if (st == RT_OK)
+            st = input_json(inputs, "stages", in->stages, err);
+        if (st == RT_OK)
+            st = input_json(inputs, "events", in->events, err);
+        if (st == RT_OK)
+            st = input_json(inputs, "cutoffs", in->cutoffs, err);
+        if (st == RT_OK)
+            st = input_json(inputs, "label_map", in->label_map, err);
+    }
+    if (st != RT_OK) {
+        json_decref(inputs);
+        return st;
+    }
+    char when[32];
+    time_t now = time(NULL);
+    struct tm tm;
+    gmtime_r(&now, &tm);
+    strftime(when, sizeof when, "%Y-%m-%dT%H:%M:%SZ", &tm);
+    *out = json_pack("{s:s,s:s,s:o,s:s,s:o}", "tool", "remtone", "version", rt_version(),
+                     "parameters", params_json(&night->params), "cutoffs",
+                     night->cutoffs.origin, "inputs", inputs);
+    json_object_set_new(*out, "run_at", json_string(when));
+    return RT_OK;
+}
+
+static json_t *cautions_json(void)
+{
+    json_t *a = json_array();
+    for (size_t i = 0; i < rt_caution_count(); i++)
+        json_array_append_new(a, json_string(rt_caution(i)));
+    json_array_append_new(a, json_string(rt_visual_scoring_note()));
+    return a;
+}
+
+rt_status rt_night_write_json(const rt_night *night, const rt_run_inputs *inputs,
+                              const char *path, rt_error *err)
+{
+    json_t *prov = NULL;
+    rt_status st = provenance_json(night, inputs, &prov, err);
+    if (st != RT_OK)
+        return st;
+    json_t *root = json_object();
+    json_object_set_new(root, "schema", json_string("remtone-night/1"));
+    json_object_set_new(root, "rem", json_pack("{s:I,s:f,s:f,s:I}", "epochs",
+                                               (json_int_t)night->rem_epochs, "minutes",
+                                               night->rem_minutes, "scorable_minutes",
+                                               night->scorable_minutes, "bouts",
+                                               (json_int_t)night->n_bouts));
+    json_object_set_new(root, "recording_s", json_real(night->recording_s));
+    json_object_set_new(root, "channels", channels_json(night));
+    json_object_set_new(root, "aasm_nrem_reference_uv", number(rounded(night->nrem_reference_uv, 4)));
+    json_object_set_new(root, "headline", json_pack("{s:s,s:o}", "index",
+                                                    rt_index_rules()[night->headline].id, "value",
+                                                    number(rounded(night->index[night->headline].value, 2))));
+    json_object_set_new(root, "indices", indices_json(night));
+    json_t *rev = json_object();
+    json_object_set_new(rev, "flagged", json_boolean(night->level == RT_REVIEW_FLAGGED));
+    json_object_set_new(rev, "level", json_string(rt_review_level_name(night->level)));
+    json_object_set_new(rev, "reasons", strings_json(night->reasons, night->n_reasons));
+    json_object_set_new(root, "review", rev);
+    json_object_set_new(root, "evidence", evidence_json(night, 10));
+    json_object_set_new(root, "warnings", strings_json(night->warnings, night->n_warnings));
+    json_object_set_new(root, "cautions", cautions_json());
+    json_object_set_new(root, "provenance", prov);
+
+    rt_output out;
+    st = rt_output_begin(&out, path, 1, err);
+    if (st == RT_OK) {
+        if (json_dumpf(root, out.file, JSON_INDENT(2) | JSON_REAL_PRECISION(10)) != 0 ||
+            fputc('\n', out.file) == EOF) {
+            rt_output_abort(&out);
+            st = rt_fail(err, RT_ERR_IO, "%s: cannot write JSON", path);
+        } else {
+            st = rt_output_commit(&out, err);
+        }
+    }
+    json_decref(root);
+    return st;
+}

@@ -1,0 +1,164 @@
+/* Text for people: the night summary, the channel scan and the rule table. */
+#include <jansson.h>
+#include <math.h>
+#include <string.h>
+
+#include "internal.h"
+#include "output.h"
+#include "remtone/report.h"
+
+static void value_text(const rt_index_rule *rule, double v, char *buf, size_t cap)
+{
+    if (!isfinite(v))
+        snprintf(buf, cap, "-");
+    else if (strcmp(rule->unit, "%") == 0)
+        snprintf(buf, cap, "%.1f %%", v);
+    else
+        snprintf(buf, cap, "%.3f", v);
+}
+
+static const char *level_words(rt_review_level level)
+{
+    switch (level) {
+    case RT_REVIEW_FLAGGED: return "REVIEW: a published cutoff is reached; physician review advised";
+    case RT_REVIEW_NEAR: return "NEAR CUTOFF: no cutoff reached, but one is close";
+    case RT_REVIEW_CLEAR: return "CLEAR: no index reaches or nears its cutoff";
+    case RT_REVIEW_NOT_ASSESSABLE: return "NOT ASSESSABLE: the night cannot be scored reliably";
+    }
+    return "";
+}
+
+rt_status rt_night_write_text(const rt_night *night, FILE *out, rt_error *err)
+{
+    const rt_index_rule *rules = rt_index_rules();
+    char v[32], c[32];
+    fprintf(out, "remtone night summary: %s\n\n", night->recording_path);
+    fprintf(out, "REM: %.1f min in %zu bouts, %.1f min scorable\n", night->rem_minutes,
+            night->n_bouts, night->scorable_minutes);
+    fprintf(out, "Channels:");
+    for (int r = 0; r < RT_ROLE_COUNT; r++)
+        if (night->channel[r].present)
+            fprintf(out, " %s=%s", rt_role_name((rt_role)r), night->channel[r].label);
+    fprintf(out, "\n");
+    value_text(&rules[night->headline], night->index[night->headline].value, v, sizeof v);
+    fprintf(out, "REM with preserved muscle activity: %s (%s)\n\n", v, rules[night->headline].id);
+    fprintf(out, "%-34s %10s %10s  %s\n", "index", "value", "cutoff", "status");
+    for (int i = 0; i < RT_IX_COUNT; i++) {
+        value_text(&rules[i], night->index[i].value, v, sizeof v);
+        if (night->cutoffs.has[i])
+            value_text(&rules[i], night->cutoffs.value[i], c, sizeof c);
+        else
+            snprintf(c, sizeof c, "none");
+        fprintf(out, "%-34s %10s %10s  %s", rules[i].id, v, c,
+                rt_index_status_name(night->index[i].status));
+        if (night->index[i].reason[0])
+            fprintf(out, " (%s)", night->index[i].reason);
+        fprintf(out, "\n");
+    }
+    fprintf(out, "Cutoffs: %s\n\n", night->cutoffs.origin);
+    fprintf(out, "%s\n", level_words(night->level));
+    for (size_t i = 0; i < night->n_reasons; i++)
+        fprintf(out, "  - %s\n", night->reasons[i]);
+    if (night->n_warnings) {
+        fprintf(out, "\nWarnings:\n");
+        for (size_t i = 0; i < night->n_warnings; i++)
+            fprintf(out, "  - %s\n", night->warnings[i]);
+    }
+    fprintf(out, "\nCautions (SAFETY.md):\n");
+    for (size_t i = 0; i < rt_caution_count(); i++)
+        fprintf(out, "  %zu. %s\n", i + 1, rt_caution(i));
+    fprintf(out, "  %s\n", rt_visual_scoring_note());
+    if (ferror(out))
+        return rt_fail(err, RT_ERR_IO, "cannot write the summary");
+    return RT_OK;
+}
+
+static const char *role_of(const rt_role_map *roles, int channel)
+{
+    for (int r = 0; r < RT_ROLE_COUNT; r++)
+        if (roles->role[r].channel == channel || roles->role[r].reference == channel)
+            return rt_role_name((rt_role)r);
+    return "";
+}
+
+rt_status rt_scan_write_text(const rt_recording *rec, const rt_role_map *roles, FILE *out,
+                             rt_error *err)
+{
+    static const char *const KINDS[] = {"EDF", "EDF+", "BDF", "BDF+"};
+    fprintf(out, "%s: %s, %.1f s (%.2f h), %d channels\n", rt_recording_path(rec),
+            KINDS[rt_recording_kind(rec)], rt_recording_duration_s(rec),
+            rt_recording_duration_s(rec) / 3600.0, rt_recording_channel_count(rec));
+    fprintf(out, "%-4s %-16s %9s %-6s %24s  %s\n", "#", "label", "rate_hz", "unit",
+            "physical range", "role");
+    for (int i = 0; i < rt_recording_channel_count(rec); i++) {
+        const rt_channel_info *ch = rt_recording_channel(rec, i);
+        char range[40];
+        snprintf(range, sizeof range, "%g .. %g", ch->phys_min, ch->phys_max);
+        fprintf(out, "%-4d %-16s %9g %-6s %24s  %s\n", i, ch->label, ch->rate_hz, ch->unit, range,
+                role_of(roles, i));
+    }
+    for (int r = 0; r < RT_ROLE_COUNT; r++)
+        if (roles->role[r].reference >= 0)
+            fprintf(out, "%s: derived as %s\n", rt_role_name((rt_role)r), roles->role[r].label);
+    if (ferror(out))
+        return rt_fail(err, RT_ERR_IO, "cannot write the scan");
+    return RT_OK;
+}
+
+rt_status rt_scan_write_json(const rt_recording *rec, const rt_role_map *roles, const char *path,
+                             rt_error *err)
+{
+    json_t *root = json_object();
+    json_t *chans = json_array();
+    for (int i = 0; i < rt_recording_channel_count(rec); i++) {
+        const rt_channel_info *ch = rt_recording_channel(rec, i);
+        const char *role = role_of(roles, i);
+        json_array_append_new(chans, json_pack("{s:s,s:f,s:s,s:f,s:f,s:s,s:s*}", "label", ch->label,
+                                               "rate_hz", ch->rate_hz, "unit", ch->unit,
+                                               "physical_min", ch->phys_min, "physical_max",
+                                               ch->phys_max, "transducer", ch->transducer, "role",
+                                               role[0] ? role : NULL));
+    }
+    json_object_set_new(root, "channels", chans);
+    json_object_set_new(root, "duration_s", json_real(rt_recording_duration_s(rec)));
+    json_t *map = json_object();
+    for (int r = 0; r < RT_ROLE_COUNT; r++)
+        json_object_set_new(map, rt_role_name((rt_role)r),
+                            roles->role[r].channel >= 0 ? json_string(roles->role[r].label)
+                                                        : json_null());
+    json_object_set_new(root, "roles", map);
+    rt_output out;
+    rt_status st = rt_output_begin(&out, path, 1, err);
+    if (st == RT_OK) {
+        if (json_dumpf(root, out.file, JSON_INDENT(2)) != 0 || fputc('\n', out.file) == EOF) {
+            rt_output_abort(&out);
+            st = rt_fail(err, RT_ERR_IO, "%s: cannot write JSON", path);
+        } else {
+            st = rt_output_commit(&out, err);
+        }
+    }
+    json_decref(root);
+    return st;
+}
+
+rt_status rt_rules_write_text(const rt_cutoffs *cutoffs, FILE *out, rt_error *err)
+{
+    const rt_index_rule *rules = rt_index_rules();
+    char c[32];
+    fprintf(out, "%-34s %-8s %-12s %s\n", "index", "unit", "cutoff", "source");
+    for (int i = 0; i < RT_IX_COUNT; i++) {
+        if (cutoffs->has[i] && rules[i].lower_is_worse)
+            snprintf(c, sizeof c, "<%g (<=%g)", cutoffs->value[i], cutoffs->normal_from[i]);
+        else if (cutoffs->has[i])
+            snprintf(c, sizeof c, ">=%g", cutoffs->value[i]);
+        else
+            snprintf(c, sizeof c, "none");
+        fprintf(out, "%-34s %-8s %-12s %s%s\n", rules[i].id, rules[i].unit, c, rules[i].source,
+                rules[i].from_memory ? " [value from memory]" : "");
+        fprintf(out, "%-34s %s\n", "", rules[i].title);
+    }
+    fprintf(out, "\nCutoffs in force: %s\n%s\n", cutoffs->origin, rt_visual_scoring_note());
+    if (ferror(out))
+        return rt_fail(err, RT_ERR_IO, "cannot write the rule table");
+    return RT_OK;
+}

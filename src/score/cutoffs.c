@@ -1,0 +1,88 @@
+/* A lab's own cutoffs: CSV `index,cutoff[,normal_from]`, read with the shared
+ * table reader; indices the file does not list keep their published cutoff. */
+#include <math.h>
+#include <stdio.h>
+#include <string.h>
+
+#include "internal.h"
+#include "remtone/score.h"
+#include "table.h"
+
+typedef struct cutoff_rows {
+    rt_cutoffs next;
+    bool seen[RT_IX_COUNT];
+} cutoff_rows;
+
+static void on_cutoff_row(rt_table *t, char **v)
+{
+    cutoff_rows *rows = t->user;
+    rt_index_id id;
+    const rt_index_rule *rule = rt_index_rule_find(v[0], &id);
+    if (!rule) {
+        char q[RT_TABLE_QUOTE_MAX];
+        rt_table_quote(q, sizeof q, v[0]);
+        rt_table_fail(t, rt_fail(&t->error, RT_ERR_STAGING,
+                                 "%s line %ld: \"%s\" is not an index id (remtone rules lists them)",
+                                 t->path, t->row_line, q));
+        return;
+    }
+    if (rows->seen[id]) {
+        rt_table_fail(t, rt_fail(&t->error, RT_ERR_STAGING, "%s line %ld: %s is listed twice",
+                                 t->path, t->row_line, v[0]));
+        return;
+    }
+    rows->seen[id] = true;
+    double cutoff;
+    if (!rt_table_number(t, v[1], "cutoff", &cutoff))
+        return;
+    double hi = strcmp(rule->unit, "%") == 0 ? 100.0 : 1.0;
+    if (cutoff < 0.0 || cutoff > hi) {
+        rt_table_fail(t, rt_fail(&t->error, RT_ERR_STAGING,
+                                 "%s line %ld: cutoff %g for %s is outside 0 .. %g", t->path,
+                                 t->row_line, cutoff, v[0], hi));
+        return;
+    }
+    rows->next.has[id] = true;
+    rows->next.value[id] = cutoff;
+    if (v[2][0] != '\0') {
+        double normal;
+        if (!rt_table_number(t, v[2], "normal_from", &normal))
+            return;
+        if (!rule->lower_is_worse || normal < cutoff || normal > hi) {
+            rt_table_fail(t, rt_fail(&t->error, RT_ERR_STAGING,
+                                     "%s line %ld: normal_from applies only to the REM Atonia "
+                                     "Index and must lie between its cutoff and %g", t->path,
+                                     t->row_line, hi));
+            return;
+        }
+        rows->next.normal_from[id] = normal;
+    } else if (rule->lower_is_worse && rows->next.normal_from[id] < cutoff) {
+        rows->next.normal_from[id] = cutoff; /* no intermediate band below the new cutoff */
+    }
+}
+
+rt_status rt_cutoffs_load(rt_cutoffs *cutoffs, const char *path, rt_error *err)
+{
+    cutoff_rows rows;
+    memset(&rows, 0, sizeof rows);
+    rows.next = *cutoffs;
+    rt_table t;
+    memset(&t, 0, sizeof t);
+    t.path = path;
+    t.what = "cutoff file";
+    t.columns[0] = "index";
+    t.columns[1] = "cutoff";
+    t.columns[2] = "normal_from";
+    t.optional[2] = true;
+    t.n_columns = 3;
+    t.on_row = on_cutoff_row;
+    t.user = &rows;
+    rt_status st = rt_table_read(&t, err);
+    if (st != RT_OK)
+        return st;
+    if (t.n_rows == 0)
+        return rt_fail(err, RT_ERR_STAGING, "%s: the cutoff file lists no index", path);
+    snprintf(rows.next.origin, sizeof rows.next.origin, "%s", path);
+    *cutoffs = rows.next;
+    return RT_OK;
+}

@@ -1,0 +1,325 @@
+/* From mini-epoch labels to the published indices, their statuses against
+ * the cutoffs in force, the headline and the review level. */
+#include <math.h>
+#include <stdarg.h>
+#include <stdio.h>
+#include <string.h>
+
+#include "night_internal.h"
+
+#define MINI3_PER_EPOCH 10
+#define MINI2_PER_EPOCH 15
+/* Cutoff comparisons forgive rounding of the percentage arithmetic. */
+#define CUTOFF_SLACK 1e-9
+
+static const rt_role LIMBS[] = {RT_ROLE_ARM_LEFT, RT_ROLE_ARM_RIGHT, RT_ROLE_LEG_LEFT,
+                                RT_ROLE_LEG_RIGHT};
+
+void rt_night_warn(rt_night *night, const char *fmt, ...)
+{
+    if (night->n_warnings >= sizeof night->warnings / sizeof night->warnings[0])
+        return;
+    va_list ap;
+    va_start(ap, fmt);
+    vsnprintf(night->warnings[night->n_warnings++], sizeof night->warnings[0], fmt, ap);
+    va_end(ap);
+}
+
+static void add_reason(rt_night *night, const char *fmt, ...) RT_PRINTF(2, 3);
+static void add_reason(rt_night *night, const char *fmt, ...)
+{
+    if (night->n_reasons >= sizeof night->reasons / sizeof night->reasons[0])
+        return;
+    va_list ap;
+    va_start(ap, fmt);
+    vsnprintf(night->reasons[night->n_reasons++], sizeof night->reasons[0], fmt, ap);
+    va_end(ap);
+}
+
+static bool has(const rt_mini *m, rt_role r, unsigned label)
+{
+    return !(m->labels[r] & (RT_LABEL_ABSENT | RT_LABEL_EXCLUDED)) && (m->labels[r] & label);
+}
+
+static bool arm_phasic(const rt_mini *m)
+{
+    return has(m, RT_ROLE_ARM_LEFT, RT_LABEL_SINBAR_PHASIC) ||
+           has(m, RT_ROLE_ARM_RIGHT, RT_LABEL_SINBAR_PHASIC);
+}
+
+static bool any_aasm_phasic(const rt_mini *m)
+{
+    if (has(m, RT_ROLE_CHIN, RT_LABEL_AASM_PHASIC))
+        return true;
+    for (size_t i = 0; i < sizeof LIMBS / sizeof LIMBS[0]; i++)
+        if (has(m, LIMBS[i], RT_LABEL_AASM_PHASIC))
+            return true;
+    return false;
+}
+
+static bool mini_scorable(const rt_mini *m) { return !(m->labels[RT_ROLE_CHIN] & RT_LABEL_EXCLUDED); }
+
+/* Per-epoch counts of the 3-s minis (AASM 10 per epoch). */
+static void aggregate_epochs(rt_night *night, bool arms)
+{
+    for (size_t e = 0; e < night->n_epochs; e++) {
+        rt_epoch_result *er = &night->epochs[e];
+        const rt_mini *m = &night->minis3[e * MINI3_PER_EPOCH];
+        int scorable = 0;
+        for (int k = 0; k < MINI3_PER_EPOCH; k++) {
+            if (!mini_scorable(&m[k]))
+                continue;
+            scorable++;
+            er->aasm_chin_minis += has(&m[k], RT_ROLE_CHIN, RT_LABEL_AASM_PHASIC);
+            er->aasm_any_minis += any_aasm_phasic(&m[k]);
+            er->sinbar_any_minis += has(&m[k], RT_ROLE_CHIN, RT_LABEL_SINBAR_ANY) ||
+                                    (arms && arm_phasic(&m[k]));
+        }
+        er->excluded = scorable == 0;
+        /* evidence ranking: active minis first, tonic epochs weigh as a full epoch */
+        er->activity = er->sinbar_any_minis + (er->sinbar_tonic ? 10.0 : 0.0) +
+                       0.5 * er->aasm_any_minis;
+    }
+}
+
+static void set_value(rt_index_value *v, size_t num, size_t den, double scale)
+{
+    v->numerator = num;
+    v->denominator = den;
+    if (den == 0) {
+        v->value = NAN;
+        v->status = RT_STATUS_NOT_COMPUTED;
+        rt_copy_string(v->reason, sizeof v->reason, "no scorable REM");
+        return;
+    }
+    v->value = scale * (double)num / (double)den;
+    v->status = RT_STATUS_NO_CUTOFF; /* decided against the cutoffs later */
+}
+
+static void not_computed(rt_index_value *v, const char *reason)
+{
+    v->value = NAN;
+    v->status = RT_STATUS_NOT_COMPUTED;
+    v->numerator = v->denominator = 0;
+    rt_copy_string(v->reason, sizeof v->reason, reason);
+}
+
+static void compute_mini_indices(rt_night *night, bool arms)
+{
+    size_t scorable = 0, chin_any = 0, chin_phasic = 0, fds = 0, combined = 0;
+    for (size_t i = 0; i < night->n_minis3; i++) {
+        const rt_mini *m = &night->minis3[i];
+        if (!mini_scorable(m))
+            continue;
+        scorable++;
+        bool any = has(m, RT_ROLE_CHIN, RT_LABEL_SINBAR_ANY);
+        chin_any += any;
+        chin_phasic += has(m, RT_ROLE_CHIN, RT_LABEL_SINBAR_PHASIC);
+        if (arms) {
+            fds += arm_phasic(m);
+            combined += any || arm_phasic(m);
+        }
+    }
+    set_value(&night->index[RT_IX_SINBAR_CHIN_ANY_3S], chin_any, scorable, 100.0);
+    set_value(&night->index[RT_IX_SINBAR_CHIN_PHASIC_3S], chin_phasic, scorable, 100.0);
+    set_value(&night->index[RT_IX_SINBAR_FDS_PHASIC_3S], fds, scorable, 100.0);
+    set_value(&night->index[RT_IX_SINBAR_COMBINED_3S], combined, scorable, 100.0);
+
+    size_t s2 = 0, m2 = 0;
+    for (size_t i = 0; i < night->n_minis2; i++) {
+        const rt_mini *m = &night->minis2[i];
+        if (!mini_scorable(m))
+            continue;
+        s2++;
+        m2 += has(m, RT_ROLE_CHIN, RT_LABEL_MONTREAL_PHASIC);
+    }
+    set_value(&night->index[RT_IX_MONTREAL_PHASIC_CHIN], m2, s2, 100.0);
+}
+
+static void compute_epoch_indices(rt_night *night, bool arms)
+{
+    size_t scorable = 0, tonic = 0, phasic_chin = 0, phasic_any = 0, rswa = 0, sinbar_tonic = 0,
+           combined = 0;
+    for (size_t e = 0; e < night->n_epochs; e++) {
+        const rt_epoch_result *er = &night->epochs[e];
+        if (er->excluded)
+            continue;
+        scorable++;
+        /* AASM: >= 5 of 10 3-s mini-epochs hold bursts ("excessive transient") */
+        bool pa = er->aasm_any_minis >= 5;
+        tonic += er->aasm_tonic;
+        phasic_chin += er->aasm_chin_minis >= 5;
+        phasic_any += pa;
+        rswa += er->aasm_tonic || pa;
+        sinbar_tonic += er->sinbar_tonic;
+        combined += arms && er->sinbar_any_minis > 0;
+    }
+    set_value(&night->index[RT_IX_AASM_TONIC_CHIN], tonic, scorable, 100.0);
+    set_value(&night->index[RT_IX_AASM_PHASIC_CHIN], phasic_chin, scorable, 100.0);
+    set_value(&night->index[RT_IX_AASM_PHASIC_ANY], phasic_any, scorable, 100.0);
+    set_value(&night->index[RT_IX_AASM_RSWA], rswa, scorable, 100.0);
+    set_value(&night->index[RT_IX_SINBAR_CHIN_TONIC_30S], sinbar_tonic, scorable, 100.0);
+    set_value(&night->index[RT_IX_SINBAR_COMBINED_30S], combined, scorable, 100.0);
+}
+
+static void apply_missing(rt_night *night, bool arms)
+{
+    if (!night->channel[RT_ROLE_CHIN].present) {
+        for (int i = 0; i < RT_IX_COUNT; i++)
+            not_computed(&night->index[i], "no chin EMG channel");
+        return;
+    }
+    if (!arms) {
+        const char *why = night->channel[RT_ROLE_ARM_LEFT].present ||
+                                  night->channel[RT_ROLE_ARM_RIGHT].present
+                              ? "needs both arm (FDS) channels; the SINBAR cutoff is for both"
+                              : "no arm (FDS) channels";
+        not_computed(&night->index[RT_IX_SINBAR_FDS_PHASIC_3S], why);
+        not_computed(&night->index[RT_IX_SINBAR_COMBINED_3S], why);
+        not_computed(&night->index[RT_IX_SINBAR_COMBINED_30S], why);
+    }
+    if (!isfinite(night->nrem_reference_uv)) {
+        const char *why = "no NREM epochs to take the chin reference amplitude from";
+        not_computed(&night->index[RT_IX_AASM_TONIC_CHIN], why);
+        not_computed(&night->index[RT_IX_AASM_RSWA], why);
+    }
+    char missing[160] = "";
+    for (size_t i = 0; i < sizeof LIMBS / sizeof LIMBS[0]; i++) {
+        if (night->channel[LIMBS[i]].present)
+            continue;
+        size_t len = strlen(missing);
+        snprintf(missing + len, sizeof missing - len, "%s%s", len ? ", " : "",
+                 rt_role_name(LIMBS[i]));
+    }
+    if (missing[0] && night->index[RT_IX_AASM_PHASIC_ANY].status != RT_STATUS_NOT_COMPUTED)
+        snprintf(night->index[RT_IX_AASM_PHASIC_ANY].reason,
+                 sizeof night->index[RT_IX_AASM_PHASIC_ANY].reason,
+                 "computed without %s", missing);
+}
+
+static void decide_status(rt_night *night)
+{
+    const rt_index_rule *rules = rt_index_rules();
+    for (int i = 0; i < RT_IX_COUNT; i++) {
+        rt_index_value *v = &night->index[i];
+        if (v->status == RT_STATUS_NOT_COMPUTED)
+            continue;
+        if (!night->cutoffs.has[i]) {
+            v->status = RT_STATUS_NO_CUTOFF;
+            continue;
+        }
+        double c = night->cutoffs.value[i];
+        if (rules[i].lower_is_worse) {
+            if (v->value < c - CUTOFF_SLACK)
+                v->status = RT_STATUS_BELOW;
+            else if (v->value <= night->cutoffs.normal_from[i] + CUTOFF_SLACK)
+                v->status = RT_STATUS_INTERMEDIATE;
+            else
+                v->status = RT_STATUS_ABOVE;
+        } else {
+            v->status = v->value >= c - CUTOFF_SLACK ? RT_STATUS_ABOVE : RT_STATUS_BELOW;
+        }
+    }
+}
+
+static bool abnormal(const rt_night *night, int i)
+{
+    const rt_index_value *v = &night->index[i];
+    if (v->status == RT_STATUS_NOT_COMPUTED || v->status == RT_STATUS_NO_CUTOFF)
+        return false;
+    return rt_index_rules()[i].lower_is_worse ? v->status == RT_STATUS_BELOW
+                                              : v->status == RT_STATUS_ABOVE;
+}
+
+static bool near(const rt_night *night, int i)
+{
+    const rt_index_value *v = &night->index[i];
+    if (v->status == RT_STATUS_NOT_COMPUTED || v->status == RT_STATUS_NO_CUTOFF)
+        return false;
+    if (rt_index_rules()[i].lower_is_worse)
+        return v->status == RT_STATUS_INTERMEDIATE;
+    return v->value >= night->params.near_fraction * night->cutoffs.value[i];
+}
+
+static void value_text(const rt_night *night, int i, double value, char *buf, size_t cap)
+{
+    if (strcmp(rt_index_rules()[i].unit, "%") == 0)
+        snprintf(buf, cap, "%.1f %%", value);
+    else
+        snprintf(buf, cap, "%.3f", value);
+    (void)night;
+}
+
+static void review(rt_night *night)
+{
+    const rt_index_rule *rules = rt_index_rules();
+    if (!night->channel[RT_ROLE_CHIN].present) {
+        night->level = RT_REVIEW_NOT_ASSESSABLE;
+        add_reason(night, "no usable chin EMG channel");
+        return;
+    }
+    if (night->scorable_minutes < night->params.min_scorable_min) {
+        night->level = RT_REVIEW_NOT_ASSESSABLE;
+        add_reason(night, "only %.1f min of scorable REM (at least %.1f min needed)",
+                   night->scorable_minutes, night->params.min_scorable_min);
+        return;
+    }
+    bool flagged = false, nearing = false;
+    for (int i = 0; i < RT_IX_COUNT; i++) {
+        char val[32], cut[32];
+        if (abnormal(night, i)) {
+            flagged = true;
+            value_text(night, i, night->index[i].value, val, sizeof val);
+            value_text(night, i, night->cutoffs.value[i], cut, sizeof cut);
+            add_reason(night, "%s is %s, %s the cutoff %s (%s)", rules[i].id, val,
+                       rules[i].lower_is_worse ? "below" : "at or above", cut,
+                       strcmp(night->cutoffs.origin, "published") == 0 ? rules[i].source
+                                                                       : night->cutoffs.origin);
+        }
+    }
+    if (!flagged) {
+        for (int i = 0; i < RT_IX_COUNT; i++) {
+            if (!near(night, i))
+                continue;
+            char val[32], cut[32];
+            nearing = true;
+            value_text(night, i, night->index[i].value, val, sizeof val);
+            value_text(night, i, night->cutoffs.value[i], cut, sizeof cut);
+            add_reason(night, "%s is %s, near the cutoff %s", rules[i].id, val, cut);
+        }
+    }
+    night->level = flagged ? RT_REVIEW_FLAGGED : nearing ? RT_REVIEW_NEAR : RT_REVIEW_CLEAR;
+    if (night->level == RT_REVIEW_CLEAR)
+        add_reason(night, "no index reaches or nears its cutoff");
+}
+
+rt_status rt_night_summarise(rt_night *night, const scoring_state *ss, rt_error *err)
+{
+    (void)err;
+    bool arms = night->channel[RT_ROLE_ARM_LEFT].present && night->channel[RT_ROLE_ARM_RIGHT].present;
+    aggregate_epochs(night, arms);
+    size_t scorable_minis = 0;
+    for (size_t i = 0; i < night->n_minis3; i++)
+        scorable_minis += mini_scorable(&night->minis3[i]);
+    night->rem_minutes = (double)night->n_epochs * 0.5;
+    night->scorable_minutes = night->channel[RT_ROLE_CHIN].present ? (double)scorable_minis * 3.0 / 60.0
+                                                                 : 0.0;
+    compute_mini_indices(night, arms);
+    compute_epoch_indices(night, arms);
+    set_value(&night->index[RT_IX_MONTREAL_TONIC_CHIN], ss->montreal_tonic, ss->montreal_windows,
+              100.0);
+    rt_index_value *rai = &night->index[RT_IX_RAI];
+    rai->numerator = ss->rai.at_most_1;
+    rai->denominator = ss->rai.total;
+    rai->value = rt_rai_value(&ss->rai);
+    rai->status = isnan(rai->value) ? RT_STATUS_NOT_COMPUTED : RT_STATUS_NO_CUTOFF;
+    if (isnan(rai->value))
+        rt_copy_string(rai->reason, sizeof rai->reason, "no scorable REM");
+    apply_missing(night, arms);
+    decide_status(night);
+    night->headline = night->index[RT_IX_SINBAR_COMBINED_3S].status != RT_STATUS_NOT_COMPUTED
+                          ? RT_IX_SINBAR_COMBINED_3S
+                          : RT_IX_SINBAR_CHIN_ANY_3S;
+    review(night);
+    return RT_OK;
+}

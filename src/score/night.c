@@ -1,0 +1,491 @@
+/* Scoring one night: REM bouts, per-role conditioning and detection, mini-epoch
+ * labels, and the epoch and window counts the indices are made of. The
+ * indices and the review level are computed from those labels in indices.c. */
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "bandpass.h"
+#include "detect.h"
+#include "internal.h"
+#include "night_internal.h"
+#include "rai.h"
+
+#define MINI3_PER_EPOCH 10
+#define MINI2_PER_EPOCH 15
+
+static bool is_emg(rt_role r) { return r != RT_ROLE_ECG; }
+static bool is_nrem(unsigned char s) { return s == RT_STAGE_N1 || s == RT_STAGE_N2 || s == RT_STAGE_N3; }
+
+/* Buffers reused across bouts and roles; grown on demand. */
+typedef struct workspace {
+    double *x, *scratch;
+    size_t cap;                   /* samples */
+    size_t *starts;
+    double *medians, *background, *sec_mean, *floored;
+    size_t sec_cap;               /* seconds */
+    rt_span *spans;
+    size_t span_cap;
+} workspace;
+
+static void workspace_free(workspace *w)
+{
+    free(w->x);
+    free(w->scratch);
+    free(w->starts);
+    free(w->medians);
+    free(w->background);
+    free(w->sec_mean);
+    free(w->floored);
+    free(w->spans);
+}
+
+static rt_status workspace_reserve(workspace *w, size_t samples, size_t seconds, rt_error *err)
+{
+    if (samples > w->cap) {
+        free(w->x);
+        free(w->scratch);
+        w->x = rt_calloc(samples, sizeof *w->x);
+        w->scratch = rt_calloc(samples, sizeof *w->scratch);
+        w->cap = (w->x && w->scratch) ? samples : 0;
+        if (!w->cap)
+            return rt_fail(err, RT_ERR_NOMEM, "out of memory for %zu samples", samples);
+    }
+    if (seconds + 1 > w->sec_cap) {
+        size_t n = seconds + 1;
+        free(w->starts);
+        free(w->medians);
+        free(w->background);
+        free(w->sec_mean);
+        free(w->floored);
+        free(w->spans);
+        w->starts = rt_calloc(n, sizeof *w->starts);
+        w->medians = rt_calloc(n, sizeof *w->medians);
+        w->background = rt_calloc(n, sizeof *w->background);
+        w->sec_mean = rt_calloc(n, sizeof *w->sec_mean);
+        w->floored = rt_calloc(n, sizeof *w->floored);
+        w->span_cap = 4 * n; /* bursts are at least 0.1 s apart in practice; overflow is counted */
+        w->spans = rt_calloc(w->span_cap, sizeof *w->spans);
+        w->sec_cap = (w->starts && w->medians && w->background && w->sec_mean && w->floored &&
+                      w->spans) ? n : 0;
+        if (!w->sec_cap)
+            return rt_fail(err, RT_ERR_NOMEM, "out of memory for %zu seconds", seconds);
+    }
+    return RT_OK;
+}
+
+/* Reads [t0, t0 + dur) of a role, conditions it and leaves its rectified
+ * envelope in w->x; per-second boundaries in w->starts. Returns samples. */
+static rt_status condition_stretch(rt_recording *rec, const rt_role_source *src, rt_bandpass *bp,
+                                   double t0, size_t seconds, workspace *w, size_t window,
+                                   bool want_sec_mean, size_t *n_out, rt_error *err)
+{
+    double rate = src->rate_hz;
+    long long first = llround(t0 * rate);
+    long long last = llround((t0 + (double)seconds) * rate);
+    size_t n = (size_t)(last - first);
+    rt_status st = workspace_reserve(w, n, seconds, err);
+    if (st != RT_OK)
+        return st;
+    st = rt_role_read_uv(rec, src, first, n, w->x, w->scratch, err);
+    if (st != RT_OK)
+        return st;
+    st = rt_bandpass_apply(bp, w->x, n, err);
+    if (st != RT_OK)
+        return st;
+    for (size_t j = 0; j <= seconds; j++)
+        w->starts[j] = (size_t)(llround((t0 + (double)j) * rate) - first);
+    if (want_sec_mean) {
+        for (size_t j = 0; j < seconds; j++) {
+            double sum = 0.0;
+            for (size_t i = w->starts[j]; i < w->starts[j + 1]; i++)
+                sum += fabs(w->x[i]);
+            size_t len = w->starts[j + 1] - w->starts[j];
+            w->sec_mean[j] = len ? sum / (double)len : 0.0;
+        }
+    }
+    rt_envelope(w->x, n, window, w->x, w->scratch);
+    *n_out = n;
+    return RT_OK;
+}
+
+static size_t window_samples(double seconds, double rate)
+{
+    size_t n = (size_t)llround(seconds * rate);
+    return n < 1 ? 1 : n;
+}
+
+/* AASM tonic reference: a low quantile of the median chin envelope of each
+ * NREM epoch ("the minimum amplitude in NREM"), read in chunks of 20 epochs. */
+static rt_status nrem_reference(rt_recording *rec, const rt_role_source *chin, rt_bandpass *bp,
+                                const rt_timeline *tl, const rt_score_params *p, workspace *w,
+                                double *ref, rt_error *err)
+{
+    *ref = NAN;
+    size_t count = 0;
+    for (size_t e = 0; e < tl->n_epochs; e++)
+        count += is_nrem(tl->stages[e]);
+    if (count == 0)
+        return RT_OK;
+    double *medians = rt_calloc(count, sizeof *medians);
+    if (!medians)
+        return rt_fail(err, RT_ERR_NOMEM, "out of memory");
+    size_t m = 0, e = 0;
+    size_t per_epoch = (size_t)llround(tl->epoch_s);
+    rt_status st = RT_OK;
+    while (e < tl->n_epochs && st == RT_OK) {
+        if (!is_nrem(tl->stages[e])) {
+            e++;
+            continue;
+        }
+        size_t run = 0;
+        while (e + run < tl->n_epochs && is_nrem(tl->stages[e + run]) && run < 20)
+            run++;
+        size_t n = 0;
+        st = condition_stretch(rec, chin, bp, (double)e * tl->epoch_s, run * per_epoch, w,
+                               window_samples(p->envelope_window_s, chin->rate_hz), false, &n, err);
+        for (size_t k = 0; k < run && st == RT_OK; k++) {
+            /* every 4th envelope sample: the envelope is smooth over 0.05 s */
+            size_t a = w->starts[k * per_epoch], b = w->starts[(k + 1) * per_epoch], len = 0;
+            for (size_t i = a; i < b; i += 4)
+                w->scratch[len++] = w->x[i];
+            medians[m++] = len ? rt_quantile(w->scratch, len, 0.5) : 0.0;
+        }
+        e += run;
+    }
+    if (st == RT_OK && m > 0)
+        *ref = rt_quantile(medians, m, p->aasm_nrem_quantile);
+    free(medians);
+    return st;
+}
+
+/* Marks every mini-epoch of a grid that a burst overlaps. */
+static void mark_minis(rt_mini *minis, size_t n_minis, double mini_s, double t0, double rate,
+                       const rt_span *s, double bout_t0, rt_role role, unsigned label)
+{
+    double a = bout_t0 + s->start / rate, b = bout_t0 + s->end / rate;
+    /* minis of this bout start at t0 and are contiguous */
+    if (b <= t0)
+        return;
+    size_t first = a <= t0 ? 0 : (size_t)floor((a - t0) / mini_s);
+    for (size_t k = first; k < n_minis; k++) {
+        double ms = t0 + (double)k * mini_s;
+        if (ms >= b)
+            break;
+        if (ms + mini_s > a)
+            minis[k].labels[role] |= (unsigned char)label;
+    }
+}
+
+static rt_status add_burst(rt_night *night, size_t *cap, rt_role role, double t0, double rate,
+                           const rt_span *s, unsigned rules, rt_error *err)
+{
+    if (night->n_bursts == *cap) {
+        size_t ncap = *cap ? 2 * *cap : 256;
+        rt_burst *nb = realloc(night->bursts, ncap * sizeof *nb);
+        if (!nb)
+            return rt_fail(err, RT_ERR_NOMEM, "out of memory for bursts");
+        night->bursts = nb;
+        *cap = ncap;
+    }
+    rt_burst *b = &night->bursts[night->n_bursts++];
+    b->role = role;
+    b->onset_s = t0 + s->start / rate;
+    b->duration_s = (s->end - s->start) / rate;
+    b->peak_ratio = s->ratio;
+    b->rules = rules;
+    return RT_OK;
+}
+
+/* One rule's bursts on one role of one bout, marked on the grids it applies to. */
+static rt_status detect_rule(rt_night *night, scoring_state *ss, workspace *w, size_t n,
+                             size_t seconds, const rt_role_source *src, rt_role role,
+                             const bout_span *bout, const rt_burst_rule *rule, unsigned label,
+                             rt_error *err)
+{
+    double rate = src->rate_hz;
+    size_t merge = window_samples(night->params.envelope_window_s, rate);
+    size_t found = rt_find_bursts(w->x, n, w->background, w->starts, seconds, rate, rule, merge,
+                                  w->spans, w->span_cap, w->scratch);
+    if (found > w->span_cap)
+        found = w->span_cap;
+    for (size_t i = 0; i < found; i++) {
+        const rt_span *s = &w->spans[i];
+        if (label == RT_LABEL_MONTREAL_PHASIC)
+            mark_minis(night->minis2 + bout->mini2_first, bout->n_epochs * MINI2_PER_EPOCH, 2.0,
+                       bout->t0, rate, s, bout->t0, role, label);
+        else
+            mark_minis(night->minis3 + bout->mini3_first, bout->n_epochs * MINI3_PER_EPOCH, 3.0,
+                       bout->t0, rate, s, bout->t0, role, label);
+        rt_status st = add_burst(night, &ss->burst_cap, role, bout->t0, rate, s, label, err);
+        if (st != RT_OK)
+            return st;
+    }
+    return RT_OK;
+}
+
+static double stretch_median(const workspace *w, size_t a, size_t b, double *scratch)
+{
+    size_t len = 0;
+    for (size_t i = a; i < b; i += 4)
+        scratch[len++] = w->x[i];
+    return len ? rt_quantile(scratch, len, 0.5) : 0.0;
+}
+
+/* Tonic shares and audit levels on the 3-s grid and the epochs of a bout. */
+static void label_tonic(rt_night *night, scoring_state *ss, workspace *w, size_t seconds,
+                        rt_role role, const bout_span *bout, double *scratch)
+{
+    const rt_score_params *p = &night->params;
+    for (size_t k = 0; k < bout->n_epochs * MINI3_PER_EPOCH; k++) {
+        rt_mini *m = &night->minis3[bout->mini3_first + k];
+        size_t a = w->starts[3 * k], b = w->starts[3 * k + 3];
+        size_t tonic = rt_count_tonic(w->x, a, b, w->background, w->starts, seconds, 2.0,
+                                      p->tonic_abs_uv);
+        if (b > a && 2 * tonic > b - a)
+            m->labels[role] |= RT_LABEL_SINBAR_TONIC;
+        if (m->labels[role] & (RT_LABEL_SINBAR_TONIC | RT_LABEL_SINBAR_PHASIC))
+            m->labels[role] |= RT_LABEL_SINBAR_ANY;
+        m->envelope_uv[role] = (float)stretch_median(w, a, b, scratch);
+        m->background_uv[role] = (float)w->background[3 * k + 1];
+    }
+    if (role != RT_ROLE_CHIN)
+        return;
+    for (size_t e = 0; e < bout->n_epochs; e++) {
+        rt_epoch_result *er = &night->epochs[bout->epoch_first + e];
+        size_t a = w->starts[30 * e], b = w->starts[30 * e + 30];
+        size_t tonic = rt_count_tonic(w->x, a, b, w->background, w->starts, seconds, 2.0,
+                                      p->tonic_abs_uv);
+        er->tonic_share = b > a ? (double)tonic / (double)(b - a) : 0.0;
+        er->sinbar_tonic = 2 * tonic > b - a;
+        if (isfinite(night->nrem_reference_uv)) {
+            /* "greater than the minimum NREM amplitude" for at least 50 % (AASM) */
+            size_t above = rt_count_tonic(w->x, a, b, w->background, w->starts, seconds, 0.0,
+                                          night->nrem_reference_uv);
+            er->aasm_tonic = 2 * above >= b - a;
+        }
+    }
+    /* Montreal tonic: 20-s windows tiled from the bout start; the remainder is dropped */
+    size_t win = (size_t)llround(p->montreal_epoch_s);
+    for (size_t s0 = 0; s0 + win <= seconds; s0 += win) {
+        size_t a = w->starts[s0], b = w->starts[s0 + win];
+        size_t tonic = rt_count_tonic(w->x, a, b, w->background, w->starts, seconds, 2.0,
+                                      p->tonic_abs_uv);
+        ss->montreal_windows++;
+        ss->montreal_tonic += 2 * tonic > b - a;
+    }
+}
+
+static void count_rai(scoring_state *ss, workspace *w, size_t seconds)
+{
+    rt_rai_remove_floor(w->sec_mean, seconds, 60, w->floored);
+    rt_rai_count(w->floored, seconds, NULL, &ss->rai);
+}
+
+static rt_status score_role_bout(rt_recording *rec, rt_night *night, scoring_state *ss,
+                                 workspace *w, rt_role role, const rt_role_source *src,
+                                 rt_bandpass *bp, const bout_span *bout, rt_error *err)
+{
+    const rt_score_params *p = &night->params;
+    size_t seconds = bout->n_epochs * 30;
+    size_t n = 0;
+    rt_status st = condition_stretch(rec, src, bp, bout->t0, seconds, w,
+                                     window_samples(p->envelope_window_s, src->rate_hz),
+                                     role == RT_ROLE_CHIN, &n, err);
+    if (st != RT_OK)
+        return st;
+    size_t bg_window = (size_t)llround(p->background_window_s);
+    rt_block_quantiles(w->x, w->starts, seconds, p->background_level_quantile, w->medians,
+                       w->scratch);
+    rt_background(w->medians, seconds, bg_window, p->background_quantile, w->background,
+                  w->scratch);
+    /* AASM and SINBAR: 0.1-5.0 s at 4x and 2x; Montreal: 0.1-10 s at 4x (BRIEF section 3) */
+    const rt_burst_rule aasm = {4.0, 0.1, 5.0}, sinbar = {2.0, 0.1, 5.0}, montreal = {4.0, 0.1, 10.0};
+    st = detect_rule(night, ss, w, n, seconds, src, role, bout, &aasm, RT_LABEL_AASM_PHASIC, err);
+    if (st == RT_OK)
+        st = detect_rule(night, ss, w, n, seconds, src, role, bout, &sinbar,
+                         RT_LABEL_SINBAR_PHASIC, err);
+    if (st == RT_OK)
+        st = detect_rule(night, ss, w, n, seconds, src, role, bout, &montreal,
+                         RT_LABEL_MONTREAL_PHASIC, err);
+    if (st != RT_OK)
+        return st;
+    label_tonic(night, ss, w, seconds, role, bout, w->scratch);
+    if (role == RT_ROLE_CHIN)
+        count_rai(ss, w, seconds);
+    return RT_OK;
+}
+
+/* REM bouts and the mini-epoch grids laid over them. */
+static rt_status lay_out_rem(rt_night *night, const rt_timeline *tl, bout_span **bouts_out,
+                             rt_error *err)
+{
+    size_t rem = 0, bouts = 0;
+    for (size_t e = 0; e < tl->n_epochs; e++) {
+        if (tl->stages[e] != RT_STAGE_R)
+            continue;
+        rem++;
+        bouts += (e == 0 || tl->stages[e - 1] != RT_STAGE_R);
+    }
+    night->rem_epochs = rem;
+    night->n_bouts = bouts;
+    night->epochs = rt_calloc(rem, sizeof *night->epochs);
+    night->minis3 = rt_calloc(rem * MINI3_PER_EPOCH, sizeof *night->minis3);
+    night->minis2 = rt_calloc(rem * MINI2_PER_EPOCH, sizeof *night->minis2);
+    bout_span *b = rt_calloc(bouts, sizeof *b);
+    if (!night->epochs || !night->minis3 || !night->minis2 || !b) {
+        free(b);
+        return rt_fail(err, RT_ERR_NOMEM, "out of memory for %zu REM epochs", rem);
+    }
+    night->n_epochs = rem;
+    night->n_minis3 = rem * MINI3_PER_EPOCH;
+    night->n_minis2 = rem * MINI2_PER_EPOCH;
+    size_t k = 0, bi = 0;
+    for (size_t e = 0; e < tl->n_epochs; e++) {
+        if (tl->stages[e] != RT_STAGE_R)
+            continue;
+        if (e == 0 || tl->stages[e - 1] != RT_STAGE_R) {
+            b[bi].t0 = (double)e * tl->epoch_s;
+            b[bi].epoch_first = k;
+            b[bi].mini3_first = k * MINI3_PER_EPOCH;
+            b[bi].mini2_first = k * MINI2_PER_EPOCH;
+            bi++;
+        }
+        b[bi - 1].n_epochs++;
+        rt_epoch_result *er = &night->epochs[k];
+        er->epoch = e;
+        er->onset_s = (double)e * tl->epoch_s;
+        er->bout = bi - 1;
+        for (int m = 0; m < MINI3_PER_EPOCH; m++) {
+            rt_mini *mi = &night->minis3[k * MINI3_PER_EPOCH + (size_t)m];
+            mi->epoch = e;
+            mi->index = m;
+            mi->onset_s = er->onset_s + 3.0 * m;
+        }
+        for (int m = 0; m < MINI2_PER_EPOCH; m++) {
+            rt_mini *mi = &night->minis2[k * MINI2_PER_EPOCH + (size_t)m];
+            mi->epoch = e;
+            mi->index = m;
+            mi->onset_s = er->onset_s + 2.0 * m;
+        }
+        k++;
+    }
+    *bouts_out = b;
+    return RT_OK;
+}
+
+static void mark_absent(rt_night *night, rt_role role)
+{
+    for (size_t i = 0; i < night->n_minis3; i++)
+        night->minis3[i].labels[role] = RT_LABEL_ABSENT;
+    for (size_t i = 0; i < night->n_minis2; i++)
+        night->minis2[i].labels[role] = RT_LABEL_ABSENT;
+}
+
+static rt_status open_filters(rt_night *night, const rt_role_map *roles, rt_bandpass **bp,
+                              rt_error *err)
+{
+    const rt_score_params *p = &night->params;
+    for (int r = 0; r < RT_ROLE_COUNT; r++) {
+        const rt_role_source *src = &roles->role[r];
+        rt_channel_result *cr = &night->channel[r];
+        if (!is_emg((rt_role)r) || src->channel < 0)
+            continue;
+        cr->present = true;
+        rt_copy_string(cr->label, sizeof cr->label, src->label);
+        cr->rate_hz = src->rate_hz;
+        rt_bandpass_spec spec = rt_bandpass_spec_defaults(src->rate_hz);
+        spec.low_hz = p->band_low_hz;
+        spec.high_hz = p->band_high_hz;
+        spec.order = p->band_order;
+        bp[r] = rt_bandpass_new(&spec, err);
+        if (!bp[r])
+            return err ? err->status : RT_ERR_USAGE;
+        cr->band_high_hz = rt_bandpass_high_hz(bp[r]);
+        if (src->rate_hz < p->min_rate_hz) {
+            cr->low_rate = true;
+            rt_night_warn(night, "%s (%s) is sampled at %g Hz, below the %g Hz minimum for EMG "
+                          "(AASM): scored, but bursts may be missed", rt_role_name((rt_role)r),
+                          src->label, src->rate_hz, p->min_rate_hz);
+        }
+        if (cr->band_high_hz < p->band_high_hz - 1e-9)
+            rt_night_warn(night, "%s: low-pass corner lowered to %g Hz (below Nyquist at %g Hz)",
+                          src->label, cr->band_high_hz, src->rate_hz);
+    }
+    return RT_OK;
+}
+
+rt_status rt_night_score(rt_recording *rec, const rt_role_map *roles, const rt_timeline *tl,
+                         const rt_score_params *params, const rt_cutoffs *cutoffs,
+                         rt_night **out, rt_error *err)
+{
+    *out = NULL;
+    if (fabs(tl->epoch_s - 30.0) > 1e-9)
+        return rt_fail(err, RT_ERR_STAGING, "scoring needs 30-s epochs; the staging has %g-s epochs",
+                       tl->epoch_s);
+    rt_night *night = rt_calloc(1, sizeof *night);
+    if (!night)
+        return rt_fail(err, RT_ERR_NOMEM, "out of memory");
+    if (params)
+        night->params = *params;
+    else
+        rt_score_params_default(&night->params);
+    rt_status st = rt_score_params_check(&night->params, err);
+    if (st != RT_OK) {
+        free(night);
+        return st;
+    }
+    if (cutoffs)
+        night->cutoffs = *cutoffs;
+    else
+        rt_cutoffs_published(&night->cutoffs);
+    rt_copy_string(night->recording_path, sizeof night->recording_path, rt_recording_path(rec));
+    night->recording_s = rt_recording_duration_s(rec);
+    night->nrem_reference_uv = NAN;
+
+    scoring_state ss;
+    memset(&ss, 0, sizeof ss);
+    workspace w;
+    memset(&w, 0, sizeof w);
+    rt_bandpass *bp[RT_ROLE_COUNT] = {0};
+    bout_span *bouts = NULL;
+
+    st = lay_out_rem(night, tl, &bouts, err);
+    if (st == RT_OK)
+        st = open_filters(night, roles, bp, err);
+    for (int r = 0; r < RT_ROLE_COUNT; r++)
+        if (is_emg((rt_role)r) && !night->channel[r].present)
+            mark_absent(night, (rt_role)r);
+    const rt_role_source *chin = &roles->role[RT_ROLE_CHIN];
+    if (st == RT_OK && night->channel[RT_ROLE_CHIN].present)
+        st = nrem_reference(rec, chin, bp[RT_ROLE_CHIN], tl, &night->params, &w,
+                            &night->nrem_reference_uv, err);
+    for (size_t b = 0; b < night->n_bouts && st == RT_OK; b++)
+        for (int r = 0; r < RT_ROLE_COUNT && st == RT_OK; r++)
+            if (night->channel[r].present)
+                st = score_role_bout(rec, night, &ss, &w, (rt_role)r, &roles->role[r], bp[r],
+                                     &bouts[b], err);
+    for (int r = 0; r < RT_ROLE_COUNT; r++)
+        rt_bandpass_free(bp[r]);
+    workspace_free(&w);
+    free(bouts);
+    if (st == RT_OK)
+        st = rt_night_summarise(night, &ss, err);
+    if (st != RT_OK) {
+        rt_night_free(night);
+        return st;
+    }
+    *out = night;
+    return RT_OK;
+}
+
+void rt_night_free(rt_night *night)
+{
+    if (!night)
+        return;
+    free(night->epochs);
+    free(night->minis3);
+    free(night->minis2);
+    free(night->bursts);
+    free(night);
+}

@@ -1,0 +1,106 @@
+/* The one table of indices, cutoffs and sources, printed by `remtone rules`
+ * and used by every report. A value marked from_memory was recalled, not
+ * checked against the paper (BRIEF section 3 marks them [M]). */
+#include <math.h>
+#include <string.h>
+
+#include "internal.h"
+#include "remtone/score.h"
+
+static const char SRC_AASM[] = "AASM Manual for the Scoring of Sleep v2.x (definition; no cutoff)";
+static const char SRC_SINBAR[] = "Frauscher et al. 2012, Sleep 35:835-847 (100 % specificity)";
+static const char SRC_MONTREAL[] = "Montplaisir et al. 2010, Mov Disord 25:2044-2051";
+static const char SRC_RAI[] = "Ferri et al. 2010, Sleep Med 11:947-949";
+static const char SRC_HEALTHY[] = "Frauscher et al. 2014, Sleep (90th percentile, healthy sleepers)";
+static const char SRC_NORMS[] = "Feemster et al. 2019, Sleep (95th percentile, adults without RBD)";
+
+#define NONE NAN
+
+static const rt_index_rule RULES[RT_IX_COUNT] = {
+    [RT_IX_AASM_TONIC_CHIN] = {"aasm.tonic_chin_epochs",
+        "REM epochs with sustained chin activity", "%", false, false, NONE, NONE, SRC_AASM,
+        false, 2.6, SRC_HEALTHY},
+    [RT_IX_AASM_PHASIC_CHIN] = {"aasm.phasic_chin_epochs",
+        "REM epochs with excessive transient chin activity (>= 5 of 10 mini-epochs)", "%", false,
+        false, NONE, NONE, SRC_AASM, false, 15.6, SRC_HEALTHY},
+    [RT_IX_AASM_PHASIC_ANY] = {"aasm.phasic_any_epochs",
+        "REM epochs with excessive transient activity, chin or limbs", "%", false, false, NONE,
+        NONE, SRC_AASM, false, NONE, NULL},
+    [RT_IX_AASM_RSWA] = {"aasm.rswa_epochs",
+        "REM epochs with sustained or excessive transient activity", "%", false, false, NONE, NONE,
+        SRC_AASM, false, NONE, NULL},
+    [RT_IX_SINBAR_CHIN_ANY_3S] = {"sinbar.chin_any_3s",
+        "3-s REM mini-epochs with any chin activity", "%", false, true, 18.2, NONE, SRC_SINBAR,
+        false, 9.1, SRC_NORMS},
+    [RT_IX_SINBAR_CHIN_PHASIC_3S] = {"sinbar.chin_phasic_3s",
+        "3-s REM mini-epochs with phasic chin activity", "%", false, true, 16.3, NONE, SRC_SINBAR,
+        false, 8.6, SRC_NORMS},
+    [RT_IX_SINBAR_CHIN_TONIC_30S] = {"sinbar.chin_tonic_30s",
+        "30-s REM epochs with tonic chin activity", "%", false, true, 9.6, NONE, SRC_SINBAR,
+        false, 0.99, SRC_NORMS},
+    [RT_IX_SINBAR_FDS_PHASIC_3S] = {"sinbar.fds_phasic_3s",
+        "3-s REM mini-epochs with phasic activity in either arm (FDS)", "%", false, true, 16.8,
+        NONE, SRC_SINBAR, false, NONE, NULL},
+    [RT_IX_SINBAR_COMBINED_3S] = {"sinbar.chin_any_fds_phasic_3s",
+        "3-s REM mini-epochs with any chin or phasic arm activity", "%", false, true, 31.9, NONE,
+        SRC_SINBAR, false, NONE, NULL},
+    [RT_IX_SINBAR_COMBINED_30S] = {"sinbar.chin_any_fds_phasic_30s",
+        "30-s REM epochs with any chin or phasic arm activity", "%", false, true, 27.0, NONE,
+        SRC_SINBAR, true, NONE, NULL},
+    [RT_IX_MONTREAL_TONIC_CHIN] = {"montreal.tonic_chin",
+        "20-s REM epochs with tonic chin activity", "%", false, true, 30.0, NONE, SRC_MONTREAL,
+        false, NONE, NULL},
+    [RT_IX_MONTREAL_PHASIC_CHIN] = {"montreal.phasic_chin",
+        "2-s REM mini-epochs with phasic chin activity", "%", false, true, 15.0, NONE,
+        SRC_MONTREAL, false, NONE, NULL},
+    [RT_IX_RAI] = {"rai", "REM Atonia Index (1 = full atonia)", "ratio", true, true, 0.8, 0.9,
+        SRC_RAI, false, 0.85, SRC_NORMS},
+};
+
+const rt_index_rule *rt_index_rules(void) { return RULES; }
+
+const rt_index_rule *rt_index_rule_find(const char *id, rt_index_id *out_id)
+{
+    for (int i = 0; i < RT_IX_COUNT; i++) {
+        if (strcmp(RULES[i].id, id) == 0) {
+            if (out_id)
+                *out_id = (rt_index_id)i;
+            return &RULES[i];
+        }
+    }
+    return NULL;
+}
+
+void rt_cutoffs_published(rt_cutoffs *cutoffs)
+{
+    memset(cutoffs, 0, sizeof *cutoffs);
+    for (int i = 0; i < RT_IX_COUNT; i++) {
+        cutoffs->has[i] = RULES[i].has_cutoff;
+        cutoffs->value[i] = RULES[i].cutoff;
+        cutoffs->normal_from[i] = RULES[i].normal_from;
+    }
+    rt_copy_string(cutoffs->origin, sizeof cutoffs->origin, "published");
+}
+
+const char *rt_index_status_name(rt_index_status status)
+{
+    switch (status) {
+    case RT_STATUS_ABOVE: return "above";
+    case RT_STATUS_BELOW: return "below";
+    case RT_STATUS_INTERMEDIATE: return "intermediate";
+    case RT_STATUS_NO_CUTOFF: return "no-cutoff";
+    case RT_STATUS_NOT_COMPUTED: return "not-computed";
+    }
+    return "unknown";
+}
+
+const char *rt_review_level_name(rt_review_level level)
+{
+    switch (level) {
+    case RT_REVIEW_CLEAR: return "clear";
+    case RT_REVIEW_NEAR: return "near-cutoff";
+    case RT_REVIEW_FLAGGED: return "review";
+    case RT_REVIEW_NOT_ASSESSABLE: return "not-assessable";
+    }
+    return "unknown";
+}

@@ -1,0 +1,531 @@
+/* The EDF+ recording of a synthetic night: 20 channels in 1-s data records,
+ * written with EDFlib. The five EMG channels carry the model that matters
+ * (stationary band-limited Gaussian noise scaled by the planned rectified
+ * level); EEG, EOG, ECG, respiration, SpO2, snore and position are cheap
+ * placeholders that only need to look plausible and follow the stages and
+ * events. Each channel draws from its own random stream. */
+#include "synth_internal.h"
+
+#include <edflib.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "internal.h"
+#include "output.h"
+
+#define SYNTH_PI 3.14159265358979323846
+
+enum {
+    N_CHANNELS = 20,
+    CH_EEG0 = 0,    /* six EEG derivations */
+    CH_EOG0 = 6,    /* E1-M2, E2-M1 */
+    CH_EMG0 = 8,    /* chin, FDS L, FDS R, Tib L, Tib R (role order) */
+    CH_ECG = 13,
+    CH_FLOW = 14,
+    CH_THOR = 15,
+    CH_ABDO = 16,
+    CH_SPO2 = 17,
+    CH_SNORE = 18,
+    CH_POS = 19,
+    N_BIQUADS = 4,
+    ECG_RATE_HZ = 256,
+    ECG_TEMPLATE_N = 256
+};
+
+typedef struct channel_spec {
+    const char *label;
+    int rate_hz;
+    const char *unit;
+    double phys_min, phys_max;
+    int dig_min, dig_max;
+    const char *transducer;
+    const char *prefilter;
+} channel_spec;
+
+/* EMG: +-500 uV on 16 bits is 0.0153 uV per step, fine for 1-uV atonia. */
+static const channel_spec channels[N_CHANNELS] = {
+    {"F4-M1", 128, "uV", -1000, 1000, -32768, 32767, "AgAgCl electrode", "HP:0.3Hz LP:35Hz"},
+    {"C4-M1", 128, "uV", -1000, 1000, -32768, 32767, "AgAgCl electrode", "HP:0.3Hz LP:35Hz"},
+    {"O2-M1", 128, "uV", -1000, 1000, -32768, 32767, "AgAgCl electrode", "HP:0.3Hz LP:35Hz"},
+    {"F3-M2", 128, "uV", -1000, 1000, -32768, 32767, "AgAgCl electrode", "HP:0.3Hz LP:35Hz"},
+    {"C3-M2", 128, "uV", -1000, 1000, -32768, 32767, "AgAgCl electrode", "HP:0.3Hz LP:35Hz"},
+    {"O1-M2", 128, "uV", -1000, 1000, -32768, 32767, "AgAgCl electrode", "HP:0.3Hz LP:35Hz"},
+    {"E1-M2", 128, "uV", -1000, 1000, -32768, 32767, "AgAgCl electrode", "HP:0.3Hz LP:35Hz"},
+    {"E2-M1", 128, "uV", -1000, 1000, -32768, 32767, "AgAgCl electrode", "HP:0.3Hz LP:35Hz"},
+    {"Chin1-Chin2", 512, "uV", -500, 500, -32768, 32767, "AgAgCl electrode", "HP:10Hz LP:100Hz"},
+    {"FDS L", 512, "uV", -500, 500, -32768, 32767, "AgAgCl electrode", "HP:10Hz LP:100Hz"},
+    {"FDS R", 512, "uV", -500, 500, -32768, 32767, "AgAgCl electrode", "HP:10Hz LP:100Hz"},
+    {"Tib L", 512, "uV", -500, 500, -32768, 32767, "AgAgCl electrode", "HP:10Hz LP:100Hz"},
+    {"Tib R", 512, "uV", -500, 500, -32768, 32767, "AgAgCl electrode", "HP:10Hz LP:100Hz"},
+    {"ECG", ECG_RATE_HZ, "mV", -5, 5, -32768, 32767, "AgAgCl electrode", "HP:0.3Hz LP:70Hz"},
+    {"Airflow", 32, "uV", -1000, 1000, -32768, 32767, "Thermistor", ""},
+    {"Thor", 32, "uV", -1000, 1000, -32768, 32767, "Inductance belt", ""},
+    {"Abdo", 32, "uV", -1000, 1000, -32768, 32767, "Inductance belt", ""},
+    {"SpO2", 1, "%", 0, 100, 0, 10000, "Pulse oximeter", ""},
+    {"Snore", 128, "uV", -500, 500, -32768, 32767, "Microphone", "HP:10Hz"},
+    {"Pos", 1, "", 0, 4, 0, 4, "Position sensor", ""},
+};
+
+typedef struct biquad {
+    double b0, b1, b2, a1, a2; /* normalised so a0 = 1 */
+} biquad;
+
+/* Rotating phasor: a sinusoid by complex multiplication, cheaper than sin()
+ * per sample; renormalised once per second so rounding cannot drift. */
+typedef struct osc {
+    double c, s, cw, sw;
+} osc;
+
+typedef struct eeg_state {
+    osc delta, theta, alpha, spindle;
+    double ar; /* AR(1) background noise */
+} eeg_state;
+
+typedef struct writer {
+    const synth_plan *plan;
+    synth_rng rng[N_CHANNELS];
+    biquad bq[N_BIQUADS];
+    double emg_gain;                       /* makes the cascade output unit-variance */
+    double z[SYNTH_ROLES][N_BIQUADS][2];   /* transposed direct form II state */
+    eeg_state eeg[6];
+    double eye, eye_slow;                  /* EOG state: saccade level, slow rolling */
+    osc eye_roll;
+    double ecg_template[ECG_TEMPLATE_N];   /* one beat, R peak at index ECG_R_INDEX */
+    long ecg_next_beat;                    /* sample index of the next R peak */
+    long ecg_prev_beat;
+    double breath_phase;                   /* radians */
+    double emg_peak_uv;                    /* largest |EMG| written, for the clipping check */
+    double *buf[N_CHANNELS];
+} writer;
+
+enum { ECG_R_INDEX = 90 };
+
+static void osc_init(osc *o, double f_hz, double rate_hz, double phase)
+{
+    double w = 2.0 * SYNTH_PI * f_hz / rate_hz;
+    o->c = cos(phase);
+    o->s = sin(phase);
+    o->cw = cos(w);
+    o->sw = sin(w);
+}
+
+static double osc_step(osc *o)
+{
+    double c = o->c * o->cw - o->s * o->sw;
+    double s = o->s * o->cw + o->c * o->sw;
+    o->c = c;
+    o->s = s;
+    return s;
+}
+
+static void osc_renorm(osc *o)
+{
+    double m = sqrt(o->c * o->c + o->s * o->s);
+    o->c /= m;
+    o->s /= m;
+}
+
+/* Cheap unit-variance noise for placeholders: Irwin-Hall sum of four 16-bit
+ * uniforms from one 64-bit draw (not Gaussian in the tails; EMG uses the
+ * polar method instead). */
+static double cheap_noise(synth_rng *rng)
+{
+    uint64_t x = rt_synth_rng_next(rng);
+    double sum = (double)(x & 0xffff) + (double)((x >> 16) & 0xffff) + (double)((x >> 32) & 0xffff) +
+                 (double)(x >> 48);
+    return (sum / 65536.0 - 2.0) * 1.7320508075688772;
+}
+
+/* RBJ audio-EQ-cookbook biquads (bilinear transform with pre-warping). */
+static biquad biquad_design(int highpass, double f0_hz, double rate_hz, double q)
+{
+    double w0 = 2.0 * SYNTH_PI * f0_hz / rate_hz;
+    double cw = cos(w0), alpha = sin(w0) / (2.0 * q), a0 = 1.0 + alpha;
+    biquad b;
+    if (highpass) {
+        b.b0 = (1.0 + cw) / 2.0 / a0;
+        b.b1 = -(1.0 + cw) / a0;
+    } else {
+        b.b0 = (1.0 - cw) / 2.0 / a0;
+        b.b1 = (1.0 - cw) / a0;
+    }
+    b.b2 = b.b0;
+    b.a1 = -2.0 * cw / a0;
+    b.a2 = (1.0 - alpha) / a0;
+    return b;
+}
+
+static double cascade_step(const biquad *bq, double z[N_BIQUADS][2], double x)
+{
+    for (int k = 0; k < N_BIQUADS; k++) {
+        double y = bq[k].b0 * x + z[k][0];
+        z[k][0] = bq[k].b1 * x - bq[k].a1 * y + z[k][1];
+        z[k][1] = bq[k].b2 * x - bq[k].a2 * y;
+        x = y;
+    }
+    return x;
+}
+
+/* 4th-order Butterworth high-pass at 20 Hz then low-pass at 60 Hz (Q of the
+ * two sections 1/(2cos(pi/8)) and 1/(2cos(3pi/8))). For white input of unit
+ * variance the output variance is the impulse response energy, so dividing
+ * by its square root makes n(t) unit-variance. */
+static void emg_filter_init(writer *w)
+{
+    const double q[2] = {0.54119610014619701, 1.3065629648763766};
+    for (int k = 0; k < 2; k++) {
+        w->bq[k] = biquad_design(1, 20.0, SYNTH_EMG_RATE_HZ, q[k]);
+        w->bq[2 + k] = biquad_design(0, 60.0, SYNTH_EMG_RATE_HZ, q[k]);
+    }
+    double z[N_BIQUADS][2];
+    memset(z, 0, sizeof z);
+    double energy = 0;
+    for (int i = 0; i < (1 << 15); i++) {
+        double y = cascade_step(w->bq, z, i == 0 ? 1.0 : 0.0);
+        energy += y * y;
+    }
+    w->emg_gain = 1.0 / sqrt(energy);
+    /* Two seconds of warm-up so the noise is stationary from sample 0. */
+    for (int r = 0; r < SYNTH_ROLES; r++)
+        for (int i = 0; i < 2 * SYNTH_EMG_RATE_HZ; i++)
+            (void)cascade_step(w->bq, w->z[r], rt_synth_rng_gauss(&w->rng[CH_EMG0 + r]));
+}
+
+/* PQRST as a sum of Gaussian waves (amplitudes mV, centres s from R, widths s);
+ * a textbook-shaped placeholder, not a physiological model. */
+static void ecg_template_init(writer *w)
+{
+    static const double wave[5][3] = {
+        {0.15, -0.20, 0.025}, {-0.10, -0.03, 0.010}, {1.00, 0.0, 0.012}, {-0.25, 0.03, 0.010},
+        {0.30, 0.26, 0.045}};
+    for (int i = 0; i < ECG_TEMPLATE_N; i++) {
+        double t = (double)(i - ECG_R_INDEX) / ECG_RATE_HZ;
+        double v = 0;
+        for (int k = 0; k < 5; k++) {
+            double d = (t - wave[k][1]) / wave[k][2];
+            v += wave[k][0] * exp(-0.5 * d * d);
+        }
+        w->ecg_template[i] = v;
+    }
+}
+
+static rt_status writer_init(writer *w, const synth_plan *plan, rt_error *err)
+{
+    memset(w, 0, sizeof *w);
+    w->plan = plan;
+    for (int c = 0; c < N_CHANNELS; c++) {
+        rt_synth_rng_seed(&w->rng[c], plan->opt.seed, 100 + (uint64_t)c);
+        w->buf[c] = rt_calloc((size_t)channels[c].rate_hz, sizeof(double));
+        if (!w->buf[c])
+            return rt_fail(err, RT_ERR_NOMEM, "synthetic night: out of memory (sample buffers)");
+    }
+    emg_filter_init(w);
+    for (int c = 0; c < 6; c++) {
+        synth_rng *r = &w->rng[CH_EEG0 + c];
+        eeg_state *e = &w->eeg[c];
+        osc_init(&e->delta, rt_synth_rng_range(r, 0.7, 1.2), 128, rt_synth_rng_range(r, 0, 6.28));
+        osc_init(&e->theta, rt_synth_rng_range(r, 5.0, 7.0), 128, rt_synth_rng_range(r, 0, 6.28));
+        osc_init(&e->alpha, rt_synth_rng_range(r, 9.0, 11.0), 128, rt_synth_rng_range(r, 0, 6.28));
+        osc_init(&e->spindle, rt_synth_rng_range(r, 12.0, 14.0), 128, rt_synth_rng_range(r, 0, 6.28));
+    }
+    osc_init(&w->eye_roll, 0.3, 128, 0.0);
+    ecg_template_init(w);
+    w->ecg_prev_beat = -ECG_TEMPLATE_N;
+    w->ecg_next_beat = 40;
+    return RT_OK;
+}
+
+static void writer_free(writer *w)
+{
+    for (int c = 0; c < N_CHANNELS; c++)
+        free(w->buf[c]);
+}
+
+static int stage_at(const synth_plan *plan, long s)
+{
+    return plan->stage[s / SYNTH_EPOCH_S];
+}
+
+static void make_eeg(writer *w, long s)
+{
+    /* Amplitudes (uV) per stage: delta, theta, alpha, spindle, noise. */
+    static const double amp[5][5] = {
+        {5, 5, 20, 0, 8}, {10, 20, 4, 0, 8}, {20, 12, 3, 25, 8}, {90, 10, 2, 0, 10}, {8, 18, 4, 0, 8}};
+    int st = stage_at(w->plan, s);
+    for (int c = 0; c < 6; c++) {
+        eeg_state *e = &w->eeg[c];
+        synth_rng *r = &w->rng[CH_EEG0 + c];
+        /* Occipital derivations carry more alpha, frontal more delta. */
+        double alpha_gain = (c == 2 || c == 5) ? 1.5 : (c == 0 || c == 3 ? 0.5 : 1.0);
+        double delta_gain = (c == 0 || c == 3) ? 1.2 : 1.0;
+        int spindle = amp[st][3] > 0 && s % 9 == (c % 3);
+        double *out = w->buf[CH_EEG0 + c];
+        for (int i = 0; i < 128; i++) {
+            e->ar = 0.9 * e->ar + 0.43588989435406736 * cheap_noise(r);
+            double v = amp[st][0] * delta_gain * osc_step(&e->delta) + amp[st][1] * osc_step(&e->theta) +
+                       amp[st][2] * alpha_gain * osc_step(&e->alpha) + amp[st][4] * e->ar;
+            double sp = osc_step(&e->spindle);
+            if (spindle)
+                v += amp[st][3] * sin(SYNTH_PI * i / 128.0) * sp;
+            out[i] = v;
+        }
+        osc_renorm(&e->delta);
+        osc_renorm(&e->theta);
+        osc_renorm(&e->alpha);
+        osc_renorm(&e->spindle);
+    }
+}
+
+/* Conjugate eye movements: a saccade moves E1 and E2 in opposite directions;
+ * rapid ones in REM, blinks and saccades in W, slow rolling in N1. */
+static void make_eog(writer *w, long s)
+{
+    int st = stage_at(w->plan, s);
+    synth_rng *r = &w->rng[CH_EOG0];
+    double p = st == SYNTH_R ? 0.5 : (st == SYNTH_W ? 0.3 : 0.0);
+    int saccade_at = rt_synth_rng_uniform(r) < p ? rt_synth_rng_int(r, 0, 127) : -1;
+    double jump = rt_synth_rng_range(r, 50, 150) * (rt_synth_rng_uniform(r) < 0.5 ? -1 : 1);
+    double roll = st == SYNTH_N1 ? 40.0 : 0.0;
+    for (int i = 0; i < 128; i++) {
+        if (i == saccade_at)
+            w->eye += jump;
+        w->eye *= 0.985; /* ~0.5-s decay at 128 Hz */
+        double rl = roll * osc_step(&w->eye_roll);
+        double n1 = 5.0 * cheap_noise(r), n2 = 5.0 * cheap_noise(&w->rng[CH_EOG0 + 1]);
+        w->buf[CH_EOG0][i] = w->eye + rl + n1;
+        w->buf[CH_EOG0 + 1][i] = -w->eye - rl + n2;
+    }
+    osc_renorm(&w->eye_roll);
+}
+
+/* EMG: x = sqrt(pi/2) * r(t) * n(t), r the planned rectified level. */
+static void make_emg(writer *w, long s)
+{
+    const synth_plan *plan = w->plan;
+    const double k = 1.2533141373155003; /* sqrt(pi/2): E|x| = sigma * sqrt(2/pi) */
+    long e = s / SYNTH_EPOCH_S;
+    int near_boundary = (s % SYNTH_EPOCH_S == 0) || (s % SYNTH_EPOCH_S == SYNTH_EPOCH_S - 1);
+    for (int r = 0; r < SYNTH_ROLES; r++) {
+        double level = plan->bg_uv[r][e];
+        if (r == SYNTH_CHIN && plan->tonic[e])
+            level = plan->tonic_uv[e];
+        int b = plan->sec_burst[r][s];
+        double b0 = 2, b1 = 2, b_uv = 0;
+        if (b >= 0) {
+            b0 = plan->bursts[b].onset_s - (double)s;
+            b1 = b0 + plan->bursts[b].duration_s;
+            b_uv = plan->bursts[b].rect_uv;
+        }
+        double *out = w->buf[CH_EMG0 + r];
+        synth_rng *rng = &w->rng[CH_EMG0 + r];
+        for (int i = 0; i < SYNTH_EMG_RATE_HZ; i++) {
+            double t = (double)i / SYNTH_EMG_RATE_HZ;
+            double lv = level;
+            if (near_boundary && !plan->tonic[e])
+                lv = rt_synth_plan_background_uv(plan, r, (double)s + t);
+            if (t >= b0 && t < b1)
+                lv = b_uv;
+            double n = w->emg_gain * cascade_step(w->bq, w->z[r], rt_synth_rng_gauss(rng));
+            double x = k * lv * n;
+            double ax = fabs(x);
+            if (ax > w->emg_peak_uv)
+                w->emg_peak_uv = ax;
+            out[i] = x;
+        }
+    }
+}
+
+static void make_ecg(writer *w, long s)
+{
+    synth_rng *r = &w->rng[CH_ECG];
+    double *out = w->buf[CH_ECG];
+    for (int i = 0; i < ECG_RATE_HZ; i++) {
+        long n = s * ECG_RATE_HZ + i;
+        if (n == w->ecg_next_beat) {
+            w->ecg_prev_beat = n;
+            /* ~62 bpm with a slow respiratory-like modulation of the interval. */
+            double rr = 60.0 / 62.0 * (1.0 + 0.03 * sin(2.0 * SYNTH_PI * 0.25 * (double)n / ECG_RATE_HZ));
+            w->ecg_next_beat = n + lround(rr * ECG_RATE_HZ);
+        }
+        double v = 0.01 * cheap_noise(r);
+        long a = n - w->ecg_prev_beat + ECG_R_INDEX, b = n - w->ecg_next_beat + ECG_R_INDEX;
+        if (a >= 0 && a < ECG_TEMPLATE_N)
+            v += w->ecg_template[a];
+        if (b >= 0 && b < ECG_TEMPLATE_N)
+            v += w->ecg_template[b];
+        out[i] = v;
+    }
+}
+
+/* Event state of one second: 0 none, else the synth_event_type + 1. */
+static int event_at(const synth_plan *plan, long s, size_t *cursor)
+{
+    while (*cursor < plan->n_events &&
+           plan->events[*cursor].start_s + plan->events[*cursor].duration_s <= s)
+        (*cursor)++;
+    for (size_t i = *cursor; i < plan->n_events && plan->events[i].start_s <= s; i++)
+        if (s < plan->events[i].start_s + plan->events[i].duration_s)
+            return plan->events[i].type + 1;
+    return 0;
+}
+
+/* Oxygen desaturation after each apnea (4 %) or hypopnea (3 %): a triangle
+ * from 10 s after onset to 30 s after the end, deepest 15 s after the end. */
+static double spo2_at(const synth_plan *plan, long s)
+{
+    double dip = 0;
+    for (size_t i = 0; i < plan->n_events; i++) {
+        const synth_event *ev = &plan->events[i];
+        if (ev->type == SYNTH_RESP_AROUSAL)
+            continue;
+        if (ev->start_s > s)
+            break;
+        double a = (double)ev->start_s + 10, m = (double)(ev->start_s + ev->duration_s) + 15, b = m + 15;
+        double depth = ev->type == SYNTH_APNEA ? 4.0 : 3.0, d = 0;
+        if (s > a && s < m)
+            d = depth * (s - a) / (m - a);
+        else if (s >= m && s < b)
+            d = depth * (b - s) / (b - m);
+        dip = d > dip ? d : dip;
+    }
+    return 95.5 + 0.5 * sin(2.0 * SYNTH_PI * (double)s / 600.0) - dip;
+}
+
+static void make_resp(writer *w, long s, size_t *cursor)
+{
+    const synth_plan *plan = w->plan;
+    int st = stage_at(plan, s);
+    int ev = event_at(plan, s, cursor);
+    double f_hz = st == SYNTH_W ? 0.28 : (st == SYNTH_R ? 0.27 : 0.24);
+    double flow = 1.0, belt = 1.0;
+    int paradox = 0;
+    if (ev == SYNTH_APNEA + 1) {
+        flow = 0.05;
+        paradox = 1; /* obstructive: effort continues against a closed airway */
+    } else if (ev == SYNTH_HYPOPNEA + 1) {
+        flow = 0.4;
+        belt = 0.6;
+    } else if (ev == SYNTH_RESP_AROUSAL + 1) {
+        flow = belt = 1.6;
+    }
+    synth_rng *r = &w->rng[CH_FLOW];
+    for (int i = 0; i < 32; i++) {
+        double ph = w->breath_phase + 2.0 * SYNTH_PI * f_hz * i / 32.0;
+        w->buf[CH_FLOW][i] = 200.0 * flow * sin(ph) + 5.0 * cheap_noise(r);
+        w->buf[CH_THOR][i] = 150.0 * belt * sin(ph - 0.3) + 3.0 * cheap_noise(&w->rng[CH_THOR]);
+        w->buf[CH_ABDO][i] = 150.0 * belt * sin(ph - 0.3 + (paradox ? SYNTH_PI : 0.2)) +
+                             3.0 * cheap_noise(&w->rng[CH_ABDO]);
+    }
+    /* Snoring rides on inspiration in sleep when the airway is open. */
+    int snoring = plan->opt.profile == RT_SYNTH_APNEA && st != SYNTH_W && ev != SYNTH_APNEA + 1;
+    for (int i = 0; i < 128; i++) {
+        double ph = w->breath_phase + 2.0 * SYNTH_PI * f_hz * i / 128.0;
+        double env = snoring ? 15.0 * fmax(0.0, sin(ph)) : 0.0;
+        w->buf[CH_SNORE][i] = (2.0 + env) * cheap_noise(&w->rng[CH_SNORE]);
+    }
+    w->breath_phase = fmod(w->breath_phase + 2.0 * SYNTH_PI * f_hz, 2.0 * SYNTH_PI);
+    w->buf[CH_SPO2][0] = spo2_at(plan, s);
+    w->buf[CH_POS][0] = plan->position[s / SYNTH_EPOCH_S];
+}
+
+static rt_status set_header(int h, const synth_plan *plan, const char *path, rt_error *err)
+{
+    int bad = 0;
+    for (int c = 0; c < N_CHANNELS; c++) {
+        const channel_spec *cs = &channels[c];
+        bad |= edf_set_samplefrequency(h, c, cs->rate_hz);
+        bad |= edf_set_physical_maximum(h, c, cs->phys_max);
+        bad |= edf_set_physical_minimum(h, c, cs->phys_min);
+        bad |= edf_set_digital_maximum(h, c, cs->dig_max);
+        bad |= edf_set_digital_minimum(h, c, cs->dig_min);
+        bad |= edf_set_label(h, c, cs->label);
+        bad |= edf_set_physical_dimension(h, c, cs->unit);
+        bad |= edf_set_transducer(h, c, cs->transducer);
+        bad |= edf_set_prefilter(h, c, cs->prefilter);
+    }
+    const rt_synth_options *o = &plan->opt;
+    /* A fixed fictional date keeps the file byte-identical between runs. */
+    bad |= edf_set_startdatetime(h, 2024, 1, 1, o->start_hour, o->start_minute, 0);
+    bad |= edf_set_patientname(h, o->patient ? o->patient : "X");
+    bad |= edf_set_recording_additional(h, o->recording ? o->recording : rt_synth_profile_name(o->profile));
+    bad |= edf_set_equipment(h, "remtone-synth");
+    if (bad)
+        return rt_fail(err, RT_ERR_INTERNAL, "%s: EDFlib refused a header field", path);
+    return RT_OK;
+}
+
+static rt_status write_annotations(int h, const synth_plan *plan, const char *path, rt_error *err)
+{
+    int bad = 0;
+    for (int e = 0; e < plan->n_epochs;) {
+        int end = e;
+        while (end < plan->n_epochs && plan->stage[end] == plan->stage[e])
+            end++;
+        bad |= edfwrite_annotation_utf8(h, (long long)e * SYNTH_EPOCH_S * 10000LL,
+                                        (long long)(end - e) * SYNTH_EPOCH_S * 10000LL,
+                                        rt_synth_stage_edf_text(plan->stage[e]));
+        e = end;
+    }
+    for (size_t i = 0; i < plan->n_events; i++)
+        bad |= edfwrite_annotation_utf8(h, plan->events[i].start_s * 10000LL,
+                                        plan->events[i].duration_s * 10000LL,
+                                        rt_synth_event_edf_text(plan->events[i].type));
+    if (bad)
+        return rt_fail(err, RT_ERR_INTERNAL, "%s: EDFlib refused an annotation", path);
+    return RT_OK;
+}
+
+static rt_status write_records(int h, writer *w, const char *path, rt_error *err)
+{
+    size_t cursor = 0;
+    for (long s = 0; s < w->plan->n_seconds; s++) {
+        make_eeg(w, s);
+        make_eog(w, s);
+        make_emg(w, s);
+        make_ecg(w, s);
+        make_resp(w, s, &cursor);
+        for (int c = 0; c < N_CHANNELS; c++)
+            if (edfwrite_physical_samples(h, w->buf[c]) != 0)
+                return rt_fail(err, RT_ERR_IO, "%s: record %ld: cannot write signal %d", path, s, c);
+    }
+    if (w->emg_peak_uv >= 500.0)
+        return rt_fail(err, RT_ERR_INTERNAL, "%s: EMG reached %.1f uV and would clip at +-500 uV", path,
+                       w->emg_peak_uv);
+    return RT_OK;
+}
+
+rt_status rt_synth_write_edf(const synth_plan *plan, const char *path, rt_error *err)
+{
+    rt_output out;
+    rt_status st = rt_output_begin(&out, path, 0, err);
+    if (st != RT_OK)
+        return st;
+    writer *w = malloc(sizeof *w);
+    if (!w) {
+        rt_output_abort(&out);
+        return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", path);
+    }
+    st = writer_init(w, plan, err);
+    int h = -1;
+    if (st == RT_OK) {
+        h = edfopen_file_writeonly(out.temp_path, EDFLIB_FILETYPE_EDFPLUS, N_CHANNELS);
+        if (h < 0)
+            st = rt_fail(err, RT_ERR_IO, "%s: EDFlib cannot create the file (code %d)", path, h);
+    }
+    if (st == RT_OK)
+        st = set_header(h, plan, path, err);
+    if (st == RT_OK)
+        st = write_annotations(h, plan, path, err);
+    if (st == RT_OK)
+        st = write_records(h, w, path, err);
+    if (h >= 0 && edfclose_file(h) != 0 && st == RT_OK)
+        st = rt_fail(err, RT_ERR_IO, "%s: EDFlib cannot finish the file", path);
+    writer_free(w);
+    free(w);
+    if (st != RT_OK) {
+        rt_output_abort(&out);
+        return st;
+    }
+    return rt_output_commit(&out, err);
+}

@@ -1,0 +1,164 @@
+/* Public entry of the synthetic night generator: option checks, the stage
+ * and event tables, and the order in which the four files are written. */
+#include "remtone/synth.h"
+
+#include <errno.h>
+#include <math.h>
+#include <stdio.h>
+#include <string.h>
+#include <sys/stat.h>
+
+#include "internal.h"
+#include "output.h"
+#include "synth_internal.h"
+
+static const char *const profile_names[RT_SYNTH_PROFILE_COUNT] = {"typical-older", "rbd", "borderline",
+                                                                  "apnea"};
+
+const char *rt_synth_profile_name(rt_synth_profile profile)
+{
+    if ((int)profile < 0 || profile >= RT_SYNTH_PROFILE_COUNT)
+        return "unknown";
+    return profile_names[profile];
+}
+
+int rt_synth_profile_from_name(const char *name, rt_synth_profile *profile)
+{
+    for (int i = 0; name && i < RT_SYNTH_PROFILE_COUNT; i++)
+        if (strcmp(name, profile_names[i]) == 0) {
+            *profile = (rt_synth_profile)i;
+            return 0;
+        }
+    return -1;
+}
+
+void rt_synth_options_default(rt_synth_options *options)
+{
+    memset(options, 0, sizeof *options);
+    options->profile = RT_SYNTH_TYPICAL_OLDER;
+    options->hours = 8.0;
+    options->seed = 1;
+    options->patient = NULL;
+    options->recording = NULL;
+    options->start_hour = 22;
+    options->start_minute = 30;
+}
+
+const char *rt_synth_role_name(int role)
+{
+    static const char *const names[SYNTH_ROLES] = {"chin", "arm-left", "arm-right", "leg-left", "leg-right"};
+    return role >= 0 && role < SYNTH_ROLES ? names[role] : "unknown";
+}
+
+const char *rt_synth_stage_label(int stage)
+{
+    static const char *const names[] = {"W", "N1", "N2", "N3", "R"};
+    return stage >= 0 && stage <= SYNTH_R ? names[stage] : "?";
+}
+
+const char *rt_synth_stage_edf_text(int stage)
+{
+    /* EDF+ standard texts (Kemp & Olivan 2003, EDF+ specification, "Sleep stage ..."). */
+    static const char *const names[] = {"Sleep stage W", "Sleep stage 1", "Sleep stage 2", "Sleep stage 3",
+                                        "Sleep stage R"};
+    return stage >= 0 && stage <= SYNTH_R ? names[stage] : "Sleep stage ?";
+}
+
+const char *rt_synth_event_name(int type)
+{
+    static const char *const names[] = {"apnea", "hypopnea", "resp-arousal"};
+    return type >= 0 && type <= SYNTH_RESP_AROUSAL ? names[type] : "artifact";
+}
+
+const char *rt_synth_event_edf_text(int type)
+{
+    static const char *const names[] = {"Obstructive apnea", "Hypopnea", "Respiratory arousal"};
+    return type >= 0 && type <= SYNTH_RESP_AROUSAL ? names[type] : "Artifact";
+}
+
+static rt_status check_options(const rt_synth_options *o, const char *dir, rt_error *err)
+{
+    if ((int)o->profile < 0 || o->profile >= RT_SYNTH_PROFILE_COUNT)
+        return rt_fail(err, RT_ERR_USAGE, "synthetic night: unknown profile %d", (int)o->profile);
+    if (!isfinite(o->hours) || o->hours < 1.0 || o->hours > 12.0)
+        return rt_fail(err, RT_ERR_USAGE, "synthetic night: hours must be 1..12 (got %g)", o->hours);
+    if (o->start_hour > 23 || o->start_minute < 0 || o->start_minute > 59)
+        return rt_fail(err, RT_ERR_USAGE, "synthetic night: start time %d:%d is not a clock time",
+                       o->start_hour, o->start_minute);
+    struct stat sb;
+    if (!dir || stat(dir, &sb) != 0 || !S_ISDIR(sb.st_mode))
+        return rt_fail(err, RT_ERR_IO, "%s: output folder does not exist", dir ? dir : "(null)");
+    return RT_OK;
+}
+
+static rt_status write_stages(const synth_plan *plan, const char *path, rt_error *err)
+{
+    rt_output out;
+    rt_status st = rt_output_begin(&out, path, 1, err);
+    if (st != RT_OK)
+        return st;
+    fputs("start_s,duration_s,stage\n", out.file);
+    for (int e = 0; e < plan->n_epochs;) {
+        int end = e;
+        while (end < plan->n_epochs && plan->stage[end] == plan->stage[e])
+            end++;
+        fprintf(out.file, "%d,%d,%s\n", e * SYNTH_EPOCH_S, (end - e) * SYNTH_EPOCH_S,
+                rt_synth_stage_label(plan->stage[e]));
+        e = end;
+    }
+    return rt_output_commit(&out, err);
+}
+
+static rt_status write_events(const synth_plan *plan, const char *path, rt_error *err)
+{
+    rt_output out;
+    rt_status st = rt_output_begin(&out, path, 1, err);
+    if (st != RT_OK)
+        return st;
+    fputs("start_s,duration_s,type\n", out.file);
+    for (size_t i = 0; i < plan->n_events; i++)
+        fprintf(out.file, "%ld,%ld,%s\n", plan->events[i].start_s, plan->events[i].duration_s,
+                rt_synth_event_name(plan->events[i].type));
+    return rt_output_commit(&out, err);
+}
+
+static rt_status join_path(char *buf, size_t cap, const char *dir, const char *name, rt_error *err)
+{
+    int n = snprintf(buf, cap, "%s/%s", dir, name);
+    if (n < 0 || (size_t)n >= cap)
+        return rt_fail(err, RT_ERR_USAGE, "%s: output folder path too long", dir);
+    return RT_OK;
+}
+
+rt_status rt_synth_write(const rt_synth_options *options, const char *dir, rt_error *err)
+{
+    rt_synth_options o;
+    if (options)
+        o = *options;
+    else
+        rt_synth_options_default(&o);
+    if (o.start_hour < 0) {
+        o.start_hour = 22;
+        o.start_minute = 30;
+    }
+    rt_status st = check_options(&o, dir, err);
+    if (st != RT_OK)
+        return st;
+    synth_plan plan;
+    st = rt_synth_plan_build(&plan, &o, err);
+    if (st != RT_OK)
+        return st;
+    char path[4096];
+    /* The truth and tables go first: they are small, and a failed EDF write
+     * leaves no recording without its truth. */
+    if ((st = join_path(path, sizeof path, dir, "stages.csv", err)) == RT_OK)
+        st = write_stages(&plan, path, err);
+    if (st == RT_OK && (st = join_path(path, sizeof path, dir, "events.csv", err)) == RT_OK)
+        st = write_events(&plan, path, err);
+    if (st == RT_OK && (st = join_path(path, sizeof path, dir, "truth.json", err)) == RT_OK)
+        st = rt_synth_write_truth(&plan, path, err);
+    if (st == RT_OK && (st = join_path(path, sizeof path, dir, "night.edf", err)) == RT_OK)
+        st = rt_synth_write_edf(&plan, path, err);
+    rt_synth_plan_free(&plan);
+    return st;
+}

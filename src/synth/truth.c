@@ -1,0 +1,332 @@
+/* truth.json: what the plan placed in every REM mini-epoch and the value
+ * each index takes on it. Indices are counted from the placement (never
+ * from the signal), with the formulas of docs/synthetic-nights.md. */
+#include "synth_internal.h"
+
+#include <jansson.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "internal.h"
+#include "output.h"
+
+static int span_holds(const synth_plan *plan, int role, long s0, int len)
+{
+    for (long s = s0; s < s0 + len; s++)
+        if (plan->sec_burst[role][s] >= 0)
+            return 1;
+    return 0;
+}
+
+static int span_holds_any(const synth_plan *plan, long s0, int len)
+{
+    for (int r = 0; r < SYNTH_ROLES; r++)
+        if (span_holds(plan, r, s0, len))
+            return 1;
+    return 0;
+}
+
+static int span_excluded(const synth_plan *plan, long s0, int len)
+{
+    for (long s = s0; s < s0 + len; s++)
+        if (plan->sec_excluded[s])
+            return 1;
+    return 0;
+}
+
+static int span_tonic(const synth_plan *plan, long s0, int len)
+{
+    for (long s = s0; s < s0 + len; s++)
+        if (!plan->tonic[s / SYNTH_EPOCH_S])
+            return 0;
+    return 1;
+}
+
+static double percent(long num, long den)
+{
+    return den > 0 ? 100.0 * (double)num / (double)den : NAN;
+}
+
+/* Designed mean rectified chin level of one second (RAI input). */
+static double designed_chin_uv(const synth_plan *plan, const synth_bout *bout, long s)
+{
+    if (plan->tonic[s / SYNTH_EPOCH_S])
+        return plan->tonic_uv[s / SYNTH_EPOCH_S];
+    int b = plan->sec_burst[SYNTH_CHIN][s];
+    if (b < 0)
+        return bout->chin_bg_uv;
+    const synth_burst *burst = &plan->bursts[b];
+    double f = burst->duration_s; /* the burst lies inside this second */
+    return bout->chin_bg_uv * (1.0 - f) + burst->rect_uv * f;
+}
+
+typedef struct counts {
+    long epochs, ep_tonic, ep_phasic_chin, ep_phasic_any, ep_rswa, ep_combo;
+    long m3, m3_chin, m3_chin_any, m3_fds, m3_combo;
+    long m2, m2_chin;
+    long w20, w20_tonic;
+    long secs, rai_p1, rai_p2;
+} counts;
+
+static void count_epoch(const synth_plan *plan, int e, int exclude, counts *c)
+{
+    long t = (long)e * SYNTH_EPOCH_S;
+    int ep_excl = exclude && span_excluded(plan, t, SYNTH_EPOCH_S);
+    int tonic = plan->tonic[e];
+    int n_chin = 0, n_any = 0, combo = 0;
+    for (int m = 0; m < 10; m++) {
+        long s0 = t + 3 * m;
+        int chin = span_holds(plan, SYNTH_CHIN, s0, 3);
+        int arm = span_holds(plan, SYNTH_ARM_L, s0, 3) || span_holds(plan, SYNTH_ARM_R, s0, 3);
+        n_chin += chin;
+        n_any += span_holds_any(plan, s0, 3);
+        combo |= chin || tonic || arm;
+        if (exclude && span_excluded(plan, s0, 3))
+            continue;
+        c->m3++;
+        c->m3_chin += chin;
+        c->m3_chin_any += chin || tonic;
+        c->m3_fds += arm;
+        c->m3_combo += chin || tonic || arm;
+    }
+    for (int m = 0; m < 15; m++) {
+        long s0 = t + 2 * m;
+        if (exclude && span_excluded(plan, s0, 2))
+            continue;
+        c->m2++;
+        c->m2_chin += span_holds(plan, SYNTH_CHIN, s0, 2);
+    }
+    if (ep_excl)
+        return;
+    c->epochs++;
+    c->ep_tonic += tonic;
+    c->ep_phasic_chin += n_chin >= 5;
+    c->ep_phasic_any += n_any >= 5;
+    c->ep_rswa += tonic || n_any >= 5;
+    c->ep_combo += combo;
+}
+
+static void count_rai(const synth_plan *plan, const synth_bout *bout, int exclude, counts *c)
+{
+    long t0 = (long)bout->first_epoch * SYNTH_EPOCH_S;
+    long len = (long)bout->epochs * SYNTH_EPOCH_S;
+    double *v = malloc((size_t)len * sizeof *v);
+    if (!v) {
+        c->secs = -1; /* reported as null rather than a wrong value */
+        return;
+    }
+    for (long j = 0; j < len; j++)
+        v[j] = designed_chin_uv(plan, bout, t0 + j);
+    for (long j = 0; j < len; j++) {
+        long k0 = j - 30 < 0 ? 0 : j - 30;
+        long k1 = j + 29 > len - 1 ? len - 1 : j + 29;
+        double lo = v[k0];
+        for (long k = k0 + 1; k <= k1; k++)
+            lo = v[k] < lo ? v[k] : lo;
+        double d = v[j] - lo;
+        if (exclude && plan->sec_excluded[t0 + j])
+            continue;
+        if (c->secs < 0)
+            continue;
+        c->secs++;
+        c->rai_p1 += d <= 1.0;
+        c->rai_p2 += d > 1.0 && d <= 2.0;
+    }
+    free(v);
+}
+
+void rt_synth_indices_compute(const synth_plan *plan, int exclude_events, synth_indices *out)
+{
+    counts c;
+    memset(&c, 0, sizeof c);
+    for (int b = 0; b < plan->n_bouts; b++) {
+        const synth_bout *bout = &plan->bouts[b];
+        for (int e = bout->first_epoch; e < bout->first_epoch + bout->epochs; e++)
+            count_epoch(plan, e, exclude_events, &c);
+        long t0 = (long)bout->first_epoch * SYNTH_EPOCH_S;
+        long n_win = (long)bout->epochs * SYNTH_EPOCH_S / 20;
+        for (long w = 0; w < n_win; w++) {
+            if (exclude_events && span_excluded(plan, t0 + 20 * w, 20))
+                continue;
+            c.w20++;
+            c.w20_tonic += span_tonic(plan, t0 + 20 * w, 20);
+        }
+        count_rai(plan, bout, exclude_events, &c);
+    }
+    out->aasm_tonic_chin_epochs = percent(c.ep_tonic, c.epochs);
+    out->aasm_phasic_chin_epochs = percent(c.ep_phasic_chin, c.epochs);
+    out->aasm_phasic_any_epochs = percent(c.ep_phasic_any, c.epochs);
+    out->aasm_rswa_epochs = percent(c.ep_rswa, c.epochs);
+    out->sinbar_chin_phasic_3s = percent(c.m3_chin, c.m3);
+    out->sinbar_chin_any_3s = percent(c.m3_chin_any, c.m3);
+    out->sinbar_chin_tonic_30s = out->aasm_tonic_chin_epochs;
+    out->sinbar_fds_phasic_3s = percent(c.m3_fds, c.m3);
+    out->sinbar_chin_any_fds_phasic_3s = percent(c.m3_combo, c.m3);
+    out->sinbar_chin_any_fds_phasic_30s = percent(c.ep_combo, c.epochs);
+    out->montreal_tonic_chin = percent(c.w20_tonic, c.w20);
+    out->montreal_phasic_chin = percent(c.m2_chin, c.m2);
+    double p1 = percent(c.rai_p1, c.secs), p2 = percent(c.rai_p2, c.secs);
+    out->rai = c.secs > 0 && p2 < 100.0 ? p1 / (100.0 - p2) : NAN;
+}
+
+/* Builders below return NULL only when jansson runs out of memory; the
+ * caller checks the finished tree once. */
+static json_t *number(double x)
+{
+    return isfinite(x) ? json_real(x) : json_null();
+}
+
+static json_t *indices_json(const synth_indices *ix)
+{
+    json_t *aasm = json_object(), *sinbar = json_object(), *montreal = json_object();
+    json_object_set_new(aasm, "tonic_chin_epochs", number(ix->aasm_tonic_chin_epochs));
+    json_object_set_new(aasm, "phasic_chin_epochs", number(ix->aasm_phasic_chin_epochs));
+    json_object_set_new(aasm, "phasic_any_epochs", number(ix->aasm_phasic_any_epochs));
+    json_object_set_new(aasm, "rswa_epochs", number(ix->aasm_rswa_epochs));
+    json_object_set_new(sinbar, "chin_phasic_3s", number(ix->sinbar_chin_phasic_3s));
+    json_object_set_new(sinbar, "chin_any_3s", number(ix->sinbar_chin_any_3s));
+    json_object_set_new(sinbar, "chin_tonic_30s", number(ix->sinbar_chin_tonic_30s));
+    json_object_set_new(sinbar, "fds_phasic_3s", number(ix->sinbar_fds_phasic_3s));
+    json_object_set_new(sinbar, "chin_any_fds_phasic_3s", number(ix->sinbar_chin_any_fds_phasic_3s));
+    json_object_set_new(sinbar, "chin_any_fds_phasic_30s", number(ix->sinbar_chin_any_fds_phasic_30s));
+    json_object_set_new(montreal, "tonic_chin", number(ix->montreal_tonic_chin));
+    json_object_set_new(montreal, "phasic_chin", number(ix->montreal_phasic_chin));
+    json_t *o = json_object();
+    json_object_set_new(o, "aasm", aasm);
+    json_object_set_new(o, "sinbar", sinbar);
+    json_object_set_new(o, "montreal", montreal);
+    json_object_set_new(o, "rai", number(ix->rai));
+    return o;
+}
+
+static json_t *minis_json(const synth_plan *plan)
+{
+    json_t *minis = json_array();
+    for (int b = 0; b < plan->n_bouts; b++) {
+        const synth_bout *bout = &plan->bouts[b];
+        for (int e = bout->first_epoch; e < bout->first_epoch + bout->epochs; e++)
+            for (int m = 0; m < 10; m++) {
+                long s0 = (long)e * SYNTH_EPOCH_S + 3 * m;
+                json_t *o = json_object(), *phasic = json_array(), *tonic = json_array();
+                for (int r = 0; r < SYNTH_ROLES; r++)
+                    if (span_holds(plan, r, s0, 3))
+                        json_array_append_new(phasic, json_string(rt_synth_role_name(r)));
+                if (plan->tonic[e])
+                    json_array_append_new(tonic, json_string(rt_synth_role_name(SYNTH_CHIN)));
+                json_object_set_new(o, "epoch", json_integer(e));
+                json_object_set_new(o, "mini", json_integer(m));
+                json_object_set_new(o, "onset_s", json_integer(s0));
+                json_object_set_new(o, "phasic", phasic);
+                json_object_set_new(o, "tonic", tonic);
+                json_object_set_new(o, "excluded", json_boolean(span_excluded(plan, s0, 3)));
+                json_array_append_new(minis, o);
+            }
+    }
+    return minis;
+}
+
+static json_t *truth_json(const synth_plan *plan)
+{
+    json_t *root = json_object();
+    json_object_set_new(root, "schema", json_string("remtone-truth/1"));
+    json_object_set_new(root, "profile", json_string(rt_synth_profile_name(plan->opt.profile)));
+    /* Seeds above INT64_MAX do not fit a JSON integer in jansson; they are
+     * written as decimal strings. */
+    if (plan->opt.seed <= (uint64_t)INT64_MAX) {
+        json_object_set_new(root, "seed", json_integer((json_int_t)plan->opt.seed));
+    } else {
+        char buf[32];
+        snprintf(buf, sizeof buf, "%llu", (unsigned long long)plan->opt.seed);
+        json_object_set_new(root, "seed", json_string(buf));
+    }
+    json_object_set_new(root, "hours", json_real(plan->opt.hours));
+    json_object_set_new(root, "epoch_s", json_integer(SYNTH_EPOCH_S));
+
+    json_t *ch = json_object();
+    static const char *labels[] = {"Chin1-Chin2", "FDS L", "FDS R", "Tib L", "Tib R"};
+    for (int r = 0; r < SYNTH_ROLES; r++)
+        json_object_set_new(ch, rt_synth_role_name(r), json_string(labels[r]));
+    json_object_set_new(ch, "ecg", json_string("ECG"));
+    json_object_set_new(root, "channels", ch);
+
+    int rem_epochs = 0;
+    json_t *bouts = json_array();
+    for (int b = 0; b < plan->n_bouts; b++) {
+        json_t *o = json_object();
+        json_object_set_new(o, "first_epoch", json_integer(plan->bouts[b].first_epoch));
+        json_object_set_new(o, "epochs", json_integer(plan->bouts[b].epochs));
+        json_object_set_new(o, "chin_bg_uv", json_real(plan->bouts[b].chin_bg_uv));
+        json_array_append_new(bouts, o);
+        rem_epochs += plan->bouts[b].epochs;
+    }
+    json_t *rem = json_object();
+    json_object_set_new(rem, "epochs", json_integer(rem_epochs));
+    json_object_set_new(rem, "minutes", json_real(rem_epochs * 0.5));
+    json_object_set_new(rem, "bouts", bouts);
+    json_object_set_new(root, "rem", rem);
+
+    json_t *bursts = json_array();
+    for (size_t i = 0; i < plan->n_bursts; i++) {
+        const synth_burst *b = &plan->bursts[i];
+        json_t *o = json_object();
+        json_object_set_new(o, "role", json_string(rt_synth_role_name(b->role)));
+        json_object_set_new(o, "onset_s", json_real(b->onset_s));
+        json_object_set_new(o, "duration_s", json_real(b->duration_s));
+        json_object_set_new(o, "rect_uv", json_real(b->rect_uv));
+        json_object_set_new(o, "arousal_bound", json_boolean(b->arousal_bound));
+        json_array_append_new(bursts, o);
+    }
+    json_object_set_new(root, "bursts", bursts);
+
+    json_t *tonics = json_array();
+    for (size_t i = 0; i < plan->n_tonics; i++) {
+        json_t *o = json_object();
+        json_object_set_new(o, "role", json_string(rt_synth_role_name(SYNTH_CHIN)));
+        json_object_set_new(o, "onset_s", json_real(plan->tonics[i].onset_s));
+        json_object_set_new(o, "duration_s", json_real(plan->tonics[i].duration_s));
+        json_object_set_new(o, "rect_uv", json_real(plan->tonics[i].rect_uv));
+        json_array_append_new(tonics, o);
+    }
+    json_object_set_new(root, "tonic", tonics);
+
+    json_t *events = json_array();
+    for (size_t i = 0; i < plan->n_events; i++) {
+        json_t *o = json_object();
+        json_object_set_new(o, "type", json_string(rt_synth_event_name(plan->events[i].type)));
+        json_object_set_new(o, "start_s", json_integer(plan->events[i].start_s));
+        json_object_set_new(o, "duration_s", json_integer(plan->events[i].duration_s));
+        json_array_append_new(events, o);
+    }
+    json_object_set_new(root, "events", events);
+    json_object_set_new(root, "minis_3s", minis_json(plan));
+
+    synth_indices ix, ix_ex;
+    rt_synth_indices_compute(plan, 0, &ix);
+    rt_synth_indices_compute(plan, 1, &ix_ex);
+    json_object_set_new(root, "indices", indices_json(&ix));
+    json_object_set_new(root, "indices_events_excluded", indices_json(&ix_ex));
+    return root;
+}
+
+rt_status rt_synth_write_truth(const synth_plan *plan, const char *path, rt_error *err)
+{
+    json_t *root = truth_json(plan);
+    if (!root)
+        return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory building the truth", path);
+    rt_output out;
+    rt_status st = rt_output_begin(&out, path, 1, err);
+    if (st != RT_OK) {
+        json_decref(root);
+        return st;
+    }
+    /* 12 significant digits: exact for the 1-ms / 0.001-uV grid of the
+     * placement, and stable across platforms. */
+    int rc = json_dumpf(root, out.file, JSON_INDENT(1) | JSON_REAL_PRECISION(12));
+    json_decref(root);
+    if (rc != 0 || fputc('\n', out.file) == EOF) {
+        rt_output_abort(&out);
+        return rt_fail(err, RT_ERR_IO, "%s: cannot write the truth", path);
+    }
+    return rt_output_commit(&out, err);
+}

@@ -1,0 +1,206 @@
+/* The published rule boundaries, decided on constructed signals.
+ *
+ * Signals: a 50 Hz carrier sampled at 500 Hz whose amplitude is 1 uV
+ * (background) and k uV inside a burst. With a 0.05-s envelope window the
+ * rectified moving average covers whole carrier half-periods, so the envelope
+ * is flat outside the ramps and the burst's measured length and ratio are
+ * exact; each check therefore tests the rule itself, not noise. */
+#include "support.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "detect.h"
+
+#define FS 500.0
+#define FS_INT 500
+#define SECONDS 60
+#define N ((size_t)FS_INT * SECONDS)
+
+typedef struct fixture {
+    double x[N];
+    double env[N];
+    double scratch[N];
+    size_t starts[SECONDS + 1];
+    double medians[SECONDS];
+    double background[SECONDS];
+} fixture;
+
+static fixture *make_fixture(void)
+{
+    fixture *f = calloc(1, sizeof *f);
+    assert_non_null(f);
+    for (size_t b = 0; b <= SECONDS; b++)
+        f->starts[b] = (size_t)(b * FS);
+    return f;
+}
+
+/* Carrier of amplitude 1 with one burst of amplitude `ratio` from onset_s for
+ * dur_s, then envelope and background as the scorer computes them. */
+static void build(fixture *f, double onset_s, double dur_s, double ratio)
+{
+    size_t a = (size_t)llround(onset_s * FS), b = (size_t)llround((onset_s + dur_s) * FS);
+    for (size_t i = 0; i < N; i++) {
+        double amp = (i >= a && i < b) ? ratio : 1.0;
+        f->x[i] = amp * sin(2.0 * 3.14159265358979323846 * 50.0 * (double)i / FS + 0.3);
+    }
+    rt_envelope(f->x, N, (size_t)(0.05 * FS), f->env, f->scratch);
+    rt_block_quantiles(f->env, f->starts, SECONDS, 0.9, f->medians, f->scratch);
+    rt_background(f->medians, SECONDS, 60, 0.2, f->background, f->scratch);
+}
+
+static size_t bursts(fixture *f, double k, double min_s, double max_s, rt_span *spans)
+{
+    rt_burst_rule rule = {k, min_s, max_s};
+    return rt_find_bursts(f->env, N, f->background, f->starts, SECONDS, FS, &rule,
+                          (size_t)(0.05 * FS), spans, 4, f->scratch);
+}
+
+/* AASM Manual v2 (excessive transient muscle activity): bursts 0.1-5.0 s,
+ * at least 4x background [BRIEF section 3, from memory]. */
+static void aasm_duration_boundaries(void **state)
+{
+    (void)state;
+    fixture *f = make_fixture();
+    rt_span s[4];
+    build(f, 20.0, 0.09, 8.0);
+    assert_int_equal(bursts(f, 4.0, 0.1, 5.0, s), 0);   /* 0.09 s: too short */
+    build(f, 20.0, 0.10, 8.0);
+    assert_int_equal(bursts(f, 4.0, 0.1, 5.0, s), 1);   /* 0.10 s: counts */
+    assert_true(fabs((s[0].end - s[0].start) / FS - 0.10) < 0.5 / FS);
+    assert_true(fabs(s[0].start / FS - 20.0) < 0.5 / FS); /* zero-lag onset */
+    build(f, 20.0, 5.0, 8.0);
+    assert_int_equal(bursts(f, 4.0, 0.1, 5.0, s), 1);   /* 5.0 s: counts */
+    build(f, 20.0, 5.1, 8.0);
+    assert_int_equal(bursts(f, 4.0, 0.1, 5.0, s), 0);   /* 5.1 s: too long */
+    free(f);
+}
+
+static void aasm_amplitude_boundary(void **state)
+{
+    (void)state;
+    fixture *f = make_fixture();
+    rt_span s[4];
+    build(f, 30.0, 1.0, 3.9);
+    assert_int_equal(bursts(f, 4.0, 0.1, 5.0, s), 0);   /* 3.9x: below 4x */
+    build(f, 30.0, 1.0, 4.0);
+    assert_int_equal(bursts(f, 4.0, 0.1, 5.0, s), 1);   /* 4.0x: at least 4x */
+    assert_true(fabs(s[0].ratio - 4.0) < 1e-6);
+    free(f);
+}
+
+/* SINBAR (Frauscher et al. 2012, Sleep 35:835): phasic = burst 0.1-5 s above
+ * twice the background [BRIEF section 3, from memory]. */
+static void sinbar_amplitude_boundary(void **state)
+{
+    (void)state;
+    fixture *f = make_fixture();
+    rt_span s[4];
+    build(f, 30.0, 1.0, 1.9);
+    assert_int_equal(bursts(f, 2.0, 0.1, 5.0, s), 0);   /* 1.9x */
+    build(f, 30.0, 1.0, 2.0);
+    assert_int_equal(bursts(f, 2.0, 0.1, 5.0, s), 1);   /* 2.0x */
+    free(f);
+}
+
+/* Montreal method (Montplaisir et al. 2010): phasic bursts 0.1-10 s at 4x
+ * background [BRIEF section 3, from memory]. */
+static void montreal_duration_boundary(void **state)
+{
+    (void)state;
+    fixture *f = make_fixture();
+    rt_span s[4];
+    build(f, 20.0, 10.0, 8.0);
+    assert_int_equal(bursts(f, 4.0, 0.1, 10.0, s), 1);
+    build(f, 20.0, 10.1, 8.0);
+    assert_int_equal(bursts(f, 4.0, 0.1, 10.0, s), 0);
+    free(f);
+}
+
+/* Tonic: more than 50 % of the epoch at the tonic level (SINBAR, Montreal;
+ * AASM "at least 50 %"), BRIEF section 3. 49 % vs 51 % of a 30-s epoch. */
+static void tonic_share_boundary(void **state)
+{
+    (void)state;
+    fixture *f = make_fixture();
+    double epoch = 30.0;
+    build(f, 15.0, 0.49 * epoch, 5.0);
+    size_t c49 = rt_count_tonic(f->env, (size_t)(15 * FS), (size_t)(45 * FS), f->background,
+                                f->starts, SECONDS, 2.0, 10.0);
+    build(f, 15.0, 0.51 * epoch, 5.0);
+    size_t c51 = rt_count_tonic(f->env, (size_t)(15 * FS), (size_t)(45 * FS), f->background,
+                                f->starts, SECONDS, 2.0, 10.0);
+    double n = epoch * FS;
+    assert_true(c49 / n < 0.5);
+    assert_true(c51 / n > 0.5);
+    assert_true(fabs(c49 / n - 0.49) < 0.002);  /* ramps cost at most one window */
+    free(f);
+}
+
+/* SINBAR/Montreal absolute tonic level: above 10 uV counts even when the
+ * background is just as high (BRIEF section 3, from memory). The envelope of a
+ * sine of amplitude A sampled as here is A x 0.6155 (mean of |sin| over the
+ * five sample phases), so A is set to land just above and below 10 uV. */
+static void tonic_absolute_level(void **state)
+{
+    (void)state;
+    fixture *f = make_fixture();
+    double unit = 0.0;
+    build(f, 0.0, 0.0, 1.0);
+    unit = f->env[N / 2];
+    build(f, 0.0, SECONDS, 10.2 / unit);                 /* everything at 10.2 uV */
+    assert_true(fabs(f->background[30] - 10.2) < 1e-6);  /* relative rule cannot fire */
+    /* the clipped windows at the two signal ends are left out: a carrier's
+     * partial period there does not average to the same value */
+    size_t from = 25, to = N - 25;
+    size_t above = rt_count_tonic(f->env, from, to, f->background, f->starts, SECONDS, 2.0, 10.0);
+    assert_int_equal(above, to - from);
+    build(f, 0.0, SECONDS, 9.8 / unit);
+    size_t below = rt_count_tonic(f->env, from, to, f->background, f->starts, SECONDS, 2.0, 10.0);
+    assert_int_equal(below, 0);
+    free(f);
+}
+
+/* Quantile: type 7 of Hyndman & Fan 1996 (numpy.quantile's default). */
+static void quantile_matches_type7(void **state)
+{
+    (void)state;
+    double v[] = {7, 1, 3, 5, 9};
+    assert_true(fabs(rt_quantile(v, 5, 0.5) - 5.0) < 1e-12);
+    double w[] = {4, 1, 3, 2};
+    assert_true(fabs(rt_quantile(w, 4, 0.2) - 1.6) < 1e-12); /* numpy: 1.6 */
+    double big[200];
+    for (int i = 0; i < 200; i++)
+        big[i] = (double)((i * 37) % 200);
+    assert_true(fabs(rt_quantile(big, 200, 0.05) - 9.95) < 1e-12); /* numpy: 9.95 */
+}
+
+/* The envelope is a plain centred moving average of |x| (clipped ends). */
+static void envelope_is_centred_average(void **state)
+{
+    (void)state;
+    double x[7] = {1, -2, 3, -4, 5, -6, 7};
+    double env[7], scratch[8];
+    rt_envelope(x, 7, 3, env, scratch);
+    assert_true(fabs(env[0] - 1.5) < 1e-12);
+    assert_true(fabs(env[3] - 4.0) < 1e-12);
+    assert_true(fabs(env[6] - 6.5) < 1e-12);
+    rt_envelope(x, 7, 3, x, scratch); /* in place */
+    assert_true(fabs(x[3] - 4.0) < 1e-12);
+}
+
+int main(void)
+{
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test(aasm_duration_boundaries),
+        cmocka_unit_test(aasm_amplitude_boundary),
+        cmocka_unit_test(sinbar_amplitude_boundary),
+        cmocka_unit_test(montreal_duration_boundary),
+        cmocka_unit_test(tonic_share_boundary),
+        cmocka_unit_test(tonic_absolute_level),
+        cmocka_unit_test(quantile_matches_type7),
+        cmocka_unit_test(envelope_is_centred_average),
+    };
+    return cmocka_run_group_tests(tests, NULL, NULL);
+}
