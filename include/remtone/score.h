@@ -85,6 +85,8 @@ typedef struct rt_score_params {
     double band_high_hz;         /* low-pass corner, default 100 (clipped below Nyquist) */
     int band_order;              /* Butterworth order of the zero-phase response, default 4 */
     double envelope_window_s;    /* rectified moving-average window, default 0.05 */
+    double burst_merge_gap_s;    /* runs above threshold closer than this are one burst,
+                                    default 0.25 */
     double background_level_quantile; /* the level a second of background reaches: this
                                     quantile of its envelope, default 0.9 */
     double background_window_s;  /* background window centred on each second, default 60 */

@@ -108,9 +108,10 @@ static json_t *evidence_json(const rt_night *night, size_t limit)
 
 static json_t *params_json(const rt_score_params *p)
 {
-    return json_pack("{s:f,s:f,s:i,s:f,s:f,s:f,s:f,s:f,s:f,s:f,s:f,s:f,s:f}",
+    return json_pack("{s:f,s:f,s:i,s:f,s:f,s:f,s:f,s:f,s:f,s:f,s:f,s:f,s:f,s:f}",
                      "band_low_hz", p->band_low_hz, "band_high_hz", p->band_high_hz,
                      "band_order", p->band_order, "envelope_window_s", p->envelope_window_s,
+                     "burst_merge_gap_s", p->burst_merge_gap_s,
                      "background_level_quantile", p->background_level_quantile,
                      "background_window_s", p->background_window_s,
                      "background_quantile", p->background_quantile,

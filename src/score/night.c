@@ -204,7 +204,7 @@ static rt_status detect_rule(rt_night *night, scoring_state *ss, workspace *w, s
                              rt_error *err)
 {
     double rate = src->rate_hz;
-    size_t merge = window_samples(night->params.envelope_window_s, rate);
+    size_t merge = window_samples(night->params.burst_merge_gap_s, rate);
     size_t found = rt_find_bursts(w->x, n, w->background, w->starts, seconds, rate, rule, merge,
                                   w->spans, w->span_cap, w->scratch);
     if (found > w->span_cap)

@@ -11,6 +11,7 @@ void rt_score_params_default(rt_score_params *p)
     p->band_high_hz = 100.0;
     p->band_order = 4;
     p->envelope_window_s = 0.05;   /* shorter than the 0.1-s minimum burst */
+    p->burst_merge_gap_s = 0.25;   /* a dip this short does not end a burst */
     p->background_level_quantile = 0.9; /* the visible top of the background trace */
     p->background_window_s = 60.0; /* same span as the REM Atonia Index floor */
     p->background_quantile = 0.2;
@@ -31,6 +32,7 @@ rt_status rt_score_params_check(const rt_score_params *p, rt_error *err)
         {"band_high_hz", p->band_high_hz, 1.0, 5000.0},
         {"band_order", (double)p->band_order, 1, 8},
         {"envelope_window_s", p->envelope_window_s, 0.002, 0.099},
+        {"burst_merge_gap_s", p->burst_merge_gap_s, 0.0, 1.0},
         {"background_level_quantile", p->background_level_quantile, 0.5, 1.0},
         {"background_window_s", p->background_window_s, 10.0, 600.0},
         {"background_quantile", p->background_quantile, 0.0, 0.5},

@@ -18,6 +18,9 @@ typedef struct profile_rates {
     double tonic_epochs;             /* target fraction of REM epochs chin-tonic */
     double burst_minis[SYNTH_ROLES]; /* target fraction of 3-s minis holding a burst
                                         (chin: of the non-tonic minis) */
+    double active_epochs;            /* bursts fall only in this share of REM epochs:
+                                        phasic activity comes in clusters (phasic REM),
+                                        which keeps 30-s indices realistic */
     int resp_events;
 } profile_rates;
 
@@ -33,6 +36,7 @@ static profile_rates rates_of(rt_synth_profile profile)
         r.burst_minis[SYNTH_CHIN] = 0.30;
         r.burst_minis[SYNTH_ARM_L] = r.burst_minis[SYNTH_ARM_R] = 0.25;
         r.burst_minis[SYNTH_LEG_L] = r.burst_minis[SYNTH_LEG_R] = 0.20;
+        r.active_epochs = 1.0;
         break;
     case RT_SYNTH_BORDERLINE:
         /* chin "any" = 0.05 + 0.95 * 0.137 = 0.18, just under SINBAR's 18.2 %. */
@@ -40,6 +44,7 @@ static profile_rates rates_of(rt_synth_profile profile)
         r.burst_minis[SYNTH_CHIN] = 0.137;
         r.burst_minis[SYNTH_ARM_L] = r.burst_minis[SYNTH_ARM_R] = 0.08;
         r.burst_minis[SYNTH_LEG_L] = r.burst_minis[SYNTH_LEG_R] = 0.06;
+        r.active_epochs = 0.40;
         break;
     case RT_SYNTH_APNEA:
     case RT_SYNTH_TYPICAL_OLDER:
@@ -48,6 +53,7 @@ static profile_rates rates_of(rt_synth_profile profile)
         r.burst_minis[SYNTH_CHIN] = 0.04;
         r.burst_minis[SYNTH_ARM_L] = r.burst_minis[SYNTH_ARM_R] = 0.03;
         r.burst_minis[SYNTH_LEG_L] = r.burst_minis[SYNTH_LEG_R] = 0.05;
+        r.active_epochs = 0.12;
         r.resp_events = profile == RT_SYNTH_APNEA;
         break;
     }
@@ -210,12 +216,20 @@ static rt_status place_tonic(synth_plan *plan, const profile_rates *rates, synth
         return rt_fail(err, RT_ERR_NOMEM, "synthetic night: out of memory (tonic blocks)");
     }
     int u = 0;
+    /* Units touching a bout's first or last epoch are left atonic: the REM
+     * Atonia Index's 60-s floor window is clipped at bout edges, and a tonic
+     * stretch filling it would become its own floor (docs/synthetic-nights.md). */
     for (int b = 0; b < plan->n_bouts; b++)
-        for (int p = 0; p < plan->bouts[b].epochs; p += 2, u++) {
+        for (int p = 0; p < plan->bouts[b].epochs; p += 2) {
+            int size = plan->bouts[b].epochs - p >= 2 ? 2 : 1;
+            if (p == 0 || p + size >= plan->bouts[b].epochs)
+                continue;
             unit_epoch[u] = plan->bouts[b].first_epoch + p;
-            unit_size[u] = plan->bouts[b].epochs - p >= 2 ? 2 : 1;
+            unit_size[u] = size;
             order[u] = u;
+            u++;
         }
+    n_units = u;
     shuffle_ints(order, n_units, rng);
     int target = (int)lround(rates->tonic_epochs * rem_epochs);
     int total = 0;
@@ -445,6 +459,25 @@ static rt_status place_bursts(synth_plan *plan, const profile_rates *rates, synt
         free(cand);
         return rt_fail(err, RT_ERR_NOMEM, "synthetic night: out of memory (mini-epochs)");
     }
+    /* the REM epochs where phasic activity may fall (all of them for rbd) */
+    unsigned char *active = rt_calloc((size_t)plan->n_epochs + 1, 1);
+    int *rem_list = rt_calloc((size_t)rem_epochs + 1, sizeof *rem_list);
+    if (!active || !rem_list) {
+        free(active);
+        free(rem_list);
+        free(mini_start);
+        free(mini_bout);
+        free(cand);
+        return rt_fail(err, RT_ERR_NOMEM, "synthetic night: out of memory (active epochs)");
+    }
+    int r_n = 0;
+    for (int b = 0; b < plan->n_bouts; b++)
+        for (int e = 0; e < plan->bouts[b].epochs; e++)
+            rem_list[r_n++] = plan->bouts[b].first_epoch + e;
+    shuffle_ints(rem_list, r_n, rng);
+    int n_active = (int)lround(rates->active_epochs * r_n);
+    for (int i = 0; i < n_active; i++)
+        active[rem_list[i]] = 1;
     int m = 0;
     for (int b = 0; b < plan->n_bouts; b++)
         for (int e = 0; e < plan->bouts[b].epochs; e++)
@@ -463,6 +496,8 @@ static rt_status place_bursts(synth_plan *plan, const profile_rates *rates, synt
                 holding++;
                 continue;
             }
+            if (!active[mini_start[i] / SYNTH_EPOCH_S])
+                continue;
             for (long s = mini_start[i]; s < mini_start[i] + 3; s++)
                 if (second_allows_burst(plan, &plan->bouts[mini_bout[i]], role, s)) {
                     cand[n_cand++] = i;
@@ -485,6 +520,8 @@ static rt_status place_bursts(synth_plan *plan, const profile_rates *rates, synt
             st = add_burst(plan, role, s, burst_background(plan, role, s), 0, rng, err);
         }
     }
+    free(active);
+    free(rem_list);
     free(mini_start);
     free(mini_bout);
     free(cand);

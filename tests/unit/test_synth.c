@@ -12,7 +12,7 @@
 #include <string.h>
 
 #include "remtone/synth.h"
-#include "../../src/synth/synth_internal.h"
+#include "synth/synth_internal.h"
 
 enum { MAX_ROWS = 4096 };
 

@@ -1,0 +1,166 @@
+/* Benchmark: score an 8-hour, 20-channel synthetic night (5 EMG at 512 Hz) and
+ * compare with the time needed merely to read the EMG samples the scorer
+ * uses. Prints wall time, CPU time, peak resident memory and the machine.
+ * Usage: bench_score [HOURS] [DIR]   (DIR keeps the night between runs) */
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/resource.h>
+#include <sys/stat.h>
+#include <sys/utsname.h>
+#include <time.h>
+
+#include "remtone/remtone.h"
+
+static double now_s(void)
+{
+    struct timespec ts;
+    clock_gettime(CLOCK_MONOTONIC, &ts);
+    return (double)ts.tv_sec + 1e-9 * (double)ts.tv_nsec;
+}
+
+static double cpu_s(void)
+{
+    struct timespec ts;
+    clock_gettime(CLOCK_PROCESS_CPUTIME_ID, &ts);
+    return (double)ts.tv_sec + 1e-9 * (double)ts.tv_nsec;
+}
+
+static void die(const rt_error *err)
+{
+    fprintf(stderr, "bench_score: %s\n", err->message);
+    exit(1);
+}
+
+static void machine(void)
+{
+    struct utsname u;
+    uname(&u);
+    char model[600] = "unknown CPU";
+    FILE *f = fopen("/proc/cpuinfo", "r");
+    if (f) {
+        char line[512];
+        while (fgets(line, sizeof line, f))
+            if (strncmp(line, "model name", 10) == 0) {
+                char *c = strchr(line, ':');
+                snprintf(model, sizeof model, "%s", c ? c + 2 : line);
+                model[strcspn(model, "\n")] = '\0';
+                break;
+            }
+        fclose(f);
+    }
+    printf("machine: %s %s, %s\n", u.sysname, u.machine, model);
+}
+
+static bool is_nrem(unsigned char s) { return s == RT_STAGE_N1 || s == RT_STAGE_N2 || s == RT_STAGE_N3; }
+
+/* Reads what the scorer reads: every REM bout of every EMG role, plus the chin
+ * over NREM, without processing it. Returns samples read. */
+static size_t read_only(rt_recording *rec, const rt_role_map *roles, const rt_timeline *tl)
+{
+    size_t total = 0;
+    size_t cap = 0;
+    double *buf = NULL, *scratch = NULL;
+    rt_error err;
+    for (int r = 0; r < RT_ROLE_ECG; r++) {
+        const rt_role_source *src = &roles->role[r];
+        if (src->channel < 0)
+            continue;
+        for (size_t e = 0; e < tl->n_epochs;) {
+            bool rem = tl->stages[e] == RT_STAGE_R;
+            bool nrem = r == RT_ROLE_CHIN && is_nrem(tl->stages[e]);
+            if (!rem && !nrem) {
+                e++;
+                continue;
+            }
+            size_t run = 0;
+            while (e + run < tl->n_epochs &&
+                   (rem ? tl->stages[e + run] == RT_STAGE_R : is_nrem(tl->stages[e + run])))
+                run++;
+            long long first = (long long)((double)e * tl->epoch_s * src->rate_hz + 0.5);
+            size_t n = (size_t)((double)run * tl->epoch_s * src->rate_hz + 0.5);
+            if (n > cap) {
+                free(buf);
+                free(scratch);
+                buf = malloc(n * sizeof *buf);
+                scratch = malloc(n * sizeof *scratch);
+                cap = n;
+            }
+            if (rt_role_read_uv(rec, src, first, n, buf, scratch, &err) != RT_OK)
+                die(&err);
+            total += n;
+            e += run;
+        }
+    }
+    free(buf);
+    free(scratch);
+    return total;
+}
+
+int main(int argc, char **argv)
+{
+    double hours = argc > 1 ? atof(argv[1]) : 8.0;
+    const char *dir = argc > 2 ? argv[2] : "bench-night";
+    char path[4200], stages[4200];
+    snprintf(path, sizeof path, "%s/night.edf", dir);
+    snprintf(stages, sizeof stages, "%s/stages.csv", dir);
+    rt_error err;
+    struct stat st;
+    if (stat(path, &st) != 0) {
+        mkdir(dir, 0777);
+        rt_synth_options o;
+        rt_synth_options_default(&o);
+        o.profile = RT_SYNTH_RBD;
+        o.hours = hours;
+        o.seed = 2026;
+        double t = now_s();
+        if (rt_synth_write(&o, dir, &err) != RT_OK)
+            die(&err);
+        printf("synthetic night written in %.2f s\n", now_s() - t);
+    }
+    machine();
+    rt_recording *rec = rt_recording_open(path, &err);
+    if (!rec)
+        die(&err);
+    rt_role_map roles;
+    rt_timeline *tl = rt_timeline_new();
+    if (rt_roles_resolve(rec, NULL, &roles, &err) != RT_OK ||
+        rt_timeline_load_stages_csv(tl, stages, NULL, &err) != RT_OK)
+        die(&err);
+    printf("night: %.2f h, %d channels, %s\n", rt_recording_duration_s(rec) / 3600.0,
+           rt_recording_channel_count(rec), path);
+
+    enum { RUNS = 5 };
+    double best_read = 1e9, best_wall = 1e9, best_cpu = 1e9;
+    size_t samples = 0;
+    rt_night *night = NULL;
+    for (int i = 0; i < RUNS; i++) {
+        double t0 = now_s();
+        samples = read_only(rec, &roles, tl);
+        double tr = now_s() - t0;
+        if (tr < best_read)
+            best_read = tr;
+        rt_night_free(night);
+        double w0 = now_s(), c0 = cpu_s();
+        if (rt_night_score(rec, &roles, tl, NULL, NULL, &night, &err) != RT_OK)
+            die(&err);
+        double w = now_s() - w0, c = cpu_s() - c0;
+        if (w < best_wall)
+            best_wall = w;
+        if (c < best_cpu)
+            best_cpu = c;
+    }
+    struct rusage ru;
+    getrusage(RUSAGE_SELF, &ru);
+    printf("EMG samples read per night: %zu (%.1f M)\n", samples, (double)samples / 1e6);
+    printf("read only (best of %d):      %.3f s\n", RUNS, best_read);
+    printf("score     (best of %d):      %.3f s wall, %.3f s CPU\n", RUNS, best_wall, best_cpu);
+    printf("score / read:                %.2fx\n", best_wall / best_read);
+    printf("peak resident memory:        %.1f MiB\n", (double)ru.ru_maxrss / 1024.0);
+    printf("REM %.1f min, headline %s = %.1f\n", night->rem_minutes,
+           rt_index_rules()[night->headline].id, night->index[night->headline].value);
+    rt_night_free(night);
+    rt_timeline_free(tl);
+    rt_recording_close(rec);
+    return 0;
+}

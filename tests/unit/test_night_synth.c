@@ -1,0 +1,143 @@
+/* The whole scorer against synthetic nights whose activity is known exactly.
+ *
+ * The generator places bursts and tonic stretches on a grid that makes every
+ * index unambiguous and computes the indices from what it placed
+ * (docs/synthetic-nights.md); the scorer sees only the EDF+ and the stage
+ * table. Target: every index within 2 percentage points, the REM Atonia Index
+ * within 0.03 (BRIEF section 5 and the scoring issue). */
+#include "support.h"
+
+#include <jansson.h>
+#include <math.h>
+#include <stdio.h>
+#include <string.h>
+
+#include "remtone/remtone.h"
+
+typedef struct scored {
+    rt_night *night;
+    json_t *truth;
+} scored;
+
+static scored score_synthetic(rt_synth_profile profile, uint64_t seed, double hours)
+{
+    char name[64];
+    snprintf(name, sizeof name, "night_%s_%llu", rt_synth_profile_name(profile),
+             (unsigned long long)seed);
+    const char *dir = rt_test_dir(name);
+    char d[4096], path[4200];
+    snprintf(d, sizeof d, "%s", dir);
+    rt_synth_options o;
+    rt_synth_options_default(&o);
+    o.profile = profile;
+    o.seed = seed;
+    o.hours = hours;
+    rt_error err;
+    assert_int_equal(rt_synth_write(&o, d, &err), RT_OK);
+
+    snprintf(path, sizeof path, "%s/night.edf", d);
+    rt_recording *rec = rt_recording_open(path, &err);
+    assert_non_null(rec);
+    rt_role_map roles;
+    assert_int_equal(rt_roles_resolve(rec, NULL, &roles, &err), RT_OK);
+    rt_timeline *tl = rt_timeline_new();
+    snprintf(path, sizeof path, "%s/stages.csv", d);
+    assert_int_equal(rt_timeline_load_stages_csv(tl, path, NULL, &err), RT_OK);
+    scored s = {NULL, NULL};
+    assert_int_equal(rt_night_score(rec, &roles, tl, NULL, NULL, &s.night, &err), RT_OK);
+    rt_timeline_free(tl);
+    rt_recording_close(rec);
+
+    snprintf(path, sizeof path, "%s/truth.json", d);
+    json_error_t jerr;
+    s.truth = json_load_file(path, 0, &jerr);
+    assert_non_null(s.truth);
+    return s;
+}
+
+static void free_scored(scored *s)
+{
+    rt_night_free(s->night);
+    json_decref(s->truth);
+}
+
+static void check_against_truth(const scored *s, const char *label)
+{
+    json_t *indices = json_object_get(s->truth, "indices");
+    assert_non_null(indices);
+    const rt_index_rule *rules = rt_index_rules();
+    int failures = 0;
+    for (int i = 0; i < RT_IX_COUNT; i++) {
+        /* truth groups ids by rule set: "sinbar.chin_any_3s" is indices.sinbar.chin_any_3s */
+        char group[32];
+        const char *dot = strchr(rules[i].id, '.');
+        json_t *t = NULL;
+        if (dot) {
+            snprintf(group, sizeof group, "%.*s", (int)(dot - rules[i].id), rules[i].id);
+            t = json_object_get(json_object_get(indices, group), dot + 1);
+        } else {
+            t = json_object_get(indices, rules[i].id);
+        }
+        assert_non_null(t);
+        double want = json_number_value(t);
+        double got = s->night->index[i].value;
+        double tol = strcmp(rules[i].unit, "%") == 0 ? 2.0 : 0.03;
+        int ok = isfinite(got) && fabs(got - want) <= tol;
+        printf("# %-14s %-34s truth %8.3f  scored %8.3f %s\n", label, rules[i].id, want, got,
+               ok ? "" : "  <-- outside tolerance");
+        failures += !ok;
+    }
+    assert_int_equal(failures, 0);
+}
+
+static void typical_older_matches_truth_and_is_not_flagged(void **state)
+{
+    (void)state;
+    for (uint64_t seed = 1; seed <= 2; seed++) {
+        scored s = score_synthetic(RT_SYNTH_TYPICAL_OLDER, seed, 3.0);
+        check_against_truth(&s, "typical-older");
+        assert_int_not_equal(s.night->level, RT_REVIEW_FLAGGED);
+        assert_int_not_equal(s.night->level, RT_REVIEW_NOT_ASSESSABLE);
+        free_scored(&s);
+    }
+}
+
+static void rbd_matches_truth_and_is_flagged(void **state)
+{
+    (void)state;
+    for (uint64_t seed = 3; seed <= 4; seed++) {
+        scored s = score_synthetic(RT_SYNTH_RBD, seed, 3.0);
+        check_against_truth(&s, "rbd");
+        assert_int_equal(s.night->level, RT_REVIEW_FLAGGED);
+        free_scored(&s);
+    }
+}
+
+static void borderline_matches_truth(void **state)
+{
+    (void)state;
+    scored s = score_synthetic(RT_SYNTH_BORDERLINE, 5, 3.0);
+    check_against_truth(&s, "borderline");
+    free_scored(&s);
+}
+
+/* Without its events, the apnea night's arousal-bound bursts are scored like
+ * any others: the scorer must match the truth that ignores events. */
+static void apnea_without_events_matches_truth(void **state)
+{
+    (void)state;
+    scored s = score_synthetic(RT_SYNTH_APNEA, 6, 3.0);
+    check_against_truth(&s, "apnea");
+    free_scored(&s);
+}
+
+int main(void)
+{
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test(typical_older_matches_truth_and_is_not_flagged),
+        cmocka_unit_test(rbd_matches_truth_and_is_flagged),
+        cmocka_unit_test(borderline_matches_truth),
+        cmocka_unit_test(apnea_without_events_matches_truth),
+    };
+    return cmocka_run_group_tests(tests, NULL, NULL);
+}
