@@ -5,7 +5,7 @@
 
 #include "cli.h"
 
-enum { MAX_OPTIONS = 48 };
+enum { MAX_OPTIONS = 48, KEY_OFFSET = 0x10000 }; /* keeps keys clear of getopt's own values */
 
 void cli_print_help(FILE *out, const cli_command *cmd)
 {
@@ -27,7 +27,7 @@ int cli_parse(const cli_command *cmd, int argc, char **argv,
     int n = 0;
     for (const cli_option *o = cmd->options; o && o->name && n < MAX_OPTIONS; o++, n++)
         longs[n] = (struct option){o->name, o->has_arg ? required_argument : no_argument, NULL,
-                                   o->key};
+                                   o->key + KEY_OFFSET};
     longs[n++] = (struct option){"help", no_argument, NULL, 'h'};
     longs[n] = (struct option){NULL, 0, NULL, 0};
     *n_positional = 0;
@@ -51,7 +51,7 @@ int cli_parse(const cli_command *cmd, int argc, char **argv,
             fprintf(stderr, "run 'remtone %s --help' for the options\n", cmd->name);
             return EXIT_USAGE;
         } else {
-            int rc = on_option(ctx, c, optarg);
+            int rc = on_option(ctx, c - KEY_OFFSET, optarg);
             if (rc != EXIT_OK)
                 return rc;
         }

@@ -1,0 +1,89 @@
+#!/usr/bin/env bash
+# The command-line contract: commands, JSON shapes, exit codes (README.md) and
+# that a failed write leaves no file. Uses a 1-hour synthetic night.
+set -u
+bin=${REMTONE_BIN:?}
+py=/usr/bin/python3
+work="${REMTONE_TMP:-/tmp}/cli"
+rm -rf "$work" && mkdir -p "$work"
+fails=0
+check() { # check NAME EXPECTED_EXIT CMD...
+  local name=$1 want=$2; shift 2
+  "$@" >"$work/out" 2>"$work/err"; local got=$?
+  if [ "$got" != "$want" ]; then
+    echo "FAIL $name: exit $got, want $want"; sed 's/^/    /' "$work/err" | head -5; fails=$((fails+1))
+  else
+    echo "ok   $name"
+  fi
+}
+has() { # has NAME FILE TEXT
+  if grep -qF -- "$3" "$2"; then echo "ok   $1"; else echo "FAIL $1: '$3' not in $2"; fails=$((fails+1)); fi
+}
+
+check version 0 "$bin" --version
+check no-command 2 "$bin"
+check unknown-command 2 "$bin" frobnicate
+check unknown-option 2 "$bin" score --no-such-option x.edf
+check synth-bad-profile 2 "$bin" synth --profile nightmare --out "$work/x"
+check synth-bad-hours 2 "$bin" synth --profile rbd --hours 0.2 --out "$work/x"
+check synth 0 "$bin" synth --profile rbd --hours 1 --seed 3 --out "$work/n"
+check scan 0 "$bin" scan "$work/n/night.edf"
+has scan-lists-chin "$work/out" "Chin1-Chin2"
+check scan-json 0 "$bin" scan "$work/n/night.edf" --json "$work/scan.json"
+# the scan JSON shape of the foundation issue: channels[{label, rate_hz, unit, role}], duration_s
+check scan-json-shape 0 "$py" -c '
+import json,sys; d=json.load(open(sys.argv[1]))
+ch={c["label"]:c for c in d["channels"]}
+assert len(d["channels"])==20 and abs(d["duration_s"]-3600)<1e-6
+assert ch["Chin1-Chin2"]["role"]=="chin" and ch["Chin1-Chin2"]["rate_hz"]==512 and ch["Chin1-Chin2"]["unit"]=="uV"
+assert ch["FDS L"]["role"]=="arm-left" and ch["Tib R"]["role"]=="leg-right" and ch["ECG"]["role"]=="ecg"
+assert "role" not in ch["C4-M1"] or ch["C4-M1"]["role"] is None' "$work/scan.json"
+
+check score 0 "$bin" score "$work/n/night.edf" --stages "$work/n/stages.csv" --json "$work/r.json"
+has score-cautions "$work/out" "not a diagnosis"
+has score-visual-note "$work/out" "visual scoring"
+check score-json-shape 0 "$py" -c '
+import json,sys; d=json.load(open(sys.argv[1]))
+assert d["schema"]=="remtone-night/1"
+for k in ("epochs","minutes","scorable_minutes"): assert k in d["rem"]
+ids=["aasm.tonic_chin_epochs","aasm.phasic_chin_epochs","aasm.phasic_any_epochs","aasm.rswa_epochs",
+ "sinbar.chin_any_3s","sinbar.chin_phasic_3s","sinbar.chin_tonic_30s","sinbar.fds_phasic_3s",
+ "sinbar.chin_any_fds_phasic_3s","sinbar.chin_any_fds_phasic_30s","montreal.tonic_chin","montreal.phasic_chin","rai"]
+assert sorted(d["indices"])==sorted(ids)
+for i in ids:
+  x=d["indices"][i]; assert x["status"] in ("above","below","intermediate","no-cutoff","not-computed")
+  assert x["unit"] in ("%","ratio") and x["source"]
+# Frauscher 2012: SINBAR combined cutoff 31.9 %; Ferri 2010: RAI 0.8
+assert d["indices"]["sinbar.chin_any_fds_phasic_3s"]["cutoff"]==31.9 and d["indices"]["rai"]["cutoff"]==0.8
+assert d["review"]["flagged"] is True and d["review"]["level"]=="review" and d["review"]["reasons"]
+assert len(d["cautions"])>=9 and d["provenance"]["version"] and len(d["provenance"]["inputs"]["recording"]["xxh3"])==16' "$work/r.json"
+check score-json-stdout 0 "$bin" score "$work/n/night.edf" --stages "$work/n/stages.csv" --json -
+cp "$work/out" "$work/stdout.json"
+check score-json-stdout-is-json 0 "$py" -c 'import json,sys; json.load(open(sys.argv[1]))' "$work/stdout.json"
+
+# a lab's cutoff file replaces the published one and the result says so
+printf 'index,cutoff\nsinbar.chin_any_3s,99\n' > "$work/cut.csv"
+check score-cutoffs 0 "$bin" score "$work/n/night.edf" --stages "$work/n/stages.csv" --cutoffs "$work/cut.csv" --json "$work/c.json"
+check score-cutoffs-used 0 "$py" -c '
+import json,sys; d=json.load(open(sys.argv[1]))
+assert d["indices"]["sinbar.chin_any_3s"]["cutoff"]==99 and d["indices"]["sinbar.chin_any_3s"]["status"]=="below"
+assert d["provenance"]["cutoffs"].endswith("cut.csv")' "$work/c.json"
+printf 'index,cutoff\nsinbar.nonsense,5\n' > "$work/badcut.csv"
+check score-bad-cutoffs 5 "$bin" score "$work/n/night.edf" --stages "$work/n/stages.csv" --cutoffs "$work/badcut.csv"
+has bad-cutoffs-line "$work/err" "line 2"
+
+# exit codes of the README table
+check missing-recording 3 "$bin" score "$work/nope.edf" --stages "$work/n/stages.csv"
+printf 'start_s,duration_s,stage\n0,30,W\n30,45,N2\n' > "$work/bad.csv"
+check bad-staging 5 "$bin" score "$work/n/night.edf" --stages "$work/bad.csv"
+has bad-staging-line "$work/err" "line 3"
+printf 'not an edf at all, but long enough to have a header of some sort........' > "$work/junk.edf"
+check malformed-recording 4 "$bin" scan "$work/junk.edf"
+check missing-chin-label 6 "$bin" score "$work/n/night.edf" --stages "$work/n/stages.csv" --chin NoSuchLabel
+check output-unwritable 7 "$bin" score "$work/n/night.edf" --stages "$work/n/stages.csv" --json "$work/no/such/dir/r.json"
+if ls "$work/no" >/dev/null 2>&1; then echo "FAIL output-unwritable left files"; fails=$((fails+1)); fi
+check rules 0 "$bin" rules
+for id in aasm.rswa_epochs sinbar.chin_any_fds_phasic_3s montreal.phasic_chin rai; do has "rules-$id" "$work/out" "$id"; done
+
+echo "$((fails)) failed"
+[ "$fails" = 0 ]
