@@ -17,23 +17,31 @@ void rt_envelope(double *x, size_t n, size_t window, double *env, double *scratc
     size_t half = window / 2;
     size_t w = 2 * half + 1; /* the window is centred, so its length is odd */
     /* scratch is a ring holding |x[j]| for j in [i - half, i + half]: env may
-     * overwrite x[i] while later windows still need it. */
+     * overwrite x[i] while later windows still need it. Slot of sample j is
+     * j mod w, tracked incrementally (no division on the hot path). */
     double sum = 0.0;
     for (size_t j = 0; j <= half && j < n; j++) {
-        scratch[j % w] = fabs(x[j]);
-        sum += scratch[j % w];
+        scratch[j] = fabs(x[j]);
+        sum += scratch[j];
     }
+    size_t drop_slot = 0;           /* slot of sample i - half */
+    size_t add_slot = (half + 1) % w; /* slot of sample i + half + 1 */
     for (size_t i = 0; i < n; i++) {
         size_t lo = i >= half ? i - half : 0;
         size_t hi = i + half < n ? i + half : n - 1;
         env[i] = sum / (double)(hi - lo + 1);
-        if (i >= half)
-            sum -= scratch[(i - half) % w];
+        if (i >= half) {
+            sum -= scratch[drop_slot];
+            if (++drop_slot == w)
+                drop_slot = 0;
+        }
         size_t add = i + half + 1;
         if (add < n) {
-            scratch[add % w] = fabs(x[add]);
-            sum += scratch[add % w];
+            scratch[add_slot] = fabs(x[add]);
+            sum += scratch[add_slot];
         }
+        if (++add_slot == w)
+            add_slot = 0;
     }
 }
 
@@ -79,7 +87,7 @@ double rt_quantile(double *v, size_t n, double q)
 {
     if (n == 1)
         return v[0];
-    if (n <= 64) {
+    if (n <= 8) {
         qsort(v, n, sizeof *v, compare_double);
         double pos = q * (double)(n - 1);
         size_t i = (size_t)floor(pos);
@@ -101,15 +109,18 @@ double rt_quantile(double *v, size_t n, double q)
 }
 
 void rt_block_quantiles(const double *env, const size_t *starts, size_t n_blocks, double q,
-                        double *medians, double *scratch)
+                        size_t stride, double *medians, double *scratch)
 {
+    if (stride < 1)
+        stride = 1;
     for (size_t b = 0; b < n_blocks; b++) {
-        size_t len = starts[b + 1] - starts[b];
+        size_t len = 0;
+        for (size_t i = starts[b]; i < starts[b + 1]; i += stride)
+            scratch[len++] = env[i];
         if (len == 0) {
             medians[b] = b > 0 ? medians[b - 1] : 0.0;
             continue;
         }
-        memcpy(scratch, env + starts[b], len * sizeof *scratch);
         medians[b] = rt_quantile(scratch, len, q);
     }
 }
@@ -204,8 +215,10 @@ size_t rt_find_bursts(const double *env, size_t n, const double *background,
             }
             j++;
         }
-        size_t len = last - first + 1;
-        memcpy(scratch, env + first, len * sizeof *scratch);
+        /* the run's level: median envelope, every 4th sample (smooth over a window) */
+        size_t len = 0;
+        for (size_t k = first; k <= last; k += 4)
+            scratch[len++] = env[k];
         double level = rt_quantile(scratch, len, 0.5);
         double bg = background[block_of(first + len / 2, starts, n_blocks, &cursor)];
         double half = bg + 0.5 * (level - bg);

@@ -14,9 +14,11 @@ void rt_envelope(double *x, size_t n, size_t window, double *env, double *scratc
 
 /* The q-quantile (0..1) of env over each block [starts[b], starts[b+1]), for
  * b in 0..n_blocks-1 (starts holds n_blocks+1 values), so non-integer rates
- * stay on the time grid. scratch holds the longest block. */
+ * stay on the time grid, taking every stride-th sample (>= 1; the envelope is
+ * smooth over its window, so a stride well below the window loses nothing).
+ * scratch holds the longest block. */
 void rt_block_quantiles(const double *env, const size_t *starts, size_t n_blocks, double q,
-                        double *out, double *scratch);
+                        size_t stride, double *out, double *scratch);
 
 /* Background per block: the q-quantile (0..1, linear interpolation) of the
  * block medians inside the centred window [b - half, b + window - half - 1],

@@ -295,7 +295,9 @@ static rt_status score_role_bout(rt_recording *rec, rt_night *night, scoring_sta
     if (st != RT_OK)
         return st;
     size_t bg_window = (size_t)llround(p->background_window_s);
-    rt_block_quantiles(w->x, w->starts, seconds, p->background_level_quantile, w->medians,
+    /* a stride of a quarter window: the envelope barely moves in between */
+    size_t stride = window_samples(p->envelope_window_s / 4.0, src->rate_hz);
+    rt_block_quantiles(w->x, w->starts, seconds, p->background_level_quantile, stride, w->medians,
                        w->scratch);
     rt_background(w->medians, seconds, bg_window, p->background_quantile, w->background,
                   w->scratch);

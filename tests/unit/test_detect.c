@@ -46,7 +46,7 @@ static void build(fixture *f, double onset_s, double dur_s, double ratio)
         f->x[i] = amp * sin(2.0 * 3.14159265358979323846 * 50.0 * (double)i / FS + 0.3);
     }
     rt_envelope(f->x, N, (size_t)(0.05 * FS), f->env, f->scratch);
-    rt_block_quantiles(f->env, f->starts, SECONDS, 0.9, f->medians, f->scratch);
+    rt_block_quantiles(f->env, f->starts, SECONDS, 0.9, 6, f->medians, f->scratch);
     rt_background(f->medians, SECONDS, 60, 0.2, f->background, f->scratch);
 }
 
