@@ -270,8 +270,9 @@ static rt_status fill_from_header(rt_recording *rec, const struct edf_hdr_struct
     rec->duration_s = (double)h->file_duration / (double)EDFLIB_TIME_DIMENSION;
     fill_start(rec, h);
     fill_identity(rec, h);
-    if (h->edfsignals < 1)
-        return rt_fail(err, RT_ERR_RECORDING, "%s: the file holds annotations only, no signals", rec->path);
+    /* An EDF+ file with the annotation signal alone is a valid hypnogram file
+     * (a separate staging file); it has no channels to score, which the role
+     * step reports if it is used as a recording. */
     rt_status s = fill_channels(rec, h, err);
     if (s != RT_OK)
         return s;

@@ -82,6 +82,19 @@ check malformed-recording 4 "$bin" scan "$work/junk.edf"
 check missing-chin-label 6 "$bin" score "$work/n/night.edf" --stages "$work/n/stages.csv" --chin NoSuchLabel
 check output-unwritable 7 "$bin" score "$work/n/night.edf" --stages "$work/n/stages.csv" --json "$work/no/such/dir/r.json"
 if ls "$work/no" >/dev/null 2>&1; then echo "FAIL output-unwritable left files"; fails=$((fails+1)); fi
+# staging from a separate annotation-only EDF+ file (EDF+ spec, Kemp & Olivan 2003: a file
+# whose only signal is "EDF Annotations" carries TALs; stage texts "Sleep stage W/R")
+check hypnogram-file 0 "$py" -c '
+import sys
+def f(s,n): return s.ljust(n)[:n].encode()
+tals=[b"+0\x14\x14\x00+0\x1530\x14Sleep stage W\x14\x00", b"+30\x14\x14\x00+30\x1530\x14Sleep stage R\x14\x00"]
+h=f("0",8)+f("X X X X",80)+f("Startdate 01-JAN-2024 X X X",80)+f("01.01.24",8)+f("22.30.00",8)+f("512",8)+f("EDF+C",44)+f("2",8)+f("30",8)+f("1",4)
+h+=f("EDF Annotations",16)+f("",80)+f("",8)+f("-1",8)+f("1",8)+f("-32768",8)+f("32767",8)+f("",80)+f("60",8)+f("",32)
+open(sys.argv[1],"wb").write(h+b"".join(t.ljust(120,b"\x00") for t in tals))' "$work/hyp.edf"
+check score-hypnogram-edf 0 "$bin" score "$work/n/night.edf" --stages "$work/hyp.edf" --json "$work/h.json"
+check score-hypnogram-edf-read 0 "$py" -c '
+import json,sys; d=json.load(open(sys.argv[1]))
+assert d["rem"]["epochs"]==1 and d["review"]["level"]=="not-assessable"' "$work/h.json"
 check rules 0 "$bin" rules
 for id in aasm.rswa_epochs sinbar.chin_any_fds_phasic_3s montreal.phasic_chin rai; do has "rules-$id" "$work/out" "$id"; done
 
