@@ -5,7 +5,10 @@
 #include "cli.h"
 #include "roles_opts.h"
 
-enum { KEY_STAGES = 1, KEY_EVENTS, KEY_JSON, KEY_CUTOFFS, KEY_LABELS, KEY_MIN_REM, KEY_QUIET };
+enum {
+    KEY_STAGES = 1, KEY_EVENTS, KEY_JSON, KEY_CUTOFFS, KEY_LABELS, KEY_MIN_REM, KEY_QUIET,
+    KEY_KEEP_ARTIFACTS, KEY_KEEP_SNORING, KEY_KEEP_RESPIRATORY, KEY_EVENT_MARGIN
+};
 
 static const cli_option OPTIONS[] = {
     {"stages", 1, KEY_STAGES, "FILE", "staging: stage table CSV or EDF+ (default: the recording's own annotations)"},
@@ -15,6 +18,11 @@ static const cli_option OPTIONS[] = {
     {"label-map", 1, KEY_LABELS, "FILE", "map local stage or event labels (CSV label,meaning)"},
     {"min-rem", 1, KEY_MIN_REM, "MIN", "least scorable REM minutes for an assessable night (default 5)"},
     {"quiet", 0, KEY_QUIET, NULL, "do not print the text summary"},
+    {"keep-artifacts", 0, KEY_KEEP_ARTIFACTS, NULL, "score mini-epochs under artifact events too"},
+    {"keep-snoring", 0, KEY_KEEP_SNORING, NULL, "score mini-epochs under snoring events too"},
+    {"keep-respiratory", 0, KEY_KEEP_RESPIRATORY, NULL,
+     "score mini-epochs under respiratory events and their arousals too"},
+    {"event-margin", 1, KEY_EVENT_MARGIN, "S", "widen every excluding event by S seconds each side (default 0)"},
     CLI_ROLE_OPTIONS,
     {0},
 };
@@ -24,6 +32,7 @@ typedef struct score_config {
     double min_rem;
     int quiet;
     rt_role_options roles;
+    rt_score_params params;
 } score_config;
 
 static int on_option(void *ctx, int key, const char *arg)
@@ -39,6 +48,16 @@ static int on_option(void *ctx, int key, const char *arg)
     case KEY_CUTOFFS: c->cutoffs = arg; break;
     case KEY_LABELS: c->labels = arg; break;
     case KEY_QUIET: c->quiet = 1; break;
+    case KEY_KEEP_ARTIFACTS: c->params.exclude_artifacts = false; break;
+    case KEY_KEEP_SNORING: c->params.exclude_snoring = false; break;
+    case KEY_KEEP_RESPIRATORY: c->params.exclude_respiratory = false; break;
+    case KEY_EVENT_MARGIN:
+        c->params.event_margin_s = strtod(arg, &end);
+        if (*end || !(c->params.event_margin_s >= 0 && c->params.event_margin_s <= 60)) {
+            fprintf(stderr, "remtone score: --event-margin must be 0 to 60 seconds, got '%s'\n", arg);
+            return EXIT_USAGE;
+        }
+        break;
     case KEY_MIN_REM:
         c->min_rem = strtod(arg, &end);
         if (*end || !(c->min_rem >= 0 && c->min_rem <= 600)) {
@@ -86,6 +105,7 @@ static int run(int argc, char **argv)
     score_config c;
     memset(&c, 0, sizeof c);
     c.min_rem = -1;
+    rt_score_params_default(&c.params);
     char *pos[1];
     int npos = 0;
     int rc = cli_parse(&CLI_SCORE, argc, argv, on_option, &c, pos, 1, &npos);
@@ -103,11 +123,9 @@ static int run(int argc, char **argv)
     int output_error = 0;
     rt_status st = load_inputs(&c, pos[0], &l, &err);
     if (st == RT_OK) {
-        rt_score_params params;
-        rt_score_params_default(&params);
         if (c.min_rem >= 0)
-            params.min_scorable_min = c.min_rem;
-        st = rt_night_score(l.rec, &l.roles, l.tl, &params, &l.cutoffs, &night, &err);
+            c.params.min_scorable_min = c.min_rem;
+        st = rt_night_score(l.rec, &l.roles, l.tl, &c.params, &l.cutoffs, &night, &err);
     }
     if (st == RT_OK && !c.quiet && !(c.json && strcmp(c.json, "-") == 0))
         st = rt_night_write_text(night, stdout, &err);

@@ -5,6 +5,7 @@
 #ifndef REMTONE_REPORT_H
 #define REMTONE_REPORT_H
 
+#include <stdbool.h>
 #include <stddef.h>
 #include <stdio.h>
 
@@ -44,6 +45,30 @@ rt_status rt_scan_write_json(const rt_recording *rec, const rt_role_map *roles, 
                              rt_error *err);
 rt_status rt_scan_write_text(const rt_recording *rec, const rt_role_map *roles, FILE *out,
                              rt_error *err);
+
+/* The review page and its companions (docs/review-report.md). */
+typedef struct rt_report_options {
+    bool show_identity;        /* print patient name, birth date and free-text identity from the
+                                  EDF header; false by default (privacy) */
+    const char *recording_id;  /* shown instead of identity; NULL = the recording's file name */
+} rt_report_options;
+
+/* One self-contained HTML page (inline SVG and CSS, no scripts) for a
+ * physician: identity (de-identified unless asked), REM minutes, headline,
+ * review level and reasons, plots, ranked evidence epochs with clock times,
+ * exclusions and quality, cautions. rec is read again for the envelopes of
+ * the evidence epochs. */
+rt_status rt_night_write_html(const rt_night *night, rt_recording *rec, const rt_timeline *tl,
+                              const rt_report_options *options, const char *path, rt_error *err);
+
+/* The audit table: one CSV row per REM 3-s mini-epoch and channel. */
+rt_status rt_night_write_minis_csv(const rt_night *night, const rt_recording *rec,
+                                   const char *path, rt_error *err);
+
+/* The detected activity and the evidence epochs as an EDF+ annotation file
+ * (EDFlib's writer), timed against the recording. */
+rt_status rt_night_write_annotations(const rt_night *night, const rt_recording *rec,
+                                     const char *path, rt_error *err);
 
 /* The rule table with the cutoffs in force. */
 rt_status rt_rules_write_text(const rt_cutoffs *cutoffs, FILE *out, rt_error *err);

@@ -98,6 +98,16 @@ typedef struct rt_score_params {
     double min_rate_hz;          /* below this a channel is scored with a warning, default 200 */
     double min_scorable_min;     /* less scorable REM is not assessable, default 5 */
     double near_fraction;        /* "near the cutoff" from this share of it, default 0.8 */
+    /* Event-aware scoring (docs/exclusions.md): mini-epochs overlapping these
+     * events, widened by event_margin_s on each side, leave numerator and
+     * denominator. */
+    bool exclude_artifacts;      /* `artifact` events, default true */
+    bool exclude_snoring;        /* `snore` events, default true */
+    bool exclude_respiratory;    /* apneas, hypopneas, `resp-arousal` events and `arousal`
+                                    events starting within resp_arousal_gap_s of the end of
+                                    an apnea or hypopnea; default true */
+    double event_margin_s;       /* default 0 */
+    double resp_arousal_gap_s;   /* default 5 (common practice) */
 } rt_score_params;
 
 void rt_score_params_default(rt_score_params *params);
@@ -187,6 +197,38 @@ typedef struct rt_channel_result {
     double rem_median_uv;      /* median rectified envelope over REM */
 } rt_channel_result;
 
+/* Agreement between a manual RSWA scoring and remtone's labels, per role and
+ * activity type, on the 3-s mini-epochs both scored (docs/agreement.md). */
+enum { RT_AGREE_PHASIC = 0, RT_AGREE_TONIC, RT_AGREE_ANY, RT_AGREE_TYPES };
+
+typedef struct rt_agreement_cell {
+    size_t n;              /* mini-epochs compared */
+    size_t both;           /* marked by both */
+    size_t manual_only;
+    size_t auto_only;
+    size_t neither;
+    double percent;        /* observed agreement, % (NaN when n = 0) */
+    double kappa;          /* Cohen's kappa (NaN when undefined) */
+    double manual_pct;     /* % of compared minis the scorer marked */
+    double auto_pct;       /* % remtone marked; auto_pct - manual_pct is the index difference */
+} rt_agreement_cell;
+
+typedef struct rt_agreement {
+    bool present;          /* the scoring file held a manual scoring */
+    char scorer[128];
+    rt_agreement_cell cell[RT_ROLE_COUNT][RT_AGREE_TYPES];
+} rt_agreement;
+
+typedef struct rt_exclusion_summary {
+    double minutes[RT_EVENT_TYPE_COUNT]; /* REM minutes left out, by the event that caused it
+                                            (a mini-epoch counts once, for its first cause) */
+    double total_minutes;                /* REM minutes left out by any event */
+    double outside_lights_minutes;       /* REM minutes outside lights-off .. lights-on */
+    bool have_respiratory;               /* respiratory events were given */
+    double rem_ahi;                      /* apneas + hypopneas per hour of REM; NaN if none given */
+    double rem_leg_movements_per_h;      /* limb-movement events in REM per hour; NaN if none */
+} rt_exclusion_summary;
+
 typedef struct rt_night {
     char recording_path[4096];
     double recording_s;
@@ -209,6 +251,8 @@ typedef struct rt_night {
     size_t n_minis3;  rt_mini *minis3;          /* 3-s REM mini-epochs */
     size_t n_minis2;  rt_mini *minis2;          /* 2-s REM mini-epochs (Montreal) */
     size_t n_bursts;  rt_burst *bursts;         /* AASM/SINBAR/Montreal bursts in REM */
+    rt_exclusion_summary exclusions;
+    rt_agreement agreement;
 } rt_night;
 
 /* Scores one night. cutoffs may be NULL (published); params may be NULL

@@ -48,7 +48,18 @@ typedef struct rt_event {
     double onset_s;      /* seconds from the recording start, >= 0 */
     double duration_s;   /* seconds, >= 0 */
     rt_event_type type;
+    signed char role;    /* rt_role of the one channel the event concerns (roles.h),
+                            -1 = the whole recording (the default) */
 } rt_event;
+
+/* One mini-epoch of a manual RSWA scoring (from an XML scoring file), used
+ * to measure agreement between a scorer and remtone. */
+typedef struct rt_manual_mini {
+    double onset_s;          /* onset of the 3-s mini-epoch, on the epoch's 3-s grid */
+    signed char role;        /* rt_role scored (roles.h) */
+    unsigned char phasic;    /* 1 when the scorer marked phasic activity */
+    unsigned char tonic;     /* 1 when the scorer marked tonic activity */
+} rt_manual_mini;
 
 typedef struct rt_timeline {
     double epoch_s;          /* epoch length in seconds (30 unless a scoring file says otherwise) */
@@ -58,6 +69,10 @@ typedef struct rt_timeline {
     rt_event *events;        /* ordered by onset */
     double lights_off_s;     /* analysis starts here; 0 when not given */
     double lights_on_s;      /* analysis ends here; negative when not given */
+    size_t n_manual;         /* manual RSWA scoring, when the scoring file holds one */
+    rt_manual_mini *manual;  /* ordered by onset, then role */
+    char scorer[128];        /* who scored the night ("" when unknown) */
+    char scored_on[32];      /* when, as written in the scoring file */
     /* Bookkeeping of rt_timeline_add_stage_run (not for callers): start and
      * end in seconds of the latest stage run added, and its line (0 = none),
      * so that an out-of-order or overlapping entry can name both places. */

@@ -21,6 +21,11 @@ void rt_score_params_default(rt_score_params *p)
     p->min_rate_hz = 200.0;        /* AASM minimum EMG sampling rate [from memory] */
     p->min_scorable_min = 5.0;     /* common practice */
     p->near_fraction = 0.8;
+    p->exclude_artifacts = true;
+    p->exclude_snoring = true;
+    p->exclude_respiratory = true;
+    p->event_margin_s = 0.0;
+    p->resp_arousal_gap_s = 5.0;  /* common practice */
 }
 
 static int in_range(double v, double lo, double hi) { return isfinite(v) && v >= lo && v <= hi; }
@@ -42,6 +47,8 @@ rt_status rt_score_params_check(const rt_score_params *p, rt_error *err)
         {"min_rate_hz", p->min_rate_hz, 0.0, 100000.0},
         {"min_scorable_min", p->min_scorable_min, 0.0, 600.0},
         {"near_fraction", p->near_fraction, 0.0, 1.0},
+        {"event_margin_s", p->event_margin_s, 0.0, 60.0},
+        {"resp_arousal_gap_s", p->resp_arousal_gap_s, 0.0, 60.0},
     };
     for (size_t i = 0; i < sizeof checks / sizeof checks[0]; i++)
         if (!in_range(checks[i].v, checks[i].lo, checks[i].hi))

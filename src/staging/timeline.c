@@ -39,6 +39,7 @@ void rt_timeline_free(rt_timeline *tl)
         return;
     free(tl->stages);
     free(tl->events);
+    free(tl->manual);
     free(tl);
 }
 
@@ -172,7 +173,7 @@ rt_status rt_timeline_add_event(rt_timeline *tl, double onset_s, double duration
     tl->events = grown;
     size_t slot = event_slot(tl, onset_s);
     memmove(tl->events + slot + 1, tl->events + slot, (tl->n_events - slot) * sizeof *grown);
-    tl->events[slot] = (rt_event){onset_s, duration_s, type};
+    tl->events[slot] = (rt_event){onset_s, duration_s, type, -1};
     tl->n_events++;
     return RT_OK;
 }
