@@ -42,13 +42,14 @@ typedef enum rt_index_id {
     RT_IX_MONTREAL_TONIC_CHIN,  /* montreal.tonic_chin */
     RT_IX_MONTREAL_PHASIC_CHIN, /* montreal.phasic_chin */
     RT_IX_RAI,                  /* rai */
+    RT_IX_MONTREAL_LM_PER_H,    /* montreal.rem_leg_movements_per_h */
     RT_IX_COUNT
 } rt_index_id;
 
 typedef struct rt_index_rule {
     const char *id;          /* stable id, part of the JSON contract */
     const char *title;       /* one line in plain words */
-    const char *unit;        /* "%" or "ratio" */
+    const char *unit;        /* "%", "ratio" or "/h" */
     bool lower_is_worse;     /* true for the REM Atonia Index */
     bool has_cutoff;         /* a published cutoff exists */
     double cutoff;           /* abnormal at or above (or, lower_is_worse, below) */

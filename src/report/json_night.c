@@ -108,7 +108,7 @@ static json_t *evidence_json(const rt_night *night, size_t limit)
 
 static json_t *params_json(const rt_score_params *p)
 {
-    return json_pack("{s:f,s:f,s:i,s:f,s:f,s:f,s:f,s:f,s:f,s:f,s:f,s:f,s:f,s:f}",
+    return json_pack("{s:f,s:f,s:i,s:f,s:f,s:f,s:f,s:f,s:f,s:f,s:f,s:f,s:f,s:f,s:b,s:b,s:b,s:f,s:f}",
                      "band_low_hz", p->band_low_hz, "band_high_hz", p->band_high_hz,
                      "band_order", p->band_order, "envelope_window_s", p->envelope_window_s,
                      "burst_merge_gap_s", p->burst_merge_gap_s,
@@ -117,7 +117,11 @@ static json_t *params_json(const rt_score_params *p)
                      "background_quantile", p->background_quantile,
                      "aasm_nrem_quantile", p->aasm_nrem_quantile, "tonic_abs_uv", p->tonic_abs_uv,
                      "montreal_epoch_s", p->montreal_epoch_s, "min_rate_hz", p->min_rate_hz,
-                     "min_scorable_min", p->min_scorable_min, "near_fraction", p->near_fraction);
+                     "min_scorable_min", p->min_scorable_min, "near_fraction", p->near_fraction,
+                     "exclude_artifacts", p->exclude_artifacts, "exclude_snoring",
+                     p->exclude_snoring, "exclude_respiratory", p->exclude_respiratory,
+                     "event_margin_s", p->event_margin_s, "resp_arousal_gap_s",
+                     p->resp_arousal_gap_s);
 }
 
 static rt_status input_json(json_t *inputs, const char *role, const char *path, rt_error *err)
@@ -166,6 +170,29 @@ static rt_status provenance_json(const rt_night *night, const rt_run_inputs *in,
     return RT_OK;
 }
 
+static json_t *exclusions_json(const rt_night *night)
+{
+    const rt_exclusion_summary *x = &night->exclusions;
+    const rt_score_params *p = &night->params;
+    json_t *by = json_object();
+    for (int t = 0; t < RT_EVENT_TYPE_COUNT; t++)
+        if (x->minutes[t] > 0)
+            json_object_set_new(by, rt_event_type_name((rt_event_type)t),
+                                json_real(rounded(x->minutes[t], 2)));
+    if (x->outside_lights_minutes > 0)
+        json_object_set_new(by, "outside-lights", json_real(rounded(x->outside_lights_minutes, 2)));
+    json_t *o = json_object();
+    json_object_set_new(o, "minutes", json_real(rounded(x->total_minutes, 2)));
+    json_object_set_new(o, "minutes_by_reason", by);
+    json_object_set_new(o, "rem_ahi_per_h", number(rounded(x->rem_ahi, 2)));
+    json_object_set_new(o, "policy", json_pack("{s:b,s:b,s:b,s:f,s:f}", "artifacts",
+                                               p->exclude_artifacts, "snoring", p->exclude_snoring,
+                                               "respiratory", p->exclude_respiratory, "margin_s",
+                                               p->event_margin_s, "resp_arousal_gap_s",
+                                               p->resp_arousal_gap_s));
+    return o;
+}
+
 static json_t *cautions_json(void)
 {
     json_t *a = json_array();
@@ -201,6 +228,7 @@ rt_status rt_night_write_json(const rt_night *night, const rt_run_inputs *inputs
     json_object_set_new(rev, "level", json_string(rt_review_level_name(night->level)));
     json_object_set_new(rev, "reasons", strings_json(night->reasons, night->n_reasons));
     json_object_set_new(root, "review", rev);
+    json_object_set_new(root, "exclusions", exclusions_json(night));
     json_object_set_new(root, "evidence", evidence_json(night, 10));
     json_object_set_new(root, "warnings", strings_json(night->warnings, night->n_warnings));
     json_object_set_new(root, "cautions", cautions_json());

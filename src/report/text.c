@@ -13,6 +13,8 @@ static void value_text(const rt_index_rule *rule, double v, char *buf, size_t ca
         snprintf(buf, cap, "-");
     else if (strcmp(rule->unit, "%") == 0)
         snprintf(buf, cap, "%.1f %%", v);
+    else if (strcmp(rule->unit, "/h") == 0)
+        snprintf(buf, cap, "%.1f/h", v);
     else
         snprintf(buf, cap, "%.3f", v);
 }
@@ -55,7 +57,23 @@ rt_status rt_night_write_text(const rt_night *night, FILE *out, rt_error *err)
             fprintf(out, " (%s)", night->index[i].reason);
         fprintf(out, "\n");
     }
-    fprintf(out, "Cutoffs: %s\n\n", night->cutoffs.origin);
+    fprintf(out, "Cutoffs: %s\n", night->cutoffs.origin);
+    const rt_exclusion_summary *x = &night->exclusions;
+    if (x->total_minutes > 0) {
+        fprintf(out, "Left out of REM: %.1f min (", x->total_minutes);
+        const char *sep = "";
+        for (int t = 0; t < RT_EVENT_TYPE_COUNT; t++)
+            if (x->minutes[t] > 0) {
+                fprintf(out, "%s%s %.1f", sep, rt_event_type_name((rt_event_type)t), x->minutes[t]);
+                sep = ", ";
+            }
+        if (x->outside_lights_minutes > 0)
+            fprintf(out, "%soutside lights %.1f", sep, x->outside_lights_minutes);
+        fprintf(out, ")\n");
+    }
+    if (x->have_respiratory)
+        fprintf(out, "REM apnea-hypopnea index: %.1f/h\n", x->rem_ahi);
+    fprintf(out, "\n");
     fprintf(out, "%s\n", level_words(night->level));
     for (size_t i = 0; i < night->n_reasons; i++)
         fprintf(out, "  - %s\n", night->reasons[i]);

@@ -75,7 +75,8 @@ static void aggregate_epochs(rt_night *night, bool arms)
             er->sinbar_any_minis += has(&m[k], RT_ROLE_CHIN, RT_LABEL_SINBAR_ANY) ||
                                     (arms && arm_phasic(&m[k]));
         }
-        er->excluded = scorable == 0;
+        /* an epoch touching an excluding event leaves the epoch-level counts */
+        er->excluded = scorable < MINI3_PER_EPOCH;
         /* evidence ranking: active minis first, tonic epochs weigh as a full epoch */
         er->activity = er->sinbar_any_minis + (er->sinbar_tonic ? 10.0 : 0.0) +
                        0.5 * er->aasm_any_minis;
@@ -162,6 +163,35 @@ static void compute_epoch_indices(rt_night *night, bool arms)
     set_value(&night->index[RT_IX_SINBAR_COMBINED_30S], combined, scorable, 100.0);
 }
 
+/* REM minutes left out, each mini-epoch counted once for its first cause. */
+static void summarise_exclusions(rt_night *night)
+{
+    rt_exclusion_summary *x = &night->exclusions;
+    for (size_t i = 0; i < night->n_minis3; i++) {
+        unsigned bits = night->minis3[i].excluded_by;
+        if (!bits)
+            continue;
+        x->total_minutes += 3.0 / 60.0;
+        if (bits & (1u << 15)) {
+            x->outside_lights_minutes += 3.0 / 60.0;
+            continue;
+        }
+        for (int t = 0; t < RT_EVENT_TYPE_COUNT; t++)
+            if (bits & (1u << t)) {
+                x->minutes[t] += 3.0 / 60.0;
+                break;
+            }
+    }
+    rt_index_value *lm = &night->index[RT_IX_MONTREAL_LM_PER_H];
+    lm->value = x->rem_leg_movements_per_h;
+    lm->status = isnan(lm->value) ? RT_STATUS_NOT_COMPUTED : RT_STATUS_NO_CUTOFF;
+    if (isnan(lm->value))
+        rt_copy_string(lm->reason, sizeof lm->reason, "no limb-movement events were given");
+    if (x->have_respiratory && x->rem_ahi >= 15.0)
+        rt_night_warn(night, "REM apnea-hypopnea index %.1f/h is 15/h or more: RSWA indices are "
+                             "less reliable (Cesari et al. 2023, Sleep)", x->rem_ahi);
+}
+
 static void apply_missing(rt_night *night, bool arms)
 {
     if (!night->channel[RT_ROLE_CHIN].present) {
@@ -245,6 +275,8 @@ static void value_text(const rt_night *night, int i, double value, char *buf, si
 {
     if (strcmp(rt_index_rules()[i].unit, "%") == 0)
         snprintf(buf, cap, "%.1f %%", value);
+    else if (strcmp(rt_index_rules()[i].unit, "/h") == 0)
+        snprintf(buf, cap, "%.1f/h", value);
     else
         snprintf(buf, cap, "%.3f", value);
     (void)night;
@@ -308,6 +340,7 @@ rt_status rt_night_summarise(rt_night *night, const scoring_state *ss, rt_error 
     compute_epoch_indices(night, arms);
     set_value(&night->index[RT_IX_MONTREAL_TONIC_CHIN], ss->montreal_tonic, ss->montreal_windows,
               100.0);
+    summarise_exclusions(night);
     rt_index_value *rai = &night->index[RT_IX_RAI];
     rai->numerator = ss->rai.at_most_1;
     rai->denominator = ss->rai.total;

@@ -7,6 +7,7 @@
 
 #include "bandpass.h"
 #include "detect.h"
+#include "exclusions.h"
 #include "internal.h"
 #include "night_internal.h"
 #include "rai.h"
@@ -267,7 +268,10 @@ static void label_tonic(rt_night *night, scoring_state *ss, workspace *w, size_t
     }
     /* Montreal tonic: 20-s windows tiled from the bout start; the remainder is dropped */
     size_t win = (size_t)llround(p->montreal_epoch_s);
+    size_t base = bout->epoch_first * 30;
     for (size_t s0 = 0; s0 + win <= seconds; s0 += win) {
+        if (rt_exclusions_of(ss->masks, RT_ROLE_CHIN, base + s0, win))
+            continue; /* a window touching an excluding event leaves the count */
         size_t a = w->starts[s0], b = w->starts[s0 + win];
         size_t tonic = rt_count_tonic(w->x, a, b, w->background, w->starts, seconds, 2.0,
                                       p->tonic_abs_uv);
@@ -276,10 +280,16 @@ static void label_tonic(rt_night *night, scoring_state *ss, workspace *w, size_t
     }
 }
 
-static void count_rai(scoring_state *ss, workspace *w, size_t seconds)
+static void count_rai(scoring_state *ss, workspace *w, size_t seconds, const bout_span *bout)
 {
+    /* the floor is taken over every second of the bout; excluded seconds are
+     * then left out of the counts (as for the mini-epoch indices) */
     rt_rai_remove_floor(w->sec_mean, seconds, 60, w->floored);
-    rt_rai_count(w->floored, seconds, NULL, &ss->rai);
+    bool *skip = (bool *)w->scratch; /* free again after the envelope passes */
+    size_t base = bout->epoch_first * 30;
+    for (size_t j = 0; j < seconds; j++)
+        skip[j] = rt_exclusions_of(ss->masks, RT_ROLE_CHIN, base + j, 1) != 0;
+    rt_rai_count(w->floored, seconds, skip, &ss->rai);
 }
 
 static rt_status score_role_bout(rt_recording *rec, rt_night *night, scoring_state *ss,
@@ -314,7 +324,7 @@ static rt_status score_role_bout(rt_recording *rec, rt_night *night, scoring_sta
         return st;
     label_tonic(night, ss, w, seconds, role, bout, w->scratch);
     if (role == RT_ROLE_CHIN)
-        count_rai(ss, w, seconds);
+        count_rai(ss, w, seconds, bout);
     return RT_OK;
 }
 
@@ -374,6 +384,28 @@ static rt_status lay_out_rem(rt_night *night, const rt_timeline *tl, bout_span *
     }
     *bouts_out = b;
     return RT_OK;
+}
+
+/* Every mini-epoch whose seconds an excluding event touches is left out, for
+ * the channels the event concerns. */
+static void mark_exclusions(rt_night *night, const rt_exclusion_masks *m)
+{
+    struct grid { rt_mini *minis; size_t n; size_t len_s; } grids[2] = {
+        {night->minis3, night->n_minis3, 3}, {night->minis2, night->n_minis2, 2}};
+    for (int g = 0; g < 2; g++) {
+        for (size_t i = 0; i < grids[g].n; i++) {
+            rt_mini *mi = &grids[g].minis[i];
+            size_t first = i * grids[g].len_s; /* minis are contiguous REM seconds */
+            for (int r = 0; r < RT_ROLE_COUNT; r++) {
+                unsigned bits = rt_exclusions_of(m, (rt_role)r, first, grids[g].len_s);
+                if (!bits)
+                    continue;
+                mi->labels[r] |= RT_LABEL_EXCLUDED;
+                if (r == RT_ROLE_CHIN)
+                    mi->excluded_by |= bits;
+            }
+        }
+    }
 }
 
 static void mark_absent(rt_night *night, rt_role role)
@@ -452,9 +484,19 @@ rt_status rt_night_score(rt_recording *rec, const rt_role_map *roles, const rt_t
     rt_bandpass *bp[RT_ROLE_COUNT] = {0};
     bout_span *bouts = NULL;
 
+    rt_exclusion_masks masks;
+    memset(&masks, 0, sizeof masks);
     st = lay_out_rem(night, tl, &bouts, err);
     if (st == RT_OK)
+        st = rt_exclusions_build(tl, &night->params, bouts, night->n_bouts, night->rem_epochs,
+                                 &masks, err);
+    if (st == RT_OK) {
+        mark_exclusions(night, &masks);
+        rt_exclusions_rates(tl, bouts, night->n_bouts, (double)night->rem_epochs * tl->epoch_s / 3600.0,
+                            &night->exclusions);
+        ss.masks = &masks;
         st = open_filters(night, roles, bp, err);
+    }
     for (int r = 0; r < RT_ROLE_COUNT; r++)
         if (is_emg((rt_role)r) && !night->channel[r].present)
             mark_absent(night, (rt_role)r);
@@ -469,6 +511,7 @@ rt_status rt_night_score(rt_recording *rec, const rt_role_map *roles, const rt_t
                                      &bouts[b], err);
     for (int r = 0; r < RT_ROLE_COUNT; r++)
         rt_bandpass_free(bp[r]);
+    rt_exclusions_free(&masks);
     workspace_free(&w);
     free(bouts);
     if (st == RT_OK)

@@ -18,7 +18,10 @@ typedef struct bout_span {
 } bout_span;
 
 /* Counts gathered while scanning the bouts that the labels alone do not hold. */
+struct rt_exclusion_masks;
+
 typedef struct scoring_state {
+    const struct rt_exclusion_masks *masks; /* REM seconds left out, and why */
     size_t montreal_windows;
     size_t montreal_tonic;
     rt_rai_counts rai;

@@ -55,6 +55,9 @@ static const rt_index_rule RULES[RT_IX_COUNT] = {
         SRC_MONTREAL, false, NONE, NULL},
     [RT_IX_RAI] = {"rai", "REM Atonia Index (1 = full atonia)", "ratio", true, true, 0.8, 0.9,
         SRC_RAI, false, 0.85, SRC_NORMS},
+    [RT_IX_MONTREAL_LM_PER_H] = {"montreal.rem_leg_movements_per_h",
+        "leg movements in REM per hour (from limb-movement events)", "/h", false, true, 24.0,
+        NONE, SRC_MONTREAL, false, NONE, NULL},
 };
 
 const rt_index_rule *rt_index_rules(void) { return RULES; }

@@ -48,11 +48,15 @@ assert d["schema"]=="remtone-night/1"
 for k in ("epochs","minutes","scorable_minutes"): assert k in d["rem"]
 ids=["aasm.tonic_chin_epochs","aasm.phasic_chin_epochs","aasm.phasic_any_epochs","aasm.rswa_epochs",
  "sinbar.chin_any_3s","sinbar.chin_phasic_3s","sinbar.chin_tonic_30s","sinbar.fds_phasic_3s",
- "sinbar.chin_any_fds_phasic_3s","sinbar.chin_any_fds_phasic_30s","montreal.tonic_chin","montreal.phasic_chin","rai"]
+ "sinbar.chin_any_fds_phasic_3s","sinbar.chin_any_fds_phasic_30s","montreal.tonic_chin","montreal.phasic_chin","rai",
+ "montreal.rem_leg_movements_per_h"]
 assert sorted(d["indices"])==sorted(ids)
 for i in ids:
   x=d["indices"][i]; assert x["status"] in ("above","below","intermediate","no-cutoff","not-computed")
-  assert x["unit"] in ("%","ratio") and x["source"]
+  assert x["unit"] in ("%","ratio","/h") and x["source"]
+# Montplaisir 2010: 24 leg movements per hour of REM; no limb-movement events here: not computed
+assert d["indices"]["montreal.rem_leg_movements_per_h"]["cutoff"]==24 and d["indices"]["montreal.rem_leg_movements_per_h"]["status"]=="not-computed"
+assert d["exclusions"]["minutes"]==0 and d["exclusions"]["policy"]["respiratory"] is True
 # Frauscher 2012: SINBAR combined cutoff 31.9 %; Ferri 2010: RAI 0.8
 assert d["indices"]["sinbar.chin_any_fds_phasic_3s"]["cutoff"]==31.9 and d["indices"]["rai"]["cutoff"]==0.8
 assert d["review"]["flagged"] is True and d["review"]["level"]=="review" and d["review"]["reasons"]
@@ -60,6 +64,17 @@ assert len(d["cautions"])>=9 and d["provenance"]["version"] and len(d["provenanc
 check score-json-stdout 0 "$bin" score "$work/n/night.edf" --stages "$work/n/stages.csv" --json -
 cp "$work/out" "$work/stdout.json"
 check score-json-stdout-is-json 0 "$py" -c 'import json,sys; json.load(open(sys.argv[1]))' "$work/stdout.json"
+
+# event-aware scoring: an apnea night's respiratory events and their arousals leave the count
+# (policy: docs/exclusions.md); --keep-respiratory turns that off
+check synth-apnea 0 "$bin" synth --profile apnea --hours 1 --seed 5 --out "$work/a"
+check score-events 0 "$bin" score "$work/a/night.edf" --stages "$work/a/stages.csv" --events "$work/a/events.csv" --json "$work/ae.json"
+check score-events-keep 0 "$bin" score "$work/a/night.edf" --stages "$work/a/stages.csv" --events "$work/a/events.csv" --keep-respiratory --json "$work/ak.json"
+check events-excluded 0 "$py" -c '
+import json,sys; e=json.load(open(sys.argv[1])); k=json.load(open(sys.argv[2]))
+x=e["exclusions"]; assert x["minutes"]>0 and x["rem_ahi_per_h"]>0, x
+assert set(x["minutes_by_reason"]) <= {"apnea","hypopnea","resp-arousal"}
+assert k["exclusions"]["minutes"]==0 and k["rem"]["scorable_minutes"]>e["rem"]["scorable_minutes"]' "$work/ae.json" "$work/ak.json"
 
 # a lab's cutoff file replaces the published one and the result says so
 printf 'index,cutoff\nsinbar.chin_any_3s,99\n' > "$work/cut.csv"
