@@ -264,6 +264,16 @@ rt_status rt_night_score(rt_recording *rec, const rt_role_map *roles, const rt_t
                          rt_night **out, rt_error *err);
 void rt_night_free(rt_night *night);
 
+/* Fills night->agreement from the manual RSWA scoring in tl (tl->manual; may
+ * be absent, then agreement.present is false and every cell has n = 0).
+ * Each manual 3-s mini-epoch is matched to the REM mini-epoch of
+ * night->minis3 with the same onset (within 1 ms) and compared on its role:
+ * phasic with RT_LABEL_SINBAR_PHASIC, tonic with RT_LABEL_SINBAR_TONIC,
+ * phasic-or-tonic with RT_LABEL_SINBAR_ANY. Minis remtone left out
+ * (RT_LABEL_EXCLUDED, RT_LABEL_ABSENT), manual minis outside scored REM and
+ * the ECG role are skipped. Definitions in docs/agreement.md. */
+void rt_night_agreement(rt_night *night, const rt_timeline *tl);
+
 #ifdef __cplusplus
 }
 #endif

@@ -150,12 +150,34 @@ rt_status rt_timeline_add_event(rt_timeline *tl, double onset_s, double duration
                                 rt_event_type type, const char *source, long line,
                                 rt_error *err);
 
+/* As rt_timeline_add_event, for an event that concerns one channel: role is
+ * an rt_role (roles.h, 0 .. RT_ROLE_COUNT-1) or -1 for the whole recording.
+ * Any other role is RT_ERR_STAGING. */
+rt_status rt_timeline_add_event_role(rt_timeline *tl, double onset_s, double duration_s,
+                                     rt_event_type type, int role, const char *source,
+                                     long line, rt_error *err);
+
+/* Length of a manual RSWA mini-epoch, seconds (the SINBAR 3-s mini-epoch). */
+#define RT_MANUAL_MINI_S 3.0
+
+/* Adds one mini-epoch of manual RSWA scoring, keeping tl->manual ordered by
+ * onset, then role. onset_s must lie on the 3-s grid of its epoch (within
+ * 1e-6 s; epoch i's minis start at i*epoch_s + 3k with 3k + 3 <= epoch_s);
+ * role is 0 .. RT_ROLE_COUNT-1; the same onset and role twice is an error.
+ * source and line as for rt_timeline_add_stage_run. RT_ERR_STAGING or
+ * RT_ERR_NOMEM on failure, leaving tl unchanged. */
+rt_status rt_timeline_add_manual(rt_timeline *tl, double onset_s, int role, bool phasic,
+                                 bool tonic, const char *source, long line, rt_error *err);
+
 /* Moves src's stages and events into tl, all or nothing, leaving src empty
  * (still to be freed by its owner). Events are merged in onset order. src's
  * stages are taken only when tl holds none (a timeline takes its stages from
- * one source) and both use the same epoch length; lights_off_s/lights_on_s are
- * taken when src gives them. The loaders build into a scratch timeline and
- * merge on success, so a failed load leaves tl unchanged. */
+ * one source); a tl without stages or manual scoring takes src's epoch
+ * length, otherwise the two must agree; lights_off_s/lights_on_s, scorer
+ * and scored_on are taken when src gives them; src's manual scoring is taken
+ * when tl holds none (two manual scorings are an error). The loaders build
+ * into a scratch timeline and merge on success, so a failed load leaves tl
+ * unchanged. */
 rt_status rt_timeline_merge(rt_timeline *tl, rt_timeline *src, rt_error *err);
 
 /* Loads stages from a stage table CSV (comma or tab). Errors name the file and
@@ -192,12 +214,36 @@ rt_status rt_timeline_load_annotations(rt_timeline *tl, const rt_recording *rec,
 
 /* Loads stages (and events, when the file holds them) from `path`, telling the
  * format by content: an EDF/BDF header ("0       " or "\xffBIOSEMI" in the
- * first 8 bytes: its annotations are read), an XML document (first
- * character '<' after an optional BOM and white space: RT_ERR_STAGING "XML
- * scoring files are not supported yet" until the XML module exists), or
- * else a stage table CSV. */
+ * first 8 bytes: its annotations are read), a remtone XML scoring file (first
+ * character '<' after an optional BOM and white space: rt_timeline_load_xml),
+ * or else a stage table CSV. */
 rt_status rt_timeline_load_staging(rt_timeline *tl, const char *path, const rt_labelmap *map,
                                    rt_error *err);
+
+/* Loads a remtone XML scoring file (docs/scoring-file.md; schema
+ * docs/remtone-scoring.xsd, compiled into the library): stages, events with
+ * their channel, lights, scorer and date, and the manual RSWA scoring. The
+ * file (at most 64 MiB) is read whole, parsed without network access, and
+ * refused outright when it has a document type declaration (so no entity is
+ * ever expanded and no external file is read); it is then validated against
+ * the schema. Errors are RT_ERR_IO (cannot read) or RT_ERR_STAGING naming the
+ * file, the line and the reason. Stages go through rt_timeline_add_stage_run,
+ * events through rt_timeline_add_event_role, into a scratch timeline merged
+ * on success: tl is unchanged on failure and must hold no stages yet.
+ * Thread-safe: all libxml2 state is per call. */
+rt_status rt_timeline_load_xml(rt_timeline *tl, const char *path, rt_error *err);
+
+/* As rt_timeline_load_xml on len bytes in memory; name is used in messages. */
+rt_status rt_timeline_load_xml_memory(rt_timeline *tl, const char *data, size_t len,
+                                      const char *name, rt_error *err);
+
+/* Writes tl as a remtone XML scoring file at path (atomically: a temporary
+ * file renamed into place). Stages become runs, events keep their channel,
+ * and lights, scorer, date and manual scoring are written when present.
+ * Numbers are written as the shortest plain decimal that reads back as the
+ * same double, so the file loads back to an equal timeline. RT_ERR_USAGE
+ * when tl has no staged epoch; RT_ERR_IO when the file cannot be written. */
+rt_status rt_timeline_write_xml(const rt_timeline *tl, const char *path, rt_error *err);
 
 /* Checks the timeline against a recording of recording_s seconds (> 0):
  * staging must not run past the end (the message says by how many seconds and

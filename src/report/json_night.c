@@ -9,6 +9,7 @@
 #include "digest.h"
 #include "internal.h"
 #include "output.h"
+#include "report_internal.h"
 #include "remtone/report.h"
 #include "remtone/version.h"
 
@@ -229,6 +230,7 @@ rt_status rt_night_write_json(const rt_night *night, const rt_run_inputs *inputs
     json_object_set_new(rev, "reasons", strings_json(night->reasons, night->n_reasons));
     json_object_set_new(root, "review", rev);
     json_object_set_new(root, "exclusions", exclusions_json(night));
+    json_object_set_new(root, "agreement", rt_agreement_json(&night->agreement));
     json_object_set_new(root, "evidence", evidence_json(night, 10));
     json_object_set_new(root, "warnings", strings_json(night->warnings, night->n_warnings));
     json_object_set_new(root, "cautions", cautions_json());

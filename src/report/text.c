@@ -5,6 +5,7 @@
 
 #include "internal.h"
 #include "output.h"
+#include "report_internal.h"
 #include "remtone/report.h"
 
 static void value_text(const rt_index_rule *rule, double v, char *buf, size_t cap)
@@ -77,6 +78,10 @@ rt_status rt_night_write_text(const rt_night *night, FILE *out, rt_error *err)
     fprintf(out, "%s\n", level_words(night->level));
     for (size_t i = 0; i < night->n_reasons; i++)
         fprintf(out, "  - %s\n", night->reasons[i]);
+    if (night->agreement.present) {
+        fprintf(out, "\n");
+        rt_agreement_write_text(&night->agreement, out);
+    }
     if (night->n_warnings) {
         fprintf(out, "\nWarnings:\n");
         for (size_t i = 0; i < night->n_warnings; i++)

@@ -516,6 +516,8 @@ rt_status rt_night_score(rt_recording *rec, const rt_role_map *roles, const rt_t
     free(bouts);
     if (st == RT_OK)
         st = rt_night_summarise(night, &ss, err);
+    if (st == RT_OK)
+        rt_night_agreement(night, tl);
     if (st != RT_OK) {
         rt_night_free(night);
         return st;

@@ -183,10 +183,17 @@ rt_status rt_timeline_merge(rt_timeline *tl, rt_timeline *src, rt_error *err)
     if (!tl || !src)
         return rt_fail(err, RT_ERR_USAGE, "rt_timeline_merge: NULL timeline");
     bool take_stages = has_stage_runs(src);
+    bool take_manual = src->n_manual > 0;
     if (take_stages && has_stage_runs(tl))
         return rt_fail(err, RT_ERR_STAGING,
                        "stages are already loaded: a timeline takes its stages from one source");
-    if (take_stages && tl->epoch_s != src->epoch_s)
+    if (take_manual && tl->n_manual > 0)
+        return rt_fail(err, RT_ERR_STAGING,
+                       "a manual RSWA scoring is already loaded: a timeline holds one");
+    /* The epoch length belongs to whoever brings the grid (stages or manual
+     * minis, both laid on it); a timeline with neither takes src's. */
+    bool tl_has_grid = has_stage_runs(tl) || tl->n_manual > 0;
+    if ((take_stages || take_manual) && tl_has_grid && tl->epoch_s != src->epoch_s)
         return rt_fail(err, RT_ERR_STAGING, "epoch lengths differ (%g s and %g s)", tl->epoch_s,
                        src->epoch_s);
     if (src->n_events > 0) {
@@ -212,6 +219,19 @@ rt_status rt_timeline_merge(rt_timeline *tl, rt_timeline *src, rt_error *err)
         src->events = NULL;
         src->n_events = 0;
     }
+    if ((take_stages || take_manual) && !tl_has_grid)
+        tl->epoch_s = src->epoch_s;
+    if (take_manual) {
+        free(tl->manual);
+        tl->manual = src->manual;
+        tl->n_manual = src->n_manual;
+        src->manual = NULL;
+        src->n_manual = 0;
+    }
+    if (src->scorer[0])
+        rt_copy_string(tl->scorer, sizeof tl->scorer, src->scorer);
+    if (src->scored_on[0])
+        rt_copy_string(tl->scored_on, sizeof tl->scored_on, src->scored_on);
     if (take_stages) {
         free(tl->stages);
         tl->stages = src->stages;
@@ -332,9 +352,9 @@ rt_status rt_timeline_load_staging(rt_timeline *tl, const char *path, const rt_l
         return st;
     }
     case FORMAT_XML:
-        /* The XML scoring module fills this branch; until then say so plainly
-         * rather than misreading the document as a CSV table. */
-        return rt_fail(err, RT_ERR_STAGING, "%s: XML scoring files are not supported yet", path);
+        /* Only remtone's own scoring schema is read; a label map has nothing
+         * to do there (the schema fixes the stage and event names). */
+        return rt_timeline_load_xml(tl, path, err);
     case FORMAT_CSV:
         break;
     }

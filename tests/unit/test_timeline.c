@@ -564,7 +564,7 @@ static void staging_format_by_content(void **state)
     snprintf(path, sizeof path, "%s",
              write_table(dir, "scoring.dat", "\xef\xbb\xbf  \n<?xml version=\"1.0\"?><x/>"));
     assert_int_equal(rt_timeline_load_staging(tl, path, NULL, &err), RT_ERR_STAGING);
-    assert_non_null(strstr(err.message, "XML scoring files are not supported yet"));
+    assert_non_null(strstr(err.message, "line 2: not well-formed XML"));
     snprintf(path, sizeof path, "%s",
              write_table(dir, "stages.txt", "start_s,duration_s,stage\n30,30,R\n"));
     assert_int_equal(rt_timeline_load_staging(tl, path, NULL, &err), RT_OK);

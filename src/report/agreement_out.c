@@ -1,0 +1,94 @@
+/* Agreement with a manual scoring, as JSON and as text, for the night
+ * writers. The numbers are rounded as the indices are (two decimals for
+ * percentages, three for kappa): stable text, honest precision. */
+#include <math.h>
+#include <stdio.h>
+
+#include "remtone/roles.h"
+#include "report_internal.h"
+
+static const char *const type_names[RT_AGREE_TYPES] = {"phasic", "tonic", "any"};
+
+static json_t *rounded(double v, int decimals)
+{
+    if (!isfinite(v))
+        return json_null();
+    double scale = pow(10.0, decimals);
+    return json_real(round(v * scale) / scale);
+}
+
+static json_t *cell_json(const rt_agreement_cell *c)
+{
+    json_t *o = json_object();
+    if (!o)
+        return NULL;
+    json_object_set_new(o, "n", json_integer((json_int_t)c->n));
+    json_object_set_new(o, "both", json_integer((json_int_t)c->both));
+    json_object_set_new(o, "manual_only", json_integer((json_int_t)c->manual_only));
+    json_object_set_new(o, "auto_only", json_integer((json_int_t)c->auto_only));
+    json_object_set_new(o, "neither", json_integer((json_int_t)c->neither));
+    json_object_set_new(o, "percent", rounded(c->percent, 2));
+    json_object_set_new(o, "kappa", rounded(c->kappa, 3));
+    json_object_set_new(o, "manual_pct", rounded(c->manual_pct, 2));
+    json_object_set_new(o, "auto_pct", rounded(c->auto_pct, 2));
+    return o;
+}
+
+json_t *rt_agreement_json(const rt_agreement *a)
+{
+    json_t *o = json_object();
+    if (!o)
+        return NULL;
+    json_object_set_new(o, "present", json_boolean(a && a->present));
+    if (!a || !a->present)
+        return o;
+    json_object_set_new(o, "scorer", json_string(a->scorer));
+    json_object_set_new(o, "unit", json_string("3-s mini-epoch"));
+    json_t *roles = json_object();
+    for (int r = 0; r < RT_ROLE_COUNT; r++) {
+        if (a->cell[r][RT_AGREE_ANY].n == 0)
+            continue;
+        json_t *x = json_object();
+        for (int t = 0; t < RT_AGREE_TYPES; t++)
+            json_object_set_new(x, type_names[t], cell_json(&a->cell[r][t]));
+        json_object_set_new(roles, rt_role_name((rt_role)r), x);
+    }
+    json_object_set_new(o, "roles", roles);
+    return o;
+}
+
+static void field(char *buf, size_t cap, double v, const char *fmt)
+{
+    if (isfinite(v))
+        snprintf(buf, cap, fmt, v);
+    else
+        snprintf(buf, cap, "-");
+}
+
+void rt_agreement_write_text(const rt_agreement *a, FILE *out)
+{
+    if (!a || !a->present || !out)
+        return;
+    fprintf(out, "Agreement with the manual scoring%s%s (3-s mini-epochs both scored):\n",
+            a->scorer[0] ? " by " : "", a->scorer);
+    fprintf(out, "  %-10s %-7s %6s %8s %7s %8s %8s\n", "role", "type", "minis", "agree", "kappa",
+            "manual", "remtone");
+    int rows = 0;
+    for (int r = 0; r < RT_ROLE_COUNT; r++) {
+        for (int t = 0; t < RT_AGREE_TYPES; t++) {
+            const rt_agreement_cell *c = &a->cell[r][t];
+            if (c->n == 0)
+                continue;
+            char pct[16], kap[16], man[16], aut[16];
+            field(pct, sizeof pct, c->percent, "%.1f %%");
+            field(kap, sizeof kap, c->kappa, "%.2f");
+            field(man, sizeof man, c->manual_pct, "%.1f %%");
+            field(aut, sizeof aut, c->auto_pct, "%.1f %%");
+            fprintf(out, "  %-10s %-7s %6zu %8s %7s %8s %8s\n", rt_role_name((rt_role)r),
+                    type_names[t], c->n, pct, kap, man, aut);
+            rows++;
+        }
+    }
+    if (rows == 0)
+        fprintf(out, "  no manual mini-epoch falls on a REM mini-epoch remtone scored\n");
+}
