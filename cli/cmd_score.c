@@ -1,13 +1,15 @@
 /* remtone score REC --stages FILE: the night result. */
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
 
 #include "cli.h"
 #include "roles_opts.h"
 
 enum {
     KEY_STAGES = 1, KEY_EVENTS, KEY_JSON, KEY_CUTOFFS, KEY_LABELS, KEY_MIN_REM, KEY_QUIET,
-    KEY_KEEP_ARTIFACTS, KEY_KEEP_SNORING, KEY_KEEP_RESPIRATORY, KEY_EVENT_MARGIN
+    KEY_KEEP_ARTIFACTS, KEY_KEEP_SNORING, KEY_KEEP_RESPIRATORY, KEY_EVENT_MARGIN,
+    KEY_HTML, KEY_MINIS, KEY_ANNOTATIONS, KEY_SHOW_IDENTITY, KEY_RECORDING_ID
 };
 
 static const cli_option OPTIONS[] = {
@@ -23,12 +25,19 @@ static const cli_option OPTIONS[] = {
     {"keep-respiratory", 0, KEY_KEEP_RESPIRATORY, NULL,
      "score mini-epochs under respiratory events and their arousals too"},
     {"event-margin", 1, KEY_EVENT_MARGIN, "S", "widen every excluding event by S seconds each side (default 0)"},
+    {"html", 1, KEY_HTML, "PATH", "write the review report, one self-contained HTML page ('-' for standard output)"},
+    {"minis", 1, KEY_MINIS, "PATH", "write the audit table: one CSV row per REM 3-s mini-epoch and channel"},
+    {"annotations", 1, KEY_ANNOTATIONS, "PATH", "write the detected activity as an EDF+ annotation file"},
+    {"show-identity", 0, KEY_SHOW_IDENTITY, NULL, "show the recording header's patient fields and date in the report"},
+    {"recording-id", 1, KEY_RECORDING_ID, "ID", "name the recording in the report (default: its file name)"},
     CLI_ROLE_OPTIONS,
     {0},
 };
 
 typedef struct score_config {
     const char *stages, *events, *json, *cutoffs, *labels;
+    const char *html, *minis, *annotations;
+    rt_report_options report;
     double min_rem;
     int quiet;
     rt_role_options roles;
@@ -48,6 +57,11 @@ static int on_option(void *ctx, int key, const char *arg)
     case KEY_CUTOFFS: c->cutoffs = arg; break;
     case KEY_LABELS: c->labels = arg; break;
     case KEY_QUIET: c->quiet = 1; break;
+    case KEY_HTML: c->html = arg; break;
+    case KEY_MINIS: c->minis = arg; break;
+    case KEY_ANNOTATIONS: c->annotations = arg; break;
+    case KEY_SHOW_IDENTITY: c->report.show_identity = true; break;
+    case KEY_RECORDING_ID: c->report.recording_id = arg; break;
     case KEY_KEEP_ARTIFACTS: c->params.exclude_artifacts = false; break;
     case KEY_KEEP_SNORING: c->params.exclude_snoring = false; break;
     case KEY_KEEP_RESPIRATORY: c->params.exclude_respiratory = false; break;
@@ -100,6 +114,23 @@ static rt_status load_inputs(const score_config *c, const char *rec_path, loaded
     return st;
 }
 
+/* An output that is also an input would be destroyed: the input is replaced
+ * by the result. Files are compared by device and inode, so a hard link,
+ * a symbolic link or another spelling of the same path is caught too. */
+static int refuse_output_over_input(const char *option, const char *output, const char *const *inputs, size_t n)
+{
+    struct stat so, si;
+    if (!output || strcmp(output, "-") == 0 || stat(output, &so) != 0 || !S_ISREG(so.st_mode))
+        return EXIT_OK;
+    for (size_t i = 0; i < n; i++)
+        if (inputs[i] && stat(inputs[i], &si) == 0 && si.st_dev == so.st_dev && si.st_ino == so.st_ino) {
+            fprintf(stderr, "remtone score: --%s %s is the input file %s; refusing to overwrite an input\n",
+                    option, output, inputs[i]);
+            return EXIT_USAGE;
+        }
+    return EXIT_OK;
+}
+
 static int run(int argc, char **argv)
 {
     score_config c;
@@ -115,6 +146,13 @@ static int run(int argc, char **argv)
         fprintf(stderr, "remtone score: give one recording (remtone score --help)\n");
         return EXIT_USAGE;
     }
+    const char *inputs[] = {pos[0], c.stages, c.events, c.cutoffs, c.labels};
+    size_t n_inputs = sizeof inputs / sizeof inputs[0];
+    if ((rc = refuse_output_over_input("json", c.json, inputs, n_inputs)) != EXIT_OK ||
+        (rc = refuse_output_over_input("html", c.html, inputs, n_inputs)) != EXIT_OK ||
+        (rc = refuse_output_over_input("minis", c.minis, inputs, n_inputs)) != EXIT_OK ||
+        (rc = refuse_output_over_input("annotations", c.annotations, inputs, n_inputs)) != EXIT_OK)
+        return rc;
     rt_error err;
     rt_error_clear(&err);
     loaded l;
@@ -127,11 +165,24 @@ static int run(int argc, char **argv)
             c.params.min_scorable_min = c.min_rem;
         st = rt_night_score(l.rec, &l.roles, l.tl, &c.params, &l.cutoffs, &night, &err);
     }
-    if (st == RT_OK && !c.quiet && !(c.json && strcmp(c.json, "-") == 0))
+    if (st == RT_OK && !c.quiet && !(c.json && strcmp(c.json, "-") == 0) &&
+        !(c.html && strcmp(c.html, "-") == 0) && !(c.minis && strcmp(c.minis, "-") == 0))
         st = rt_night_write_text(night, stdout, &err);
     if (st == RT_OK && c.json) {
         rt_run_inputs in = {pos[0], c.stages, c.events, c.cutoffs, c.labels};
         st = rt_night_write_json(night, &in, c.json, &err);
+        output_error = 1;
+    }
+    if (st == RT_OK && c.html) {
+        st = rt_night_write_html(night, l.rec, l.tl, &c.report, c.html, &err);
+        output_error = 1;
+    }
+    if (st == RT_OK && c.minis) {
+        st = rt_night_write_minis_csv(night, l.rec, c.minis, &err);
+        output_error = 1;
+    }
+    if (st == RT_OK && c.annotations) {
+        st = rt_night_write_annotations(night, l.rec, c.annotations, &err);
         output_error = 1;
     }
     rt_night_free(night);

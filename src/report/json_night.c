@@ -78,21 +78,13 @@ static json_t *strings_json(const char (*items)[240], size_t n)
 
 static json_t *evidence_json(const rt_night *night, size_t limit)
 {
-    /* the most active epochs, by the ranking score of indices.c */
     json_t *a = json_array();
-    bool *taken = rt_calloc(night->n_epochs, sizeof *taken);
-    if (!taken)
+    size_t *order = rt_calloc(limit, sizeof *order);
+    if (!order)
         return a;
-    for (size_t rank = 0; rank < limit; rank++) {
-        size_t best = night->n_epochs;
-        for (size_t e = 0; e < night->n_epochs; e++)
-            if (!taken[e] && night->epochs[e].activity > 0 &&
-                (best == night->n_epochs || night->epochs[e].activity > night->epochs[best].activity))
-                best = e;
-        if (best == night->n_epochs)
-            break;
-        taken[best] = true;
-        const rt_epoch_result *er = &night->epochs[best];
+    size_t n = rt_report_rank_evidence(night, order, limit); /* shared with the page */
+    for (size_t rank = 0; rank < n; rank++) {
+        const rt_epoch_result *er = &night->epochs[order[rank]];
         json_t *x = json_object();
         json_object_set_new(x, "rank", json_integer((json_int_t)rank + 1));
         json_object_set_new(x, "epoch", json_integer((json_int_t)er->epoch));
@@ -103,7 +95,7 @@ static json_t *evidence_json(const rt_night *night, size_t limit)
         json_object_set_new(x, "tonic_share", json_real(rounded(er->tonic_share, 3)));
         json_array_append_new(a, x);
     }
-    free(taken);
+    free(order);
     return a;
 }
 

@@ -6,6 +6,7 @@
 
 #include <jansson.h>
 
+#include "remtone/recording.h"
 #include "remtone/score.h"
 
 /* The agreement with a manual scoring as JSON (docs/agreement.md, "In the
@@ -18,5 +19,20 @@ json_t *rt_agreement_json(const rt_agreement *a);
 
 /* The same as a short text table; writes nothing when a->present is false. */
 void rt_agreement_write_text(const rt_agreement *a, FILE *out);
+
+/* Wall-clock time of onset_s after the recording start, "HH:MM:SS" (wraps at
+ * midnight; sub-second start offsets included, the result rounded down). */
+void rt_report_clock(const rt_clock_time *start, double onset_s, char *buf, size_t cap);
+/* Elapsed time since the recording start, "H:MM:SS". */
+void rt_report_elapsed(double seconds, char *buf, size_t cap);
+
+/* The evidence order shared by the JSON result, the page and the annotation
+ * file: REM epochs with activity > 0, highest activity first, earlier epoch
+ * first among equals. Writes up to `limit` indices into night->epochs to
+ * order[] and returns how many. */
+size_t rt_report_rank_evidence(const rt_night *night, size_t *order, size_t limit);
+
+/* The last component of a path (the path itself when it has no '/'). */
+const char *rt_report_basename(const char *path);
 
 #endif

@@ -3,8 +3,10 @@
 #include <math.h>
 #include <stdarg.h>
 #include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
 
+#include "detect.h"
 #include "night_internal.h"
 
 #define MINI3_PER_EPOCH 10
@@ -325,9 +327,31 @@ static void review(rt_night *night)
         add_reason(night, "no index reaches or nears its cutoff");
 }
 
+/* Each channel's typical REM level: the median of its mini-epoch envelopes. */
+static rt_status channel_levels(rt_night *night, rt_error *err)
+{
+    if (night->n_minis3 == 0)
+        return RT_OK;
+    double *v = rt_calloc(night->n_minis3, sizeof *v);
+    if (!v)
+        return rt_fail(err, RT_ERR_NOMEM, "out of memory");
+    for (int r = 0; r < RT_ROLE_COUNT; r++) {
+        if (!night->channel[r].present || r == RT_ROLE_ECG)
+            continue;
+        size_t n = 0;
+        for (size_t i = 0; i < night->n_minis3; i++)
+            if (!(night->minis3[i].labels[r] & (RT_LABEL_EXCLUDED | RT_LABEL_ABSENT)))
+                v[n++] = night->minis3[i].envelope_uv[r];
+        night->channel[r].rem_median_uv = n ? rt_quantile(v, n, 0.5) : NAN;
+    }
+    free(v);
+    return RT_OK;
+}
+
 rt_status rt_night_summarise(rt_night *night, const scoring_state *ss, rt_error *err)
 {
-    (void)err;
+    if (channel_levels(night, err) != RT_OK)
+        return err ? err->status : RT_ERR_NOMEM;
     bool arms = night->channel[RT_ROLE_ARM_LEFT].present && night->channel[RT_ROLE_ARM_RIGHT].present;
     aggregate_epochs(night, arms);
     size_t scorable_minis = 0;

@@ -1,0 +1,179 @@
+/* The detected activity as an EDF+ annotation file, so that a reviewer's own
+ * viewer can lay it over the recording: every phasic burst (per rule set and
+ * channel), every run of tonic 3-s mini-epochs within an epoch, and the ranked
+ * evidence epochs. The file is written by EDFlib's writer with no signals (an
+ * annotation-only EDF+, which EDFlib 1.23 accepts), starts at the recording's
+ * start date and time, and is written to a temporary name and renamed. The
+ * texts are listed in docs/review-report.md. EDFlib is not thread-safe; this
+ * writer is used from one thread at a time. */
+#include <edflib.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "internal.h"
+#include "output.h"
+#include "remtone/report.h"
+#include "svg.h"
+
+/* The evidence epochs marked, as many as the JSON result lists. */
+#define EVIDENCE_LIMIT 10
+
+typedef struct note {
+    double onset_s;
+    double duration_s;
+    char text[48];   /* EDFlib keeps at most 40 bytes of a written annotation */
+} note;
+
+typedef struct notes {
+    note *v;
+    size_t n, cap;
+} notes;
+
+static int add_note(notes *ns, double onset_s, double duration_s, const char *text)
+{
+    if (ns->n == ns->cap) {
+        size_t cap = ns->cap ? 2 * ns->cap : 1024;
+        note *v = realloc(ns->v, cap * sizeof *v);
+        if (!v)
+            return -1;
+        ns->v = v;
+        ns->cap = cap;
+    }
+    note *x = &ns->v[ns->n++];
+    x->onset_s = onset_s;
+    x->duration_s = duration_s;
+    rt_copy_string(x->text, sizeof x->text, text);
+    return 0;
+}
+
+static int by_onset(const void *a, const void *b)
+{
+    const note *x = a, *y = b;
+    return (x->onset_s > y->onset_s) - (x->onset_s < y->onset_s);
+}
+
+static const char *rule_word(unsigned rules)
+{
+    if (rules & RT_LABEL_AASM_PHASIC)
+        return "aasm";
+    if (rules & RT_LABEL_SINBAR_PHASIC)
+        return "sinbar";
+    return "montreal";
+}
+
+static int collect_bursts(const rt_night *night, notes *ns)
+{
+    for (size_t i = 0; i < night->n_bursts; i++) {
+        const rt_burst *b = &night->bursts[i];
+        char text[48];
+        snprintf(text, sizeof text, "remtone phasic %s %s", rule_word(b->rules),
+                 rt_role_name(b->role));
+        if (add_note(ns, b->onset_s, b->duration_s, text) != 0)
+            return -1;
+    }
+    return 0;
+}
+
+/* Runs of SINBAR-tonic 3-s minis, cut at epoch boundaries, per channel. */
+static int collect_tonic(const rt_night *night, notes *ns)
+{
+    for (int r = 0; r < RT_ROLE_COUNT; r++) {
+        if (r == RT_ROLE_ECG || !night->channel[r].present)
+            continue;
+        char text[48];
+        snprintf(text, sizeof text, "remtone tonic %s", rt_role_name((rt_role)r));
+        size_t i = 0;
+        while (i < night->n_minis3) {
+            const rt_mini *m = &night->minis3[i];
+            if (!(m->labels[r] & RT_LABEL_SINBAR_TONIC) || (m->labels[r] & RT_LABEL_EXCLUDED)) {
+                i++;
+                continue;
+            }
+            size_t j = i + 1;
+            while (j < night->n_minis3 && night->minis3[j].epoch == m->epoch &&
+                   (night->minis3[j].labels[r] & RT_LABEL_SINBAR_TONIC) &&
+                   !(night->minis3[j].labels[r] & RT_LABEL_EXCLUDED))
+                j++;
+            double end = night->minis3[j - 1].onset_s + 3.0;
+            if (add_note(ns, m->onset_s, end - m->onset_s, text) != 0)
+                return -1;
+            i = j;
+        }
+    }
+    return 0;
+}
+
+static int collect_evidence(const rt_night *night, notes *ns)
+{
+    size_t order[EVIDENCE_LIMIT];
+    size_t n = rt_report_rank_evidence(night, order, EVIDENCE_LIMIT);
+    for (size_t k = 0; k < n; k++) {
+        char text[48];
+        snprintf(text, sizeof text, "remtone evidence %zu", k + 1);
+        if (add_note(ns, night->epochs[order[k]].onset_s, 30.0, text) != 0)
+            return -1;
+    }
+    return 0;
+}
+
+/* EDFlib counts time in units of 100 microseconds (EDFLIB_TIME_DIMENSION is
+ * 10^7 per second; annotation onsets are written in 10^-4 s). */
+static long long ticks(double s) { return llround(s * 10000.0); }
+
+static rt_status write_file(const char *temp, const char *path, const rt_recording *rec,
+                            const notes *ns, rt_error *err)
+{
+    int h = edfopen_file_writeonly(temp, EDFLIB_FILETYPE_EDFPLUS, 0);
+    if (h < 0)
+        return rt_fail(err, RT_ERR_IO, "%s: EDFlib cannot create the annotation file (code %d)",
+                       path, h);
+    rt_clock_time t = rt_recording_start(rec);
+    rt_status st = RT_OK;
+    if (edf_set_startdatetime(h, t.year, t.month, t.day, t.hour, t.minute, t.second) != 0)
+        st = rt_fail(err, RT_ERR_IO, "%s: EDFlib refused the start %04d-%02d-%02d %02d:%02d:%02d",
+                     path, t.year, t.month, t.day, t.hour, t.minute, t.second);
+    /* sub-second start in units of 100 ns (EDFlib) */
+    if (st == RT_OK && t.subsecond > 0 &&
+        edf_set_subsecond_starttime(h, (int)llround(t.subsecond * 1e7)) != 0)
+        st = rt_fail(err, RT_ERR_IO, "%s: EDFlib refused the sub-second start", path);
+    if (st == RT_OK && (edf_set_equipment(h, "remtone") != 0 ||
+                        edf_set_recording_additional(h, "remtone detected activity") != 0))
+        st = rt_fail(err, RT_ERR_IO, "%s: EDFlib refused a header field", path);
+    for (size_t i = 0; i < ns->n && st == RT_OK; i++) {
+        const note *x = &ns->v[i];
+        if (edfwrite_annotation_utf8(h, ticks(x->onset_s), ticks(x->duration_s), x->text) != 0)
+            st = rt_fail(err, RT_ERR_IO, "%s: EDFlib refused annotation %zu (%s at %.4f s)", path,
+                         i + 1, x->text, x->onset_s);
+    }
+    if (edfclose_file(h) != 0 && st == RT_OK)
+        st = rt_fail(err, RT_ERR_IO, "%s: EDFlib cannot finish the annotation file", path);
+    return st;
+}
+
+rt_status rt_night_write_annotations(const rt_night *night, const rt_recording *rec,
+                                     const char *path, rt_error *err)
+{
+    if (strcmp(path, "-") == 0)
+        return rt_fail(err, RT_ERR_USAGE, "the annotation file needs a file name, not '-'");
+    notes ns = {NULL, 0, 0};
+    if (collect_bursts(night, &ns) != 0 || collect_tonic(night, &ns) != 0 ||
+        collect_evidence(night, &ns) != 0) {
+        free(ns.v);
+        return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory for annotations", path);
+    }
+    /* a stable sort is not needed: equal onsets carry different texts and any
+     * order of them is valid EDF+ */
+    qsort(ns.v, ns.n, sizeof *ns.v, by_onset);
+    rt_output out;
+    rt_status st = rt_output_begin(&out, path, 0, err);
+    if (st == RT_OK) {
+        st = write_file(out.temp_path, path, rec, &ns, err);
+        if (st == RT_OK)
+            st = rt_output_commit(&out, err);
+        else
+            rt_output_abort(&out);
+    }
+    free(ns.v);
+    return st;
+}

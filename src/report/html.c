@@ -1,0 +1,1241 @@
+/* The review page: one self-contained XHTML file (inline CSS and SVG, no
+ * scripts, nothing fetched) that a physician can read in two minutes and
+ * print. It is written with libxml2's xmlTextWriter, so every text from the
+ * recording (identity fields, channel labels) is escaped and made valid UTF-8;
+ * the output is well-formed XML that HTML parsers read the same way. The
+ * envelopes of the most active epochs are recomputed from the recording with
+ * the scorer's own conditioning (bandpass.h, detect.h) and parameters, so the
+ * traces shown are the ones the labels came from. docs/review-report.md
+ * describes the page. */
+#include <libxml/xmlwriter.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+#include <time.h>
+
+#include "../score/bandpass.h"
+#include "../score/detect.h"
+#include "internal.h"
+#include "output.h"
+#include "remtone/report.h"
+#include "remtone/version.h"
+#include "svg.h"
+
+#define MINIS_PER_EPOCH 10
+#define EVIDENCE_PLOTS 4
+#define EVIDENCE_ROWS 20
+#define PAGE_W 1060.0
+
+/* Role groups of the overview strip: chin, both arms, both legs. */
+enum { GROUP_CHIN = 0, GROUP_ARMS, GROUP_LEGS, GROUP_COUNT };
+static const char *const GROUP_NAME[GROUP_COUNT] = {"chin", "arms", "legs"};
+static const rt_role GROUP_ROLES[GROUP_COUNT][2] = {
+    {RT_ROLE_CHIN, RT_ROLE_CHIN},
+    {RT_ROLE_ARM_LEFT, RT_ROLE_ARM_RIGHT},
+    {RT_ROLE_LEG_LEFT, RT_ROLE_LEG_RIGHT}};
+
+/* No '<', '>' or '&' here: HTML reads a style element as raw text, XML does
+ * not, and only text free of those three reads the same in both. */
+static const char CSS[] =
+    "body{font-family:'DejaVu Sans',Arial,sans-serif;color:#1b2430;margin:0;background:#eef1f4;"
+    "font-size:14px;line-height:1.4}"
+    "header.top{background:#24425e;color:#fff;padding:12px 28px}"
+    "header.top h1{margin:0;font-size:21px;font-weight:600}"
+    "header.top p{margin:2px 0 0 0;color:#d4dfe9}"
+    "nav{background:#fff;border-bottom:1px solid #cfd6de;padding:6px 28px}"
+    "nav a{color:#24425e;margin-right:16px;text-decoration:none;font-size:13px}"
+    "main{max-width:1100px;margin:0 auto;padding:4px 20px 20px 20px}"
+    "section{background:#fff;border:1px solid #d3dae2;border-radius:6px;padding:10px 18px;"
+    "margin:14px 0}"
+    "h2{font-size:17px;margin:4px 0 8px 0;color:#24425e}"
+    "h3{font-size:14px;margin:12px 0 4px 0}"
+    "table{border-collapse:collapse;font-size:13px;margin:4px 0}"
+    "th,td{padding:3px 9px;border-bottom:1px solid #e2e7ed;text-align:left;vertical-align:top}"
+    "th{background:#f3f5f8;font-weight:600}"
+    "td.num{text-align:right;font-variant-numeric:tabular-nums}"
+    ".headline{font-size:26px;font-weight:700;margin:4px 0}"
+    ".headline span.unit{font-size:15px;font-weight:400;color:#4a5866}"
+    ".level{display:inline-block;padding:4px 12px;border-radius:4px;font-weight:700;color:#fff}"
+    ".level-review{background:#a8322d}.level-near-cutoff{background:#b86e00}"
+    ".level-clear{background:#2f7350}.level-not-assessable{background:#5c6876}"
+    ".facts td{border:none;padding:1px 14px 1px 0}"
+    ".muted{color:#5b6875;font-size:12px}"
+    ".caution li{margin:3px 0}"
+    ".legend span.sw{display:inline-block;width:12px;height:12px;margin:0 4px -2px 10px;"
+    "border:1px solid #9aa5b1}"
+    "svg{display:block;margin:4px 0}"
+    "svg text{font-family:'DejaVu Sans',Arial,sans-serif;font-size:11px;fill:#2a3540}"
+    "svg text.small{font-size:9px;fill:#5b6875}"
+    "svg text.bold{font-weight:700}"
+    "footer{color:#5b6875;font-size:12px;padding:0 28px 24px 28px}"
+    "@media print{nav{display:none}body{background:#fff}"
+    "section{border:none;break-before:page;page-break-before:always;margin:0}"
+    "section.first{break-before:auto;page-break-before:auto}"
+    "svg{max-width:100%;height:auto;break-inside:avoid;page-break-inside:avoid}"
+    "header.top{background:#fff;color:#000;border-bottom:2px solid #000}"
+    "header.top p{color:#000}"
+    ".level{border:2px solid #000}}";
+
+typedef struct html_ctx {
+    rt_page p;
+    const rt_night *night;
+    rt_recording *rec;
+    const rt_timeline *tl;
+    const rt_report_options *opt;
+    rt_clock_time start;
+    double span_s;       /* time axis of the night plots */
+    rt_error *err;
+    rt_status status;    /* first failure of a recomputation */
+} html_ctx;
+
+/* ---- small formatting helpers ------------------------------------------ */
+
+static bool is_pct(const rt_index_rule *rule) { return strcmp(rule->unit, "%") == 0; }
+
+static void value_text(const rt_index_rule *rule, double v, char *buf, size_t cap)
+{
+    if (!isfinite(v))
+        snprintf(buf, cap, "not computed");
+    else if (is_pct(rule))
+        snprintf(buf, cap, "%.1f %%", v);
+    else if (strcmp(rule->unit, "ratio") == 0)
+        snprintf(buf, cap, "%.3f", v);
+    else
+        snprintf(buf, cap, "%.1f %s", v, rule->unit);
+}
+
+static const char *level_words(rt_review_level level)
+{
+    switch (level) {
+    case RT_REVIEW_FLAGGED: return "Review advised: a published cutoff is reached";
+    case RT_REVIEW_NEAR: return "Near a cutoff: none reached, one is close";
+    case RT_REVIEW_CLEAR: return "Clear: no index reaches or nears its cutoff";
+    case RT_REVIEW_NOT_ASSESSABLE: return "Not assessable: too little usable REM or no chin channel";
+    }
+    return "";
+}
+
+/* abnormal 2, near 1, within 0, no judgement -1 */
+static int severity(const rt_night *night, int i)
+{
+    const rt_index_rule *rule = &rt_index_rules()[i];
+    const rt_index_value *v = &night->index[i];
+    if (v->status == RT_STATUS_NOT_COMPUTED || v->status == RT_STATUS_NO_CUTOFF ||
+        !night->cutoffs.has[i])
+        return -1;
+    if (rule->lower_is_worse)
+        return v->status == RT_STATUS_BELOW ? 2 : v->status == RT_STATUS_INTERMEDIATE ? 1 : 0;
+    if (v->status == RT_STATUS_ABOVE)
+        return 2;
+    return v->value >= night->params.near_fraction * night->cutoffs.value[i] ? 1 : 0;
+}
+
+static const char *severity_colour(int s)
+{
+    return s == 2 ? "#a8322d" : s == 1 ? "#c98a1b" : s == 0 ? "#3f7fa8" : "#8a96a3";
+}
+
+/* Colour of a count of active 3-s minis (0..10) in an epoch. */
+static const char *activity_colour(int active)
+{
+    if (active <= 0)
+        return "#dfe6ec";
+    if (active <= 2)
+        return "#f3d27e";
+    if (active <= 4)
+        return "#eb9b45";
+    if (active <= 7)
+        return "#d25a2c";
+    return "#8e1c1c";
+}
+
+static bool group_present(const rt_night *night, int g)
+{
+    return night->channel[GROUP_ROLES[g][0]].present || night->channel[GROUP_ROLES[g][1]].present;
+}
+
+static bool role_counts(const rt_mini *m, rt_role r, unsigned label)
+{
+    return !(m->labels[r] & (RT_LABEL_ABSENT | RT_LABEL_EXCLUDED)) && (m->labels[r] & label);
+}
+
+/* Active minis of a group in REM epoch k: chin "any" (SINBAR) on the chin,
+ * SINBAR phasic on either limb of a pair; minis the scorer left out do not count. */
+static int group_active(const rt_night *night, size_t k, int g, int *scorable)
+{
+    const rt_mini *m = &night->minis3[k * MINIS_PER_EPOCH];
+    int n = 0, s = 0;
+    for (int i = 0; i < MINIS_PER_EPOCH; i++) {
+        if (m[i].labels[RT_ROLE_CHIN] & RT_LABEL_EXCLUDED)
+            continue;
+        s++;
+        if (g == GROUP_CHIN)
+            n += role_counts(&m[i], RT_ROLE_CHIN, RT_LABEL_SINBAR_ANY);
+        else
+            n += role_counts(&m[i], GROUP_ROLES[g][0], RT_LABEL_SINBAR_PHASIC) ||
+                 role_counts(&m[i], GROUP_ROLES[g][1], RT_LABEL_SINBAR_PHASIC);
+    }
+    if (scorable)
+        *scorable = s;
+    return n;
+}
+
+static void cell(rt_page *p, const char *text, bool num)
+{
+    rt_page_element(p, "td", num ? "num" : NULL, text);
+}
+
+/* ---- header, identity and summary ---------------------------------------- */
+
+static void write_head(html_ctx *c)
+{
+    rt_page *p = &c->p;
+    rt_page_start(p, "head");
+    rt_page_start(p, "meta");
+    rt_page_attr(p, "charset", "utf-8");
+    rt_page_end_svg(p); /* void element */
+    rt_page_start(p, "title");
+    rt_page_text(p, "remtone review report");
+    rt_page_end_html(p);
+    rt_page_start(p, "style");
+    if (!p->failed && xmlTextWriterWriteRaw(p->w, (const xmlChar *)CSS) < 0)
+        p->failed = true;
+    rt_page_end_html(p);
+    rt_page_end_html(p);
+}
+
+static const char *display_id(const html_ctx *c)
+{
+    if (c->opt && c->opt->recording_id && c->opt->recording_id[0])
+        return c->opt->recording_id;
+    return rt_report_basename(rt_recording_path(c->rec));
+}
+
+static void write_banner(html_ctx *c)
+{
+    rt_page *p = &c->p;
+    char clock[16];
+    rt_report_clock(&c->start, 0, clock, sizeof clock);
+    rt_page_start(p, "header");
+    rt_page_attr(p, "class", "top");
+    rt_page_element(p, "h1", NULL, "REM sleep muscle activity: review report");
+    rt_page_start(p, "p");
+    rt_page_textf(p, "Recording %s, started %s, %.1f h", display_id(c), clock,
+                  c->night->recording_s / 3600.0);
+    rt_page_end_html(p);
+    rt_page_end_html(p);
+    static const char *const LINKS[][2] = {
+        {"#summary", "Summary"}, {"#overview", "Night"}, {"#indices", "Indices"},
+        {"#bouts", "REM bouts"}, {"#evidence", "Evidence"}, {"#quality", "Quality"},
+        {"#cautions", "Cautions"}};
+    rt_page_start(p, "nav");
+    for (size_t i = 0; i < sizeof LINKS / sizeof LINKS[0]; i++) {
+        rt_page_start(p, "a");
+        rt_page_attr(p, "href", LINKS[i][0]);
+        rt_page_text(p, LINKS[i][1]);
+        rt_page_end_html(p);
+    }
+    rt_page_end_html(p);
+}
+
+static void fact_row(rt_page *p, const char *name, const char *value)
+{
+    rt_page_start(p, "tr");
+    rt_page_element(p, "td", "muted", name);
+    cell(p, value, false);
+    rt_page_end_html(p);
+}
+
+static void write_identity(html_ctx *c)
+{
+    rt_page *p = &c->p;
+    char buf[128];
+    rt_page_start(p, "table");
+    rt_page_attr(p, "class", "facts");
+    fact_row(p, "Recording", display_id(c));
+    if (c->opt && c->opt->show_identity) {
+        fact_row(p, "Patient (EDF header)", rt_recording_patient_text(c->rec));
+        fact_row(p, "Recording (EDF header)", rt_recording_recording_text(c->rec));
+        snprintf(buf, sizeof buf, "%04d-%02d-%02d", c->start.year, c->start.month, c->start.day);
+        fact_row(p, "Start date", buf);
+    } else {
+        fact_row(p, "Identity", "hidden (the header's patient fields and date are shown only "
+                                "when asked for, --show-identity)");
+    }
+    rt_report_clock(&c->start, 0, buf, sizeof buf);
+    fact_row(p, "Start time", buf);
+    rt_page_end_html(p);
+}
+
+static void write_summary(html_ctx *c)
+{
+    rt_page *p = &c->p;
+    const rt_night *n = c->night;
+    const rt_index_rule *rules = rt_index_rules();
+    const rt_index_rule *hr = &rules[n->headline];
+    char v[48], cut[48];
+    rt_page_start(p, "section");
+    rt_page_attr(p, "id", "summary");
+    rt_page_attr(p, "class", "first");
+    rt_page_element(p, "h2", NULL, "Summary");
+    write_identity(c);
+
+    value_text(hr, n->index[n->headline].value, v, sizeof v);
+    rt_page_start(p, "p");
+    rt_page_attr(p, "class", "headline");
+    rt_page_textf(p, "%s of REM with preserved muscle activity ", v);
+    rt_page_start(p, "span");
+    rt_page_attr(p, "class", "unit");
+    if (n->cutoffs.has[n->headline]) {
+        value_text(hr, n->cutoffs.value[n->headline], cut, sizeof cut);
+        rt_page_textf(p, "(%s; published cutoff %s)", hr->id, cut);
+    } else {
+        rt_page_textf(p, "(%s)", hr->id);
+    }
+    rt_page_end_html(p);
+    rt_page_end_html(p);
+    rt_page_element(p, "p", "muted", hr->title);
+
+    rt_page_start(p, "p");
+    rt_page_textf(p, "REM sleep: %.1f min in %zu bouts; %.1f min scorable", n->rem_minutes,
+                  n->n_bouts, n->scorable_minutes);
+    if (n->exclusions.total_minutes > 0)
+        rt_page_textf(p, " (%.1f min left out, see Quality)", n->exclusions.total_minutes);
+    rt_page_text(p, ".");
+    rt_page_end_html(p);
+
+    rt_page_start(p, "p");
+    rt_page_start(p, "span");
+    rt_page_attrf(p, "class", "level level-%s", rt_review_level_name(n->level));
+    rt_page_text(p, level_words(n->level));
+    rt_page_end_html(p);
+    rt_page_end_html(p);
+    rt_page_start(p, "ul");
+    for (size_t i = 0; i < n->n_reasons; i++)
+        rt_page_element(p, "li", NULL, n->reasons[i]);
+    rt_page_end_html(p);
+    rt_page_element(p, "p", "muted", rt_visual_scoring_note());
+    rt_page_end_html(p);
+}
+
+/* ---- night overview: hypnogram and activity strip ------------------------ */
+
+#define PLOT_X 80.0
+#define PLOT_W (PAGE_W - PLOT_X - 10.0)
+
+static double time_x(const html_ctx *c, double t_s)
+{
+    return PLOT_X + PLOT_W * (c->span_s > 0 ? t_s / c->span_s : 0);
+}
+
+static void time_axis(html_ctx *c, double y_top, double y_axis)
+{
+    rt_page *p = &c->p;
+    double start = c->start.hour * 3600.0 + c->start.minute * 60.0 + c->start.second +
+                   c->start.subsecond;
+    /* first whole clock hour after the start, then every hour (every 2 h past 12 h) */
+    double first = 3600.0 * ceil(start / 3600.0) - start;
+    double step = c->span_s > 12 * 3600.0 ? 7200.0 : 3600.0;
+    for (double t = first; t <= c->span_s; t += step) {
+        double x = time_x(c, t);
+        char clock[16];
+        rt_report_clock(&c->start, t, clock, sizeof clock);
+        clock[5] = '\0'; /* HH:MM */
+        rt_svg_line(p, x, y_top, x, y_axis, "#c7cfd8", 0.6, "2,3");
+        if (x < PAGE_W - 18) /* a label cut by the page edge helps nobody */
+            rt_svg_text(p, x, y_axis + 12, "middle", "small", clock);
+    }
+    rt_svg_line(p, PLOT_X, y_axis, PLOT_X + PLOT_W, y_axis, "#7a8794", 0.8, NULL);
+}
+
+static int stage_row(unsigned char s)
+{
+    switch (s) {
+    case RT_STAGE_W: return 0;
+    case RT_STAGE_R: return 1;
+    case RT_STAGE_N1: return 2;
+    case RT_STAGE_N2: return 3;
+    case RT_STAGE_N3: return 4;
+    default: return -1;
+    }
+}
+
+static void hypnogram(html_ctx *c, double y0, double row_h)
+{
+    rt_page *p = &c->p;
+    static const char *const ROWS[] = {"Wake", "REM", "N1", "N2", "N3"};
+    const rt_night *n = c->night;
+    /* REM shading first, under everything */
+    for (size_t k = 0; k < n->n_epochs; k++) {
+        double x = time_x(c, n->epochs[k].onset_s), w = time_x(c, n->epochs[k].onset_s + 30) - x;
+        rt_svg_rect(p, x, y0, w, 5 * row_h, "#f6dede", NULL);
+    }
+    for (int r = 0; r < 5; r++)
+        rt_svg_text(p, PLOT_X - 8, y0 + (r + 0.5) * row_h + 4, "end", r == 1 ? "bold" : NULL,
+                    ROWS[r]);
+    if (c->tl) {
+        const rt_timeline *tl = c->tl;
+        double *xs = rt_calloc(2 * tl->n_epochs + 2, sizeof *xs);
+        double *ys = rt_calloc(2 * tl->n_epochs + 2, sizeof *ys);
+        if (!xs || !ys) {
+            free(xs);
+            free(ys);
+            c->p.failed = true;
+            return;
+        }
+        size_t m = 0;
+        for (size_t e = 0; e <= tl->n_epochs; e++) {
+            int row = e < tl->n_epochs ? stage_row(tl->stages[e]) : -1;
+            if (row < 0) { /* unscored epochs break the line: nothing is guessed */
+                rt_svg_polyline(p, xs, ys, m, "#24425e", 1.2);
+                m = 0;
+                continue;
+            }
+            double y = y0 + (row + 0.5) * row_h;
+            xs[m] = time_x(c, (double)e * tl->epoch_s);
+            ys[m++] = y;
+            xs[m] = time_x(c, (double)(e + 1) * tl->epoch_s);
+            ys[m++] = y;
+        }
+        free(xs);
+        free(ys);
+    }
+    /* REM itself drawn as a thick bar on its row */
+    for (size_t k = 0; k < n->n_epochs; k++) {
+        double x = time_x(c, n->epochs[k].onset_s), w = time_x(c, n->epochs[k].onset_s + 30) - x;
+        rt_svg_rect(p, x, y0 + 1.1 * row_h, w, 0.8 * row_h, "#c0392b", NULL);
+    }
+}
+
+static void activity_strip(html_ctx *c, double y0, double row_h)
+{
+    rt_page *p = &c->p;
+    const rt_night *n = c->night;
+    char tip[160], clock[16];
+    for (int g = 0; g < GROUP_COUNT; g++) {
+        double y = y0 + g * (row_h + 3);
+        rt_svg_text(p, PLOT_X - 8, y + row_h - 3, "end", NULL, GROUP_NAME[g]);
+        rt_svg_rect(p, PLOT_X, y, PLOT_W, row_h, "#f7f9fb", NULL);
+        if (!group_present(n, g)) {
+            rt_svg_text(p, PLOT_X + 6, y + row_h - 3, "start", "small", "not recorded");
+            continue;
+        }
+        for (size_t k = 0; k < n->n_epochs; k++) {
+            int scorable = 0;
+            int active = group_active(n, k, g, &scorable);
+            double x = time_x(c, n->epochs[k].onset_s);
+            double w = fmax(time_x(c, n->epochs[k].onset_s + 30) - x, 1.0);
+            rt_report_clock(&c->start, n->epochs[k].onset_s, clock, sizeof clock);
+            snprintf(tip, sizeof tip, "%s epoch %zu: %s %d of %d scorable 3-s mini-epochs active",
+                     clock, n->epochs[k].epoch, GROUP_NAME[g], active, scorable);
+            rt_svg_rect(p, x, y, w, row_h, scorable ? activity_colour(active) : "#9aa5b1", tip);
+        }
+    }
+}
+
+static void legend_item(rt_page *p, const char *colour, const char *text)
+{
+    rt_page_start(p, "span");
+    rt_page_attr(p, "class", "sw");
+    rt_page_attrf(p, "style", "background:%s", colour);
+    rt_page_end_html(p);
+    rt_page_text(p, text);
+}
+
+static void write_overview(html_ctx *c)
+{
+    rt_page *p = &c->p;
+    const double row_h = 16, strip_h = 14;
+    double hyp_y = 8, strip_y = hyp_y + 5 * row_h + 14, axis_y = strip_y + 3 * (strip_h + 3) + 4;
+    rt_page_start(p, "section");
+    rt_page_attr(p, "id", "overview");
+    rt_page_element(p, "h2", NULL, "The night");
+    rt_page_element(p, "p", "muted",
+                    "Top: the staging given to remtone, REM shaded. Below: each REM epoch coloured "
+                    "by how many of its ten 3-s mini-epochs hold activity (chin: any SINBAR "
+                    "activity; arms and legs: SINBAR phasic bursts on either side).");
+    rt_svg_begin(p, PAGE_W, axis_y + 20, "Hypnogram with REM activity per channel group");
+    hypnogram(c, hyp_y, row_h);
+    activity_strip(c, strip_y, strip_h);
+    time_axis(c, hyp_y, axis_y);
+    rt_svg_end(p);
+    rt_page_start(p, "p");
+    rt_page_attr(p, "class", "legend muted");
+    rt_page_text(p, "Active 3-s mini-epochs per REM epoch:");
+    legend_item(p, activity_colour(0), "0");
+    legend_item(p, activity_colour(1), "1-2");
+    legend_item(p, activity_colour(3), "3-4");
+    legend_item(p, activity_colour(5), "5-7");
+    legend_item(p, activity_colour(8), "8-10");
+    legend_item(p, "#9aa5b1", "not scorable");
+    rt_page_end_html(p);
+    rt_page_end_html(p);
+}
+
+/* ---- indices against their cutoffs --------------------------------------- */
+
+static double index_scale(const rt_night *n, int i)
+{
+    const rt_index_rule *rule = &rt_index_rules()[i];
+    if (is_pct(rule))
+        return 100.0;
+    if (strcmp(rule->unit, "ratio") == 0)
+        return 1.0;
+    double m = fmax(n->index[i].value, n->cutoffs.has[i] ? n->cutoffs.value[i] : 0);
+    return isfinite(m) && m > 0 ? 1.25 * m : 1.0;
+}
+
+static void write_index_chart(html_ctx *c)
+{
+    rt_page *p = &c->p;
+    const rt_night *n = c->night;
+    const rt_index_rule *rules = rt_index_rules();
+    const double label_w = 250, bar_x = label_w + 10, bar_w = 560, row_h = 26;
+    char v[48], buf[160];
+    rt_svg_begin(p, PAGE_W, RT_IX_COUNT * row_h + 24, "Each index against its cutoff");
+    for (int i = 0; i < RT_IX_COUNT; i++) {
+        const rt_index_value *x = &n->index[i];
+        double y = 6 + i * row_h, scale = index_scale(n, i);
+        rt_svg_text(p, label_w, y + 14, "end", i == (int)n->headline ? "bold" : NULL, rules[i].id);
+        rt_svg_rect(p, bar_x, y + 3, bar_w, row_h - 8, "#f0f3f6", NULL);
+        if (x->status == RT_STATUS_NOT_COMPUTED) {
+            snprintf(buf, sizeof buf, "not computed: %s", x->reason);
+            rt_svg_text(p, bar_x + 6, y + 14, "start", "small", buf);
+            continue;
+        }
+        double w = bar_w * fmin(fmax(x->value / scale, 0), 1);
+        value_text(&rules[i], x->value, v, sizeof v);
+        snprintf(buf, sizeof buf, "%s: %s (%zu of %zu)", rules[i].id, v, x->numerator,
+                 x->denominator);
+        rt_svg_rect(p, bar_x, y + 5, w, row_h - 12, severity_colour(severity(n, i)), buf);
+        if (isfinite(rules[i].context_value)) {
+            double cx = bar_x + bar_w * fmin(rules[i].context_value / scale, 1);
+            rt_svg_line(p, cx, y + 3, cx, y + row_h - 5, "#2f7350", 1.5, "2,2");
+        }
+        if (n->cutoffs.has[i]) {
+            double cx = bar_x + bar_w * fmin(n->cutoffs.value[i] / scale, 1);
+            rt_svg_line(p, cx, y + 1, cx, y + row_h - 3, "#1b2430", 2.0, NULL);
+        }
+        if (n->cutoffs.has[i]) {
+            char cv[48];
+            value_text(&rules[i], n->cutoffs.value[i], cv, sizeof cv);
+            snprintf(buf, sizeof buf, "%s  (cutoff %s%s)", v, rules[i].lower_is_worse ? "below " : "",
+                     cv);
+        } else {
+            snprintf(buf, sizeof buf, "%s  (no published cutoff)", v);
+        }
+        rt_svg_text(p, bar_x + bar_w + 8, y + 14, "start", severity(n, i) == 2 ? "bold" : NULL, buf);
+    }
+    double ly = 6 + RT_IX_COUNT * row_h + 10;
+    rt_svg_line(p, bar_x, ly - 4, bar_x + 14, ly - 4, "#1b2430", 2.0, NULL);
+    rt_svg_text(p, bar_x + 18, ly, "start", "small", "published cutoff (or the lab's own)");
+    rt_svg_line(p, bar_x + 230, ly - 4, bar_x + 244, ly - 4, "#2f7350", 1.5, "2,2");
+    rt_svg_text(p, bar_x + 248, ly, "start", "small", "normative value, for context only");
+    rt_svg_end(p);
+}
+
+static void write_index_table(html_ctx *c)
+{
+    rt_page *p = &c->p;
+    const rt_night *n = c->night;
+    const rt_index_rule *rules = rt_index_rules();
+    char v[48], buf[200];
+    rt_page_start(p, "table");
+    rt_page_start(p, "tr");
+    static const char *const HEAD[] = {"index", "what it counts", "value", "counted", "cutoff",
+                                       "status", "source"};
+    for (size_t h = 0; h < sizeof HEAD / sizeof HEAD[0]; h++)
+        rt_page_element(p, "th", NULL, HEAD[h]);
+    rt_page_end_html(p);
+    for (int i = 0; i < RT_IX_COUNT; i++) {
+        const rt_index_value *x = &n->index[i];
+        rt_page_start(p, "tr");
+        cell(p, rules[i].id, false);
+        cell(p, rules[i].title, false);
+        value_text(&rules[i], x->value, v, sizeof v);
+        cell(p, v, true);
+        snprintf(buf, sizeof buf, "%zu / %zu", x->numerator, x->denominator);
+        cell(p, buf, true);
+        if (n->cutoffs.has[i])
+            value_text(&rules[i], n->cutoffs.value[i], v, sizeof v);
+        else
+            snprintf(v, sizeof v, "none");
+        cell(p, v, true);
+        snprintf(buf, sizeof buf, "%s%s%s", rt_index_status_name(x->status), x->reason[0] ? ": " : "",
+                 x->reason);
+        cell(p, buf, false);
+        snprintf(buf, sizeof buf, "%s%s", rules[i].source,
+                 rules[i].from_memory ? " (value from memory)" : "");
+        cell(p, buf, false);
+        rt_page_end_html(p);
+    }
+    rt_page_end_html(p);
+    rt_page_start(p, "p");
+    rt_page_attr(p, "class", "muted");
+    rt_page_textf(p, "Cutoffs in force: %s. ", n->cutoffs.origin);
+    rt_page_text(p, rt_visual_scoring_note());
+    rt_page_end_html(p);
+}
+
+static void write_indices(html_ctx *c)
+{
+    rt_page *p = &c->p;
+    rt_page_start(p, "section");
+    rt_page_attr(p, "id", "indices");
+    rt_page_element(p, "h2", NULL, "Indices and cutoffs");
+    rt_page_element(p, "p", "muted",
+                    "Bars: percentages on a 0-100 % scale, the REM Atonia Index on 0-1 (lower "
+                    "means less atonia). Red: a cutoff is reached; amber: near it; blue: below; "
+                    "grey: no published cutoff.");
+    write_index_chart(c);
+    write_index_table(c);
+    rt_page_end_html(p);
+}
+
+/* ---- REM bouts through the night ------------------------------------------ */
+
+typedef struct bout_stats {
+    double onset_s;
+    size_t epochs;
+    double pct[GROUP_COUNT]; /* % of scorable 3-s minis active; NaN when none */
+} bout_stats;
+
+static void bout_summary(const rt_night *n, size_t first, size_t count, bout_stats *b)
+{
+    b->onset_s = n->epochs[first].onset_s;
+    b->epochs = count;
+    for (int g = 0; g < GROUP_COUNT; g++) {
+        int act = 0, sc = 0;
+        for (size_t k = first; k < first + count; k++) {
+            int s = 0;
+            act += group_active(n, k, g, &s);
+            sc += s;
+        }
+        b->pct[g] = group_present(n, g) && sc > 0 ? 100.0 * act / sc : NAN;
+    }
+}
+
+static void write_bouts(html_ctx *c)
+{
+    rt_page *p = &c->p;
+    const rt_night *n = c->night;
+    static const char *const COLOUR[GROUP_COUNT] = {"#6b3fa0", "#2a78b5", "#3a9a4a"};
+    rt_page_start(p, "section");
+    rt_page_attr(p, "id", "bouts");
+    rt_page_element(p, "h2", NULL, "Activity in each REM bout");
+    rt_page_element(p, "p", "muted",
+                    "Share of each bout's scorable 3-s mini-epochs with activity (chin: any SINBAR "
+                    "activity; arms, legs: SINBAR phasic). The dashed line is the cutoff of "
+                    "sinbar.chin_any_3s, for orientation.");
+    size_t nb = 0;
+    bout_stats *bs = rt_calloc(n->n_bouts ? n->n_bouts : 1, sizeof *bs);
+    if (!bs) {
+        p->failed = true;
+        return;
+    }
+    for (size_t k = 0; k < n->n_epochs && nb < n->n_bouts;) {
+        size_t j = k;
+        while (j < n->n_epochs && n->epochs[j].bout == n->epochs[k].bout)
+            j++;
+        bout_summary(n, k, j - k, &bs[nb++]);
+        k = j;
+    }
+    const double top = 10, h = 150, base = top + h;
+    double group_w = fmin(90.0, PLOT_W / (double)(nb ? nb : 1));
+    rt_svg_begin(p, PAGE_W, base + 46, "Activity per REM bout");
+    for (int t = 0; t <= 100; t += 25) {
+        char lab[16];
+        double y = base - h * t / 100.0;
+        snprintf(lab, sizeof lab, "%d %%", t);
+        rt_svg_line(p, PLOT_X, y, PLOT_X + group_w * (double)nb, y, "#e1e6ec", 0.8, NULL);
+        rt_svg_text(p, PLOT_X - 6, y + 4, "end", "small", lab);
+    }
+    char tip[160], clock[16];
+    for (size_t b = 0; b < nb; b++) {
+        double gx = PLOT_X + group_w * (double)b;
+        double bw = (group_w - 8) / GROUP_COUNT;
+        rt_report_clock(&c->start, bs[b].onset_s, clock, sizeof clock);
+        for (int g = 0; g < GROUP_COUNT; g++) {
+            if (!isfinite(bs[b].pct[g]))
+                continue;
+            double bh = h * bs[b].pct[g] / 100.0;
+            snprintf(tip, sizeof tip, "bout %zu at %s, %zu epochs: %s %.1f %%", b + 1, clock,
+                     bs[b].epochs, GROUP_NAME[g], bs[b].pct[g]);
+            rt_svg_rect(p, gx + 4 + g * bw, base - bh, bw - 1, bh, COLOUR[g], tip);
+        }
+        clock[5] = '\0';
+        rt_svg_text(p, gx + group_w / 2, base + 13, "middle", "small", clock);
+        char dur[24];
+        snprintf(dur, sizeof dur, "%.1f min", bs[b].epochs * 0.5);
+        rt_svg_text(p, gx + group_w / 2, base + 24, "middle", "small", dur);
+    }
+    if (n->cutoffs.has[RT_IX_SINBAR_CHIN_ANY_3S] && nb > 0) {
+        double y = base - h * n->cutoffs.value[RT_IX_SINBAR_CHIN_ANY_3S] / 100.0;
+        rt_svg_line(p, PLOT_X, y, PLOT_X + group_w * (double)nb, y, "#1b2430", 1.2, "5,3");
+    }
+    rt_svg_line(p, PLOT_X, base, PLOT_X + group_w * (double)(nb ? nb : 1), base, "#7a8794", 0.8,
+                NULL);
+    for (int g = 0; g < GROUP_COUNT; g++) {
+        rt_svg_rect(p, PLOT_X + g * 90.0, base + 32, 10, 10, COLOUR[g], NULL);
+        rt_svg_text(p, PLOT_X + g * 90.0 + 14, base + 41, "start", "small",
+                    group_present(n, g) ? GROUP_NAME[g] : "(not recorded)");
+    }
+    rt_svg_end(p);
+    free(bs);
+    rt_page_end_html(p);
+}
+
+/* ---- evidence epochs: envelopes recomputed with the scorer's conditioning -- */
+
+/* The source of a role as the scorer read it, found again from the label it
+ * recorded: a channel label, or "A-B" for a derivation of two channels. */
+static bool find_source(const rt_recording *rec, const rt_channel_result *cr, rt_role_source *src)
+{
+    memset(src, 0, sizeof *src);
+    src->channel = rt_recording_find_channel(rec, cr->label);
+    src->reference = -1;
+    if (src->channel < 0) {
+        char a[40];
+        for (const char *dash = strchr(cr->label, '-'); dash; dash = strchr(dash + 1, '-')) {
+            size_t len = (size_t)(dash - cr->label);
+            if (len == 0 || len >= sizeof a)
+                continue;
+            memcpy(a, cr->label, len);
+            a[len] = '\0';
+            int ca = rt_recording_find_channel(rec, a), cb = rt_recording_find_channel(rec, dash + 1);
+            if (ca >= 0 && cb >= 0) {
+                src->channel = ca;
+                src->reference = cb;
+                break;
+            }
+        }
+    }
+    if (src->channel < 0)
+        return false;
+    src->rate_hz = rt_recording_channel(rec, src->channel)->rate_hz;
+    rt_copy_string(src->label, sizeof src->label, cr->label);
+    return fabs(src->rate_hz - cr->rate_hz) < 1e-9;
+}
+
+static size_t window_samples(double seconds, double rate)
+{
+    size_t n = (size_t)llround(seconds * rate);
+    return n < 1 ? 1 : n;
+}
+
+typedef struct trace {
+    double *env;        /* envelope of the shown epoch, samples */
+    size_t n;
+    double rate_hz;
+    double background[30]; /* per second of the epoch */
+} trace;
+
+/* Recomputes the envelope and background of one role over the epoch at
+ * epoch_t0 as the scorer did (night.c, score_role_bout): the stretch read
+ * reaches 60 s past the epoch on both sides (clipped to the bout), which
+ * covers the background window of every second of the epoch, so the values
+ * equal the scorer's up to the band-pass's block independence (1e-9). */
+static rt_status recompute(html_ctx *c, const rt_role_source *src, double bout_t0,
+                           double bout_end, double epoch_t0, trace *tr)
+{
+    const rt_score_params *prm = &c->night->params;
+    double t0 = fmax(bout_t0, epoch_t0 - 60.0), t1 = fmin(bout_end, epoch_t0 + 90.0);
+    size_t seconds = (size_t)llround(t1 - t0), off = (size_t)llround(epoch_t0 - t0);
+    double rate = src->rate_hz;
+    long long first = llround(t0 * rate), last = llround(t1 * rate);
+    size_t n = (size_t)(last - first);
+    double *x = rt_calloc(n, sizeof *x), *scratch = rt_calloc(n + 1, sizeof *scratch);
+    double *levels = rt_calloc(seconds, sizeof *levels), *bg = rt_calloc(seconds, sizeof *bg);
+    size_t *starts = rt_calloc(seconds + 1, sizeof *starts);
+    rt_bandpass *bp = NULL;
+    rt_status st = RT_OK;
+    if (!x || !scratch || !levels || !bg || !starts || off + 30 > seconds)
+        st = rt_fail(c->err, RT_ERR_NOMEM, "out of memory for the evidence envelopes");
+    if (st == RT_OK)
+        st = rt_role_read_uv(c->rec, src, first, n, x, scratch, c->err);
+    if (st == RT_OK) {
+        rt_bandpass_spec spec = rt_bandpass_spec_defaults(rate);
+        spec.low_hz = prm->band_low_hz;
+        spec.high_hz = prm->band_high_hz;
+        spec.order = prm->band_order;
+        bp = rt_bandpass_new(&spec, c->err);
+        st = bp ? rt_bandpass_apply(bp, x, n, c->err) : (c->err ? c->err->status : RT_ERR_USAGE);
+    }
+    if (st == RT_OK) {
+        for (size_t j = 0; j <= seconds; j++)
+            starts[j] = (size_t)(llround((t0 + (double)j) * rate) - first);
+        rt_envelope(x, n, window_samples(prm->envelope_window_s, rate), x, scratch);
+        rt_block_quantiles(x, starts, seconds, prm->background_level_quantile,
+                           window_samples(prm->envelope_window_s / 4.0, rate), levels, scratch);
+        rt_background(levels, seconds, (size_t)llround(prm->background_window_s),
+                      prm->background_quantile, bg, scratch);
+        size_t a = starts[off], b = starts[off + 30];
+        tr->n = b - a;
+        tr->rate_hz = rate;
+        tr->env = rt_calloc(tr->n ? tr->n : 1, sizeof *tr->env);
+        if (!tr->env) {
+            st = rt_fail(c->err, RT_ERR_NOMEM, "out of memory for the evidence envelopes");
+        } else {
+            memcpy(tr->env, x + a, tr->n * sizeof *x);
+            memcpy(tr->background, bg + off, sizeof tr->background);
+        }
+    }
+    rt_bandpass_free(bp);
+    free(x);
+    free(scratch);
+    free(levels);
+    free(bg);
+    free(starts);
+    return st;
+}
+
+static void trace_row(html_ctx *c, const trace *tr, rt_role role, size_t k, double y0,
+                      double row_h, double px, double pw)
+{
+    rt_page *p = &c->p;
+    const rt_night *n = c->night;
+    const rt_epoch_result *er = &n->epochs[k];
+    double peak = 5.0;
+    for (size_t i = 0; i < tr->n; i++)
+        peak = fmax(peak, tr->env[i]);
+    for (int s = 0; s < 30; s++)
+        peak = fmax(peak, 2.2 * tr->background[s]);
+    peak *= 1.05;
+    double base = y0 + row_h;
+#define YV(v) (base - row_h * fmin((v) / peak, 1.0))
+    rt_svg_rect(p, px, y0, pw, row_h, "#fbfcfd", NULL);
+    /* tonic and excluded 3-s minis shaded behind the trace */
+    const rt_mini *m = &n->minis3[k * MINIS_PER_EPOCH];
+    for (int i = 0; i < MINIS_PER_EPOCH; i++) {
+        double x = px + pw * i / 10.0;
+        if (m[i].labels[role] & RT_LABEL_EXCLUDED)
+            rt_svg_rect(p, x, y0, pw / 10.0, row_h, "#d5dbe1", "not scorable (event)");
+        else if (m[i].labels[role] & RT_LABEL_SINBAR_TONIC)
+            rt_svg_rect(p, x, y0, pw / 10.0, row_h, "#e7dcf3", "tonic mini-epoch (SINBAR)");
+    }
+    /* bursts the scorer found, as bands along the top: SINBAR (2x) light, AASM (4x) dark */
+    for (size_t b = 0; b < n->n_bursts; b++) {
+        const rt_burst *bu = &n->bursts[b];
+        if (bu->role != role || bu->onset_s + bu->duration_s <= er->onset_s ||
+            bu->onset_s >= er->onset_s + 30 || (bu->rules & RT_LABEL_MONTREAL_PHASIC))
+            continue;
+        double a = fmax(bu->onset_s, er->onset_s) - er->onset_s;
+        double e = fmin(bu->onset_s + bu->duration_s, er->onset_s + 30) - er->onset_s;
+        bool aasm = bu->rules & RT_LABEL_AASM_PHASIC;
+        char tip[120];
+        snprintf(tip, sizeof tip, "%s burst %.2f s, %.1fx background", aasm ? "AASM" : "SINBAR",
+                 bu->duration_s, bu->peak_ratio);
+        rt_svg_rect(p, px + pw * a / 30.0, y0 + (aasm ? 5 : 0), fmax(pw * (e - a) / 30.0, 1.5), 5,
+                    aasm ? "#b83b2e" : "#f0a35c", tip);
+    }
+    /* the envelope: the largest value in each pixel column, so no burst is lost */
+    size_t cols = (size_t)pw;
+    double *xs = rt_calloc(cols, sizeof *xs), *ys = rt_calloc(cols, sizeof *ys);
+    if (xs && ys && tr->n > 0) {
+        for (size_t col = 0; col < cols; col++) {
+            size_t a = col * tr->n / cols, b = (col + 1) * tr->n / cols;
+            double v = 0;
+            for (size_t i = a; i < b || i == a; i++)
+                v = fmax(v, tr->env[i < tr->n ? i : tr->n - 1]);
+            xs[col] = px + (double)col;
+            ys[col] = YV(v);
+        }
+        rt_svg_polyline(p, xs, ys, cols, "#1f3550", 0.9);
+        /* background and twice it, second by second */
+        for (int s = 0; s < 30; s++) {
+            double x = px + pw * s / 30.0, w = pw / 30.0;
+            rt_svg_line(p, x, YV(tr->background[s]), x + w, YV(tr->background[s]), "#2f7350", 1.0,
+                        NULL);
+            rt_svg_line(p, x, YV(2 * tr->background[s]), x + w, YV(2 * tr->background[s]),
+                        "#2f7350", 0.8, "3,2");
+        }
+        if (n->params.tonic_abs_uv < peak)
+            rt_svg_line(p, px, YV(n->params.tonic_abs_uv), px + pw, YV(n->params.tonic_abs_uv),
+                        "#6b3fa0", 0.8, "1,3");
+    } else if (!(xs && ys)) {
+        p->failed = true;
+    }
+    free(xs);
+    free(ys);
+#undef YV
+    char lab[64];
+    rt_svg_text(p, px - 8, y0 + row_h / 2, "end", "bold", rt_role_name(role));
+    snprintf(lab, sizeof lab, "%.0f uV", peak);
+    rt_svg_text(p, px - 8, y0 + row_h / 2 + 13, "end", "small", lab);
+}
+
+static void evidence_plot(html_ctx *c, size_t rank, size_t k)
+{
+    rt_page *p = &c->p;
+    const rt_night *n = c->night;
+    const rt_epoch_result *er = &n->epochs[k];
+    char clock[16], elapsed[24];
+    rt_report_clock(&c->start, er->onset_s, clock, sizeof clock);
+    rt_report_elapsed(er->onset_s, elapsed, sizeof elapsed);
+    rt_page_start(p, "h3");
+    rt_page_textf(p, "#%zu at %s (%s into the recording), epoch %zu, REM bout %zu: %d of 10 "
+                     "mini-epochs active%s", rank + 1, clock, elapsed, er->epoch, er->bout + 1,
+                  er->sinbar_any_minis, er->sinbar_tonic ? ", tonic chin" : "");
+    rt_page_end_html(p);
+    /* bout limits from the epochs list: bouts are runs of consecutive REM epochs */
+    size_t a = k, b = k;
+    while (a > 0 && n->epochs[a - 1].bout == er->bout)
+        a--;
+    while (b + 1 < n->n_epochs && n->epochs[b + 1].bout == er->bout)
+        b++;
+    double bout_t0 = n->epochs[a].onset_s, bout_end = n->epochs[b].onset_s + 30.0;
+    int rows = 0;
+    for (int r = 0; r < RT_ROLE_COUNT; r++)
+        rows += r != RT_ROLE_ECG && n->channel[r].present;
+    const double px = 90, pw = PAGE_W - px - 10, row_h = 58, gap = 8, top = 16;
+    rt_svg_begin(p, PAGE_W, top + rows * (row_h + gap) + 16, "Envelope of an evidence epoch");
+    for (int i = 0; i <= 10; i++) {
+        double x = px + pw * i / 10.0;
+        rt_svg_line(p, x, top - 2, x, top + rows * (row_h + gap) - gap, "#d9dfe6", 0.6, NULL);
+        if (i < 10) {
+            char lab[8];
+            snprintf(lab, sizeof lab, "%d", i + 1);
+            rt_svg_text(p, x + pw / 20.0, top - 5, "middle", "small", lab);
+        }
+    }
+    int row = 0;
+    for (int r = 0; r < RT_ROLE_COUNT && !p->failed; r++) {
+        if (r == RT_ROLE_ECG || !n->channel[r].present)
+            continue;
+        double y0 = top + row * (row_h + gap);
+        row++;
+        rt_role_source src;
+        trace tr = {0};
+        if (!find_source(c->rec, &n->channel[r], &src)) {
+            rt_svg_text(p, px + 6, y0 + row_h / 2, "start", "small",
+                        "channel not found again in the recording");
+            continue;
+        }
+        rt_status st = recompute(c, &src, bout_t0, bout_end, er->onset_s, &tr);
+        if (st != RT_OK) {
+            if (c->status == RT_OK)
+                c->status = st;
+            free(tr.env);
+            break;
+        }
+        trace_row(c, &tr, (rt_role)r, k, y0, row_h, px, pw);
+        free(tr.env);
+    }
+    char t0[16], t1[16];
+    rt_report_clock(&c->start, er->onset_s, t0, sizeof t0);
+    rt_report_clock(&c->start, er->onset_s + 30, t1, sizeof t1);
+    double yb = top + rows * (row_h + gap) + 6;
+    rt_svg_text(p, px, yb, "start", "small", t0);
+    rt_svg_text(p, px + pw, yb, "end", "small", t1);
+    rt_svg_end(p);
+}
+
+/* The recording's own annotations that overlap [t0, t1): technologists'
+ * notes ("talking", "arm jerk") are what a reviewer looks for next. The texts
+ * are untrusted; they go through the escaping writer like every other text. */
+static void recording_notes(html_ctx *c, double t0, double t1)
+{
+    rt_page *p = &c->p;
+    size_t shown = 0;
+    rt_page_start(p, "td");
+    for (size_t i = 0; i < rt_recording_annotation_count(c->rec) && shown < 4; i++) {
+        const rt_annotation *a = rt_recording_annotation(c->rec, i);
+        double end = a->onset_s + (a->duration_s > 0 ? a->duration_s : 0);
+        bool overlaps = a->onset_s < t1 && (end > t0 || (a->onset_s >= t0 && a->onset_s < t1));
+        if (!overlaps || !a->text[0])
+            continue;
+        if (shown++)
+            rt_page_text(p, "; ");
+        rt_page_text(p, a->text);
+    }
+    rt_page_end_html(p);
+}
+
+static void evidence_table(html_ctx *c, const size_t *order, size_t count)
+{
+    rt_page *p = &c->p;
+    const rt_night *n = c->night;
+    static const char *const HEAD[] = {"rank", "clock time", "elapsed", "epoch", "bout",
+                                       "active 3-s minis", "AASM-phasic minis", "tonic chin",
+                                       "score", "notes in the recording"};
+    rt_page_start(p, "table");
+    rt_page_start(p, "tr");
+    for (size_t h = 0; h < sizeof HEAD / sizeof HEAD[0]; h++)
+        rt_page_element(p, "th", NULL, HEAD[h]);
+    rt_page_end_html(p);
+    char buf[64];
+    for (size_t i = 0; i < count; i++) {
+        const rt_epoch_result *er = &n->epochs[order[i]];
+        rt_page_start(p, "tr");
+        snprintf(buf, sizeof buf, "%zu", i + 1);
+        cell(p, buf, true);
+        rt_report_clock(&c->start, er->onset_s, buf, sizeof buf);
+        cell(p, buf, false);
+        rt_report_elapsed(er->onset_s, buf, sizeof buf);
+        cell(p, buf, false);
+        snprintf(buf, sizeof buf, "%zu", er->epoch);
+        cell(p, buf, true);
+        snprintf(buf, sizeof buf, "%zu", er->bout + 1);
+        cell(p, buf, true);
+        snprintf(buf, sizeof buf, "%d / 10", er->sinbar_any_minis);
+        cell(p, buf, true);
+        snprintf(buf, sizeof buf, "%d", er->aasm_any_minis);
+        cell(p, buf, true);
+        snprintf(buf, sizeof buf, "%s (%.0f %%)", er->sinbar_tonic ? "yes" : "no",
+                 100.0 * er->tonic_share);
+        cell(p, buf, false);
+        snprintf(buf, sizeof buf, "%.1f", er->activity);
+        cell(p, buf, true);
+        recording_notes(c, er->onset_s, er->onset_s + 30.0);
+        rt_page_end_html(p);
+    }
+    rt_page_end_html(p);
+}
+
+static void write_evidence(html_ctx *c)
+{
+    rt_page *p = &c->p;
+    size_t order[EVIDENCE_ROWS];
+    size_t count = rt_report_rank_evidence(c->night, order, EVIDENCE_ROWS);
+    rt_page_start(p, "section");
+    rt_page_attr(p, "id", "evidence");
+    rt_page_element(p, "h2", NULL, "Evidence: the most active REM epochs");
+    if (count == 0) {
+        rt_page_element(p, "p", NULL, "No REM epoch holds detected activity.");
+        rt_page_end_html(p);
+        return;
+    }
+    rt_page_element(p, "p", "muted",
+                    "Go to these epochs on the raw signals and the video. Traces: the rectified "
+                    "envelope the scorer used (dark line), its background (green) and twice the "
+                    "background (green dashes), the absolute tonic level (purple dots). Bands on "
+                    "top: bursts at twice background (SINBAR, light) and four times (AASM, dark). "
+                    "Shaded columns: tonic 3-s mini-epochs (violet) and mini-epochs left out "
+                    "(grey). Numbers above: the 3-s mini-epochs. Epochs count from 0 at the "
+                    "recording start, as in the JSON and CSV files.");
+    for (size_t i = 0; i < count && i < EVIDENCE_PLOTS && !p->failed && c->status == RT_OK; i++)
+        evidence_plot(c, i, order[i]);
+    rt_page_element(p, "h3", NULL, "Ranked list");
+    evidence_table(c, order, count);
+    rt_page_end_html(p);
+}
+
+/* ---- quality, exclusions, warnings, cautions ------------------------------ */
+
+/* Median over the scored REM 3-s mini-epochs of their median envelope: the
+ * channel's typical REM level, for judging the electrode (atonia is a low,
+ * steady value). NaN when nothing was scored. */
+static double rem_level_uv(const rt_night *n, rt_role r)
+{
+    double *v = rt_calloc(n->n_minis3 ? n->n_minis3 : 1, sizeof *v);
+    size_t m = 0;
+    if (!v)
+        return NAN;
+    for (size_t i = 0; i < n->n_minis3; i++)
+        if (!(n->minis3[i].labels[r] & (RT_LABEL_EXCLUDED | RT_LABEL_ABSENT)) &&
+            isfinite(n->minis3[i].envelope_uv[r]))
+            v[m++] = n->minis3[i].envelope_uv[r];
+    double q = m ? rt_quantile(v, m, 0.5) : NAN;
+    free(v);
+    return q;
+}
+
+static void write_quality(html_ctx *c)
+{
+    rt_page *p = &c->p;
+    const rt_night *n = c->night;
+    const rt_exclusion_summary *ex = &n->exclusions;
+    char buf[160];
+    rt_page_start(p, "section");
+    rt_page_attr(p, "id", "quality");
+    rt_page_element(p, "h2", NULL, "Channels, exclusions and warnings");
+    rt_page_start(p, "table");
+    rt_page_start(p, "tr");
+    static const char *const HEAD[] = {"role", "channel", "rate", "band used", "REM level",
+                                       "note"};
+    for (size_t h = 0; h < sizeof HEAD / sizeof HEAD[0]; h++)
+        rt_page_element(p, "th", NULL, HEAD[h]);
+    rt_page_end_html(p);
+    for (int r = 0; r < RT_ROLE_COUNT; r++) {
+        if (r == RT_ROLE_ECG)
+            continue;
+        const rt_channel_result *cr = &n->channel[r];
+        rt_page_start(p, "tr");
+        cell(p, rt_role_name((rt_role)r), false);
+        if (!cr->present) {
+            cell(p, "not recorded", false);
+            cell(p, "", false);
+            cell(p, "", false);
+            cell(p, "", false);
+            cell(p, "", false);
+        } else {
+            cell(p, cr->label, false);
+            snprintf(buf, sizeof buf, "%g Hz", cr->rate_hz);
+            cell(p, buf, true);
+            snprintf(buf, sizeof buf, "%g-%g Hz", n->params.band_low_hz, cr->band_high_hz);
+            cell(p, buf, false);
+            double level = isfinite(cr->rem_median_uv) && cr->rem_median_uv > 0
+                               ? cr->rem_median_uv
+                               : rem_level_uv(n, (rt_role)r);
+            if (isfinite(level))
+                snprintf(buf, sizeof buf, "%.2f uV", level);
+            else
+                snprintf(buf, sizeof buf, "-");
+            cell(p, buf, true);
+            cell(p, cr->low_rate ? "sampled below the AASM minimum" : "", false);
+        }
+        rt_page_end_html(p);
+    }
+    rt_page_end_html(p);
+
+    rt_page_element(p, "h3", NULL, "REM left out of the indices");
+    rt_page_start(p, "ul");
+    bool any = false;
+    for (int t = 0; t < RT_EVENT_TYPE_COUNT; t++) {
+        if (!(ex->minutes[t] > 0))
+            continue;
+        any = true;
+        snprintf(buf, sizeof buf, "%s: %.1f min", rt_event_type_name((rt_event_type)t),
+                 ex->minutes[t]);
+        rt_page_element(p, "li", NULL, buf);
+    }
+    if (ex->outside_lights_minutes > 0) {
+        any = true;
+        snprintf(buf, sizeof buf, "outside lights-off to lights-on: %.1f min",
+                 ex->outside_lights_minutes);
+        rt_page_element(p, "li", NULL, buf);
+    }
+    snprintf(buf, sizeof buf, "%s: %.1f of %.1f min of REM left out", any ? "in all" : "none",
+             ex->total_minutes, n->rem_minutes);
+    rt_page_element(p, "li", NULL, buf);
+    if (isfinite(ex->rem_ahi)) {
+        snprintf(buf, sizeof buf, "REM apnea-hypopnea index: %.1f per hour%s", ex->rem_ahi,
+                 ex->rem_ahi >= 15 ? " (15 or more: indices are less reliable)" : "");
+        rt_page_element(p, "li", NULL, buf);
+    } else {
+        rt_page_element(p, "li", NULL, "No respiratory events were given: confounding by sleep "
+                                       "apnea cannot be judged from this report.");
+    }
+    if (isfinite(ex->rem_leg_movements_per_h)) {
+        snprintf(buf, sizeof buf, "Limb movements in REM: %.1f per hour",
+                 ex->rem_leg_movements_per_h);
+        rt_page_element(p, "li", NULL, buf);
+    }
+    rt_page_end_html(p);
+
+    rt_page_element(p, "h3", NULL, "Warnings");
+    rt_page_start(p, "ul");
+    for (size_t i = 0; i < n->n_warnings; i++)
+        rt_page_element(p, "li", NULL, n->warnings[i]);
+    if (n->n_warnings == 0)
+        rt_page_element(p, "li", NULL, "none");
+    rt_page_end_html(p);
+    rt_page_end_html(p);
+}
+
+static void write_cautions(html_ctx *c)
+{
+    rt_page *p = &c->p;
+    rt_page_start(p, "section");
+    rt_page_attr(p, "id", "cautions");
+    rt_page_attr(p, "class", "caution");
+    rt_page_element(p, "h2", NULL, "Cautions");
+    rt_page_start(p, "ol");
+    for (size_t i = 0; i < rt_caution_count(); i++)
+        rt_page_element(p, "li", NULL, rt_caution(i));
+    rt_page_end_html(p);
+    rt_page_element(p, "p", NULL, rt_visual_scoring_note());
+    rt_page_end_html(p);
+}
+
+static void write_footer(html_ctx *c)
+{
+    rt_page *p = &c->p;
+    const rt_score_params *prm = &c->night->params;
+    char when[32];
+    time_t now = time(NULL);
+    struct tm tm;
+    gmtime_r(&now, &tm);
+    strftime(when, sizeof when, "%Y-%m-%d %H:%M UTC", &tm);
+    rt_page_start(p, "footer");
+    rt_page_textf(p, "remtone %s, %s. Band %g-%g Hz (order %d), envelope %g s, background: "
+                     "%g quantile of 1-s levels over %g s; tonic absolute level %g uV. "
+                     "Cutoffs: %s. Definitions: docs/scoring.md; this page: "
+                     "docs/review-report.md.", rt_version(), when, prm->band_low_hz,
+                  prm->band_high_hz, prm->band_order, prm->envelope_window_s,
+                  prm->background_quantile, prm->background_window_s, prm->tonic_abs_uv,
+                  c->night->cutoffs.origin);
+    rt_page_end_html(p);
+}
+
+static void write_page(html_ctx *c)
+{
+    rt_page *p = &c->p;
+    if (xmlTextWriterWriteDTD(p->w, (const xmlChar *)"html", NULL, NULL, NULL) < 0 ||
+        xmlTextWriterWriteRaw(p->w, (const xmlChar *)"\n") < 0)
+        p->failed = true;
+    rt_page_start(p, "html");
+    rt_page_attr(p, "xmlns", "http://www.w3.org/1999/xhtml");
+    rt_page_attr(p, "lang", "en");
+    write_head(c);
+    rt_page_start(p, "body");
+    write_banner(c);
+    rt_page_start(p, "main");
+    write_summary(c);
+    write_overview(c);
+    write_indices(c);
+    write_bouts(c);
+    write_evidence(c);
+    write_quality(c);
+    write_cautions(c);
+    rt_page_end_html(p);
+    write_footer(c);
+    rt_page_end_html(p);
+    rt_page_end_html(p);
+    if (!p->failed && xmlTextWriterEndDocument(p->w) < 0)
+        p->failed = true;
+}
+
+rt_status rt_night_write_html(const rt_night *night, rt_recording *rec, const rt_timeline *tl,
+                              const rt_report_options *options, const char *path, rt_error *err)
+{
+    if (!night || !rec || !path)
+        return rt_fail(err, RT_ERR_USAGE, "review report: night, recording and path are needed");
+    html_ctx c;
+    memset(&c, 0, sizeof c);
+    c.night = night;
+    c.rec = rec;
+    c.tl = tl;
+    c.opt = options;
+    c.err = err;
+    c.start = rt_recording_start(rec);
+    c.span_s = night->recording_s;
+    if (tl && tl->n_epochs * tl->epoch_s > c.span_s)
+        c.span_s = (double)tl->n_epochs * tl->epoch_s;
+
+    xmlBufferPtr buf = xmlBufferCreate();
+    c.p.w = buf ? xmlNewTextWriterMemory(buf, 0) : NULL;
+    if (!c.p.w) {
+        xmlBufferFree(buf);
+        return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory for the review report", path);
+    }
+    write_page(&c);
+    xmlFreeTextWriter(c.p.w); /* flushes into buf */
+    rt_status st = c.status;
+    if (st == RT_OK && c.p.failed)
+        st = rt_fail(err, RT_ERR_NOMEM, "%s: cannot compose the review report", path);
+    rt_output out;
+    if (st == RT_OK)
+        st = rt_output_begin(&out, path, 1, err);
+    if (st == RT_OK) {
+        size_t len = (size_t)xmlBufferLength(buf);
+        if (fwrite(xmlBufferContent(buf), 1, len, out.file) != len || fputc('\n', out.file) == EOF) {
+            rt_output_abort(&out);
+            st = rt_fail(err, RT_ERR_IO, "%s: cannot write the review report", path);
+        } else {
+            st = rt_output_commit(&out, err);
+        }
+    }
+    xmlBufferFree(buf);
+    return st;
+}

@@ -1,0 +1,101 @@
+/* The audit table: one CSV row per REM 3-s mini-epoch and EMG channel
+ * present, with the levels and labels the indices are counted from, so that a
+ * reviewer (or a spreadsheet) can recount every 3-s index of the night.
+ * Columns and meanings: docs/review-report.md. Channel labels come from the
+ * recording header, which is untrusted: fields are quoted as RFC 4180 says
+ * and a value that a spreadsheet would run as a formula gets a leading
+ * apostrophe. Written atomically. */
+#include <math.h>
+#include <stdio.h>
+#include <string.h>
+
+#include "internal.h"
+#include "output.h"
+#include "remtone/report.h"
+#include "svg.h"
+
+/* Writes one text field: formula-looking values are defused (a leading =, +,
+ * -, @, tab or carriage return, the triggers spreadsheet programs act on,
+ * common practice), then the field is quoted when it holds a comma, quote or
+ * line break, doubling inner quotes (RFC 4180). */
+static void put_field(FILE *f, const char *s)
+{
+    bool formula = s[0] == '=' || s[0] == '+' || s[0] == '-' || s[0] == '@' || s[0] == '\t' ||
+                   s[0] == '\r';
+    bool quote = strpbrk(s, ",\"\r\n") != NULL;
+    if (quote)
+        fputc('"', f);
+    if (formula)
+        fputc('\'', f);
+    for (const char *c = s; *c; c++) {
+        if (*c == '"')
+            fputc('"', f);
+        fputc(*c, f);
+    }
+    if (quote)
+        fputc('"', f);
+}
+
+/* Event names that left this mini-epoch out, joined by '+'; "unscorable" when
+ * the channel is marked excluded without a recorded event. Empty when scored. */
+static void excluded_text(const rt_mini *m, rt_role role, char *buf, size_t cap)
+{
+    buf[0] = '\0';
+    if (!(m->labels[role] & RT_LABEL_EXCLUDED))
+        return;
+    size_t len = 0;
+    for (int t = 0; t < RT_EVENT_TYPE_COUNT; t++)
+        if (m->excluded_by & (1u << t))
+            len += (size_t)snprintf(buf + len, len < cap ? cap - len : 0, "%s%s", len ? "+" : "",
+                                    rt_event_type_name((rt_event_type)t));
+    if (len == 0)
+        snprintf(buf, cap, "unscorable");
+}
+
+static int bit(unsigned char labels, unsigned flag) { return (labels & flag) ? 1 : 0; }
+
+static void put_level(FILE *f, float v)
+{
+    if (isfinite(v))
+        fprintf(f, "%.3f", (double)v);
+}
+
+rt_status rt_night_write_minis_csv(const rt_night *night, const rt_recording *rec,
+                                   const char *path, rt_error *err)
+{
+    rt_output out;
+    rt_status st = rt_output_begin(&out, path, 1, err);
+    if (st != RT_OK)
+        return st;
+    FILE *f = out.file;
+    rt_clock_time start = rt_recording_start(rec);
+    fprintf(f, "epoch,mini,clock_time,elapsed_s,stage,role,label,envelope_uv,background_uv,"
+               "aasm_phasic,sinbar_phasic,sinbar_tonic,sinbar_any,excluded_by\n");
+    for (size_t i = 0; i < night->n_minis3 && !ferror(f); i++) {
+        const rt_mini *m = &night->minis3[i];
+        char clock[16], excl[160];
+        rt_report_clock(&start, m->onset_s, clock, sizeof clock);
+        for (int r = 0; r < RT_ROLE_COUNT; r++) {
+            if (r == RT_ROLE_ECG || !night->channel[r].present)
+                continue;
+            unsigned char l = m->labels[r];
+            fprintf(f, "%zu,%d,%s,%.3f,R,%s,", m->epoch, m->index, clock, m->onset_s,
+                    rt_role_name((rt_role)r));
+            put_field(f, night->channel[r].label);
+            fputc(',', f);
+            put_level(f, m->envelope_uv[r]);
+            fputc(',', f);
+            put_level(f, m->background_uv[r]);
+            excluded_text(m, (rt_role)r, excl, sizeof excl);
+            fprintf(f, ",%d,%d,%d,%d,", bit(l, RT_LABEL_AASM_PHASIC), bit(l, RT_LABEL_SINBAR_PHASIC),
+                    bit(l, RT_LABEL_SINBAR_TONIC), bit(l, RT_LABEL_SINBAR_ANY));
+            put_field(f, excl);
+            fputc('\n', f);
+        }
+    }
+    if (ferror(f)) {
+        rt_output_abort(&out);
+        return rt_fail(err, RT_ERR_IO, "%s: cannot write the mini-epoch table", path);
+    }
+    return rt_output_commit(&out, err);
+}
