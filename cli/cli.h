@@ -52,5 +52,6 @@ int cli_exit_code(rt_status status, int output);
 int cli_report(const rt_error *err, int output);
 
 extern const cli_command CLI_SCAN, CLI_SYNTH, CLI_SCORE, CLI_RULES;
+extern const cli_command CLI_COHORT, CLI_COHORT_MERGE; /* cmd_cohort.c */
 
 #endif

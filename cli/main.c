@@ -5,7 +5,7 @@
 
 #include "cli.h"
 
-static const cli_command *const COMMANDS[] = {&CLI_SCORE, &CLI_SCAN, &CLI_SYNTH, &CLI_RULES};
+static const cli_command *const COMMANDS[] = {&CLI_SCORE, &CLI_SCAN, &CLI_SYNTH, &CLI_RULES, &CLI_COHORT, &CLI_COHORT_MERGE};
 enum { N_COMMANDS = sizeof COMMANDS / sizeof COMMANDS[0] };
 
 static void usage(FILE *out)
@@ -13,7 +13,7 @@ static void usage(FILE *out)
     fprintf(out, "remtone %s: REM sleep without atonia from scored polysomnography\n\n"
                  "usage: remtone COMMAND [options]\n\ncommands:\n", rt_version());
     for (int i = 0; i < N_COMMANDS; i++)
-        fprintf(out, "  %-8s %s\n", COMMANDS[i]->name, COMMANDS[i]->summary);
+        fprintf(out, "  %-13s %s\n", COMMANDS[i]->name, COMMANDS[i]->summary);
     fprintf(out, "\n'remtone COMMAND --help' lists a command's options. "
                  "Exit codes: README.md.\n");
 }

@@ -11,5 +11,6 @@
 #include "remtone/synth.h"
 #include "remtone/score.h"
 #include "remtone/report.h"
+#include "remtone/cohort.h"
 
 #endif

@@ -1,0 +1,205 @@
+/* remtone cohort MANIFEST --out DIR: score a cohort in parallel, resumably,
+ * and gather its table and calibration; remtone cohort-merge DIR: gather
+ * only (after the parts of a Slurm array). docs/cohort.md. */
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
+#include "cli.h"
+#include "remtone/cohort.h"
+
+enum { KEY_OUT = 1, KEY_JOBS, KEY_FORCE, KEY_PART, KEY_CUTOFFS, KEY_POSITIVE, KEY_NEGATIVE,
+       KEY_QUIET, KEY_MIN_REM };
+
+static const cli_option OPTIONS[] = {
+    {"out", 1, KEY_OUT, "DIR", "output folder (created when missing; required)"},
+    {"jobs", 1, KEY_JOBS, "N", "worker threads (default: online processor cores)"},
+    {"force", 0, KEY_FORCE, NULL, "rescore nights whose result is current"},
+    {"part", 1, KEY_PART, "K/N", "score only slice K of N (1-based, by a hash of the id); "
+                                 "run cohort-merge after all parts"},
+    {"cutoffs", 1, KEY_CUTOFFS, "FILE", "a lab's own cutoffs (CSV index,cutoff)"},
+    {"positive", 1, KEY_POSITIVE, "GROUP", "group of the positive class for calibration (default case)"},
+    {"negative", 1, KEY_NEGATIVE, "GROUP", "group of the negative class (default control)"},
+    {"min-rem", 1, KEY_MIN_REM, "MIN", "least scorable REM minutes for an assessable night (default 5)"},
+    {"quiet", 0, KEY_QUIET, NULL, "no progress line and no summary"},
+    {0},
+};
+
+static const cli_option MERGE_OPTIONS[] = {
+    {"cutoffs", 1, KEY_CUTOFFS, "FILE", "cutoffs the run used (tabulated besides the published ones)"},
+    {"positive", 1, KEY_POSITIVE, "GROUP", "group of the positive class (default case)"},
+    {"negative", 1, KEY_NEGATIVE, "GROUP", "group of the negative class (default control)"},
+    {"quiet", 0, KEY_QUIET, NULL, "no summary"},
+    {0},
+};
+
+typedef struct cohort_config {
+    rt_cohort_options o;
+    int quiet;
+    const char *cmd;
+} cohort_config;
+
+static int parse_part(cohort_config *c, const char *arg)
+{
+    char *end = NULL;
+    unsigned long k = strtoul(arg, &end, 10);
+    if (end == arg || *end != '/') {
+        fprintf(stderr, "remtone %s: --part must be K/N, got '%s'\n", c->cmd, arg);
+        return EXIT_USAGE;
+    }
+    const char *rest = end + 1;
+    unsigned long n = strtoul(rest, &end, 10);
+    if (end == rest || *end || arg[0] == '-' || rest[0] == '-' || n < 1 || n > 100000 || k < 1 ||
+        k > n) {
+        fprintf(stderr, "remtone %s: --part K/N needs 1 <= K <= N <= 100000, got '%s'\n", c->cmd,
+                arg);
+        return EXIT_USAGE;
+    }
+    c->o.part = (unsigned)k;
+    c->o.part_count = (unsigned)n;
+    return EXIT_OK;
+}
+
+static int on_option(void *ctx, int key, const char *arg)
+{
+    cohort_config *c = ctx;
+    char *end = NULL;
+    switch (key) {
+    case KEY_OUT: c->o.out_dir = arg; break;
+    case KEY_FORCE: c->o.force = true; break;
+    case KEY_CUTOFFS: c->o.cutoffs_path = arg; break;
+    case KEY_POSITIVE: c->o.positive = arg; break;
+    case KEY_NEGATIVE: c->o.negative = arg; break;
+    case KEY_QUIET: c->quiet = 1; break;
+    case KEY_PART: return parse_part(c, arg);
+    case KEY_JOBS: {
+        long j = strtol(arg, &end, 10);
+        if (end == arg || *end || j < 1 || j > 256) {
+            fprintf(stderr, "remtone %s: --jobs must be 1 to 256, got '%s'\n", c->cmd, arg);
+            return EXIT_USAGE;
+        }
+        c->o.jobs = (int)j;
+        break;
+    }
+    case KEY_MIN_REM:
+        c->o.params.min_scorable_min = strtod(arg, &end);
+        if (end == arg || *end || !(c->o.params.min_scorable_min >= 0 &&
+                                    c->o.params.min_scorable_min <= 600)) {
+            fprintf(stderr, "remtone %s: --min-rem must be 0 to 600 minutes, got '%s'\n", c->cmd, arg);
+            return EXIT_USAGE;
+        }
+        break;
+    }
+    return EXIT_OK;
+}
+
+static void clock_text(char *dst, size_t cap, double s)
+{
+    if (s < 0) {
+        snprintf(dst, cap, "?");
+        return;
+    }
+    long t = (long)(s + 0.5);
+    snprintf(dst, cap, "%ld:%02ld:%02ld", t / 3600, t / 60 % 60, t % 60);
+}
+
+/* One line on a terminal, rewritten in place. */
+static void show_progress(const rt_cohort_progress *p, void *user)
+{
+    (void)user;
+    char left[32], spent[32];
+    clock_text(left, sizeof left, p->remaining_s);
+    clock_text(spent, sizeof spent, p->elapsed_s);
+    fprintf(stderr, "\r%zu/%zu nights done (%zu scored, %zu current, %zu failed), %.1f/min, "
+                    "%s elapsed, %s left  ",
+            p->done, p->total, p->scored, p->skipped, p->failed, p->rate_per_min, spent, left);
+    fflush(stderr);
+}
+
+static int merge_and_report(cohort_config *c)
+{
+    rt_error err;
+    rt_error_clear(&err);
+    rt_cohort_merge_summary s;
+    if (rt_cohort_merge(&c->o, &s, &err) != RT_OK)
+        return cli_report(&err, err.status == RT_ERR_IO);
+    if (!c->quiet)
+        printf("%s: %zu nights in cohort.csv (%zu scored, %zu failed%s); calibration on %zu "
+               "\"%s\" and %zu \"%s\" nights\n",
+               c->o.out_dir, s.nights, s.scored, s.failed,
+               s.incomplete ? ", some incomplete results ignored" : "", s.positives, c->o.positive,
+               s.negatives, c->o.negative);
+    return EXIT_OK;
+}
+
+static int run(int argc, char **argv)
+{
+    cohort_config c;
+    memset(&c, 0, sizeof c);
+    rt_cohort_options_default(&c.o);
+    c.cmd = "cohort";
+    char *pos[1];
+    int npos = 0;
+    int rc = cli_parse(&CLI_COHORT, argc, argv, on_option, &c, pos, 1, &npos);
+    if (rc != EXIT_OK)
+        return rc < 0 ? EXIT_OK : rc;
+    if (npos != 1 || !c.o.out_dir) {
+        fprintf(stderr, "remtone cohort: give a manifest and --out DIR (remtone cohort --help)\n");
+        return EXIT_USAGE;
+    }
+    if (strcmp(c.o.positive, c.o.negative) == 0) {
+        fprintf(stderr, "remtone cohort: --positive and --negative name the same group\n");
+        return EXIT_USAGE;
+    }
+    rt_error err;
+    rt_error_clear(&err);
+    rt_manifest *m = rt_manifest_load(pos[0], &err);
+    if (!m)
+        return cli_report(&err, 0);
+    bool tty = !c.quiet && isatty(STDERR_FILENO);
+    if (tty)
+        c.o.progress = show_progress;
+    rt_cohort_progress p;
+    rt_status st = rt_cohort_run(m, &c.o, &p, &err);
+    rt_manifest_free(m);
+    if (tty)
+        fputc('\n', stderr);
+    if (st != RT_OK)
+        return cli_report(&err, st == RT_ERR_IO);
+    if (!c.quiet)
+        printf("%s: %zu nights: %zu scored, %zu already current, %zu failed (nights/*.error.json)\n",
+               c.o.out_dir, p.total, p.scored, p.skipped, p.failed);
+    /* the parts of a split run gather once, with cohort-merge, after all finish */
+    if (c.o.part_count > 1)
+        return EXIT_OK;
+    return merge_and_report(&c);
+}
+
+static int run_merge(int argc, char **argv)
+{
+    cohort_config c;
+    memset(&c, 0, sizeof c);
+    rt_cohort_options_default(&c.o);
+    c.cmd = "cohort-merge";
+    char *pos[1];
+    int npos = 0;
+    int rc = cli_parse(&CLI_COHORT_MERGE, argc, argv, on_option, &c, pos, 1, &npos);
+    if (rc != EXIT_OK)
+        return rc < 0 ? EXIT_OK : rc;
+    if (npos != 1) {
+        fprintf(stderr, "remtone cohort-merge: give the output folder of a cohort run\n");
+        return EXIT_USAGE;
+    }
+    c.o.out_dir = pos[0];
+    return merge_and_report(&c);
+}
+
+const cli_command CLI_COHORT = {
+    "cohort", "MANIFEST --out DIR [--jobs N] [--force] [--part K/N] [options]",
+    "Score a cohort from a manifest: resumable, parallel, shardable; table and calibration.",
+    OPTIONS, run};
+
+const cli_command CLI_COHORT_MERGE = {
+    "cohort-merge", "DIR [--positive GROUP] [--negative GROUP] [--cutoffs FILE]",
+    "Rebuild cohort.csv, calibration and cohort.html from DIR/nights (after --part runs).",
+    MERGE_OPTIONS, run_merge};

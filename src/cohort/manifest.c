@@ -1,0 +1,229 @@
+/* The cohort manifest: one row per night naming its recording, staging,
+ * events, group and any per-night channel overrides. Read with the shared
+ * table reader, so quoting, tabs, a byte-order mark and CRLF behave as in
+ * every other table; each row is checked here (safe id, no duplicate, input
+ * files present) and every message names the manifest line. */
+#include "remtone/cohort.h"
+
+#include <errno.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+#include <xxhash.h>
+
+#include "internal.h"
+#include "table.h"
+
+enum { COL_ID = 0, COL_RECORDING, COL_STAGES, COL_EVENTS, COL_GROUP, COL_ROLE0 };
+
+typedef struct loader {
+    rt_manifest *m;
+    size_t cap;
+    char dir[4096]; /* the manifest's folder, "" when it is the working one */
+} loader;
+
+bool rt_cohort_id_is_safe(const char *id)
+{
+    size_t n = strlen(id);
+    if (n == 0 || n > RT_COHORT_ID_MAX || id[0] == '.' || id[0] == '-')
+        return false;
+    for (size_t i = 0; i < n; i++) {
+        char c = id[i];
+        if (!((c >= 'a' && c <= 'z') || (c >= 'A' && c <= 'Z') || (c >= '0' && c <= '9') ||
+              c == '.' || c == '_' || c == '-'))
+            return false;
+    }
+    /* nights/ID.json of "x.error" would be the failure record of "x" */
+    static const char *const reserved[] = {".error", ".key"};
+    for (size_t k = 0; k < 2; k++) {
+        size_t r = strlen(reserved[k]);
+        if (n >= r && rt_equal_nocase(id + n - r, reserved[k]))
+            return false;
+    }
+    return true;
+}
+
+unsigned rt_cohort_part_of(const char *id, unsigned n_parts)
+{
+    if (n_parts <= 1)
+        return 0;
+    return (unsigned)(XXH3_64bits(id, strlen(id)) % n_parts);
+}
+
+/* Resolves a path from the manifest against the manifest's folder and checks
+ * that it names a readable regular file. */
+static char *resolve(rt_table *t, loader *l, const char *id, const char *what, const char *value)
+{
+    size_t need = strlen(l->dir) + strlen(value) + 2;
+    char *path = malloc(need);
+    if (!path) {
+        rt_table_fail(t, rt_fail(&t->error, RT_ERR_NOMEM, "%s: out of memory", t->path));
+        return NULL;
+    }
+    if (value[0] == '/' || !l->dir[0])
+        snprintf(path, need, "%s", value);
+    else
+        snprintf(path, need, "%s/%s", l->dir, value);
+    struct stat sb;
+    const char *why = NULL;
+    if (stat(path, &sb) != 0)
+        why = strerror(errno);
+    else if (!S_ISREG(sb.st_mode))
+        why = "not a regular file";
+    if (why) {
+        char q[RT_TABLE_QUOTE_MAX + 8];
+        rt_table_quote(q, sizeof q, value);
+        rt_table_fail(t, rt_fail(&t->error, RT_ERR_IO, "%s line %ld (night %s): %s '%s' (%s): %s",
+                                 t->path, t->row_line, id, what, q, path, why));
+        free(path);
+        return NULL;
+    }
+    return path;
+}
+
+static void entry_free(rt_manifest_entry *e)
+{
+    free(e->recording);
+    free(e->stages);
+    free(e->events);
+    for (int r = 0; r < RT_ROLE_COUNT; r++)
+        free(e->role_override[r]);
+    memset(e, 0, sizeof *e);
+}
+
+static bool check_id(rt_table *t, loader *l, const char *id)
+{
+    char q[RT_TABLE_QUOTE_MAX + 8];
+    rt_table_quote(q, sizeof q, id);
+    if (!rt_cohort_id_is_safe(id)) {
+        rt_table_fail(t, rt_fail(&t->error, RT_ERR_STAGING,
+                                 "%s line %ld: id '%s' is not a safe file name (use 1-%d letters, "
+                                 "digits, '.', '_' or '-', not starting with '.' or '-', not "
+                                 "ending in .error or .key)",
+                                 t->path, t->row_line, q, RT_COHORT_ID_MAX));
+        return false;
+    }
+    for (size_t i = 0; i < l->m->n_entries; i++) {
+        if (rt_equal_nocase(l->m->entries[i].id, id)) {
+            rt_table_fail(t, rt_fail(&t->error, RT_ERR_STAGING,
+                                     "%s line %ld: duplicate id '%s' (first on line %ld; ids are "
+                                     "compared ignoring case)",
+                                     t->path, t->row_line, q, l->m->entries[i].line));
+            return false;
+        }
+    }
+    return true;
+}
+
+static void on_row(rt_table *t, char **v)
+{
+    loader *l = t->user;
+    if (t->status != RT_OK)
+        return;
+    if (!check_id(t, l, v[COL_ID]))
+        return;
+    if (!v[COL_RECORDING][0]) {
+        rt_table_fail(t, rt_fail(&t->error, RT_ERR_STAGING,
+                                 "%s line %ld (night %s): the recording is empty", t->path,
+                                 t->row_line, v[COL_ID]));
+        return;
+    }
+    if (strlen(v[COL_GROUP]) > RT_COHORT_GROUP_MAX) {
+        rt_table_fail(t, rt_fail(&t->error, RT_ERR_STAGING,
+                                 "%s line %ld (night %s): group longer than %d bytes", t->path,
+                                 t->row_line, v[COL_ID], RT_COHORT_GROUP_MAX));
+        return;
+    }
+    if (l->m->n_entries == l->cap) {
+        size_t cap = l->cap ? 2 * l->cap : 64;
+        rt_manifest_entry *grown = realloc(l->m->entries, cap * sizeof *grown);
+        if (!grown) {
+            rt_table_fail(t, rt_fail(&t->error, RT_ERR_NOMEM, "%s: out of memory", t->path));
+            return;
+        }
+        l->m->entries = grown;
+        l->cap = cap;
+    }
+    rt_manifest_entry e;
+    memset(&e, 0, sizeof e);
+    rt_copy_string(e.id, sizeof e.id, v[COL_ID]);
+    rt_copy_string(e.group, sizeof e.group, v[COL_GROUP]);
+    e.line = t->row_line;
+    bool ok = (e.recording = resolve(t, l, e.id, "recording", v[COL_RECORDING])) != NULL;
+    if (ok && v[COL_STAGES][0])
+        ok = (e.stages = resolve(t, l, e.id, "stages", v[COL_STAGES])) != NULL;
+    if (ok && v[COL_EVENTS][0])
+        ok = (e.events = resolve(t, l, e.id, "events", v[COL_EVENTS])) != NULL;
+    for (int r = 0; ok && r < RT_ROLE_COUNT; r++) {
+        if (v[COL_ROLE0 + r][0] && !(e.role_override[r] = strdup(v[COL_ROLE0 + r]))) {
+            rt_table_fail(t, rt_fail(&t->error, RT_ERR_NOMEM, "%s: out of memory", t->path));
+            ok = false;
+        }
+    }
+    if (!ok) {
+        entry_free(&e);
+        return;
+    }
+    l->m->entries[l->m->n_entries++] = e;
+}
+
+rt_manifest *rt_manifest_load(const char *path, rt_error *err)
+{
+    rt_manifest *m = rt_calloc(1, sizeof *m);
+    if (!m) {
+        rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", path);
+        return NULL;
+    }
+    rt_copy_string(m->path, sizeof m->path, path);
+    loader l;
+    memset(&l, 0, sizeof l);
+    l.m = m;
+    const char *slash = strrchr(path, '/');
+    if (slash) {
+        size_t n = (size_t)(slash - path);
+        if (n == 0)
+            n = 1; /* a manifest in "/" */
+        if (n >= sizeof l.dir) {
+            rt_fail(err, RT_ERR_USAGE, "%s: path too long", path);
+            free(m);
+            return NULL;
+        }
+        memcpy(l.dir, path, n);
+        l.dir[n] = '\0';
+    }
+    rt_table t;
+    memset(&t, 0, sizeof t);
+    t.path = path;
+    t.what = "manifest";
+    t.columns[COL_ID] = "id";
+    t.columns[COL_RECORDING] = "recording";
+    t.columns[COL_STAGES] = "stages";
+    t.columns[COL_EVENTS] = "events";
+    t.columns[COL_GROUP] = "group";
+    for (int r = 0; r < RT_ROLE_COUNT; r++) {
+        t.columns[COL_ROLE0 + r] = rt_role_name((rt_role)r);
+        t.optional[COL_ROLE0 + r] = true;
+    }
+    t.n_columns = COL_ROLE0 + RT_ROLE_COUNT;
+    t.on_row = on_row;
+    t.user = &l;
+    rt_status st = rt_table_read(&t, err);
+    if (st == RT_OK && m->n_entries == 0)
+        st = rt_fail(err, RT_ERR_STAGING, "%s: the manifest lists no nights", path);
+    if (st != RT_OK) {
+        rt_manifest_free(m);
+        return NULL;
+    }
+    return m;
+}
+
+void rt_manifest_free(rt_manifest *manifest)
+{
+    if (!manifest)
+        return;
+    for (size_t i = 0; i < manifest->n_entries; i++)
+        entry_free(&manifest->entries[i]);
+    free(manifest->entries);
+    free(manifest);
+}

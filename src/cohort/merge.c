@@ -1,0 +1,371 @@
+/* Gathering a cohort: reads every night's result (or failure record) back
+ * from OUT/nights with jansson, sorts the rows by id so the output depends
+ * only on the results, and writes the cohort table, the calibration of each
+ * index against the positive and negative groups, a cutoff file of the
+ * Youden-optimal cutoffs in the format `remtone score --cutoffs` reads, and
+ * the HTML overview. Whole runs call it at their end; after a Slurm array the
+ * `cohort-merge` command calls it once. */
+#include "cohort_internal.h"
+
+#include <dirent.h>
+#include <jansson.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "internal.h"
+#include "output.h"
+
+typedef struct rows {
+    cohort_row *v;
+    size_t n, cap;
+} rows;
+
+static bool ends_with(const char *s, const char *suffix)
+{
+    size_t n = strlen(s), k = strlen(suffix);
+    return n > k && strcmp(s + n - k, suffix) == 0;
+}
+
+static cohort_row *new_row(rows *r)
+{
+    if (r->n == r->cap) {
+        size_t cap = r->cap ? 2 * r->cap : 64;
+        cohort_row *grown = realloc(r->v, cap * sizeof *grown);
+        if (!grown)
+            return NULL;
+        r->v = grown;
+        r->cap = cap;
+    }
+    cohort_row *row = &r->v[r->n++];
+    memset(row, 0, sizeof *row);
+    row->rem_minutes = row->scorable_minutes = NAN;
+    for (int i = 0; i < RT_IX_COUNT; i++)
+        row->value[i] = NAN;
+    row->warnings = -1;
+    return row;
+}
+
+static double number_or_nan(json_t *v) { return json_is_number(v) ? json_number_value(v) : NAN; }
+
+static rt_status read_result(const char *dir, const char *id, cohort_row *row, bool *complete,
+                             rt_error *err)
+{
+    char path[COHORT_PATH_MAX];
+    cohort_night_path(path, sizeof path, dir, id, ".key");
+    json_t *key = json_load_file(path, 0, NULL);
+    *complete = key != NULL;
+    if (!key)
+        return RT_OK;
+    rt_copy_string(row->group, sizeof row->group, json_string_value(json_object_get(key, "group")) ?
+                   json_string_value(json_object_get(key, "group")) : "");
+    json_decref(key);
+    cohort_night_path(path, sizeof path, dir, id, ".json");
+    json_error_t je;
+    json_t *root = json_load_file(path, 0, &je);
+    if (!root)
+        return rt_fail(err, RT_ERR_STAGING, "%s line %d: not valid JSON: %s", path, je.line, je.text);
+    const char *schema = json_string_value(json_object_get(root, "schema"));
+    json_t *rem = json_object_get(root, "rem"), *review = json_object_get(root, "review");
+    json_t *indices = json_object_get(root, "indices");
+    if (!schema || strcmp(schema, "remtone-night/1") != 0 || !json_is_object(rem) ||
+        !json_is_object(review) || !json_is_object(indices)) {
+        json_decref(root);
+        return rt_fail(err, RT_ERR_STAGING, "%s: not a remtone-night/1 result", path);
+    }
+    rt_copy_string(row->id, sizeof row->id, id);
+    row->flagged = json_is_true(json_object_get(review, "flagged"));
+    const char *level = json_string_value(json_object_get(review, "level"));
+    rt_copy_string(row->level, sizeof row->level, level ? level : "");
+    row->rem_minutes = number_or_nan(json_object_get(rem, "minutes"));
+    row->scorable_minutes = number_or_nan(json_object_get(rem, "scorable_minutes"));
+    for (int i = 0; i < RT_IX_COUNT; i++)
+        row->value[i] = number_or_nan(json_object_get(json_object_get(indices, rt_index_rules()[i].id),
+                                                      "value"));
+    json_t *warnings = json_object_get(root, "warnings");
+    row->warnings = json_is_array(warnings) ? (long)json_array_size(warnings) : 0;
+    json_decref(root);
+    return RT_OK;
+}
+
+static rt_status read_failure(const char *dir, const char *id, cohort_row *row, rt_error *err)
+{
+    char path[COHORT_PATH_MAX];
+    cohort_night_path(path, sizeof path, dir, id, ".error.json");
+    json_error_t je;
+    json_t *root = json_load_file(path, 0, &je);
+    if (!root)
+        return rt_fail(err, RT_ERR_STAGING, "%s line %d: not valid JSON: %s", path, je.line, je.text);
+    rt_copy_string(row->id, sizeof row->id, id);
+    const char *group = json_string_value(json_object_get(root, "group"));
+    const char *msg = json_string_value(json_object_get(root, "message"));
+    rt_copy_string(row->group, sizeof row->group, group ? group : "");
+    rt_copy_string(row->error, sizeof row->error, msg ? msg : "failed");
+    rt_copy_string(row->level, sizeof row->level, "failed");
+    row->failed = true;
+    json_decref(root);
+    return RT_OK;
+}
+
+static int by_id(const void *a, const void *b)
+{
+    return strcmp(((const cohort_row *)a)->id, ((const cohort_row *)b)->id);
+}
+
+static rt_status read_nights(const char *dir, rows *r, rt_cohort_merge_summary *s, rt_error *err)
+{
+    DIR *d = opendir(dir);
+    if (!d)
+        return rt_fail(err, RT_ERR_IO, "%s: cannot open: no cohort results here", dir);
+    struct dirent *de;
+    rt_status st = RT_OK;
+    while (st == RT_OK && (de = readdir(d)) != NULL) {
+        const char *name = de->d_name;
+        bool failure = ends_with(name, ".error.json");
+        if (!failure && !ends_with(name, ".json"))
+            continue;
+        char id[RT_COHORT_ID_MAX + 16];
+        size_t n = strlen(name) - strlen(failure ? ".error.json" : ".json");
+        if (n >= sizeof id)
+            continue;
+        memcpy(id, name, n);
+        id[n] = '\0';
+        if (!rt_cohort_id_is_safe(id))
+            continue;
+        cohort_row *row = new_row(r);
+        if (!row) {
+            st = rt_fail(err, RT_ERR_NOMEM, "out of memory");
+            break;
+        }
+        if (failure) {
+            /* a result written after the failure supersedes it */
+            char other[COHORT_PATH_MAX];
+            cohort_night_path(other, sizeof other, dir, id, ".key");
+            FILE *f = fopen(other, "rb");
+            if (f) {
+                fclose(f);
+                r->n--;
+                continue;
+            }
+            st = read_failure(dir, id, row, err);
+            s->failed += st == RT_OK;
+            continue;
+        }
+        bool complete = false;
+        st = read_result(dir, id, row, &complete, err);
+        if (st == RT_OK && !complete) {
+            r->n--;
+            s->incomplete++;
+        } else if (st == RT_OK) {
+            s->scored++;
+        }
+    }
+    closedir(d);
+    if (st == RT_OK && r->n > 1)
+        qsort(r->v, r->n, sizeof *r->v, by_id);
+    s->nights = r->n;
+    return st;
+}
+
+/* ---- writing ---- */
+
+static void put_number(FILE *f, double v)
+{
+    if (isfinite(v))
+        fprintf(f, "%.10g", v);
+}
+
+/* RFC 4180: quote a field holding a comma, quote, or line break. */
+static void put_text(FILE *f, const char *s)
+{
+    if (!strpbrk(s, ",\"\r\n\t")) {
+        fputs(s, f);
+        return;
+    }
+    fputc('"', f);
+    for (; *s; s++) {
+        if (*s == '"')
+            fputc('"', f);
+        fputc(*s, f);
+    }
+    fputc('"', f);
+}
+
+static rt_status write_table(const char *path, const rows *r, rt_error *err)
+{
+    rt_output o;
+    rt_status st = rt_output_begin(&o, path, 1, err);
+    if (st != RT_OK)
+        return st;
+    FILE *f = o.file;
+    fputs("id,group,flagged,level,rem_minutes,scorable_minutes", f);
+    for (int i = 0; i < RT_IX_COUNT; i++)
+        fprintf(f, ",%s", rt_index_rules()[i].id);
+    fputs(",warnings,error\n", f);
+    for (size_t k = 0; k < r->n; k++) {
+        const cohort_row *row = &r->v[k];
+        put_text(f, row->id);
+        fputc(',', f);
+        put_text(f, row->group);
+        fprintf(f, ",%s,%s,", row->failed ? "" : row->flagged ? "true" : "false", row->level);
+        put_number(f, row->rem_minutes);
+        fputc(',', f);
+        put_number(f, row->scorable_minutes);
+        for (int i = 0; i < RT_IX_COUNT; i++) {
+            fputc(',', f);
+            put_number(f, row->value[i]);
+        }
+        fputc(',', f);
+        if (row->warnings >= 0)
+            fprintf(f, "%ld", row->warnings);
+        fputc(',', f);
+        put_text(f, row->error);
+        fputc('\n', f);
+    }
+    return rt_output_commit(&o, err);
+}
+
+static rt_status calibrate(const rows *r, const rt_cohort_options *o, cohort_calibration *cal,
+                           rt_cohort_merge_summary *s, rt_error *err)
+{
+    rt_cutoffs published, in_force;
+    rt_cutoffs_published(&published);
+    in_force = published;
+    if (o->cutoffs_path && rt_cutoffs_load(&in_force, o->cutoffs_path, err) != RT_OK)
+        return err->status;
+    double *values = rt_calloc(r->n + 1, sizeof *values);
+    bool *positive = rt_calloc(r->n + 1, sizeof *positive);
+    if (!values || !positive) {
+        free(values);
+        free(positive);
+        return rt_fail(err, RT_ERR_NOMEM, "out of memory");
+    }
+    rt_status st = RT_OK;
+    for (int i = 0; i < RT_IX_COUNT && st == RT_OK; i++) {
+        const rt_index_rule *rule = &rt_index_rules()[i];
+        size_t n = 0;
+        for (size_t k = 0; k < r->n; k++) {
+            const cohort_row *row = &r->v[k];
+            bool pos = strcmp(row->group, o->positive) == 0;
+            if (row->failed || (!pos && strcmp(row->group, o->negative) != 0))
+                continue; /* other groups are tabulated, not used to calibrate */
+            if (i == 0) {
+                s->positives += pos;
+                s->negatives += !pos;
+            }
+            values[n] = row->value[i];
+            positive[n++] = pos;
+        }
+        st = rt_roc_compute(values, positive, n, rule->lower_is_worse, &cal->roc[i], err);
+        cal->published[i] = published.has[i] ? published.value[i] : NAN;
+        cal->in_force[i] = in_force.has[i] ? in_force.value[i] : NAN;
+        rt_roc_at_cutoff(values, positive, n, rule->lower_is_worse, cal->published[i],
+                         &cal->sens_published[i], &cal->spec_published[i]);
+        rt_roc_at_cutoff(values, positive, n, rule->lower_is_worse, cal->in_force[i],
+                         &cal->sens_in_force[i], &cal->spec_in_force[i]);
+    }
+    free(values);
+    free(positive);
+    return st;
+}
+
+static rt_status write_calibration(const char *path, const cohort_calibration *cal, rt_error *err)
+{
+    rt_output o;
+    rt_status st = rt_output_begin(&o, path, 1, err);
+    if (st != RT_OK)
+        return st;
+    FILE *f = o.file;
+    fputs("index,auc,auc_low,auc_high,youden_cutoff,sensitivity_at_published,"
+          "specificity_at_published,published_cutoff,abnormal,n_positive,n_negative,auc_se,"
+          "youden_j,sensitivity_at_youden,specificity_at_youden,cutoff_in_force,"
+          "sensitivity_at_in_force,specificity_at_in_force\n", f);
+    for (int i = 0; i < RT_IX_COUNT; i++) {
+        const rt_roc *c = &cal->roc[i];
+        const double cols[] = {c->auc, c->auc_low, c->auc_high, c->youden_cutoff,
+                               cal->sens_published[i], cal->spec_published[i], cal->published[i]};
+        fputs(rt_index_rules()[i].id, f);
+        for (size_t k = 0; k < sizeof cols / sizeof cols[0]; k++) {
+            fputc(',', f);
+            put_number(f, cols[k]);
+        }
+        fprintf(f, ",%s,%zu,%zu,", rt_index_rules()[i].lower_is_worse ? "below" : "at-or-above",
+                c->n_pos, c->n_neg);
+        const double rest[] = {sqrt(c->auc_var), c->youden_j, c->youden_sens, c->youden_spec,
+                               cal->in_force[i], cal->sens_in_force[i], cal->spec_in_force[i]};
+        for (size_t k = 0; k < sizeof rest / sizeof rest[0]; k++) {
+            if (k)
+                fputc(',', f);
+            put_number(f, rest[k]);
+        }
+        fputc('\n', f);
+    }
+    return rt_output_commit(&o, err);
+}
+
+/* The format rt_cutoffs_load reads; indices without a Youden cutoff are left
+ * out and so keep their published cutoff. */
+static rt_status write_calibrated_cutoffs(const char *path, const cohort_calibration *cal,
+                                          rt_error *err)
+{
+    rt_output o;
+    rt_status st = rt_output_begin(&o, path, 1, err);
+    if (st != RT_OK)
+        return st;
+    fputs("index,cutoff\n", o.file);
+    for (int i = 0; i < RT_IX_COUNT; i++)
+        if (isfinite(cal->roc[i].youden_cutoff))
+            fprintf(o.file, "%s,%.10g\n", rt_index_rules()[i].id, cal->roc[i].youden_cutoff);
+    return rt_output_commit(&o, err);
+}
+
+rt_status rt_cohort_merge(const rt_cohort_options *o, rt_cohort_merge_summary *summary,
+                          rt_error *err)
+{
+    rt_cohort_merge_summary s;
+    memset(&s, 0, sizeof s);
+    if (!o->out_dir || !o->out_dir[0])
+        return rt_fail(err, RT_ERR_USAGE, "cohort merge: no output folder given");
+    if (strlen(o->out_dir) > COHORT_PATH_MAX - RT_COHORT_ID_MAX - 64)
+        return rt_fail(err, RT_ERR_USAGE, "%s: output folder path too long", o->out_dir);
+    const char *positive = o->positive ? o->positive : "case";
+    const char *negative = o->negative ? o->negative : "control";
+    if (strcmp(positive, negative) == 0)
+        return rt_fail(err, RT_ERR_USAGE, "cohort: the positive and negative groups are both '%s'",
+                       positive);
+    rt_cohort_options opts = *o;
+    opts.positive = positive;
+    opts.negative = negative;
+    char dir[COHORT_PATH_MAX], path[COHORT_PATH_MAX];
+    snprintf(dir, sizeof dir, "%s/nights", o->out_dir);
+    rows r = {NULL, 0, 0};
+    cohort_calibration *cal = rt_calloc(1, sizeof *cal);
+    rt_status st = cal ? read_nights(dir, &r, &s, err) : rt_fail(err, RT_ERR_NOMEM, "out of memory");
+    if (st == RT_OK) {
+        snprintf(path, sizeof path, "%s/cohort.csv", o->out_dir);
+        st = write_table(path, &r, err);
+    }
+    if (st == RT_OK)
+        st = calibrate(&r, &opts, cal, &s, err);
+    if (st == RT_OK) {
+        snprintf(path, sizeof path, "%s/calibration.csv", o->out_dir);
+        st = write_calibration(path, cal, err);
+    }
+    if (st == RT_OK) {
+        snprintf(path, sizeof path, "%s/calibrated-cutoffs.csv", o->out_dir);
+        st = write_calibrated_cutoffs(path, cal, err);
+    }
+    if (st == RT_OK) {
+        snprintf(path, sizeof path, "%s/cohort.html", o->out_dir);
+        st = cohort_write_html(path, r.v, r.n, cal, &opts, err);
+    }
+    if (cal)
+        for (int i = 0; i < RT_IX_COUNT; i++)
+            rt_roc_free(&cal->roc[i]);
+    free(cal);
+    free(r.v);
+    if (summary)
+        *summary = s;
+    return st;
+}

@@ -1,0 +1,286 @@
+/* One night of a cohort run: decide from its key whether the stored result
+ * is current, otherwise score it with the library (open, stage, resolve
+ * roles, score, write JSON) and record the outcome. The key holds the sizes
+ * and XXH3 digests of the inputs and a digest of the settings, so a rerun
+ * rescores exactly the nights whose data or settings changed. Files land in
+ * this order -- old key removed, result, key -- so a run stopped anywhere
+ * leaves either a current pair or a result without a key, which the next run
+ * rescores and the merge ignores. */
+#include "cohort_internal.h"
+
+#include <errno.h>
+#include <fcntl.h>
+#include <jansson.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+#include <xxhash.h>
+
+#include "digest.h"
+#include "internal.h"
+#include "output.h"
+#include "remtone/report.h"
+#include "remtone/version.h"
+
+int cohort_night_path(char *dst, size_t cap, const char *nights_dir, const char *id,
+                      const char *suffix)
+{
+    int n = snprintf(dst, cap, "%s/%s%s", nights_dir, id, suffix);
+    return n > 0 && (size_t)n < cap;
+}
+
+static size_t add_text(char *dst, size_t cap, size_t used, const char *name, double v)
+{
+    if (used >= cap)
+        return used;
+    int n = snprintf(dst + used, cap - used, "%s=%.17g\n", name, v);
+    return n > 0 ? used + (size_t)n : used;
+}
+
+void cohort_settings_text(cohort_shared *s)
+{
+    const rt_score_params *p = &s->options->params;
+    char *t = s->settings;
+    size_t cap = sizeof s->settings;
+    size_t u = (size_t)snprintf(t, cap, "remtone %s\n", rt_version());
+    u = add_text(t, cap, u, "band_low_hz", p->band_low_hz);
+    u = add_text(t, cap, u, "band_high_hz", p->band_high_hz);
+    u = add_text(t, cap, u, "band_order", p->band_order);
+    u = add_text(t, cap, u, "envelope_window_s", p->envelope_window_s);
+    u = add_text(t, cap, u, "burst_merge_gap_s", p->burst_merge_gap_s);
+    u = add_text(t, cap, u, "background_level_quantile", p->background_level_quantile);
+    u = add_text(t, cap, u, "background_window_s", p->background_window_s);
+    u = add_text(t, cap, u, "background_quantile", p->background_quantile);
+    u = add_text(t, cap, u, "aasm_nrem_quantile", p->aasm_nrem_quantile);
+    u = add_text(t, cap, u, "tonic_abs_uv", p->tonic_abs_uv);
+    u = add_text(t, cap, u, "montreal_epoch_s", p->montreal_epoch_s);
+    u = add_text(t, cap, u, "min_rate_hz", p->min_rate_hz);
+    u = add_text(t, cap, u, "min_scorable_min", p->min_scorable_min);
+    u = add_text(t, cap, u, "near_fraction", p->near_fraction);
+    u = add_text(t, cap, u, "exclude_artifacts", p->exclude_artifacts);
+    u = add_text(t, cap, u, "exclude_snoring", p->exclude_snoring);
+    u = add_text(t, cap, u, "exclude_respiratory", p->exclude_respiratory);
+    u = add_text(t, cap, u, "event_margin_s", p->event_margin_s);
+    u = add_text(t, cap, u, "resp_arousal_gap_s", p->resp_arousal_gap_s);
+    /* the cutoffs change each index's status and the review level */
+    for (int i = 0; i < RT_IX_COUNT; i++) {
+        u = add_text(t, cap, u, "has", s->cutoffs.has[i]);
+        u = add_text(t, cap, u, rt_index_rules()[i].id, s->cutoffs.value[i]);
+        u = add_text(t, cap, u, "normal_from", s->cutoffs.normal_from[i]);
+    }
+}
+
+static rt_status input_identity(json_t *inputs, const char *role, const char *path, rt_error *err)
+{
+    if (!path)
+        return RT_OK;
+    long long size = 0;
+    char hex[17];
+    rt_status st = rt_file_digest(path, &size, hex, err);
+    if (st != RT_OK)
+        return st;
+    json_object_set_new(inputs, role, json_pack("{s:I,s:s}", "bytes", (json_int_t)size, "xxh3", hex));
+    return RT_OK;
+}
+
+/* The identity of a night: what its result depends on, not where it lives. */
+static rt_status night_identity(const cohort_shared *s, const rt_manifest_entry *e, json_t **out,
+                                rt_error *err)
+{
+    json_t *id = json_object();
+    if (!id)
+        return rt_fail(err, RT_ERR_NOMEM, "out of memory");
+    rt_status st = input_identity(id, "recording", e->recording, err);
+    if (st == RT_OK)
+        st = input_identity(id, "stages", e->stages, err);
+    if (st == RT_OK)
+        st = input_identity(id, "events", e->events, err);
+    if (st == RT_OK)
+        st = input_identity(id, "cutoffs", s->options->cutoffs_path, err);
+    if (st != RT_OK) {
+        json_decref(id);
+        return st;
+    }
+    XXH3_state_t *h = XXH3_createState();
+    if (!h) {
+        json_decref(id);
+        return rt_fail(err, RT_ERR_NOMEM, "out of memory");
+    }
+    XXH3_64bits_reset(h);
+    XXH3_64bits_update(h, s->settings, strlen(s->settings));
+    for (int r = 0; r < RT_ROLE_COUNT; r++) {
+        const char *o = e->role_override[r] ? e->role_override[r] : "";
+        XXH3_64bits_update(h, rt_role_name((rt_role)r), strlen(rt_role_name((rt_role)r)));
+        XXH3_64bits_update(h, "=", 1);
+        XXH3_64bits_update(h, o, strlen(o) + 1);
+    }
+    char hex[17];
+    snprintf(hex, sizeof hex, "%016llx", (unsigned long long)XXH3_64bits_digest(h));
+    XXH3_freeState(h);
+    json_object_set_new(id, "stages_from", json_string(e->stages ? "file" : "annotations"));
+    json_object_set_new(id, "settings", json_string(hex));
+    *out = id;
+    return RT_OK;
+}
+
+static rt_status write_json_atomic(json_t *root, const char *path, rt_error *err)
+{
+    rt_output o;
+    rt_status st = rt_output_begin(&o, path, 1, err);
+    if (st != RT_OK)
+        return st;
+    if (json_dumpf(root, o.file, JSON_INDENT(2) | JSON_SORT_KEYS) != 0 || fputc('\n', o.file) == EOF) {
+        rt_output_abort(&o);
+        return rt_fail(err, RT_ERR_IO, "%s: cannot write", path);
+    }
+    return rt_output_commit(&o, err);
+}
+
+static json_t *key_json(const rt_manifest_entry *e, json_t *identity)
+{
+    json_t *k = json_pack("{s:s,s:s,s:s,s:O}", "schema", "remtone-cohort-key/1", "id", e->id,
+                          "group", e->group, "identity", identity);
+    return k;
+}
+
+/* A current result: its key exists, names this night and holds the same
+ * identity. A changed group alone rewrites the key without rescoring. */
+static bool result_current(const char *json_path, const char *key_path,
+                           const rt_manifest_entry *e, json_t *identity)
+{
+    if (access(json_path, F_OK) != 0)
+        return false;
+    json_t *old = json_load_file(key_path, 0, NULL);
+    if (!old)
+        return false;
+    bool same = json_equal(json_object_get(old, "identity"), identity) &&
+                json_is_string(json_object_get(old, "id")) &&
+                strcmp(json_string_value(json_object_get(old, "id")), e->id) == 0;
+    const char *group = json_string_value(json_object_get(old, "group"));
+    bool regroup = same && (!group || strcmp(group, e->group) != 0);
+    json_decref(old);
+    if (regroup) {
+        json_t *k = key_json(e, identity);
+        bool ok = k && write_json_atomic(k, key_path, NULL) == RT_OK;
+        json_decref(k);
+        return ok;
+    }
+    return same;
+}
+
+static rt_status score_and_write(const cohort_shared *s, const rt_manifest_entry *e,
+                                 const char *json_path, rt_error *err)
+{
+    rt_recording *rec = NULL;
+    rt_timeline *tl = NULL;
+    rt_night *night = NULL;
+    rt_role_map roles;
+    rt_role_options ro;
+    memset(&ro, 0, sizeof ro);
+    for (int r = 0; r < RT_ROLE_COUNT; r++)
+        ro.override[r] = e->role_override[r];
+    rt_status st = RT_OK;
+    if (!(rec = rt_recording_open(e->recording, err)))
+        st = err->status;
+    if (st == RT_OK && !(tl = rt_timeline_new()))
+        st = rt_fail(err, RT_ERR_NOMEM, "out of memory");
+    if (st == RT_OK)
+        st = e->stages ? rt_timeline_load_staging(tl, e->stages, NULL, err)
+                       : rt_timeline_load_annotations(tl, rec, NULL, true, true, err);
+    if (st == RT_OK && e->events)
+        st = rt_timeline_load_events_csv(tl, e->events, NULL, err);
+    if (st == RT_OK)
+        st = rt_timeline_check(tl, rt_recording_duration_s(rec), err);
+    if (st == RT_OK)
+        st = rt_roles_resolve(rec, &ro, &roles, err);
+    if (st == RT_OK)
+        st = rt_night_score(rec, &roles, tl, &s->options->params, &s->cutoffs, &night, err);
+    if (st == RT_OK) {
+        rt_run_inputs in = {e->recording, e->stages, e->events, s->options->cutoffs_path, NULL};
+        st = rt_night_write_json(night, &in, json_path, err);
+    }
+    rt_night_free(night);
+    rt_timeline_free(tl);
+    rt_recording_close(rec);
+    return st;
+}
+
+/* The exit code `remtone score` gives for the same failure (README.md, "Exit
+ * codes"); input problems only, since the cohort's own outputs failing stop
+ * nothing else. */
+static int exit_code_of(rt_status st)
+{
+    static const int codes[] = {0, 2, 3, 4, 5, 6, 8, 8};
+    return (int)st >= 0 && (size_t)st < sizeof codes / sizeof codes[0] ? codes[st] : 8;
+}
+
+static void append_log(const char *log_path, const char *what, const char *id)
+{
+    char line[256];
+    int n = snprintf(line, sizeof line, "%s %s\n", what, id);
+    int fd = open(log_path, O_WRONLY | O_CREAT | O_APPEND, 0666);
+    if (fd < 0)
+        return; /* the log is a convenience; the results are the record */
+    /* one write of a short line with O_APPEND: lines of parallel runs never interleave */
+    ssize_t w = write(fd, line, (size_t)n);
+    (void)w;
+    close(fd);
+}
+
+static void write_error(const cohort_shared *s, const rt_manifest_entry *e, const rt_error *why)
+{
+    char path[COHORT_PATH_MAX];
+    if (!cohort_night_path(path, sizeof path, s->nights_dir, e->id, ".error.json"))
+        return;
+    json_t *root = json_pack("{s:s,s:s,s:s,s:s,s:i,s:s,s:s}", "schema", "remtone-cohort-error/1",
+                             "id", e->id, "group", e->group, "status", rt_status_name(why->status),
+                             "exit_code", exit_code_of(why->status), "message",
+                             why->message[0] ? why->message : rt_status_name(why->status),
+                             "recording", e->recording);
+    if (root)
+        write_json_atomic(root, path, NULL);
+    json_decref(root);
+}
+
+night_outcome cohort_night(const cohort_shared *s, const rt_manifest_entry *e)
+{
+    char json_path[COHORT_PATH_MAX], key_path[COHORT_PATH_MAX], err_path[COHORT_PATH_MAX];
+    rt_error err;
+    rt_error_clear(&err);
+    if (!cohort_night_path(json_path, sizeof json_path, s->nights_dir, e->id, ".json") ||
+        !cohort_night_path(key_path, sizeof key_path, s->nights_dir, e->id, ".key") ||
+        !cohort_night_path(err_path, sizeof err_path, s->nights_dir, e->id, ".error.json")) {
+        rt_fail(&err, RT_ERR_USAGE, "%s: output path too long", e->id);
+        write_error(s, e, &err);
+        return NIGHT_FAILED;
+    }
+    json_t *identity = NULL;
+    rt_status st = night_identity(s, e, &identity, &err);
+    if (st == RT_OK && !s->options->force && result_current(json_path, key_path, e, identity)) {
+        json_decref(identity);
+        return NIGHT_SKIPPED;
+    }
+    if (st == RT_OK && unlink(key_path) != 0 && errno != ENOENT)
+        st = rt_fail(&err, RT_ERR_IO, "%s: cannot remove: %s", key_path, strerror(errno));
+    if (st == RT_OK)
+        st = score_and_write(s, e, json_path, &err);
+    if (st == RT_OK) {
+        json_t *k = key_json(e, identity);
+        st = k ? write_json_atomic(k, key_path, &err) : rt_fail(&err, RT_ERR_NOMEM, "out of memory");
+        json_decref(k);
+    }
+    json_decref(identity);
+    if (st != RT_OK) {
+        /* a stale result of older inputs must not outlive a failed rescoring */
+        unlink(json_path);
+        unlink(key_path);
+        write_error(s, e, &err);
+        append_log(s->log_path, "failed", e->id);
+        return NIGHT_FAILED;
+    }
+    unlink(err_path);
+    append_log(s->log_path, "scored", e->id);
+    return NIGHT_SCORED;
+}
