@@ -6,7 +6,10 @@
 
 #include "cli.h"
 
-enum { KEY_PROFILE = 1, KEY_HOURS, KEY_SEED, KEY_OUT, KEY_PATIENT, KEY_TEXT, KEY_START };
+enum {
+    KEY_PROFILE = 1, KEY_HOURS, KEY_SEED, KEY_OUT, KEY_PATIENT, KEY_TEXT, KEY_START,
+    KEY_MAINS, KEY_ECG_BLEED, KEY_HEART_RATE, KEY_CLIP, KEY_DETACH, KEY_POPS
+};
 
 static const cli_option OPTIONS[] = {
     {"profile", 1, KEY_PROFILE, "NAME", "typical-older, rbd, borderline or apnea"},
@@ -16,6 +19,12 @@ static const cli_option OPTIONS[] = {
     {"patient", 1, KEY_PATIENT, "TEXT", "fictional EDF+ patient name"},
     {"recording-text", 1, KEY_TEXT, "TEXT", "EDF+ recording free text"},
     {"start", 1, KEY_START, "HH:MM", "clock time of the recording start (default 22:30)"},
+    {"mains", 1, KEY_MAINS, "HZ:UV[:H]", "add mains interference (50 or 60 Hz, amplitude, H harmonics)"},
+    {"ecg-bleed", 1, KEY_ECG_BLEED, "UV[:LIMB_UV]", "add ECG bleed to the chin (and the limbs)"},
+    {"heart-rate", 1, KEY_HEART_RATE, "BPM", "mean heart rate, 30 to 120 (default 62)"},
+    {"clip", 1, KEY_CLIP, "START:SECONDS", "saturate the chin amplifier for a stretch"},
+    {"detach", 1, KEY_DETACH, "SECONDS", "detach the chin lead from this time on"},
+    {"pops", 1, KEY_POPS, "N", "add N electrode pops to the chin during REM"},
     {0},
 };
 
@@ -52,6 +61,28 @@ static int on_option(void *ctx, int key, const char *arg)
             return EXIT_USAGE;
         }
         break;
+    case KEY_MAINS:
+        c->o.mains_harmonics = 0;
+        if (sscanf(arg, "%lf:%lf:%d", &c->o.mains_hz, &c->o.mains_uv, &c->o.mains_harmonics) < 2) {
+            fprintf(stderr, "remtone synth: --mains must be HZ:UV[:HARMONICS], got '%s'\n", arg);
+            return EXIT_USAGE;
+        }
+        break;
+    case KEY_ECG_BLEED:
+        if (sscanf(arg, "%lf:%lf", &c->o.ecg_bleed_uv, &c->o.ecg_bleed_limb_uv) < 1) {
+            fprintf(stderr, "remtone synth: --ecg-bleed must be UV[:LIMB_UV], got '%s'\n", arg);
+            return EXIT_USAGE;
+        }
+        break;
+    case KEY_HEART_RATE: c->o.heart_rate_bpm = strtod(arg, &end); c->bad |= *end != '\0'; break;
+    case KEY_CLIP:
+        if (sscanf(arg, "%lf:%lf", &c->o.clip_start_s, &c->o.clip_duration_s) != 2) {
+            fprintf(stderr, "remtone synth: --clip must be START:SECONDS, got '%s'\n", arg);
+            return EXIT_USAGE;
+        }
+        break;
+    case KEY_DETACH: c->o.detach_s = strtod(arg, &end); c->bad |= *end != '\0'; break;
+    case KEY_POPS: c->o.pops = (int)strtol(arg, &end, 10); c->bad |= *end != '\0'; break;
     case KEY_OUT: c->out = arg; break;
     case KEY_PATIENT: c->o.patient = arg; break;
     case KEY_TEXT: c->o.recording = arg; break;
@@ -77,6 +108,10 @@ static int run(int argc, char **argv)
     int rc = cli_parse(&CLI_SYNTH, argc, argv, on_option, &c, pos, 0, &npos);
     if (rc != EXIT_OK)
         return rc < 0 ? EXIT_OK : rc;
+    if (c.bad) {
+        fprintf(stderr, "remtone synth: a number option has a value that is not a number\n");
+        return EXIT_USAGE;
+    }
     if (!c.out) {
         fprintf(stderr, "remtone synth: --out DIR is required\n");
         return EXIT_USAGE;

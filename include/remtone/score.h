@@ -189,6 +189,27 @@ typedef struct rt_burst {
     unsigned rules;        /* RT_LABEL_AASM_PHASIC | SINBAR | MONTREAL it satisfies */
 } rt_burst;
 
+/* Signal quality of one EMG channel over the night's REM (docs/quality.md). */
+enum { RT_QUALITY_KINDS = 3 };          /* clipping, flat (detached lead), electrode pop */
+typedef struct rt_channel_quality {
+    double line_hz;            /* mains line found: 50 or 60; 0 when none */
+    double line_db;            /* its power over the rest of the EMG band, dB (-99: none) */
+    int notches;               /* notches added to the band-pass (fundamental, harmonics) */
+    int ecg_source;            /* beats from: 0 none, 1 the ECG channel, 2 the chin itself */
+    size_t beats;              /* R peaks found over REM */
+    bool ecg_found;            /* ECG-locked activity found in this channel */
+    bool ecg_removed;          /* and removed by template subtraction */
+    size_t bursts_vetoed;      /* bursts refused because they coincide with QRS complexes */
+    double unscorable_min[RT_QUALITY_KINDS]; /* REM minutes marked, by kind */
+    double unscorable_total_min;
+    bool hp_above_band;        /* header prefilter: high-pass above the scoring band */
+    bool lp_below_band;        /* header prefilter: low-pass below the scoring band */
+    bool notch_at_source;      /* header prefilter: a mains notch was applied when recording */
+} rt_channel_quality;
+
+/* "clipping", "flat", "pop". */
+const char *rt_quality_kind_name(int kind);
+
 typedef struct rt_channel_result {
     bool present;
     char label[40];
@@ -196,6 +217,7 @@ typedef struct rt_channel_result {
     bool low_rate;             /* below params.min_rate_hz: scored with a warning */
     double band_high_hz;       /* low-pass corner actually used */
     double rem_median_uv;      /* median rectified envelope over REM */
+    rt_channel_quality quality;
 } rt_channel_result;
 
 /* Agreement between a manual RSWA scoring and remtone's labels, per role and

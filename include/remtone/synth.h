@@ -41,9 +41,27 @@ typedef struct rt_synth_options {
     const char *recording;   /* EDF+ recording free text; NULL = profile name */
     int start_hour;          /* clock start, 0..23 (default 22 when negative) */
     int start_minute;        /* 0..59 */
+
+    /* Artifacts, for testing quality control (docs/quality.md, "Synthetic
+     * artifacts"); every one is off at 0. truth.json lists exactly what was
+     * added under "artifacts". */
+    double mains_hz;          /* line frequency on all five EMG channels: 0 (off), 50 or 60 */
+    double mains_uv;          /* peak amplitude of the fundamental, uV, 0..100 */
+    int mains_harmonics;      /* harmonics 2f, 3f, ... added, 0..4; each half the one before */
+    double ecg_bleed_uv;      /* R-peak amplitude of ECG bleed in the chin, uV, 0..200 */
+    double ecg_bleed_limb_uv; /* the same in the four limb channels, uV, 0..200 */
+    double heart_rate_bpm;    /* mean heart rate of the ECG channel and the bleed,
+                                 30..120; 0 = 62 (the rate without this option) */
+    double clip_start_s;      /* chin saturation: a 1-Hz, 1500-uV swing that the +-500 uV
+                                 range clips, from clip_start_s ... */
+    double clip_duration_s;   /* ... for this many seconds; 0 = off */
+    double detach_s;          /* chin lead detached (samples exactly 0) from this time to
+                                 the end; 0 = off; must lie inside the night */
+    int pops;                 /* electrode pops in the chin during REM, 0..1000 */
 } rt_synth_options;
 
-/* Fills *options with defaults: typical-older, 8 hours, seed 1, 22:30 start. */
+/* Fills *options with defaults: typical-older, 8 hours, seed 1, 22:30 start,
+ * no artifacts. */
 void rt_synth_options_default(rt_synth_options *options);
 
 /* Writes dir/night.edf, dir/stages.csv, dir/events.csv and dir/truth.json;

@@ -49,6 +49,26 @@ static json_t *indices_json(const rt_night *night)
     return o;
 }
 
+static json_t *quality_json(const rt_channel_quality *q)
+{
+    static const char *const SOURCES[] = {"none", "ecg", "chin"};
+    json_t *o = json_object();
+    json_object_set_new(o, "mains_hz", q->line_hz > 0 ? json_real(q->line_hz) : json_null());
+    json_object_set_new(o, "mains_db", q->line_hz > 0 ? json_real(rounded(q->line_db, 1)) : json_null());
+    json_object_set_new(o, "notches", json_integer(q->notches));
+    json_object_set_new(o, "ecg_source", json_string(SOURCES[q->ecg_source >= 0 && q->ecg_source < 3 ? q->ecg_source : 0]));
+    json_object_set_new(o, "ecg_found", json_boolean(q->ecg_found));
+    json_object_set_new(o, "ecg_removed", json_boolean(q->ecg_removed));
+    json_object_set_new(o, "bursts_vetoed_by_qrs", json_integer((json_int_t)q->bursts_vetoed));
+    json_t *un = json_object();
+    for (int k = 0; k < RT_QUALITY_KINDS; k++)
+        json_object_set_new(un, rt_quality_kind_name(k), json_real(rounded(q->unscorable_min[k], 2)));
+    json_object_set_new(o, "unscorable_minutes", un);
+    json_object_set_new(o, "unscorable_total_minutes", json_real(rounded(q->unscorable_total_min, 2)));
+    json_object_set_new(o, "prefilter_narrows_band", json_boolean(q->hp_above_band || q->lp_below_band));
+    return o;
+}
+
 static json_t *channels_json(const rt_night *night)
 {
     json_t *a = json_array();
@@ -63,6 +83,8 @@ static json_t *channels_json(const rt_night *night)
         json_object_set_new(x, "band_hz", json_pack("[ff]", night->params.band_low_hz,
                                                      c->band_high_hz));
         json_object_set_new(x, "low_rate", json_boolean(c->low_rate));
+        json_object_set_new(x, "rem_median_uv", number(rounded(c->rem_median_uv, 3)));
+        json_object_set_new(x, "quality", quality_json(&c->quality));
         json_array_append_new(a, x);
     }
     return a;

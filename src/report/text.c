@@ -74,6 +74,24 @@ rt_status rt_night_write_text(const rt_night *night, FILE *out, rt_error *err)
     }
     if (x->have_respiratory)
         fprintf(out, "REM apnea-hypopnea index: %.1f/h\n", x->rem_ahi);
+    fprintf(out, "Signal quality:\n");
+    for (int r = 0; r < RT_ROLE_COUNT; r++) {
+        const rt_channel_result *ch = &night->channel[r];
+        if (!ch->present)
+            continue;
+        const rt_channel_quality *q = &ch->quality;
+        fprintf(out, "  %-9s mains %s", rt_role_name((rt_role)r), q->line_hz > 0 ? "" : "none");
+        if (q->line_hz > 0)
+            fprintf(out, "%g Hz (%.1f dB, notched)", q->line_hz, q->line_db);
+        fprintf(out, "; ECG %s", q->ecg_removed ? "found and removed" : q->ecg_found ? "found" : "not found");
+        if (q->bursts_vetoed)
+            fprintf(out, ", %zu bursts refused at QRS", q->bursts_vetoed);
+        fprintf(out, "; not scorable %.1f min", q->unscorable_total_min);
+        if (q->unscorable_total_min > 0)
+            fprintf(out, " (clipping %.1f, flat %.1f, pops %.1f)", q->unscorable_min[0],
+                    q->unscorable_min[1], q->unscorable_min[2]);
+        fprintf(out, "\n");
+    }
     fprintf(out, "\n");
     fprintf(out, "%s\n", level_words(night->level));
     for (size_t i = 0; i < night->n_reasons; i++)

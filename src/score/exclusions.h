@@ -9,6 +9,8 @@
 #include "night_internal.h"
 
 #define RT_EXCLUDED_BY_LIGHTS (1u << 15)
+/* Signal quality marks (clipping, flat, pop) use bits 8, 9 and 10. */
+#define RT_EXCLUDED_BY_QUALITY(kind) (1u << (8 + (kind)))
 
 typedef struct rt_exclusion_masks {
     size_t n_seconds;                      /* REM seconds of the night, bouts in order */
@@ -23,6 +25,10 @@ rt_status rt_exclusions_build(const rt_timeline *tl, const rt_score_params *p,
                               const bout_span *bouts, size_t n_bouts, size_t rem_epochs,
                               rt_exclusion_masks *masks, rt_error *err);
 void rt_exclusions_free(rt_exclusion_masks *masks);
+
+/* Adds reasons for one role to REM seconds [first, first + n). */
+rt_status rt_exclusions_mark_role(rt_exclusion_masks *masks, rt_role role, size_t first, size_t n,
+                                  unsigned bits, rt_error *err);
 
 /* Reasons of REM seconds [first, first + n) for a role (global | role). */
 unsigned rt_exclusions_of(const rt_exclusion_masks *masks, rt_role role, size_t first, size_t n);

@@ -284,9 +284,25 @@ static void value_text(const rt_night *night, int i, double value, char *buf, si
     (void)night;
 }
 
+const char *rt_quality_kind_name(int kind)
+{
+    static const char *const NAMES[RT_QUALITY_KINDS] = {"clipping", "flat", "pop"};
+    return kind >= 0 && kind < RT_QUALITY_KINDS ? NAMES[kind] : "unknown";
+}
+
 static void review(rt_night *night)
 {
     const rt_index_rule *rules = rt_index_rules();
+    const rt_channel_quality *cq = &night->channel[RT_ROLE_CHIN].quality;
+    if (night->channel[RT_ROLE_CHIN].present && cq->unscorable_total_min > 0.5 * night->rem_minutes &&
+        night->rem_minutes > 0) {
+        night->level = RT_REVIEW_NOT_ASSESSABLE;
+        add_reason(night, "chin EMG unusable for %.1f of %.1f REM minutes (flat or detached lead "
+                          "%.1f, clipping %.1f, pops %.1f): re-prepare the electrodes or score by eye",
+                   cq->unscorable_total_min, night->rem_minutes, cq->unscorable_min[1],
+                   cq->unscorable_min[0], cq->unscorable_min[2]);
+        return;
+    }
     if (!night->channel[RT_ROLE_CHIN].present) {
         night->level = RT_REVIEW_NOT_ASSESSABLE;
         add_reason(night, "no usable chin EMG channel");
@@ -330,6 +346,12 @@ static void review(rt_night *night)
 /* Each channel's typical REM level: the median of its mini-epoch envelopes. */
 static rt_status channel_levels(rt_night *night, rt_error *err)
 {
+    for (int r = 0; r < RT_ROLE_COUNT; r++) {
+        rt_channel_quality *q = &night->channel[r].quality;
+        q->unscorable_total_min = 0.0;
+        for (int k = 0; k < RT_QUALITY_KINDS; k++)
+            q->unscorable_total_min += q->unscorable_min[k];
+    }
     if (night->n_minis3 == 0)
         return RT_OK;
     double *v = rt_calloc(night->n_minis3, sizeof *v);

@@ -9,6 +9,7 @@
 #include "detect.h"
 #include "exclusions.h"
 #include "internal.h"
+#include "quality/quality.h"
 #include "night_internal.h"
 #include "rai.h"
 
@@ -27,6 +28,12 @@ typedef struct workspace {
     size_t sec_cap;               /* seconds */
     rt_span *spans;
     size_t span_cap;
+    rt_quality_mark *marks;       /* quality marks of the current stretch */
+    size_t n_marks, marks_cap;
+    rt_time_span *qrs;            /* QRS windows of the current stretch (veto) */
+    size_t n_qrs, qrs_cap;
+    double *ecg;                  /* the ECG channel's samples for the current bout */
+    size_t ecg_cap;
 } workspace;
 
 static void workspace_free(workspace *w)
@@ -39,6 +46,9 @@ static void workspace_free(workspace *w)
     free(w->sec_mean);
     free(w->floored);
     free(w->spans);
+    free(w->marks);
+    free(w->qrs);
+    free(w->ecg);
 }
 
 static rt_status workspace_reserve(workspace *w, size_t samples, size_t seconds, rt_error *err)
@@ -75,27 +85,55 @@ static rt_status workspace_reserve(workspace *w, size_t samples, size_t seconds,
     return RT_OK;
 }
 
-/* Reads [t0, t0 + dur) of a role, conditions it and leaves its rectified
- * envelope in w->x; per-second boundaries in w->starts. Returns samples. */
-static rt_status condition_stretch(rt_recording *rec, const rt_role_source *src, rt_bandpass *bp,
-                                   double t0, size_t seconds, workspace *w, size_t window,
-                                   bool want_sec_mean, size_t *n_out, rt_error *err)
+/* Reads [t0, t0 + seconds) of a role into w->x, raw (uV); per-second
+ * boundaries in w->starts. */
+static rt_status read_stretch(rt_recording *rec, const rt_role_source *src, double t0,
+                              size_t seconds, workspace *w, size_t *n_out, rt_error *err)
 {
     double rate = src->rate_hz;
     long long first = llround(t0 * rate);
     long long last = llround((t0 + (double)seconds) * rate);
     size_t n = (size_t)(last - first);
     rt_status st = workspace_reserve(w, n, seconds, err);
-    if (st != RT_OK)
-        return st;
-    st = rt_role_read_uv(rec, src, first, n, w->x, w->scratch, err);
-    if (st != RT_OK)
-        return st;
-    st = rt_bandpass_apply(bp, w->x, n, err);
+    if (st == RT_OK)
+        st = rt_role_read_uv(rec, src, first, n, w->x, w->scratch, err);
     if (st != RT_OK)
         return st;
     for (size_t j = 0; j <= seconds; j++)
         w->starts[j] = (size_t)(llround((t0 + (double)j) * rate) - first);
+    *n_out = n;
+    return RT_OK;
+}
+
+/* Quality marks of the raw stretch in w->x (docs/quality.md). */
+static rt_status find_marks(workspace *w, size_t n, double rate, const rt_channel_info *info,
+                            rt_error *err)
+{
+    w->n_marks = rt_quality_marks(w->x, n, rate, info, w->marks, w->marks_cap);
+    if (w->n_marks > w->marks_cap) {
+        size_t cap = w->n_marks + 16;
+        rt_quality_mark *m = realloc(w->marks, cap * sizeof *m);
+        if (!m)
+            return rt_fail(err, RT_ERR_NOMEM, "out of memory for quality marks");
+        w->marks = m;
+        w->marks_cap = cap;
+        w->n_marks = rt_quality_marks(w->x, n, rate, info, w->marks, w->marks_cap);
+    }
+    return RT_OK;
+}
+
+/* Band-pass, then (with beats) ECG template subtraction before rectifying,
+ * per-second rectified means when asked, and the envelope, in place. */
+static rt_status finish_stretch(rt_bandpass *bp, workspace *w, size_t n, size_t seconds,
+                                size_t window, bool want_sec_mean, const double *beats_s,
+                                size_t n_beats, double rate, rt_ecg_removal *ecg, rt_error *err)
+{
+    rt_status st = rt_bandpass_apply(bp, w->x, n, err);
+    if (st == RT_OK && ecg && n_beats > 0)
+        st = rt_ecg_subtract(w->x, n, rate, beats_s, n_beats, RT_ECG_PRE_S, RT_ECG_POST_S, ecg,
+                             err);
+    if (st != RT_OK)
+        return st;
     if (want_sec_mean) {
         for (size_t j = 0; j < seconds; j++) {
             double sum = 0.0;
@@ -106,7 +144,6 @@ static rt_status condition_stretch(rt_recording *rec, const rt_role_source *src,
         }
     }
     rt_envelope(w->x, n, window, w->x, w->scratch);
-    *n_out = n;
     return RT_OK;
 }
 
@@ -143,9 +180,21 @@ static rt_status nrem_reference(rt_recording *rec, const rt_role_source *chin, r
         while (e + run < tl->n_epochs && is_nrem(tl->stages[e + run]) && run < 20)
             run++;
         size_t n = 0;
-        st = condition_stretch(rec, chin, bp, (double)e * tl->epoch_s, run * per_epoch, w,
-                               window_samples(p->envelope_window_s, chin->rate_hz), false, &n, err);
+        st = read_stretch(rec, chin, (double)e * tl->epoch_s, run * per_epoch, w, &n, err);
+        if (st == RT_OK)
+            st = find_marks(w, n, chin->rate_hz, rt_recording_channel(rec, chin->channel), err);
+        if (st == RT_OK)
+            st = finish_stretch(bp, w, n, run * per_epoch,
+                                window_samples(p->envelope_window_s, chin->rate_hz), false, NULL, 0,
+                                chin->rate_hz, NULL, err);
         for (size_t k = 0; k < run && st == RT_OK; k++) {
+            /* an epoch with a loose lead or clipping would bend the reference */
+            double e0 = (double)(k * per_epoch), e1 = e0 + (double)per_epoch;
+            bool marked = false;
+            for (size_t q = 0; q < w->n_marks && !marked; q++)
+                marked = w->marks[q].start_s < e1 && w->marks[q].end_s > e0;
+            if (marked)
+                continue;
             /* every 4th envelope sample: the envelope is smooth over 0.05 s */
             size_t a = w->starts[k * per_epoch], b = w->starts[(k + 1) * per_epoch], len = 0;
             for (size_t i = a; i < b; i += 4)
@@ -156,6 +205,7 @@ static rt_status nrem_reference(rt_recording *rec, const rt_role_source *chin, r
     }
     if (st == RT_OK && m > 0)
         *ref = rt_quantile(medians, m, p->aasm_nrem_quantile);
+    (void)count;
     free(medians);
     return st;
 }
@@ -210,8 +260,19 @@ static rt_status detect_rule(rt_night *night, scoring_state *ss, workspace *w, s
                                   w->spans, w->span_cap, w->scratch);
     if (found > w->span_cap)
         found = w->span_cap;
+    rt_channel_quality *q = &night->channel[role].quality;
     for (size_t i = 0; i < found; i++) {
         const rt_span *s = &w->spans[i];
+        double a = s->start / rate, b = s->end / rate;
+        bool on_mark = false;
+        for (size_t k = 0; k < w->n_marks && !on_mark; k++)
+            on_mark = w->marks[k].start_s < b && w->marks[k].end_s > a;
+        if (on_mark)
+            continue; /* not scorable there: the mini-epochs are left out anyway */
+        if (w->n_qrs && rt_qrs_overlap(w->qrs, w->n_qrs, a, b) >= 0.5) {
+            q->bursts_vetoed += label == RT_LABEL_SINBAR_PHASIC;
+            continue; /* an ECG complex, not muscle */
+        }
         if (label == RT_LABEL_MONTREAL_PHASIC)
             mark_minis(night->minis2 + bout->mini2_first, bout->n_epochs * MINI2_PER_EPOCH, 2.0,
                        bout->t0, rate, s, bout->t0, role, label);
@@ -292,17 +353,112 @@ static void count_rai(scoring_state *ss, workspace *w, size_t seconds, const bou
     rt_rai_count(w->floored, seconds, skip, &ss->rai);
 }
 
+/* Leaves out the mini-epochs, seconds and minutes a quality mark covers, for
+ * this role. */
+static rt_status apply_marks(rt_night *night, scoring_state *ss, const workspace *w, rt_role role,
+                             const bout_span *bout, size_t seconds, rt_error *err)
+{
+    rt_channel_quality *q = &night->channel[role].quality;
+    size_t base = bout->epoch_first * 30;
+    for (size_t k = 0; k < w->n_marks; k++) {
+        const rt_quality_mark *m = &w->marks[k];
+        size_t a = (size_t)floor(m->start_s), b = (size_t)ceil(m->end_s);
+        if (b > seconds)
+            b = seconds;
+        if (a >= b)
+            continue;
+        unsigned bit = RT_EXCLUDED_BY_QUALITY(m->reason);
+        rt_status st = rt_exclusions_mark_role(ss->masks, role, base + a, b - a, bit, err);
+        if (st != RT_OK)
+            return st;
+        q->unscorable_min[m->reason] += (m->end_s - m->start_s) / 60.0;
+        for (size_t i = a / 3; i * 3 < b; i++) {
+            rt_mini *mi = &night->minis3[bout->mini3_first + i];
+            mi->labels[role] |= RT_LABEL_EXCLUDED;
+            if (role == RT_ROLE_CHIN)
+                mi->excluded_by |= bit;
+        }
+        for (size_t i = a / 2; i * 2 < b; i++)
+            night->minis2[bout->mini2_first + i].labels[role] |= RT_LABEL_EXCLUDED;
+    }
+    return RT_OK;
+}
+
+/* R peaks for a bout: from the ECG channel when there is one. */
+static rt_status bout_beats_from_ecg(rt_recording *rec, const rt_role_source *ecg,
+                                     const bout_span *bout, workspace *w, rt_qrs_beats *beats,
+                                     rt_error *err)
+{
+    size_t seconds = bout->n_epochs * 30;
+    long long first = llround(bout->t0 * ecg->rate_hz);
+    size_t n = (size_t)(llround((bout->t0 + (double)seconds) * ecg->rate_hz) - first);
+    if (n > w->ecg_cap) {
+        double *x = realloc(w->ecg, 2 * n * sizeof *x);
+        if (!x)
+            return rt_fail(err, RT_ERR_NOMEM, "out of memory for the ECG");
+        w->ecg = x;
+        w->ecg_cap = n;
+    }
+    rt_status st = rt_role_read_uv(rec, ecg, first, n, w->ecg, w->ecg + n, err);
+    if (st == RT_OK)
+        st = rt_qrs_detect(w->ecg, n, ecg->rate_hz, false, beats, err);
+    return st;
+}
+
+/* QRS windows of the current beats, for the burst veto. */
+static rt_status qrs_windows(workspace *w, const scoring_state *ss, rt_error *err)
+{
+    size_t need = ss->n_beats + 1;
+    if (need > w->qrs_cap) {
+        rt_time_span *q = realloc(w->qrs, need * sizeof *q);
+        if (!q)
+            return rt_fail(err, RT_ERR_NOMEM, "out of memory for QRS windows");
+        w->qrs = q;
+        w->qrs_cap = need;
+    }
+    w->n_qrs = rt_qrs_windows(ss->beats_s, ss->n_beats, RT_QRS_VETO_PRE_S, RT_QRS_VETO_POST_S,
+                              w->qrs, w->qrs_cap);
+    return RT_OK;
+}
+
 static rt_status score_role_bout(rt_recording *rec, rt_night *night, scoring_state *ss,
                                  workspace *w, rt_role role, const rt_role_source *src,
-                                 rt_bandpass *bp, const bout_span *bout, rt_error *err)
+                                 rt_bandpass *bp, const bout_span *bout, rt_qrs_beats *chin_beats,
+                                 rt_error *err)
 {
     const rt_score_params *p = &night->params;
+    rt_channel_quality *q = &night->channel[role].quality;
     size_t seconds = bout->n_epochs * 30;
     size_t n = 0;
-    rt_status st = condition_stretch(rec, src, bp, bout->t0, seconds, w,
-                                     window_samples(p->envelope_window_s, src->rate_hz),
-                                     role == RT_ROLE_CHIN, &n, err);
+    rt_status st = read_stretch(rec, src, bout->t0, seconds, w, &n, err);
+    if (st == RT_OK)
+        st = find_marks(w, n, src->rate_hz, rt_recording_channel(rec, src->channel), err);
+    if (st == RT_OK)
+        st = apply_marks(night, ss, w, role, bout, seconds, err);
+    if (st == RT_OK && role == RT_ROLE_CHIN && ss->beats_source == 0) {
+        /* no ECG channel: find the heart beats in the raw chin itself, before the
+         * 10-Hz high-pass takes most of the QRS band away (Pan & Tompkins 1985) */
+        st = rt_qrs_detect(w->x, n, src->rate_hz, true, chin_beats, err);
+        if (st == RT_OK && chin_beats->n > 0) {
+            ss->beats_s = chin_beats->r_s;
+            ss->n_beats = chin_beats->n;
+            ss->beats_source = 2;
+        }
+    }
     if (st != RT_OK)
+        return st;
+    rt_ecg_removal ecg;
+    memset(&ecg, 0, sizeof ecg);
+    st = finish_stretch(bp, w, n, seconds, window_samples(p->envelope_window_s, src->rate_hz),
+                        role == RT_ROLE_CHIN, ss->beats_s, ss->n_beats, src->rate_hz, &ecg, err);
+    if (st != RT_OK)
+        return st;
+    q->ecg_source = ss->beats_source;
+    q->beats += role == RT_ROLE_CHIN ? ss->n_beats : 0;
+    q->ecg_found |= ecg.found;
+    q->ecg_removed |= ecg.removed;
+    w->n_qrs = 0;
+    if (ecg.found && (st = qrs_windows(w, ss, err)) != RT_OK)
         return st;
     size_t bg_window = (size_t)llround(p->background_window_s);
     /* a stride of a quarter window: the envelope barely moves in between */
@@ -326,6 +482,35 @@ static rt_status score_role_bout(rt_recording *rec, rt_night *night, scoring_sta
     if (role == RT_ROLE_CHIN)
         count_rai(ss, w, seconds, bout);
     return RT_OK;
+}
+
+/* Every EMG role of one bout, with the bout's heart beats. */
+static rt_status score_bout(rt_recording *rec, rt_night *night, scoring_state *ss, workspace *w,
+                            const rt_role_map *roles, rt_bandpass **bp, const bout_span *bout,
+                            rt_error *err)
+{
+    rt_qrs_beats ecg_beats, chin_beats;
+    memset(&ecg_beats, 0, sizeof ecg_beats);
+    memset(&chin_beats, 0, sizeof chin_beats);
+    ss->beats_s = NULL;
+    ss->n_beats = 0;
+    ss->beats_source = 0;
+    rt_status st = RT_OK;
+    if (roles->role[RT_ROLE_ECG].channel >= 0) {
+        st = bout_beats_from_ecg(rec, &roles->role[RT_ROLE_ECG], bout, w, &ecg_beats, err);
+        if (st == RT_OK && ecg_beats.n > 0) {
+            ss->beats_s = ecg_beats.r_s;
+            ss->n_beats = ecg_beats.n;
+            ss->beats_source = 1;
+        }
+    }
+    for (int r = 0; r < RT_ROLE_COUNT && st == RT_OK; r++)
+        if (night->channel[r].present)
+            st = score_role_bout(rec, night, ss, w, (rt_role)r, &roles->role[r], bp[r], bout,
+                                 &chin_beats, err);
+    rt_qrs_beats_free(&ecg_beats);
+    rt_qrs_beats_free(&chin_beats);
+    return st;
 }
 
 /* REM bouts and the mini-epoch grids laid over them. */
@@ -416,7 +601,50 @@ static void mark_absent(rt_night *night, rt_role role)
         night->minis2[i].labels[role] = RT_LABEL_ABSENT;
 }
 
-static rt_status open_filters(rt_night *night, const rt_role_map *roles, rt_bandpass **bp,
+/* Mains interference of a channel, estimated on up to 5 minutes of the first
+ * REM bout (docs/quality.md); fills the notches of spec when a line is there. */
+static rt_status estimate_mains(rt_recording *rec, const rt_role_source *src,
+                                const bout_span *first_bout, workspace *w, rt_bandpass_spec *spec,
+                                rt_channel_quality *q, rt_error *err)
+{
+    q->line_db = -99.0;
+    if (!first_bout)
+        return RT_OK;
+    size_t seconds = first_bout->n_epochs * 30;
+    if (seconds > 300)
+        seconds = 300;
+    size_t n = 0;
+    rt_status st = read_stretch(rec, src, first_bout->t0, seconds, w, &n, err);
+    rt_mains mains;
+    if (st == RT_OK)
+        st = rt_mains_estimate(w->x, n, src->rate_hz, spec->low_hz, spec->high_hz, &mains, err);
+    if (st != RT_OK || !mains.present)
+        return st;
+    rt_mains_apply(&mains, spec);
+    q->line_hz = mains.line_hz;
+    q->line_db = mains.line_db;
+    q->notches = mains.n_notches;
+    return RT_OK;
+}
+
+static void check_prefilter(rt_night *night, const rt_recording *rec, const rt_role_source *src,
+                            rt_channel_quality *q)
+{
+    rt_channel_check check;
+    rt_quality_check_channel(rt_recording_channel(rec, src->channel), night->params.band_low_hz,
+                             night->params.band_high_hz, &check);
+    q->hp_above_band = check.hp_above_band;
+    q->lp_below_band = check.lp_below_band;
+    q->notch_at_source = check.notch_at_source;
+    if (check.hp_above_band || check.lp_below_band)
+        rt_night_warn(night, "%s: the recording's own filters (%s) narrow the %g-%g Hz band: "
+                      "amplitudes are not comparable with published values", src->label,
+                      rt_recording_channel(rec, src->channel)->prefilter,
+                      night->params.band_low_hz, night->params.band_high_hz);
+}
+
+static rt_status open_filters(rt_night *night, rt_recording *rec, const rt_role_map *roles,
+                              const bout_span *first_bout, workspace *w, rt_bandpass **bp,
                               rt_error *err)
 {
     const rt_score_params *p = &night->params;
@@ -432,6 +660,10 @@ static rt_status open_filters(rt_night *night, const rt_role_map *roles, rt_band
         spec.low_hz = p->band_low_hz;
         spec.high_hz = p->band_high_hz;
         spec.order = p->band_order;
+        check_prefilter(night, rec, src, &cr->quality);
+        rt_status st = estimate_mains(rec, src, first_bout, w, &spec, &cr->quality, err);
+        if (st != RT_OK)
+            return st;
         bp[r] = rt_bandpass_new(&spec, err);
         if (!bp[r])
             return err ? err->status : RT_ERR_USAGE;
@@ -495,7 +727,7 @@ rt_status rt_night_score(rt_recording *rec, const rt_role_map *roles, const rt_t
         rt_exclusions_rates(tl, bouts, night->n_bouts, (double)night->rem_epochs * tl->epoch_s / 3600.0,
                             &night->exclusions);
         ss.masks = &masks;
-        st = open_filters(night, roles, bp, err);
+        st = open_filters(night, rec, roles, night->n_bouts ? &bouts[0] : NULL, &w, bp, err);
     }
     for (int r = 0; r < RT_ROLE_COUNT; r++)
         if (is_emg((rt_role)r) && !night->channel[r].present)
@@ -505,10 +737,7 @@ rt_status rt_night_score(rt_recording *rec, const rt_role_map *roles, const rt_t
         st = nrem_reference(rec, chin, bp[RT_ROLE_CHIN], tl, &night->params, &w,
                             &night->nrem_reference_uv, err);
     for (size_t b = 0; b < night->n_bouts && st == RT_OK; b++)
-        for (int r = 0; r < RT_ROLE_COUNT && st == RT_OK; r++)
-            if (night->channel[r].present)
-                st = score_role_bout(rec, night, &ss, &w, (rt_role)r, &roles->role[r], bp[r],
-                                     &bouts[b], err);
+        st = score_bout(rec, night, &ss, &w, roles, bp, &bouts[b], err);
     for (int r = 0; r < RT_ROLE_COUNT; r++)
         rt_bandpass_free(bp[r]);
     rt_exclusions_free(&masks);

@@ -614,7 +614,10 @@ rt_status rt_synth_plan_build(synth_plan *plan, const rt_synth_options *opt, rt_
     }
     index_bursts(plan);
     build_positions(plan, &rng);
-    return RT_OK;
+    st = rt_synth_artifacts_build(plan, err);
+    if (st != RT_OK)
+        rt_synth_plan_free(plan);
+    return st;
 }
 
 void rt_synth_plan_free(synth_plan *plan)
@@ -634,6 +637,7 @@ void rt_synth_plan_free(synth_plan *plan)
     free(plan->bursts);
     free(plan->tonics);
     free(plan->events);
+    rt_synth_artifacts_free(plan);
     memset(plan, 0, sizeof *plan);
 }
 

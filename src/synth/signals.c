@@ -29,7 +29,7 @@ enum {
     CH_SNORE = 18,
     CH_POS = 19,
     N_BIQUADS = 4,
-    ECG_RATE_HZ = 256,
+    ECG_RATE_HZ = SYNTH_ECG_RATE_HZ,
     ECG_TEMPLATE_N = 256
 };
 
@@ -92,8 +92,11 @@ typedef struct writer {
     double eye, eye_slow;                  /* EOG state: saccade level, slow rolling */
     osc eye_roll;
     double ecg_template[ECG_TEMPLATE_N];   /* one beat, R peak at index ECG_R_INDEX */
+    size_t ecg_beat;                       /* index in plan->beats of the next R peak */
     long ecg_next_beat;                    /* sample index of the next R peak */
     long ecg_prev_beat;
+    size_t art_beat[SYNTH_ROLES];          /* cursors of the artifact sums */
+    size_t art_pop;
     double breath_phase;                   /* radians */
     double emg_peak_uv;                    /* largest |EMG| written, for the clipping check */
     double *buf[N_CHANNELS];
@@ -192,22 +195,12 @@ static void emg_filter_init(writer *w)
             (void)cascade_step(w->bq, w->z[r], rt_synth_rng_gauss(&w->rng[CH_EMG0 + r]));
 }
 
-/* PQRST as a sum of Gaussian waves (amplitudes mV, centres s from R, widths s);
- * a textbook-shaped placeholder, not a physiological model. */
+/* One beat sampled at the ECG rate (the waveform is in artifacts.c, shared
+ * with the ECG bleed into the EMG channels). */
 static void ecg_template_init(writer *w)
 {
-    static const double wave[5][3] = {
-        {0.15, -0.20, 0.025}, {-0.10, -0.03, 0.010}, {1.00, 0.0, 0.012}, {-0.25, 0.03, 0.010},
-        {0.30, 0.26, 0.045}};
-    for (int i = 0; i < ECG_TEMPLATE_N; i++) {
-        double t = (double)(i - ECG_R_INDEX) / ECG_RATE_HZ;
-        double v = 0;
-        for (int k = 0; k < 5; k++) {
-            double d = (t - wave[k][1]) / wave[k][2];
-            v += wave[k][0] * exp(-0.5 * d * d);
-        }
-        w->ecg_template[i] = v;
-    }
+    for (int i = 0; i < ECG_TEMPLATE_N; i++)
+        w->ecg_template[i] = rt_synth_ecg_wave((double)(i - ECG_R_INDEX) / ECG_RATE_HZ);
 }
 
 static rt_status writer_init(writer *w, const synth_plan *plan, rt_error *err)
@@ -232,7 +225,8 @@ static rt_status writer_init(writer *w, const synth_plan *plan, rt_error *err)
     osc_init(&w->eye_roll, 0.3, 128, 0.0);
     ecg_template_init(w);
     w->ecg_prev_beat = -ECG_TEMPLATE_N;
-    w->ecg_next_beat = 40;
+    w->ecg_beat = 0;
+    w->ecg_next_beat = plan->n_beats > 0 ? plan->beats[0] : -1;
     return RT_OK;
 }
 
@@ -306,6 +300,10 @@ static void make_emg(writer *w, long s)
     const double k = 1.2533141373155003; /* sqrt(pi/2): E|x| = sigma * sqrt(2/pi) */
     long e = s / SYNTH_EPOCH_S;
     int near_boundary = (s % SYNTH_EPOCH_S == 0) || (s % SYNTH_EPOCH_S == SYNTH_EPOCH_S - 1);
+    const rt_synth_options *o = &plan->opt;
+    int artifacts = (o->mains_hz > 0.0 && o->mains_uv > 0.0) || o->ecg_bleed_uv > 0.0 ||
+                    o->ecg_bleed_limb_uv > 0.0 || o->clip_duration_s > 0.0 || o->detach_s > 0.0 ||
+                    plan->n_pops > 0;
     for (int r = 0; r < SYNTH_ROLES; r++) {
         double level = plan->bg_uv[r][e];
         if (r == SYNTH_CHIN && plan->tonic[e])
@@ -331,6 +329,14 @@ static void make_emg(writer *w, long s)
             double ax = fabs(x);
             if (ax > w->emg_peak_uv)
                 w->emg_peak_uv = ax;
+            if (artifacts) {
+                double ts = (double)s + t;
+                x += rt_synth_artifact_uv(plan, r, ts, &w->art_beat[r], &w->art_pop);
+                if (r == SYNTH_CHIN)
+                    x = rt_synth_chin_override(plan, ts, x);
+                /* saturation as the recorder would show it */
+                x = fmax(-SYNTH_EMG_RANGE_UV, fmin(SYNTH_EMG_RANGE_UV, x));
+            }
             out[i] = x;
         }
     }
@@ -343,10 +349,11 @@ static void make_ecg(writer *w, long s)
     for (int i = 0; i < ECG_RATE_HZ; i++) {
         long n = s * ECG_RATE_HZ + i;
         if (n == w->ecg_next_beat) {
+            /* beats from the plan: ~62 bpm (or the option) with a slow
+             * respiratory-like modulation of the interval */
             w->ecg_prev_beat = n;
-            /* ~62 bpm with a slow respiratory-like modulation of the interval. */
-            double rr = 60.0 / 62.0 * (1.0 + 0.03 * sin(2.0 * SYNTH_PI * 0.25 * (double)n / ECG_RATE_HZ));
-            w->ecg_next_beat = n + lround(rr * ECG_RATE_HZ);
+            w->ecg_beat++;
+            w->ecg_next_beat = w->ecg_beat < w->plan->n_beats ? w->plan->beats[w->ecg_beat] : -1;
         }
         double v = 0.01 * cheap_noise(r);
         long a = n - w->ecg_prev_beat + ECG_R_INDEX, b = n - w->ecg_next_beat + ECG_R_INDEX;

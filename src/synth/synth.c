@@ -3,6 +3,7 @@
 #include "remtone/synth.h"
 
 #include <errno.h>
+#include <stdbool.h>
 #include <math.h>
 #include <stdio.h>
 #include <string.h>
@@ -76,6 +77,40 @@ const char *rt_synth_event_edf_text(int type)
     return type >= 0 && type <= SYNTH_RESP_AROUSAL ? names[type] : "Artifact";
 }
 
+static bool in_range(double v, double lo, double hi)
+{
+    return isfinite(v) && v >= lo && v <= hi;
+}
+
+static rt_status check_artifacts(const rt_synth_options *o, rt_error *err)
+{
+    double night_s = floor(o->hours * 3600.0 / 30.0 + 1e-9) * 30.0;
+    if (!(o->mains_hz == 0.0 || o->mains_hz == 50.0 || o->mains_hz == 60.0))
+        return rt_fail(err, RT_ERR_USAGE, "synthetic night: mains frequency must be 0, 50 or 60 Hz (got %g)",
+                       o->mains_hz);
+    if (!in_range(o->mains_uv, 0.0, 100.0) || o->mains_harmonics < 0 || o->mains_harmonics > 4)
+        return rt_fail(err, RT_ERR_USAGE,
+                       "synthetic night: mains amplitude must be 0..100 uV and harmonics 0..4 (got %g, %d)",
+                       o->mains_uv, o->mains_harmonics);
+    if (!in_range(o->ecg_bleed_uv, 0.0, 200.0) || !in_range(o->ecg_bleed_limb_uv, 0.0, 200.0))
+        return rt_fail(err, RT_ERR_USAGE, "synthetic night: ECG bleed must be 0..200 uV (got %g, %g)",
+                       o->ecg_bleed_uv, o->ecg_bleed_limb_uv);
+    if (!(o->heart_rate_bpm == 0.0 || in_range(o->heart_rate_bpm, 30.0, 120.0)))
+        return rt_fail(err, RT_ERR_USAGE, "synthetic night: heart rate must be 30..120 bpm (got %g)",
+                       o->heart_rate_bpm);
+    if (!in_range(o->clip_duration_s, 0.0, night_s) ||
+        (o->clip_duration_s > 0.0 && !in_range(o->clip_start_s, 0.0, night_s - o->clip_duration_s)))
+        return rt_fail(err, RT_ERR_USAGE,
+                       "synthetic night: clipping %g s from %g s does not lie inside the %g-s night",
+                       o->clip_duration_s, o->clip_start_s, night_s);
+    if (!(o->detach_s == 0.0 || (isfinite(o->detach_s) && o->detach_s > 0.0 && o->detach_s < night_s)))
+        return rt_fail(err, RT_ERR_USAGE, "synthetic night: detach time %g s is not inside the %g-s night",
+                       o->detach_s, night_s);
+    if (o->pops < 0 || o->pops > 1000)
+        return rt_fail(err, RT_ERR_USAGE, "synthetic night: pops must be 0..1000 (got %d)", o->pops);
+    return RT_OK;
+}
+
 static rt_status check_options(const rt_synth_options *o, const char *dir, rt_error *err)
 {
     if ((int)o->profile < 0 || o->profile >= RT_SYNTH_PROFILE_COUNT)
@@ -85,6 +120,9 @@ static rt_status check_options(const rt_synth_options *o, const char *dir, rt_er
     if (o->start_hour > 23 || o->start_minute < 0 || o->start_minute > 59)
         return rt_fail(err, RT_ERR_USAGE, "synthetic night: start time %d:%d is not a clock time",
                        o->start_hour, o->start_minute);
+    rt_status st = check_artifacts(o, err);
+    if (st != RT_OK)
+        return st;
     struct stat sb;
     if (!dir || stat(dir, &sb) != 0 || !S_ISDIR(sb.st_mode))
         return rt_fail(err, RT_ERR_IO, "%s: output folder does not exist", dir ? dir : "(null)");

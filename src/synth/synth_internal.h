@@ -15,7 +15,9 @@
 enum {
     SYNTH_EPOCH_S = 30,
     SYNTH_ROLES = 5, /* chin, arm-left, arm-right, leg-left, leg-right */
-    SYNTH_EMG_RATE_HZ = 512
+    SYNTH_EMG_RATE_HZ = 512,
+    SYNTH_ECG_RATE_HZ = 256,
+    SYNTH_ECG_FIRST_BEAT = 40 /* ECG sample of the first R peak */
 };
 
 typedef enum synth_role {
@@ -78,6 +80,19 @@ typedef struct synth_event {
     int type;                 /* synth_event_type */
 } synth_event;
 
+/* Chin saturation: a swing of this amplitude and frequency added to the
+ * chin, clipped by its +-500 uV range; pops decay with this time constant. */
+#define SYNTH_CLIP_SWING_UV 1500.0
+#define SYNTH_CLIP_SWING_HZ 1.0
+#define SYNTH_POP_TAU_S 0.1
+#define SYNTH_EMG_RANGE_UV 500.0
+
+/* An electrode pop in the chin: a step of amplitude_uv at onset_s decaying
+ * as exp(-(t - onset_s) / tau_s), cut 10 tau after onset. */
+typedef struct synth_pop {
+    double onset_s, amplitude_uv, tau_s;
+} synth_pop;
+
 /* Everything placed in one night. Arrays indexed by epoch have n_epochs
  * entries; arrays indexed by second have n_seconds. */
 typedef struct synth_plan {
@@ -99,11 +114,34 @@ typedef struct synth_plan {
     int *sec_burst[SYNTH_ROLES]; /* burst index holding that second, or -1 */
     unsigned char *sec_excluded;  /* second overlaps a respiratory event or arousal */
     unsigned char *position;      /* body position code per epoch (1..4) */
+    long *beats;                  /* R peaks of the ECG channel, as ECG sample indices
+                                     (SYNTH_ECG_RATE_HZ), up to one past the night's end */
+    size_t n_beats;
+    synth_pop *pops;              /* sorted by onset; empty without the pops option */
+    size_t n_pops;
 } synth_plan;
 
 /* Builds the whole plan from options (already validated). */
 rt_status rt_synth_plan_build(synth_plan *plan, const rt_synth_options *opt, rt_error *err);
 void rt_synth_plan_free(synth_plan *plan);
+
+/* Artifact part of the plan (artifacts.c): the beat list (always) and the
+ * pops; called by rt_synth_plan_build, freed by rt_synth_plan_free. */
+rt_status rt_synth_artifacts_build(synth_plan *plan, rt_error *err);
+void rt_synth_artifacts_free(synth_plan *plan);
+/* Mean heart rate in use (62 when the option is 0). */
+double rt_synth_heart_rate_bpm(const rt_synth_options *opt);
+/* ECG waveform in mV at t_s seconds from an R peak (0 outside -0.36..+0.66 s,
+ * which holds the 256-sample beat of the ECG channel);
+ * its value at 0 is rt_synth_ecg_wave(0). */
+double rt_synth_ecg_wave(double t_s);
+/* Artifacts added to an EMG role at time t_s (mains, bleed, pops) in uV,
+ * beat_cursor an index into plan->beats kept by the caller (start at 0,
+ * times must not decrease). */
+double rt_synth_artifact_uv(const synth_plan *plan, int role, double t_s, size_t *beat_cursor,
+                            size_t *pop_cursor);
+/* Chin after saturation and detachment: maps the summed chin sample at t_s. */
+double rt_synth_chin_override(const synth_plan *plan, double t_s, double x_uv);
 
 /* Designed background rectified level of a role at time t_s, including the
  * 0.5-s ramps at epoch boundaries outside REM (tonic and bursts excluded). */

@@ -226,6 +226,77 @@ static json_t *minis_json(const synth_plan *plan)
     return minis;
 }
 
+/* Exactly what rt_synth_artifact_uv and rt_synth_chin_override add; a
+ * switched-off artifact is null. */
+static json_t *artifacts_json(const synth_plan *plan)
+{
+    const rt_synth_options *o = &plan->opt;
+    json_t *a = json_object();
+    static const char *const emg[SYNTH_ROLES] = {"chin", "arm-left", "arm-right", "leg-left", "leg-right"};
+    if (o->mains_hz > 0.0 && o->mains_uv > 0.0) {
+        json_t *m = json_object(), *comp = json_array(), *chs = json_array();
+        json_object_set_new(m, "line_hz", json_real(o->mains_hz));
+        double amp = o->mains_uv;
+        for (int h = 1; h <= 1 + o->mains_harmonics; h++, amp *= 0.5) {
+            json_t *c = json_object();
+            json_object_set_new(c, "hz", json_real(o->mains_hz * h));
+            json_object_set_new(c, "amplitude_uv", json_real(amp));
+            json_array_append_new(comp, c);
+        }
+        json_object_set_new(m, "components", comp);
+        json_object_set_new(m, "phase", json_string("sine from 0 at the recording start"));
+        for (int r = 0; r < SYNTH_ROLES; r++)
+            json_array_append_new(chs, json_string(emg[r]));
+        json_object_set_new(m, "roles", chs);
+        json_object_set_new(a, "mains", m);
+    } else {
+        json_object_set_new(a, "mains", json_null());
+    }
+    json_t *ecg = json_object(), *beats = json_array();
+    json_object_set_new(ecg, "heart_rate_bpm", json_real(rt_synth_heart_rate_bpm(o)));
+    json_object_set_new(ecg, "chin_r_uv", json_real(o->ecg_bleed_uv));
+    json_object_set_new(ecg, "limb_r_uv", json_real(o->ecg_bleed_limb_uv));
+    for (size_t k = 0; k < plan->n_beats; k++) {
+        double t = (double)plan->beats[k] / SYNTH_ECG_RATE_HZ;
+        if (t < (double)plan->n_seconds)
+            json_array_append_new(beats, json_real(t));
+    }
+    json_object_set_new(ecg, "r_s", beats);
+    json_object_set_new(a, "ecg", ecg);
+    if (o->clip_duration_s > 0.0) {
+        json_t *c = json_object();
+        json_object_set_new(c, "role", json_string("chin"));
+        json_object_set_new(c, "start_s", json_real(o->clip_start_s));
+        json_object_set_new(c, "end_s", json_real(o->clip_start_s + o->clip_duration_s));
+        json_object_set_new(c, "swing_uv", json_real(SYNTH_CLIP_SWING_UV));
+        json_object_set_new(c, "swing_hz", json_real(SYNTH_CLIP_SWING_HZ));
+        json_object_set_new(c, "range_uv", json_real(SYNTH_EMG_RANGE_UV));
+        json_object_set_new(a, "clipping", c);
+    } else {
+        json_object_set_new(a, "clipping", json_null());
+    }
+    if (o->detach_s > 0.0) {
+        json_t *d = json_object();
+        json_object_set_new(d, "role", json_string("chin"));
+        json_object_set_new(d, "from_s", json_real(o->detach_s));
+        json_object_set_new(d, "value_uv", json_real(0.0));
+        json_object_set_new(a, "detached", d);
+    } else {
+        json_object_set_new(a, "detached", json_null());
+    }
+    json_t *pops = json_array();
+    for (size_t i = 0; i < plan->n_pops; i++) {
+        json_t *p = json_object();
+        json_object_set_new(p, "role", json_string("chin"));
+        json_object_set_new(p, "onset_s", json_real(plan->pops[i].onset_s));
+        json_object_set_new(p, "amplitude_uv", json_real(plan->pops[i].amplitude_uv));
+        json_object_set_new(p, "tau_s", json_real(plan->pops[i].tau_s));
+        json_array_append_new(pops, p);
+    }
+    json_object_set_new(a, "pops", pops);
+    return a;
+}
+
 static json_t *truth_json(const synth_plan *plan)
 {
     json_t *root = json_object();
@@ -299,6 +370,7 @@ static json_t *truth_json(const synth_plan *plan)
         json_array_append_new(events, o);
     }
     json_object_set_new(root, "events", events);
+    json_object_set_new(root, "artifacts", artifacts_json(plan));
     json_object_set_new(root, "minis_3s", minis_json(plan));
 
     synth_indices ix, ix_ex;

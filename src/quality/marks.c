@@ -1,0 +1,332 @@
+/* Marks of EMG stretches that cannot be scored (clipping, flat line or
+ * detached lead, electrode pops) and the channel-level header checks
+ * (sampling rate, prefilter text). Every detector works on the raw samples
+ * in one or two passes with running sums, so it allocates nothing and costs
+ * a few operations per sample. Thresholds and their reasons: docs/quality.md. */
+#include <ctype.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "quality.h"
+
+const char *rt_quality_reason_name(rt_quality_reason reason)
+{
+    static const char *const names[RT_QUALITY_REASON_COUNT] = {"clipping", "flat", "pop"};
+    return (int)reason >= 0 && reason < RT_QUALITY_REASON_COUNT ? names[reason] : "unknown";
+}
+
+/* Collects marks of one reason, joining a new span with the previous one
+ * when they lie closer than RT_QUALITY_MERGE_S. */
+typedef struct mark_sink {
+    rt_quality_mark *marks;
+    size_t cap, count;
+    double duration_s;
+    rt_quality_reason reason;
+    bool open;       /* a mark of this reason was added and may still grow */
+    double last_end; /* its end */
+} mark_sink;
+
+static void sink_add(mark_sink *k, double a, double b)
+{
+    if (a < 0.0)
+        a = 0.0;
+    if (b > k->duration_s)
+        b = k->duration_s;
+    if (b <= a)
+        return;
+    if (k->open && a - k->last_end < RT_QUALITY_MERGE_S) {
+        if (b > k->last_end) {
+            k->last_end = b;
+            if (k->count <= k->cap && k->count > 0)
+                k->marks[k->count - 1].end_s = b;
+        }
+        return;
+    }
+    if (k->count < k->cap)
+        k->marks[k->count] = (rt_quality_mark){a, b, k->reason};
+    k->count++;
+    k->open = true;
+    k->last_end = b;
+}
+
+static void sink_begin(mark_sink *k, rt_quality_reason reason)
+{
+    k->reason = reason;
+    k->open = false;
+}
+
+static void find_clipping(const double *x, size_t n, double rate, const rt_channel_info *ch,
+                          mark_sink *k)
+{
+    double scale = ch->uv_per_unit > 0.0 ? ch->uv_per_unit : 1.0;
+    double lo = ch->phys_min * scale, hi = ch->phys_max * scale;
+    if (lo > hi) {
+        double t = lo;
+        lo = hi;
+        hi = t;
+    }
+    double tol = RT_QUALITY_CLIP_FRACTION * (hi - lo);
+    size_t i = 0;
+    while (i < n) {
+        bool clip = !isfinite(x[i]) || x[i] >= hi - tol || x[i] <= lo + tol;
+        if (!clip) {
+            i++;
+            continue;
+        }
+        size_t j = i;
+        while (j < n && (!isfinite(x[j]) || x[j] >= hi - tol || x[j] <= lo + tol))
+            j++;
+        sink_add(k, (double)i / rate - RT_QUALITY_CLIP_PAD_S, (double)j / rate + RT_QUALITY_CLIP_PAD_S);
+        i = j;
+    }
+}
+
+/* Flat line: identical samples for RT_QUALITY_FLAT_RUN_S (a live electrode
+ * on a 16-bit converter never holds one code that long), or blocks whose
+ * mean absolute deviation from their own mean stays below RT_QUALITY_FLAT_UV
+ * for RT_QUALITY_FLAT_MIN_S (a lead off the skin, amplifier noise only). */
+static void find_flat(const double *x, size_t n, double rate, mark_sink *k)
+{
+    size_t run_min = (size_t)ceil(RT_QUALITY_FLAT_RUN_S * rate);
+    /* Both tests give spans in samples; collect them in time order by
+     * walking blocks and constant runs together. */
+    size_t block = (size_t)llround(RT_QUALITY_FLAT_BLOCK_S * rate);
+    if (block < 2)
+        block = 2;
+    size_t blocks_min = (size_t)ceil(RT_QUALITY_FLAT_MIN_S / RT_QUALITY_FLAT_BLOCK_S);
+    size_t quiet_first = 0, quiet_count = 0;
+    size_t run_start = 0;
+    for (size_t b0 = 0; b0 < n; b0 += block) {
+        size_t b1 = b0 + block < n ? b0 + block : n;
+        /* constant runs inside this block (runs may span blocks) */
+        for (size_t i = b0; i < b1; i++) {
+            if (i > 0 && x[i] == x[i - 1] && isfinite(x[i]))
+                continue;
+            if (i > 0 && i - run_start >= run_min)
+                sink_add(k, (double)run_start / rate, (double)i / rate);
+            run_start = i;
+        }
+        double mean = 0.0;
+        for (size_t i = b0; i < b1; i++)
+            mean += x[i];
+        mean /= (double)(b1 - b0);
+        double mad = 0.0;
+        for (size_t i = b0; i < b1; i++)
+            mad += fabs(x[i] - mean);
+        mad /= (double)(b1 - b0);
+        bool quiet = b1 - b0 == block && mad < RT_QUALITY_FLAT_UV;
+        if (quiet) {
+            if (quiet_count == 0)
+                quiet_first = b0;
+            quiet_count++;
+        }
+        if ((!quiet || b1 == n) && quiet_count > 0) {
+            if (quiet_count >= blocks_min)
+                sink_add(k, (double)quiet_first / rate,
+                         (double)(quiet_first + quiet_count * block) / rate);
+            quiet_count = 0;
+        }
+    }
+    if (n > 0 && n - run_start >= run_min)
+        sink_add(k, (double)run_start / rate, (double)n / rate);
+}
+
+/* Electrode pop: one sample-to-sample step d[i] far above the mean |d| on
+ * each side of it (the larger of the two one-sided means over
+ * RT_QUALITY_POP_SIDE_S, leaving out 4 samples next to i so the pop's own
+ * decay does not hide it). Taking the larger side keeps the onset of a real
+ * burst, loud on one side, from being called a pop. */
+static void find_pops(const double *x, size_t n, double rate, mark_sink *k)
+{
+    enum { GAP = 4 };
+    size_t side = (size_t)llround(RT_QUALITY_POP_SIDE_S * rate);
+    if (n < 2 * (side + GAP) + 2 || side == 0)
+        return;
+    /* d[i] = |x[i] - x[i-1]| for i >= 1; left window d[i-GAP-side .. i-GAP),
+     * right window d(i+GAP .. i+GAP+side]. */
+    double left = 0.0, right = 0.0;
+    size_t first = side + GAP + 1, last = n - side - GAP - 1; /* inclusive range of i */
+#define DIFF(j) fabs(x[(j)] - x[(j) - 1])
+    for (size_t j = first - GAP - side; j < first - GAP; j++)
+        left += DIFF(j);
+    for (size_t j = first + GAP + 1; j <= first + GAP + side; j++)
+        right += DIFF(j);
+    for (size_t i = first; i <= last; i++) {
+        double d = DIFF(i);
+        double ref = fmax(left, right) / (double)side;
+        if (isfinite(d) && d >= RT_QUALITY_POP_MIN_UV && d > RT_QUALITY_POP_RATIO * ref) {
+            double t = (double)i / rate;
+            sink_add(k, t - RT_QUALITY_POP_BEFORE_S, t + RT_QUALITY_POP_AFTER_S);
+        }
+        if (i < last) {
+            left += DIFF(i - GAP) - DIFF(i - GAP - side);
+            right += DIFF(i + 1 + GAP + side) - DIFF(i + 1 + GAP);
+        }
+    }
+#undef DIFF
+}
+
+size_t rt_quality_marks(const double *raw_uv, size_t n, double rate_hz, const rt_channel_info *ch,
+                        rt_quality_mark *marks, size_t cap)
+{
+    if (!raw_uv || n == 0 || !(rate_hz > 0.0) || !isfinite(rate_hz))
+        return 0;
+    mark_sink k = {marks, marks ? cap : 0, 0, (double)n / rate_hz, RT_QUALITY_CLIPPING, false, 0.0};
+    if (ch) {
+        sink_begin(&k, RT_QUALITY_CLIPPING);
+        find_clipping(raw_uv, n, rate_hz, ch, &k);
+    }
+    sink_begin(&k, RT_QUALITY_FLAT);
+    find_flat(raw_uv, n, rate_hz, &k);
+    sink_begin(&k, RT_QUALITY_POP);
+    find_pops(raw_uv, n, rate_hz, &k);
+    return k.count;
+}
+
+static int cmp_start(const void *a, const void *b)
+{
+    double x = ((const rt_time_span *)a)->start_s, y = ((const rt_time_span *)b)->start_s;
+    return (x > y) - (x < y);
+}
+
+double rt_quality_marked_s(const rt_quality_mark *marks, size_t n_marks, rt_quality_reason reason,
+                           double duration_s)
+{
+    if (!marks || n_marks == 0)
+        return 0.0;
+    rt_time_span *s = malloc(n_marks * sizeof *s);
+    size_t m = 0;
+    double total = 0.0;
+    if (!s) {
+        /* without room to sort, the plain sum is an upper bound */
+        for (size_t i = 0; i < n_marks; i++)
+            if (reason == RT_QUALITY_REASON_COUNT || marks[i].reason == reason)
+                total += fmin(marks[i].end_s, duration_s) - fmax(marks[i].start_s, 0.0);
+        return fmin(total, duration_s);
+    }
+    for (size_t i = 0; i < n_marks; i++)
+        if (reason == RT_QUALITY_REASON_COUNT || marks[i].reason == reason)
+            s[m++] = (rt_time_span){fmax(marks[i].start_s, 0.0), fmin(marks[i].end_s, duration_s)};
+    qsort(s, m, sizeof *s, cmp_start);
+    double reach = 0.0;
+    for (size_t i = 0; i < m; i++) {
+        double a = fmax(s[i].start_s, reach), b = s[i].end_s;
+        if (b > a)
+            total += b - a;
+        reach = fmax(reach, b);
+    }
+    free(s);
+    return total;
+}
+
+/* ---- header checks ---- */
+
+/* Reads a number with '.' or ',' as decimal mark; returns chars used, 0 if none. */
+static size_t read_number(const char *s, double *out)
+{
+    char buf[32];
+    size_t i = 0, k = 0;
+    while (s[i] && k + 1 < sizeof buf &&
+           (isdigit((unsigned char)s[i]) || s[i] == '.' || s[i] == ',' ||
+            (i == 0 && (s[i] == '-' || s[i] == '+')))) {
+        buf[k++] = s[i] == ',' ? '.' : s[i];
+        i++;
+    }
+    buf[k] = '\0';
+    if (k == 0)
+        return 0;
+    char *end = NULL;
+    double v = strtod(buf, &end);
+    if (end == buf || !isfinite(v))
+        return 0;
+    *out = v;
+    return (size_t)(end - buf);
+}
+
+static bool key_is(const char *s, size_t len, const char *key)
+{
+    if (strlen(key) != len)
+        return false;
+    for (size_t i = 0; i < len; i++)
+        if (tolower((unsigned char)s[i]) != key[i])
+            return false;
+    return true;
+}
+
+int rt_prefilter_parse(const char *text, rt_prefilter *out)
+{
+    out->hp_hz = out->lp_hz = out->notch_hz = NAN;
+    if (!text)
+        return 0;
+    int found = 0;
+    const char *p = text;
+    while (*p) {
+        while (*p && !isalpha((unsigned char)*p))
+            p++;
+        const char *key = p;
+        while (isalpha((unsigned char)*p))
+            p++;
+        size_t klen = (size_t)(p - key);
+        if (klen == 0)
+            break;
+        double *field = NULL;
+        if (key_is(key, klen, "hp"))
+            field = &out->hp_hz;
+        else if (key_is(key, klen, "lp"))
+            field = &out->lp_hz;
+        else if (key_is(key, klen, "n") || key_is(key, klen, "notch"))
+            field = &out->notch_hz;
+        if (!field)
+            continue;
+        while (*p == ' ' || *p == ':' || *p == '=')
+            p++;
+        if ((p[0] == 'D' || p[0] == 'd') && (p[1] == 'C' || p[1] == 'c') && !isalpha((unsigned char)p[2])) {
+            if (field == &out->hp_hz) {
+                *field = 0.0;
+                found++;
+            }
+            p += 2;
+            continue;
+        }
+        double v;
+        size_t used = read_number(p, &v);
+        if (used == 0)
+            continue; /* "N:off", "N:none" */
+        p += used;
+        while (*p == ' ')
+            p++;
+        if ((p[0] == 'H' || p[0] == 'h') && (p[1] == 'Z' || p[1] == 'z')) {
+            p += 2;
+        } else if ((p[0] == 's' || p[0] == 'S') && !isalpha((unsigned char)p[1]) && field == &out->hp_hz) {
+            /* a time constant: first-order corner 1 / (2 pi tau) */
+            p++;
+            if (v <= 0.0)
+                continue;
+            v = 1.0 / (2.0 * 3.14159265358979323846 * v);
+        } else if ((p[0] == 'k' || p[0] == 'K') && (p[1] == 'H' || p[1] == 'h') && (p[2] == 'z' || p[2] == 'Z')) {
+            p += 3;
+            v *= 1000.0;
+        }
+        if (v < 0.0)
+            continue;
+        if (isnan(*field))
+            found++;
+        *field = v;
+    }
+    return found;
+}
+
+void rt_quality_check_channel(const rt_channel_info *ch, double band_low_hz, double band_high_hz,
+                              rt_channel_check *out)
+{
+    memset(out, 0, sizeof *out);
+    rt_prefilter_parse(ch ? ch->prefilter : NULL, &out->prefilter);
+    if (!ch)
+        return;
+    out->rate_below_min = !(ch->rate_hz >= RT_QUALITY_MIN_RATE_HZ);
+    const rt_prefilter *f = &out->prefilter;
+    out->hp_above_band = isfinite(f->hp_hz) && f->hp_hz > band_low_hz;
+    out->lp_below_band = isfinite(f->lp_hz) && f->lp_hz > 0.0 && f->lp_hz < band_high_hz;
+    out->notch_at_source = isfinite(f->notch_hz) && f->notch_hz > 0.0;
+}

@@ -1,0 +1,446 @@
+/* Quality control of an EMG stretch (src/quality/marks.c, mains.c): marks
+ * of clipping, flat line and pops with their times and none on clean EMG;
+ * the mains line decided 50, 60 or none on EMG-like and mixed-noise
+ * signals, its strength against the band by Parseval; the notch list; the
+ * prefilter text and the rate check; the QRS window helpers.
+ * Test EMG is Gaussian noise band-passed to 20-150 Hz (a surface EMG
+ * spectrum lies mostly in 20-150 Hz: common practice) at a rectified level
+ * of 1-2 uV (BRIEF section 2, [M]). */
+#include "support.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "quality/quality.h"
+#include "score/bandpass.h"
+#include "score/fft_plans.h"
+
+static const double PI = 3.14159265358979323846;
+static const double RATE = 512.0;
+
+static uint64_t rng_state;
+
+/* xorshift64* (Vigna 2016) and Box-Muller: enough for test signals. */
+static double rng_uniform(void)
+{
+    rng_state ^= rng_state >> 12;
+    rng_state ^= rng_state << 25;
+    rng_state ^= rng_state >> 27;
+    return ((double)((rng_state * 2685821657736338717u) >> 11) + 0.5) / 9007199254740992.0;
+}
+
+static double rng_gauss(void)
+{
+    return sqrt(-2.0 * log(rng_uniform())) * cos(2.0 * PI * rng_uniform());
+}
+
+/* Band-limited Gaussian noise (lo-hi Hz) with mean rectified value rect_uv. */
+static double *emg(size_t n, double rate, double lo, double hi, double rect_uv)
+{
+    double *x = malloc(n * sizeof *x);
+    assert_non_null(x);
+    for (size_t i = 0; i < n; i++)
+        x[i] = rng_gauss();
+    rt_bandpass_spec spec = rt_bandpass_spec_defaults(rate);
+    spec.low_hz = lo;
+    spec.high_hz = hi;
+    rt_error err;
+    rt_bandpass *bp = rt_bandpass_new(&spec, &err);
+    assert_non_null(bp);
+    assert_int_equal(rt_bandpass_apply(bp, x, n, &err), RT_OK);
+    rt_bandpass_free(bp);
+    double m = 0.0;
+    for (size_t i = 0; i < n; i++)
+        m += fabs(x[i]);
+    m /= (double)n;
+    for (size_t i = 0; i < n; i++)
+        x[i] *= rect_uv / m;
+    return x;
+}
+
+static double power(const double *x, size_t n)
+{
+    double s = 0.0;
+    for (size_t i = 0; i < n; i++)
+        s += x[i] * x[i];
+    return s / (double)n;
+}
+
+static rt_channel_info chin_info(double rate)
+{
+    rt_channel_info ch;
+    memset(&ch, 0, sizeof ch);
+    strcpy(ch.label, "Chin1-Chin2");
+    strcpy(ch.unit, "uV");
+    strcpy(ch.prefilter, "HP:10Hz LP:100Hz");
+    ch.rate_hz = rate;
+    ch.phys_min = -500.0;
+    ch.phys_max = 500.0;
+    ch.dig_min = -32768;
+    ch.dig_max = 32767;
+    ch.is_voltage = true;
+    ch.uv_per_unit = 1.0;
+    return ch;
+}
+
+static void add_line(double *x, size_t n, double rate, double f, double amp, int harmonics)
+{
+    for (size_t i = 0; i < n; i++)
+        for (int h = 1; h <= harmonics + 1; h++)
+            x[i] += amp / h * sin(2.0 * PI * f * h * (double)i / rate + 0.3 * h);
+}
+
+static int cleanup(void **state)
+{
+    (void)state;
+    rt_fft_plans_cleanup();
+    return 0;
+}
+
+/* ---- mains ---- */
+
+static void test_mains_none_on_clean_emg(void **state)
+{
+    (void)state;
+    for (int trial = 0; trial < 3; trial++) {
+        size_t n = (size_t)(60 * RATE);
+        double *x = emg(n, RATE, 20.0, 150.0, 1.0 + trial);
+        rt_mains m;
+        rt_error err;
+        assert_int_equal(rt_mains_estimate(x, n, RATE, 10.0, 100.0, &m, &err), RT_OK);
+        assert_false(m.present);
+        assert_true(m.line_hz == 0.0);
+        assert_int_equal(m.n_notches, 0);
+        assert_true(m.prominence_db < RT_MAINS_PROMINENCE_DB);
+        free(x);
+    }
+}
+
+static void test_mains_50_and_60(void **state)
+{
+    (void)state;
+    const double lines[2] = {50.0, 60.0};
+    for (int c = 0; c < 2; c++) {
+        size_t n = (size_t)(60 * RATE);
+        double *x = emg(n, RATE, 20.0, 150.0, 1.0);
+        double p_emg = power(x, n);
+        double amp = 2.0; /* uV, fundamental; harmonics 1/2, 1/3 of it */
+        add_line(x, n, RATE, lines[c], amp, 2);
+        rt_mains m;
+        rt_error err;
+        assert_int_equal(rt_mains_estimate(x, n, RATE, 10.0, 100.0, &m, &err), RT_OK);
+        assert_true(m.present);
+        assert_true(m.line_hz == lines[c]);
+        /* Parseval: a sinusoid of amplitude A carries A^2/2; inside 10-100 Hz lie
+         * the fundamental and (for 50 Hz) the 100-Hz harmonic; the EMG's power in
+         * the band is its whole power less the 100-150 Hz part, which this check
+         * bounds by taking the whole (hence the 1.5 dB one-sided margin). */
+        double in_band = amp * amp / 2.0 + (lines[c] == 50.0 ? amp * amp / 8.0 : 0.0);
+        double expect_db = 10.0 * log10(in_band / p_emg);
+        print_message("# line %g Hz: line_db %.2f, Parseval with whole EMG %.2f, prominence %.1f dB\n",
+                      lines[c], m.line_db, expect_db, m.prominence_db);
+        assert_true(m.line_db > expect_db - 0.5 && m.line_db < expect_db + 3.0);
+        /* every component recovered: excess power within 10 % of sum A_h^2/2 below 0.45 fs */
+        double total = amp * amp / 2.0 * (1.0 + 0.25 + 1.0 / 9.0);
+        assert_true(fabs(m.power_uv2[c] - total) < 0.1 * total);
+        /* notches: harmonics below 0.45 x 512 = 230.4 Hz and below 2 x 100 Hz */
+        if (lines[c] == 50.0) {
+            assert_int_equal(m.n_notches, 3);
+            assert_true(m.notch_hz[0] == 50.0 && m.notch_hz[1] == 100.0 && m.notch_hz[2] == 150.0);
+        } else {
+            assert_int_equal(m.n_notches, 3);
+            assert_true(m.notch_hz[0] == 60.0 && m.notch_hz[1] == 120.0 && m.notch_hz[2] == 180.0);
+        }
+        rt_bandpass_spec spec = rt_bandpass_spec_defaults(RATE);
+        rt_mains_apply(&m, &spec);
+        assert_int_equal(spec.n_notches, m.n_notches);
+        assert_true(spec.notch_hz[0] == lines[c] && spec.notch_width_hz > 0.0);
+        free(x);
+    }
+}
+
+/* Mixed noise: EMG plus ECG-like spikes, baseline wander, a 1/f-like drift
+ * and a weak line of the other family's harmonic absent. */
+static void test_mains_mixed_noise(void **state)
+{
+    (void)state;
+    const double lines[2] = {50.0, 60.0};
+    for (int c = 0; c < 2; c++) {
+        double rate = c == 0 ? 256.0 : 200.0;
+        size_t n = (size_t)(120 * rate);
+        double *x = emg(n, rate, 20.0, 0.45 * rate, 1.5);
+        double walk = 0.0;
+        for (size_t i = 0; i < n; i++) {
+            double t = (double)i / rate;
+            walk = 0.999 * walk + 0.3 * rng_gauss(); /* red noise */
+            double beat = fmod(t, 0.87) - 0.3;
+            x[i] += walk + 30.0 * sin(2.0 * PI * 0.25 * t) + 20.0 * exp(-0.5 * pow(beat / 0.012, 2));
+        }
+        add_line(x, n, rate, lines[c], 1.0, 0);
+        rt_mains m;
+        rt_error err;
+        assert_int_equal(rt_mains_estimate(x, n, rate, 10.0, 100.0, &m, &err), RT_OK);
+        print_message("# mixed, %g Hz at %g Hz: present %d, line %g, prominence %.1f dB\n", lines[c], rate,
+                      m.present, m.line_hz, m.prominence_db);
+        assert_true(m.present);
+        assert_true(m.line_hz == lines[c]);
+        /* 200 Hz: 0.45 x 200 = 90 Hz leaves the fundamental only */
+        if (rate == 200.0) {
+            assert_int_equal(m.n_notches, 1);
+        }
+        free(x);
+    }
+}
+
+static void test_mains_short_and_bad(void **state)
+{
+    (void)state;
+    double x[600];
+    for (int i = 0; i < 600; i++)
+        x[i] = sin(2.0 * PI * 50.0 * i / RATE);
+    rt_mains m;
+    rt_error err;
+    /* 600 samples < 5 half-segments of 512: too short to decide */
+    assert_int_equal(rt_mains_estimate(x, 600, RATE, 10.0, 100.0, &m, &err), RT_OK);
+    assert_false(m.present);
+    assert_int_equal(rt_mains_estimate(x, 600, 0.0, 10.0, 100.0, &m, &err), RT_ERR_USAGE);
+    assert_int_equal(rt_mains_estimate(x, 600, RATE, 100.0, 10.0, &m, &err), RT_ERR_USAGE);
+    /* below 2 x 50 / 0.45 Hz no line can be seen */
+    assert_int_equal(rt_mains_estimate(x, 600, 100.0, 10.0, 40.0, &m, &err), RT_OK);
+    assert_false(m.present);
+}
+
+/* ---- marks ---- */
+
+/* Clean EMG with bursts 20x the background (0.1-5 s, as the rules' bursts). */
+static double *clean_with_bursts(size_t n, double rate)
+{
+    double *x = emg(n, rate, 20.0, 150.0, 1.0);
+    double *b = emg(n, rate, 20.0, 150.0, 1.0);
+    for (double t0 = 3.0; t0 + 6.0 < (double)n / rate; t0 += 7.3) {
+        double dur = 0.1 + fmod(t0, 4.9);
+        for (size_t i = (size_t)(t0 * rate); i < (size_t)((t0 + dur) * rate); i++)
+            x[i] += 19.0 * b[i];
+    }
+    free(b);
+    return x;
+}
+
+static void test_marks_none_on_clean(void **state)
+{
+    (void)state;
+    size_t n = (size_t)(120 * RATE);
+    double *x = clean_with_bursts(n, RATE);
+    rt_channel_info ch = chin_info(RATE);
+    rt_quality_mark marks[8];
+    size_t k = rt_quality_marks(x, n, RATE, &ch, marks, 8);
+    for (size_t i = 0; i < k && i < 8; i++)
+        print_message("# unexpected %s %.2f-%.2f\n", rt_quality_reason_name(marks[i].reason),
+                      marks[i].start_s, marks[i].end_s);
+    assert_int_equal(k, 0);
+    free(x);
+}
+
+static size_t marks_of(const rt_quality_mark *m, size_t n, rt_quality_reason r, size_t *first)
+{
+    size_t c = 0;
+    for (size_t i = 0; i < n; i++)
+        if (m[i].reason == r) {
+            if (c == 0)
+                *first = i;
+            c++;
+        }
+    return c;
+}
+
+static void test_marks_clipping(void **state)
+{
+    (void)state;
+    size_t n = (size_t)(60 * RATE);
+    double *x = clean_with_bursts(n, RATE);
+    /* a 1-Hz 1500-uV swing from 20 s to 24 s, clipped by the +-500 uV range */
+    for (size_t i = (size_t)(20 * RATE); i < (size_t)(24 * RATE); i++) {
+        double v = x[i] + 1500.0 * sin(2.0 * PI * ((double)i / RATE - 20.0));
+        x[i] = fmax(-500.0, fmin(500.0, v));
+    }
+    rt_channel_info ch = chin_info(RATE);
+    rt_quality_mark marks[16];
+    size_t k = rt_quality_marks(x, n, RATE, &ch, marks, 16), f = 0;
+    assert_int_equal(marks_of(marks, k, RT_QUALITY_CLIPPING, &f), 1);
+    /* the swing first reaches 500 at asin(1/3)/(2 pi) = 0.054 s; marks widen by 0.25 s */
+    assert_true(fabs(marks[f].start_s - (20.054 - RT_QUALITY_CLIP_PAD_S)) < 0.02);
+    assert_true(marks[f].end_s > 23.5 && marks[f].end_s < 24.3);
+    /* a mV channel: limits scale by uv_per_unit */
+    for (size_t i = 0; i < n; i++)
+        x[i] /= 1000.0;
+    ch.phys_min = -0.5;
+    ch.phys_max = 0.5;
+    ch.uv_per_unit = 1000.0;
+    for (size_t i = 0; i < n; i++)
+        x[i] *= 1000.0;
+    k = rt_quality_marks(x, n, RATE, &ch, marks, 16);
+    assert_int_equal(marks_of(marks, k, RT_QUALITY_CLIPPING, &f), 1);
+    /* no header limits: no clipping looked for */
+    k = rt_quality_marks(x, n, RATE, NULL, marks, 16);
+    assert_int_equal(marks_of(marks, k, RT_QUALITY_CLIPPING, &f), 0);
+    free(x);
+}
+
+static void test_marks_flat(void **state)
+{
+    (void)state;
+    size_t n = (size_t)(60 * RATE);
+    double *x = clean_with_bursts(n, RATE);
+    /* detached from 40 s: one constant value */
+    for (size_t i = (size_t)(40 * RATE); i < n; i++)
+        x[i] = 3.7;
+    /* near zero for 5 s from 10 s (0.01 uV noise on a 20-uV offset) */
+    for (size_t i = (size_t)(10 * RATE); i < (size_t)(15 * RATE); i++)
+        x[i] = 20.0 + 0.01 * rng_gauss();
+    /* near zero for 2 s only from 25 s: shorter than 3 s, not marked */
+    for (size_t i = (size_t)(25 * RATE); i < (size_t)(27 * RATE); i++)
+        x[i] = 0.01 * rng_gauss();
+    rt_channel_info ch = chin_info(RATE);
+    rt_quality_mark marks[16];
+    size_t k = rt_quality_marks(x, n, RATE, &ch, marks, 16), f = 0;
+    assert_int_equal(marks_of(marks, k, RT_QUALITY_FLAT, &f), 2);
+    /* block-aligned detection: within one 0.5-s block of the true edges */
+    assert_true(fabs(marks[f].start_s - 10.0) <= 0.5 && fabs(marks[f].end_s - 15.0) <= 0.5);
+    assert_true(fabs(marks[f + 1].start_s - 40.0) <= 0.01);
+    assert_true(fabs(marks[f + 1].end_s - 60.0) < 1e-9);
+    assert_true(fabs(rt_quality_marked_s(marks, k, RT_QUALITY_FLAT, 60.0) -
+                     (marks[f].end_s - marks[f].start_s + 20.0)) < 0.02);
+    /* the count is returned even when it exceeds cap */
+    assert_int_equal(rt_quality_marks(x, n, RATE, &ch, NULL, 0), k);
+    free(x);
+}
+
+static void test_marks_pops(void **state)
+{
+    (void)state;
+    size_t n = (size_t)(60 * RATE);
+    double *x = clean_with_bursts(n, RATE);
+    const double at[3] = {7.0, 21.25, 44.0};
+    const double amp[3] = {150.0, -80.0, 200.0};
+    for (int p = 0; p < 3; p++)
+        for (size_t i = (size_t)(at[p] * RATE); i < n; i++)
+            x[i] += amp[p] * exp(-((double)i / RATE - at[p]) / 0.1);
+    /* and a lone spike (one sample) at 29 s */
+    x[(size_t)(29.0 * RATE)] += 60.0;
+    rt_channel_info ch = chin_info(RATE);
+    rt_quality_mark marks[16];
+    size_t k = rt_quality_marks(x, n, RATE, &ch, marks, 16), f = 0;
+    for (size_t i = 0; i < k && i < 16; i++)
+        print_message("# %s %.3f-%.3f\n", rt_quality_reason_name(marks[i].reason), marks[i].start_s,
+                      marks[i].end_s);
+    assert_int_equal(marks_of(marks, k, RT_QUALITY_POP, &f), 4);
+    const double sorted[4] = {7.0, 21.25, 29.0, 44.0};
+    for (int p = 0; p < 4; p++) {
+        const rt_quality_mark *m = &marks[f + (size_t)p];
+        assert_true(m->start_s <= sorted[p] && m->end_s > sorted[p]);
+        assert_true(fabs(m->start_s - (sorted[p] - RT_QUALITY_POP_BEFORE_S)) < 0.01);
+    }
+    free(x);
+}
+
+/* Degenerate input: nothing found, nothing read out of bounds (valgrind
+ * and the sanitizer builds watch this), non-finite samples count as clipped. */
+static void test_marks_edges(void **state)
+{
+    (void)state;
+    rt_channel_info ch = chin_info(RATE);
+    rt_quality_mark marks[8];
+    double one = 1.0;
+    assert_int_equal(rt_quality_marks(&one, 0, RATE, &ch, marks, 8), 0);
+    assert_int_equal(rt_quality_marks(&one, 1, RATE, &ch, marks, 8), 0);
+    assert_int_equal(rt_quality_marks(&one, 1, 0.0, &ch, marks, 8), 0);
+    assert_int_equal(rt_quality_marks(NULL, 10, RATE, &ch, marks, 8), 0);
+    double x[40];
+    for (int i = 0; i < 40; i++)
+        x[i] = sin(i);
+    x[20] = NAN;
+    size_t k = rt_quality_marks(x, 40, 1.0, &ch, marks, 8), f = 0;
+    assert_int_equal(marks_of(marks, k, RT_QUALITY_CLIPPING, &f), 1);
+    assert_true(marks[f].start_s <= 20.0 && marks[f].end_s >= 21.0);
+    assert_true(rt_quality_marked_s(marks, 0, RT_QUALITY_POP, 10.0) == 0.0);
+}
+
+/* ---- header ---- */
+
+static void test_prefilter_parse(void **state)
+{
+    (void)state;
+    rt_prefilter f;
+    /* the EDF specification's example form (Kemp et al. 1992: "HP:0.1Hz LP:75Hz N:50Hz") */
+    assert_int_equal(rt_prefilter_parse("HP:0.1Hz LP:75Hz N:50Hz", &f), 3);
+    assert_true(f.hp_hz == 0.1 && f.lp_hz == 75.0 && f.notch_hz == 50.0);
+    assert_int_equal(rt_prefilter_parse("hp: 10 Hz  lp:100hz", &f), 2);
+    assert_true(f.hp_hz == 10.0 && f.lp_hz == 100.0 && isnan(f.notch_hz));
+    assert_int_equal(rt_prefilter_parse("HP:DC LP:1kHz Notch:60Hz", &f), 3);
+    assert_true(f.hp_hz == 0.0 && f.lp_hz == 1000.0 && f.notch_hz == 60.0);
+    assert_int_equal(rt_prefilter_parse("HP:0,3Hz N:off", &f), 1);
+    assert_true(fabs(f.hp_hz - 0.3) < 1e-12 && isnan(f.notch_hz));
+    /* time constant 0.1 s: corner 1/(2 pi 0.1) = 1.5915 Hz (first-order RC) */
+    assert_int_equal(rt_prefilter_parse("HP:0.1s", &f), 1);
+    assert_true(fabs(f.hp_hz - 1.5915494) < 1e-6);
+    assert_int_equal(rt_prefilter_parse("", &f), 0);
+    assert_int_equal(rt_prefilter_parse(NULL, &f), 0);
+    assert_int_equal(rt_prefilter_parse("no filter info: ::: 12 Hz", &f), 0);
+}
+
+static void test_channel_check(void **state)
+{
+    (void)state;
+    rt_channel_info ch = chin_info(512.0);
+    rt_channel_check c;
+    rt_quality_check_channel(&ch, 10.0, 100.0, &c);
+    assert_false(c.rate_below_min || c.hp_above_band || c.lp_below_band || c.notch_at_source);
+    /* AASM: 200 Hz minimum ([M], BRIEF section 2) */
+    ch.rate_hz = 199.0;
+    strcpy(ch.prefilter, "HP:20Hz LP:70Hz N:50Hz");
+    rt_quality_check_channel(&ch, 10.0, 100.0, &c);
+    assert_true(c.rate_below_min && c.hp_above_band && c.lp_below_band && c.notch_at_source);
+    ch.rate_hz = 200.0;
+    rt_quality_check_channel(&ch, 10.0, 100.0, &c);
+    assert_false(c.rate_below_min);
+}
+
+/* ---- QRS windows ---- */
+
+static void test_qrs_windows(void **state)
+{
+    (void)state;
+    const double r[4] = {1.0, 1.1, 2.0, 3.0};
+    rt_time_span w[4];
+    size_t k = rt_qrs_windows(r, 4, 0.08, 0.08, w, 4);
+    assert_int_equal(k, 3);
+    assert_true(fabs(w[0].start_s - 0.92) < 1e-12 && fabs(w[0].end_s - 1.18) < 1e-12);
+    assert_true(fabs(w[1].start_s - 1.92) < 1e-12);
+    assert_int_equal(rt_qrs_windows(r, 4, 0.08, 0.08, w, 1), 3);
+    k = rt_qrs_windows(r, 4, 0.08, 0.08, w, 4);
+    assert_true(fabs(rt_qrs_overlap(w, k, 1.9, 2.1) - 0.8) < 1e-9);
+    assert_true(rt_qrs_overlap(w, k, 2.5, 2.6) == 0.0);
+    assert_true(fabs(rt_qrs_overlap(w, k, 0.95, 1.05) - 1.0) < 1e-12);
+    assert_true(rt_qrs_overlap(w, k, 2.0, 2.0) == 0.0);
+}
+
+int main(void)
+{
+    rng_state = rt_test_seed() | 1u;
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test(test_mains_none_on_clean_emg),
+        cmocka_unit_test(test_mains_50_and_60),
+        cmocka_unit_test(test_mains_mixed_noise),
+        cmocka_unit_test(test_mains_short_and_bad),
+        cmocka_unit_test(test_marks_none_on_clean),
+        cmocka_unit_test(test_marks_clipping),
+        cmocka_unit_test(test_marks_flat),
+        cmocka_unit_test(test_marks_pops),
+        cmocka_unit_test(test_marks_edges),
+        cmocka_unit_test(test_prefilter_parse),
+        cmocka_unit_test(test_channel_check),
+        cmocka_unit_test(test_qrs_windows),
+    };
+    return cmocka_run_group_tests(tests, NULL, cleanup);
+}
