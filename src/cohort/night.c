@@ -20,6 +20,7 @@
 
 #include "digest.h"
 #include "internal.h"
+#include "report/report_internal.h"
 #include "output.h"
 #include "remtone/report.h"
 #include "remtone/version.h"
@@ -76,12 +77,10 @@ static rt_status input_identity(json_t *inputs, const char *role, const char *pa
 {
     if (!path)
         return RT_OK;
-    long long size = 0;
-    char hex[17];
-    rt_status st = rt_file_digest(path, &size, hex, err);
-    if (st != RT_OK)
-        return st;
-    json_object_set_new(inputs, role, json_pack("{s:I,s:s}", "bytes", (json_int_t)size, "xxh3", hex));
+    json_t *id = rt_file_identity_json(path, false, err);
+    if (!id)
+        return err ? err->status : RT_ERR_IO;
+    json_object_set_new(inputs, role, id);
     return RT_OK;
 }
 
@@ -127,15 +126,7 @@ static rt_status night_identity(const cohort_shared *s, const rt_manifest_entry 
 
 static rt_status write_json_atomic(json_t *root, const char *path, rt_error *err)
 {
-    rt_output o;
-    rt_status st = rt_output_begin(&o, path, 1, err);
-    if (st != RT_OK)
-        return st;
-    if (json_dumpf(root, o.file, JSON_INDENT(2) | JSON_SORT_KEYS) != 0 || fputc('\n', o.file) == EOF) {
-        rt_output_abort(&o);
-        return rt_fail(err, RT_ERR_IO, "%s: cannot write", path);
-    }
-    return rt_output_commit(&o, err);
+    return rt_json_write(root, path, JSON_SORT_KEYS, err);
 }
 
 static json_t *key_json(const rt_manifest_entry *e, json_t *identity)

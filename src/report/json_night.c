@@ -143,13 +143,10 @@ static rt_status input_json(json_t *inputs, const char *role, const char *path, 
 {
     if (!path)
         return RT_OK;
-    long long size = 0;
-    char hex[17];
-    rt_status st = rt_file_digest(path, &size, hex, err);
-    if (st != RT_OK)
-        return st;
-    json_object_set_new(inputs, role, json_pack("{s:s,s:I,s:s}", "path", path, "bytes",
-                                                (json_int_t)size, "xxh3", hex));
+    json_t *id = rt_file_identity_json(path, true, err);
+    if (!id)
+        return err ? err->status : RT_ERR_IO;
+    json_object_set_new(inputs, role, id);
     return RT_OK;
 }
 
@@ -250,17 +247,7 @@ rt_status rt_night_write_json(const rt_night *night, const rt_run_inputs *inputs
     json_object_set_new(root, "cautions", cautions_json());
     json_object_set_new(root, "provenance", prov);
 
-    rt_output out;
-    st = rt_output_begin(&out, path, 1, err);
-    if (st == RT_OK) {
-        if (json_dumpf(root, out.file, JSON_INDENT(2) | JSON_REAL_PRECISION(10)) != 0 ||
-            fputc('\n', out.file) == EOF) {
-            rt_output_abort(&out);
-            st = rt_fail(err, RT_ERR_IO, "%s: cannot write JSON", path);
-        } else {
-            st = rt_output_commit(&out, err);
-        }
-    }
+    st = rt_json_write(root, path, JSON_REAL_PRECISION(10), err);
     json_decref(root);
     return st;
 }

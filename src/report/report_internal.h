@@ -2,12 +2,21 @@
 #ifndef REMTONE_REPORT_INTERNAL_H
 #define REMTONE_REPORT_INTERNAL_H
 
+#include <stdbool.h>
 #include <stdio.h>
 
 #include <jansson.h>
 
 #include "remtone/recording.h"
 #include "remtone/score.h"
+
+/* Writes root as indented JSON to path ("-": standard output) atomically;
+ * flags are extra jansson dump flags. Does not take ownership of root. */
+rt_status rt_json_write(json_t *root, const char *path, size_t flags, rt_error *err);
+
+/* {"path": path (when with_path), "bytes": size, "xxh3": digest} of a file,
+ * for provenance and resumable runs; NULL with err filled on failure. */
+json_t *rt_file_identity_json(const char *path, bool with_path, rt_error *err);
 
 /* The agreement with a manual scoring as JSON (docs/agreement.md, "In the
  * night JSON"): {"present": false} when the night had none; otherwise the

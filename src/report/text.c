@@ -168,16 +168,7 @@ rt_status rt_scan_write_json(const rt_recording *rec, const rt_role_map *roles, 
                             roles->role[r].channel >= 0 ? json_string(roles->role[r].label)
                                                         : json_null());
     json_object_set_new(root, "roles", map);
-    rt_output out;
-    rt_status st = rt_output_begin(&out, path, 1, err);
-    if (st == RT_OK) {
-        if (json_dumpf(root, out.file, JSON_INDENT(2)) != 0 || fputc('\n', out.file) == EOF) {
-            rt_output_abort(&out);
-            st = rt_fail(err, RT_ERR_IO, "%s: cannot write JSON", path);
-        } else {
-            st = rt_output_commit(&out, err);
-        }
-    }
+    rt_status st = rt_json_write(root, path, 0, err);
     json_decref(root);
     return st;
 }

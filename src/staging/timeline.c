@@ -12,6 +12,7 @@
 #include <sys/stat.h>
 
 #include "internal.h"
+#include "remtone/roles.h"
 #include "remtone/timeline.h"
 
 /* Times on the epoch grid are compared within this tolerance (seconds): far
@@ -148,8 +149,17 @@ rt_status rt_timeline_add_event(rt_timeline *tl, double onset_s, double duration
                                 rt_event_type type, const char *source, long line,
                                 rt_error *err)
 {
+    return rt_timeline_add_event_role(tl, onset_s, duration_s, type, -1, source, line, err);
+}
+
+rt_status rt_timeline_add_event_role(rt_timeline *tl, double onset_s, double duration_s,
+                                     rt_event_type type, int role, const char *source,
+                                     long line, rt_error *err)
+{
     char at[600];
     place(at, sizeof at, source, line);
+    if (role < -1 || role >= RT_ROLE_COUNT)
+        return rt_fail(err, RT_ERR_STAGING, "%s: channel role %d out of range", at, role);
     if (!tl)
         return rt_fail(err, RT_ERR_USAGE, "%s: no timeline", at);
     if ((int)type < 0 || type >= RT_EVENT_TYPE_COUNT)
@@ -173,7 +183,7 @@ rt_status rt_timeline_add_event(rt_timeline *tl, double onset_s, double duration
     tl->events = grown;
     size_t slot = event_slot(tl, onset_s);
     memmove(tl->events + slot + 1, tl->events + slot, (tl->n_events - slot) * sizeof *grown);
-    tl->events[slot] = (rt_event){onset_s, duration_s, type, -1};
+    tl->events[slot] = (rt_event){onset_s, duration_s, type, (signed char)role};
     tl->n_events++;
     return RT_OK;
 }

@@ -39,34 +39,6 @@
 
 /* ---- Timeline additions used by scoring files ---------------------------- */
 
-rt_status rt_timeline_add_event_role(rt_timeline *tl, double onset_s, double duration_s,
-                                     rt_event_type type, int role, const char *source,
-                                     long line, rt_error *err)
-{
-    if (role < -1 || role >= RT_ROLE_COUNT) {
-        if (line > 0)
-            return rt_fail(err, RT_ERR_STAGING, "%s line %ld: channel role %d out of range",
-                           source ? source : "staging", line, role);
-        return rt_fail(err, RT_ERR_STAGING, "%s: channel role %d out of range",
-                       source ? source : "staging", role);
-    }
-    rt_status st = rt_timeline_add_event(tl, onset_s, duration_s, type, source, line, err);
-    if (st != RT_OK)
-        return st;
-    /* rt_timeline_add_event puts the event after every event of equal or
-     * smaller onset: it is the last one whose onset is <= onset_s. */
-    size_t lo = 0, hi = tl->n_events;
-    while (lo < hi) {
-        size_t mid = lo + (hi - lo) / 2;
-        if (tl->events[mid].onset_s <= onset_s)
-            lo = mid + 1;
-        else
-            hi = mid;
-    }
-    tl->events[lo - 1].role = (signed char)role;
-    return RT_OK;
-}
-
 static int manual_cmp(double a_onset, int a_role, double b_onset, int b_role)
 {
     if (fabs(a_onset - b_onset) > GRID_TOL_S)
