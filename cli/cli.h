@@ -48,6 +48,12 @@ void cli_print_help(FILE *out, const cli_command *cmd);
 /* Maps a library status to an exit code; output = the failed call wrote output. */
 int cli_exit_code(rt_status status, int output);
 
+/* An output that is also an input would destroy it. Files are compared by
+ * device and inode, so links and other spellings of a path are caught.
+ * Returns EXIT_OK, or EXIT_USAGE after saying which option names which input. */
+int cli_refuse_output_over_input(const char *command, const char *option, const char *output,
+                                 const char *const *inputs, size_t n_inputs);
+
 /* Prints "remtone: message" to stderr and returns the exit code. */
 int cli_report(const rt_error *err, int output);
 

@@ -27,6 +27,7 @@ static int on_option(void *ctx, int key, const char *arg)
     return EXIT_OK;
 }
 
+
 static int run(int argc, char **argv)
 {
     scan_config c;
@@ -40,18 +41,24 @@ static int run(int argc, char **argv)
         fprintf(stderr, "remtone scan: give one recording (remtone scan --help)\n");
         return EXIT_USAGE;
     }
+    const char *inputs[] = {pos[0]};
+    if ((rc = cli_refuse_output_over_input("scan", "json", c.json, inputs, 1)) != EXIT_OK)
+        return rc;
     rt_error err;
     rt_error_clear(&err);
     rt_recording *rec = rt_recording_open(pos[0], &err);
     if (!rec)
         return cli_report(&err, 0);
     rt_role_map map;
+    rt_channel_quality quality[RT_ROLE_COUNT];
     rt_status st = rt_roles_resolve(rec, &c.roles, &map, &err);
+    if (st == RT_OK)
+        st = rt_recording_quality(rec, &map, quality, &err);
     if (st == RT_OK && !(c.json && strcmp(c.json, "-") == 0))
-        st = rt_scan_write_text(rec, &map, stdout, &err);
+        st = rt_scan_write_text(rec, &map, quality, stdout, &err);
     int out_err = 0;
     if (st == RT_OK && c.json) {
-        st = rt_scan_write_json(rec, &map, c.json, &err);
+        st = rt_scan_write_json(rec, &map, quality, c.json, &err);
         out_err = 1;
     }
     rt_recording_close(rec);

@@ -1,7 +1,6 @@
 /* remtone score REC --stages FILE: the night result. */
 #include <stdlib.h>
 #include <string.h>
-#include <sys/stat.h>
 
 #include "cli.h"
 #include "roles_opts.h"
@@ -114,22 +113,6 @@ static rt_status load_inputs(const score_config *c, const char *rec_path, loaded
     return st;
 }
 
-/* An output that is also an input would be destroyed: the input is replaced
- * by the result. Files are compared by device and inode, so a hard link,
- * a symbolic link or another spelling of the same path is caught too. */
-static int refuse_output_over_input(const char *option, const char *output, const char *const *inputs, size_t n)
-{
-    struct stat so, si;
-    if (!output || strcmp(output, "-") == 0 || stat(output, &so) != 0 || !S_ISREG(so.st_mode))
-        return EXIT_OK;
-    for (size_t i = 0; i < n; i++)
-        if (inputs[i] && stat(inputs[i], &si) == 0 && si.st_dev == so.st_dev && si.st_ino == so.st_ino) {
-            fprintf(stderr, "remtone score: --%s %s is the input file %s; refusing to overwrite an input\n",
-                    option, output, inputs[i]);
-            return EXIT_USAGE;
-        }
-    return EXIT_OK;
-}
 
 static int run(int argc, char **argv)
 {
@@ -148,10 +131,10 @@ static int run(int argc, char **argv)
     }
     const char *inputs[] = {pos[0], c.stages, c.events, c.cutoffs, c.labels};
     size_t n_inputs = sizeof inputs / sizeof inputs[0];
-    if ((rc = refuse_output_over_input("json", c.json, inputs, n_inputs)) != EXIT_OK ||
-        (rc = refuse_output_over_input("html", c.html, inputs, n_inputs)) != EXIT_OK ||
-        (rc = refuse_output_over_input("minis", c.minis, inputs, n_inputs)) != EXIT_OK ||
-        (rc = refuse_output_over_input("annotations", c.annotations, inputs, n_inputs)) != EXIT_OK)
+    if ((rc = cli_refuse_output_over_input("score", "json", c.json, inputs, n_inputs)) != EXIT_OK ||
+        (rc = cli_refuse_output_over_input("score", "html", c.html, inputs, n_inputs)) != EXIT_OK ||
+        (rc = cli_refuse_output_over_input("score", "minis", c.minis, inputs, n_inputs)) != EXIT_OK ||
+        (rc = cli_refuse_output_over_input("score", "annotations", c.annotations, inputs, n_inputs)) != EXIT_OK)
         return rc;
     rt_error err;
     rt_error_clear(&err);

@@ -2,6 +2,7 @@
 #include <getopt.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
 
 #include "cli.h"
 
@@ -78,4 +79,20 @@ int cli_report(const rt_error *err, int output)
 {
     fprintf(stderr, "remtone: %s\n", err->message[0] ? err->message : rt_status_name(err->status));
     return cli_exit_code(err->status, output);
+}
+
+int cli_refuse_output_over_input(const char *command, const char *option, const char *output,
+                                 const char *const *inputs, size_t n_inputs)
+{
+    struct stat so, si;
+    if (!output || strcmp(output, "-") == 0 || stat(output, &so) != 0 || !S_ISREG(so.st_mode))
+        return EXIT_OK;
+    for (size_t i = 0; i < n_inputs; i++)
+        if (inputs[i] && stat(inputs[i], &si) == 0 && si.st_dev == so.st_dev &&
+            si.st_ino == so.st_ino) {
+            fprintf(stderr, "remtone %s: --%s %s is the input file %s; refusing to overwrite an "
+                            "input\n", command, option, output, inputs[i]);
+            return EXIT_USAGE;
+        }
+    return EXIT_OK;
 }

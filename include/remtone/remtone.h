@@ -12,5 +12,6 @@
 #include "remtone/score.h"
 #include "remtone/report.h"
 #include "remtone/cohort.h"
+#include "remtone/quality.h"
 
 #endif

@@ -40,11 +40,13 @@ rt_status rt_night_write_json(const rt_night *night, const rt_run_inputs *inputs
 /* The short text summary for people. */
 rt_status rt_night_write_text(const rt_night *night, FILE *out, rt_error *err);
 
-/* The channels of a recording with their detected roles. */
-rt_status rt_scan_write_json(const rt_recording *rec, const rt_role_map *roles, const char *path,
-                             rt_error *err);
-rt_status rt_scan_write_text(const rt_recording *rec, const rt_role_map *roles, FILE *out,
-                             rt_error *err);
+/* The channels of a recording with their detected roles and, when quality is
+ * not NULL (rt_recording_quality, remtone/quality.h), each EMG channel's
+ * quality summary. */
+rt_status rt_scan_write_json(const rt_recording *rec, const rt_role_map *roles,
+                             const rt_channel_quality *quality, const char *path, rt_error *err);
+rt_status rt_scan_write_text(const rt_recording *rec, const rt_role_map *roles,
+                             const rt_channel_quality *quality, FILE *out, rt_error *err);
 
 /* The review page and its companions (docs/review-report.md). */
 typedef struct rt_report_options {

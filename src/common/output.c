@@ -9,6 +9,21 @@
 
 #include "internal.h"
 
+/* A device or FIFO: renaming a temporary file over it would replace the
+ * node itself (as root, /dev/full would become a plain file), so it is
+ * opened and written in place. */
+static rt_status begin_direct(rt_output *out, int open_stream, rt_error *err)
+{
+    out->direct = 1;
+    rt_copy_string(out->temp_path, sizeof out->temp_path, out->path);
+    if (!open_stream)
+        return RT_OK;
+    out->file = fopen(out->path, "wb");
+    if (!out->file)
+        return rt_fail(err, RT_ERR_IO, "%s: cannot open output: %s", out->path, strerror(errno));
+    return RT_OK;
+}
+
 rt_status rt_output_begin(rt_output *out, const char *path, int open_stream, rt_error *err)
 {
     memset(out, 0, sizeof *out);
@@ -21,6 +36,13 @@ rt_status rt_output_begin(rt_output *out, const char *path, int open_stream, rt_
     if (strlen(path) >= sizeof out->path)
         return rt_fail(err, RT_ERR_USAGE, "%s: output path too long", path);
     rt_copy_string(out->path, sizeof out->path, path);
+    struct stat st;
+    if (stat(path, &st) == 0) {
+        if (S_ISDIR(st.st_mode))
+            return rt_fail(err, RT_ERR_IO, "%s: cannot write output: %s", path, strerror(EISDIR));
+        if (!S_ISREG(st.st_mode))
+            return begin_direct(out, open_stream, err);
+    }
     snprintf(out->temp_path, sizeof out->temp_path, "%s.tmp-XXXXXX", path);
     int fd = mkstemp(out->temp_path);
     if (fd < 0) {
@@ -56,7 +78,10 @@ rt_status rt_output_commit(rt_output *out, rt_error *err)
     int failed = 0;
     int saved = 0;
     if (out->file) {
-        if (fflush(out->file) != 0 || ferror(out->file) || fsync(fileno(out->file)) != 0) {
+        /* fsync fails with EINVAL on a FIFO or a device: only a regular
+         * file's bytes need to reach the disk before the rename */
+        if (fflush(out->file) != 0 || ferror(out->file) ||
+            (!out->direct && fsync(fileno(out->file)) != 0)) {
             failed = 1;
             saved = errno;
         }
@@ -66,7 +91,7 @@ rt_status rt_output_commit(rt_output *out, rt_error *err)
         }
         out->file = NULL;
     }
-    if (!failed && rename(out->temp_path, out->path) != 0) {
+    if (!failed && !out->direct && rename(out->temp_path, out->path) != 0) {
         failed = 1;
         saved = errno;
     }
@@ -89,7 +114,11 @@ void rt_output_abort(rt_output *out)
         fclose(out->file);
         out->file = NULL;
     }
-    if (out->temp_path[0]) {
+    if (out->direct) {
+        out->temp_path[0] = '\0';
+        return;
+    }
+    if (out->temp_path[0] && !out->direct) {
         unlink(out->temp_path);
         out->temp_path[0] = '\0';
     }

@@ -1,6 +1,11 @@
 /* Output files that are never left half-written: each is written to a
  * temporary file in the destination folder and renamed into place only when
- * complete, so a reader sees the previous file or the new one, never a part. */
+ * complete, so a reader sees the previous file or the new one, never a part.
+ * A process killed mid-write leaves the previous file intact and, at worst, a
+ * stray PATH.tmp-XXXXXX beside it. A destination that exists and is not a
+ * regular file (a FIFO, /dev/null, /dev/full, a terminal) cannot be replaced
+ * by a rename, so it is written directly and every write error is reported;
+ * a directory is refused. See docs/hardening.md. */
 #ifndef REMTONE_OUTPUT_H
 #define REMTONE_OUTPUT_H
 
@@ -11,12 +16,16 @@
 typedef struct rt_output {
     FILE *file;            /* write here (NULL when the writer keeps its own handle) */
     char path[4096];       /* final destination */
-    char temp_path[4200];  /* where the bytes go until rt_output_commit */
+    char temp_path[4200];  /* where the bytes go until rt_output_commit (equal to path
+                              when direct) */
+    int direct;            /* 1: path is a device or FIFO, written in place, never
+                              renamed or removed */
 } rt_output;
 
 /* Creates a unique temporary file beside path. With open_stream false only the
- * name is reserved (for writers such as EDFlib that open by name). The path
- * "-" means standard output (open_stream must be true): written directly. */
+ * name is reserved (for writers such as EDFlib that open by name: they write
+ * to temp_path). The path "-" means standard output (open_stream must be
+ * true): written directly. A path that is a directory is RT_ERR_IO. */
 rt_status rt_output_begin(rt_output *out, const char *path, int open_stream, rt_error *err);
 
 /* Flushes, syncs and renames the temporary file onto the destination.

@@ -475,6 +475,12 @@ static rt_status read_exact(const header_ctx *c, FILE *f, long long offset, long
 
 static rt_status open_regular(const char *path, FILE **out, long long *size, rt_error *err)
 {
+    /* EDFlib seeks, so only a regular file will do; asking first also keeps
+     * a FIFO with no writer from blocking the open forever */
+    struct stat before;
+    if (stat(path, &before) == 0 && !S_ISREG(before.st_mode) && !S_ISDIR(before.st_mode))
+        return rt_fail(err, RT_ERR_IO, "%s: cannot open: not a regular file (a recording must be a "
+                       "file EDFlib can seek in)", path);
     FILE *f = fopen(path, "rb");
     if (!f)
         return rt_fail(err, RT_ERR_IO, "%s: cannot open: %s", path, strerror(errno));

@@ -49,7 +49,7 @@ static json_t *indices_json(const rt_night *night)
     return o;
 }
 
-static json_t *quality_json(const rt_channel_quality *q)
+json_t *rt_quality_json(const rt_channel_quality *q)
 {
     static const char *const SOURCES[] = {"none", "ecg", "chin"};
     json_t *o = json_object();
@@ -84,7 +84,7 @@ static json_t *channels_json(const rt_night *night)
                                                      c->band_high_hz));
         json_object_set_new(x, "low_rate", json_boolean(c->low_rate));
         json_object_set_new(x, "rem_median_uv", number(rounded(c->rem_median_uv, 3)));
-        json_object_set_new(x, "quality", quality_json(&c->quality));
+        json_object_set_new(x, "quality", rt_quality_json(&c->quality));
         json_array_append_new(a, x);
     }
     return a;

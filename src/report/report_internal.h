@@ -18,6 +18,9 @@ rt_status rt_json_write(json_t *root, const char *path, size_t flags, rt_error *
  * for provenance and resumable runs; NULL with err filled on failure. */
 json_t *rt_file_identity_json(const char *path, bool with_path, rt_error *err);
 
+/* A channel's quality summary as JSON (docs/night-json.md). */
+json_t *rt_quality_json(const rt_channel_quality *q);
+
 /* The agreement with a manual scoring as JSON (docs/agreement.md, "In the
  * night JSON"): {"present": false} when the night had none; otherwise the
  * scorer and, per role that has compared mini-epochs, per type ("phasic",

@@ -31,6 +31,24 @@ static const char *level_words(rt_review_level level)
     return "";
 }
 
+/* One line of a channel's quality: mains, ECG, minutes not scorable. */
+static void quality_line(FILE *out, const char *name, const rt_channel_quality *q)
+{
+    fprintf(out, "  %-9s mains %s", name, q->line_hz > 0 ? "" : "none");
+    if (q->line_hz > 0)
+        fprintf(out, "%g Hz (%.1f dB, notched)", q->line_hz, q->line_db);
+    fprintf(out, "; ECG %s", q->ecg_removed ? "found and removed" : q->ecg_found ? "found" : "not found");
+    if (q->bursts_vetoed)
+        fprintf(out, ", %zu bursts refused at QRS", q->bursts_vetoed);
+    fprintf(out, "; not scorable %.1f min", q->unscorable_total_min);
+    if (q->unscorable_total_min > 0)
+        fprintf(out, " (clipping %.1f, flat %.1f, pops %.1f)", q->unscorable_min[0],
+                q->unscorable_min[1], q->unscorable_min[2]);
+    if (q->hp_above_band || q->lp_below_band)
+        fprintf(out, "; recorded filters narrow the band");
+    fprintf(out, "\n");
+}
+
 rt_status rt_night_write_text(const rt_night *night, FILE *out, rt_error *err)
 {
     const rt_index_rule *rules = rt_index_rules();
@@ -79,18 +97,7 @@ rt_status rt_night_write_text(const rt_night *night, FILE *out, rt_error *err)
         const rt_channel_result *ch = &night->channel[r];
         if (!ch->present)
             continue;
-        const rt_channel_quality *q = &ch->quality;
-        fprintf(out, "  %-9s mains %s", rt_role_name((rt_role)r), q->line_hz > 0 ? "" : "none");
-        if (q->line_hz > 0)
-            fprintf(out, "%g Hz (%.1f dB, notched)", q->line_hz, q->line_db);
-        fprintf(out, "; ECG %s", q->ecg_removed ? "found and removed" : q->ecg_found ? "found" : "not found");
-        if (q->bursts_vetoed)
-            fprintf(out, ", %zu bursts refused at QRS", q->bursts_vetoed);
-        fprintf(out, "; not scorable %.1f min", q->unscorable_total_min);
-        if (q->unscorable_total_min > 0)
-            fprintf(out, " (clipping %.1f, flat %.1f, pops %.1f)", q->unscorable_min[0],
-                    q->unscorable_min[1], q->unscorable_min[2]);
-        fprintf(out, "\n");
+        quality_line(out, rt_role_name((rt_role)r), &ch->quality);
     }
     fprintf(out, "\n");
     fprintf(out, "%s\n", level_words(night->level));
@@ -122,8 +129,8 @@ static const char *role_of(const rt_role_map *roles, int channel)
     return "";
 }
 
-rt_status rt_scan_write_text(const rt_recording *rec, const rt_role_map *roles, FILE *out,
-                             rt_error *err)
+rt_status rt_scan_write_text(const rt_recording *rec, const rt_role_map *roles,
+                             const rt_channel_quality *quality, FILE *out, rt_error *err)
 {
     static const char *const KINDS[] = {"EDF", "EDF+", "BDF", "BDF+"};
     fprintf(out, "%s: %s, %.1f s (%.2f h), %d channels\n", rt_recording_path(rec),
@@ -141,13 +148,19 @@ rt_status rt_scan_write_text(const rt_recording *rec, const rt_role_map *roles, 
     for (int r = 0; r < RT_ROLE_COUNT; r++)
         if (roles->role[r].reference >= 0)
             fprintf(out, "%s: derived as %s\n", rt_role_name((rt_role)r), roles->role[r].label);
+    if (quality) {
+        fprintf(out, "Signal quality over the whole recording (docs/quality.md):\n");
+        for (int r = 0; r < RT_ROLE_ECG; r++)
+            if (roles->role[r].channel >= 0)
+                quality_line(out, rt_role_name((rt_role)r), &quality[r]);
+    }
     if (ferror(out))
         return rt_fail(err, RT_ERR_IO, "cannot write the scan");
     return RT_OK;
 }
 
-rt_status rt_scan_write_json(const rt_recording *rec, const rt_role_map *roles, const char *path,
-                             rt_error *err)
+rt_status rt_scan_write_json(const rt_recording *rec, const rt_role_map *roles,
+                             const rt_channel_quality *quality, const char *path, rt_error *err)
 {
     json_t *root = json_object();
     json_t *chans = json_array();
@@ -168,6 +181,13 @@ rt_status rt_scan_write_json(const rt_recording *rec, const rt_role_map *roles, 
                             roles->role[r].channel >= 0 ? json_string(roles->role[r].label)
                                                         : json_null());
     json_object_set_new(root, "roles", map);
+    if (quality) {
+        json_t *qo = json_object();
+        for (int r = 0; r < RT_ROLE_ECG; r++)
+            if (roles->role[r].channel >= 0)
+                json_object_set_new(qo, rt_role_name((rt_role)r), rt_quality_json(&quality[r]));
+        json_object_set_new(root, "quality", qo);
+    }
     rt_status st = rt_json_write(root, path, 0, err);
     json_decref(root);
     return st;

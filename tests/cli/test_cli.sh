@@ -29,6 +29,7 @@ check synth-bad-hours 2 "$bin" synth --profile rbd --hours 0.2 --out "$work/x"
 check synth 0 "$bin" synth --profile rbd --hours 1 --seed 3 --out "$work/n"
 check scan 0 "$bin" scan "$work/n/night.edf"
 has scan-lists-chin "$work/out" "Chin1-Chin2"
+has scan-quality "$work/out" "Signal quality over the whole recording"
 check scan-json 0 "$bin" scan "$work/n/night.edf" --json "$work/scan.json"
 # the scan JSON shape of the foundation issue: channels[{label, rate_hz, unit, role}], duration_s
 check scan-json-shape 0 "$py" -c '
@@ -37,7 +38,14 @@ ch={c["label"]:c for c in d["channels"]}
 assert len(d["channels"])==20 and abs(d["duration_s"]-3600)<1e-6
 assert ch["Chin1-Chin2"]["role"]=="chin" and ch["Chin1-Chin2"]["rate_hz"]==512 and ch["Chin1-Chin2"]["unit"]=="uV"
 assert ch["FDS L"]["role"]=="arm-left" and ch["Tib R"]["role"]=="leg-right" and ch["ECG"]["role"]=="ecg"
-assert "role" not in ch["C4-M1"] or ch["C4-M1"]["role"] is None' "$work/scan.json"
+assert "role" not in ch["C4-M1"] or ch["C4-M1"]["role"] is None
+q=d["quality"]["chin"]; assert q["mains_hz"] is None and q["unscorable_total_minutes"]==0' "$work/scan.json"
+# remtone scan finds a 50-Hz line and a detached chin lead (docs/quality.md)
+check synth-artifacts 0 "$bin" synth --profile typical-older --hours 1 --seed 4 --mains 50:4:2 --detach 2400 --out "$work/art"
+check scan-artifacts 0 "$bin" scan "$work/art/night.edf" --json "$work/art.json"
+check scan-artifacts-found 0 "$py" -c '
+import json,sys; q=json.load(open(sys.argv[1]))["quality"]["chin"]
+assert q["mains_hz"]==50 and q["unscorable_minutes"]["flat"]>15, q' "$work/art.json"
 
 check score 0 "$bin" score "$work/n/night.edf" --stages "$work/n/stages.csv" --json "$work/r.json"
 has score-cautions "$work/out" "not a diagnosis"
