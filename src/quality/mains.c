@@ -9,7 +9,7 @@
 
 #include "quality.h"
 
-#include "../score/fft_plans.h"
+#include "score/fft_plans.h"
 #include "internal.h"
 
 #define PI 3.14159265358979323846

@@ -19,7 +19,7 @@
 #include "remtone/recording.h"
 #include "remtone/status.h"
 
-#include "../score/bandpass.h"
+#include "score/bandpass.h"
 
 /* ---- marks of stretches that cannot be scored --------------------------- */
 

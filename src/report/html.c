@@ -8,13 +8,14 @@
  * traces shown are the ones the labels came from. docs/review-report.md
  * describes the page. */
 #include <libxml/xmlwriter.h>
+#include <errno.h>
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
 #include <time.h>
 
-#include "../score/bandpass.h"
-#include "../score/detect.h"
+#include "score/bandpass.h"
+#include "score/detect.h"
 #include "internal.h"
 #include "output.h"
 #include "remtone/report.h"
@@ -1230,8 +1231,10 @@ rt_status rt_night_write_html(const rt_night *night, rt_recording *rec, const rt
     if (st == RT_OK) {
         size_t len = (size_t)xmlBufferLength(buf);
         if (fwrite(xmlBufferContent(buf), 1, len, out.file) != len || fputc('\n', out.file) == EOF) {
+            int saved = errno;
             rt_output_abort(&out);
-            st = rt_fail(err, RT_ERR_IO, "%s: cannot write the review report", path);
+            st = rt_fail(err, RT_ERR_IO, "%s: cannot write the review report: %s", path,
+                         strerror(saved ? saved : EIO));
         } else {
             st = rt_output_commit(&out, err);
         }
