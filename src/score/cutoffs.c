@@ -35,7 +35,7 @@ static void on_cutoff_row(rt_table *t, char **v)
     double cutoff;
     if (!rt_table_number(t, v[1], "cutoff", &cutoff))
         return;
-    double hi = strcmp(rule->unit, "%") == 0 ? 100.0 : 1.0;
+    double hi = strcmp(rule->unit, "%") == 0 ? 100.0 : strcmp(rule->unit, "ratio") == 0 ? 1.0 : 1e6;
     if (cutoff < 0.0 || cutoff > hi) {
         rt_table_fail(t, rt_fail(&t->error, RT_ERR_STAGING,
                                  "%s line %ld: cutoff %g for %s is outside 0 .. %g", t->path,

@@ -166,6 +166,54 @@ static void compute_epoch_indices(rt_night *night, bool arms)
 }
 
 /* REM minutes left out, each mini-epoch counted once for its first cause. */
+static int compare_onset(const void *a, const void *b)
+{
+    double x = (*(const rt_burst *const *)a)->onset_s, y = (*(const rt_burst *const *)b)->onset_s;
+    return (x > y) - (x < y);
+}
+
+/* Leg movements from the leg EMG when no limb-movement events were given:
+ * Montreal-rule leg bursts (4x background) lasting 0.5-10 s, the AASM limb
+ * movement duration [from memory]; movements of the two legs that overlap
+ * or lie within 0.5 s of each other count once (AASM, from memory); bursts in
+ * mini-epochs left out do not count. NaN without leg channels. */
+static double leg_movements_per_h(const rt_night *night, size_t *count)
+{
+    *count = 0;
+    if ((!night->channel[RT_ROLE_LEG_LEFT].present && !night->channel[RT_ROLE_LEG_RIGHT].present) ||
+        night->rem_minutes <= 0)
+        return NAN;
+    const rt_burst **legs = rt_calloc(night->n_bursts + 1, sizeof *legs);
+    if (!legs)
+        return NAN;
+    size_t n = 0, k = 0;
+    for (size_t i = 0; i < night->n_bursts; i++) {
+        const rt_burst *b = &night->bursts[i];
+        if ((b->role != RT_ROLE_LEG_LEFT && b->role != RT_ROLE_LEG_RIGHT) ||
+            b->rules != RT_LABEL_MONTREAL_PHASIC || b->duration_s < 0.5 - 1e-9 ||
+            b->duration_s > 10.0 + 1e-9)
+            continue;
+        /* left out when its 2-s mini-epoch is excluded for that leg */
+        k = 0;
+        while (k < night->n_minis2 && night->minis2[k].onset_s + 2.0 <= b->onset_s)
+            k++;
+        if (k < night->n_minis2 && (night->minis2[k].labels[b->role] & RT_LABEL_EXCLUDED))
+            continue;
+        legs[n++] = b;
+    }
+    qsort(legs, n, sizeof *legs, compare_onset);
+    double end = -INFINITY;
+    for (size_t i = 0; i < n; i++) {
+        if (legs[i]->onset_s > end + 0.5)
+            (*count)++;
+        double e = legs[i]->onset_s + legs[i]->duration_s;
+        if (e > end)
+            end = e;
+    }
+    free(legs);
+    return (double)*count / (night->rem_minutes / 60.0);
+}
+
 static void summarise_exclusions(rt_night *night)
 {
     rt_exclusion_summary *x = &night->exclusions;
@@ -186,9 +234,18 @@ static void summarise_exclusions(rt_night *night)
     }
     rt_index_value *lm = &night->index[RT_IX_MONTREAL_LM_PER_H];
     lm->value = x->rem_leg_movements_per_h;
+    if (isnan(lm->value)) {
+        size_t count = 0;
+        lm->value = leg_movements_per_h(night, &count);
+        lm->numerator = count;
+        if (!isnan(lm->value))
+            rt_copy_string(lm->reason, sizeof lm->reason,
+                           "counted from the leg EMG: bursts of 0.5-10 s, legs merged within 0.5 s");
+    }
     lm->status = isnan(lm->value) ? RT_STATUS_NOT_COMPUTED : RT_STATUS_NO_CUTOFF;
     if (isnan(lm->value))
-        rt_copy_string(lm->reason, sizeof lm->reason, "no limb-movement events were given");
+        rt_copy_string(lm->reason, sizeof lm->reason,
+                       "no limb-movement events were given and no leg EMG channel");
     if (x->have_respiratory && x->rem_ahi >= 15.0)
         rt_night_warn(night, "REM apnea-hypopnea index %.1f/h is 15/h or more: RSWA indices are "
                              "less reliable (Cesari et al. 2023, Sleep)", x->rem_ahi);

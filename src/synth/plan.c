@@ -6,6 +6,7 @@
 #include "synth_internal.h"
 
 #include <math.h>
+#include <stdbool.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -18,6 +19,9 @@ typedef struct profile_rates {
     double tonic_epochs;             /* target fraction of REM epochs chin-tonic */
     double burst_minis[SYNTH_ROLES]; /* target fraction of 3-s minis holding a burst
                                         (chin: of the non-tonic minis) */
+    double leg_max_s;                /* longest spontaneous leg burst: healthy REM leg
+                                        twitches stay under the 0.5-s limb-movement
+                                        minimum, RBD movements do not */
     double active_epochs;            /* bursts fall only in this share of REM epochs:
                                         phasic activity comes in clusters (phasic REM),
                                         which keeps 30-s indices realistic */
@@ -37,6 +41,7 @@ static profile_rates rates_of(rt_synth_profile profile)
         r.burst_minis[SYNTH_ARM_L] = r.burst_minis[SYNTH_ARM_R] = 0.25;
         r.burst_minis[SYNTH_LEG_L] = r.burst_minis[SYNTH_LEG_R] = 0.20;
         r.active_epochs = 1.0;
+        r.leg_max_s = 0.70;
         break;
     case RT_SYNTH_BORDERLINE:
         /* chin "any" = 0.05 + 0.95 * 0.137 = 0.18, just under SINBAR's 18.2 %. */
@@ -45,6 +50,7 @@ static profile_rates rates_of(rt_synth_profile profile)
         r.burst_minis[SYNTH_ARM_L] = r.burst_minis[SYNTH_ARM_R] = 0.08;
         r.burst_minis[SYNTH_LEG_L] = r.burst_minis[SYNTH_LEG_R] = 0.06;
         r.active_epochs = 0.40;
+        r.leg_max_s = 0.70;
         break;
     case RT_SYNTH_APNEA:
     case RT_SYNTH_TYPICAL_OLDER:
@@ -54,6 +60,7 @@ static profile_rates rates_of(rt_synth_profile profile)
         r.burst_minis[SYNTH_ARM_L] = r.burst_minis[SYNTH_ARM_R] = 0.03;
         r.burst_minis[SYNTH_LEG_L] = r.burst_minis[SYNTH_LEG_R] = 0.05;
         r.active_epochs = 0.12;
+        r.leg_max_s = 0.45;
         r.resp_events = profile == RT_SYNTH_APNEA;
         break;
     }
@@ -292,7 +299,7 @@ static rt_status add_event(synth_plan *plan, long start_s, long duration_s, int 
 }
 
 static rt_status add_burst(synth_plan *plan, int role, long second, double bg_uv, int arousal_bound,
-                           synth_rng *rng, rt_error *err)
+                           double max_s, synth_rng *rng, rt_error *err)
 {
     if (plan->n_bursts == plan->cap_bursts) {
         size_t cap = plan->cap_bursts ? 2 * plan->cap_bursts : 256;
@@ -305,7 +312,7 @@ static rt_status add_burst(synth_plan *plan, int role, long second, double bg_uv
     synth_burst *b = &plan->bursts[plan->n_bursts];
     b->role = role;
     b->onset_s = (double)second + round3(rt_synth_rng_range(rng, 0.10, 0.20));
-    b->duration_s = round3(rt_synth_rng_range(rng, 0.30, 0.70));
+    b->duration_s = round3(rt_synth_rng_range(rng, 0.30, max_s));
     b->rect_uv = round3(bg_uv * rt_synth_rng_range(rng, 8.0, 15.0));
     b->arousal_bound = arousal_bound;
     plan->sec_burst[role][second] = (int)plan->n_bursts;
@@ -352,7 +359,8 @@ static rt_status place_arousal_bursts(synth_plan *plan, const synth_bout *bout, 
             long t = cand[i];
             cand[i] = cand[j];
             cand[j] = t;
-            rt_status st = add_burst(plan, role, cand[i], burst_background(plan, role, cand[i]), 1, rng, err);
+            rt_status st = add_burst(plan, role, cand[i], burst_background(plan, role, cand[i]), 1,
+                                     0.70, rng, err);
             if (st != RT_OK)
                 return st;
         }
@@ -517,7 +525,9 @@ static rt_status place_bursts(synth_plan *plan, const profile_rates *rates, synt
                 if (second_allows_burst(plan, &plan->bouts[mini_bout[mi]], role, s))
                     secs[n++] = s;
             long s = secs[rt_synth_rng_int(rng, 0, n - 1)];
-            st = add_burst(plan, role, s, burst_background(plan, role, s), 0, rng, err);
+            bool leg = role == SYNTH_LEG_L || role == SYNTH_LEG_R;
+            st = add_burst(plan, role, s, burst_background(plan, role, s), 0,
+                           leg ? rates->leg_max_s : 0.70, rng, err);
         }
     }
     free(active);

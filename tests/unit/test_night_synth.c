@@ -166,6 +166,64 @@ static void apnea_with_events_matches_excluded_truth(void **state)
     free_scored(&s);
 }
 
+/* Leg movements in REM per hour from the leg EMG when no limb-movement events
+ * are given: every placed leg burst of 0.5 s or more is one movement (legs
+ * merged within 0.5 s; AASM limb-movement duration 0.5-10 s [from memory]).
+ * The scorer's rate must match the rate from the truth within 10 %; the rbd
+ * night is above the Montreal 24/h (Montplaisir 2010), typical-older below. */
+static double truth_leg_movements_per_h(const scored *s)
+{
+    json_t *bursts = json_object_get(s->truth, "bursts");
+    enum { CAP = 8192 };
+    static double starts[CAP], ends[CAP];
+    size_t n = 0, i;
+    json_t *b;
+    json_array_foreach(bursts, i, b) {
+        const char *role = json_string_value(json_object_get(b, "role"));
+        double d = json_number_value(json_object_get(b, "duration_s"));
+        if (strncmp(role, "leg-", 4) == 0 && d >= 0.5 && n < CAP) {
+            starts[n] = json_number_value(json_object_get(b, "onset_s"));
+            ends[n] = starts[n] + d;
+            n++;
+        }
+    }
+    for (size_t x = 1; x < n; x++) /* insertion sort by onset: the two legs interleave */
+        for (size_t y = x; y > 0 && starts[y - 1] > starts[y]; y--) {
+            double t = starts[y];
+            starts[y] = starts[y - 1];
+            starts[y - 1] = t;
+            t = ends[y];
+            ends[y] = ends[y - 1];
+            ends[y - 1] = t;
+        }
+    size_t count = 0;
+    double end = -1e300;
+    for (size_t x = 0; x < n; x++) {
+        if (starts[x] > end + 0.5)
+            count++;
+        if (ends[x] > end)
+            end = ends[x];
+    }
+    return (double)count / (s->night->rem_minutes / 60.0);
+}
+
+static void leg_movements_from_leg_emg(void **state)
+{
+    (void)state;
+    scored s = score_synthetic(RT_SYNTH_RBD, 3, 3.0);
+    double want = truth_leg_movements_per_h(&s), got = s.night->index[RT_IX_MONTREAL_LM_PER_H].value;
+    printf("# rbd leg movements per REM hour: truth %.1f, scored %.1f\n", want, got);
+    assert_true(want > 24.0);
+    assert_true(fabs(got - want) <= 0.1 * want);
+    free_scored(&s);
+    s = score_synthetic(RT_SYNTH_TYPICAL_OLDER, 1, 3.0);
+    want = truth_leg_movements_per_h(&s);
+    got = s.night->index[RT_IX_MONTREAL_LM_PER_H].value;
+    printf("# typical-older leg movements per REM hour: truth %.1f, scored %.1f\n", want, got);
+    assert_true(got < 24.0 && fabs(got - want) <= 2.0);
+    free_scored(&s);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -174,6 +232,7 @@ int main(void)
         cmocka_unit_test(borderline_matches_truth),
         cmocka_unit_test(apnea_without_events_matches_truth),
         cmocka_unit_test(apnea_with_events_matches_excluded_truth),
+        cmocka_unit_test(leg_movements_from_leg_emg),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
