@@ -86,6 +86,31 @@ x=e["exclusions"]; assert x["minutes"]>0 and x["rem_ahi_per_h"]>0, x
 assert set(x["minutes_by_reason"]) <= {"apnea","hypopnea","resp-arousal"}
 assert k["exclusions"]["minutes"]==0 and k["rem"]["scorable_minutes"]>e["rem"]["scorable_minutes"]' "$work/ae.json" "$work/ak.json"
 
+# the same apnea night as an XML scoring file (docs/scoring-file.md), with a manual RSWA scoring of
+# the first REM epoch that marks every chin mini phasic: the result equals the CSV-based one and
+# carries the agreement figures
+check xml-write 0 "$py" -c '
+import csv,sys
+d=sys.argv[1]
+st=list(csv.DictReader(open(d+"/stages.csv"))); ev=list(csv.DictReader(open(d+"/events.csv")))
+out=["<?xml version=\"1.0\" encoding=\"UTF-8\"?>","<remtone-scoring version=\"1\" epoch-s=\"30\">",
+     "<scored-by name=\"Scorer B (fictional)\" date=\"2026-12-01\"/>","<stages>"]
+first_r=None
+for r in st:
+    e0=int(round(float(r["start_s"])/30)); n=int(round(float(r["duration_s"])/30))
+    out.append("<run start-epoch=\"%d\" epochs=\"%d\" stage=\"%s\"/>"%(e0,n,r["stage"]))
+    if r["stage"]=="R" and first_r is None: first_r=e0*30
+out.append("</stages><events>")
+for e in ev: out.append("<event onset-s=\"%s\" duration-s=\"%s\" type=\"%s\"/>"%(e["start_s"],e["duration_s"],e["type"]))
+out.append("</events><manual-rswa><minis onset-s=\"%d\" role=\"chin\" phasic=\"1111111111\" tonic=\"0000000000\"/></manual-rswa>"%first_r)
+out.append("</remtone-scoring>")
+open(d+"/scoring.xml","w").write("\n".join(out)+"\n")' "$work/a"
+check score-xml 0 "$bin" score "$work/a/night.edf" --stages "$work/a/scoring.xml" --json "$work/ax.json"
+check xml-equals-csv 0 "$py" -c '
+import json,sys; x=json.load(open(sys.argv[1])); c=json.load(open(sys.argv[2]))
+assert x["indices"]==c["indices"] and x["exclusions"]["minutes"]==c["exclusions"]["minutes"]
+a=x["agreement"]; assert a["present"] is True, a' "$work/ax.json" "$work/ae.json"
+
 # a lab's cutoff file replaces the published one and the result says so
 printf 'index,cutoff\nsinbar.chin_any_3s,99\n' > "$work/cut.csv"
 check score-cutoffs 0 "$bin" score "$work/n/night.edf" --stages "$work/n/stages.csv" --cutoffs "$work/cut.csv" --json "$work/c.json"
