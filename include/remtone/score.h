@@ -205,6 +205,9 @@ typedef struct rt_channel_quality {
     bool hp_above_band;        /* header prefilter: high-pass above the scoring band */
     bool lp_below_band;        /* header prefilter: low-pass below the scoring band */
     bool notch_at_source;      /* header prefilter: a mains notch was applied when recording */
+    double low_edge_db;        /* spectrum 10-15 Hz over 25-45 Hz, dB (NaN: not measured) */
+    double high_edge_db;       /* spectrum 75-95 Hz over 25-45 Hz, dB (NaN: not measured) */
+    bool spectrum_narrow;      /* either edge below -30 dB: band-limited when recorded */
 } rt_channel_quality;
 
 /* "clipping", "flat", "pop". */

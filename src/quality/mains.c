@@ -4,6 +4,7 @@
  * 50 % overlap) computed with FFTW plans from the shared cache, so planning
  * never races with the band-pass filters of other threads. */
 #include <math.h>
+#include <stdbool.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -121,10 +122,47 @@ static line_score score_line(const double *psd, size_t bins, double df, double l
     return s;
 }
 
+/* Mean PSD over [f0, f1], leaving out 2 Hz around mains lines and harmonics. */
+static double band_mean(const double *psd, size_t bins, double df, double f0, double f1)
+{
+    double sum = 0.0;
+    size_t count = 0;
+    for (size_t k = 1; k + 1 < bins; k++) {
+        double f = (double)k * df;
+        if (f < f0 || f > f1)
+            continue;
+        bool line = false;
+        for (int c = 0; c < 2 && !line; c++)
+            line = fabs(f - line_freqs[c] * round(f / line_freqs[c])) < 2.0 && f > 40.0;
+        if (line)
+            continue;
+        sum += psd[k];
+        count++;
+    }
+    return count ? sum / (double)count : NAN;
+}
+
+static void band_edges(const double *psd, size_t bins, double df, double rate, rt_mains *out)
+{
+    double mid = band_mean(psd, bins, df, 25.0, 45.0);
+    out->low_edge_db = out->high_edge_db = NAN;
+    if (!(mid > 0.0))
+        return;
+    double lo = band_mean(psd, bins, df, 10.0, 15.0);
+    if (lo >= 0.0)
+        out->low_edge_db = 10.0 * log10(fmax(lo, 1e-30) / mid);
+    if (95.0 < 0.45 * rate) {
+        double hi = band_mean(psd, bins, df, 75.0, 95.0);
+        if (hi >= 0.0)
+            out->high_edge_db = 10.0 * log10(fmax(hi, 1e-30) / mid);
+    }
+}
+
 rt_status rt_mains_estimate(const double *raw_uv, size_t n, double rate_hz, double band_low_hz,
                             double band_high_hz, rt_mains *out, rt_error *err)
 {
     memset(out, 0, sizeof *out);
+    out->low_edge_db = out->high_edge_db = NAN;
     out->line_db = -99.0;
     out->prominence_db = -99.0;
     if (!raw_uv || !(rate_hz > 0.0) || !isfinite(rate_hz) || !(band_low_hz >= 0.0) ||
@@ -149,6 +187,7 @@ rt_status rt_mains_estimate(const double *raw_uv, size_t n, double rate_hz, doub
         return st;
     }
     double df = rate_hz / (double)nfft;
+    band_edges(psd, bins, df, rate_hz, out);
     line_score sc[2];
     for (int c = 0; c < 2; c++) {
         sc[c] = score_line(psd, bins, df, line_freqs[c], rate_hz, band_low_hz, band_high_hz);
@@ -190,4 +229,12 @@ void rt_mains_apply(const rt_mains *mains, rt_bandpass_spec *spec)
         spec->notch_hz[i] = mains->notch_hz[i];
     if (!(spec->notch_width_hz > 0.0))
         spec->notch_width_hz = RT_MAINS_NOTCH_WIDTH_HZ;
+}
+
+void rt_quality_band_edges(const rt_mains *mains, rt_channel_quality *q)
+{
+    q->low_edge_db = mains->low_edge_db;
+    q->high_edge_db = mains->high_edge_db;
+    q->spectrum_narrow = (isfinite(q->low_edge_db) && q->low_edge_db < RT_BAND_EDGE_DB) ||
+                         (isfinite(q->high_edge_db) && q->high_edge_db < RT_BAND_EDGE_DB);
 }

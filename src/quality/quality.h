@@ -17,6 +17,7 @@
 #include <stddef.h>
 
 #include "remtone/recording.h"
+#include "remtone/score.h"
 #include "remtone/status.h"
 
 #include "score/bandpass.h"
@@ -116,6 +117,9 @@ typedef struct rt_mains {
     double line_uv_rms;    /* rms of the excess line power, uV */
     double power_uv2[2];   /* excess line power of the 50-Hz and the 60-Hz family, uV^2 */
     int n_notches;         /* fundamental and harmonics to notch, 0 when not present */
+    double low_edge_db;    /* mean PSD 10-15 Hz over mean PSD 25-45 Hz, dB; NaN if not measured */
+    double high_edge_db;   /* mean PSD 75-95 Hz over mean PSD 25-45 Hz, dB (mains bins left
+                              out); NaN when the rate cannot hold 95 Hz */
     double notch_hz[RT_BANDPASS_MAX_NOTCHES];
 } rt_mains;
 
@@ -136,6 +140,16 @@ rt_status rt_mains_estimate(const double *raw_uv, size_t n, double rate_hz, doub
  * notch_width_hz = RT_MAINS_NOTCH_WIDTH_HZ when spec has none); leaves spec
  * unchanged when the line is absent. */
 void rt_mains_apply(const rt_mains *mains, rt_bandpass_spec *spec);
+
+/* A channel whose spectrum falls this far below its 25-45 Hz level at 10-15 Hz
+ * or at 75-95 Hz was filtered narrower than the scoring band when recorded
+ * (our threshold: EMG and amplifier noise are within about 15 dB across
+ * 10-100 Hz; an order-4 filter an octave away takes 24 dB more). */
+#define RT_BAND_EDGE_DB (-30.0)
+
+/* Copies the spectral edges of an estimate into a channel's quality summary
+ * and decides spectrum_narrow. */
+void rt_quality_band_edges(const rt_mains *mains, rt_channel_quality *q);
 
 /* ---- ECG: QRS detection and removal ---------------------------------------- */
 

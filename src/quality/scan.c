@@ -88,6 +88,8 @@ rt_status rt_recording_quality(rt_recording *rec, const rt_role_map *roles,
         rt_mains mains;
         if (st == RT_OK)
             st = rt_mains_estimate(buf, n, src->rate_hz, spec.low_hz, spec.high_hz, &mains, err);
+        if (st == RT_OK)
+            rt_quality_band_edges(&mains, q);
         if (st == RT_OK && mains.present) {
             q->line_hz = mains.line_hz;
             q->line_db = mains.line_db;

@@ -66,6 +66,9 @@ json_t *rt_quality_json(const rt_channel_quality *q)
     json_object_set_new(o, "unscorable_minutes", un);
     json_object_set_new(o, "unscorable_total_minutes", json_real(rounded(q->unscorable_total_min, 2)));
     json_object_set_new(o, "prefilter_narrows_band", json_boolean(q->hp_above_band || q->lp_below_band));
+    json_object_set_new(o, "spectrum_low_edge_db", number(rounded(q->low_edge_db, 1)));
+    json_object_set_new(o, "spectrum_high_edge_db", number(rounded(q->high_edge_db, 1)));
+    json_object_set_new(o, "spectrum_narrows_band", json_boolean(q->spectrum_narrow));
     return o;
 }
 

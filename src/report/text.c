@@ -46,6 +46,9 @@ static void quality_line(FILE *out, const char *name, const rt_channel_quality *
                 q->unscorable_min[1], q->unscorable_min[2]);
     if (q->hp_above_band || q->lp_below_band)
         fprintf(out, "; recorded filters narrow the band");
+    if (q->spectrum_narrow)
+        fprintf(out, "; spectrum band-limited (%.0f/%.0f dB at the edges)", q->low_edge_db,
+                q->high_edge_db);
     fprintf(out, "\n");
 }
 

@@ -608,6 +608,7 @@ static rt_status estimate_mains(rt_recording *rec, const rt_role_source *src,
                                 rt_channel_quality *q, rt_error *err)
 {
     q->line_db = -99.0;
+    q->low_edge_db = q->high_edge_db = NAN;
     if (!first_bout)
         return RT_OK;
     size_t seconds = first_bout->n_epochs * 30;
@@ -618,8 +619,11 @@ static rt_status estimate_mains(rt_recording *rec, const rt_role_source *src,
     rt_mains mains;
     if (st == RT_OK)
         st = rt_mains_estimate(w->x, n, src->rate_hz, spec->low_hz, spec->high_hz, &mains, err);
-    if (st != RT_OK || !mains.present)
+    if (st != RT_OK)
         return st;
+    rt_quality_band_edges(&mains, q);
+    if (!mains.present)
+        return RT_OK;
     rt_mains_apply(&mains, spec);
     q->line_hz = mains.line_hz;
     q->line_db = mains.line_db;
@@ -664,6 +668,11 @@ static rt_status open_filters(rt_night *night, rt_recording *rec, const rt_role_
         rt_status st = estimate_mains(rec, src, first_bout, w, &spec, &cr->quality, err);
         if (st != RT_OK)
             return st;
+        if (cr->quality.spectrum_narrow)
+            rt_night_warn(night, "%s: its spectrum falls off inside the %g-%g Hz band (%.0f dB at "
+                          "10-15 Hz, %.0f dB at 75-95 Hz against 25-45 Hz): it was filtered "
+                          "narrower when recorded", src->label, p->band_low_hz, p->band_high_hz,
+                          cr->quality.low_edge_db, cr->quality.high_edge_db);
         bp[r] = rt_bandpass_new(&spec, err);
         if (!bp[r])
             return err ? err->status : RT_ERR_USAGE;

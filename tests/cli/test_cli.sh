@@ -39,7 +39,7 @@ assert len(d["channels"])==20 and abs(d["duration_s"]-3600)<1e-6
 assert ch["Chin1-Chin2"]["role"]=="chin" and ch["Chin1-Chin2"]["rate_hz"]==512 and ch["Chin1-Chin2"]["unit"]=="uV"
 assert ch["FDS L"]["role"]=="arm-left" and ch["Tib R"]["role"]=="leg-right" and ch["ECG"]["role"]=="ecg"
 assert "role" not in ch["C4-M1"] or ch["C4-M1"]["role"] is None
-q=d["quality"]["chin"]; assert q["mains_hz"] is None and q["unscorable_total_minutes"]==0' "$work/scan.json"
+q=d["quality"]["chin"]; assert q["mains_hz"] is None and q["unscorable_total_minutes"]==0 and q["spectrum_narrows_band"] is False' "$work/scan.json"
 # remtone scan finds a 50-Hz line and a detached chin lead (docs/quality.md)
 check synth-artifacts 0 "$bin" synth --profile typical-older --hours 1 --seed 4 --mains 50:4:2 --detach 2400 --out "$work/art"
 check scan-artifacts 0 "$bin" scan "$work/art/night.edf" --json "$work/art.json"
