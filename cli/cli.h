@@ -33,10 +33,12 @@ typedef struct cli_command {
     const char *summary;   /* one line */
     const cli_option *options; /* terminated by a zero entry */
     int (*run)(int argc, char **argv);
+    const char *operand;   /* the one positional argument ("a recording"), NULL = none */
 } cli_command;
 
 /* Parses argv (argv[0] = command name) with the table; calls on_option for
- * each option and collects positionals into positional[0..*n_positional).
+ * each option and collects positionals into positional[0..*n_positional);
+ * exactly one is required when cmd->operand is set, none otherwise.
  * Returns EXIT_OK, or EXIT_USAGE after printing the problem. --help prints
  * the help and returns -1 (the caller exits 0). */
 int cli_parse(const cli_command *cmd, int argc, char **argv,

@@ -143,8 +143,8 @@ static int run(int argc, char **argv)
     int rc = cli_parse(&CLI_COHORT, argc, argv, on_option, &c, pos, 1, &npos);
     if (rc != EXIT_OK)
         return rc < 0 ? EXIT_OK : rc;
-    if (npos != 1 || !c.o.out_dir) {
-        fprintf(stderr, "remtone cohort: give a manifest and --out DIR (remtone cohort --help)\n");
+    if (!c.o.out_dir) {
+        fprintf(stderr, "remtone cohort: give --out DIR (remtone cohort --help)\n");
         return EXIT_USAGE;
     }
     if (strcmp(c.o.positive, c.o.negative) == 0) {
@@ -186,10 +186,6 @@ static int run_merge(int argc, char **argv)
     int rc = cli_parse(&CLI_COHORT_MERGE, argc, argv, on_option, &c, pos, 1, &npos);
     if (rc != EXIT_OK)
         return rc < 0 ? EXIT_OK : rc;
-    if (npos != 1) {
-        fprintf(stderr, "remtone cohort-merge: give the output folder of a cohort run\n");
-        return EXIT_USAGE;
-    }
     c.o.out_dir = pos[0];
     return merge_and_report(&c);
 }
@@ -197,9 +193,9 @@ static int run_merge(int argc, char **argv)
 const cli_command CLI_COHORT = {
     "cohort", "MANIFEST --out DIR [--jobs N] [--force] [--part K/N] [options]",
     "Score a cohort from a manifest: resumable, parallel, shardable; table and calibration.",
-    OPTIONS, run};
+    OPTIONS, run, "a manifest"};
 
 const cli_command CLI_COHORT_MERGE = {
     "cohort-merge", "DIR [--positive GROUP] [--negative GROUP] [--cutoffs FILE]",
     "Rebuild cohort.csv, calibration and cohort.html from DIR/nights (after --part runs).",
-    MERGE_OPTIONS, run_merge};
+    MERGE_OPTIONS, run_merge, "the output folder of a cohort run"};

@@ -37,4 +37,4 @@ static int run(int argc, char **argv)
 }
 
 const cli_command CLI_RULES = {"rules", "[--cutoffs FILE]",
-                               "Print every index with its cutoff and source.", OPTIONS, run};
+                               "Print every index with its cutoff and source.", OPTIONS, run, NULL};

@@ -37,10 +37,6 @@ static int run(int argc, char **argv)
     int rc = cli_parse(&CLI_SCAN, argc, argv, on_option, &c, pos, 1, &npos);
     if (rc != EXIT_OK)
         return rc < 0 ? EXIT_OK : rc;
-    if (npos != 1) {
-        fprintf(stderr, "remtone scan: give one recording (remtone scan --help)\n");
-        return EXIT_USAGE;
-    }
     const char *inputs[] = {pos[0]};
     if ((rc = cli_refuse_output_over_input("scan", "json", c.json, inputs, 1)) != EXIT_OK)
         return rc;
@@ -67,4 +63,4 @@ static int run(int argc, char **argv)
 
 const cli_command CLI_SCAN = {"scan", "REC [options]",
                               "List a recording's channels, rates, units and detected roles.",
-                              OPTIONS, run};
+                              OPTIONS, run, "one recording"};

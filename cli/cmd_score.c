@@ -125,10 +125,6 @@ static int run(int argc, char **argv)
     int rc = cli_parse(&CLI_SCORE, argc, argv, on_option, &c, pos, 1, &npos);
     if (rc != EXIT_OK)
         return rc < 0 ? EXIT_OK : rc;
-    if (npos != 1) {
-        fprintf(stderr, "remtone score: give one recording (remtone score --help)\n");
-        return EXIT_USAGE;
-    }
     const char *inputs[] = {pos[0], c.stages, c.events, c.cutoffs, c.labels};
     size_t n_inputs = sizeof inputs / sizeof inputs[0];
     if ((rc = cli_refuse_output_over_input("score", "json", c.json, inputs, n_inputs)) != EXIT_OK ||
@@ -178,4 +174,4 @@ static int run(int argc, char **argv)
 }
 
 const cli_command CLI_SCORE = {"score", "REC [--stages FILE] [--events FILE] [--json PATH] [options]",
-                               "Score a night: RSWA indices, review flag and cautions.", OPTIONS, run};
+                               "Score a night: RSWA indices, review flag and cautions.", OPTIONS, run, "one recording"};

@@ -130,4 +130,4 @@ static int run(int argc, char **argv)
 }
 
 const cli_command CLI_SYNTH = {"synth", "--profile NAME --out DIR [options]",
-                               "Write a synthetic night (EDF+, stages, events, truth).", OPTIONS, run};
+                               "Write a synthetic night (EDF+, stages, events, truth).", OPTIONS, run, NULL};

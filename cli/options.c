@@ -57,6 +57,14 @@ int cli_parse(const cli_command *cmd, int argc, char **argv,
                 return rc;
         }
     }
+    if (*n_positional != (cmd->operand ? 1 : 0)) {
+        if (cmd->operand)
+            fprintf(stderr, "remtone %s: give %s (remtone %s --help)\n", cmd->name, cmd->operand,
+                    cmd->name);
+        else
+            fprintf(stderr, "remtone %s: unexpected argument '%s'\n", cmd->name, positional[0]);
+        return EXIT_USAGE;
+    }
     return EXIT_OK;
 }
 

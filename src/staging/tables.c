@@ -106,43 +106,6 @@ static void on_stage_row(rt_table *r, char **v)
                                                     r->path, r->row_line, &r->error));
 }
 
-rt_status rt_timeline_load_stages_csv(rt_timeline *tl, const char *path, const rt_labelmap *map,
-                                      rt_error *err)
-{
-    if (!tl || !path)
-        return rt_fail(err, RT_ERR_USAGE, "rt_timeline_load_stages_csv: NULL argument");
-    if (tl->n_epochs > 0 || tl->last_run_end_s > 0.0)
-        return rt_fail(err, RT_ERR_STAGING, "%s: stages are already loaded from another source",
-                       path);
-    rt_timeline *scratch = rt_timeline_new();
-    unknown_labels *unknown = rt_calloc(1, sizeof *unknown);
-    if (!scratch || !unknown) {
-        rt_timeline_free(scratch);
-        free(unknown);
-        return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", path);
-    }
-    scratch->epoch_s = tl->epoch_s;
-    stage_rows rows = {scratch, map, unknown, 0};
-    rt_table r = {.path = path, .what = "stage table",
-                      .columns = {"start_s", "duration_s", "stage"}, .n_columns = 3,
-                      .on_row = on_stage_row, .user = &rows};
-    rt_status st = rt_table_read(&r, err);
-    if (st == RT_OK && unknown->n > 0)
-        st = unknown_report(unknown, path, "stage", err);
-    if (st == RT_OK && r.n_rows == 0)
-        st = rt_fail(err, RT_ERR_STAGING, "%s: the staging is empty: no rows after the header",
-                     path);
-    if (st == RT_OK && rows.used == 0)
-        st = rt_fail(err, RT_ERR_STAGING,
-                     "%s: the staging is empty: all %zu rows have labels the map says to ignore",
-                     path, r.n_rows);
-    if (st == RT_OK)
-        st = rt_timeline_merge(tl, scratch, err);
-    free(unknown);
-    rt_timeline_free(scratch);
-    return st;
-}
-
 /* ---- event table ---- */
 
 static void on_event_row(rt_table *r, char **v)
@@ -179,11 +142,12 @@ static void on_event_row(rt_table *r, char **v)
                                                 r->row_line, &r->error));
 }
 
-rt_status rt_timeline_load_events_csv(rt_timeline *tl, const char *path, const rt_labelmap *map,
-                                      rt_error *err)
+/* The shared path of both tables: rows into a scratch timeline, unknown
+ * labels all listed, then an all-or-nothing merge. With is_staging, an
+ * empty table (or one whose every label is ignored) is an error. */
+static rt_status load_table(rt_timeline *tl, const char *path, const rt_labelmap *map,
+                            bool is_staging, rt_error *err)
 {
-    if (!tl || !path)
-        return rt_fail(err, RT_ERR_USAGE, "rt_timeline_load_events_csv: NULL argument");
     rt_timeline *scratch = rt_timeline_new();
     unknown_labels *unknown = rt_calloc(1, sizeof *unknown);
     if (!scratch || !unknown) {
@@ -191,18 +155,46 @@ rt_status rt_timeline_load_events_csv(rt_timeline *tl, const char *path, const r
         free(unknown);
         return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", path);
     }
+    scratch->epoch_s = tl->epoch_s;
     stage_rows rows = {scratch, map, unknown, 0};
-    rt_table r = {.path = path, .what = "event table",
-                      .columns = {"start_s", "duration_s", "type"}, .n_columns = 3,
-                      .on_row = on_event_row, .user = &rows};
+    rt_table r = {.path = path, .what = is_staging ? "stage table" : "event table",
+                  .columns = {"start_s", "duration_s", is_staging ? "stage" : "type"},
+                  .n_columns = 3, .on_row = is_staging ? on_stage_row : on_event_row,
+                  .user = &rows};
     rt_status st = rt_table_read(&r, err);
     if (st == RT_OK && unknown->n > 0)
-        st = unknown_report(unknown, path, "event", err);
+        st = unknown_report(unknown, path, is_staging ? "stage" : "event", err);
+    if (st == RT_OK && is_staging && r.n_rows == 0)
+        st = rt_fail(err, RT_ERR_STAGING, "%s: the staging is empty: no rows after the header",
+                     path);
+    if (st == RT_OK && is_staging && rows.used == 0)
+        st = rt_fail(err, RT_ERR_STAGING,
+                     "%s: the staging is empty: all %zu rows have labels the map says to ignore",
+                     path, r.n_rows);
     if (st == RT_OK)
         st = rt_timeline_merge(tl, scratch, err);
     free(unknown);
     rt_timeline_free(scratch);
     return st;
+}
+
+rt_status rt_timeline_load_stages_csv(rt_timeline *tl, const char *path, const rt_labelmap *map,
+                                      rt_error *err)
+{
+    if (!tl || !path)
+        return rt_fail(err, RT_ERR_USAGE, "rt_timeline_load_stages_csv: NULL argument");
+    if (tl->n_epochs > 0 || tl->last_run_end_s > 0.0)
+        return rt_fail(err, RT_ERR_STAGING, "%s: stages are already loaded from another source",
+                       path);
+    return load_table(tl, path, map, true, err);
+}
+
+rt_status rt_timeline_load_events_csv(rt_timeline *tl, const char *path, const rt_labelmap *map,
+                                      rt_error *err)
+{
+    if (!tl || !path)
+        return rt_fail(err, RT_ERR_USAGE, "rt_timeline_load_events_csv: NULL argument");
+    return load_table(tl, path, map, false, err);
 }
 
 /* ---- label map ---- */

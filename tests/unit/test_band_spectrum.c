@@ -14,21 +14,13 @@
 #define RATE 512.0
 #define SECONDS 120
 
-static double *white_noise(size_t n, uint64_t seed)
+/* Unit-variance white Gaussian noise from the shared seeded stream. */
+static double *white_noise(size_t n)
 {
     double *x = malloc(n * sizeof *x);
-    uint64_t s = seed * 2654435761u + 1;
-    for (size_t i = 0; i < n; i += 2) {
-        /* Box-Muller on a 64-bit LCG (Knuth MMIX constants, from memory) */
-        s = s * 6364136223846793005ull + 1442695040888963407ull;
-        double u1 = ((double)(s >> 11) + 0.5) / 9007199254740992.0;
-        s = s * 6364136223846793005ull + 1442695040888963407ull;
-        double u2 = ((double)(s >> 11) + 0.5) / 9007199254740992.0;
-        double r = sqrt(-2.0 * log(u1));
-        x[i] = r * cos(2.0 * 3.14159265358979323846 * u2);
-        if (i + 1 < n)
-            x[i + 1] = r * sin(2.0 * 3.14159265358979323846 * u2);
-    }
+    assert_non_null(x);
+    for (size_t i = 0; i < n; i++)
+        x[i] = rt_test_gauss();
     return x;
 }
 
@@ -42,23 +34,12 @@ static rt_channel_quality edges_of(const double *x, size_t n)
     return q;
 }
 
-static void filter(double *x, size_t n, double low, double high)
-{
-    rt_bandpass_spec spec = rt_bandpass_spec_defaults(RATE);
-    spec.low_hz = low;
-    spec.high_hz = high;
-    rt_error err;
-    rt_bandpass *bp = rt_bandpass_new(&spec, &err);
-    assert_non_null(bp);
-    assert_int_equal(rt_bandpass_apply(bp, x, n, &err), RT_OK);
-    rt_bandpass_free(bp);
-}
 
 static void white_noise_is_not_narrow(void **state)
 {
     (void)state;
     size_t n = (size_t)(RATE * SECONDS);
-    double *x = white_noise(n, rt_test_seed());
+    double *x = white_noise(n);
     rt_channel_quality q = edges_of(x, n);
     assert_true(fabs(q.low_edge_db) < 1.0 && fabs(q.high_edge_db) < 1.0); /* flat spectrum */
     assert_false(q.spectrum_narrow);
@@ -69,8 +50,8 @@ static void low_passed_at_35_hz_is_narrow(void **state)
 {
     (void)state;
     size_t n = (size_t)(RATE * SECONDS);
-    double *x = white_noise(n, rt_test_seed() + 1);
-    filter(x, n, 1.0, 35.0);
+    double *x = white_noise(n);
+    rt_test_filter(x, n, RATE, 1.0, 35.0);
     rt_channel_quality q = edges_of(x, n);
     assert_true(q.high_edge_db < RT_BAND_EDGE_DB);
     assert_true(q.spectrum_narrow);
@@ -81,8 +62,8 @@ static void high_passed_at_40_hz_is_narrow(void **state)
 {
     (void)state;
     size_t n = (size_t)(RATE * SECONDS);
-    double *x = white_noise(n, rt_test_seed() + 2);
-    filter(x, n, 40.0, 200.0);
+    double *x = white_noise(n);
+    rt_test_filter(x, n, RATE, 40.0, 200.0);
     rt_channel_quality q = edges_of(x, n);
     assert_true(q.low_edge_db < RT_BAND_EDGE_DB);
     assert_true(q.spectrum_narrow);
@@ -95,8 +76,8 @@ static void the_scoring_band_is_not_narrow(void **state)
 {
     (void)state;
     size_t n = (size_t)(RATE * SECONDS);
-    double *x = white_noise(n, rt_test_seed() + 3);
-    filter(x, n, 10.0, 100.0);
+    double *x = white_noise(n);
+    rt_test_filter(x, n, RATE, 10.0, 100.0);
     rt_channel_quality q = edges_of(x, n);
     assert_false(q.spectrum_narrow);
     free(x);
@@ -104,6 +85,7 @@ static void the_scoring_band_is_not_narrow(void **state)
 
 int main(void)
 {
+    rt_test_rng_seed(rt_test_seed());
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(white_noise_is_not_narrow),
         cmocka_unit_test(low_passed_at_35_hz_is_narrow),

@@ -90,23 +90,7 @@ static int setup(void **state)
     o.profile = RT_SYNTH_RBD;
     o.hours = 1.5;
     o.seed = rt_test_seed();
-    rt_error err;
-    if (rt_synth_write(&o, f->dir, &err) != RT_OK)
-        fail_msg("%s", err.message);
-    char path[4200];
-    snprintf(path, sizeof path, "%s/night.edf", f->dir);
-    f->rec = rt_recording_open(path, &err);
-    assert_non_null(f->rec);
-    rt_role_map roles;
-    assert_int_equal(rt_roles_resolve(f->rec, NULL, &roles, &err), RT_OK);
-    rt_timeline *tl = rt_timeline_new();
-    snprintf(path, sizeof path, "%s/stages.csv", f->dir);
-    assert_int_equal(rt_timeline_load_stages_csv(tl, path, NULL, &err), RT_OK);
-    snprintf(path, sizeof path, "%s/events.csv", f->dir);
-    assert_int_equal(rt_timeline_load_events_csv(tl, path, NULL, &err), RT_OK);
-    if (rt_night_score(f->rec, &roles, tl, NULL, NULL, &f->night, &err) != RT_OK)
-        fail_msg("%s", err.message);
-    rt_timeline_free(tl);
+    rt_test_score_synthetic(&o, f->dir, true, &f->rec, &f->night);
     *state = f;
     return 0;
 }

@@ -26,37 +26,19 @@ static scored score_synthetic_events(rt_synth_profile profile, uint64_t seed, do
     snprintf(name, sizeof name, "night_%s_%llu", rt_synth_profile_name(profile),
              (unsigned long long)seed);
     const char *dir = rt_test_dir(name);
-    char d[4096], path[4200];
+    char d[4096];
     snprintf(d, sizeof d, "%s", dir);
     rt_synth_options o;
     rt_synth_options_default(&o);
     o.profile = profile;
     o.seed = seed;
     o.hours = hours;
-    rt_error err;
-    assert_int_equal(rt_synth_write(&o, d, &err), RT_OK);
-
-    snprintf(path, sizeof path, "%s/night.edf", d);
-    rt_recording *rec = rt_recording_open(path, &err);
-    assert_non_null(rec);
-    rt_role_map roles;
-    assert_int_equal(rt_roles_resolve(rec, NULL, &roles, &err), RT_OK);
-    rt_timeline *tl = rt_timeline_new();
-    snprintf(path, sizeof path, "%s/stages.csv", d);
-    assert_int_equal(rt_timeline_load_stages_csv(tl, path, NULL, &err), RT_OK);
-    if (events) {
-        snprintf(path, sizeof path, "%s/events.csv", d);
-        assert_int_equal(rt_timeline_load_events_csv(tl, path, NULL, &err), RT_OK);
-    }
+    rt_recording *rec = NULL;
     scored s = {NULL, NULL};
-    assert_int_equal(rt_night_score(rec, &roles, tl, NULL, NULL, &s.night, &err), RT_OK);
-    rt_timeline_free(tl);
+    rt_test_score_synthetic(&o, d, events, &rec, &s.night);
     rt_recording_close(rec);
 
-    snprintf(path, sizeof path, "%s/truth.json", d);
-    json_error_t jerr;
-    s.truth = json_load_file(path, 0, &jerr);
-    assert_non_null(s.truth);
+    s.truth = rt_test_load_truth(d);
     return s;
 }
 

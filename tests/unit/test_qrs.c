@@ -25,21 +25,6 @@
 
 static const double PI = 3.14159265358979323846;
 
-static uint64_t rng_state;
-
-static double rng_uniform(void)
-{
-    rng_state ^= rng_state >> 12;
-    rng_state ^= rng_state << 25;
-    rng_state ^= rng_state >> 27;
-    return ((double)((rng_state * 2685821657736338717u) >> 11) + 0.5) / 9007199254740992.0;
-}
-
-static double rng_gauss(void)
-{
-    return sqrt(-2.0 * log(rng_uniform())) * cos(2.0 * PI * rng_uniform());
-}
-
 /* One beat in uV for an R amplitude of 1000 uV; t from the R peak. */
 static double beat_wave(double t, double t_amp)
 {
@@ -59,9 +44,9 @@ static double beat_wave(double t, double t_amp)
 static size_t make_beats(double *r, size_t cap, double dur, double rr_lo, double rr_hi)
 {
     size_t k = 0;
-    for (double t = 0.5 + rng_uniform() * 0.3; t < dur - 0.5 && k < cap; k++) {
+    for (double t = 0.5 + rt_test_uniform() * 0.3; t < dur - 0.5 && k < cap; k++) {
         r[k] = t;
-        t += rr_lo + (rr_hi - rr_lo) * rng_uniform();
+        t += rr_lo + (rr_hi - rr_lo) * rt_test_uniform();
     }
     return k;
 }
@@ -74,29 +59,6 @@ static void add_beats(double *x, size_t n, double rate, const double *r, size_t 
         for (long i = a < 0 ? 0 : a; i < e && (size_t)i < n; i++)
             x[i] += scale * beat_wave((double)i / rate - r[b], t_amp);
     }
-}
-
-static double *band_noise(size_t n, double rate, double lo, double hi, double rect_uv)
-{
-    double *x = malloc(n * sizeof *x);
-    assert_non_null(x);
-    for (size_t i = 0; i < n; i++)
-        x[i] = rng_gauss();
-    rt_bandpass_spec spec = rt_bandpass_spec_defaults(rate);
-    spec.low_hz = lo;
-    spec.high_hz = hi;
-    rt_error err;
-    rt_bandpass *bp = rt_bandpass_new(&spec, &err);
-    assert_non_null(bp);
-    assert_int_equal(rt_bandpass_apply(bp, x, n, &err), RT_OK);
-    rt_bandpass_free(bp);
-    double m = 0.0;
-    for (size_t i = 0; i < n; i++)
-        m += fabs(x[i]);
-    m /= (double)n;
-    for (size_t i = 0; i < n; i++)
-        x[i] *= rect_uv / m;
-    return x;
 }
 
 typedef struct score {
@@ -168,7 +130,7 @@ static void test_regular(void **state)
     size_t nr = make_beats(r, 2000, dur, 60.0 / 70.0, 60.0 / 70.0);
     add_beats(x, n, rate, r, nr, 1.0, 300.0);
     for (size_t i = 0; i < n; i++)
-        x[i] += 20.0 * rng_gauss();
+        x[i] += 20.0 * rt_test_gauss();
     score s = detect_and_score("regular 70 bpm", x, n, rate, false, r, nr);
     assert_true(s.se > 0.99 && s.ppv > 0.99);
     /* the R time is the band-passed extreme: within a few ms of the true peak */
@@ -187,12 +149,12 @@ static void test_irregular_noisy(void **state)
         size_t nr = make_beats(r, 4000, dur, 0.4, 1.4);
         /* tall T waves (half the R) test the T-wave rule */
         add_beats(x, n, rate, r, nr, 0.8, 500.0);
-        double *emg = band_noise(n, rate, 20.0, 0.45 * rate, 15.0);
+        double *emg = rt_test_band_noise(n, rate, 20.0, 0.45 * rate, 15.0);
         for (size_t i = 0; i < n; i++) {
             double t = (double)i / rate;
             /* baseline wander, mains, white noise, and muscle noise in bursts */
             bool burst = fmod(t, 13.0) < 2.0;
-            x[i] += 300.0 * sin(2.0 * PI * 0.2 * t) + 50.0 * sin(2.0 * PI * 50.0 * t) + 40.0 * rng_gauss() +
+            x[i] += 300.0 * sin(2.0 * PI * 0.2 * t) + 50.0 * sin(2.0 * PI * 50.0 * t) + 40.0 * rt_test_gauss() +
                     (burst ? 3.0 : 1.0) * emg[i];
         }
         char what[64];
@@ -213,7 +175,7 @@ static void test_inverted_polarity(void **state)
     size_t nr = make_beats(r, 1000, dur, 0.7, 1.0);
     add_beats(x, n, rate, r, nr, -0.6, 300.0);
     for (size_t i = 0; i < n; i++)
-        x[i] += 15.0 * rng_gauss();
+        x[i] += 15.0 * rt_test_gauss();
     score s = detect_and_score("inverted lead", x, n, rate, false, r, nr);
     assert_true(s.se > 0.99 && s.ppv > 0.99);
     free(x);
@@ -227,7 +189,7 @@ static void test_from_chin(void **state)
     size_t n = (size_t)(rate * dur);
     double r[1000];
     size_t nr = make_beats(r, 1000, dur, 0.6, 1.2);
-    double *x = band_noise(n, rate, 10.0, 150.0, 2.0);
+    double *x = rt_test_band_noise(n, rate, 10.0, 150.0, 2.0);
     for (size_t i = 0; i < n; i++)
         if (fmod((double)i / rate, 17.0) < 1.5)
             x[i] *= 5.0;
@@ -277,9 +239,9 @@ static void test_template_subtraction(void **state)
     double *ecg = calloc(ne, sizeof *ecg), *bleed = calloc(n, sizeof *bleed);
     add_beats(ecg, ne, ecg_rate, r, nr, 1.0, 300.0);
     for (size_t i = 0; i < ne; i++)
-        ecg[i] += 20.0 * rng_gauss();
+        ecg[i] += 20.0 * rt_test_gauss();
     add_beats(bleed, n, rate, r, nr, 0.02, 6.0); /* 20 uV R in the chin */
-    double *emg = band_noise(n, rate, 10.0, 150.0, 1.5);
+    double *emg = rt_test_band_noise(n, rate, 10.0, 150.0, 1.5);
     double *chin = malloc(n * sizeof *chin);
     for (size_t i = 0; i < n; i++)
         chin[i] = emg[i] + bleed[i];
@@ -311,7 +273,7 @@ static void test_template_subtraction(void **state)
     assert_true(db < -20.0);
 
     /* clean EMG with the same beats: nothing locked, nothing subtracted */
-    double *clean = band_noise(n, rate, 10.0, 150.0, 1.5), *copy = malloc(n * sizeof *copy);
+    double *clean = rt_test_band_noise(n, rate, 10.0, 150.0, 1.5), *copy = malloc(n * sizeof *copy);
     memcpy(copy, clean, n * sizeof *copy);
     assert_int_equal(rt_ecg_subtract(clean, n, rate, beats.r_s, beats.n, RT_ECG_PRE_S, RT_ECG_POST_S, &rep,
                                      &err),
@@ -336,7 +298,7 @@ static void test_template_subtraction(void **state)
 
 int main(void)
 {
-    rng_state = rt_test_seed() | 1u;
+    rt_test_rng_seed(rt_test_seed());
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_regular),
         cmocka_unit_test(test_irregular_noisy),

@@ -19,46 +19,6 @@
 static const double PI = 3.14159265358979323846;
 static const double RATE = 512.0;
 
-static uint64_t rng_state;
-
-/* xorshift64* (Vigna 2016) and Box-Muller: enough for test signals. */
-static double rng_uniform(void)
-{
-    rng_state ^= rng_state >> 12;
-    rng_state ^= rng_state << 25;
-    rng_state ^= rng_state >> 27;
-    return ((double)((rng_state * 2685821657736338717u) >> 11) + 0.5) / 9007199254740992.0;
-}
-
-static double rng_gauss(void)
-{
-    return sqrt(-2.0 * log(rng_uniform())) * cos(2.0 * PI * rng_uniform());
-}
-
-/* Band-limited Gaussian noise (lo-hi Hz) with mean rectified value rect_uv. */
-static double *emg(size_t n, double rate, double lo, double hi, double rect_uv)
-{
-    double *x = malloc(n * sizeof *x);
-    assert_non_null(x);
-    for (size_t i = 0; i < n; i++)
-        x[i] = rng_gauss();
-    rt_bandpass_spec spec = rt_bandpass_spec_defaults(rate);
-    spec.low_hz = lo;
-    spec.high_hz = hi;
-    rt_error err;
-    rt_bandpass *bp = rt_bandpass_new(&spec, &err);
-    assert_non_null(bp);
-    assert_int_equal(rt_bandpass_apply(bp, x, n, &err), RT_OK);
-    rt_bandpass_free(bp);
-    double m = 0.0;
-    for (size_t i = 0; i < n; i++)
-        m += fabs(x[i]);
-    m /= (double)n;
-    for (size_t i = 0; i < n; i++)
-        x[i] *= rect_uv / m;
-    return x;
-}
-
 static double power(const double *x, size_t n)
 {
     double s = 0.0;
@@ -105,7 +65,7 @@ static void test_mains_none_on_clean_emg(void **state)
     (void)state;
     for (int trial = 0; trial < 3; trial++) {
         size_t n = (size_t)(60 * RATE);
-        double *x = emg(n, RATE, 20.0, 150.0, 1.0 + trial);
+        double *x = rt_test_band_noise(n, RATE, 20.0, 150.0, 1.0 + trial);
         rt_mains m;
         rt_error err;
         assert_int_equal(rt_mains_estimate(x, n, RATE, 10.0, 100.0, &m, &err), RT_OK);
@@ -123,7 +83,7 @@ static void test_mains_50_and_60(void **state)
     const double lines[2] = {50.0, 60.0};
     for (int c = 0; c < 2; c++) {
         size_t n = (size_t)(60 * RATE);
-        double *x = emg(n, RATE, 20.0, 150.0, 1.0);
+        double *x = rt_test_band_noise(n, RATE, 20.0, 150.0, 1.0);
         double p_emg = power(x, n);
         double amp = 2.0; /* uV, fundamental; harmonics 1/2, 1/3 of it */
         add_line(x, n, RATE, lines[c], amp, 2);
@@ -169,11 +129,11 @@ static void test_mains_mixed_noise(void **state)
     for (int c = 0; c < 2; c++) {
         double rate = c == 0 ? 256.0 : 200.0;
         size_t n = (size_t)(120 * rate);
-        double *x = emg(n, rate, 20.0, 0.45 * rate, 1.5);
+        double *x = rt_test_band_noise(n, rate, 20.0, 0.45 * rate, 1.5);
         double walk = 0.0;
         for (size_t i = 0; i < n; i++) {
             double t = (double)i / rate;
-            walk = 0.999 * walk + 0.3 * rng_gauss(); /* red noise */
+            walk = 0.999 * walk + 0.3 * rt_test_gauss(); /* red noise */
             double beat = fmod(t, 0.87) - 0.3;
             x[i] += walk + 30.0 * sin(2.0 * PI * 0.25 * t) + 20.0 * exp(-0.5 * pow(beat / 0.012, 2));
         }
@@ -216,8 +176,8 @@ static void test_mains_short_and_bad(void **state)
 /* Clean EMG with bursts 20x the background (0.1-5 s, as the rules' bursts). */
 static double *clean_with_bursts(size_t n, double rate)
 {
-    double *x = emg(n, rate, 20.0, 150.0, 1.0);
-    double *b = emg(n, rate, 20.0, 150.0, 1.0);
+    double *x = rt_test_band_noise(n, rate, 20.0, 150.0, 1.0);
+    double *b = rt_test_band_noise(n, rate, 20.0, 150.0, 1.0);
     for (double t0 = 3.0; t0 + 6.0 < (double)n / rate; t0 += 7.3) {
         double dur = 0.1 + fmod(t0, 4.9);
         for (size_t i = (size_t)(t0 * rate); i < (size_t)((t0 + dur) * rate); i++)
@@ -297,10 +257,10 @@ static void test_marks_flat(void **state)
         x[i] = 3.7;
     /* near zero for 5 s from 10 s (0.01 uV noise on a 20-uV offset) */
     for (size_t i = (size_t)(10 * RATE); i < (size_t)(15 * RATE); i++)
-        x[i] = 20.0 + 0.01 * rng_gauss();
+        x[i] = 20.0 + 0.01 * rt_test_gauss();
     /* near zero for 2 s only from 25 s: shorter than 3 s, not marked */
     for (size_t i = (size_t)(25 * RATE); i < (size_t)(27 * RATE); i++)
-        x[i] = 0.01 * rng_gauss();
+        x[i] = 0.01 * rt_test_gauss();
     rt_channel_info ch = chin_info(RATE);
     rt_quality_mark marks[16];
     size_t k = rt_quality_marks(x, n, RATE, &ch, marks, 16), f = 0;
@@ -427,7 +387,7 @@ static void test_qrs_windows(void **state)
 
 int main(void)
 {
-    rng_state = rt_test_seed() | 1u;
+    rt_test_rng_seed(rt_test_seed());
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_mains_none_on_clean_emg),
         cmocka_unit_test(test_mains_50_and_60),

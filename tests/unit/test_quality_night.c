@@ -14,26 +14,13 @@
 
 static rt_night *score(const rt_synth_options *o, const char *name, json_t **truth)
 {
-    char d[4096], path[4200];
+    char d[4096];
     snprintf(d, sizeof d, "%s", rt_test_dir(name));
-    rt_error err;
-    assert_int_equal(rt_synth_write(o, d, &err), RT_OK);
-    snprintf(path, sizeof path, "%s/night.edf", d);
-    rt_recording *rec = rt_recording_open(path, &err);
-    assert_non_null(rec);
-    rt_role_map roles;
-    assert_int_equal(rt_roles_resolve(rec, NULL, &roles, &err), RT_OK);
-    rt_timeline *tl = rt_timeline_new();
-    snprintf(path, sizeof path, "%s/stages.csv", d);
-    assert_int_equal(rt_timeline_load_stages_csv(tl, path, NULL, &err), RT_OK);
+    rt_recording *rec = NULL;
     rt_night *night = NULL;
-    assert_int_equal(rt_night_score(rec, &roles, tl, NULL, NULL, &night, &err), RT_OK);
-    rt_timeline_free(tl);
+    rt_test_score_synthetic(o, d, false, &rec, &night);
     rt_recording_close(rec);
-    snprintf(path, sizeof path, "%s/truth.json", d);
-    json_error_t jerr;
-    *truth = json_load_file(path, 0, &jerr);
-    assert_non_null(*truth);
+    *truth = rt_test_load_truth(d);
     return night;
 }
 

@@ -49,43 +49,17 @@ static int setup_nights(void **state)
     return 0;
 }
 
-static char *read_all(const char *path, size_t *len)
-{
-    FILE *f = fopen(path, "rb");
-    if (!f)
-        fail_msg("cannot open %s", path);
-    fseek(f, 0, SEEK_END);
-    long n = ftell(f);
-    fseek(f, 0, SEEK_SET);
-    char *buf = malloc((size_t)n + 1);
-    assert_non_null(buf);
-    assert_int_equal(fread(buf, 1, (size_t)n, f), (size_t)n);
-    buf[n] = '\0';
-    fclose(f);
-    *len = (size_t)n;
-    return buf;
-}
 
 static int files_equal(const char *a, const char *b)
 {
     size_t na, nb;
-    char *x = read_all(a, &na), *y = read_all(b, &nb);
+    char *x = rt_test_read_all(a, &na), *y = rt_test_read_all(b, &nb);
     int eq = na == nb && memcmp(x, y, na) == 0;
     free(x);
     free(y);
     return eq;
 }
 
-static json_t *load_truth(const char *dir)
-{
-    char path[4200];
-    snprintf(path, sizeof path, "%s/truth.json", dir);
-    json_error_t jerr;
-    json_t *t = json_load_file(path, 0, &jerr);
-    if (!t)
-        fail_msg("%s: %s (line %d)", path, jerr.text, jerr.line);
-    return t;
-}
 
 typedef struct row {
     long start_s, duration_s;
@@ -403,7 +377,7 @@ static void truth_indices_match_an_independent_recount(void **state)
 {
     (void)state;
     for (int p = 0; p < RT_SYNTH_PROFILE_COUNT; p++) {
-        json_t *t = load_truth(night_dir[p]);
+        json_t *t = rt_test_load_truth(night_dir[p]);
         recount(t, night_dir[p], 0);
         recount(t, night_dir[p], 1);
         if (p != RT_SYNTH_APNEA) /* no respiratory events: nothing to leave out */
@@ -417,7 +391,7 @@ static void placement_follows_the_grid_rules(void **state)
 {
     (void)state;
     for (int p = 0; p < RT_SYNTH_PROFILE_COUNT; p++) {
-        json_t *t = load_truth(night_dir[p]);
+        json_t *t = rt_test_load_truth(night_dir[p]);
         night_truth *nt = malloc(sizeof *nt);
         assert_non_null(nt);
         truth_load(t, night_dir[p], nt);
@@ -487,10 +461,10 @@ static double index_of(json_t *t, const char *group, const char *key)
 static void profiles_reach_their_targets(void **state)
 {
     (void)state;
-    json_t *typ = load_truth(night_dir[RT_SYNTH_TYPICAL_OLDER]);
-    json_t *rbd = load_truth(night_dir[RT_SYNTH_RBD]);
-    json_t *bor = load_truth(night_dir[RT_SYNTH_BORDERLINE]);
-    json_t *apn = load_truth(night_dir[RT_SYNTH_APNEA]);
+    json_t *typ = rt_test_load_truth(night_dir[RT_SYNTH_TYPICAL_OLDER]);
+    json_t *rbd = rt_test_load_truth(night_dir[RT_SYNTH_RBD]);
+    json_t *bor = rt_test_load_truth(night_dir[RT_SYNTH_BORDERLINE]);
+    json_t *apn = rt_test_load_truth(night_dir[RT_SYNTH_APNEA]);
     double combo_rbd = index_of(rbd, "sinbar", "chin_any_fds_phasic_3s");
     double combo_typ = index_of(typ, "sinbar", "chin_any_fds_phasic_3s");
     printf("# rbd %.1f %%, typical-older %.1f %% (cutoff 31.9)\n", combo_rbd, combo_typ);
@@ -645,7 +619,7 @@ static void emg_levels_follow_the_plan(void **state)
     (void)state;
     for (int p = 0; p < RT_SYNTH_PROFILE_COUNT; p++) {
         const char *dir = night_dir[p];
-        json_t *t = load_truth(dir);
+        json_t *t = rt_test_load_truth(dir);
         night_truth *nt = malloc(sizeof *nt);
         assert_non_null(nt);
         truth_load(t, dir, nt);

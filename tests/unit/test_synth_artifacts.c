@@ -80,30 +80,9 @@ static char *slurp(const char *dir, const char *name, size_t *len)
 {
     char path[4200];
     snprintf(path, sizeof path, "%s/%s", dir, name);
-    FILE *f = fopen(path, "rb");
-    if (!f)
-        fail_msg("cannot open %s", path);
-    fseek(f, 0, SEEK_END);
-    long n = ftell(f);
-    fseek(f, 0, SEEK_SET);
-    char *buf = malloc((size_t)n + 1);
-    assert_int_equal(fread(buf, 1, (size_t)n, f), (size_t)n);
-    buf[n] = '\0';
-    fclose(f);
-    *len = (size_t)n;
-    return buf;
+    return rt_test_read_all(path, len);
 }
 
-static json_t *truth_of(const char *dir)
-{
-    char path[4200];
-    snprintf(path, sizeof path, "%s/truth.json", dir);
-    json_error_t je;
-    json_t *t = json_load_file(path, 0, &je);
-    if (!t)
-        fail_msg("%s: %s", path, je.text);
-    return t;
-}
 
 /* Reads [t0, t0 + dur) of a channel in uV; dur < 0 reads to the end. */
 static double *read_channel(const char *dir, const char *label, double t0, double dur, size_t *n_out,
@@ -154,7 +133,7 @@ static void test_plan_unmoved(void **state)
     assert_memory_equal(x, y, a);
     free(x);
     free(y);
-    json_t *ta = truth_of(dir_art), *tc = truth_of(dir_clean);
+    json_t *ta = rt_test_load_truth(dir_art), *tc = rt_test_load_truth(dir_clean);
     assert_true(json_equal(json_object_get(ta, "bursts"), json_object_get(tc, "bursts")));
     assert_true(json_equal(json_object_get(ta, "indices"), json_object_get(tc, "indices")));
     json_decref(ta);
@@ -170,7 +149,7 @@ static void test_plan_unmoved(void **state)
 static void test_truth_lists_artifacts(void **state)
 {
     (void)state;
-    json_t *t = truth_of(dir_art), *a = json_object_get(t, "artifacts");
+    json_t *t = rt_test_load_truth(dir_art), *a = json_object_get(t, "artifacts");
     assert_non_null(a);
     json_t *m = json_object_get(a, "mains");
     assert_true(json_real_value(json_object_get(m, "line_hz")) == 60.0);
@@ -209,7 +188,7 @@ static void test_truth_lists_artifacts(void **state)
         assert_true(in_rem);
     }
     free(csv);
-    json_t *tc = truth_of(dir_clean), *ac = json_object_get(tc, "artifacts");
+    json_t *tc = rt_test_load_truth(dir_clean), *ac = json_object_get(tc, "artifacts");
     assert_true(json_is_null(json_object_get(ac, "mains")) && json_is_null(json_object_get(ac, "clipping")) &&
                 json_is_null(json_object_get(ac, "detached")));
     assert_int_equal(json_array_size(json_object_get(ac, "pops")), 0);
@@ -253,7 +232,7 @@ static void test_mains_in_signal(void **state)
 
 static double *truth_beats(const char *dir, size_t *nb)
 {
-    json_t *t = truth_of(dir);
+    json_t *t = rt_test_load_truth(dir);
     json_t *r = json_object_get(json_object_get(json_object_get(t, "artifacts"), "ecg"), "r_s");
     *nb = json_array_size(r);
     double *b = malloc(*nb * sizeof *b);
@@ -336,7 +315,7 @@ static void test_marks_in_signal(void **state)
     rt_quality_mark marks[64];
     size_t k = rt_quality_marks(x, n, ci.rate_hz, &ci, marks, 64);
     assert_true(k <= 64);
-    json_t *t = truth_of(dir_art), *pops = json_object_get(json_object_get(t, "artifacts"), "pops");
+    json_t *t = rt_test_load_truth(dir_art), *pops = json_object_get(json_object_get(t, "artifacts"), "pops");
     size_t n_clip = 0, n_flat = 0, n_pop = 0, pops_outside = 0;
     for (size_t i = 0; i < k; i++) {
         print_message("# %s %.3f-%.3f\n", rt_quality_reason_name(marks[i].reason), marks[i].start_s, marks[i].end_s);
