@@ -8,7 +8,9 @@
 
 enum {
     KEY_PROFILE = 1, KEY_HOURS, KEY_SEED, KEY_OUT, KEY_PATIENT, KEY_TEXT, KEY_START,
-    KEY_MAINS, KEY_ECG_BLEED, KEY_HEART_RATE, KEY_CLIP, KEY_DETACH, KEY_POPS
+    KEY_MAINS, KEY_ECG_BLEED, KEY_HEART_RATE, KEY_CLIP, KEY_DETACH, KEY_POPS,
+    KEY_TONIC_RUNS, KEY_TONIC_WHOLE_BOUT, KEY_TONIC_RATIO, KEY_DRIFT, KEY_SHORT_BURSTS, KEY_BURST_RATIO,
+    KEY_SINGLE_EPOCH_BOUTS, KEY_EMG_RATE, KEY_MIXED_RATES, KEY_SPIKY
 };
 
 static const cli_option OPTIONS[] = {
@@ -19,12 +21,22 @@ static const cli_option OPTIONS[] = {
     {"patient", 1, KEY_PATIENT, "TEXT", "fictional EDF+ patient name"},
     {"recording-text", 1, KEY_TEXT, "TEXT", "EDF+ recording free text"},
     {"start", 1, KEY_START, "HH:MM", "clock time of the recording start (default 22:30)"},
-    {"mains", 1, KEY_MAINS, "HZ:UV[:H]", "add mains interference (50 or 60 Hz, amplitude, H harmonics)"},
+    {"mains", 1, KEY_MAINS, "HZ:UV[:H]", "add mains interference (50 or 60 Hz, amplitude 0-200 uV, H harmonics 0-4)"},
     {"ecg-bleed", 1, KEY_ECG_BLEED, "UV[:LIMB_UV]", "add ECG bleed to the chin (and the limbs)"},
     {"heart-rate", 1, KEY_HEART_RATE, "BPM", "mean heart rate, 30 to 120 (default 62)"},
     {"clip", 1, KEY_CLIP, "START:SECONDS", "saturate the chin amplifier for a stretch"},
     {"detach", 1, KEY_DETACH, "SECONDS", "detach the chin lead from this time on"},
     {"pops", 1, KEY_POPS, "N", "add N electrode pops to the chin during REM"},
+    {"tonic-runs", 1, KEY_TONIC_RUNS, "EPOCHS", "chin tonic: one run of 1-40 epochs per REM bout (replaces the profile's)"},
+    {"tonic-whole-bout", 1, KEY_TONIC_WHOLE_BOUT, "N", "make REM bout N (1 = first) chin-tonic throughout"},
+    {"tonic-ratio", 1, KEY_TONIC_RATIO, "R", "tonic level = R x the bout's atonic chin level, 3-20"},
+    {"drift", 1, KEY_DRIFT, "GAIN", "EMG gain drifting from 1 to GAIN (0.5-2) over the night"},
+    {"short-bursts", 0, KEY_SHORT_BURSTS, NULL, "bursts of 0.1-0.3 s starting anywhere, some across mini-epochs"},
+    {"burst-ratio", 1, KEY_BURST_RATIO, "LO:HI", "burst level = LO..HI x background, 0.5-20 (default 8:15)"},
+    {"single-epoch-bouts", 1, KEY_SINGLE_EPOCH_BOUTS, "N", "add N REM bouts of one 30-s epoch inside N2, 1-20"},
+    {"emg-rate", 1, KEY_EMG_RATE, "HZ", "EMG sampling rate: 200, 256, 500, 512 or 1000 (default 512)"},
+    {"mixed-rates", 0, KEY_MIXED_RATES, NULL, "chin, arms and legs at three different EMG rates"},
+    {"spiky", 0, KEY_SPIKY, NULL, "EMG as motor-unit spike trains instead of Gaussian noise"},
     {0},
 };
 
@@ -83,6 +95,21 @@ static int on_option(void *ctx, int key, const char *arg)
         break;
     case KEY_DETACH: c->o.detach_s = strtod(arg, &end); c->bad |= *end != '\0'; break;
     case KEY_POPS: c->o.pops = (int)strtol(arg, &end, 10); c->bad |= *end != '\0'; break;
+    case KEY_TONIC_RUNS: c->o.tonic_run_epochs = (int)strtol(arg, &end, 10); c->bad |= *end != '\0'; break;
+    case KEY_TONIC_WHOLE_BOUT: c->o.tonic_whole_bout = (int)strtol(arg, &end, 10); c->bad |= *end != '\0'; break;
+    case KEY_TONIC_RATIO: c->o.tonic_ratio = strtod(arg, &end); c->bad |= *end != '\0'; break;
+    case KEY_DRIFT: c->o.drift_end = strtod(arg, &end); c->bad |= *end != '\0'; break;
+    case KEY_SHORT_BURSTS: c->o.short_bursts = 1; break;
+    case KEY_BURST_RATIO:
+        if (sscanf(arg, "%lf:%lf", &c->o.burst_ratio_lo, &c->o.burst_ratio_hi) != 2) {
+            fprintf(stderr, "remtone synth: --burst-ratio must be LO:HI, got '%s'\n", arg);
+            return EXIT_USAGE;
+        }
+        break;
+    case KEY_SINGLE_EPOCH_BOUTS: c->o.single_epoch_bouts = (int)strtol(arg, &end, 10); c->bad |= *end != '\0'; break;
+    case KEY_EMG_RATE: c->o.emg_rate_hz = (int)strtol(arg, &end, 10); c->bad |= *end != '\0'; break;
+    case KEY_MIXED_RATES: c->o.mixed_rates = 1; break;
+    case KEY_SPIKY: c->o.spiky = 1; break;
     case KEY_OUT: c->out = arg; break;
     case KEY_PATIENT: c->o.patient = arg; break;
     case KEY_TEXT: c->o.recording = arg; break;

@@ -81,38 +81,73 @@ rt_status rt_cutoffs_load(rt_cutoffs *cutoffs, const char *path, rt_error *err);
 
 /* ---- Parameters -------------------------------------------------------- */
 
+/* Every scoring parameter is one row of the descriptor table
+ * (rt_score_param_table): name, default, valid range, unit and its source or
+ * reason. The table drives the defaults, the range checks, the JSON
+ * provenance, the cohort resume key and docs/parameters.md, so a parameter
+ * cannot be listed in one place and missed in another. */
 typedef struct rt_score_params {
-    double band_low_hz;          /* band-pass high-pass corner, default 10 */
-    double band_high_hz;         /* low-pass corner, default 100 (clipped below Nyquist) */
-    int band_order;              /* Butterworth order of the zero-phase response, default 4 */
-    double envelope_window_s;    /* rectified moving-average window, default 0.05 */
-    double burst_merge_gap_s;    /* runs above threshold closer than this are one burst,
-                                    default 0.25 */
-    double background_level_quantile; /* the level a second of background reaches: this
-                                    quantile of its envelope, default 0.9 */
-    double background_window_s;  /* background window centred on each second, default 60 */
-    double background_quantile;  /* quantile of those 1-s levels in that window, default 0.2 */
-    double aasm_nrem_quantile;   /* quantile of NREM epoch chin medians taken as "minimum
-                                    NREM amplitude", default 0.05 */
-    double tonic_abs_uv;         /* SINBAR/Montreal absolute tonic level, default 10 (rectified) */
-    double montreal_epoch_s;     /* Montreal tonic epoch, default 20 */
-    double min_rate_hz;          /* below this a channel is scored with a warning, default 200 */
-    double min_scorable_min;     /* less scorable REM is not assessable, default 5 */
-    double near_fraction;        /* "near the cutoff" from this share of it, default 0.8 */
+    /* conditioning */
+    double band_low_hz;          /* band-pass high-pass corner, Hz */
+    double band_high_hz;         /* low-pass corner, Hz (clipped below Nyquist) */
+    int band_order;              /* Butterworth order of the zero-phase response */
+    double envelope_window_s;    /* rectified moving-average window, s */
+    /* the atonic background (docs/scoring.md, "Background") */
+    double background_level_quantile; /* a second's level: this quantile of its envelope */
+    double background_quantile;  /* low quantile of the night's REM minute levels fitted */
+    double background_quiet_ratio; /* seconds at most this x the fitted floor are "quiet" */
+    double background_drift_max; /* largest drift factor over 8 hours the fit follows */
+    /* phasic bursts */
+    double burst_merge_gap_s;    /* runs above threshold closer than this are one burst */
+    double burst_duration_tolerance_s; /* a rule's duration limits are applied with this slack */
+    double burst_min_s;          /* shortest burst, all rule sets */
+    double burst_max_s;          /* longest burst, AASM and SINBAR */
+    double montreal_burst_max_s; /* longest burst, Montreal */
+    double aasm_burst_k;         /* AASM burst amplitude, x background */
+    double sinbar_burst_k;       /* SINBAR burst amplitude, x background */
+    double montreal_burst_k;     /* Montreal burst amplitude, x background */
+    /* tonic activity */
+    double tonic_k;              /* SINBAR/Montreal tonic level, x background */
+    double tonic_abs_p2p_uv;     /* SINBAR/Montreal absolute tonic level, peak-to-peak uV */
+    double aasm_nrem_quantile;   /* quantile of NREM epoch chin medians: "minimum NREM amplitude" */
+    double aasm_nrem_margin;     /* "greater than" that minimum: this factor above it */
+    double montreal_epoch_s;     /* Montreal tonic epoch, s */
+    /* the night */
+    double min_rate_hz;          /* below this a channel is scored with a warning */
+    double min_scorable_min;     /* less scorable REM is not assessable */
+    double near_fraction;        /* "near the cutoff" from this share of it */
     /* Event-aware scoring (docs/exclusions.md): mini-epochs overlapping these
      * events, widened by event_margin_s on each side, leave numerator and
      * denominator. */
-    bool exclude_artifacts;      /* `artifact` events, default true */
-    bool exclude_snoring;        /* `snore` events, default true */
+    bool exclude_artifacts;      /* `artifact` events */
+    bool exclude_snoring;        /* `snore` events */
     bool exclude_respiratory;    /* apneas, hypopneas, `resp-arousal` events and `arousal`
                                     events starting within resp_arousal_gap_s of the end of
-                                    an apnea or hypopnea; default true */
-    double event_margin_s;       /* default 0 */
-    double resp_arousal_gap_s;   /* default 5 (common practice) */
+                                    an apnea or hypopnea */
+    double event_margin_s;
+    double resp_arousal_gap_s;
 } rt_score_params;
 
+typedef enum rt_param_kind { RT_PARAM_REAL = 0, RT_PARAM_INT, RT_PARAM_BOOL } rt_param_kind;
+
+typedef struct rt_param_desc {
+    const char *name;        /* the field's name; JSON provenance key */
+    rt_param_kind kind;
+    size_t offset;           /* offsetof(rt_score_params, field) */
+    double def, lo, hi;      /* default and inclusive valid range (bools: 0 .. 1) */
+    const char *unit;        /* "Hz", "s", "uV", "x" (a factor), "" */
+    const char *source;      /* published source, "common practice", "from memory" or our reason */
+} rt_param_desc;
+
+/* The descriptor table, in field order; *count receives its length. Static. */
+const rt_param_desc *rt_score_param_table(size_t *count);
+/* A parameter's value as a double (ints and bools converted). */
+double rt_score_param_get(const rt_score_params *params, const rt_param_desc *d);
+
+/* Fills every parameter with its default from the table. */
 void rt_score_params_default(rt_score_params *params);
-/* Checks ranges; the message names the parameter. */
+/* Checks every parameter against its range in the table, and the relations
+ * between them; the message names the parameter. */
 rt_status rt_score_params_check(const rt_score_params *params, rt_error *err);
 
 /* ---- The night result -------------------------------------------------- */
@@ -220,6 +255,14 @@ typedef struct rt_channel_result {
     bool low_rate;             /* below params.min_rate_hz: scored with a warning */
     double band_high_hz;       /* low-pass corner actually used */
     double rem_median_uv;      /* median rectified envelope over REM */
+    /* The atonic REM background (docs/scoring.md, "Background"):
+     * level(t) = atonic_uv * exp(atonic_drift_per_h * (t - atonic_ref_s) / 3600),
+     * a rectified envelope level in uV; read it with rt_night_background_uv. */
+    bool atonic_valid;         /* false: too few scorable REM seconds to fit it */
+    double atonic_uv;
+    double atonic_ref_s;
+    double atonic_drift_per_h; /* log-level slope per hour; 0 when no drift was fitted */
+    size_t atonic_minutes;     /* REM minute levels the fit used */
     rt_channel_quality quality;
 } rt_channel_result;
 
@@ -263,6 +306,7 @@ typedef struct rt_night {
     double scorable_minutes;
     size_t n_bouts;
     double nrem_reference_uv;            /* AASM chin reference; NaN when no NREM */
+    rt_role_map roles;                   /* the channels each role was read from */
     rt_channel_result channel[RT_ROLE_COUNT];
     rt_index_value index[RT_IX_COUNT];
     rt_cutoffs cutoffs;
@@ -282,12 +326,30 @@ typedef struct rt_night {
 } rt_night;
 
 /* Scores one night. cutoffs may be NULL (published); params may be NULL
- * (defaults). Fails with RT_ERR_CHANNEL when no chin role is present,
- * RT_ERR_STAGING when the timeline holds no REM. */
+ * (defaults). Fails with RT_ERR_STAGING when the staging does not use 30-s
+ * epochs, RT_ERR_USAGE on a parameter out of range, RT_ERR_NOMEM, and with
+ * the reader's status on a recording that cannot be read. A night without REM
+ * or without a chin channel is a result, not a failure: its level is "not
+ * assessable" with the reason. */
 rt_status rt_night_score(rt_recording *rec, const rt_role_map *roles, const rt_timeline *tl,
                          const rt_score_params *params, const rt_cutoffs *cutoffs,
                          rt_night **out, rt_error *err);
 void rt_night_free(rt_night *night);
+
+/* The conditioned envelope of a role (uV) over [t0_s, t0_s + seconds), a
+ * stretch inside one REM bout of night, exactly as the scorer labelled it:
+ * the whole bout is conditioned on the scorer's path (same padding, notches,
+ * beats and ECG removal) and the stretch copied out. *env_out (caller frees)
+ * holds *n_out samples at *rate_hz. RT_ERR_USAGE when the role is absent or
+ * the stretch is not inside one REM bout; the reader's status otherwise. */
+rt_status rt_night_envelope(rt_recording *rec, const rt_night *night, rt_role role, double t0_s,
+                            size_t seconds, double **env_out, size_t *n_out, double *rate_hz,
+                            rt_error *err);
+
+/* The atonic background of a role at t_s (seconds from the recording start),
+ * uV of rectified envelope; NaN when the role is absent or not fitted. The
+ * relative rules compare the envelope with k times this value. */
+double rt_night_background_uv(const rt_night *night, rt_role role, double t_s);
 
 /* Fills night->agreement from the manual RSWA scoring in tl (tl->manual; may
  * be absent, then agreement.present is false and every cell has n = 0).

@@ -5,10 +5,10 @@
  * legs, ECG and respiratory placeholders), its stage table and event table,
  * and truth.json: the activity placed in every REM mini-epoch and the exact
  * value every index takes on that placed activity. The EMG is band-limited
- * Gaussian noise whose rectified level follows the stage, with phasic bursts
- * and tonic stretches laid on a grid chosen so that no index is ambiguous
- * (docs/synthetic-nights.md gives the design). Output is deterministic for a
- * given profile, length and seed. */
+ * Gaussian noise (or, as a switch, motor-unit spike trains) whose rectified
+ * level follows the stage, with phasic bursts and tonic stretches placed so
+ * that no index is ambiguous (docs/synthetic-nights.md gives the design).
+ * Output is deterministic for given options. */
 #ifndef REMTONE_SYNTH_H
 #define REMTONE_SYNTH_H
 
@@ -46,8 +46,9 @@ typedef struct rt_synth_options {
      * artifacts"); every one is off at 0. truth.json lists exactly what was
      * added under "artifacts". */
     double mains_hz;          /* line frequency on all five EMG channels: 0 (off), 50 or 60 */
-    double mains_uv;          /* peak amplitude of the fundamental, uV, 0..100 */
-    int mains_harmonics;      /* harmonics 2f, 3f, ... added, 0..4; each half the one before */
+    double mains_uv;          /* peak amplitude of the fundamental, uV, 0..200 */
+    int mains_harmonics;      /* harmonics 2f, 3f, ... added, 0..4; each half the one before;
+                                 a component at or above half a channel's rate is left out */
     double ecg_bleed_uv;      /* R-peak amplitude of ECG bleed in the chin, uV, 0..200 */
     double ecg_bleed_limb_uv; /* the same in the four limb channels, uV, 0..200 */
     double heart_rate_bpm;    /* mean heart rate of the ECG channel and the bleed,
@@ -58,10 +59,37 @@ typedef struct rt_synth_options {
     double detach_s;          /* chin lead detached (samples exactly 0) from this time to
                                  the end; 0 = off; must lie inside the night */
     int pops;                 /* electrode pops in the chin during REM, 0..1000 */
+
+    /* Difficulty switches: nights that are hard for a scorer, each one off at
+     * its default (docs/synthetic-nights.md, "Difficulty switches"). The truth
+     * is always counted from what was placed; truth.json repeats the switches
+     * under "difficulty". */
+    int tonic_run_epochs;     /* 0 = off; 1..40: chin tonic is one run of this many
+                                 consecutive epochs per REM bout (clipped to the bout),
+                                 replacing the profile's tonic blocks */
+    int tonic_whole_bout;     /* 0 = off; 1..64: this REM bout (1 = the first) is chin-tonic
+                                 from its first to its last epoch; the night must have it */
+    double tonic_ratio;       /* 0 = off (tonic level 15-25 uV); 3..20: every tonic stretch's
+                                 rectified level is this multiple of its bout's atonic chin
+                                 background */
+    double drift_end;         /* 1 (or 0) = off; 0.5..2.0: the EMG of every EMG channel is
+                                 multiplied by a gain going log-linearly from 1 at the start to
+                                 drift_end at the end of the recording (artifacts are not) */
+    int short_bursts;         /* 0 = off; 1: phasic bursts of 0.10-0.30 s with onsets anywhere
+                                 (some crossing 2-s and 3-s mini-epoch boundaries) */
+    double burst_ratio_lo;    /* burst rectified level as a multiple of the background: */
+    double burst_ratio_hi;    /* drawn in [lo, hi], 0.5..20, lo <= hi; both 0 = 8..15 */
+    int single_epoch_bouts;   /* 0 = off; 1..20: that many extra REM bouts of one 30-s epoch,
+                                 each inside N2 */
+    int emg_rate_hz;          /* 0 = 512; 200, 256, 500, 512 or 1000 Hz for the EMG channels */
+    int mixed_rates;          /* 0 = off; 1: chin at emg_rate_hz, arms and legs at two other
+                                 rates of that list */
+    int spiky;                /* 0 = off (band-limited Gaussian EMG); 1: motor-unit action
+                                 potential trains plus a little Gaussian noise */
 } rt_synth_options;
 
 /* Fills *options with defaults: typical-older, 8 hours, seed 1, 22:30 start,
- * no artifacts. */
+ * no artifacts, no difficulty switch (drift_end 1, every other switch 0). */
 void rt_synth_options_default(rt_synth_options *options);
 
 /* Writes dir/night.edf, dir/stages.csv, dir/events.csv and dir/truth.json;

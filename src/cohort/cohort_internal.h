@@ -15,7 +15,7 @@ typedef enum night_outcome { NIGHT_SCORED = 0, NIGHT_SKIPPED, NIGHT_FAILED } nig
 typedef struct cohort_shared {
     const rt_cohort_options *options;
     rt_cutoffs cutoffs;        /* in force for this run */
-    char settings[2048];       /* every setting that changes a result, as text; hashed per night */
+    char settings[8192];       /* every setting that changes a result, as text; hashed per night */
     char nights_dir[COHORT_PATH_MAX];
     char log_path[COHORT_PATH_MAX];
 } cohort_shared;

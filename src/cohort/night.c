@@ -46,25 +46,11 @@ void cohort_settings_text(cohort_shared *s)
     char *t = s->settings;
     size_t cap = sizeof s->settings;
     size_t u = (size_t)snprintf(t, cap, "remtone %s\n", rt_version());
-    u = add_text(t, cap, u, "band_low_hz", p->band_low_hz);
-    u = add_text(t, cap, u, "band_high_hz", p->band_high_hz);
-    u = add_text(t, cap, u, "band_order", p->band_order);
-    u = add_text(t, cap, u, "envelope_window_s", p->envelope_window_s);
-    u = add_text(t, cap, u, "burst_merge_gap_s", p->burst_merge_gap_s);
-    u = add_text(t, cap, u, "background_level_quantile", p->background_level_quantile);
-    u = add_text(t, cap, u, "background_window_s", p->background_window_s);
-    u = add_text(t, cap, u, "background_quantile", p->background_quantile);
-    u = add_text(t, cap, u, "aasm_nrem_quantile", p->aasm_nrem_quantile);
-    u = add_text(t, cap, u, "tonic_abs_uv", p->tonic_abs_uv);
-    u = add_text(t, cap, u, "montreal_epoch_s", p->montreal_epoch_s);
-    u = add_text(t, cap, u, "min_rate_hz", p->min_rate_hz);
-    u = add_text(t, cap, u, "min_scorable_min", p->min_scorable_min);
-    u = add_text(t, cap, u, "near_fraction", p->near_fraction);
-    u = add_text(t, cap, u, "exclude_artifacts", p->exclude_artifacts);
-    u = add_text(t, cap, u, "exclude_snoring", p->exclude_snoring);
-    u = add_text(t, cap, u, "exclude_respiratory", p->exclude_respiratory);
-    u = add_text(t, cap, u, "event_margin_s", p->event_margin_s);
-    u = add_text(t, cap, u, "resp_arousal_gap_s", p->resp_arousal_gap_s);
+    /* every parameter of the descriptor table: a change in any one rescoring the night */
+    size_t n_params = 0;
+    const rt_param_desc *table = rt_score_param_table(&n_params);
+    for (size_t i = 0; i < n_params; i++)
+        u = add_text(t, cap, u, table[i].name, rt_score_param_get(p, &table[i]));
     /* the cutoffs change each index's status and the review level */
     for (int i = 0; i < RT_IX_COUNT; i++) {
         u = add_text(t, cap, u, "has", s->cutoffs.has[i]);

@@ -158,6 +158,15 @@ typedef struct rt_qrs_beats {
     size_t n;          /* beats found */
     bool from_chin;    /* detected in the chin channel (no ECG channel) */
     double mean_rr_s;  /* mean R-R interval, NAN below 2 beats */
+    /* The evidence that detections in the chin are heart beats (from_chin
+     * only; docs/quality.md). Measured on the detections before the check,
+     * NAN when not measured. When the evidence is lacking, n is 0. */
+    size_t candidates;      /* detections before the evidence check */
+    double rate_bpm;        /* 60 / median R-R of the candidates */
+    double rr_irregularity; /* median |R-R(k+1) - R-R(k)| / median R-R */
+    double locked_share;    /* share of the 10-100 Hz window energy the beat-locked
+                               template explains (0..1) */
+    double random_share;    /* the same share at pseudo-random times (chance) */
 } rt_qrs_beats;
 
 /* QRS detector after Pan & Tompkins 1985 (IEEE Trans Biomed Eng 32:230-236):
@@ -168,7 +177,14 @@ typedef struct rt_qrs_beats {
  * integrator peak, refined by parabolic interpolation. With from_chin (no
  * ECG channel: x_uv is the raw chin EMG) a detection is kept only when the
  * raw signal within 60 ms of it correlates (r >= 0.4) with the average of
- * all detections, which drops beats "found" in muscle bursts. x_uv is at
+ * all detections, which drops beats "found" in muscle bursts; and then all
+ * detections are dropped (n = 0) unless they look like a heart: at least
+ * RT_ECG_MIN_BEATS of them, a rate of RT_ECG_MIN_BPM-RT_ECG_MAX_BPM, a
+ * template that explains RT_ECG_FOUND_RATIO^2 times the share of the window
+ * energy it explains at random times, and either a regular rhythm
+ * (RT_QRS_CHIN_MAX_IRREGULARITY) or a template explaining at least
+ * RT_QRS_CHIN_STRONG_SHARE of the energy (docs/quality.md says why: the
+ * detector picks its own times, so noise alone makes a template). x_uv is at
  * rate_hz (>= 100). Fills *beats (the
  * caller frees it with rt_qrs_beats_free). RT_ERR_USAGE on bad arguments or
  * non-finite samples, RT_ERR_NOMEM. */
@@ -181,23 +197,47 @@ void rt_qrs_beats_free(rt_qrs_beats *beats);
 /* Default template window around each R peak (docs/quality.md): */
 #define RT_ECG_PRE_S 0.15
 #define RT_ECG_POST_S 0.35
-/* "ECG found in the EMG": template rms at least this many times the standard
- * error of the average (noise rms / sqrt(beats)), with at least 8 beats. */
+/* Evidence of ECG artifact in an EMG stretch (docs/quality.md gives the
+ * reasons):
+ * - at least RT_ECG_MIN_BEATS beats with whole windows: one 30-s REM epoch
+ *   (the shortest stretch scored) at the slowest accepted rate;
+ * - a rate (60 / median R-R) of 30-120 bpm: adult heart rates in sleep
+ *   (common practice); outside it the "beats" are not taken for a heart;
+ * - the beat-locked template explains at least RT_ECG_FOUND_RATIO^2 times the
+ *   share of the window energy that a template at pseudo-random times
+ *   explains (chance, about 1 / beats): the template rms stands 3 times above
+ *   that of unrelated windows. */
+#define RT_ECG_MIN_BEATS 15
+#define RT_ECG_MIN_BPM 30.0
+#define RT_ECG_MAX_BPM 120.0
 #define RT_ECG_FOUND_RATIO 3.0
+/* Beats found in the chin itself (from_chin) were picked where the chin looks
+ * most like a QRS, so even noise gives them a template; they count as heart
+ * beats only with a regular rhythm (median successive R-R change at most 20 %
+ * of the median R-R; sinus rhythm changes by a few per cent from beat to beat,
+ * detections in band-limited noise by 29 % or more, typically 50-90 %) or,
+ * for irregular rhythms such as atrial fibrillation, a template explaining at
+ * least 45 % of the energy around the beats (noise-picked detections explain
+ * at most about 30 %). Figures: docs/quality.md. */
+#define RT_QRS_CHIN_MAX_IRREGULARITY 0.20
+#define RT_QRS_CHIN_STRONG_SHARE 0.45
 
 typedef struct rt_ecg_removal {
     size_t beats_used;       /* beats whose whole window lies inside the stretch */
-    bool found;              /* ECG-locked activity above RT_ECG_FOUND_RATIO */
+    bool found;              /* ECG artifact in this EMG: the evidence above holds */
     bool removed;            /* the template was subtracted (only when found) */
     double template_rms_uv;  /* rms of the average QRS-locked waveform */
     double template_p2p_uv;  /* its peak-to-peak amplitude */
     double noise_rms_uv;     /* rms of the EMG around the template, per sample */
     double locked_db;        /* template energy over the EMG energy in the windows, dB */
+    double rate_bpm;         /* 60 / median R-R of the beats given; NAN below 2 beats */
+    double locked_share;     /* share of the window energy the template explains, 0..1 */
+    double random_share;     /* the same at pseudo-random times (chance); NAN if unmeasured */
 } rt_ecg_removal;
 
 /* Template subtraction: averages emg_uv over the windows [r - pre_s, r +
  * post_s] around every beat of r_s (times from the stretch start, on the same
- * clock as emg_uv), and when that average stands out of the noise (found)
+ * clock as emg_uv), and when the evidence above holds (found)
  * subtracts it at each beat (partial windows at the stretch ends included).
  * pre_s, post_s >= 0 (RT_ECG_PRE_S, RT_ECG_POST_S by default). Meant for the
  * band-passed EMG (docs/quality.md says why). report may be NULL.

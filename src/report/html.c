@@ -14,12 +14,11 @@
 #include <string.h>
 #include <time.h>
 
-#include "score/bandpass.h"
-#include "score/detect.h"
 #include "internal.h"
 #include "output.h"
 #include "remtone/report.h"
 #include "remtone/version.h"
+#include "score/night_internal.h"
 #include "svg.h"
 
 #define MINIS_PER_EPOCH 10
@@ -110,19 +109,20 @@ static const char *level_words(rt_review_level level)
     switch (level) {
     case RT_REVIEW_FLAGGED: return "Review advised: a published cutoff is reached";
     case RT_REVIEW_NEAR: return "Near a cutoff: none reached, one is close";
-    case RT_REVIEW_CLEAR: return "Clear: no index reaches or nears its cutoff";
+    case RT_REVIEW_CLEAR: return "Clear: no index reaches or nears a verified cutoff";
     case RT_REVIEW_NOT_ASSESSABLE: return "Not assessable: too little usable REM or no chin channel";
     }
     return "";
 }
 
-/* abnormal 2, near 1, within 0, no judgement -1 */
+/* abnormal 2, near 1, within 0, no judgement -1 (also for a cutoff recalled
+ * but not verified against the published text: context only) */
 static int severity(const rt_night *night, int i)
 {
     const rt_index_rule *rule = &rt_index_rules()[i];
     const rt_index_value *v = &night->index[i];
     if (v->status == RT_STATUS_NOT_COMPUTED || v->status == RT_STATUS_NO_CUTOFF ||
-        !night->cutoffs.has[i])
+        !night->cutoffs.has[i] || !rt_night_cutoff_verified(night, i))
         return -1;
     if (rule->lower_is_worse)
         return v->status == RT_STATUS_BELOW ? 2 : v->status == RT_STATUS_INTERMEDIATE ? 1 : 0;
@@ -566,7 +566,9 @@ static void write_index_table(html_ctx *c)
                  x->reason);
         cell(p, buf, false);
         snprintf(buf, sizeof buf, "%s%s", rules[i].source,
-                 rules[i].from_memory ? " (value from memory)" : "");
+                 rules[i].from_memory ? " (value from memory, not verified: context only, never a "
+                                        "reason for review)"
+                                      : "");
         cell(p, buf, false);
         rt_page_end_html(p);
     }
@@ -587,7 +589,8 @@ static void write_indices(html_ctx *c)
     rt_page_element(p, "p", "muted",
                     "Bars: percentages on a 0-100 % scale, the REM Atonia Index on 0-1 (lower "
                     "means less atonia). Red: a cutoff is reached; amber: near it; blue: below; "
-                    "grey: no published cutoff.");
+                    "grey: no published cutoff, or one not verified against the published text "
+                    "(context only).");
     write_index_chart(c);
     write_index_table(c);
     rt_page_end_html(p);
@@ -688,42 +691,6 @@ static void write_bouts(html_ctx *c)
 
 /* ---- evidence epochs: envelopes recomputed with the scorer's conditioning -- */
 
-/* The source of a role as the scorer read it, found again from the label it
- * recorded: a channel label, or "A-B" for a derivation of two channels. */
-static bool find_source(const rt_recording *rec, const rt_channel_result *cr, rt_role_source *src)
-{
-    memset(src, 0, sizeof *src);
-    src->channel = rt_recording_find_channel(rec, cr->label);
-    src->reference = -1;
-    if (src->channel < 0) {
-        char a[40];
-        for (const char *dash = strchr(cr->label, '-'); dash; dash = strchr(dash + 1, '-')) {
-            size_t len = (size_t)(dash - cr->label);
-            if (len == 0 || len >= sizeof a)
-                continue;
-            memcpy(a, cr->label, len);
-            a[len] = '\0';
-            int ca = rt_recording_find_channel(rec, a), cb = rt_recording_find_channel(rec, dash + 1);
-            if (ca >= 0 && cb >= 0) {
-                src->channel = ca;
-                src->reference = cb;
-                break;
-            }
-        }
-    }
-    if (src->channel < 0)
-        return false;
-    src->rate_hz = rt_recording_channel(rec, src->channel)->rate_hz;
-    rt_copy_string(src->label, sizeof src->label, cr->label);
-    return fabs(src->rate_hz - cr->rate_hz) < 1e-9;
-}
-
-static size_t window_samples(double seconds, double rate)
-{
-    size_t n = (size_t)llround(seconds * rate);
-    return n < 1 ? 1 : n;
-}
-
 typedef struct trace {
     double *env;        /* envelope of the shown epoch, samples */
     size_t n;
@@ -731,62 +698,15 @@ typedef struct trace {
     double background[30]; /* per second of the epoch */
 } trace;
 
-/* Recomputes the envelope and background of one role over the epoch at
- * epoch_t0 as the scorer did (night.c, score_role_bout): the stretch read
- * reaches 60 s past the epoch on both sides (clipped to the bout), which
- * covers the background window of every second of the epoch, so the values
- * equal the scorer's up to the band-pass's block independence (1e-9). */
-static rt_status recompute(html_ctx *c, const rt_role_source *src, double bout_t0,
-                           double bout_end, double epoch_t0, trace *tr)
+/* The envelope and background of one role over the epoch at epoch_t0, from
+ * the scorer's own conditioning path and background (rt_night_envelope,
+ * rt_night_background_uv): the trace is the one the labels came from. */
+static rt_status recompute(html_ctx *c, rt_role role, double epoch_t0, trace *tr)
 {
-    const rt_score_params *prm = &c->night->params;
-    double t0 = fmax(bout_t0, epoch_t0 - 60.0), t1 = fmin(bout_end, epoch_t0 + 90.0);
-    size_t seconds = (size_t)llround(t1 - t0), off = (size_t)llround(epoch_t0 - t0);
-    double rate = src->rate_hz;
-    long long first = llround(t0 * rate), last = llround(t1 * rate);
-    size_t n = (size_t)(last - first);
-    double *x = rt_calloc(n, sizeof *x), *scratch = rt_calloc(n + 1, sizeof *scratch);
-    double *levels = rt_calloc(seconds, sizeof *levels), *bg = rt_calloc(seconds, sizeof *bg);
-    size_t *starts = rt_calloc(seconds + 1, sizeof *starts);
-    rt_bandpass *bp = NULL;
-    rt_status st = RT_OK;
-    if (!x || !scratch || !levels || !bg || !starts || off + 30 > seconds)
-        st = rt_fail(c->err, RT_ERR_NOMEM, "out of memory for the evidence envelopes");
-    if (st == RT_OK)
-        st = rt_role_read_uv(c->rec, src, first, n, x, scratch, c->err);
-    if (st == RT_OK) {
-        rt_bandpass_spec spec = rt_bandpass_spec_defaults(rate);
-        spec.low_hz = prm->band_low_hz;
-        spec.high_hz = prm->band_high_hz;
-        spec.order = prm->band_order;
-        bp = rt_bandpass_new(&spec, c->err);
-        st = bp ? rt_bandpass_apply(bp, x, n, c->err) : (c->err ? c->err->status : RT_ERR_USAGE);
-    }
-    if (st == RT_OK) {
-        for (size_t j = 0; j <= seconds; j++)
-            starts[j] = (size_t)(llround((t0 + (double)j) * rate) - first);
-        rt_envelope(x, n, window_samples(prm->envelope_window_s, rate), x, scratch);
-        rt_block_quantiles(x, starts, seconds, prm->background_level_quantile,
-                           window_samples(prm->envelope_window_s / 4.0, rate), levels, scratch);
-        rt_background(levels, seconds, (size_t)llround(prm->background_window_s),
-                      prm->background_quantile, bg, scratch);
-        size_t a = starts[off], b = starts[off + 30];
-        tr->n = b - a;
-        tr->rate_hz = rate;
-        tr->env = rt_calloc(tr->n ? tr->n : 1, sizeof *tr->env);
-        if (!tr->env) {
-            st = rt_fail(c->err, RT_ERR_NOMEM, "out of memory for the evidence envelopes");
-        } else {
-            memcpy(tr->env, x + a, tr->n * sizeof *x);
-            memcpy(tr->background, bg + off, sizeof tr->background);
-        }
-    }
-    rt_bandpass_free(bp);
-    free(x);
-    free(scratch);
-    free(levels);
-    free(bg);
-    free(starts);
+    rt_status st = rt_night_envelope(c->rec, c->night, role, epoch_t0, 30, &tr->env, &tr->n,
+                                     &tr->rate_hz, c->err);
+    for (int j = 0; j < 30 && st == RT_OK; j++)
+        tr->background[j] = rt_night_background_uv(c->night, role, epoch_t0 + j + 0.5);
     return st;
 }
 
@@ -847,12 +767,14 @@ static void trace_row(html_ctx *c, const trace *tr, rt_role role, size_t k, doub
             double x = px + pw * s / 30.0, w = pw / 30.0;
             rt_svg_line(p, x, YV(tr->background[s]), x + w, YV(tr->background[s]), "#2f7350", 1.0,
                         NULL);
-            rt_svg_line(p, x, YV(2 * tr->background[s]), x + w, YV(2 * tr->background[s]),
+            double tk = n->params.tonic_k;
+            rt_svg_line(p, x, YV(tk * tr->background[s]), x + w, YV(tk * tr->background[s]),
                         "#2f7350", 0.8, "3,2");
         }
-        if (n->params.tonic_abs_uv < peak)
-            rt_svg_line(p, px, YV(n->params.tonic_abs_uv), px + pw, YV(n->params.tonic_abs_uv),
-                        "#6b3fa0", 0.8, "1,3");
+        /* the absolute tonic level as an envelope: peak-to-peak / pi (docs/scoring.md) */
+        double abs_env = n->params.tonic_abs_p2p_uv / 3.14159265358979323846;
+        if (abs_env < peak)
+            rt_svg_line(p, px, YV(abs_env), px + pw, YV(abs_env), "#6b3fa0", 0.8, "1,3");
     } else if (!(xs && ys)) {
         p->failed = true;
     }
@@ -878,13 +800,6 @@ static void evidence_plot(html_ctx *c, size_t rank, size_t k)
                      "mini-epochs active%s", rank + 1, clock, elapsed, er->epoch, er->bout + 1,
                   er->sinbar_any_minis, er->sinbar_tonic ? ", tonic chin" : "");
     rt_page_end_html(p);
-    /* bout limits from the epochs list: bouts are runs of consecutive REM epochs */
-    size_t a = k, b = k;
-    while (a > 0 && n->epochs[a - 1].bout == er->bout)
-        a--;
-    while (b + 1 < n->n_epochs && n->epochs[b + 1].bout == er->bout)
-        b++;
-    double bout_t0 = n->epochs[a].onset_s, bout_end = n->epochs[b].onset_s + 30.0;
     int rows = 0;
     for (int r = 0; r < RT_ROLE_COUNT; r++)
         rows += r != RT_ROLE_ECG && n->channel[r].present;
@@ -905,14 +820,8 @@ static void evidence_plot(html_ctx *c, size_t rank, size_t k)
             continue;
         double y0 = top + row * (row_h + gap);
         row++;
-        rt_role_source src;
         trace tr = {0};
-        if (!find_source(c->rec, &n->channel[r], &src)) {
-            rt_svg_text(p, px + 6, y0 + row_h / 2, "start", "small",
-                        "channel not found again in the recording");
-            continue;
-        }
-        rt_status st = recompute(c, &src, bout_t0, bout_end, er->onset_s, &tr);
+        rt_status st = recompute(c, (rt_role)r, er->onset_s, &tr);
         if (st != RT_OK) {
             if (c->status == RT_OK)
                 c->status = st;
@@ -1023,24 +932,6 @@ static void write_evidence(html_ctx *c)
 
 /* ---- quality, exclusions, warnings, cautions ------------------------------ */
 
-/* Median over the scored REM 3-s mini-epochs of their median envelope: the
- * channel's typical REM level, for judging the electrode (atonia is a low,
- * steady value). NaN when nothing was scored. */
-static double rem_level_uv(const rt_night *n, rt_role r)
-{
-    double *v = rt_calloc(n->n_minis3 ? n->n_minis3 : 1, sizeof *v);
-    size_t m = 0;
-    if (!v)
-        return NAN;
-    for (size_t i = 0; i < n->n_minis3; i++)
-        if (!(n->minis3[i].labels[r] & (RT_LABEL_EXCLUDED | RT_LABEL_ABSENT)) &&
-            isfinite(n->minis3[i].envelope_uv[r]))
-            v[m++] = n->minis3[i].envelope_uv[r];
-    double q = m ? rt_quantile(v, m, 0.5) : NAN;
-    free(v);
-    return q;
-}
-
 static void write_quality(html_ctx *c)
 {
     rt_page *p = &c->p;
@@ -1075,15 +966,17 @@ static void write_quality(html_ctx *c)
             cell(p, buf, true);
             snprintf(buf, sizeof buf, "%g-%g Hz", n->params.band_low_hz, cr->band_high_hz);
             cell(p, buf, false);
-            double level = isfinite(cr->rem_median_uv) && cr->rem_median_uv > 0
-                               ? cr->rem_median_uv
-                               : rem_level_uv(n, (rt_role)r);
+            double level = cr->rem_median_uv; /* NaN when nothing was scored */
             if (isfinite(level))
                 snprintf(buf, sizeof buf, "%.2f uV", level);
             else
                 snprintf(buf, sizeof buf, "-");
             cell(p, buf, true);
-            cell(p, cr->low_rate ? "sampled below the AASM minimum" : "", false);
+            const rt_channel_quality *q = &cr->quality;
+            snprintf(buf, sizeof buf, "%s%sECG artifact in this EMG: %s",
+                     cr->low_rate ? "sampled below the AASM minimum" : "", cr->low_rate ? "; " : "",
+                     q->ecg_removed ? "found and removed" : q->ecg_found ? "found" : "not found");
+            cell(p, buf, false);
         }
         rt_page_end_html(p);
     }
@@ -1160,12 +1053,12 @@ static void write_footer(html_ctx *c)
     strftime(when, sizeof when, "%Y-%m-%d %H:%M UTC", &tm);
     rt_page_start(p, "footer");
     rt_page_textf(p, "remtone %s, %s. Band %g-%g Hz (order %d), envelope %g s, background: "
-                     "%g quantile of 1-s levels over %g s; tonic absolute level %g uV. "
+                     "the atonic REM level fitted over the night (%g quantile of REM minute "
+                     "levels, drift followed); tonic absolute level %g uV peak-to-peak. "
                      "Cutoffs: %s. Definitions: docs/scoring.md; this page: "
                      "docs/review-report.md.", rt_version(), when, prm->band_low_hz,
                   prm->band_high_hz, prm->band_order, prm->envelope_window_s,
-                  prm->background_quantile, prm->background_window_s, prm->tonic_abs_uv,
-                  c->night->cutoffs.origin);
+                  prm->background_quantile, prm->tonic_abs_p2p_uv, c->night->cutoffs.origin);
     rt_page_end_html(p);
 }
 

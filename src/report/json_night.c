@@ -124,22 +124,23 @@ static json_t *evidence_json(const rt_night *night, size_t limit)
     return a;
 }
 
+/* Every parameter of the descriptor table, by name (remtone/score.h). */
 static json_t *params_json(const rt_score_params *p)
 {
-    return json_pack("{s:f,s:f,s:i,s:f,s:f,s:f,s:f,s:f,s:f,s:f,s:f,s:f,s:f,s:f,s:b,s:b,s:b,s:f,s:f}",
-                     "band_low_hz", p->band_low_hz, "band_high_hz", p->band_high_hz,
-                     "band_order", p->band_order, "envelope_window_s", p->envelope_window_s,
-                     "burst_merge_gap_s", p->burst_merge_gap_s,
-                     "background_level_quantile", p->background_level_quantile,
-                     "background_window_s", p->background_window_s,
-                     "background_quantile", p->background_quantile,
-                     "aasm_nrem_quantile", p->aasm_nrem_quantile, "tonic_abs_uv", p->tonic_abs_uv,
-                     "montreal_epoch_s", p->montreal_epoch_s, "min_rate_hz", p->min_rate_hz,
-                     "min_scorable_min", p->min_scorable_min, "near_fraction", p->near_fraction,
-                     "exclude_artifacts", p->exclude_artifacts, "exclude_snoring",
-                     p->exclude_snoring, "exclude_respiratory", p->exclude_respiratory,
-                     "event_margin_s", p->event_margin_s, "resp_arousal_gap_s",
-                     p->resp_arousal_gap_s);
+    size_t n = 0;
+    const rt_param_desc *t = rt_score_param_table(&n);
+    json_t *o = json_object();
+    for (size_t i = 0; o && i < n; i++) {
+        double v = rt_score_param_get(p, &t[i]);
+        json_t *x = t[i].kind == RT_PARAM_BOOL  ? json_boolean(v != 0.0)
+                    : t[i].kind == RT_PARAM_INT ? json_integer((json_int_t)v)
+                                                : json_real(v);
+        if (!x || json_object_set_new(o, t[i].name, x) != 0) {
+            json_decref(o);
+            return NULL;
+        }
+    }
+    return o;
 }
 
 static rt_status input_json(json_t *inputs, const char *role, const char *path, rt_error *err)

@@ -7,6 +7,7 @@
 #include "output.h"
 #include "report_internal.h"
 #include "remtone/report.h"
+#include "score/night_internal.h"
 
 static void value_text(const rt_index_rule *rule, double v, char *buf, size_t cap)
 {
@@ -25,7 +26,7 @@ static const char *level_words(rt_review_level level)
     switch (level) {
     case RT_REVIEW_FLAGGED: return "REVIEW: a published cutoff is reached; physician review advised";
     case RT_REVIEW_NEAR: return "NEAR CUTOFF: no cutoff reached, but one is close";
-    case RT_REVIEW_CLEAR: return "CLEAR: no index reaches or nears its cutoff";
+    case RT_REVIEW_CLEAR: return "CLEAR: no index reaches or nears a verified cutoff";
     case RT_REVIEW_NOT_ASSESSABLE: return "NOT ASSESSABLE: the night cannot be scored reliably";
     }
     return "";
@@ -37,7 +38,13 @@ static void quality_line(FILE *out, const char *name, const rt_channel_quality *
     fprintf(out, "  %-9s mains %s", name, q->line_hz > 0 ? "" : "none");
     if (q->line_hz > 0)
         fprintf(out, "%g Hz (%.1f dB, notched)", q->line_hz, q->line_db);
-    fprintf(out, "; ECG %s", q->ecg_removed ? "found and removed" : q->ecg_found ? "found" : "not found");
+    /* "found" needs evidence of a heart (docs/quality.md), so "not found" on a
+     * chin without cardiac signal; the beats' source says what the evidence rests on */
+    static const char *const FROM[] = {"", " (beats from the ECG channel)",
+                                       " (beats from the chin itself)"};
+    fprintf(out, "; ECG artifact in this EMG: %s%s",
+            q->ecg_removed ? "found and removed" : q->ecg_found ? "found" : "not found",
+            q->ecg_found && q->ecg_source >= 1 && q->ecg_source <= 2 ? FROM[q->ecg_source] : "");
     if (q->bursts_vetoed)
         fprintf(out, ", %zu bursts refused at QRS", q->bursts_vetoed);
     fprintf(out, "; not scorable %.1f min", q->unscorable_total_min);
@@ -75,6 +82,8 @@ rt_status rt_night_write_text(const rt_night *night, FILE *out, rt_error *err)
             snprintf(c, sizeof c, "none");
         fprintf(out, "%-34s %10s %10s  %s", rules[i].id, v, c,
                 rt_index_status_name(night->index[i].status));
+        if (night->cutoffs.has[i] && !rt_night_cutoff_verified(night, i))
+            fprintf(out, " [cutoff not verified: context only]");
         if (night->index[i].reason[0])
             fprintf(out, " (%s)", night->index[i].reason);
         fprintf(out, "\n");
@@ -209,7 +218,9 @@ rt_status rt_rules_write_text(const rt_cutoffs *cutoffs, FILE *out, rt_error *er
         else
             snprintf(c, sizeof c, "none");
         fprintf(out, "%-34s %-8s %-12s %s%s\n", rules[i].id, rules[i].unit, c, rules[i].source,
-                rules[i].from_memory ? " [value from memory]" : "");
+                rules[i].from_memory ? " [value from memory, not verified: context only, never a "
+                                       "reason for review]"
+                                     : "");
         fprintf(out, "%-34s %s\n", "", rules[i].title);
     }
     fprintf(out, "\nCutoffs in force: %s\n%s\n", cutoffs->origin, rt_visual_scoring_note());

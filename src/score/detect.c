@@ -125,23 +125,6 @@ void rt_block_quantiles(const double *env, const size_t *starts, size_t n_blocks
     }
 }
 
-void rt_background(const double *medians, size_t n_blocks, size_t window, double q,
-                   double *background, double *scratch)
-{
-    if (window < 1)
-        window = 1;
-    size_t half = window / 2;
-    for (size_t b = 0; b < n_blocks; b++) {
-        size_t lo = b >= half ? b - half : 0;
-        size_t hi = b + (window - half); /* exclusive */
-        if (hi > n_blocks)
-            hi = n_blocks;
-        size_t len = hi - lo;
-        memcpy(scratch, medians + lo, len * sizeof *scratch);
-        background[b] = rt_quantile(scratch, len, q);
-    }
-}
-
 /* Block index of sample i, advancing a cursor over a sequential scan. */
 static size_t block_of(size_t i, const size_t *starts, size_t n_blocks, size_t *cursor)
 {
@@ -159,14 +142,21 @@ static int at_threshold(double env, double bg, double k)
     return env >= k * bg * (1.0 - RT_RATIO_SLACK);
 }
 
-/* Where the envelope falls below `level`, searching outward from a run;
- * returns a fractional sample position on the half-sample grid, so that a
+/* Where the envelope falls below `level` for good, searching outward from a
+ * run: dips shorter than `gap` samples do not end it (as a run is grown).
+ * Returns a fractional sample position on the half-sample grid, so that a
  * rectangular burst of N samples measures exactly N samples. */
-static double edge_before(const double *env, size_t from, double level)
+static double edge_before(const double *env, size_t from, double level, size_t gap)
 {
-    size_t i = from;
-    while (i > 0 && env[i - 1] >= level)
-        i--;
+    size_t i = from, below = 0;
+    for (size_t j = from; j > 0 && below < gap; j--) {
+        if (env[j - 1] >= level) {
+            i = j - 1;
+            below = 0;
+        } else {
+            below++;
+        }
+    }
     if (i == 0)
         return 0.0;
     /* env[i-1] < level <= env[i]: interpolate, then shift by half a sample
@@ -176,16 +166,62 @@ static double edge_before(const double *env, size_t from, double level)
     return (double)(i - 1) + frac + 0.5;
 }
 
-static double edge_after(const double *env, size_t n, size_t last, double level)
+static double edge_after(const double *env, size_t n, size_t last, double level, size_t gap)
 {
-    size_t i = last;
-    while (i + 1 < n && env[i + 1] >= level)
-        i++;
+    size_t i = last, below = 0;
+    for (size_t j = last + 1; j < n && below < gap; j++) {
+        if (env[j] >= level) {
+            i = j;
+            below = 0;
+        } else {
+            below++;
+        }
+    }
     if (i + 1 >= n)
         return (double)n;
     double a = env[i], b = env[i + 1];
     double frac = (a > b) ? (a - level) / (a - b) : 0.0;
     return (double)i + frac + 0.5;
+}
+
+/* q-quantile of the envelope over [a, b) samples (at least one sample). */
+static double span_quantile(const double *env, size_t n, double a, double b, double q,
+                            double *scratch)
+{
+    size_t i0 = a <= 0 ? 0 : (size_t)floor(a), i1 = (size_t)ceil(b);
+    if (i1 > n)
+        i1 = n;
+    if (i1 <= i0)
+        i1 = i0 + 1 <= n ? i0 + 1 : n;
+    size_t len = 0;
+    for (size_t i = i0; i < i1; i++)
+        scratch[len++] = env[i];
+    return len ? rt_quantile(scratch, len, q) : 0.0;
+}
+
+/* Rectified amplitude of a burst measured from start to end (samples) on an
+ * envelope of `window` samples: the mean envelope over the extent, corrected
+ * for its ramps. A rectangle of amplitude A on background B, D samples long
+ * (D >= window), has half-height edges at its true edges, and its envelope
+ * averages A - (A - B) window / (4 D) between them (two linear ramps of half a
+ * window each, from (A + B) / 2 to A); solving for A removes the bias that
+ * would otherwise make short bursts look weaker than long ones. */
+static double burst_amplitude(const double *env, size_t n, double start, double end, double bg,
+                              size_t window)
+{
+    size_t i0 = start <= 0 ? 0 : (size_t)floor(start + 0.5), i1 = (size_t)floor(end + 0.5);
+    if (i1 > n)
+        i1 = n;
+    if (i1 <= i0)
+        return i0 < n ? env[i0] : 0.0;
+    double sum = 0.0;
+    for (size_t i = i0; i < i1; i++)
+        sum += env[i];
+    double mean = sum / (double)(i1 - i0);
+    double c = (double)window / (4.0 * (end - start));
+    if (c > 0.25)
+        c = 0.25; /* shorter than the window: the ramps meet; keep the bound of D = window */
+    return (mean - bg * c) / (1.0 - c);
 }
 
 size_t rt_find_bursts(const double *env, size_t n, const double *background,
@@ -196,7 +232,8 @@ size_t rt_find_bursts(const double *env, size_t n, const double *background,
     size_t found = 0;
     size_t cursor = 0;
     size_t i = 0;
-    double tolerance = 0.5; /* samples: measured durations are exact to half a sample */
+    double tolerance = rule->tolerance_s * rate_hz + 0.5; /* samples */
+    size_t window = rule->window;
     while (i < n) {
         size_t b = block_of(i, starts, n_blocks, &cursor);
         if (!at_threshold(env[i], background[b], rule->k)) {
@@ -215,21 +252,25 @@ size_t rt_find_bursts(const double *env, size_t n, const double *background,
             }
             j++;
         }
-        /* the run's level: median envelope, every 4th sample (smooth over a window) */
-        size_t len = 0;
-        for (size_t k = first; k <= last; k += 4)
-            scratch[len++] = env[k];
-        double level = rt_quantile(scratch, len, 0.5);
-        double bg = background[block_of(first + len / 2, starts, n_blocks, &cursor)];
+        /* edges at half the height of the run above the background: for a
+         * rectangular burst the moving average crosses it at the true edge;
+         * dips shorter than merge_gap do not end the search, as they do not
+         * end a run */
+        double bg = background[block_of((first + last) / 2, starts, n_blocks, &cursor)];
+        double level = span_quantile(env, n, (double)first, (double)last + 1.0, 0.5, scratch);
         double half = bg + 0.5 * (level - bg);
-        double start = edge_before(env, first, half);
-        double end = edge_after(env, n, last, half);
+        double start = edge_before(env, first, half, merge_gap);
+        double end = edge_after(env, n, last, half, merge_gap);
         double dur = end - start;
-        if (dur >= rule->min_s * rate_hz - tolerance && dur <= rule->max_s * rate_hz + tolerance) {
+        /* the burst's own amplitude must reach k: noise peaks on a stretch
+         * below k cross the threshold only briefly (docs/scoring.md, "Bursts") */
+        double amplitude = burst_amplitude(env, n, start, end, bg, window);
+        if (at_threshold(amplitude, bg, rule->k) && dur >= rule->min_s * rate_hz - tolerance &&
+            dur <= rule->max_s * rate_hz + tolerance) {
             if (found < cap) {
                 spans[found].start = start;
                 spans[found].end = end;
-                spans[found].ratio = bg > 0 ? level / bg : INFINITY;
+                spans[found].ratio = bg > 0 ? amplitude / bg : INFINITY;
             }
             found++;
         }

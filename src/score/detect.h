@@ -20,12 +20,6 @@ void rt_envelope(double *x, size_t n, size_t window, double *env, double *scratc
 void rt_block_quantiles(const double *env, const size_t *starts, size_t n_blocks, double q,
                         size_t stride, double *out, double *scratch);
 
-/* Background per block: the q-quantile (0..1, linear interpolation) of the
- * block medians inside the centred window [b - half, b + window - half - 1],
- * clipped to the array. scratch holds `window` doubles. */
-void rt_background(const double *medians, size_t n_blocks, size_t window, double q,
-                   double *background, double *scratch);
-
 /* q-quantile of v[0..n) with linear interpolation (the "type 7" definition of
  * Hyndman & Fan 1996, as numpy's default); v is reordered. n >= 1. */
 double rt_quantile(double *v, size_t n, double q);
@@ -34,18 +28,21 @@ typedef struct rt_burst_rule {
     double k;        /* amplitude: envelope >= k x background */
     double min_s;    /* shortest burst, inclusive */
     double max_s;    /* longest burst, inclusive */
+    double tolerance_s; /* min_s and max_s are applied with this slack (edge noise) */
+    size_t window;   /* samples of the envelope's moving average (its ramps) */
 } rt_burst_rule;
 
 typedef struct rt_span {
     double start;    /* half-height onset, in samples (fractional) */
     double end;      /* half-height end, in samples (fractional, exclusive) */
-    double ratio;    /* median envelope inside the burst / background */
+    double ratio;    /* median envelope over the measured extent / background */
 } rt_span;
 
 /* Finds bursts: runs where env >= k x background (gaps shorter than
  * merge_gap samples joined), each measured at half its height above the
- * background, kept when the measured duration lies in [min_s, max_s] within
- * half a sample. background is per block (block b covers starts[b] ..
+ * background, kept when the median envelope over that extent reaches k x
+ * background and the measured duration lies in [min_s, max_s] within
+ * tolerance_s plus half a sample. background is per block (block b covers starts[b] ..
  * starts[b+1]). Writes at most cap spans; returns how many were found (may
  * exceed cap: then only cap were written). scratch holds n doubles. */
 size_t rt_find_bursts(const double *env, size_t n, const double *background,

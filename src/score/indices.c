@@ -155,7 +155,15 @@ static void compute_epoch_indices(rt_night *night, bool arms)
         phasic_any += pa;
         rswa += er->aasm_tonic || pa;
         sinbar_tonic += er->sinbar_tonic;
-        combined += arms && er->sinbar_any_minis > 0;
+        /* SINBAR 30-s epochs follow the AASM convention: an epoch counts when
+         * at least 5 of its 10 3-s mini-epochs hold the activity (chin "any" or
+         * phasic arm). Frauscher et al. 2014 (Sleep 37:763-773, abstract) score
+         * "phasic mentalis EMG activity for 30-sec epochs according to AASM
+         * recommendation" against the SINBAR cutoff; counting an epoch for a
+         * single active mini would make the 30-s index at least the 3-s index,
+         * impossible with a 30-s cutoff (27 %) below the 3-s one (32 %, Frauscher
+         * et al. 2012, abstract) on the same nights. docs/scoring.md. */
+        combined += arms && er->sinbar_any_minis >= 5;
     }
     set_value(&night->index[RT_IX_AASM_TONIC_CHIN], tonic, scorable, 100.0);
     set_value(&night->index[RT_IX_AASM_PHASIC_CHIN], phasic_chin, scorable, 100.0);
@@ -165,55 +173,128 @@ static void compute_epoch_indices(rt_night *night, bool arms)
     set_value(&night->index[RT_IX_SINBAR_COMBINED_30S], combined, scorable, 100.0);
 }
 
-/* REM minutes left out, each mini-epoch counted once for its first cause. */
-static int compare_onset(const void *a, const void *b)
+/* Leg movements from the leg EMG when no limb-movement events were given,
+ * by the AASM limb-movement rules (AASM Manual for the Scoring of Sleep and
+ * Associated Events v2.x, movement rules, periodic limb movements in sleep;
+ * as tabulated for v2.5 by PMC9619152, Table 3):
+ *  - onset at an 8-uV increase in EMG voltage above resting EMG: a leg burst
+ *    (Montreal rule, 4x background, 0.1-10 s: the longest the scorer keeps)
+ *    counts when its level rises at least 8 uV above the background of its
+ *    3-s mini-epoch, (peak_ratio - 1) x background_uv, in rectified-envelope
+ *    microvolts (stricter than the manual's voltage; docs/scoring.md);
+ *  - offset at the start of at least 0.5 s in which the EMG stays within
+ *    2 uV of rest: bursts of one leg less than 0.5 s apart are one movement
+ *    (the scorer's bursts end where the envelope falls to half height);
+ *  - duration 0.5-10 s, of the joined movement;
+ *  - movements on the two legs whose onsets are less than 5 s apart count as
+ *    one movement (each movement takes in at most one of the other leg).
+ * Bursts whose 2-s mini-epoch is left out for that leg do not count. NaN
+ * without leg channels. */
+#define LM_MIN_S 0.5
+#define LM_MAX_S 10.0
+#define LM_RISE_UV 8.0
+#define LM_OFFSET_QUIET_S 0.5
+#define LM_BILATERAL_S 5.0
+/* durations are compared within a microsecond, amplitudes within rounding */
+#define LM_TIME_SLACK 1e-6
+
+typedef struct leg_move {
+    double onset_s, end_s, rise_uv;
+    rt_role leg;
+    bool absorbed;
+} leg_move;
+
+static int compare_move(const void *a, const void *b)
 {
-    double x = (*(const rt_burst *const *)a)->onset_s, y = (*(const rt_burst *const *)b)->onset_s;
-    return (x > y) - (x < y);
+    const leg_move *x = a, *y = b;
+    if (x->leg != y->leg)
+        return (x->leg > y->leg) - (x->leg < y->leg);
+    return (x->onset_s > y->onset_s) - (x->onset_s < y->onset_s);
 }
 
-/* Leg movements from the leg EMG when no limb-movement events were given:
- * Montreal-rule leg bursts (4x background) lasting 0.5-10 s, the AASM limb
- * movement duration [from memory]; movements of the two legs that overlap
- * or lie within 0.5 s of each other count once (AASM, from memory); bursts in
- * mini-epochs left out do not count. NaN without leg channels. */
+static int compare_move_onset(const void *a, const void *b)
+{
+    const leg_move *x = a, *y = b;
+    return (x->onset_s > y->onset_s) - (x->onset_s < y->onset_s);
+}
+
+/* Index of the mini-epoch (of len_s seconds, sorted by onset) holding t_s, or
+ * count when none does. */
+static size_t mini_holding(const rt_mini *m, size_t count, double len_s, double t_s)
+{
+    size_t lo = 0, hi = count;
+    while (lo < hi) {
+        size_t mid = lo + (hi - lo) / 2;
+        if (m[mid].onset_s + len_s <= t_s)
+            lo = mid + 1;
+        else
+            hi = mid;
+    }
+    return lo < count && m[lo].onset_s <= t_s ? lo : count;
+}
+
 static double leg_movements_per_h(const rt_night *night, size_t *count)
 {
     *count = 0;
     if ((!night->channel[RT_ROLE_LEG_LEFT].present && !night->channel[RT_ROLE_LEG_RIGHT].present) ||
         night->rem_minutes <= 0)
         return NAN;
-    const rt_burst **legs = rt_calloc(night->n_bursts + 1, sizeof *legs);
-    if (!legs)
+    leg_move *mv = rt_calloc(night->n_bursts + 1, sizeof *mv);
+    if (!mv)
         return NAN;
-    size_t n = 0, k = 0;
+    size_t n = 0;
     for (size_t i = 0; i < night->n_bursts; i++) {
         const rt_burst *b = &night->bursts[i];
         if ((b->role != RT_ROLE_LEG_LEFT && b->role != RT_ROLE_LEG_RIGHT) ||
-            b->rules != RT_LABEL_MONTREAL_PHASIC || b->duration_s < 0.5 - 1e-9 ||
-            b->duration_s > 10.0 + 1e-9)
+            !(b->rules & RT_LABEL_MONTREAL_PHASIC))
             continue;
-        /* left out when its 2-s mini-epoch is excluded for that leg */
-        k = 0;
-        while (k < night->n_minis2 && night->minis2[k].onset_s + 2.0 <= b->onset_s)
-            k++;
-        if (k < night->n_minis2 && (night->minis2[k].labels[b->role] & RT_LABEL_EXCLUDED))
+        size_t k2 = mini_holding(night->minis2, night->n_minis2, 2.0, b->onset_s);
+        if (k2 < night->n_minis2 && (night->minis2[k2].labels[b->role] & RT_LABEL_EXCLUDED))
             continue;
-        legs[n++] = b;
+        size_t k3 = mini_holding(night->minis3, night->n_minis3, 3.0, b->onset_s);
+        double bg = k3 < night->n_minis3 ? night->minis3[k3].background_uv[b->role] : NAN;
+        mv[n++] = (leg_move){b->onset_s, b->onset_s + b->duration_s,
+                             isfinite(bg) ? (b->peak_ratio - 1.0) * bg : NAN, b->role, false};
     }
-    qsort(legs, n, sizeof *legs, compare_onset);
-    double end = -INFINITY;
+    /* one leg: bursts with less than 0.5 s between them are one movement */
+    qsort(mv, n, sizeof *mv, compare_move);
+    size_t m = 0;
     for (size_t i = 0; i < n; i++) {
-        if (legs[i]->onset_s > end + 0.5)
-            (*count)++;
-        double e = legs[i]->onset_s + legs[i]->duration_s;
-        if (e > end)
-            end = e;
+        if (m > 0 && mv[m - 1].leg == mv[i].leg &&
+            mv[i].onset_s - mv[m - 1].end_s < LM_OFFSET_QUIET_S - LM_TIME_SLACK) {
+            mv[m - 1].end_s = fmax(mv[m - 1].end_s, mv[i].end_s);
+            mv[m - 1].rise_uv = fmax(mv[m - 1].rise_uv, mv[i].rise_uv);
+            continue;
+        }
+        mv[m++] = mv[i];
     }
-    free(legs);
+    /* the AASM duration and amplitude of each leg's movements */
+    size_t kept = 0;
+    for (size_t i = 0; i < m; i++) {
+        double d = mv[i].end_s - mv[i].onset_s;
+        if (d >= LM_MIN_S - LM_TIME_SLACK && d <= LM_MAX_S + LM_TIME_SLACK &&
+            mv[i].rise_uv >= LM_RISE_UV - 1e-9)
+            mv[kept++] = mv[i];
+    }
+    /* both legs: onsets less than 5 s apart are one movement */
+    qsort(mv, kept, sizeof *mv, compare_move_onset);
+    for (size_t i = 0; i < kept; i++) {
+        if (mv[i].absorbed)
+            continue;
+        (*count)++;
+        for (size_t j = i + 1; j < kept && mv[j].onset_s - mv[i].onset_s < LM_BILATERAL_S - LM_TIME_SLACK;
+             j++)
+            if (!mv[j].absorbed && mv[j].leg != mv[i].leg) {
+                mv[j].absorbed = true;
+                break;
+            }
+    }
+    free(mv);
     return (double)*count / (night->rem_minutes / 60.0);
 }
 
+/* REM minutes left out, each mini-epoch counted once for its first cause;
+ * the leg-movement rate. */
 static void summarise_exclusions(rt_night *night)
 {
     rt_exclusion_summary *x = &night->exclusions;
@@ -240,7 +321,8 @@ static void summarise_exclusions(rt_night *night)
         lm->numerator = count;
         if (!isnan(lm->value))
             rt_copy_string(lm->reason, sizeof lm->reason,
-                           "counted from the leg EMG: bursts of 0.5-10 s, legs merged within 0.5 s");
+                           "counted from the leg EMG by the AASM limb-movement rules: 0.5-10 s, "
+                           "8 uV above the background, legs with onsets under 5 s apart once");
     }
     lm->status = isnan(lm->value) ? RT_STATUS_NOT_COMPUTED : RT_STATUS_NO_CUTOFF;
     if (isnan(lm->value))
@@ -320,6 +402,16 @@ static bool abnormal(const rt_night *night, int i)
                                               : v->status == RT_STATUS_ABOVE;
 }
 
+bool rt_night_cutoff_verified(const rt_night *night, int i)
+{
+    const rt_index_rule *r = &rt_index_rules()[i];
+    if (!r->has_cutoff || !r->from_memory)
+        return true;
+    /* a lab's own value (cutoff file) is the lab's responsibility */
+    return night->cutoffs.value[i] != r->cutoff ||
+           (r->lower_is_worse && night->cutoffs.normal_from[i] != r->normal_from);
+}
+
 static bool near(const rt_night *night, int i)
 {
     const rt_index_value *v = &night->index[i];
@@ -371,10 +463,13 @@ static void review(rt_night *night)
                    night->scorable_minutes, night->params.min_scorable_min);
         return;
     }
+    /* Only cutoffs checked against the published text (or a lab's own) decide
+     * the level; one recalled but not verified is context and never raises
+     * the review flag on its own (docs/scoring.md, "Review level"). */
     bool flagged = false, nearing = false;
     for (int i = 0; i < RT_IX_COUNT; i++) {
         char val[32], cut[32];
-        if (abnormal(night, i)) {
+        if (abnormal(night, i) && rt_night_cutoff_verified(night, i)) {
             flagged = true;
             value_text(night, i, night->index[i].value, val, sizeof val);
             value_text(night, i, night->cutoffs.value[i], cut, sizeof cut);
@@ -386,7 +481,7 @@ static void review(rt_night *night)
     }
     if (!flagged) {
         for (int i = 0; i < RT_IX_COUNT; i++) {
-            if (!near(night, i))
+            if (!near(night, i) || !rt_night_cutoff_verified(night, i))
                 continue;
             char val[32], cut[32];
             nearing = true;
@@ -397,7 +492,17 @@ static void review(rt_night *night)
     }
     night->level = flagged ? RT_REVIEW_FLAGGED : nearing ? RT_REVIEW_NEAR : RT_REVIEW_CLEAR;
     if (night->level == RT_REVIEW_CLEAR)
-        add_reason(night, "no index reaches or nears its cutoff");
+        add_reason(night, "no index reaches or nears a verified cutoff");
+    for (int i = 0; i < RT_IX_COUNT; i++) {
+        if (!abnormal(night, i) || rt_night_cutoff_verified(night, i))
+            continue;
+        char val[32], cut[32];
+        value_text(night, i, night->index[i].value, val, sizeof val);
+        value_text(night, i, night->cutoffs.value[i], cut, sizeof cut);
+        add_reason(night, "context only: %s is %s, %s %s, a cutoff recalled but not verified "
+                          "against the published text: not a reason for review",
+                   rules[i].id, val, rules[i].lower_is_worse ? "below" : "at or above", cut);
+    }
 }
 
 /* Each channel's typical REM level: the median of its mini-epoch envelopes. */

@@ -1,6 +1,9 @@
 /* The one table of indices, cutoffs and sources, printed by `remtone rules`
  * and used by every report. A value marked from_memory was recalled, not
- * checked against the paper (BRIEF section 3 marks them [M]). */
+ * checked against the published text (BRIEF section 3 marks them [M]); such a
+ * cutoff is shown as context and never raises the review level on its own
+ * (indices.c, review). Every other cutoff was checked against the text named
+ * beside it; tests/unit/test_rules_sources.c quotes the passages. */
 #include <math.h>
 #include <string.h>
 
@@ -8,11 +11,38 @@
 #include "remtone/score.h"
 
 static const char SRC_AASM[] = "AASM Manual for the Scoring of Sleep v2.x (definition; no cutoff)";
-static const char SRC_SINBAR[] = "Frauscher et al. 2012, Sleep 35:835-847 (100 % specificity)";
+/* Verified: the abstract gives "18%" ("any" mentalis, 3-s) and "32%" (with both
+ * phasic FDS, 3-s) at 100 % specificity; the decimals 18.2 and 31.9 are the
+ * results table's, recalled. */
+static const char SRC_SINBAR[] = "Frauscher et al. 2012, Sleep 35:835-847 (100 % specificity; "
+                                 "abstract: 18 %, 32 %)";
+/* Verified: "None of the subjects exceeded the tonic mentalis cutoff of 9.6%"
+ * (Frauscher et al. 2014, abstract, quoting the 2012 cutoff). */
+static const char SRC_SINBAR_TONIC[] = "Frauscher et al. 2012, Sleep 35:835-847 (9.6 % as quoted by "
+                                       "Frauscher et al. 2014, Sleep 37:763-773, abstract)";
+/* Not verified: in the tables of the 2012 paper, which could not be read. */
+static const char SRC_SINBAR_TABLE[] = "Frauscher et al. 2012, Sleep 35:835-847 (results table, "
+                                       "not verified)";
+/* Not verified as a cutoff of this index: "The cutoff of 27 % ... suggested by
+ * the SINBAR group was also included in the ... ICSD" (Hoegl & Stefani 2017,
+ * Somnologie, doi 10.1007/s11818-016-0048-6, abstract) confirms the number, not the index it
+ * belongs to nor how its epochs were scored. */
+static const char SRC_SINBAR_30S[] = "Frauscher et al. 2012, Sleep 35:835-847 (27 % per Hoegl & "
+                                     "Stefani 2017, Somnologie; definition not verified)";
+/* Verified: "tonic chin EMG density >=30%; ... phasic chin EMG density >=15%
+ * and ... >=24 leg movements per hour of REM sleep" (abstract). */
 static const char SRC_MONTREAL[] = "Montplaisir et al. 2010, Mov Disord 25:2044-2051";
+/* Verified: "Two arbitrary thresholds were established at AI<0.8 and
+ * 0.8<AI<0.9" (abstract). */
 static const char SRC_RAI[] = "Ferri et al. 2010, Sleep Med 11:947-949";
-static const char SRC_HEALTHY[] = "Frauscher et al. 2014, Sleep (90th percentile, healthy sleepers)";
-static const char SRC_NORMS[] = "Feemster et al. 2019, Sleep (95th percentile, adults without RBD)";
+/* Context values. Verified: "the 90th percentile for phasic mentalis EMG
+ * activity for 30-sec epochs according to AASM recommendation was 15.6%, and
+ * for tonic mentalis EMG activity 2.6%" (abstract). */
+static const char SRC_HEALTHY[] = "Frauscher et al. 2014, Sleep 37:763-773 (90th percentile, "
+                                  "healthy sleepers)";
+/* Context values, from memory (not checked). */
+static const char SRC_NORMS[] = "Feemster et al. 2019, Sleep (95th percentile, adults without RBD; "
+                                "from memory)";
 
 #define NONE NAN
 
@@ -33,20 +63,20 @@ static const rt_index_rule RULES[RT_IX_COUNT] = {
         "3-s REM mini-epochs with any chin activity", "%", false, true, 18.2, NONE, SRC_SINBAR,
         false, 9.1, SRC_NORMS},
     [RT_IX_SINBAR_CHIN_PHASIC_3S] = {"sinbar.chin_phasic_3s",
-        "3-s REM mini-epochs with phasic chin activity", "%", false, true, 16.3, NONE, SRC_SINBAR,
-        false, 8.6, SRC_NORMS},
+        "3-s REM mini-epochs with phasic chin activity", "%", false, true, 16.3, NONE,
+        SRC_SINBAR_TABLE, true, 8.6, SRC_NORMS},
     [RT_IX_SINBAR_CHIN_TONIC_30S] = {"sinbar.chin_tonic_30s",
-        "30-s REM epochs with tonic chin activity", "%", false, true, 9.6, NONE, SRC_SINBAR,
+        "30-s REM epochs with tonic chin activity", "%", false, true, 9.6, NONE, SRC_SINBAR_TONIC,
         false, 0.99, SRC_NORMS},
     [RT_IX_SINBAR_FDS_PHASIC_3S] = {"sinbar.fds_phasic_3s",
         "3-s REM mini-epochs with phasic activity in either arm (FDS)", "%", false, true, 16.8,
-        NONE, SRC_SINBAR, false, NONE, NULL},
+        NONE, SRC_SINBAR_TABLE, true, NONE, NULL},
     [RT_IX_SINBAR_COMBINED_3S] = {"sinbar.chin_any_fds_phasic_3s",
         "3-s REM mini-epochs with any chin or phasic arm activity", "%", false, true, 31.9, NONE,
         SRC_SINBAR, false, NONE, NULL},
     [RT_IX_SINBAR_COMBINED_30S] = {"sinbar.chin_any_fds_phasic_30s",
-        "30-s REM epochs with any chin or phasic arm activity", "%", false, true, 27.0, NONE,
-        SRC_SINBAR, true, NONE, NULL},
+        "30-s REM epochs with >= 5 of 10 3-s minis holding any chin or phasic arm activity", "%",
+        false, true, 27.0, NONE, SRC_SINBAR_30S, true, NONE, NULL},
     [RT_IX_MONTREAL_TONIC_CHIN] = {"montreal.tonic_chin",
         "20-s REM epochs with tonic chin activity", "%", false, true, 30.0, NONE, SRC_MONTREAL,
         false, NONE, NULL},
@@ -56,7 +86,8 @@ static const rt_index_rule RULES[RT_IX_COUNT] = {
     [RT_IX_RAI] = {"rai", "REM Atonia Index (1 = full atonia)", "ratio", true, true, 0.8, 0.9,
         SRC_RAI, false, 0.85, SRC_NORMS},
     [RT_IX_MONTREAL_LM_PER_H] = {"montreal.rem_leg_movements_per_h",
-        "leg movements in REM per hour (from limb-movement events)", "/h", false, true, 24.0,
+        "leg movements in REM per hour (limb-movement events, else the leg EMG by the AASM rules)",
+        "/h", false, true, 24.0,
         NONE, SRC_MONTREAL, false, NONE, NULL},
 };
 

@@ -98,8 +98,8 @@ static rt_status place_pops(synth_plan *plan, rt_error *err)
             e = rt_synth_rng_int(&rng, 0, plan->n_epochs - 1);
         }
         double t = (double)e * SYNTH_EPOCH_S + rt_synth_rng_range(&rng, 2.0, SYNTH_EPOCH_S - 2.0);
-        /* on the EMG sample grid, so the step is one sample wide */
-        t = floor(t * SYNTH_EMG_RATE_HZ) / SYNTH_EMG_RATE_HZ;
+        /* on the chin's sample grid, so the step is one sample wide */
+        t = floor(t * plan->emg_rate_hz[SYNTH_CHIN]) / plan->emg_rate_hz[SYNTH_CHIN];
         double amp = rt_synth_rng_range(&rng, 100.0, 250.0) * (rt_synth_rng_uniform(&rng) < 0.5 ? -1 : 1);
         int clash = 0;
         for (size_t i = 0; i < plan->n_pops; i++)
@@ -132,6 +132,14 @@ void rt_synth_artifacts_free(synth_plan *plan)
     plan->n_beats = plan->n_pops = 0;
 }
 
+/* A recorder's anti-aliasing filter removes what lies at or above half its
+ * rate, so a mains component there is not added (truth.json lists it under
+ * "dropped"). */
+int rt_synth_mains_reaches(const synth_plan *plan, int role, int harmonic)
+{
+    return plan->opt.mains_hz * harmonic < 0.5 * plan->emg_rate_hz[role];
+}
+
 double rt_synth_artifact_uv(const synth_plan *plan, int role, double t_s, size_t *beat_cursor,
                             size_t *pop_cursor)
 {
@@ -140,7 +148,8 @@ double rt_synth_artifact_uv(const synth_plan *plan, int role, double t_s, size_t
     if (o->mains_hz > 0.0 && o->mains_uv > 0.0) {
         double a = o->mains_uv;
         for (int h = 1; h <= 1 + o->mains_harmonics; h++, a *= 0.5)
-            v += a * sin(2.0 * SYNTH_PI * o->mains_hz * h * t_s);
+            if (rt_synth_mains_reaches(plan, role, h))
+                v += a * sin(2.0 * SYNTH_PI * o->mains_hz * h * t_s);
     }
     double bleed = role == SYNTH_CHIN ? o->ecg_bleed_uv : o->ecg_bleed_limb_uv;
     if (bleed > 0.0 && plan->n_beats > 0) {

@@ -12,9 +12,6 @@
 
 #include "internal.h"
 
-/* Stream ids for rt_synth_rng_seed; signals use 100 + channel index. */
-enum { STREAM_PLAN = 1 };
-
 typedef struct profile_rates {
     double tonic_epochs;             /* target fraction of REM epochs chin-tonic */
     double burst_minis[SYNTH_ROLES]; /* target fraction of 3-s minis holding a burst
@@ -69,7 +66,7 @@ static profile_rates rates_of(rt_synth_profile profile)
 
 /* Values in truth.json are kept on a 1-ms / 0.001-uV grid so they read
  * cleanly and round-trip exactly through 12 significant digits. */
-static double round3(double x)
+double rt_synth_round3(double x)
 {
     return floor(x * 1000.0 + 0.5) / 1000.0;
 }
@@ -164,13 +161,17 @@ static rt_status find_bouts(synth_plan *plan, rt_error *err)
 }
 
 /* Per-epoch background: stage level times a slow random walk within +-15 %
- * (NREM and W); REM is constant per bout, chin drawn in 1.0-1.4 uV. */
+ * (NREM and W); REM is constant per bout, chin drawn in 1.0-1.4 uV (times
+ * chin_rem_scale, below 1 only when a rising drift must keep atonia under
+ * 2.5 uV). */
 static void build_backgrounds(synth_plan *plan, synth_rng *rng)
 {
     static const double chin_uv[] = {10.0, 6.0, 4.5, 4.0};
     static const double limb_uv[] = {5.0, 2.5, 2.5, 2.5};
-    for (int b = 0; b < plan->n_bouts; b++)
-        plan->bouts[b].chin_bg_uv = round3(rt_synth_rng_range(rng, 1.0, 1.4));
+    for (int b = 0; b < plan->n_bouts; b++) {
+        double drawn = rt_synth_rng_range(rng, 1.0, 1.4);
+        plan->bouts[b].chin_bg_uv = rt_synth_round3(plan->chin_rem_scale < 1.0 ? drawn * plan->chin_rem_scale : drawn);
+    }
     for (int role = 0; role < SYNTH_ROLES; role++) {
         double m = 1.0;
         int bout = -1;
@@ -184,13 +185,13 @@ static void build_backgrounds(synth_plan *plan, synth_rng *rng)
                 plan->bg_uv[role][e] = role == SYNTH_CHIN ? plan->bouts[bout].chin_bg_uv : 1.0;
             } else {
                 double base = role == SYNTH_CHIN ? chin_uv[st] : limb_uv[st];
-                plan->bg_uv[role][e] = round3(base * m);
+                plan->bg_uv[role][e] = rt_synth_round3(base * m);
             }
         }
     }
 }
 
-static void shuffle_ints(int *v, int n, synth_rng *rng)
+void rt_synth_shuffle(int *v, int n, synth_rng *rng)
 {
     for (int i = n - 1; i > 0; i--) {
         int j = rt_synth_rng_int(rng, 0, i);
@@ -237,7 +238,7 @@ static rt_status place_tonic(synth_plan *plan, const profile_rates *rates, synth
             u++;
         }
     n_units = u;
-    shuffle_ints(order, n_units, rng);
+    rt_synth_shuffle(order, n_units, rng);
     int target = (int)lround(rates->tonic_epochs * rem_epochs);
     int total = 0;
     for (int i = 0; i < n_units && total < target; i++) {
@@ -250,7 +251,9 @@ static rt_status place_tonic(synth_plan *plan, const profile_rates *rates, synth
             continue;
         if (total + size > target && total + size - target >= target - total)
             continue;
-        double level = round3(rt_synth_rng_range(rng, 15.0, 25.0));
+        double level = rt_synth_round3(rt_synth_rng_range(rng, 15.0, 25.0));
+        if (plan->opt.tonic_ratio > 0.0)
+            level = rt_synth_round3(plan->opt.tonic_ratio * plan->bg_uv[SYNTH_CHIN][e0]);
         for (int e = e0; e < e0 + size; e++) {
             plan->tonic[e] = 1;
             plan->tonic_uv[e] = level;
@@ -271,6 +274,9 @@ static rt_status place_tonic(synth_plan *plan, const profile_rates *rates, synth
             t->onset_s = (double)e * SYNTH_EPOCH_S;
             t->duration_s = SYNTH_EPOCH_S;
             t->rect_uv = plan->tonic_uv[e];
+            t->bout = rt_synth_bout_of_epoch(plan, e);
+            t->ratio = t->rect_uv / plan->bg_uv[SYNTH_CHIN][e];
+            t->source = SYNTH_TONIC_PROFILE;
         }
     }
     free(unit_epoch);
@@ -298,8 +304,7 @@ static rt_status add_event(synth_plan *plan, long start_s, long duration_s, int 
     return RT_OK;
 }
 
-static rt_status add_burst(synth_plan *plan, int role, long second, double bg_uv, int arousal_bound,
-                           double max_s, synth_rng *rng, rt_error *err)
+rt_status rt_synth_push_burst(synth_plan *plan, const synth_burst *b, rt_error *err)
 {
     if (plan->n_bursts == plan->cap_bursts) {
         size_t cap = plan->cap_bursts ? 2 * plan->cap_bursts : 256;
@@ -309,15 +314,28 @@ static rt_status add_burst(synth_plan *plan, int role, long second, double bg_uv
         plan->bursts = v;
         plan->cap_bursts = cap;
     }
-    synth_burst *b = &plan->bursts[plan->n_bursts];
-    b->role = role;
-    b->onset_s = (double)second + round3(rt_synth_rng_range(rng, 0.10, 0.20));
-    b->duration_s = round3(rt_synth_rng_range(rng, 0.30, max_s));
-    b->rect_uv = round3(bg_uv * rt_synth_rng_range(rng, 8.0, 15.0));
-    b->arousal_bound = arousal_bound;
-    plan->sec_burst[role][second] = (int)plan->n_bursts;
-    plan->n_bursts++;
+    plan->bursts[plan->n_bursts++] = *b;
     return RT_OK;
+}
+
+/* A grid burst inside second `second`: onset 0.10-0.20 s into it, 0.30 s to
+ * max_s long, level the background times a factor in the ratio range. */
+static rt_status add_burst(synth_plan *plan, int role, long second, double bg_uv, int arousal_bound,
+                           double max_s, synth_rng *rng, rt_error *err)
+{
+    double lo, hi;
+    rt_synth_burst_ratio_range(&plan->opt, &lo, &hi);
+    synth_burst b;
+    b.role = role;
+    b.onset_s = (double)second + rt_synth_round3(rt_synth_rng_range(rng, 0.10, 0.20));
+    b.duration_s = rt_synth_round3(rt_synth_rng_range(rng, 0.30, max_s));
+    b.rect_uv = rt_synth_round3(bg_uv * rt_synth_rng_range(rng, lo, hi));
+    b.ratio = b.rect_uv / bg_uv;
+    b.arousal_bound = arousal_bound;
+    rt_status st = rt_synth_push_burst(plan, &b, err);
+    if (st == RT_OK)
+        plan->sec_burst[role][second] = (int)plan->n_bursts - 1;
+    return st;
 }
 
 /* A second may hold a burst of role when it is REM, at least 2 s from both
@@ -331,6 +349,11 @@ static int second_allows_burst(const synth_plan *plan, const synth_bout *bout, i
     if (plan->sec_burst[role][s] >= 0)
         return 0;
     if (role == SYNTH_CHIN && plan->tonic[s / SYNTH_EPOCH_S])
+        return 0;
+    /* With tonic runs, chin bursts keep 0.5 s from the edges of a tonic
+     * stretch: the seconds next to one are not used. */
+    if (role == SYNTH_CHIN && rt_synth_tonic_runs_on(&plan->opt) &&
+        (plan->tonic[(s - 1) / SYNTH_EPOCH_S] || plan->tonic[(s + 1) / SYNTH_EPOCH_S]))
         return 0;
     return 1;
 }
@@ -482,7 +505,7 @@ static rt_status place_bursts(synth_plan *plan, const profile_rates *rates, synt
     for (int b = 0; b < plan->n_bouts; b++)
         for (int e = 0; e < plan->bouts[b].epochs; e++)
             rem_list[r_n++] = plan->bouts[b].first_epoch + e;
-    shuffle_ints(rem_list, r_n, rng);
+    rt_synth_shuffle(rem_list, r_n, rng);
     int n_active = (int)lround(rates->active_epochs * r_n);
     for (int i = 0; i < n_active; i++)
         active[rem_list[i]] = 1;
@@ -565,6 +588,7 @@ static void index_bursts(synth_plan *plan)
             plan->sec_burst[r][s] = -1;
     for (size_t i = 0; i < plan->n_bursts; i++)
         plan->sec_burst[plan->bursts[i].role][(long)floor(plan->bursts[i].onset_s)] = (int)i;
+    rt_synth_index_holds(plan);
 }
 
 /* Body position (1..4, docs/synthetic-nights.md) changes only at awakenings. */
@@ -595,7 +619,8 @@ rt_status rt_synth_plan_build(synth_plan *plan, const rt_synth_options *opt, rt_
     for (int r = 0; r < SYNTH_ROLES; r++) {
         plan->bg_uv[r] = rt_calloc(ne, sizeof(double));
         plan->sec_burst[r] = rt_calloc(ns, sizeof(int));
-        ok = ok && plan->bg_uv[r] && plan->sec_burst[r];
+        plan->sec_hold[r] = rt_calloc(ns, 1);
+        ok = ok && plan->bg_uv[r] && plan->sec_burst[r] && plan->sec_hold[r];
     }
     if (!ok) {
         rt_synth_plan_free(plan);
@@ -605,19 +630,35 @@ rt_status rt_synth_plan_build(synth_plan *plan, const rt_synth_options *opt, rt_
         for (size_t s = 0; s < ns; s++)
             plan->sec_burst[r][s] = -1;
 
+    for (int r = 0; r < SYNTH_ROLES; r++)
+        plan->emg_rate_hz[r] = rt_synth_role_rate_hz(opt, r);
+    /* Drift: gain exp(drift_per_s t), 1 at the start, drift_end at the end.
+     * A rising drift scales the REM chin atonia down so that it stays below
+     * 2.4 uV (1.4 uV x scale x drift_end) everywhere: under the scorer's
+     * absolute tonic level of 10 uV peak to peak, 3.18 uV rectified. */
+    double drift = opt->drift_end > 0.0 ? opt->drift_end : 1.0;
+    plan->drift_per_s = drift == 1.0 ? 0.0 : log(drift) / (double)plan->n_seconds;
+    plan->chin_rem_scale = drift > 1.0 ? fmin(1.0, 2.4 / (1.4 * drift)) : 1.0;
+
     synth_rng rng;
-    rt_synth_rng_seed(&rng, opt->seed, STREAM_PLAN);
+    rt_synth_rng_seed(&rng, opt->seed, SYNTH_STREAM_PLAN);
     profile_rates rates = rates_of(opt->profile);
     build_hypnogram(plan, &rng);
-    rt_status st = find_bouts(plan, err);
+    rt_status st = rt_synth_place_single_bouts(plan, err);
+    if (st == RT_OK)
+        st = find_bouts(plan, err);
     if (st == RT_OK) {
         build_backgrounds(plan, &rng);
         st = place_tonic(plan, &rates, &rng, err);
     }
+    if (st == RT_OK)
+        st = rt_synth_place_tonic_runs(plan, err);
     if (st == RT_OK && rates.resp_events)
         st = place_events(plan, &rng, err);
     if (st == RT_OK)
         st = place_bursts(plan, &rates, &rng, err);
+    if (st == RT_OK && opt->short_bursts)
+        st = rt_synth_place_short_bursts(plan, rates.burst_minis, rates.active_epochs, err);
     if (st != RT_OK) {
         rt_synth_plan_free(plan);
         return st;
@@ -625,9 +666,19 @@ rt_status rt_synth_plan_build(synth_plan *plan, const rt_synth_options *opt, rt_
     index_bursts(plan);
     build_positions(plan, &rng);
     st = rt_synth_artifacts_build(plan, err);
+    if (st == RT_OK)
+        st = rt_synth_spiky_build(plan, err);
     if (st != RT_OK)
         rt_synth_plan_free(plan);
     return st;
+}
+
+int rt_synth_bout_of_epoch(const synth_plan *plan, int e)
+{
+    for (int b = 0; b < plan->n_bouts; b++)
+        if (e >= plan->bouts[b].first_epoch && e < plan->bouts[b].first_epoch + plan->bouts[b].epochs)
+            return b;
+    return -1;
 }
 
 void rt_synth_plan_free(synth_plan *plan)
@@ -642,7 +693,9 @@ void rt_synth_plan_free(synth_plan *plan)
     for (int r = 0; r < SYNTH_ROLES; r++) {
         free(plan->bg_uv[r]);
         free(plan->sec_burst[r]);
+        free(plan->sec_hold[r]);
     }
+    free(plan->single_epochs);
     free(plan->bouts);
     free(plan->bursts);
     free(plan->tonics);

@@ -1,7 +1,8 @@
 /* The EDF+ recording of a synthetic night: 20 channels in 1-s data records,
  * written with EDFlib. The five EMG channels carry the model that matters
- * (stationary band-limited Gaussian noise scaled by the planned rectified
- * level); EEG, EOG, ECG, respiration, SpO2, snore and position are cheap
+ * (stationary band-limited Gaussian noise, or motor-unit spike trains,
+ * scaled by the planned rectified level and the drift gain; emg_model.c);
+ * EEG, EOG, ECG, respiration, SpO2, snore and position are cheap
  * placeholders that only need to look plausible and follow the stages and
  * events. Each channel draws from its own random stream. */
 #include "synth_internal.h"
@@ -28,7 +29,6 @@ enum {
     CH_SPO2 = 17,
     CH_SNORE = 18,
     CH_POS = 19,
-    N_BIQUADS = 4,
     ECG_RATE_HZ = SYNTH_ECG_RATE_HZ,
     ECG_TEMPLATE_N = 256
 };
@@ -43,7 +43,8 @@ typedef struct channel_spec {
     const char *prefilter;
 } channel_spec;
 
-/* EMG: +-500 uV on 16 bits is 0.0153 uV per step, fine for 1-uV atonia. */
+/* EMG: +-500 uV on 16 bits is 0.0153 uV per step, fine for 1-uV atonia; the
+ * rates and ranges of the EMG rows are the plan's (emg_rate_hz, emg_range). */
 static const channel_spec channels[N_CHANNELS] = {
     {"F4-M1", 128, "uV", -1000, 1000, -32768, 32767, "AgAgCl electrode", "HP:0.3Hz LP:35Hz"},
     {"C4-M1", 128, "uV", -1000, 1000, -32768, 32767, "AgAgCl electrode", "HP:0.3Hz LP:35Hz"},
@@ -67,10 +68,6 @@ static const channel_spec channels[N_CHANNELS] = {
     {"Pos", 1, "", 0, 4, 0, 4, "Position sensor", ""},
 };
 
-typedef struct biquad {
-    double b0, b1, b2, a1, a2; /* normalised so a0 = 1 */
-} biquad;
-
 /* Rotating phasor: a sinusoid by complex multiplication, cheaper than sin()
  * per sample; renormalised once per second so rounding cannot drift. */
 typedef struct osc {
@@ -85,9 +82,10 @@ typedef struct eeg_state {
 typedef struct writer {
     const synth_plan *plan;
     synth_rng rng[N_CHANNELS];
-    biquad bq[N_BIQUADS];
-    double emg_gain;                       /* makes the cascade output unit-variance */
-    double z[SYNTH_ROLES][N_BIQUADS][2];   /* transposed direct form II state */
+    synth_band band[SYNTH_ROLES];          /* band-limited noise of each EMG role */
+    synth_spiky_state spiky[SYNTH_ROLES];  /* with the spiky option */
+    size_t burst_cursor[SYNTH_ROLES];      /* first burst of the role not yet over */
+    double emg_range_uv;                   /* physical range of the EMG rows */
     eeg_state eeg[6];
     double eye, eye_slow;                  /* EOG state: saccade level, slow rolling */
     osc eye_roll;
@@ -140,59 +138,25 @@ static double cheap_noise(synth_rng *rng)
     return (sum / 65536.0 - 2.0) * 1.7320508075688772;
 }
 
-/* RBJ audio-EQ-cookbook biquads (bilinear transform with pre-warping). */
-static biquad biquad_design(int highpass, double f0_hz, double rate_hz, double q)
+/* The band-limited noise of each EMG role at its rate (emg_model.c), with
+ * two seconds of warm-up so the noise is stationary from sample 0; the spike
+ * trains of the spiky option from their own streams. */
+static void emg_init(writer *w)
 {
-    double w0 = 2.0 * SYNTH_PI * f0_hz / rate_hz;
-    double cw = cos(w0), alpha = sin(w0) / (2.0 * q), a0 = 1.0 + alpha;
-    biquad b;
-    if (highpass) {
-        b.b0 = (1.0 + cw) / 2.0 / a0;
-        b.b1 = -(1.0 + cw) / a0;
-    } else {
-        b.b0 = (1.0 - cw) / 2.0 / a0;
-        b.b1 = (1.0 - cw) / a0;
+    const synth_plan *plan = w->plan;
+    for (int r = 0; r < SYNTH_ROLES; r++) {
+        rt_synth_band_init(&w->band[r], plan->emg_rate_hz[r]);
+        for (int i = 0; i < 2 * plan->emg_rate_hz[r]; i++)
+            (void)rt_synth_band_step(&w->band[r], rt_synth_rng_gauss(&w->rng[CH_EMG0 + r]));
+        if (plan->opt.spiky)
+            rt_synth_spiky_start(&w->spiky[r], &plan->spiky[r], plan->opt.seed,
+                                 SYNTH_STREAM_SPIKY_FIRING + (uint64_t)r);
     }
-    b.b2 = b.b0;
-    b.a1 = -2.0 * cw / a0;
-    b.a2 = (1.0 - alpha) / a0;
-    return b;
 }
 
-static double cascade_step(const biquad *bq, double z[N_BIQUADS][2], double x)
+static int channel_rate(const synth_plan *plan, int c)
 {
-    for (int k = 0; k < N_BIQUADS; k++) {
-        double y = bq[k].b0 * x + z[k][0];
-        z[k][0] = bq[k].b1 * x - bq[k].a1 * y + z[k][1];
-        z[k][1] = bq[k].b2 * x - bq[k].a2 * y;
-        x = y;
-    }
-    return x;
-}
-
-/* 4th-order Butterworth high-pass at 20 Hz then low-pass at 60 Hz (Q of the
- * two sections 1/(2cos(pi/8)) and 1/(2cos(3pi/8))). For white input of unit
- * variance the output variance is the impulse response energy, so dividing
- * by its square root makes n(t) unit-variance. */
-static void emg_filter_init(writer *w)
-{
-    const double q[2] = {0.54119610014619701, 1.3065629648763766};
-    for (int k = 0; k < 2; k++) {
-        w->bq[k] = biquad_design(1, 20.0, SYNTH_EMG_RATE_HZ, q[k]);
-        w->bq[2 + k] = biquad_design(0, 60.0, SYNTH_EMG_RATE_HZ, q[k]);
-    }
-    double z[N_BIQUADS][2];
-    memset(z, 0, sizeof z);
-    double energy = 0;
-    for (int i = 0; i < (1 << 15); i++) {
-        double y = cascade_step(w->bq, z, i == 0 ? 1.0 : 0.0);
-        energy += y * y;
-    }
-    w->emg_gain = 1.0 / sqrt(energy);
-    /* Two seconds of warm-up so the noise is stationary from sample 0. */
-    for (int r = 0; r < SYNTH_ROLES; r++)
-        for (int i = 0; i < 2 * SYNTH_EMG_RATE_HZ; i++)
-            (void)cascade_step(w->bq, w->z[r], rt_synth_rng_gauss(&w->rng[CH_EMG0 + r]));
+    return c >= CH_EMG0 && c < CH_EMG0 + SYNTH_ROLES ? plan->emg_rate_hz[c - CH_EMG0] : channels[c].rate_hz;
 }
 
 /* One beat sampled at the ECG rate (the waveform is in artifacts.c, shared
@@ -209,11 +173,12 @@ static rt_status writer_init(writer *w, const synth_plan *plan, rt_error *err)
     w->plan = plan;
     for (int c = 0; c < N_CHANNELS; c++) {
         rt_synth_rng_seed(&w->rng[c], plan->opt.seed, 100 + (uint64_t)c);
-        w->buf[c] = rt_calloc((size_t)channels[c].rate_hz, sizeof(double));
+        w->buf[c] = rt_calloc((size_t)channel_rate(plan, c), sizeof(double));
         if (!w->buf[c])
             return rt_fail(err, RT_ERR_NOMEM, "synthetic night: out of memory (sample buffers)");
     }
-    emg_filter_init(w);
+    w->emg_range_uv = rt_synth_emg_range_uv(plan);
+    emg_init(w);
     for (int c = 0; c < 6; c++) {
         synth_rng *r = &w->rng[CH_EEG0 + c];
         eeg_state *e = &w->eeg[c];
@@ -293,7 +258,34 @@ static void make_eog(writer *w, long s)
     osc_renorm(&w->eye_roll);
 }
 
-/* EMG: x = sqrt(pi/2) * r(t) * n(t), r the planned rectified level. */
+enum { MAX_BURSTS_PER_SECOND = 4 };
+
+/* The bursts of role r overlapping second s, as offsets from s; bursts are
+ * sorted by onset and a role's are at least 0.5 s apart (short bursts) or
+ * one per second (grid), so a few at most. */
+static int bursts_in_second(writer *w, int r, long s, double *b0, double *b1, double *b_uv)
+{
+    const synth_plan *plan = w->plan;
+    size_t *cur = &w->burst_cursor[r];
+    while (*cur < plan->n_bursts && plan->bursts[*cur].onset_s < (double)s + 1.0 &&
+           (plan->bursts[*cur].role != r ||
+            plan->bursts[*cur].onset_s + plan->bursts[*cur].duration_s <= (double)s))
+        (*cur)++;
+    int n = 0;
+    for (size_t i = *cur; i < plan->n_bursts && plan->bursts[i].onset_s < (double)s + 1.0; i++) {
+        const synth_burst *b = &plan->bursts[i];
+        if (b->role != r || b->onset_s + b->duration_s <= (double)s || n == MAX_BURSTS_PER_SECOND)
+            continue;
+        b0[n] = b->onset_s - (double)s;
+        b1[n] = b0[n] + b->duration_s;
+        b_uv[n] = b->rect_uv;
+        n++;
+    }
+    return n;
+}
+
+/* EMG: x = sqrt(pi/2) * r(t) * n(t) (Gaussian) or r(t) * m(t) (spiky, m of
+ * unit rectified mean), r the planned rectified level, times the drift gain. */
 static void make_emg(writer *w, long s)
 {
     const synth_plan *plan = w->plan;
@@ -305,27 +297,26 @@ static void make_emg(writer *w, long s)
                     o->ecg_bleed_limb_uv > 0.0 || o->clip_duration_s > 0.0 || o->detach_s > 0.0 ||
                     plan->n_pops > 0;
     for (int r = 0; r < SYNTH_ROLES; r++) {
+        int rate = plan->emg_rate_hz[r];
         double level = plan->bg_uv[r][e];
         if (r == SYNTH_CHIN && plan->tonic[e])
             level = plan->tonic_uv[e];
-        int b = plan->sec_burst[r][s];
-        double b0 = 2, b1 = 2, b_uv = 0;
-        if (b >= 0) {
-            b0 = plan->bursts[b].onset_s - (double)s;
-            b1 = b0 + plan->bursts[b].duration_s;
-            b_uv = plan->bursts[b].rect_uv;
-        }
+        double b0[MAX_BURSTS_PER_SECOND], b1[MAX_BURSTS_PER_SECOND], b_uv[MAX_BURSTS_PER_SECOND];
+        int nb = bursts_in_second(w, r, s, b0, b1, b_uv);
         double *out = w->buf[CH_EMG0 + r];
         synth_rng *rng = &w->rng[CH_EMG0 + r];
-        for (int i = 0; i < SYNTH_EMG_RATE_HZ; i++) {
-            double t = (double)i / SYNTH_EMG_RATE_HZ;
+        for (int i = 0; i < rate; i++) {
+            double t = (double)i / rate;
             double lv = level;
             if (near_boundary && !plan->tonic[e])
                 lv = rt_synth_plan_background_uv(plan, r, (double)s + t);
-            if (t >= b0 && t < b1)
-                lv = b_uv;
-            double n = w->emg_gain * cascade_step(w->bq, w->z[r], rt_synth_rng_gauss(rng));
-            double x = k * lv * n;
+            for (int j = 0; j < nb; j++)
+                if (t >= b0[j] && t < b1[j])
+                    lv = b_uv[j];
+            double n = rt_synth_band_step(&w->band[r], rt_synth_rng_gauss(rng));
+            double x = o->spiky ? lv * rt_synth_spiky_sample(&w->spiky[r], (double)s + t, n) : k * lv * n;
+            if (plan->drift_per_s != 0.0)
+                x *= rt_synth_gain(plan, (double)s + t);
             double ax = fabs(x);
             if (ax > w->emg_peak_uv)
                 w->emg_peak_uv = ax;
@@ -335,7 +326,7 @@ static void make_emg(writer *w, long s)
                 if (r == SYNTH_CHIN)
                     x = rt_synth_chin_override(plan, ts, x);
                 /* saturation as the recorder would show it */
-                x = fmax(-SYNTH_EMG_RANGE_UV, fmin(SYNTH_EMG_RANGE_UV, x));
+                x = fmax(-w->emg_range_uv, fmin(w->emg_range_uv, x));
             }
             out[i] = x;
         }
@@ -439,11 +430,13 @@ static void make_resp(writer *w, long s, size_t *cursor)
 static rt_status set_header(int h, const synth_plan *plan, const char *path, rt_error *err)
 {
     int bad = 0;
+    double emg_range = rt_synth_emg_range_uv(plan);
     for (int c = 0; c < N_CHANNELS; c++) {
         const channel_spec *cs = &channels[c];
-        bad |= edf_set_samplefrequency(h, c, cs->rate_hz);
-        bad |= edf_set_physical_maximum(h, c, cs->phys_max);
-        bad |= edf_set_physical_minimum(h, c, cs->phys_min);
+        int emg = c >= CH_EMG0 && c < CH_EMG0 + SYNTH_ROLES;
+        bad |= edf_set_samplefrequency(h, c, channel_rate(plan, c));
+        bad |= edf_set_physical_maximum(h, c, emg ? emg_range : cs->phys_max);
+        bad |= edf_set_physical_minimum(h, c, emg ? -emg_range : cs->phys_min);
         bad |= edf_set_digital_maximum(h, c, cs->dig_max);
         bad |= edf_set_digital_minimum(h, c, cs->dig_min);
         bad |= edf_set_label(h, c, cs->label);
@@ -496,9 +489,9 @@ static rt_status write_records(int h, writer *w, const char *path, rt_error *err
             if (edfwrite_physical_samples(h, w->buf[c]) != 0)
                 return rt_fail(err, RT_ERR_IO, "%s: record %ld: cannot write signal %d", path, s, c);
     }
-    if (w->emg_peak_uv >= 500.0)
-        return rt_fail(err, RT_ERR_INTERNAL, "%s: EMG reached %.1f uV and would clip at +-500 uV", path,
-                       w->emg_peak_uv);
+    if (w->emg_peak_uv >= w->emg_range_uv)
+        return rt_fail(err, RT_ERR_INTERNAL, "%s: EMG reached %.1f uV and would clip at +-%g uV", path,
+                       w->emg_peak_uv, w->emg_range_uv);
     return RT_OK;
 }
 

@@ -43,6 +43,7 @@ void rt_synth_options_default(rt_synth_options *options)
     options->recording = NULL;
     options->start_hour = 22;
     options->start_minute = 30;
+    options->drift_end = 1.0;
 }
 
 const char *rt_synth_role_name(int role)
@@ -88,9 +89,9 @@ static rt_status check_artifacts(const rt_synth_options *o, rt_error *err)
     if (!(o->mains_hz == 0.0 || o->mains_hz == 50.0 || o->mains_hz == 60.0))
         return rt_fail(err, RT_ERR_USAGE, "synthetic night: mains frequency must be 0, 50 or 60 Hz (got %g)",
                        o->mains_hz);
-    if (!in_range(o->mains_uv, 0.0, 100.0) || o->mains_harmonics < 0 || o->mains_harmonics > 4)
+    if (!in_range(o->mains_uv, 0.0, 200.0) || o->mains_harmonics < 0 || o->mains_harmonics > 4)
         return rt_fail(err, RT_ERR_USAGE,
-                       "synthetic night: mains amplitude must be 0..100 uV and harmonics 0..4 (got %g, %d)",
+                       "synthetic night: mains amplitude must be 0..200 uV and harmonics 0..4 (got %g, %d)",
                        o->mains_uv, o->mains_harmonics);
     if (!in_range(o->ecg_bleed_uv, 0.0, 200.0) || !in_range(o->ecg_bleed_limb_uv, 0.0, 200.0))
         return rt_fail(err, RT_ERR_USAGE, "synthetic night: ECG bleed must be 0..200 uV (got %g, %g)",
@@ -111,6 +112,44 @@ static rt_status check_artifacts(const rt_synth_options *o, rt_error *err)
     return RT_OK;
 }
 
+static bool is_emg_rate(int hz)
+{
+    return hz == 200 || hz == 256 || hz == 500 || hz == 512 || hz == 1000;
+}
+
+static rt_status check_difficulty(const rt_synth_options *o, rt_error *err)
+{
+    if (o->tonic_run_epochs < 0 || o->tonic_run_epochs > 40)
+        return rt_fail(err, RT_ERR_USAGE, "synthetic night: tonic runs must be 0 (off) or 1..40 epochs (got %d)",
+                       o->tonic_run_epochs);
+    if (o->tonic_whole_bout < 0 || o->tonic_whole_bout > 64)
+        return rt_fail(err, RT_ERR_USAGE, "synthetic night: whole tonic bout must be 0 (off) or 1..64 (got %d)",
+                       o->tonic_whole_bout);
+    if (!(o->tonic_ratio == 0.0 || in_range(o->tonic_ratio, 3.0, 20.0)))
+        return rt_fail(err, RT_ERR_USAGE, "synthetic night: tonic ratio must be 0 (off) or 3..20 (got %g)",
+                       o->tonic_ratio);
+    if (!(o->drift_end == 0.0 || in_range(o->drift_end, 0.5, 2.0)))
+        return rt_fail(err, RT_ERR_USAGE, "synthetic night: drift end gain must be 0.5..2 (1 = off; got %g)",
+                       o->drift_end);
+    if (o->short_bursts < 0 || o->short_bursts > 1 || o->mixed_rates < 0 || o->mixed_rates > 1 || o->spiky < 0 ||
+        o->spiky > 1)
+        return rt_fail(err, RT_ERR_USAGE, "synthetic night: short_bursts, mixed_rates and spiky are 0 or 1");
+    bool ratio_default = o->burst_ratio_lo == 0.0 && o->burst_ratio_hi == 0.0;
+    if (!ratio_default && !(in_range(o->burst_ratio_lo, 0.5, 20.0) && in_range(o->burst_ratio_hi, 0.5, 20.0) &&
+                            o->burst_ratio_lo <= o->burst_ratio_hi))
+        return rt_fail(err, RT_ERR_USAGE,
+                       "synthetic night: burst ratios must satisfy 0.5 <= lo <= hi <= 20 (got %g, %g)",
+                       o->burst_ratio_lo, o->burst_ratio_hi);
+    if (o->single_epoch_bouts < 0 || o->single_epoch_bouts > 20)
+        return rt_fail(err, RT_ERR_USAGE, "synthetic night: single-epoch bouts must be 0..20 (got %d)",
+                       o->single_epoch_bouts);
+    /* 1-s data records hold a whole number of samples at every one of these */
+    if (!(o->emg_rate_hz == 0 || is_emg_rate(o->emg_rate_hz)))
+        return rt_fail(err, RT_ERR_USAGE, "synthetic night: EMG rate must be 200, 256, 500, 512 or 1000 Hz (got %d)",
+                       o->emg_rate_hz);
+    return RT_OK;
+}
+
 static rt_status check_options(const rt_synth_options *o, const char *dir, rt_error *err)
 {
     if ((int)o->profile < 0 || o->profile >= RT_SYNTH_PROFILE_COUNT)
@@ -121,6 +160,8 @@ static rt_status check_options(const rt_synth_options *o, const char *dir, rt_er
         return rt_fail(err, RT_ERR_USAGE, "synthetic night: start time %d:%d is not a clock time",
                        o->start_hour, o->start_minute);
     rt_status st = check_artifacts(o, err);
+    if (st == RT_OK)
+        st = check_difficulty(o, err);
     if (st != RT_OK)
         return st;
     struct stat sb;

@@ -1,6 +1,8 @@
 /* truth.json: what the plan placed in every REM mini-epoch and the value
  * each index takes on it. Indices are counted from the placement (never
- * from the signal), with the formulas of docs/synthetic-nights.md. */
+ * from the signal), with the formulas of docs/synthetic-nights.md: a burst
+ * counts for a rule's phasic indices only when the rule counts it (ratio and
+ * duration, rt_synth_burst_rules). */
 #include "synth_internal.h"
 
 #include <jansson.h>
@@ -11,18 +13,22 @@
 #include "internal.h"
 #include "output.h"
 
-static int span_holds(const synth_plan *plan, int role, long s0, int len)
+/* Whether a burst of role with one of the SYNTH_HOLD_* bits overlaps
+ * [s0, s0 + len); mini-epoch boundaries are whole seconds and a burst that
+ * crosses one has 0.05 s or more on each side, so overlapping one of a
+ * mini's seconds is overlapping the mini. */
+static int span_holds(const synth_plan *plan, int role, long s0, int len, unsigned bits)
 {
     for (long s = s0; s < s0 + len; s++)
-        if (plan->sec_burst[role][s] >= 0)
+        if (plan->sec_hold[role][s] & bits)
             return 1;
     return 0;
 }
 
-static int span_holds_any(const synth_plan *plan, long s0, int len)
+static int span_holds_any(const synth_plan *plan, long s0, int len, unsigned bits)
 {
     for (int r = 0; r < SYNTH_ROLES; r++)
-        if (span_holds(plan, r, s0, len))
+        if (span_holds(plan, r, s0, len, bits))
             return 1;
     return 0;
 }
@@ -48,17 +54,51 @@ static double percent(long num, long den)
     return den > 0 ? 100.0 * (double)num / (double)den : NAN;
 }
 
-/* Designed mean rectified chin level of one second (RAI input). */
-static double designed_chin_uv(const synth_plan *plan, const synth_bout *bout, long s)
+/* Designed mean rectified chin level of every second of a bout (RAI input):
+ * the mean over the second of level x drift gain, i.e. with f the weight of
+ * a burst piece (its duration without drift, the integral of the gain over
+ * it with drift) and G the gain's integral over the second,
+ * v = base (G - sum f) + sum A f. Returns NULL when out of memory. */
+static double *designed_chin_uv(const synth_plan *plan, const synth_bout *bout)
 {
-    if (plan->tonic[s / SYNTH_EPOCH_S])
-        return plan->tonic_uv[s / SYNTH_EPOCH_S];
-    int b = plan->sec_burst[SYNTH_CHIN][s];
-    if (b < 0)
-        return bout->chin_bg_uv;
-    const synth_burst *burst = &plan->bursts[b];
-    double f = burst->duration_s; /* the burst lies inside this second */
-    return bout->chin_bg_uv * (1.0 - f) + burst->rect_uv * f;
+    long t0 = (long)bout->first_epoch * SYNTH_EPOCH_S;
+    long len = (long)bout->epochs * SYNTH_EPOCH_S;
+    double *v = malloc((size_t)len * sizeof *v);
+    double *fsum = rt_calloc((size_t)len, sizeof *fsum);
+    double *asum = rt_calloc((size_t)len, sizeof *asum);
+    if (!v || !fsum || !asum) {
+        free(v);
+        free(fsum);
+        free(asum);
+        return NULL;
+    }
+    for (size_t i = 0; i < plan->n_bursts; i++) {
+        const synth_burst *b = &plan->bursts[i];
+        double end = b->onset_s + b->duration_s;
+        if (b->role != SYNTH_CHIN || end <= (double)t0 || b->onset_s >= (double)(t0 + len))
+            continue;
+        for (long s = (long)floor(b->onset_s); (double)s < end; s++) {
+            double a = fmax(b->onset_s, (double)s), z = fmin(end, (double)s + 1.0);
+            if (s < t0 || s >= t0 + len || z <= a)
+                continue;
+            double f;
+            if (plan->drift_per_s == 0.0)
+                f = a == b->onset_s && z == end ? b->duration_s : z - a;
+            else
+                f = rt_synth_gain_integral(plan, a, z);
+            fsum[s - t0] += f;
+            asum[s - t0] += b->rect_uv * f;
+        }
+    }
+    for (long j = 0; j < len; j++) {
+        long s = t0 + j;
+        double base = plan->tonic[s / SYNTH_EPOCH_S] ? plan->tonic_uv[s / SYNTH_EPOCH_S] : bout->chin_bg_uv;
+        double g = rt_synth_gain_integral(plan, (double)s, (double)s + 1.0);
+        v[j] = fsum[j] > 0.0 ? base * (g - fsum[j]) + asum[j] : base * g;
+    }
+    free(fsum);
+    free(asum);
+    return v;
 }
 
 typedef struct counts {
@@ -77,11 +117,13 @@ static void count_epoch(const synth_plan *plan, int e, int exclude, counts *c)
     int n_chin = 0, n_any = 0, combo = 0;
     for (int m = 0; m < 10; m++) {
         long s0 = t + 3 * m;
-        int chin = span_holds(plan, SYNTH_CHIN, s0, 3);
-        int arm = span_holds(plan, SYNTH_ARM_L, s0, 3) || span_holds(plan, SYNTH_ARM_R, s0, 3);
-        n_chin += chin;
-        n_any += span_holds_any(plan, s0, 3);
-        combo |= chin || tonic || arm;
+        /* AASM counts its own bursts; SINBAR its own */
+        n_chin += span_holds(plan, SYNTH_CHIN, s0, 3, SYNTH_HOLD_AASM);
+        n_any += span_holds_any(plan, s0, 3, SYNTH_HOLD_AASM);
+        int chin = span_holds(plan, SYNTH_CHIN, s0, 3, SYNTH_HOLD_SINBAR);
+        int arm = span_holds(plan, SYNTH_ARM_L, s0, 3, SYNTH_HOLD_SINBAR) ||
+                  span_holds(plan, SYNTH_ARM_R, s0, 3, SYNTH_HOLD_SINBAR);
+        combo += chin || tonic || arm;
         if (exclude && span_excluded(plan, s0, 3))
             continue;
         c->m3++;
@@ -95,7 +137,7 @@ static void count_epoch(const synth_plan *plan, int e, int exclude, counts *c)
         if (exclude && span_excluded(plan, s0, 2))
             continue;
         c->m2++;
-        c->m2_chin += span_holds(plan, SYNTH_CHIN, s0, 2);
+        c->m2_chin += span_holds(plan, SYNTH_CHIN, s0, 2, SYNTH_HOLD_MONTREAL);
     }
     if (ep_excl)
         return;
@@ -104,20 +146,20 @@ static void count_epoch(const synth_plan *plan, int e, int exclude, counts *c)
     c->ep_phasic_chin += n_chin >= 5;
     c->ep_phasic_any += n_any >= 5;
     c->ep_rswa += tonic || n_any >= 5;
-    c->ep_combo += combo;
+    /* SINBAR 30-s epochs: at least 5 of 10 active mini-epochs, the AASM
+     * convention (Frauscher et al. 2014, Sleep 37:763; docs/scoring.md) */
+    c->ep_combo += combo >= 5;
 }
 
 static void count_rai(const synth_plan *plan, const synth_bout *bout, int exclude, counts *c)
 {
     long t0 = (long)bout->first_epoch * SYNTH_EPOCH_S;
     long len = (long)bout->epochs * SYNTH_EPOCH_S;
-    double *v = malloc((size_t)len * sizeof *v);
+    double *v = designed_chin_uv(plan, bout);
     if (!v) {
         c->secs = -1; /* reported as null rather than a wrong value */
         return;
     }
-    for (long j = 0; j < len; j++)
-        v[j] = designed_chin_uv(plan, bout, t0 + j);
     for (long j = 0; j < len; j++) {
         long k0 = j - 30 < 0 ? 0 : j - 30;
         long k1 = j + 29 > len - 1 ? len - 1 : j + 29;
@@ -209,15 +251,23 @@ static json_t *minis_json(const synth_plan *plan)
             for (int m = 0; m < 10; m++) {
                 long s0 = (long)e * SYNTH_EPOCH_S + 3 * m;
                 json_t *o = json_object(), *phasic = json_array(), *tonic = json_array();
-                for (int r = 0; r < SYNTH_ROLES; r++)
-                    if (span_holds(plan, r, s0, 3))
+                json_t *aasm = json_array(), *sinbar = json_array();
+                for (int r = 0; r < SYNTH_ROLES; r++) {
+                    if (span_holds(plan, r, s0, 3, SYNTH_HOLD_ANY))
                         json_array_append_new(phasic, json_string(rt_synth_role_name(r)));
+                    if (span_holds(plan, r, s0, 3, SYNTH_HOLD_AASM))
+                        json_array_append_new(aasm, json_string(rt_synth_role_name(r)));
+                    if (span_holds(plan, r, s0, 3, SYNTH_HOLD_SINBAR))
+                        json_array_append_new(sinbar, json_string(rt_synth_role_name(r)));
+                }
                 if (plan->tonic[e])
                     json_array_append_new(tonic, json_string(rt_synth_role_name(SYNTH_CHIN)));
                 json_object_set_new(o, "epoch", json_integer(e));
                 json_object_set_new(o, "mini", json_integer(m));
                 json_object_set_new(o, "onset_s", json_integer(s0));
                 json_object_set_new(o, "phasic", phasic);
+                json_object_set_new(o, "phasic_aasm", aasm);
+                json_object_set_new(o, "phasic_sinbar", sinbar);
                 json_object_set_new(o, "tonic", tonic);
                 json_object_set_new(o, "excluded", json_boolean(span_excluded(plan, s0, 3)));
                 json_array_append_new(minis, o);
@@ -244,6 +294,16 @@ static json_t *artifacts_json(const synth_plan *plan)
             json_array_append_new(comp, c);
         }
         json_object_set_new(m, "components", comp);
+        json_t *dropped = json_array();
+        for (int h = 1; h <= 1 + o->mains_harmonics; h++)
+            for (int r = 0; r < SYNTH_ROLES; r++)
+                if (!rt_synth_mains_reaches(plan, r, h)) {
+                    json_t *d = json_object();
+                    json_object_set_new(d, "hz", json_real(o->mains_hz * h));
+                    json_object_set_new(d, "role", json_string(rt_synth_role_name(r)));
+                    json_array_append_new(dropped, d);
+                }
+        json_object_set_new(m, "dropped", dropped);
         json_object_set_new(m, "phase", json_string("sine from 0 at the recording start"));
         for (int r = 0; r < SYNTH_ROLES; r++)
             json_array_append_new(chs, json_string(emg[r]));
@@ -270,7 +330,7 @@ static json_t *artifacts_json(const synth_plan *plan)
         json_object_set_new(c, "end_s", json_real(o->clip_start_s + o->clip_duration_s));
         json_object_set_new(c, "swing_uv", json_real(SYNTH_CLIP_SWING_UV));
         json_object_set_new(c, "swing_hz", json_real(SYNTH_CLIP_SWING_HZ));
-        json_object_set_new(c, "range_uv", json_real(SYNTH_EMG_RANGE_UV));
+        json_object_set_new(c, "range_uv", json_real(rt_synth_emg_range_uv(plan)));
         json_object_set_new(a, "clipping", c);
     } else {
         json_object_set_new(a, "clipping", json_null());
@@ -295,6 +355,136 @@ static json_t *artifacts_json(const synth_plan *plan)
     }
     json_object_set_new(a, "pops", pops);
     return a;
+}
+
+/* The 3-s or 2-s minis (onsets) that [a, b) overlaps. */
+static json_t *minis_of(double a, double b, int len)
+{
+    json_t *v = json_array();
+    for (long m = (long)floor(a / len); (double)(m * len) < b; m++)
+        json_array_append_new(v, json_integer(m * len));
+    return v;
+}
+
+/* The mean drift gain over [a, b] (exactly 1 without drift). */
+static double mean_gain(const synth_plan *plan, double a, double b)
+{
+    return plan->drift_per_s == 0.0 ? 1.0 : rt_synth_gain_integral(plan, a, b) / (b - a);
+}
+
+/* Every placed burst: where, how long, how loud (rect_uv before drift,
+ * ratio to its background, mean gain over it), which rules count it and
+ * which 3-s and 2-s minis it marks. */
+static json_t *bursts_json(const synth_plan *plan)
+{
+    json_t *bursts = json_array();
+    for (size_t i = 0; i < plan->n_bursts; i++) {
+        const synth_burst *b = &plan->bursts[i];
+        double end = b->onset_s + b->duration_s;
+        json_t *o = json_object(), *by_rule = json_object();
+        json_object_set_new(o, "role", json_string(rt_synth_role_name(b->role)));
+        json_object_set_new(o, "onset_s", json_real(b->onset_s));
+        json_object_set_new(o, "duration_s", json_real(b->duration_s));
+        json_object_set_new(o, "rect_uv", json_real(b->rect_uv));
+        json_object_set_new(o, "arousal_bound", json_boolean(b->arousal_bound));
+        json_object_set_new(o, "ratio", json_real(b->ratio));
+        json_object_set_new(o, "gain", json_real(mean_gain(plan, b->onset_s, end)));
+        unsigned rules = rt_synth_burst_rules(b);
+        for (int r = 0; r < SYNTH_RULES; r++)
+            json_object_set_new(by_rule, rt_synth_rule(r)->name, json_boolean(rules >> r & 1u));
+        json_object_set_new(o, "counts", by_rule);
+        json_object_set_new(o, "minis_3s", minis_of(b->onset_s, end, 3));
+        json_object_set_new(o, "minis_2s", minis_of(b->onset_s, end, 2));
+        json_array_append_new(bursts, o);
+    }
+    return bursts;
+}
+
+/* Every tonic stretch; montreal_half_windows lists the 20-s windows (tiled
+ * from the bout start) that the stretch covers by exactly half: not tonic by
+ * either definition (> 50 % or whole), but a measurement can fall either way. */
+static json_t *tonics_json(const synth_plan *plan)
+{
+    static const char *const sources[] = {"profile", "run", "whole-bout"};
+    json_t *tonics = json_array();
+    for (size_t i = 0; i < plan->n_tonics; i++) {
+        const synth_tonic *t = &plan->tonics[i];
+        json_t *o = json_object(), *half = json_array();
+        json_object_set_new(o, "role", json_string(rt_synth_role_name(SYNTH_CHIN)));
+        json_object_set_new(o, "onset_s", json_real(t->onset_s));
+        json_object_set_new(o, "duration_s", json_real(t->duration_s));
+        json_object_set_new(o, "rect_uv", json_real(t->rect_uv));
+        json_object_set_new(o, "ratio", json_real(t->ratio));
+        json_object_set_new(o, "bout", json_integer(t->bout));
+        json_object_set_new(o, "source", json_string(sources[t->source]));
+        json_object_set_new(o, "gain_start", json_real(rt_synth_gain(plan, t->onset_s)));
+        json_object_set_new(o, "gain_end", json_real(rt_synth_gain(plan, t->onset_s + t->duration_s)));
+        if (t->bout >= 0) {
+            const synth_bout *bout = &plan->bouts[t->bout];
+            double b0 = (double)bout->first_epoch * SYNTH_EPOCH_S;
+            long n_win = (long)bout->epochs * SYNTH_EPOCH_S / 20;
+            for (long w = 0; w < n_win; w++) {
+                double w0 = b0 + 20.0 * (double)w;
+                double cover = fmin(w0 + 20.0, t->onset_s + t->duration_s) - fmax(w0, t->onset_s);
+                if (cover == 10.0)
+                    json_array_append_new(half, json_real(w0));
+            }
+        }
+        json_object_set_new(o, "montreal_half_windows", half);
+        json_array_append_new(tonics, o);
+    }
+    return tonics;
+}
+
+/* The difficulty switches as used, and what they set. */
+static json_t *difficulty_json(const synth_plan *plan)
+{
+    const rt_synth_options *o = &plan->opt;
+    json_t *d = json_object(), *rates = json_object(), *rules = json_object(), *singles = json_array();
+    json_object_set_new(d, "tonic_run_epochs", json_integer(o->tonic_run_epochs));
+    json_object_set_new(d, "tonic_whole_bout", json_integer(o->tonic_whole_bout));
+    json_object_set_new(d, "tonic_ratio", o->tonic_ratio > 0.0 ? json_real(o->tonic_ratio) : json_null());
+    json_object_set_new(d, "drift_end", json_real(o->drift_end > 0.0 ? o->drift_end : 1.0));
+    json_object_set_new(d, "drift_law", json_string("gain(t) = drift_end ^ (t / night_s)"));
+    json_object_set_new(d, "night_s", json_integer(plan->n_seconds));
+    json_object_set_new(d, "chin_rem_scale", json_real(plan->chin_rem_scale));
+    json_object_set_new(d, "short_bursts", json_boolean(o->short_bursts));
+    double lo, hi;
+    rt_synth_burst_ratio_range(o, &lo, &hi);
+    json_t *range = json_array();
+    json_array_append_new(range, json_real(lo));
+    json_array_append_new(range, json_real(hi));
+    json_object_set_new(d, "burst_ratio", range);
+    for (int i = 0; i < plan->n_single; i++)
+        json_array_append_new(singles, json_integer(plan->single_epochs[i]));
+    json_object_set_new(d, "single_epoch_bouts", singles);
+    for (int r = 0; r < SYNTH_ROLES; r++)
+        json_object_set_new(rates, rt_synth_role_name(r), json_integer(plan->emg_rate_hz[r]));
+    json_object_set_new(d, "emg_rate_hz", rates);
+    json_object_set_new(d, "mixed_rates", json_boolean(o->mixed_rates));
+    json_object_set_new(d, "emg_range_uv", json_real(rt_synth_emg_range_uv(plan)));
+    if (o->spiky) {
+        json_t *sp = json_object(), *scale = json_object();
+        json_object_set_new(sp, "model", json_string("motor-unit spike trains plus Gaussian noise"));
+        json_object_set_new(sp, "units_per_channel", json_integer(SYNTH_SPIKY_UNITS));
+        json_object_set_new(sp, "scale_method", json_string("calibration run, 600 s, fixed seed"));
+        for (int r = 0; r < SYNTH_ROLES; r++)
+            json_object_set_new(scale, rt_synth_role_name(r), json_real(plan->spiky[r].scale));
+        json_object_set_new(sp, "scale", scale);
+        json_object_set_new(d, "spiky", sp);
+    } else {
+        json_object_set_new(d, "spiky", json_null());
+    }
+    for (int r = 0; r < SYNTH_RULES; r++) {
+        const synth_rule *ru = rt_synth_rule(r);
+        json_t *x = json_object();
+        json_object_set_new(x, "k", json_real(ru->k));
+        json_object_set_new(x, "min_s", json_real(ru->min_s));
+        json_object_set_new(x, "max_s", json_real(ru->max_s));
+        json_object_set_new(rules, ru->name, x);
+    }
+    json_object_set_new(d, "rules", rules);
+    return d;
 }
 
 static json_t *truth_json(const synth_plan *plan)
@@ -337,29 +527,8 @@ static json_t *truth_json(const synth_plan *plan)
     json_object_set_new(rem, "bouts", bouts);
     json_object_set_new(root, "rem", rem);
 
-    json_t *bursts = json_array();
-    for (size_t i = 0; i < plan->n_bursts; i++) {
-        const synth_burst *b = &plan->bursts[i];
-        json_t *o = json_object();
-        json_object_set_new(o, "role", json_string(rt_synth_role_name(b->role)));
-        json_object_set_new(o, "onset_s", json_real(b->onset_s));
-        json_object_set_new(o, "duration_s", json_real(b->duration_s));
-        json_object_set_new(o, "rect_uv", json_real(b->rect_uv));
-        json_object_set_new(o, "arousal_bound", json_boolean(b->arousal_bound));
-        json_array_append_new(bursts, o);
-    }
-    json_object_set_new(root, "bursts", bursts);
-
-    json_t *tonics = json_array();
-    for (size_t i = 0; i < plan->n_tonics; i++) {
-        json_t *o = json_object();
-        json_object_set_new(o, "role", json_string(rt_synth_role_name(SYNTH_CHIN)));
-        json_object_set_new(o, "onset_s", json_real(plan->tonics[i].onset_s));
-        json_object_set_new(o, "duration_s", json_real(plan->tonics[i].duration_s));
-        json_object_set_new(o, "rect_uv", json_real(plan->tonics[i].rect_uv));
-        json_array_append_new(tonics, o);
-    }
-    json_object_set_new(root, "tonic", tonics);
+    json_object_set_new(root, "bursts", bursts_json(plan));
+    json_object_set_new(root, "tonic", tonics_json(plan));
 
     json_t *events = json_array();
     for (size_t i = 0; i < plan->n_events; i++) {
@@ -371,6 +540,7 @@ static json_t *truth_json(const synth_plan *plan)
     }
     json_object_set_new(root, "events", events);
     json_object_set_new(root, "artifacts", artifacts_json(plan));
+    json_object_set_new(root, "difficulty", difficulty_json(plan));
     json_object_set_new(root, "minis_3s", minis_json(plan));
 
     synth_indices ix, ix_ex;

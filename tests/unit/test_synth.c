@@ -288,7 +288,7 @@ static void recount(json_t *t, const char *dir, int exclude)
                 int chin = mask & 1, arm = (mask & 6) != 0;
                 n_chin += chin;
                 n_any += mask != 0;
-                combo |= chin || tonic || arm;
+                combo += chin || tonic || arm;
                 if (exclude && excl)
                     continue;
                 m3++;
@@ -311,7 +311,7 @@ static void recount(json_t *t, const char *dir, int exclude)
             ep_pchin += n_chin >= 5;
             ep_pany += n_any >= 5;
             ep_rswa += tonic || n_any >= 5;
-            ep_combo += combo;
+            ep_combo += combo >= 5; /* SINBAR 30-s: 5 of 10 minis (Frauscher et al. 2014) */
         }
         for (long w = 0; w < len / 20; w++) {
             double s0 = t0 + 20.0 * w;

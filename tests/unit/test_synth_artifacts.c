@@ -327,8 +327,8 @@ static void test_marks_in_signal(void **state)
         } else if (marks[i].reason == RT_QUALITY_FLAT) {
             n_flat++;
             assert_true(fabs(marks[i].start_s - 3300.0) < 0.01 && fabs(marks[i].end_s - 3600.0) < 1e-6);
-        } else {
-            n_pop++;
+        } else if (marks[i].end_s <= 899.0 || marks[i].start_s >= 911.0) {
+            n_pop++; /* steps inside the clipped stretch are left out there anyway */
         }
     }
     for (size_t p = 0; p < json_array_size(pops); p++) {
