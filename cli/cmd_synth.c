@@ -27,7 +27,7 @@ static const cli_option OPTIONS[] = {
     {"clip", 1, KEY_CLIP, "START:SECONDS", "saturate the chin amplifier for a stretch"},
     {"detach", 1, KEY_DETACH, "SECONDS", "detach the chin lead from this time on"},
     {"pops", 1, KEY_POPS, "N", "add N electrode pops to the chin during REM"},
-    {"tonic-runs", 1, KEY_TONIC_RUNS, "EPOCHS", "chin tonic: one run of 1-40 epochs per REM bout (replaces the profile's)"},
+    {"tonic-runs", 1, KEY_TONIC_RUNS, "EPOCHS", "chin tonic: one run of 1-40 epochs in each REM bout"},
     {"tonic-whole-bout", 1, KEY_TONIC_WHOLE_BOUT, "N", "make REM bout N (1 = first) chin-tonic throughout"},
     {"tonic-ratio", 1, KEY_TONIC_RATIO, "R", "tonic level = R x the bout's atonic chin level, 3-20"},
     {"drift", 1, KEY_DRIFT, "GAIN", "EMG gain drifting from 1 to GAIN (0.5-2) over the night"},

@@ -406,8 +406,8 @@ static void tonic_runs_are_whole_epochs_as_placed(void **state)
         assert_true(fmod(rel, 60.0) == 0.0);
         assert_true(v.t_on[i] + v.t_dur[i] <= 30.0 * (v.bout_first[b] + v.bout_epochs[b]));
         assert_true(fabs(v.t_uv[i] - 6.0 * v.bout_bg[b]) <= 5e-4); /* on the 0.001-uV grid */
-        assert_string_equal(json_string_value(json_object_get(json_array_get(json_object_get(t, "tonic"), i), "source")),
-                            "run");
+        json_t *jt = json_array_get(json_object_get(t, "tonic"), i);
+        assert_string_equal(json_string_value(json_object_get(jt, "source")), "run");
         tonic_epochs += len;
     }
     for (int b = 0; b < v.n_bouts; b++)
@@ -546,9 +546,11 @@ static void drift_multiplies_the_emg(void **state)
         }
         static const char *const keys[][2] = {{"aasm", "phasic_any_epochs"}, {"sinbar", "chin_any_fds_phasic_3s"},
                                               {"montreal", "phasic_chin"}};
-        for (int k = 0; k < 3; k++)
-            assert_true(json_equal(json_object_get(json_object_get(json_object_get(tf, "indices"), keys[k][0]), keys[k][1]),
-                                   json_object_get(json_object_get(json_object_get(td, "indices"), keys[k][0]), keys[k][1])));
+        for (int k = 0; k < 3; k++) {
+            json_t *gf = json_object_get(json_object_get(tf, "indices"), keys[k][0]);
+            json_t *gd = json_object_get(json_object_get(td, "indices"), keys[k][0]);
+            assert_true(json_equal(json_object_get(gf, keys[k][1]), json_object_get(gd, keys[k][1])));
+        }
         /* Atonia stays below 2.5 uV everywhere (docs "Drift": under the
          * scorer's 3.18-uV absolute tonic level, 10 uV peak to peak / pi). */
         for (int b = 0; b < vd.n_bouts; b++) {
@@ -716,7 +718,8 @@ static void short_bursts_follow_their_rules(void **state)
             assert_true((double)s - b->on >= 0.05 - 1e-9 && end - (double)s >= 0.05 - 1e-9);
         }
         /* the minis listed for it are the ones it overlaps */
-        json_t *m3 = json_object_get(json_array_get(jb, i), "minis_3s"), *m2 = json_object_get(json_array_get(jb, i), "minis_2s");
+        json_t *m3 = json_object_get(json_array_get(jb, i), "minis_3s");
+        json_t *m2 = json_object_get(json_array_get(jb, i), "minis_2s");
         assert_true(json_integer_value(json_array_get(m3, 0)) == (long)floor(b->on / 3) * 3);
         assert_int_equal(json_array_size(m3), floor(b->on / 3) == floor((end - 1e-9) / 3) ? 1 : 2);
         assert_int_equal(json_array_size(m2), floor(b->on / 2) == floor((end - 1e-9) / 2) ? 1 : 2);
