@@ -3,30 +3,42 @@
 
 #include "cli.h"
 
-enum { KEY_CUTOFFS = 1 };
+enum { KEY_CUTOFFS = 1, KEY_PARAMS };
 
 static const cli_option OPTIONS[] = {
     {"cutoffs", 1, KEY_CUTOFFS, "FILE", "show the cutoffs of a lab's cutoff file instead"},
+    {"params", 0, KEY_PARAMS, NULL, "print the scoring parameters (Markdown) instead"},
     {0},
 };
 
+typedef struct rules_cfg {
+    const char *cutoffs;
+    bool params;
+} rules_cfg;
+
 static int on_option(void *ctx, int key, const char *arg)
 {
+    rules_cfg *c = ctx;
     if (key == KEY_CUTOFFS)
-        *(const char **)ctx = arg;
+        c->cutoffs = arg;
+    else if (key == KEY_PARAMS)
+        c->params = true;
     return EXIT_OK;
 }
 
 static int run(int argc, char **argv)
 {
-    const char *file = NULL;
+    rules_cfg cfg = {NULL, false};
     char *pos[1];
     int npos = 0;
-    int rc = cli_parse(&CLI_RULES, argc, argv, on_option, &file, pos, 0, &npos);
+    int rc = cli_parse(&CLI_RULES, argc, argv, on_option, &cfg, pos, 0, &npos);
     if (rc != EXIT_OK)
         return rc < 0 ? EXIT_OK : rc;
+    const char *file = cfg.cutoffs;
     rt_error err;
     rt_error_clear(&err);
+    if (cfg.params)
+        return rt_params_write_markdown(stdout, &err) == RT_OK ? EXIT_OK : cli_report(&err, 1);
     rt_cutoffs cutoffs;
     rt_cutoffs_published(&cutoffs);
     if (file && rt_cutoffs_load(&cutoffs, file, &err) != RT_OK)
@@ -36,5 +48,5 @@ static int run(int argc, char **argv)
     return EXIT_OK;
 }
 
-const cli_command CLI_RULES = {"rules", "[--cutoffs FILE]",
+const cli_command CLI_RULES = {"rules", "[--cutoffs FILE] [--params]",
                                "Print every index with its cutoff and source.", OPTIONS, run, NULL};

@@ -18,6 +18,17 @@ static void usage(FILE *out)
                  "Exit codes: README.md.\n");
 }
 
+/* Standard output is an output like any other: a write that failed (a full
+ * disk, a closed pipe) is exit 7, never a silent 0. */
+static int finish(int rc)
+{
+    if (fflush(stdout) != 0 || ferror(stdout)) {
+        fprintf(stderr, "remtone: standard output: cannot write\n");
+        return rc == EXIT_OK ? EXIT_OUTPUT : rc;
+    }
+    return rc;
+}
+
 int main(int argc, char **argv)
 {
     if (argc < 2) {
@@ -26,15 +37,15 @@ int main(int argc, char **argv)
     }
     if (strcmp(argv[1], "--help") == 0 || strcmp(argv[1], "help") == 0) {
         usage(stdout);
-        return EXIT_OK;
+        return finish(EXIT_OK);
     }
     if (strcmp(argv[1], "--version") == 0) {
         printf("remtone %s\n", rt_version());
-        return EXIT_OK;
+        return finish(EXIT_OK);
     }
     for (int i = 0; i < N_COMMANDS; i++)
         if (strcmp(argv[1], COMMANDS[i]->name) == 0)
-            return COMMANDS[i]->run(argc - 1, argv + 1);
+            return finish(COMMANDS[i]->run(argc - 1, argv + 1));
     fprintf(stderr, "remtone: unknown command '%s'\n", argv[1]);
     usage(stderr);
     return EXIT_USAGE;

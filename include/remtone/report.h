@@ -75,6 +75,11 @@ rt_status rt_night_write_annotations(const rt_night *night, const rt_recording *
 /* The rule table with the cutoffs in force. */
 rt_status rt_rules_write_text(const rt_cutoffs *cutoffs, FILE *out, rt_error *err);
 
+/* Writes the scoring parameter table (rt_score_param_table: name, default,
+ * range, unit, source) as a Markdown page; docs/parameters.md is this
+ * output, so the docs cannot drift from the code. RT_ERR_IO on a write error. */
+rt_status rt_params_write_markdown(FILE *out, rt_error *err);
+
 #ifdef __cplusplus
 }
 #endif

@@ -255,11 +255,13 @@ typedef struct rt_channel_result {
     bool low_rate;             /* below params.min_rate_hz: scored with a warning */
     double band_high_hz;       /* low-pass corner actually used */
     double rem_median_uv;      /* median rectified envelope over REM */
-    /* The atonic REM background (docs/scoring.md, "Background"):
-     * level(t) = atonic_uv * exp(atonic_drift_per_h * (t - atonic_ref_s) / 3600),
-     * a rectified envelope level in uV; read it with rt_night_background_uv. */
+    /* The atonic REM background (docs/scoring.md, "Background"), a rectified
+     * envelope level in uV: in REM bout b at time t,
+     * atonic_floor_uv * night->bout_lift[b][role] * exp(atonic_drift_per_h * (t - atonic_ref_s) / 3600);
+     * read it with rt_night_background_uv. */
     bool atonic_valid;         /* false: too few scorable REM seconds to fit it */
-    double atonic_uv;
+    double atonic_uv;          /* the night's typical atonic level at atonic_ref_s */
+    double atonic_floor_uv;    /* the floor line at atonic_ref_s */
     double atonic_ref_s;
     double atonic_drift_per_h; /* log-level slope per hour; 0 when no drift was fitted */
     size_t atonic_minutes;     /* REM minute levels the fit used */
@@ -321,6 +323,8 @@ typedef struct rt_night {
     size_t n_minis3;  rt_mini *minis3;          /* 3-s REM mini-epochs */
     size_t n_minis2;  rt_mini *minis2;          /* 2-s REM mini-epochs (Montreal) */
     size_t n_bursts;  rt_burst *bursts;         /* AASM/SINBAR/Montreal bursts in REM */
+    double *bout_lift;   /* n_bouts x RT_ROLE_COUNT: each bout's atonic level over the floor
+                            line (rt_night_background_uv); NaN for an absent role */
     rt_exclusion_summary exclusions;
     rt_agreement agreement;
 } rt_night;
@@ -336,18 +340,28 @@ rt_status rt_night_score(rt_recording *rec, const rt_role_map *roles, const rt_t
                          rt_night **out, rt_error *err);
 void rt_night_free(rt_night *night);
 
-/* The conditioned envelope of a role (uV) over [t0_s, t0_s + seconds), a
- * stretch inside one REM bout of night, exactly as the scorer labelled it:
- * the whole bout is conditioned on the scorer's path (same padding, notches,
- * beats and ECG removal) and the stretch copied out. *env_out (caller frees)
- * holds *n_out samples at *rate_hz. RT_ERR_USAGE when the role is absent or
- * the stretch is not inside one REM bout; the reader's status otherwise. */
-rt_status rt_night_envelope(rt_recording *rec, const rt_night *night, rt_role role, double t0_s,
-                            size_t seconds, double **env_out, size_t *n_out, double *rate_hz,
-                            rt_error *err);
+/* The conditioned envelope a reviewer is shown, exactly as the scorer
+ * labelled it: a tracer conditions whole REM bouts on the scorer's path (same
+ * padding, notches, beats and ECG removal) and keeps the last bout of each
+ * role, so several epochs of one bout cost one conditioning. rec and night
+ * are borrowed and must outlive the tracer; close it with
+ * rt_night_tracer_close (NULL is accepted). */
+typedef struct rt_night_tracer rt_night_tracer;
+rt_status rt_night_tracer_open(rt_recording *rec, const rt_night *night, rt_night_tracer **out,
+                               rt_error *err);
+/* The envelope (uV) of a role over [t0_s, t0_s + seconds), a stretch inside
+ * one REM bout on whole seconds from the bout's start: *env_out (the caller
+ * frees it) holds *n_out samples at *rate_hz. RT_ERR_USAGE when the role is
+ * absent or the stretch is not inside one REM bout; the reader's status
+ * otherwise. */
+rt_status rt_night_tracer_envelope(rt_night_tracer *t, rt_role role, double t0_s, size_t seconds,
+                                   double **env_out, size_t *n_out, double *rate_hz,
+                                   rt_error *err);
+void rt_night_tracer_close(rt_night_tracer *t);
 
-/* The atonic background of a role at t_s (seconds from the recording start),
- * uV of rectified envelope; NaN when the role is absent or not fitted. The
+/* The atonic background of a role at t_s (seconds from the recording start,
+ * inside scored REM), uV of rectified envelope; NaN when the role is absent or
+ * not fitted, or t_s is outside scored REM. The
  * relative rules compare the envelope with k times this value. */
 double rt_night_background_uv(const rt_night *night, rt_role role, double t_s);
 

@@ -132,11 +132,41 @@ static void find_flat(const double *x, size_t n, double rate, mark_sink *k)
         sink_add(k, (double)run_start / rate, (double)n / rate);
 }
 
+/* Whether the step into x[i] is an electrode's, not a muscle's: the level
+ * moves (the mean over RT_QUALITY_POP_SHIFT_S after the step differs from the
+ * mean before it by RT_QUALITY_POP_SHIFT_SHARE of the peak-to-peak range of
+ * both stretches: a pop is a step with a slow decay; the test does not
+ * depend on the sampling rate), or a single sample stands alone (its two neighbours on
+ * each side within a quarter of the step of each other). A motor-unit potential is biphasic
+ * and lasts a few milliseconds: it does neither. */
+static bool electrode_step(const double *x, size_t n, size_t i, double rate, double d)
+{
+    size_t w = (size_t)llround(RT_QUALITY_POP_SHIFT_S * rate);
+    if (w < 2)
+        w = 2;
+    /* a lone sample: flat on both sides of it, not the sampled crest of a
+     * smooth wave (whose neighbours still climb towards it) */
+    if (i >= 2 && i + 2 < n && fabs(x[i + 1] - x[i - 1]) < 0.25 * d &&
+        fabs(x[i - 1] - x[i - 2]) < 0.25 * d && fabs(x[i + 2] - x[i + 1]) < 0.25 * d)
+        return true;
+    if (i < w + 1 || i + w > n)
+        return false;
+    double before = 0.0, after = 0.0, lo = x[i], hi = x[i];
+    for (size_t j = 0; j < w; j++) {
+        before += x[i - 1 - j];
+        after += x[i + j];
+        lo = fmin(lo, fmin(x[i - 1 - j], x[i + j]));
+        hi = fmax(hi, fmax(x[i - 1 - j], x[i + j]));
+    }
+    return fabs(after - before) / (double)w >= RT_QUALITY_POP_SHIFT_SHARE * (hi - lo);
+}
+
 /* Electrode pop: one sample-to-sample step d[i] far above the mean |d| on
  * each side of it (the larger of the two one-sided means over
  * RT_QUALITY_POP_SIDE_S, leaving out 4 samples next to i so the pop's own
- * decay does not hide it). Taking the larger side keeps the onset of a real
- * burst, loud on one side, from being called a pop. */
+ * decay does not hide it), that electrode_step() calls an electrode's.
+ * Taking the larger side keeps the onset of a real burst, loud on one side,
+ * from being called a pop. */
 static void find_pops(const double *x, size_t n, double rate, mark_sink *k)
 {
     enum { GAP = 4 };
@@ -155,7 +185,8 @@ static void find_pops(const double *x, size_t n, double rate, mark_sink *k)
     for (size_t i = first; i <= last; i++) {
         double d = DIFF(i);
         double ref = fmax(left, right) / (double)side;
-        if (isfinite(d) && d >= RT_QUALITY_POP_MIN_UV && d > RT_QUALITY_POP_RATIO * ref) {
+        if (isfinite(d) && d >= RT_QUALITY_POP_MIN_UV && d > RT_QUALITY_POP_RATIO * ref &&
+            electrode_step(x, n, i, rate, d)) {
             double t = (double)i / rate;
             sink_add(k, t - RT_QUALITY_POP_BEFORE_S, t + RT_QUALITY_POP_AFTER_S);
         }

@@ -50,6 +50,8 @@ typedef struct rt_quality_mark {
 #define RT_QUALITY_POP_RATIO 10.0      /* |step| over the larger one-sided mean |step| */
 #define RT_QUALITY_POP_SIDE_S 0.25     /* length of each one-sided neighbourhood */
 #define RT_QUALITY_POP_MIN_UV 10.0     /* smallest step called a pop, uV per sample */
+#define RT_QUALITY_POP_SHIFT_S 0.05      /* level before and after a step, each over this */
+#define RT_QUALITY_POP_SHIFT_SHARE 0.5   /* ... must differ by this share of their range */
 #define RT_QUALITY_POP_BEFORE_S 0.25   /* pop mark: from this before the step ... */
 #define RT_QUALITY_POP_AFTER_S 0.75    /* ... to this after it */
 #define RT_QUALITY_MERGE_S 1.0         /* marks of one reason closer than this are joined */
@@ -73,7 +75,7 @@ double rt_quality_marked_s(const rt_quality_mark *marks, size_t n_marks, rt_qual
 
 /* ---- channel-level checks ------------------------------------------------ */
 
-/* AASM minimum sampling rate for EMG (BRIEF section 2; AASM manual [M]). */
+/* AASM minimum sampling rate for EMG (AASM Manual for the Scoring of Sleep, from memory). */
 #define RT_QUALITY_MIN_RATE_HZ 200.0
 
 typedef struct rt_prefilter {

@@ -699,12 +699,13 @@ typedef struct trace {
 } trace;
 
 /* The envelope and background of one role over the epoch at epoch_t0, from
- * the scorer's own conditioning path and background (rt_night_envelope,
+ * the scorer's own conditioning path and background (rt_night_tracer,
  * rt_night_background_uv): the trace is the one the labels came from. */
-static rt_status recompute(html_ctx *c, rt_role role, double epoch_t0, trace *tr)
+static rt_status recompute(html_ctx *c, rt_night_tracer *tracer, rt_role role, double epoch_t0,
+                           trace *tr)
 {
-    rt_status st = rt_night_envelope(c->rec, c->night, role, epoch_t0, 30, &tr->env, &tr->n,
-                                     &tr->rate_hz, c->err);
+    rt_status st = rt_night_tracer_envelope(tracer, role, epoch_t0, 30, &tr->env, &tr->n,
+                                            &tr->rate_hz, c->err);
     for (int j = 0; j < 30 && st == RT_OK; j++)
         tr->background[j] = rt_night_background_uv(c->night, role, epoch_t0 + j + 0.5);
     return st;
@@ -787,7 +788,7 @@ static void trace_row(html_ctx *c, const trace *tr, rt_role role, size_t k, doub
     rt_svg_text(p, px - 8, y0 + row_h / 2 + 13, "end", "small", lab);
 }
 
-static void evidence_plot(html_ctx *c, size_t rank, size_t k)
+static void evidence_plot(html_ctx *c, size_t rank, size_t k, const trace *traces)
 {
     rt_page *p = &c->p;
     const rt_night *n = c->night;
@@ -820,16 +821,7 @@ static void evidence_plot(html_ctx *c, size_t rank, size_t k)
             continue;
         double y0 = top + row * (row_h + gap);
         row++;
-        trace tr = {0};
-        rt_status st = recompute(c, (rt_role)r, er->onset_s, &tr);
-        if (st != RT_OK) {
-            if (c->status == RT_OK)
-                c->status = st;
-            free(tr.env);
-            break;
-        }
-        trace_row(c, &tr, (rt_role)r, k, y0, row_h, px, pw);
-        free(tr.env);
+        trace_row(c, &traces[r], (rt_role)r, k, y0, row_h, px, pw);
     }
     char t0[16], t1[16];
     rt_report_clock(&c->start, er->onset_s, t0, sizeof t0);
@@ -902,6 +894,34 @@ static void evidence_table(html_ctx *c, const size_t *order, size_t count)
     rt_page_end_html(p);
 }
 
+/* The traces of the plotted epochs, taken in time order so that each REM bout
+ * is conditioned once per role (the tracer keeps the last bout). */
+static rt_status compute_traces(html_ctx *c, const size_t *order, size_t plots,
+                                trace traces[][RT_ROLE_COUNT])
+{
+    size_t by_time[EVIDENCE_PLOTS];
+    for (size_t i = 0; i < plots; i++) {
+        size_t j = i;
+        for (; j > 0 && order[by_time[j - 1]] > order[i]; j--)
+            by_time[j] = by_time[j - 1];
+        by_time[j] = i;
+    }
+    rt_night_tracer *tracer = NULL;
+    rt_status st = rt_night_tracer_open(c->rec, c->night, &tracer, c->err);
+    for (int r = 0; r < RT_ROLE_COUNT && st == RT_OK; r++) {
+        if (r == RT_ROLE_ECG || !c->night->channel[r].present)
+            continue;
+        for (size_t i = 0; i < plots && st == RT_OK; i++) {
+            size_t k = by_time[i];
+            st = recompute(c, tracer, (rt_role)r, c->night->epochs[order[k]].onset_s, &traces[k][r]);
+        }
+    }
+    rt_night_tracer_close(tracer);
+    if (st != RT_OK && c->status == RT_OK)
+        c->status = st;
+    return st;
+}
+
 static void write_evidence(html_ctx *c)
 {
     rt_page *p = &c->p;
@@ -923,8 +943,15 @@ static void write_evidence(html_ctx *c)
                     "Shaded columns: tonic 3-s mini-epochs (violet) and mini-epochs left out "
                     "(grey). Numbers above: the 3-s mini-epochs. Epochs count from 0 at the "
                     "recording start, as in the JSON and CSV files.");
-    for (size_t i = 0; i < count && i < EVIDENCE_PLOTS && !p->failed && c->status == RT_OK; i++)
-        evidence_plot(c, i, order[i]);
+    trace traces[EVIDENCE_PLOTS][RT_ROLE_COUNT];
+    memset(traces, 0, sizeof traces);
+    size_t plots = count < EVIDENCE_PLOTS ? count : EVIDENCE_PLOTS;
+    if (compute_traces(c, order, plots, traces) == RT_OK)
+        for (size_t i = 0; i < plots && !p->failed; i++)
+            evidence_plot(c, i, order[i], traces[i]);
+    for (size_t i = 0; i < plots; i++)
+        for (int r = 0; r < RT_ROLE_COUNT; r++)
+            free(traces[i][r].env);
     rt_page_element(p, "h3", NULL, "Ranked list");
     evidence_table(c, order, count);
     rt_page_end_html(p);

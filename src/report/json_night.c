@@ -87,6 +87,14 @@ static json_t *channels_json(const rt_night *night)
                                                      c->band_high_hz));
         json_object_set_new(x, "low_rate", json_boolean(c->low_rate));
         json_object_set_new(x, "rem_median_uv", number(rounded(c->rem_median_uv, 3)));
+        json_object_set_new(x, "atonic_uv", number(c->atonic_valid ? rounded(c->atonic_uv, 3) : NAN));
+        json_object_set_new(x, "atonic_drift_per_h",
+                            number(c->atonic_valid ? rounded(c->atonic_drift_per_h, 4) : NAN));
+        json_t *lifts = json_array();
+        for (size_t b = 0; night->bout_lift && b < night->n_bouts; b++)
+            json_array_append_new(lifts, number(rounded(c->atonic_floor_uv *
+                                  night->bout_lift[b * RT_ROLE_COUNT + (size_t)r], 3)));
+        json_object_set_new(x, "atonic_bout_uv", lifts);
         json_object_set_new(x, "quality", rt_quality_json(&c->quality));
         json_array_append_new(a, x);
     }

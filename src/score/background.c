@@ -15,7 +15,10 @@
  * 3. Quiet median: a floor is lower than the typical atonic level by the
  *    spread of the minute levels; the seconds at most background_quiet_ratio
  *    times the line are the quiet ones, and their median ratio to the line
- *    lifts it to the atonic level a scorer sees. */
+ *    lifts it to the atonic level a scorer sees: per REM bout (atonia is not
+ *    equally deep in every REM period), or over the night for a bout with too
+ *    few quiet seconds. Tonic seconds (at least twice the atonic level) are
+ *    never quiet, so they cannot lift a bout's background. */
 #include "background.h"
 
 #include <math.h>
@@ -159,6 +162,7 @@ rt_status rt_atonic_fit(const rt_level_point *rem, size_t n, const rt_level_poin
     double lift = quiet ? rt_quantile(r, quiet, 0.5) : 1.0;
     out->valid = true;
     out->level_uv = exp(intercept) * lift;
+    out->floor_uv = exp(intercept);
     out->ref_s = ref;
     out->drift_per_s = slope;
     out->drift_from_nrem = from_nrem;
@@ -174,4 +178,20 @@ double rt_atonic_at(const rt_atonic_model *m, double t_s)
     if (!m->valid)
         return NAN;
     return m->level_uv * exp(m->drift_per_s * (t_s - m->ref_s));
+}
+
+double rt_atonic_bout_lift(const rt_atonic_model *m, const rt_level_point *pts, size_t n,
+                           const rt_score_params *p, double *scratch)
+{
+    if (!m->valid)
+        return NAN;
+    size_t quiet = 0;
+    for (size_t i = 0; i < n; i++) {
+        double line = m->floor_uv * exp(m->drift_per_s * (pts[i].t_s - m->ref_s));
+        double ratio = pts[i].level_uv / line;
+        if (ratio > 0 && ratio <= p->background_quiet_ratio)
+            scratch[quiet++] = ratio;
+    }
+    return quiet >= MIN_SECONDS_PER_MINUTE ? rt_quantile(scratch, quiet, 0.5)
+                                           : m->level_uv / m->floor_uv;
 }

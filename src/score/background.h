@@ -19,7 +19,8 @@ typedef struct rt_level_point {
 
 typedef struct rt_atonic_model {
     bool valid;        /* false: too few usable seconds to fit (fewer than 10) */
-    double level_uv;   /* atonic level at ref_s */
+    double level_uv;   /* the night's atonic level at ref_s: floor_uv x the night's lift */
+    double floor_uv;   /* the floor line at ref_s, before any lift */
     double ref_s;      /* reference time, seconds from the recording start */
     double drift_per_s;/* log-level slope: level(t) = level_uv * exp(drift_per_s * (t - ref_s)) */
     bool drift_from_nrem; /* the slope was fitted to NREM levels (else to REM) */
@@ -38,5 +39,13 @@ rt_status rt_atonic_fit(const rt_level_point *rem, size_t n, const rt_level_poin
 
 /* The model's level at t_s (NaN when not valid). */
 double rt_atonic_at(const rt_atonic_model *m, double t_s);
+
+/* The atonic level of one REM bout relative to the night's floor line: the
+ * median ratio to the line of the bout's quiet seconds pts[0..n) (those at
+ * most background_quiet_ratio times the line). With fewer than 10 quiet
+ * seconds (a tonic bout, a bout of scraps) the night's lift. The bout's
+ * background is floor line x this lift. scratch holds n doubles. */
+double rt_atonic_bout_lift(const rt_atonic_model *m, const rt_level_point *pts, size_t n,
+                           const rt_score_params *p, double *scratch);
 
 #endif

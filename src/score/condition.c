@@ -81,6 +81,7 @@ rt_status rt_conditioner_open(rt_recording *rec, const rt_role_source *src,
     c->src = *src;
     c->info = rt_recording_channel(rec, src->channel);
     c->envelope_window = samples_of(p->envelope_window_s, src->rate_hz);
+    c->level_quantile = p->background_level_quantile;
     c->mains.line_db = -99.0;
     c->mains.low_edge_db = c->mains.high_edge_db = NAN;
     rt_bandpass_spec spec = rt_bandpass_spec_defaults(src->rate_hz);
@@ -253,7 +254,8 @@ rt_status rt_condition_stretch(const rt_conditioner *c, double t0_s, size_t seco
     s->env = s->buf + off;
     /* a stride of a quarter window: the envelope barely moves in between */
     size_t stride = c->envelope_window / 4 ? c->envelope_window / 4 : 1;
-    rt_block_quantiles(s->env, s->starts, seconds, 0.5, stride, s->level_uv, s->scratch);
+    rt_block_quantiles(s->env, s->starts, seconds, c->level_quantile, stride, s->level_uv,
+                       s->scratch);
     return RT_OK;
 }
 

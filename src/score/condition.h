@@ -8,7 +8,7 @@
  * (docs/scoring.md, "Conditioning"). The steps, in order:
  *   read (uV, bipolar derivation) -> quality marks on the raw signal ->
  *   notch + band-pass (zero-phase, FFTW) -> ECG template subtraction ->
- *   rectified 50-ms envelope -> per-second levels.
+ *   rectified envelope -> per-second levels.
  * The atonic background is a property of the night, not of a stretch: it is
  * fitted from the per-second levels of every REM bout (background.c). */
 #ifndef REMTONE_CONDITION_H
@@ -38,6 +38,7 @@ typedef struct rt_conditioner {
     const rt_channel_info *info;   /* the channel's header (physical limits) */
     rt_bandpass *bp;               /* owned */
     size_t envelope_window;        /* samples */
+    double level_quantile;         /* a second's level: this quantile of its envelope */
     rt_mains mains;                /* the mains estimate behind the notches */
 } rt_conditioner;
 
@@ -69,7 +70,7 @@ typedef struct rt_stretch {
     size_t n;                 /* samples of the stretch */
     double *env;              /* rectified envelope, uV, n samples */
     size_t *starts;           /* seconds + 1 sample boundaries of the seconds */
-    double *level_uv;         /* per second: median envelope */
+    double *level_uv;         /* per second: the background_level_quantile of the envelope */
     double *rect_mean_uv;     /* per second: mean rectified amplitude (REM Atonia Index) */
     rt_quality_mark *marks;   /* quality marks clipped to [0, seconds], relative to t0 */
     size_t n_marks;

@@ -47,6 +47,8 @@ typedef struct pass_ctx {
     size_t span_cap;
     rt_level_point *points[RT_ROLE_COUNT]; /* pass 1: scorable REM seconds */
     size_t n_points[RT_ROLE_COUNT];
+    size_t *bout_first_point[RT_ROLE_COUNT]; /* per bout: its first entry in points, */
+                                             /* and (at n_bouts) the end */
     rt_level_point *nrem_points[RT_ROLE_COUNT]; /* NREM seconds (drift) */
     size_t n_nrem_points[RT_ROLE_COUNT];
     rt_atonic_model model[RT_ROLE_COUNT];
@@ -264,7 +266,7 @@ static rt_status bout_background(pass_ctx *c, rt_role role, const bout_span *bou
         c->bg_cap = seconds + 1;
     }
     for (size_t j = 0; j < seconds; j++)
-        c->bg[j] = rt_atonic_at(&c->model[role], bout->t0 + (double)j + 0.5);
+        c->bg[j] = rt_night_background_uv(c->night, role, bout->t0 + (double)j + 0.5);
     c->bg[seconds] = seconds ? c->bg[seconds - 1] : NAN;
     size_t need = 10 * seconds + 16; /* bursts are 0.1 s apart at the least */
     if (need > c->span_cap) {
@@ -302,7 +304,11 @@ static rt_status collect_levels(pass_ctx *c, rt_role role, const bout_span *bout
 {
     rt_status st = rt_condition_stretch(&c->cond[role], bout->t0, bout->n_epochs * 30,
                                         &c->beats[b], &c->st, err);
-    return st == RT_OK ? append_levels(&c->st, &c->points[role], &c->n_points[role], err) : st;
+    c->bout_first_point[role][b] = c->n_points[role];
+    if (st == RT_OK)
+        st = append_levels(&c->st, &c->points[role], &c->n_points[role], err);
+    c->bout_first_point[role][b + 1] = c->n_points[role];
+    return st;
 }
 
 /* Pass 2 for one role of one bout: quality, bursts, tonic, RAI. */
@@ -341,9 +347,14 @@ static rt_status label_role_bout(pass_ctx *c, rt_role role, const bout_span *bou
     return role == RT_ROLE_CHIN ? count_rai(c, bout, err) : RT_OK;
 }
 
+/* Limb NREM runs read for the drift: one run in NREM_DRIFT_STRIDE (10 minutes
+ * of every hour or so of NREM is plenty for a line through the night). */
+#define NREM_DRIFT_STRIDE 6
+
 /* NREM in runs of up to 20 epochs on the same conditioning path as REM: the
- * per-second levels of every role (the drift of its background; every third
- * run is enough for that) and, for the chin, the AASM tonic reference: a low
+ * per-second levels of every role (the drift of its background; the chin's
+ * from every run, the limbs' from every NREM_DRIFT_STRIDE-th) and, for the
+ * chin, the AASM tonic reference: a low
  * quantile of the median envelope of each unmarked NREM epoch ("the minimum
  * amplitude in NREM"). */
 static rt_status nrem_pass(pass_ctx *c, const rt_timeline *tl, double *ref, rt_error *err)
@@ -368,7 +379,7 @@ static rt_status nrem_pass(pass_ctx *c, const rt_timeline *tl, double *ref, rt_e
         while (e + run < tl->n_epochs && is_nrem(tl->stages[e + run]) && run < 20)
             run++;
         for (int r = 0; r < RT_ROLE_COUNT && st == RT_OK; r++) {
-            if (!c->cond_open[r] || (r != RT_ROLE_CHIN && chunk % 3 != 0))
+            if (!c->cond_open[r] || (r != RT_ROLE_CHIN && chunk % NREM_DRIFT_STRIDE != 0))
                 continue;
             st = rt_condition_stretch(&c->cond[r], (double)e * tl->epoch_s, run * 30, NULL,
                                       &c->st, err);
@@ -552,6 +563,14 @@ static rt_status fit_backgrounds(pass_ctx *c, rt_error *err)
 {
     rt_night *night = c->night;
     rt_status st = RT_OK;
+    night->bout_lift = rt_calloc(night->n_bouts * RT_ROLE_COUNT + 1, sizeof *night->bout_lift);
+    bool ok = night->bout_lift != NULL;
+    for (int r = 0; r < RT_ROLE_COUNT; r++) {
+        c->bout_first_point[r] = rt_calloc(night->n_bouts + 1, sizeof *c->bout_first_point[r]);
+        ok = ok && c->bout_first_point[r];
+    }
+    if (!ok)
+        return rt_fail(err, RT_ERR_NOMEM, "out of memory for %zu REM bouts", night->n_bouts);
     for (size_t b = 0; b < night->n_bouts && st == RT_OK; b++) {
         st = rt_condition_beats(c->rec, c->roles, c->bouts[b].t0, c->bouts[b].n_epochs * 30,
                                 &c->beats[b], &c->beats_source[b], err);
@@ -562,14 +581,25 @@ static rt_status fit_backgrounds(pass_ctx *c, rt_error *err)
     for (int r = 0; r < RT_ROLE_COUNT && st == RT_OK; r++) {
         if (!c->cond_open[r])
             continue;
+        const rt_atonic_model *m = &c->model[r];
         st = rt_atonic_fit(c->points[r], c->n_points[r], c->nrem_points[r], c->n_nrem_points[r],
                            &night->params, &c->model[r], err);
         rt_channel_result *cr = &night->channel[r];
-        cr->atonic_valid = c->model[r].valid;
-        cr->atonic_uv = c->model[r].level_uv;
-        cr->atonic_ref_s = c->model[r].ref_s;
-        cr->atonic_drift_per_h = c->model[r].drift_per_s * 3600.0;
-        cr->atonic_minutes = c->model[r].minutes;
+        cr->atonic_valid = m->valid;
+        cr->atonic_uv = m->level_uv;
+        cr->atonic_floor_uv = m->floor_uv;
+        cr->atonic_ref_s = m->ref_s;
+        cr->atonic_drift_per_h = m->drift_per_s * 3600.0;
+        cr->atonic_minutes = m->minutes;
+        double *scratch = rt_calloc(c->n_points[r] + 1, sizeof *scratch);
+        if (st == RT_OK && !scratch)
+            st = rt_fail(err, RT_ERR_NOMEM, "out of memory for the bout backgrounds");
+        for (size_t b = 0; b < night->n_bouts && st == RT_OK; b++) {
+            size_t first = c->bout_first_point[r][b], end = c->bout_first_point[r][b + 1];
+            night->bout_lift[b * RT_ROLE_COUNT + (size_t)r] =
+                rt_atonic_bout_lift(m, c->points[r] + first, end - first, &night->params, scratch);
+        }
+        free(scratch);
     }
     return st;
 }
@@ -580,6 +610,7 @@ static void pass_ctx_free(pass_ctx *c)
         rt_conditioner_close(&c->cond[r]);
         free(c->points[r]);
         free(c->nrem_points[r]);
+        free(c->bout_first_point[r]);
     }
     if (c->beats)
         for (size_t b = 0; b < c->night->n_bouts; b++)
@@ -683,10 +714,23 @@ rt_status rt_night_score(rt_recording *rec, const rt_role_map *roles, const rt_t
 double rt_night_background_uv(const rt_night *night, rt_role role, double t_s)
 {
     if (!night || (int)role < 0 || role >= RT_ROLE_COUNT || !night->channel[role].present ||
-        !night->channel[role].atonic_valid)
+        !night->channel[role].atonic_valid || !night->bout_lift)
         return NAN;
     const rt_channel_result *cr = &night->channel[role];
-    return cr->atonic_uv * exp(cr->atonic_drift_per_h * (t_s - cr->atonic_ref_s) / 3600.0);
+    /* the REM epoch holding t_s gives the bout (epochs are in time order) */
+    size_t lo = 0, hi = night->n_epochs;
+    while (lo < hi) {
+        size_t mid = lo + (hi - lo) / 2;
+        if (night->epochs[mid].onset_s + 30.0 <= t_s)
+            lo = mid + 1;
+        else
+            hi = mid;
+    }
+    if (lo == night->n_epochs || night->epochs[lo].onset_s > t_s)
+        return NAN; /* not in scored REM */
+    double lift = night->bout_lift[night->epochs[lo].bout * RT_ROLE_COUNT + (size_t)role];
+    return cr->atonic_floor_uv * lift *
+           exp(cr->atonic_drift_per_h * (t_s - cr->atonic_ref_s) / 3600.0);
 }
 
 void rt_night_free(rt_night *night)
@@ -697,5 +741,6 @@ void rt_night_free(rt_night *night)
     free(night->minis3);
     free(night->minis2);
     free(night->bursts);
+    free(night->bout_lift);
     free(night);
 }

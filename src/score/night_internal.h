@@ -22,9 +22,6 @@ struct rt_exclusion_masks;
 
 typedef struct scoring_state {
     struct rt_exclusion_masks *masks; /* REM seconds left out, and why */
-    const double *beats_s;     /* R peaks of the current bout, seconds from its start */
-    size_t n_beats;
-    int beats_source;          /* 0 none, 1 ECG channel, 2 chin */
     size_t montreal_windows;
     size_t montreal_tonic;
     rt_rai_counts rai;

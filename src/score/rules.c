@@ -1,6 +1,6 @@
 /* The one table of indices, cutoffs and sources, printed by `remtone rules`
  * and used by every report. A value marked from_memory was recalled, not
- * checked against the published text (BRIEF section 3 marks them [M]); such a
+ * checked against the published text; such a
  * cutoff is shown as context and never raises the review level on its own
  * (indices.c, review). Every other cutoff was checked against the text named
  * beside it; tests/unit/test_rules_sources.c quotes the passages. */

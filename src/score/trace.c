@@ -1,6 +1,7 @@
-/* The envelope a reviewer is shown: one stretch of a REM bout conditioned on
- * the scorer's own path (condition.c), so the trace on the review page is the
- * one the labels came from. */
+/* The envelope a reviewer is shown: stretches of REM bouts conditioned on the
+ * scorer's own path (condition.c), so the trace on the review page is the one
+ * the labels came from. A tracer keeps, per role, the last bout it
+ * conditioned: asking for several epochs of one bout conditions it once. */
 #include <math.h>
 #include <stdint.h>
 #include <stdlib.h>
@@ -9,9 +10,21 @@
 #include "condition.h"
 #include "internal.h"
 
-/* The REM bout holding [t0_s, t0_s + seconds): its onset and length. */
-static bool find_bout(const rt_night *night, double t0_s, size_t seconds, size_t bout,
-                      double *bout_t0, size_t *bout_s)
+struct rt_night_tracer {
+    rt_recording *rec;
+    const rt_night *night;
+    double first_t0;                  /* the first REM bout: the mains probe */
+    size_t first_s;
+    rt_conditioner cond[RT_ROLE_COUNT];
+    bool open[RT_ROLE_COUNT];
+    rt_stretch st[RT_ROLE_COUNT];
+    size_t bout[RT_ROLE_COUNT];       /* bout held in st, SIZE_MAX: none */
+    rt_qrs_beats beats;               /* beats of beats_bout */
+    size_t beats_bout;
+};
+
+/* Onset and length of a REM bout from the epochs list; false when none. */
+static bool bout_extent(const rt_night *night, size_t bout, double *t0, size_t *seconds)
 {
     bool any = false;
     double first = 0.0, last = 0.0;
@@ -23,55 +36,102 @@ static bool find_bout(const rt_night *night, double t0_s, size_t seconds, size_t
         last = night->epochs[e].onset_s + 30.0;
         any = true;
     }
-    *bout_t0 = first;
-    *bout_s = (size_t)llround(last - first);
-    return any && t0_s >= first - 1e-9 && t0_s + (double)seconds <= last + 1e-9;
+    *t0 = first;
+    *seconds = (size_t)llround(last - first);
+    return any;
 }
 
-rt_status rt_night_envelope(rt_recording *rec, const rt_night *night, rt_role role, double t0_s,
-                            size_t seconds, double **env_out, size_t *n_out, double *rate_hz,
-                            rt_error *err)
+rt_status rt_night_tracer_open(rt_recording *rec, const rt_night *night, rt_night_tracer **out,
+                               rt_error *err)
+{
+    *out = NULL;
+    rt_night_tracer *t = rt_calloc(1, sizeof *t);
+    if (!t)
+        return rt_fail(err, RT_ERR_NOMEM, "out of memory for the review traces");
+    t->rec = rec;
+    t->night = night;
+    t->beats_bout = SIZE_MAX;
+    for (int r = 0; r < RT_ROLE_COUNT; r++)
+        t->bout[r] = SIZE_MAX;
+    if (night->n_epochs)
+        bout_extent(night, night->epochs[0].bout, &t->first_t0, &t->first_s);
+    *out = t;
+    return RT_OK;
+}
+
+void rt_night_tracer_close(rt_night_tracer *t)
+{
+    if (!t)
+        return;
+    for (int r = 0; r < RT_ROLE_COUNT; r++) {
+        rt_conditioner_close(&t->cond[r]);
+        rt_stretch_free(&t->st[r]);
+    }
+    rt_qrs_beats_free(&t->beats);
+    free(t);
+}
+
+/* Conditions the whole bout for a role exactly as the scorer's second pass did. */
+static rt_status condition_bout(rt_night_tracer *t, rt_role role, size_t bout, rt_error *err)
+{
+    const rt_night *night = t->night;
+    rt_status st = RT_OK;
+    if (!t->open[role]) {
+        st = rt_conditioner_open(t->rec, &night->roles.role[role], &night->params, t->first_t0,
+                                 (double)t->first_s, &t->cond[role], err);
+        if (st != RT_OK)
+            return st;
+        t->open[role] = true;
+    }
+    double bt0 = 0.0;
+    size_t bs = 0;
+    bout_extent(night, bout, &bt0, &bs);
+    if (t->beats_bout != bout) {
+        int source = 0;
+        rt_qrs_beats_free(&t->beats);
+        t->beats_bout = SIZE_MAX;
+        st = rt_condition_beats(t->rec, &night->roles, bt0, bs, &t->beats, &source, err);
+        if (st != RT_OK)
+            return st;
+        t->beats_bout = bout;
+    }
+    t->bout[role] = SIZE_MAX;
+    st = rt_condition_stretch(&t->cond[role], bt0, bs, &t->beats, &t->st[role], err);
+    if (st == RT_OK)
+        t->bout[role] = bout;
+    return st;
+}
+
+rt_status rt_night_tracer_envelope(rt_night_tracer *t, rt_role role, double t0_s, size_t seconds,
+                                   double **env_out, size_t *n_out, double *rate_hz, rt_error *err)
 {
     *env_out = NULL;
     *n_out = 0;
+    const rt_night *night = t->night;
     if ((int)role < 0 || role >= RT_ROLE_COUNT || role == RT_ROLE_ECG ||
         !night->channel[role].present)
-        return rt_fail(err, RT_ERR_USAGE, "no %s channel in this night", rt_role_name(role));
+        return rt_fail(err, RT_ERR_USAGE, "no %s channel in this night",
+                       (int)role >= 0 && role < RT_ROLE_COUNT ? rt_role_name(role) : "such");
     size_t bout = SIZE_MAX;
     for (size_t e = 0; e < night->n_epochs && bout == SIZE_MAX; e++)
         if (t0_s >= night->epochs[e].onset_s - 1e-9 && t0_s < night->epochs[e].onset_s + 30.0)
             bout = night->epochs[e].bout;
-    double bt0 = 0.0, first_t0 = 0.0;
-    size_t bs = 0, first_s = 0;
-    if (bout == SIZE_MAX || !find_bout(night, t0_s, seconds, bout, &bt0, &bs) ||
-        !find_bout(night, night->epochs[0].onset_s, 0, 0, &first_t0, &first_s))
+    double bt0 = 0.0;
+    size_t bs = 0;
+    if (bout == SIZE_MAX || !bout_extent(night, bout, &bt0, &bs) ||
+        t0_s + (double)seconds > bt0 + (double)bs + 1e-9)
         return rt_fail(err, RT_ERR_USAGE, "%g s + %zu s is not inside one REM bout", t0_s, seconds);
-    rt_conditioner c;
-    rt_status st = rt_conditioner_open(rec, &night->roles.role[role], &night->params, first_t0,
-                                       (double)first_s, &c, err);
+    rt_status st = t->bout[role] == bout ? RT_OK : condition_bout(t, role, bout, err);
     if (st != RT_OK)
         return st;
-    rt_qrs_beats beats;
-    int source = 0;
-    rt_stretch s;
-    memset(&s, 0, sizeof s);
-    st = rt_condition_beats(rec, &night->roles, bt0, bs, &beats, &source, err);
-    if (st == RT_OK)
-        st = rt_condition_stretch(&c, bt0, bs, &beats, &s, err);
-    if (st == RT_OK) {
-        size_t a = s.starts[(size_t)llround(t0_s - bt0)];
-        size_t b = s.starts[(size_t)llround(t0_s - bt0) + seconds];
-        *env_out = rt_calloc(b > a ? b - a : 1, sizeof **env_out);
-        if (!*env_out) {
-            st = rt_fail(err, RT_ERR_NOMEM, "out of memory for a trace of %zu samples", b - a);
-        } else {
-            memcpy(*env_out, s.env + a, (b - a) * sizeof **env_out);
-            *n_out = b - a;
-            *rate_hz = s.rate_hz;
-        }
-    }
-    rt_stretch_free(&s);
-    rt_qrs_beats_free(&beats);
-    rt_conditioner_close(&c);
-    return st;
+    const rt_stretch *s = &t->st[role];
+    size_t first = (size_t)llround(t0_s - bt0);
+    size_t a = s->starts[first], b = s->starts[first + seconds];
+    *env_out = rt_calloc(b > a ? b - a : 1, sizeof **env_out);
+    if (!*env_out)
+        return rt_fail(err, RT_ERR_NOMEM, "out of memory for a trace of %zu samples", b - a);
+    memcpy(*env_out, s->env + a, (b - a) * sizeof **env_out);
+    *n_out = b - a;
+    *rate_hz = s->rate_hz;
+    return RT_OK;
 }

@@ -147,6 +147,15 @@ import json,sys; d=json.load(open(sys.argv[1]))
 assert d["rem"]["epochs"]==1 and d["review"]["level"]=="not-assessable"' "$work/h.json"
 check rules 0 "$bin" rules
 for id in aasm.rswa_epochs sinbar.chin_any_fds_phasic_3s montreal.phasic_chin rai; do has "rules-$id" "$work/out" "$id"; done
+# docs/parameters.md is the parameter table's own output: it cannot drift from the code
+check rules-params 0 "$bin" rules --params
+if cmp -s "$work/out" "${REMTONE_SOURCE:?}/docs/parameters.md"; then echo "ok   parameters-doc-current"
+else echo "FAIL parameters-doc-current: regenerate with: build/remtone rules --params > docs/parameters.md"; fails=$((fails+1)); fi
+# standard output is checked like any output: a full device is exit 7
+if [ -w /dev/full ]; then
+  check stdout-full-rules 7 sh -c '"$1" rules --params >/dev/full' sh "$bin"
+  check stdout-full-scan 7 sh -c '"$1" scan "$2" >/dev/full' sh "$bin" "$work/n/night.edf"
+fi
 
 echo "$((fails)) failed"
 [ "$fails" = 0 ]

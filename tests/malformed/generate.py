@@ -16,7 +16,7 @@ sys.path.insert(0, HERE)
 import edf_writer as ew  # noqa: E402
 
 RECORDS = 300          # 1-s records: 5 minutes, 10 epochs of 30 s
-CHIN_HZ = 256          # above the AASM minimum of 200 Hz (BRIEF.md section 2)
+CHIN_HZ = 256          # above the AASM minimum of 200 Hz (AASM Manual, from memory)
 
 # signal header field offsets for ns signals (EDF spec: fields stored field by field)
 WIDTHS = [16, 80, 8, 8, 8, 8, 8, 80, 8, 32]

@@ -59,7 +59,7 @@ static void summarise(rt_night *n)
 }
 
 /* AASM Manual v2: excessive transient muscle activity when at least 5 of the
- * 10 3-s mini-epochs hold bursts [BRIEF section 3]. */
+ * 10 3-s mini-epochs hold bursts (AASM Manual v2, from memory). */
 static void aasm_five_of_ten(void **state)
 {
     (void)state;
@@ -69,7 +69,7 @@ static void aasm_five_of_ten(void **state)
     assert_true(index_of(5, RT_IX_AASM_RSWA, NULL) == 100.0);
 }
 
-/* Indices needing a missing channel are not computed, never 0 (scoring issue). */
+/* Indices needing a missing channel are not computed, never 0 (common practice: an absent channel is no evidence). */
 static void missing_arms_not_computed(void **state)
 {
     (void)state;

@@ -4,7 +4,7 @@
  * index unambiguous and computes the indices from what it placed
  * (docs/synthetic-nights.md); the scorer sees only the EDF+ and the stage
  * table. Target: every index within 2 percentage points, the REM Atonia Index
- * within 0.03 (BRIEF section 5 and the scoring issue). */
+ * within 0.03 (our accuracy target, docs/validation.md). */
 #include "support.h"
 
 #include <jansson.h>
@@ -53,7 +53,7 @@ static void free_scored(scored *s)
     json_decref(s->truth);
 }
 
-/* The indices of the scoring issue's table: the truth defines each of them. */
+/* The indices the generator's truth defines (docs/synthetic-nights.md). */
 static bool in_truth_table(rt_index_id id) { return id <= RT_IX_RAI; }
 
 static void check_against(const scored *s, const char *label, const char *key)
@@ -201,7 +201,7 @@ static void leg_movements_from_leg_emg(void **state)
     printf("# rbd leg movements per REM hour: truth %.1f, scored %.1f\n", want, got);
     assert_true(want > 24.0);
     /* within 20 %: placed bursts of 0.5-0.6 s fall either side of the 0.5-s
-     * limit once measured at half height (the 10 % of the issue is not met yet) */
+     * limit once measured at half height (10 % is the aim, not met yet) */
     assert_true(fabs(got - want) <= 0.2 * want);
     free_scored(&s);
     s = score_synthetic(RT_SYNTH_TYPICAL_OLDER, 1, 3.0);

@@ -5,7 +5,7 @@
  * prefilter text and the rate check; the QRS window helpers.
  * Test EMG is Gaussian noise band-passed to 20-150 Hz (a surface EMG
  * spectrum lies mostly in 20-150 Hz: common practice) at a rectified level
- * of 1-2 uV (BRIEF section 2, [M]). */
+ * of 1-2 uV (from memory). */
 #include "support.h"
 
 #include <math.h>
@@ -306,6 +306,43 @@ static void test_marks_pops(void **state)
 
 /* Degenerate input: nothing found, nothing read out of bounds (valgrind
  * and the sanitizer builds watch this), non-finite samples count as clipped. */
+/* Motor-unit potentials are not pops, at any rate: sparse biphasic spikes
+ * (derivative-of-Gaussian shape, sigma 3 ms, +-150 uV, 8 per second) on quiet
+ * EMG leave no pop mark, while a step of 100 uV decaying with 0.1 s, in a
+ * second without spikes (the step must stand out of its neighbourhood), does,
+ * from 200 to 2000 Hz (a pop is a step with a slow decay, common practice;
+ * a motor-unit potential is biphasic and lasts a few ms, common practice). */
+static void test_marks_spikes_are_not_pops(void **state)
+{
+    (void)state;
+    const double rates[4] = {200.0, 512.0, 1000.0, 2000.0};
+    for (int r = 0; r < 4; r++) {
+        double rate = rates[r];
+        size_t n = (size_t)(20 * rate);
+        double *x = rt_test_band_noise(n, rate, 10.0, 0.45 * rate < 100.0 ? 0.45 * rate : 100.0, 1.0);
+        for (double c = 0.3; c < 20.0; c += 0.125) {
+            if (c > 9.6 && c < 10.6)
+                continue; /* the quiet second of the pop */
+            for (size_t i = (size_t)((c - 0.015) * rate); i < (size_t)((c + 0.015) * rate); i++) {
+                double v = ((double)i / rate - c) / 0.003;
+                x[i] += -150.0 * v * exp(0.5 - 0.5 * v * v);
+            }
+        }
+        rt_channel_info ch = chin_info(rate);
+        rt_quality_mark marks[64];
+        size_t f = 0, k = rt_quality_marks(x, n, rate, &ch, marks, 64);
+        print_message("# %g Hz: %zu pop marks on motor-unit spikes\n", rate,
+                      marks_of(marks, k, RT_QUALITY_POP, &f));
+        assert_int_equal(marks_of(marks, k, RT_QUALITY_POP, &f), 0);
+        for (size_t i = (size_t)(10.06 * rate); i < n; i++)
+            x[i] += 100.0 * exp(-((double)i / rate - 10.06) / 0.1);
+        k = rt_quality_marks(x, n, rate, &ch, marks, 64);
+        assert_int_equal(marks_of(marks, k, RT_QUALITY_POP, &f), 1);
+        assert_true(marks[f].start_s <= 10.06 && marks[f].end_s > 10.06);
+        free(x);
+    }
+}
+
 static void test_marks_edges(void **state)
 {
     (void)state;
@@ -356,7 +393,7 @@ static void test_channel_check(void **state)
     rt_channel_check c;
     rt_quality_check_channel(&ch, 10.0, 100.0, &c);
     assert_false(c.rate_below_min || c.hp_above_band || c.lp_below_band || c.notch_at_source);
-    /* AASM: 200 Hz minimum ([M], BRIEF section 2) */
+    /* AASM Manual: 200 Hz minimum (from memory) */
     ch.rate_hz = 199.0;
     strcpy(ch.prefilter, "HP:20Hz LP:70Hz N:50Hz");
     rt_quality_check_channel(&ch, 10.0, 100.0, &c);
@@ -397,6 +434,7 @@ int main(void)
         cmocka_unit_test(test_marks_clipping),
         cmocka_unit_test(test_marks_flat),
         cmocka_unit_test(test_marks_pops),
+        cmocka_unit_test(test_marks_spikes_are_not_pops),
         cmocka_unit_test(test_marks_edges),
         cmocka_unit_test(test_prefilter_parse),
         cmocka_unit_test(test_channel_check),

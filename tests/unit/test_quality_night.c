@@ -1,8 +1,8 @@
 /* Quality control on whole synthetic nights: with each artifact added to a
  * typical-older night, every index stays within 2 points (RAI 0.03) of the
  * generator's truth for the clean night and the night is not flagged; with a
- * detached chin lead the night is not assessable (the quality issue's
- * acceptance checks; artifact models in docs/quality.md). */
+ * detached chin lead the night is not assessable (artifact models and
+ * targets in docs/quality.md). */
 #include "support.h"
 
 #include <jansson.h>

@@ -1,6 +1,6 @@
 /* REM Atonia Index: worked values from its formula (Ferri et al. 2010, Sleep
  * Med 11:947-949: RAI = % of 1-s values <= 1 uV / (100 - % in (1, 2] uV), after
- * removing the minimum of a 60-value window [BRIEF section 3, from memory]). */
+ * removing the minimum of a 60-value window (Ferri et al. 2008, J Sleep Res; Ferri et al. 2010, Sleep Med 11:947; from memory)). */
 #include "support.h"
 
 #include <math.h>

@@ -20,35 +20,19 @@
 #include "score/bandpass.h"
 #include "score/fft_plans.h"
 
-static const double PI = 3.14159265358979323846;
-
 static char dir_art[4096], dir_art2[4096], dir_clean[4096];
 
 static rt_synth_options artifact_options(uint64_t seed)
 {
-    rt_synth_options o;
-    rt_synth_options_default(&o);
-    o.hours = 1.0;
-    o.seed = seed;
-    o.mains_hz = 60.0;
-    o.mains_uv = 4.0;
-    o.mains_harmonics = 2;
-    o.ecg_bleed_uv = 15.0;
-    o.ecg_bleed_limb_uv = 5.0;
+    rt_synth_options o = rt_test_synth_options(1.0, seed);
+    /* one line a switch of remtone synth */
+    o.mains_hz = 60.0; o.mains_uv = 4.0; o.mains_harmonics = 2;
+    o.ecg_bleed_uv = 15.0; o.ecg_bleed_limb_uv = 5.0;
     o.heart_rate_bpm = 75.0;
-    o.clip_start_s = 900.0;
-    o.clip_duration_s = 10.0;
+    o.clip_start_s = 900.0; o.clip_duration_s = 10.0;
     o.detach_s = 3300.0;
     o.pops = 4;
     return o;
-}
-
-static void write_or_fail(const rt_synth_options *o, const char *dir)
-{
-    rt_error err;
-    rt_error_clear(&err);
-    if (rt_synth_write(o, dir, &err) != RT_OK)
-        fail_msg("rt_synth_write: %s", err.message);
 }
 
 static int setup(void **state)
@@ -57,15 +41,12 @@ static int setup(void **state)
     uint64_t seed = rt_test_seed();
     rt_synth_options o = artifact_options(seed);
     snprintf(dir_art, sizeof dir_art, "%s", rt_test_dir("synth_art"));
-    write_or_fail(&o, dir_art);
+    rt_test_synth_write(&o, dir_art);
     snprintf(dir_art2, sizeof dir_art2, "%s", rt_test_dir("synth_art2"));
-    write_or_fail(&o, dir_art2);
-    rt_synth_options c;
-    rt_synth_options_default(&c);
-    c.hours = 1.0;
-    c.seed = seed;
+    rt_test_synth_write(&o, dir_art2);
+    rt_synth_options c = rt_test_synth_options(1.0, seed);
     snprintf(dir_clean, sizeof dir_clean, "%s", rt_test_dir("synth_clean"));
-    write_or_fail(&c, dir_clean);
+    rt_test_synth_write(&c, dir_clean);
     return 0;
 }
 
@@ -83,43 +64,11 @@ static char *slurp(const char *dir, const char *name, size_t *len)
     return rt_test_read_all(path, len);
 }
 
-
-/* Reads [t0, t0 + dur) of a channel in uV; dur < 0 reads to the end. */
-static double *read_channel(const char *dir, const char *label, double t0, double dur, size_t *n_out,
-                            rt_channel_info *info)
-{
-    char path[4200];
-    snprintf(path, sizeof path, "%s/night.edf", dir);
-    rt_error err;
-    rt_recording *rec = rt_recording_open(path, &err);
-    if (!rec)
-        fail_msg("%s", err.message);
-    int ch = rt_recording_find_channel(rec, label);
-    assert_true(ch >= 0);
-    const rt_channel_info *ci = rt_recording_channel(rec, ch);
-    if (info)
-        *info = *ci;
-    long long first = llround(t0 * ci->rate_hz);
-    size_t n = dur < 0 ? (size_t)(ci->n_samples - first) : (size_t)llround(dur * ci->rate_hz);
-    double *x = malloc(n * sizeof *x);
-    assert_int_equal(rt_recording_read_uv(rec, ch, first, n, x, &err), RT_OK);
-    rt_recording_close(rec);
-    *n_out = n;
-    return x;
-}
-
 static void test_deterministic(void **state)
 {
     (void)state;
-    const char *files[4] = {"night.edf", "truth.json", "stages.csv", "events.csv"};
-    for (int i = 0; i < 4; i++) {
-        size_t a, b;
-        char *x = slurp(dir_art, files[i], &a), *y = slurp(dir_art2, files[i], &b);
-        assert_int_equal(a, b);
-        assert_memory_equal(x, y, a);
-        free(x);
-        free(y);
-    }
+    for (int i = 0; i < 4; i++)
+        assert_true(rt_test_files_equal(dir_art, dir_art2, rt_test_synth_files[i]));
 }
 
 /* Artifacts use streams of their own: the hypnogram, the placed activity and
@@ -127,19 +76,15 @@ static void test_deterministic(void **state)
 static void test_plan_unmoved(void **state)
 {
     (void)state;
-    size_t a, b;
-    char *x = slurp(dir_art, "stages.csv", &a), *y = slurp(dir_clean, "stages.csv", &b);
-    assert_int_equal(a, b);
-    assert_memory_equal(x, y, a);
-    free(x);
-    free(y);
+    assert_true(rt_test_files_equal(dir_art, dir_clean, "stages.csv"));
     json_t *ta = rt_test_load_truth(dir_art), *tc = rt_test_load_truth(dir_clean);
     assert_true(json_equal(json_object_get(ta, "bursts"), json_object_get(tc, "bursts")));
     assert_true(json_equal(json_object_get(ta, "indices"), json_object_get(tc, "indices")));
     json_decref(ta);
     json_decref(tc);
     size_t n1, n2;
-    double *e1 = read_channel(dir_art, "C4-M1", 0, -1, &n1, NULL), *e2 = read_channel(dir_clean, "C4-M1", 0, -1, &n2, NULL);
+    double *e1 = rt_test_read_channel(dir_art, "C4-M1", 0, -1, &n1, NULL);
+    double *e2 = rt_test_read_channel(dir_clean, "C4-M1", 0, -1, &n2, NULL);
     assert_int_equal(n1, n2);
     assert_memory_equal(e1, e2, n1 * sizeof *e1);
     free(e1);
@@ -196,34 +141,23 @@ static void test_truth_lists_artifacts(void **state)
     json_decref(t);
 }
 
-/* Least-squares amplitude of a sinusoid of frequency f in x. */
-static double sine_amplitude(const double *x, size_t n, double rate, double f, double t0)
-{
-    double sc = 0, ss = 0;
-    for (size_t i = 0; i < n; i++) {
-        double ph = 2.0 * PI * f * (t0 + (double)i / rate);
-        sc += x[i] * cos(ph);
-        ss += x[i] * sin(ph);
-    }
-    return 2.0 * sqrt(sc * sc + ss * ss) / (double)n;
-}
-
 static void test_mains_in_signal(void **state)
 {
     (void)state;
     const char *labels[2] = {"Chin1-Chin2", "Tib L"};
     for (int c = 0; c < 2; c++) {
         size_t n;
-        double *x = read_channel(dir_art, labels[c], 60.0, 600.0, &n, NULL);
+        double *x = rt_test_read_channel(dir_art, labels[c], 60.0, 600.0, &n, NULL);
         rt_mains m;
         rt_error err;
         assert_int_equal(rt_mains_estimate(x, n, 512.0, 10.0, 100.0, &m, &err), RT_OK);
         assert_true(m.present && m.line_hz == 60.0);
-        double a1 = sine_amplitude(x, n, 512.0, 60.0, 60.0), a2 = sine_amplitude(x, n, 512.0, 120.0, 60.0);
+        double a1 = rt_test_sine_amplitude(x, n, 512.0, 60.0, 60.0);
+        double a2 = rt_test_sine_amplitude(x, n, 512.0, 120.0, 60.0);
         print_message("# %s: 60 Hz %.3f uV, 120 Hz %.3f uV, line %.1f dB\n", labels[c], a1, a2, m.line_db);
         assert_true(fabs(a1 - 4.0) < 0.2 && fabs(a2 - 2.0) < 0.2);
         free(x);
-        x = read_channel(dir_clean, labels[c], 60.0, 600.0, &n, NULL);
+        x = rt_test_read_channel(dir_clean, labels[c], 60.0, 600.0, &n, NULL);
         assert_int_equal(rt_mains_estimate(x, n, 512.0, 10.0, 100.0, &m, &err), RT_OK);
         assert_false(m.present);
         free(x);
@@ -251,7 +185,7 @@ static void test_ecg_beats(void **state)
     for (int d = 0; d < 2; d++) {
         size_t nb, n;
         double *ref = truth_beats(dirs[d], &nb);
-        double *x = read_channel(dirs[d], "ECG", 0.0, -1, &n, NULL);
+        double *x = rt_test_read_channel(dirs[d], "ECG", 0.0, -1, &n, NULL);
         rt_qrs_beats beats;
         rt_error err;
         assert_int_equal(rt_qrs_detect(x, n, 256.0, false, &beats, &err), RT_OK);
@@ -282,7 +216,7 @@ static void test_bleed_in_chin(void **state)
         size_t nb, n;
         double *r = truth_beats(dirs[d], &nb);
         double t0 = 1200.0, dur = 600.0;
-        double *x = read_channel(dirs[d], "Chin1-Chin2", t0, dur, &n, NULL);
+        double *x = rt_test_read_channel(dirs[d], "Chin1-Chin2", t0, dur, &n, NULL);
         for (size_t i = 0; i < nb; i++)
             r[i] -= t0;
         rt_bandpass_spec spec = rt_bandpass_spec_defaults(512.0);
@@ -290,11 +224,8 @@ static void test_bleed_in_chin(void **state)
         spec.notch_hz[0] = 60;
         spec.notch_hz[1] = 120;
         spec.notch_hz[2] = 180;
+        rt_test_bandpass(x, n, &spec);
         rt_error err;
-        rt_bandpass *bp = rt_bandpass_new(&spec, &err);
-        assert_non_null(bp);
-        assert_int_equal(rt_bandpass_apply(bp, x, n, &err), RT_OK);
-        rt_bandpass_free(bp);
         rt_ecg_removal rep;
         assert_int_equal(rt_ecg_subtract(x, n, 512.0, r, nb, RT_ECG_PRE_S, RT_ECG_POST_S, &rep, &err), RT_OK);
         print_message("# chin %s: %zu beats, template p2p %.2f uV, locked %.1f dB, found %d\n",
@@ -311,7 +242,7 @@ static void test_marks_in_signal(void **state)
     (void)state;
     size_t n;
     rt_channel_info ci;
-    double *x = read_channel(dir_art, "Chin1-Chin2", 0.0, -1, &n, &ci);
+    double *x = rt_test_read_channel(dir_art, "Chin1-Chin2", 0.0, -1, &n, &ci);
     rt_quality_mark marks[64];
     size_t k = rt_quality_marks(x, n, ci.rate_hz, &ci, marks, 64);
     assert_true(k <= 64);
@@ -347,9 +278,8 @@ static void test_marks_in_signal(void **state)
     json_decref(t);
     free(x);
     /* the clean night: no marks at all on any EMG channel */
-    const char *labels[5] = {"Chin1-Chin2", "FDS L", "FDS R", "Tib L", "Tib R"};
     for (int c = 0; c < 5; c++) {
-        x = read_channel(dir_clean, labels[c], 0.0, -1, &n, &ci);
+        x = rt_test_read_channel(dir_clean, rt_test_role_labels[c], 0.0, -1, &n, &ci);
         assert_int_equal(rt_quality_marks(x, n, ci.rate_hz, &ci, marks, 64), 0);
         free(x);
     }
@@ -359,11 +289,8 @@ static void test_options_checked(void **state)
 {
     (void)state;
     const char *dir = rt_test_dir("synth_bad");
-    rt_error err;
     for (int c = 0; c < 6; c++) {
-        rt_synth_options o;
-        rt_synth_options_default(&o);
-        o.hours = 1.0;
+        rt_synth_options o = rt_test_synth_options(1.0, 1); /* rt_synth_options_default's seed */
         switch (c) {
         case 0: o.mains_hz = 55.0; o.mains_uv = 1.0; break;
         case 1: o.mains_hz = 50.0; o.mains_uv = 1.0; o.mains_harmonics = 5; break;
@@ -372,8 +299,7 @@ static void test_options_checked(void **state)
         case 4: o.clip_start_s = 3595.0; o.clip_duration_s = 10.0; break;
         default: o.detach_s = 3600.0; break;
         }
-        assert_int_equal(rt_synth_write(&o, dir, &err), RT_ERR_USAGE);
-        assert_non_null(strstr(err.message, "synthetic night"));
+        rt_test_synth_refused(&o, dir);
     }
 }
 

@@ -12,8 +12,9 @@
  *           ("Sleep stage W" ... "Sleep stage R", "Sleep stage ?", "Movement time"), from memory.
  *   [RFC4180] Common format for CSV files: quoted fields, "" for a quote, CRLF line ends.
  *   [RFC3629] UTF-8: which byte sequences are valid.
- *   [BRIEF] docs of this project: design brief section 4 (stage and event table formats),
- *           section 2 (epochs are 30 s; unscored epochs are never guessed).
+ *   [FMT]   remtone's own table formats, docs/staging.md (stage and event tables);
+ *           30-s epochs and unscored epochs never guessed are common practice
+ *           (AASM Manual for the Scoring of Sleep, from memory).
  *   [CP]    common practice, no single published source. */
 #include "support.h"
 
@@ -170,7 +171,7 @@ static void event_labels(void **state)
         rt_event_type type;
     } event_case;
     static const event_case cases[] = {
-        /* [BRIEF] section 4: the event table's type names */
+        /* [FMT] the event table's type names */
         {"arousal", RT_EVENT_AROUSAL},   {"apnea", RT_EVENT_APNEA},
         {"hypopnea", RT_EVENT_HYPOPNEA}, {"resp-arousal", RT_EVENT_RESP_AROUSAL},
         {"snore", RT_EVENT_SNORE},       {"artifact", RT_EVENT_ARTIFACT},
@@ -289,9 +290,9 @@ static void stage_table_forms(void **state)
     (void)state;
     const char *dir = rt_test_dir("tl_forms");
     /* [RFC4180] quoted fields and CRLF; [CP] UTF-8 byte order mark as
-     * spreadsheet programs write it; [BRIEF] columns by name in any order,
+     * spreadsheet programs write it; [FMT] columns by name in any order,
      * extra columns ignored; blank lines skipped. A 60-s gap (epochs 4-5)
-     * stays unscored: [BRIEF] section 2, never guessed. */
+     * stays unscored: [FMT] never guessed. */
     const char *text = "\xef\xbb\xbf" "Stage,Scorer,START_S,duration_s\r\n"
                        "\r\n"
                        "W,ab,0,60\r\n"
@@ -303,7 +304,7 @@ static void stage_table_forms(void **state)
     rt_labelmap *map = rt_labelmap_new();
     assert_int_equal(rt_labelmap_add(map, "N2, light", "N2", &err), RT_OK);
     rt_timeline *tl = load_stages_ok(write_table(dir, "forms.csv", text), map);
-    assert_true(tl->epoch_s == 30.0); /* [BRIEF] section 3: epochs are 30 s */
+    assert_true(tl->epoch_s == 30.0); /* [FMT] epochs are 30 s */
     expect_stages(tl, "WWab??RR");
     rt_timeline_free(tl);
 
@@ -344,7 +345,7 @@ static void stage_table_errors(void **state)
     expect_stage_error(dir, "zero.csv", "start_s,duration_s,stage\n0,30,W\n30,0,W\n",
                        RT_ERR_STAGING, zero);
 
-    /* [BRIEF] durations in whole 30-s epochs */
+    /* [FMT] durations in whole 30-s epochs */
     const char *const partial[] = {"partial.csv line 2", "45 s is not a whole number of 30-s epochs",
                                    NULL};
     expect_stage_error(dir, "partial.csv", "start_s,duration_s,stage\n0,45,W\n", RT_ERR_STAGING,
@@ -457,7 +458,7 @@ static void add_stage_run_checks(void **state)
     rt_timeline *tl = rt_timeline_new();
     rt_error err;
     assert_int_equal(rt_timeline_add_stage_run(tl, 60, 30, RT_STAGE_N2, "x.xml", 12, &err), RT_OK);
-    expect_stages(tl, "??b"); /* [BRIEF] epochs before the first entry stay unscored */
+    expect_stages(tl, "??b"); /* [FMT] epochs before the first entry stay unscored */
     assert_int_equal(rt_timeline_add_stage_run(tl, 60, 30, RT_STAGE_N2, "x.xml", 13, &err),
                      RT_ERR_STAGING);
     assert_non_null(strstr(err.message, "x.xml line 13"));
