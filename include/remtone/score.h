@@ -359,6 +359,13 @@ rt_status rt_night_tracer_envelope(rt_night_tracer *t, rt_role role, double t0_s
                                    rt_error *err);
 void rt_night_tracer_close(rt_night_tracer *t);
 
+/* Whether index i's cutoff in force decides the review level: true when the
+ * published value was checked against the published text (rule not
+ * from_memory), when the index has no published cutoff, or when a lab's
+ * cutoff file set its own value; false for a recalled, unverified published
+ * cutoff, which reports show as context only. i in 0..RT_IX_COUNT-1. */
+bool rt_night_cutoff_verified(const rt_night *night, int i);
+
 /* The atonic background of a role at t_s (seconds from the recording start,
  * inside scored REM), uV of rectified envelope; NaN when the role is absent or
  * not fitted, or t_s is outside scored REM. The

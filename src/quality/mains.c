@@ -10,7 +10,7 @@
 
 #include "quality.h"
 
-#include "score/fft_plans.h"
+#include "dsp/fft_plans.h"
 #include "internal.h"
 
 #define PI 3.14159265358979323846

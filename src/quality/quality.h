@@ -20,7 +20,7 @@
 #include "remtone/score.h"
 #include "remtone/status.h"
 
-#include "score/bandpass.h"
+#include "dsp/bandpass.h"
 
 /* ---- marks of stretches that cannot be scored --------------------------- */
 

@@ -7,7 +7,7 @@
 #include "internal.h"
 #include "quality/quality.h"
 #include "remtone/quality.h"
-#include "score/bandpass.h"
+#include "dsp/bandpass.h"
 
 enum { CHUNK_S = 300 };
 

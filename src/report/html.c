@@ -18,7 +18,6 @@
 #include "output.h"
 #include "remtone/report.h"
 #include "remtone/version.h"
-#include "score/night_internal.h"
 #include "svg.h"
 
 #define MINIS_PER_EPOCH 10

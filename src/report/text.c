@@ -7,7 +7,6 @@
 #include "output.h"
 #include "report_internal.h"
 #include "remtone/report.h"
-#include "score/night_internal.h"
 
 static void value_text(const rt_index_rule *rule, double v, char *buf, size_t cap)
 {

@@ -17,7 +17,7 @@
 #include <stdbool.h>
 #include <stddef.h>
 
-#include "bandpass.h"
+#include "dsp/bandpass.h"
 #include "quality/quality.h"
 #include "remtone/recording.h"
 #include "remtone/roles.h"

@@ -34,11 +34,5 @@ void rt_night_warn(rt_night *night, const char *fmt, ...) RT_PRINTF(2, 3);
 /* Epoch aggregates, indices, statuses, headline and review level. */
 rt_status rt_night_summarise(rt_night *night, const scoring_state *ss, rt_error *err);
 
-/* Whether index i's cutoff in force decides the review level: true when the
- * published value was checked against the published text (rule not
- * from_memory), when the index has no published cutoff, or when a lab's
- * cutoff file set its own value; false for a recalled, unverified published
- * cutoff, which reports show as context only. */
-bool rt_night_cutoff_verified(const rt_night *night, int i);
 
 #endif

@@ -1,4 +1,4 @@
-/* Test helper around the conditioning band-pass (src/score/bandpass.h), used
+/* Test helper around the conditioning band-pass (src/dsp/bandpass.h), used
  * by tests/ref/test_bandpass_scipy.py and for timing by hand:
  *
  *   rt_filter filter [options] IN OUT   filter raw little-endian float64 samples
@@ -17,8 +17,8 @@
 #include <sys/utsname.h>
 #include <time.h>
 
-#include "score/bandpass.h"
-#include "score/fft_plans.h"
+#include "dsp/bandpass.h"
+#include "dsp/fft_plans.h"
 
 static void usage(void)
 {

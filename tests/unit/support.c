@@ -1,7 +1,7 @@
 /* Shared helpers for the cmocka unit tests. */
 #include "support.h"
 
-#include "score/bandpass.h"
+#include "dsp/bandpass.h"
 
 #include <errno.h>
 #include <math.h>

@@ -29,7 +29,7 @@ uint64_t rt_test_seed(void);
 #include <jansson.h>
 
 #include "remtone/remtone.h"
-#include "score/bandpass.h"
+#include "dsp/bandpass.h"
 
 /* A seeded xorshift64* stream (Vigna 2016, constants from memory) with
  * uniform (0, 1) and Box-Muller Gaussian draws; seed it with rt_test_seed(). */

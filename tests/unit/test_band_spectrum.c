@@ -9,7 +9,7 @@
 #include <stdlib.h>
 
 #include "quality/quality.h"
-#include "score/bandpass.h"
+#include "dsp/bandpass.h"
 
 #define RATE 512.0
 #define SECONDS 120

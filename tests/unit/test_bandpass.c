@@ -10,8 +10,8 @@
 #include <stdlib.h>
 #include <string.h>
 
-#include "score/bandpass.h"
-#include "score/fft_plans.h"
+#include "dsp/bandpass.h"
+#include "dsp/fft_plans.h"
 
 static const double PI = 3.14159265358979323846;
 

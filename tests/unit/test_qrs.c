@@ -21,8 +21,8 @@
 #include <string.h>
 
 #include "quality/quality.h"
-#include "score/bandpass.h"
-#include "score/fft_plans.h"
+#include "dsp/bandpass.h"
+#include "dsp/fft_plans.h"
 
 static const double PI = 3.14159265358979323846;
 

@@ -17,8 +17,8 @@
 #include "quality/quality.h"
 #include "remtone/recording.h"
 #include "remtone/synth.h"
-#include "score/bandpass.h"
-#include "score/fft_plans.h"
+#include "dsp/bandpass.h"
+#include "dsp/fft_plans.h"
 
 static char dir_art[4096], dir_art2[4096], dir_clean[4096];
 

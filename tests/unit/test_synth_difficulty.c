@@ -15,8 +15,8 @@
 
 #include "remtone/recording.h"
 #include "remtone/synth.h"
-#include "score/bandpass.h"
-#include "score/fft_plans.h"
+#include "dsp/bandpass.h"
+#include "dsp/fft_plans.h"
 
 static uint64_t seed;
 

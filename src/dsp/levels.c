@@ -1,0 +1,123 @@
+/* Rectified envelope and quantiles: the level measurements every stage uses
+ * (conditioning, background, bursts, quality). Pure functions on arrays. */
+#include "levels.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+void rt_envelope(double *x, size_t n, size_t window, double *env, double *scratch)
+{
+    if (n == 0)
+        return;
+    size_t half = window / 2;
+    size_t w = 2 * half + 1; /* the window is centred, so its length is odd */
+    /* scratch is a ring holding |x[j]| for j in [i - half, i + half]: env may
+     * overwrite x[i] while later windows still need it. Slot of sample j is
+     * j mod w, tracked incrementally (no division on the hot path). */
+    double sum = 0.0;
+    for (size_t j = 0; j <= half && j < n; j++) {
+        scratch[j] = fabs(x[j]);
+        sum += scratch[j];
+    }
+    size_t drop_slot = 0;           /* slot of sample i - half */
+    size_t add_slot = (half + 1) % w; /* slot of sample i + half + 1 */
+    for (size_t i = 0; i < n; i++) {
+        size_t lo = i >= half ? i - half : 0;
+        size_t hi = i + half < n ? i + half : n - 1;
+        env[i] = sum / (double)(hi - lo + 1);
+        if (i >= half) {
+            sum -= scratch[drop_slot];
+            if (++drop_slot == w)
+                drop_slot = 0;
+        }
+        size_t add = i + half + 1;
+        if (add < n) {
+            scratch[add_slot] = fabs(x[add]);
+            sum += scratch[add_slot];
+        }
+        if (++add_slot == w)
+            add_slot = 0;
+    }
+}
+
+static int compare_double(const void *a, const void *b)
+{
+    double x = *(const double *)a, y = *(const double *)b;
+    return (x > y) - (x < y);
+}
+
+/* Hoare's selection: places the k-th smallest at v[k]. */
+static double select_kth(double *v, size_t n, size_t k)
+{
+    size_t lo = 0, hi = n - 1;
+    while (lo < hi) {
+        double pivot = v[lo + (hi - lo) / 2];
+        size_t i = lo, j = hi;
+        while (i <= j) {
+            while (v[i] < pivot)
+                i++;
+            while (v[j] > pivot)
+                j--;
+            if (i <= j) {
+                double t = v[i];
+                v[i] = v[j];
+                v[j] = t;
+                i++;
+                if (j == 0)
+                    break;
+                j--;
+            }
+        }
+        if (k <= j)
+            hi = j;
+        else if (k >= i)
+            lo = i;
+        else
+            break;
+    }
+    return v[k];
+}
+
+double rt_quantile(double *v, size_t n, double q)
+{
+    if (n == 1)
+        return v[0];
+    if (n <= 8) {
+        qsort(v, n, sizeof *v, compare_double);
+        double pos = q * (double)(n - 1);
+        size_t i = (size_t)floor(pos);
+        if (i >= n - 1)
+            return v[n - 1];
+        return v[i] + (pos - (double)i) * (v[i + 1] - v[i]);
+    }
+    double pos = q * (double)(n - 1);
+    size_t i = (size_t)floor(pos);
+    if (i >= n - 1)
+        return select_kth(v, n, n - 1);
+    double a = select_kth(v, n, i);
+    /* after selection everything above i is >= a: the next order statistic is their minimum */
+    double b = v[i + 1];
+    for (size_t j = i + 2; j < n; j++)
+        if (v[j] < b)
+            b = v[j];
+    return a + (pos - (double)i) * (b - a);
+}
+
+void rt_block_quantiles(const double *env, const size_t *starts, size_t n_blocks, double q,
+                        size_t stride, double *medians, double *scratch)
+{
+    if (stride < 1)
+        stride = 1;
+    for (size_t b = 0; b < n_blocks; b++) {
+        size_t len = 0;
+        for (size_t i = starts[b]; i < starts[b + 1]; i += stride)
+            scratch[len++] = env[i];
+        if (len == 0) {
+            medians[b] = b > 0 ? medians[b - 1] : 0.0;
+            continue;
+        }
+        medians[b] = rt_quantile(scratch, len, q);
+    }
+}
+

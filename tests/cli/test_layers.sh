@@ -1,0 +1,22 @@
+#!/usr/bin/env bash
+# The layering of src/ (DEVELOPERS.md): dsp/ is beneath quality/ and score/,
+# and neither quality/ nor report/ reaches up into score/'s private headers;
+# the CLI uses the public API only. A check on #include lines, so a change
+# that breaks the layering fails here.
+set -u
+src=${REMTONE_SOURCE:?}
+fails=0
+forbid() { # forbid DIR PATTERN WHY
+  local hits
+  hits=$(grep -rnE "^#include \"$2" "$src/$1" 2>/dev/null)
+  if [ -n "$hits" ]; then echo "FAIL $1 includes $2 ($3):"; echo "$hits" | sed 's/^/    /'; fails=$((fails+1))
+  else echo "ok   $1 does not include $2"; fi
+}
+forbid src/dsp 'score/' "dsp is beneath score"
+forbid src/dsp 'quality/' "dsp is beneath quality"
+forbid src/quality 'score/' "quality is beneath score"
+forbid src/report 'score/' "reports read the public result"
+forbid src/report 'quality/' "reports read the public result"
+forbid cli '(score|quality|dsp|report|common|io|staging|synth|cohort|roles)/' "the CLI uses the public API"
+echo "$fails failed"
+[ "$fails" = 0 ]
