@@ -112,6 +112,12 @@ typedef struct rt_score_params {
     double aasm_nrem_quantile;   /* quantile of NREM epoch chin medians: "minimum NREM amplitude" */
     double aasm_nrem_margin;     /* "greater than" that minimum: this factor above it */
     double montreal_epoch_s;     /* Montreal tonic epoch, s */
+    /* leg movements in REM from the leg EMG (AASM limb-movement rules) */
+    double lm_min_s;             /* shortest movement */
+    double lm_max_s;             /* longest movement */
+    double lm_rise_uv;           /* rise above resting EMG at onset */
+    double lm_offset_quiet_s;    /* a movement ends after this long near rest */
+    double lm_bilateral_s;       /* movements of the two legs with onsets closer are one */
     /* the night */
     double min_rate_hz;          /* below this a channel is scored with a warning */
     double min_scorable_min;     /* less scorable REM is not assessable */

@@ -242,13 +242,24 @@ rt_status rt_condition_stretch(const rt_conditioner *c, double t0_s, size_t seco
         return st;
     for (size_t j = 0; j <= seconds; j++)
         s->starts[j] = (size_t)(llround((t0_s + (double)j) * rate) - first);
+    if (s->cum_cap < s->n + 1) {
+        double *cum = realloc(s->rect_cum, (s->n + 1) * sizeof *cum);
+        if (!cum)
+            return rt_fail(err, RT_ERR_NOMEM, "out of memory for %zu samples", s->n + 1);
+        s->rect_cum = cum;
+        s->cum_cap = s->n + 1;
+    }
     const double *x = s->buf + off;
+    double sum = 0.0;
+    s->rect_cum[0] = 0.0;
+    for (size_t i = 0; i < s->n; i++) {
+        sum += fabs(x[i]);
+        s->rect_cum[i + 1] = sum;
+    }
     for (size_t j = 0; j < seconds; j++) {
-        double sum = 0.0;
-        for (size_t i = s->starts[j]; i < s->starts[j + 1]; i++)
-            sum += fabs(x[i]);
         size_t len = s->starts[j + 1] - s->starts[j];
-        s->rect_mean_uv[j] = len ? sum / (double)len : 0.0;
+        s->rect_mean_uv[j] =
+            len ? (s->rect_cum[s->starts[j + 1]] - s->rect_cum[s->starts[j]]) / (double)len : 0.0;
     }
     rt_envelope(s->buf, n_padded, c->envelope_window, s->buf, s->scratch);
     s->env = s->buf + off;
@@ -268,6 +279,7 @@ void rt_stretch_free(rt_stretch *s)
     free(s->starts);
     free(s->level_uv);
     free(s->rect_mean_uv);
+    free(s->rect_cum);
     free(s->marks);
     free(s->qrs);
     memset(s, 0, sizeof *s);

@@ -72,6 +72,7 @@ typedef struct rt_stretch {
     size_t *starts;           /* seconds + 1 sample boundaries of the seconds */
     double *level_uv;         /* per second: the background_level_quantile of the envelope */
     double *rect_mean_uv;     /* per second: mean rectified amplitude (REM Atonia Index) */
+    double *rect_cum;         /* n + 1 prefix sums of the rectified signal, uV x samples */
     rt_quality_mark *marks;   /* quality marks clipped to [0, seconds], relative to t0 */
     size_t n_marks;
     rt_time_span *qrs;        /* QRS windows relative to t0 (only when ECG was found) */
@@ -79,7 +80,7 @@ typedef struct rt_stretch {
     rt_ecg_removal ecg;       /* what the template subtraction found */
     /* private */
     double *buf, *scratch;
-    size_t cap, sec_cap, marks_cap, qrs_cap;
+    size_t cap, sec_cap, marks_cap, qrs_cap, cum_cap;
 } rt_stretch;
 
 /* Conditions [t0_s, t0_s + seconds) of c's channel into *out, with the beats

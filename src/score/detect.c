@@ -109,11 +109,78 @@ static double burst_amplitude(const double *env, size_t n, double start, double 
     return (mean - bg * c) / (1.0 - c);
 }
 
-size_t rt_find_bursts(const double *env, size_t n, const double *background,
-                      const size_t *starts, size_t n_blocks, double rate_hz,
-                      const rt_burst_rule *rule, size_t merge_gap, rt_span *spans, size_t cap,
-                      double *scratch)
+/* Moving mean of |x| over [i - h, i + h] from the prefix sums (clipped to the
+ * stretch). */
+static double short_mean(const double *cum, size_t n, size_t i, size_t h)
 {
+    size_t lo = i >= h ? i - h : 0, hi = i + h + 1 < n ? i + h + 1 : n;
+    return (cum[hi] - cum[lo]) / (double)(hi - lo);
+}
+
+/* From `from` (inside a burst), the last sample outward (step -1 or +1,
+ * never past `limit`) where the short mean is still at `half`, dips shorter
+ * than gap samples bridged. */
+static size_t last_inside(const double *cum, size_t n, size_t h, size_t from, size_t limit,
+                          int step, double half, size_t gap)
+{
+    size_t i = from, inside = from, below = 0;
+    while ((step < 0 ? i > limit : i < limit) && below < gap) {
+        i = step < 0 ? i - 1 : i + 1;
+        if (short_mean(cum, n, i, h) >= half) {
+            inside = i;
+            below = 0;
+        } else {
+            below++;
+        }
+    }
+    return inside;
+}
+
+/* The burst's edges measured again on a moving mean half the envelope's
+ * window long, crossing the same half height: the crossing of a shorter mean
+ * moves less with the noise of the burst's own amplitude (its ramp is steeper
+ * than its noise grows). Each edge is searched outward from half a window
+ * inside the burst (at most its middle), within one window of the first
+ * estimate; dips shorter than the short mean are bridged. Edges on the
+ * half-sample grid, as edge_before and edge_after. */
+static void refine_edges(const double *cum, size_t n, size_t window, double half, double *start,
+                         double *end)
+{
+    size_t h = window / 4;
+    if (h < 1 || n < 2)
+        return;
+    size_t gap = 2 * h;
+    double mid = 0.5 * (*start + *end);
+    size_t from = (size_t)fmin(mid, *start + 0.5 * (double)window);
+    size_t to = (size_t)fmax(mid, *end - 0.5 * (double)window);
+    if (to >= n || short_mean(cum, n, from, h) < half || short_mean(cum, n, to, h) < half)
+        return;
+    size_t a = last_inside(cum, n, h, from, (size_t)fmax(0.0, *start - (double)window), -1,
+                           half, gap);
+    size_t b = last_inside(cum, n, h, to, (size_t)fmin((double)n - 1.0, *end + (double)window),
+                           1, half, gap);
+    double s = 0.0, e = (double)n;
+    if (a > 0) {
+        double lo = short_mean(cum, n, a - 1, h), hi = short_mean(cum, n, a, h);
+        s = (double)(a - 1) + (hi > lo ? (half - lo) / (hi - lo) : 0.0) + 0.5;
+    }
+    if (b + 1 < n) {
+        double hi = short_mean(cum, n, b, h), lo = short_mean(cum, n, b + 1, h);
+        e = (double)b + (hi > lo ? (hi - half) / (hi - lo) : 0.0) + 0.5;
+    }
+    if (e > s) {
+        *start = s;
+        *end = e;
+    }
+}
+
+size_t rt_find_bursts(const rt_burst_signal *sig, const rt_burst_rule *rule, size_t merge_gap,
+                      rt_span *spans, size_t cap, double *scratch)
+{
+    const double *env = sig->env, *background = sig->background;
+    const size_t *starts = sig->starts;
+    size_t n = sig->n, n_blocks = sig->n_blocks;
+    double rate_hz = sig->rate_hz;
     size_t found = 0;
     size_t cursor = 0;
     size_t i = 0;
@@ -146,6 +213,8 @@ size_t rt_find_bursts(const double *env, size_t n, const double *background,
         double half = bg + 0.5 * (level - bg);
         double start = edge_before(env, first, half, merge_gap);
         double end = edge_after(env, n, last, half, merge_gap);
+        if (sig->rect_cum)
+            refine_edges(sig->rect_cum, n, window, half, &start, &end);
         double dur = end - start;
         /* the burst's own amplitude must reach k: noise peaks on a stretch
          * below k cross the threshold only briefly (docs/scoring.md, "Bursts") */

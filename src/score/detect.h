@@ -18,22 +18,35 @@ typedef struct rt_burst_rule {
 } rt_burst_rule;
 
 typedef struct rt_span {
-    double start;    /* half-height onset, in samples (fractional) */
-    double end;      /* half-height end, in samples (fractional, exclusive) */
-    double ratio;    /* median envelope over the measured extent / background */
+    double start;    /* onset, in samples (fractional) */
+    double end;      /* end, in samples (fractional, exclusive) */
+    double ratio;    /* ramp-corrected mean envelope between the edges / background */
 } rt_span;
 
+/* The conditioned stretch that bursts are found on. background is per block
+ * (block b covers starts[b] .. starts[b+1]). */
+typedef struct rt_burst_signal {
+    const double *env;        /* rectified envelope, uV, n samples */
+    const double *rect_cum;   /* prefix sums of |x| (n + 1 values: rect_cum[i] is the sum of
+                                 samples 0..i-1), or NULL: edges at half height only */
+    size_t n;
+    const double *background; /* n_blocks values, uV */
+    const size_t *starts;     /* n_blocks + 1 sample boundaries */
+    size_t n_blocks;
+    double rate_hz;
+} rt_burst_signal;
+
 /* Finds bursts: runs where env >= k x background (gaps shorter than
- * merge_gap samples joined), each measured at half its height above the
- * background, kept when the median envelope over that extent reaches k x
- * background and the measured duration lies in [min_s, max_s] within
- * tolerance_s plus half a sample. background is per block (block b covers starts[b] ..
- * starts[b+1]). Writes at most cap spans; returns how many were found (may
- * exceed cap: then only cap were written). scratch holds n doubles. */
-size_t rt_find_bursts(const double *env, size_t n, const double *background,
-                      const size_t *starts, size_t n_blocks, double rate_hz,
-                      const rt_burst_rule *rule, size_t merge_gap, rt_span *spans, size_t cap,
-                      double *scratch);
+ * merge_gap samples joined), each located at half its height above the
+ * background and, with rect_cum, each edge then placed where the rectified
+ * signal steps (the least-squares split of |x| within one envelope window of
+ * the half-height edge); kept when the ramp-corrected mean envelope between
+ * the edges reaches k x background and the duration lies in [min_s, max_s]
+ * within tolerance_s plus half a sample. Writes at most cap spans; returns
+ * how many were found (may exceed cap: then only cap were written). scratch
+ * holds n doubles. */
+size_t rt_find_bursts(const rt_burst_signal *sig, const rt_burst_rule *rule, size_t merge_gap,
+                      rt_span *spans, size_t cap, double *scratch);
 
 /* Number of samples in [from, to) whose envelope is at the tonic level: at or
  * above rel x background, or above abs_uv (abs_uv <= 0: relative only;

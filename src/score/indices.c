@@ -184,17 +184,12 @@ static void compute_epoch_indices(rt_night *night, bool arms)
  *    microvolts (stricter than the manual's voltage; docs/scoring.md);
  *  - offset at the start of at least 0.5 s in which the EMG stays within
  *    2 uV of rest: bursts of one leg less than 0.5 s apart are one movement
- *    (the scorer's bursts end where the envelope falls to half height);
- *  - duration 0.5-10 s, of the joined movement;
+ *    (the scorer's bursts end at their measured edges);
+ *  - duration 0.5-10 s, of the joined movement (with the burst tolerance);
  *  - movements on the two legs whose onsets are less than 5 s apart count as
  *    one movement (each movement takes in at most one of the other leg).
  * Bursts whose 2-s mini-epoch is left out for that leg do not count. NaN
  * without leg channels. */
-#define LM_MIN_S 0.5
-#define LM_MAX_S 10.0
-#define LM_RISE_UV 8.0
-#define LM_OFFSET_QUIET_S 0.5
-#define LM_BILATERAL_S 5.0
 /* durations are compared within a microsecond, amplitudes within rounding */
 #define LM_TIME_SLACK 1e-6
 
@@ -239,6 +234,7 @@ static double leg_movements_per_h(const rt_night *night, size_t *count)
     if ((!night->channel[RT_ROLE_LEG_LEFT].present && !night->channel[RT_ROLE_LEG_RIGHT].present) ||
         night->rem_minutes <= 0)
         return NAN;
+    const rt_score_params *p = &night->params;
     leg_move *mv = rt_calloc(night->n_bursts + 1, sizeof *mv);
     if (!mv)
         return NAN;
@@ -261,19 +257,21 @@ static double leg_movements_per_h(const rt_night *night, size_t *count)
     size_t m = 0;
     for (size_t i = 0; i < n; i++) {
         if (m > 0 && mv[m - 1].leg == mv[i].leg &&
-            mv[i].onset_s - mv[m - 1].end_s < LM_OFFSET_QUIET_S - LM_TIME_SLACK) {
+            mv[i].onset_s - mv[m - 1].end_s < p->lm_offset_quiet_s - LM_TIME_SLACK) {
             mv[m - 1].end_s = fmax(mv[m - 1].end_s, mv[i].end_s);
             mv[m - 1].rise_uv = fmax(mv[m - 1].rise_uv, mv[i].rise_uv);
             continue;
         }
         mv[m++] = mv[i];
     }
-    /* the AASM duration and amplitude of each leg's movements */
+    /* the AASM duration and amplitude of each leg's movements; the duration
+     * with the same measuring tolerance as a burst's (docs/scoring.md) */
     size_t kept = 0;
+    double slack = p->burst_duration_tolerance_s + LM_TIME_SLACK;
     for (size_t i = 0; i < m; i++) {
         double d = mv[i].end_s - mv[i].onset_s;
-        if (d >= LM_MIN_S - LM_TIME_SLACK && d <= LM_MAX_S + LM_TIME_SLACK &&
-            mv[i].rise_uv >= LM_RISE_UV - 1e-9)
+        if (d >= p->lm_min_s - slack && d <= p->lm_max_s + slack &&
+            mv[i].rise_uv >= p->lm_rise_uv - 1e-9)
             mv[kept++] = mv[i];
     }
     /* both legs: onsets less than 5 s apart are one movement */
@@ -282,8 +280,8 @@ static double leg_movements_per_h(const rt_night *night, size_t *count)
         if (mv[i].absorbed)
             continue;
         (*count)++;
-        for (size_t j = i + 1; j < kept && mv[j].onset_s - mv[i].onset_s < LM_BILATERAL_S - LM_TIME_SLACK;
-             j++)
+        for (size_t j = i + 1;
+             j < kept && mv[j].onset_s - mv[i].onset_s < p->lm_bilateral_s - LM_TIME_SLACK; j++)
             if (!mv[j].absorbed && mv[j].leg != mv[i].leg) {
                 mv[j].absorbed = true;
                 break;

@@ -108,8 +108,9 @@ static rt_status detect_rule(pass_ctx *c, rt_role role, const bout_span *bout,
     const rt_stretch *st = &c->st;
     double rate = st->rate_hz;
     size_t merge = (size_t)llround(night->params.burst_merge_gap_s * rate);
-    size_t found = rt_find_bursts(st->env, st->n, c->bg, st->starts, st->seconds, rate, rule,
-                                  merge < 1 ? 1 : merge, c->spans, c->span_cap, st->scratch);
+    rt_burst_signal sig = {st->env, st->rect_cum, st->n, c->bg, st->starts, st->seconds, rate};
+    size_t found = rt_find_bursts(&sig, rule, merge < 1 ? 1 : merge, c->spans, c->span_cap,
+                                  st->scratch);
     if (found > c->span_cap)
         found = c->span_cap;
     rt_channel_quality *q = &night->channel[role].quality;

@@ -67,6 +67,15 @@ static const rt_param_desc table[] = {
          "our choice: \"greater than\" the NREM minimum by a step a scorer sees "
          "(docs/scoring.md, AASM tonic)"),
     REAL(montreal_epoch_s, 20.0, 2.0, 30.0, "s", "Lapierre & Montplaisir 1992, Neurology (from memory)"),
+    REAL(lm_min_s, 0.5, 0.1, 5.0, "s", "AASM Manual v2, limb movement rules: duration 0.5-10 s"),
+    REAL(lm_max_s, 10.0, 1.0, 30.0, "s", "AASM Manual v2, limb movement rules: duration 0.5-10 s"),
+    REAL(lm_rise_uv, 8.0, 0.0, 100.0, "uV",
+         "AASM Manual v2, limb movement rules: onset at an 8-uV increase over resting EMG"),
+    REAL(lm_offset_quiet_s, 0.5, 0.0, 5.0, "s",
+         "AASM Manual v2, limb movement rules: offset at the start of 0.5 s within 2 uV of rest"),
+    REAL(lm_bilateral_s, 5.0, 0.0, 30.0, "s",
+         "AASM Manual v2, limb movement rules: two legs' movements with onsets less than 5 s "
+         "apart are one"),
     REAL(min_rate_hz, 200.0, 0.0, 100000.0, "Hz",
          "AASM Manual: minimum EMG sampling rate 200 Hz (from memory)"),
     REAL(min_scorable_min, 5.0, 0.0, 600.0, "min", "common practice"),

@@ -65,8 +65,8 @@ static size_t bursts(fixture *f, double k, double min_s, double max_s, rt_span *
 {
     /* exact signals: no edge tolerance */
     rt_burst_rule rule = {k, min_s, max_s, 0.0, (size_t)(0.05 * FS)};
-    return rt_find_bursts(f->env, N, f->background, f->starts, SECONDS, FS, &rule,
-                          (size_t)(0.05 * FS), spans, 4, f->scratch);
+    rt_burst_signal sig = {f->env, NULL, N, f->background, f->starts, SECONDS, FS};
+    return rt_find_bursts(&sig, &rule, (size_t)(0.05 * FS), spans, 4, f->scratch);
 }
 
 /* AASM Manual v2 (excessive transient muscle activity): bursts 0.1-5.0 s,

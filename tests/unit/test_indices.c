@@ -277,11 +277,12 @@ static void leg_movement_boundaries(void **state)
 {
     (void)state;
     const rt_role L = RT_ROLE_LEG_LEFT, R = RT_ROLE_LEG_RIGHT;
-    /* duration: 0.5 s is the minimum, 10 s the maximum (AASM) */
-    assert_int_equal(leg_movements((leg_burst[]){{L, 30.0, 0.49, 9.0}}, 1), 0);
-    assert_int_equal(leg_movements((leg_burst[]){{L, 30.0, 0.50, 9.0}}, 1), 1);
-    assert_int_equal(leg_movements((leg_burst[]){{L, 30.0, 10.0, 9.0}}, 1), 1);
-    assert_int_equal(leg_movements((leg_burst[]){{L, 30.0, 10.1, 9.0}}, 1), 0);
+    /* duration: 0.5 s is the minimum, 10 s the maximum (AASM), each applied
+     * with the 0.03-s tolerance of a measured burst (burst_duration_tolerance_s) */
+    assert_int_equal(leg_movements((leg_burst[]){{L, 30.0, 0.46, 9.0}}, 1), 0);
+    assert_int_equal(leg_movements((leg_burst[]){{L, 30.0, 0.47, 9.0}}, 1), 1);
+    assert_int_equal(leg_movements((leg_burst[]){{L, 30.0, 10.03, 9.0}}, 1), 1);
+    assert_int_equal(leg_movements((leg_burst[]){{L, 30.0, 10.04, 9.0}}, 1), 0);
     /* amplitude: an 8-uV increase above resting EMG (AASM) */
     assert_int_equal(leg_movements((leg_burst[]){{L, 30.0, 1.0, 7.0}}, 1), 0);
     assert_int_equal(leg_movements((leg_burst[]){{L, 30.0, 1.0, 9.0}}, 1), 1);

@@ -200,9 +200,9 @@ static void leg_movements_from_leg_emg(void **state)
     double want = truth_leg_movements_per_h(&s), got = s.night->index[RT_IX_MONTREAL_LM_PER_H].value;
     printf("# rbd leg movements per REM hour: truth %.1f, scored %.1f\n", want, got);
     assert_true(want > 24.0);
-    /* within 20 %: placed bursts of 0.5-0.6 s fall either side of the 0.5-s
-     * limit once measured at half height (10 % is the aim, not met yet) */
-    assert_true(fabs(got - want) <= 0.2 * want);
+    /* within 10 % (placed bursts of 0.5-0.6 s are measured to a few
+     * hundredths of a second, so some fall either side of the 0.5-s limit) */
+    assert_true(fabs(got - want) <= 0.1 * want);
     free_scored(&s);
     s = score_synthetic(RT_SYNTH_TYPICAL_OLDER, 1, 3.0);
     want = truth_leg_movements_per_h(&s);
