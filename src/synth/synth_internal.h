@@ -278,7 +278,18 @@ typedef struct synth_indices {
         sinbar_chin_any_fds_phasic_3s, sinbar_chin_any_fds_phasic_30s;
     double montreal_tonic_chin, montreal_phasic_chin;
     double rai;
+    /* AASM tonic epochs whose placed tone lies within SYNTH_AASM_UNSURE_LO..HI
+     * of the NREM minimum: a measurement may fall either side of "greater
+     * than", as a scorer's eye would; in percent of the counted epochs */
+    double aasm_tonic_unsure_epochs;
 } synth_indices;
+
+/* The band of tone / NREM minimum where an AASM tonic epoch is unsure:
+ * from 0.9 (the NREM epochs' own level varies) to 1.6 (remtone asks a
+ * visible margin of 1.25 over a low quantile of the NREM epochs, each
+ * measured to about 10 %; docs/scoring.md) */
+#define SYNTH_AASM_UNSURE_LO 0.9
+#define SYNTH_AASM_UNSURE_HI 1.6
 
 void rt_synth_indices_compute(const synth_plan *plan, int exclude_events, synth_indices *out);
 

@@ -102,18 +102,42 @@ static double *designed_chin_uv(const synth_plan *plan, const synth_bout *bout)
 }
 
 typedef struct counts {
-    long epochs, ep_tonic, ep_phasic_chin, ep_phasic_any, ep_rswa, ep_combo;
+    long epochs, ep_tonic, ep_aasm_tonic, ep_aasm_unsure, ep_phasic_chin, ep_phasic_any, ep_rswa,
+        ep_combo;
     long m3, m3_chin, m3_chin_any, m3_fds, m3_combo;
     long m2, m2_chin;
     long w20, w20_tonic;
     long secs, rai_p1, rai_p2;
 } counts;
 
-static void count_epoch(const synth_plan *plan, int e, int exclude, counts *c)
+/* The placed chin level of epoch e (its middle) with the drift of the night. */
+static double chin_level_uv(const synth_plan *plan, int e)
+{
+    double level = plan->tonic[e] ? plan->tonic_uv[e] : plan->bg_uv[SYNTH_CHIN][e];
+    return level * rt_synth_gain(plan, ((double)e + 0.5) * SYNTH_EPOCH_S);
+}
+
+/* The "minimum amplitude in NREM" of the AASM tonic rule (AASM Manual v2,
+ * from memory): the lowest placed chin level of an N1-N3 epoch. */
+static double nrem_chin_min_uv(const synth_plan *plan)
+{
+    double lo = INFINITY;
+    for (int e = 0; e < plan->n_epochs; e++)
+        if (plan->stage[e] >= SYNTH_N1 && plan->stage[e] <= SYNTH_N3)
+            lo = fmin(lo, chin_level_uv(plan, e));
+    return lo;
+}
+
+static void count_epoch(const synth_plan *plan, int e, int exclude, double nrem_min_uv,
+                        counts *c)
 {
     long t = (long)e * SYNTH_EPOCH_S;
     int ep_excl = exclude && span_excluded(plan, t, SYNTH_EPOCH_S);
     int tonic = plan->tonic[e];
+    /* AASM tonic: the sustained tone must also be greater than the NREM
+     * minimum (no NREM at all: nothing to compare it with, not counted) */
+    double to_nrem = tonic ? chin_level_uv(plan, e) / nrem_min_uv : 0.0;
+    int aasm_tonic = tonic && to_nrem > 1.0;
     int n_chin = 0, n_any = 0, combo = 0;
     for (int m = 0; m < 10; m++) {
         long s0 = t + 3 * m;
@@ -143,9 +167,11 @@ static void count_epoch(const synth_plan *plan, int e, int exclude, counts *c)
         return;
     c->epochs++;
     c->ep_tonic += tonic;
+    c->ep_aasm_tonic += aasm_tonic;
+    c->ep_aasm_unsure += tonic && to_nrem >= SYNTH_AASM_UNSURE_LO && to_nrem <= SYNTH_AASM_UNSURE_HI;
     c->ep_phasic_chin += n_chin >= 5;
     c->ep_phasic_any += n_any >= 5;
-    c->ep_rswa += tonic || n_any >= 5;
+    c->ep_rswa += aasm_tonic || n_any >= 5;
     /* SINBAR 30-s epochs: at least 5 of 10 active mini-epochs, the AASM
      * convention (Frauscher et al. 2014, Sleep 37:763; docs/scoring.md) */
     c->ep_combo += combo >= 5;
@@ -182,10 +208,11 @@ void rt_synth_indices_compute(const synth_plan *plan, int exclude_events, synth_
 {
     counts c;
     memset(&c, 0, sizeof c);
+    double nrem_min = nrem_chin_min_uv(plan);
     for (int b = 0; b < plan->n_bouts; b++) {
         const synth_bout *bout = &plan->bouts[b];
         for (int e = bout->first_epoch; e < bout->first_epoch + bout->epochs; e++)
-            count_epoch(plan, e, exclude_events, &c);
+            count_epoch(plan, e, exclude_events, nrem_min, &c);
         long t0 = (long)bout->first_epoch * SYNTH_EPOCH_S;
         long n_win = (long)bout->epochs * SYNTH_EPOCH_S / 20;
         for (long w = 0; w < n_win; w++) {
@@ -196,13 +223,14 @@ void rt_synth_indices_compute(const synth_plan *plan, int exclude_events, synth_
         }
         count_rai(plan, bout, exclude_events, &c);
     }
-    out->aasm_tonic_chin_epochs = percent(c.ep_tonic, c.epochs);
+    out->aasm_tonic_chin_epochs = percent(c.ep_aasm_tonic, c.epochs);
+    out->aasm_tonic_unsure_epochs = percent(c.ep_aasm_unsure, c.epochs);
     out->aasm_phasic_chin_epochs = percent(c.ep_phasic_chin, c.epochs);
     out->aasm_phasic_any_epochs = percent(c.ep_phasic_any, c.epochs);
     out->aasm_rswa_epochs = percent(c.ep_rswa, c.epochs);
     out->sinbar_chin_phasic_3s = percent(c.m3_chin, c.m3);
     out->sinbar_chin_any_3s = percent(c.m3_chin_any, c.m3);
-    out->sinbar_chin_tonic_30s = out->aasm_tonic_chin_epochs;
+    out->sinbar_chin_tonic_30s = percent(c.ep_tonic, c.epochs);
     out->sinbar_fds_phasic_3s = percent(c.m3_fds, c.m3);
     out->sinbar_chin_any_fds_phasic_3s = percent(c.m3_combo, c.m3);
     out->sinbar_chin_any_fds_phasic_30s = percent(c.ep_combo, c.epochs);
@@ -226,6 +254,7 @@ static json_t *indices_json(const synth_indices *ix)
     json_object_set_new(aasm, "phasic_chin_epochs", number(ix->aasm_phasic_chin_epochs));
     json_object_set_new(aasm, "phasic_any_epochs", number(ix->aasm_phasic_any_epochs));
     json_object_set_new(aasm, "rswa_epochs", number(ix->aasm_rswa_epochs));
+    json_object_set_new(aasm, "tonic_unsure_epochs", number(ix->aasm_tonic_unsure_epochs));
     json_object_set_new(sinbar, "chin_phasic_3s", number(ix->sinbar_chin_phasic_3s));
     json_object_set_new(sinbar, "chin_any_3s", number(ix->sinbar_chin_any_3s));
     json_object_set_new(sinbar, "chin_tonic_30s", number(ix->sinbar_chin_tonic_30s));
