@@ -16,10 +16,12 @@ targets=(src include cli tests docs bench demo scripts fuzz .ci README.md DEVELO
          CMakeLists.txt)
 excluded=(--exclude-dir=corpus --exclude-dir=malformed --exclude-dir=build)
 
-# forbid WHAT GREP_FLAGS PATTERN: no line of the targets matches PATTERN (grep -E)
+# forbid WHAT CASE PATTERN: no line of the targets matches PATTERN (grep -E);
+# CASE is "exact" or "any-case"
 forbid() {
-  local what=$1 flags=$2 pattern=$3 hits
-  hits=$(cd "$src" && grep -rnIE $flags "${excluded[@]}" -- "$pattern" "${targets[@]}" 2>/dev/null |
+  local what=$1 pattern=$3 hits icase=()
+  [ "$2" = any-case ] && icase=(-i)
+  hits=$(cd "$src" && grep -rnIE "${icase[@]}" "${excluded[@]}" -- "$pattern" "${targets[@]}" 2>/dev/null |
          grep -v "^$self:")
   if [ -n "$hits" ]; then
     echo "FAIL $what:"; echo "$hits" | sed 's/^/    /'; fails=$((fails+1))
@@ -28,12 +30,12 @@ forbid() {
   fi
 }
 
-forbid "brief in capitals" "" '\bBRIEF\b'
-forbid "design or project brief" -i '\b(design|project|task|original) brief\b|\bbrief,? \(?section\b|\bthe brief([^a-z]|$| (of|says|asks|wants))|\(brief[;:,)]'
-forbid "issue as a ticket" -i '\bthe ([a-z-]+ ){0,2}issue\b|\b(see|per|in|from) issue\b|\bissue ?#?[0-9]+\b'
-forbid "ticket" -i '\b(the|a|this|that|see|per) tickets?\b|\btickets? ?#?[0-9]+\b'
-forbid "numbered pull request or bug" -i '\b(bug|PR|pull request|merge request) ?#[0-9]+'
-forbid "teaching material" -i '\blectures?\b|\bcourse ?(notes|material|work)\b|\bhomework\b|\bsyllabus\b'
+forbid "brief in capitals" exact '\bBRIEF\b'
+forbid "design or project brief" any-case '\b(design|project|task|original) brief\b|\bbrief,? \(?section\b|\bthe brief([^a-z]|$| (of|says|asks|wants))|\(brief[;:,)]'
+forbid "issue as a ticket" any-case '\bthe ([a-z-]+ ){0,2}issue\b|\b(see|per|in|from) issue\b|\bissue ?#?[0-9]+\b'
+forbid "ticket" any-case '\b(the|a|this|that|see|per) tickets?\b|\btickets? ?#?[0-9]+\b'
+forbid "numbered pull request or bug" any-case '\b(bug|PR|pull request|merge request) ?#[0-9]+'
+forbid "teaching material" any-case '\blectures?\b|\bcourse ?(notes|material|work)\b|\bhomework\b|\bsyllabus\b'
 
 echo "$fails failed"
 [ "$fails" = 0 ]
