@@ -499,8 +499,9 @@ static void write_index_chart(html_ctx *c)
         rt_svg_text(p, label_w, y + 14, "end", i == (int)n->headline ? "bold" : NULL, rules[i].id);
         rt_svg_rect(p, bar_x, y + 3, bar_w, row_h - 8, "#f0f3f6", NULL);
         if (x->status == RT_STATUS_NOT_COMPUTED) {
-            snprintf(buf, sizeof buf, "not computed: %s", x->reason);
-            rt_svg_text(p, bar_x + 6, y + 14, "start", "small", buf);
+            char note[sizeof "not computed: " + sizeof x->reason]; /* the whole reason fits */
+            snprintf(note, sizeof note, "not computed: %s", x->reason);
+            rt_svg_text(p, bar_x + 6, y + 14, "start", "small", note);
             continue;
         }
         double w = bar_w * fmin(fmax(x->value / scale, 0), 1);
@@ -539,7 +540,7 @@ static void write_index_table(html_ctx *c)
     rt_page *p = &c->p;
     const rt_night *n = c->night;
     const rt_index_rule *rules = rt_index_rules();
-    char v[48], buf[200];
+    char v[48], counted[48];
     rt_page_start(p, "table");
     rt_page_start(p, "tr");
     static const char *const HEAD[] = {"index", "what it counts", "value", "counted", "cutoff",
@@ -554,21 +555,24 @@ static void write_index_table(html_ctx *c)
         cell(p, rules[i].title, false);
         value_text(&rules[i], x->value, v, sizeof v);
         cell(p, v, true);
-        snprintf(buf, sizeof buf, "%zu / %zu", x->numerator, x->denominator);
-        cell(p, buf, true);
+        snprintf(counted, sizeof counted, "%zu / %zu", x->numerator, x->denominator);
+        cell(p, counted, true);
         if (n->cutoffs.has[i])
             value_text(&rules[i], n->cutoffs.value[i], v, sizeof v);
         else
             snprintf(v, sizeof v, "none");
         cell(p, v, true);
-        snprintf(buf, sizeof buf, "%s%s%s", rt_index_status_name(x->status), x->reason[0] ? ": " : "",
-                 x->reason);
-        cell(p, buf, false);
-        snprintf(buf, sizeof buf, "%s%s", rules[i].source,
-                 rules[i].from_memory ? " (value from memory, not verified: context only, never a "
-                                        "reason for review)"
-                                      : "");
-        cell(p, buf, false);
+        /* The reason and the source are written whole, with no buffer of our own to cut them. */
+        rt_page_start(p, "td");
+        rt_page_textf(p, "%s%s%s", rt_index_status_name(x->status), x->reason[0] ? ": " : "",
+                      x->reason);
+        rt_page_end_html(p);
+        rt_page_start(p, "td");
+        rt_page_text(p, rules[i].source);
+        if (rules[i].from_memory)
+            rt_page_text(p, " (value from memory, not verified: context only, never a reason for "
+                            "review)");
+        rt_page_end_html(p);
         rt_page_end_html(p);
     }
     rt_page_end_html(p);

@@ -27,8 +27,8 @@ typedef struct profile_rates {
 
 static profile_rates rates_of(rt_synth_profile profile)
 {
-    /* Targets from the brief of each profile; exact values come out of the
-     * placement and are written to truth.json. */
+    /* Targets of each profile (docs/synthetic-nights.md, "Profiles"); exact
+     * values come out of the placement and are written to truth.json. */
     profile_rates r;
     memset(&r, 0, sizeof r);
     switch (profile) {

@@ -31,7 +31,7 @@ check scan 0 "$bin" scan "$work/n/night.edf"
 has scan-lists-chin "$work/out" "Chin1-Chin2"
 has scan-quality "$work/out" "Signal quality over the whole recording"
 check scan-json 0 "$bin" scan "$work/n/night.edf" --json "$work/scan.json"
-# the scan JSON shape of the foundation issue: channels[{label, rate_hz, unit, role}], duration_s
+# the scan JSON shape (remtone's own format): channels[{label, rate_hz, unit, role}], duration_s
 check scan-json-shape 0 "$py" -c '
 import json,sys; d=json.load(open(sys.argv[1]))
 ch={c["label"]:c for c in d["channels"]}

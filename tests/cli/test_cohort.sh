@@ -47,7 +47,7 @@ for f in cohort.csv calibration.csv calibrated-cutoffs.csv cohort.html; do
   [ -s "ref/$f" ] && ok "ref-$f" || bad "ref-$f missing"
 done
 scored_once ref-scored-once ref
-# cohort.csv columns of the issue, index columns in rule-table order
+# cohort.csv columns of docs/cohort.md ("Files"), index columns in rule-table order
 expect table-shape 0 "$py" -c '
 import csv,sys
 rows=list(csv.DictReader(open(sys.argv[1])))

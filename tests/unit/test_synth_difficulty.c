@@ -575,8 +575,8 @@ static void spiky_emg_is_heavy_tailed_at_the_planned_level(void **state)
          * heavier-tailed (measured over seeds 11-18: 3.85-7.1). */
         assert_true(fabs(mg.kurtosis - 3.0) < 0.2);
         assert_true(ms.kurtosis > 3.5);
-        /* Rectified mean within 5 % of plan (brief; calibration ~0.2 %,
-         * per-second scatter ~5 % over > 100 s). */
+        /* Rectified mean within 5 % of plan (docs/synthetic-nights.md, "Spiky
+         * EMG": calibration ~0.2 %, per-second scatter ~5 % over > 100 s). */
         assert_true(fabs(ms.rect - want) < 0.05 * want);
         assert_true(fabs(filtered - want) < 0.15 * want);
         free(x);

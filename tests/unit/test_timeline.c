@@ -1,6 +1,6 @@
 /* The staging timeline: stage and event labels against the manuals that
- * define them, the stage/event table CSV format of the design brief (section
- * 4, remtone's own format) with every error it must report, the label map,
+ * define them, the stage/event table CSV format (remtone's own format,
+ * docs/staging.md) with every error it must report, the label map,
  * and the timeline check against a recording's length.
  *
  * Sources named beside the checks:
