@@ -152,16 +152,21 @@ rt_status rt_edf_writer_annotation(rt_edf_writer *w, double onset_s, double dura
 
 rt_status rt_edf_writer_record(rt_edf_writer *w, const double *const *samples, rt_error *err)
 {
-    int failed = -1;
+    int failed = -1, code = 0;
     rt_edflib_lock();
-    for (int k = 0; k < w->n_signals && failed < 0; k++)
-        /* EDFlib's prototype takes a non-const buffer but only reads it */
-        if (edfwrite_physical_samples(w->handle, (double *)samples[k]) != 0)
+    for (int k = 0; k < w->n_signals && failed < 0; k++) {
+        /* EDFlib's prototype takes a non-const buffer but only reads it; a
+         * failed fwrite inside it leaves the reason in errno */
+        errno = 0;
+        if (edfwrite_physical_samples(w->handle, (double *)samples[k]) != 0) {
             failed = k;
+            code = errno;
+        }
+    }
     rt_edflib_unlock();
     if (failed >= 0)
-        return rt_fail(err, RT_ERR_IO, "%s: cannot write data record %ld (signal %d)", w->out.path,
-                       w->records + 1, failed + 1);
+        return rt_fail(err, RT_ERR_IO, "%s: cannot write data record %ld (signal %d): %s", w->out.path,
+                       w->records + 1, failed + 1, code ? strerror(code) : "EDFlib refused the samples");
     w->records++;
     return RT_OK;
 }
