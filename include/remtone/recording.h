@@ -2,16 +2,22 @@
  *
  * The file is opened through EDFlib after remtone's own header checks, so a
  * malformed header is reported with the field and its byte offset rather than
- * a bare "format error". Samples are read by channel and sample range, so the
- * scoring stages read only the stretches they need. Annotations of an EDF+/BDF+
- * file are read once at open time.
+ * a bare "format error". Annotations of an EDF+/BDF+ file are read once at
+ * open time. Samples are read by channel and sample range, so the scoring
+ * stages read only the stretches they need; they are read straight from the
+ * data records in blocks (not through EDFlib), with values bit-identical to
+ * EDFlib's edfread_physical_samples.
  *
  * Ownership: rt_recording_open() returns an object the caller frees with
  * rt_recording_close(). Pointers returned by accessors live until then.
  * Thread safety: EDFlib keeps a process-wide table of open files and is not
- * thread-safe, so remtone serialises every EDFlib call (open, close, and each
- * seek-and-read) behind one lock: recordings may be opened and read from
- * several threads, but reads do not run in parallel.
+ * thread-safe, so remtone serialises every EDFlib call (the open, header and
+ * annotations, and the close of EDFlib's handle, all inside
+ * rt_recording_open) behind one lock. Sample reads take no lock: each
+ * recording has its own file descriptor and reads with pread(2), which keeps
+ * no file position, so reads run in parallel, also several at once on one
+ * recording. Recordings may be opened, read and closed from several threads;
+ * closing one while another thread reads it is the caller's error.
  *
  * Extra bytes after the last data record are refused (EDFlib 1.23 refuses
  * them); the message gives the size to cut the file to. See docs/recording.md. */

@@ -4,7 +4,7 @@
  * worker has open, because EDFlib refuses to open one file twice in a process;
  * everything else a worker calls is safe to run in parallel (FFTW planning is
  * under a lock in src/score/fft_plans.c, EDFlib calls under one in
- * src/io/recording.c). The calling thread only waits and reports progress.
+ * src/io/edflib_lock.c). The calling thread only waits and reports progress.
  * Locks (flock) keep two runs of the same slice, or a whole run and a slice,
  * from writing the same folder at once. */
 /* realpath (XSI) and flock (BSD) are outside strict POSIX 2008 */

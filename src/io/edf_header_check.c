@@ -21,7 +21,7 @@
 enum {
     MAIN_BYTES = 256,
     SIGNAL_BYTES = 256,
-    MAX_SIGNALS = 640,    /* EDFlib's EDFLIB_MAXSIGNALS */
+    MAX_SIGNALS = RT_EDF_MAX_SIGNALS,
     FIELD_TEXT_MAX = 81
 };
 
@@ -79,6 +79,7 @@ typedef struct header_ctx {
     long long file_bytes;
     int ns;
     bool is_bdf;
+    bool allow_no_records; /* a file just written: 0 data records are allowed */
     rt_error *err;
 } header_ctx;
 
@@ -302,7 +303,7 @@ static rt_status check_record_count(const header_ctx *c, rt_edf_layout *layout)
         return fail_main(c, F_RECORDS, "not a whole number");
     if (layout->n_records == -1)
         return fail_main(c, F_RECORDS, "record count unknown (-1: the recording was not closed properly)");
-    if (layout->n_records < 1)
+    if (layout->n_records < (c->allow_no_records ? 0 : 1))
         return fail_main(c, F_RECORDS, "the file must hold at least one data record");
     return RT_OK;
 }
@@ -411,6 +412,19 @@ static rt_status check_annotation_signals(const header_ctx *c)
     return RT_OK;
 }
 
+/* The signals EDFlib sets aside as annotation signals, so the data records
+ * can be read without it in the same signal order: EDFlib takes a file as
+ * EDF+ only with "EDF+C" in an EDF (BDF+: "BDF+C" in a BDF), and then hides
+ * each signal whose raw 16-byte label is "EDF Annotations " ("BDF ..."). */
+static bool edflib_hides_signal(const header_ctx *c, int k)
+{
+    const char *reserved = (const char *)c->bytes + MAIN_FIELDS[F_RESERVED].offset;
+    const char *label = (const char *)c->bytes + signal_field_offset(c->ns, S_LABEL, k);
+    if (strncmp(reserved, c->is_bdf ? "BDF+C" : "EDF+C", 5) != 0)
+        return false;
+    return memcmp(label, c->is_bdf ? "BDF Annotations " : "EDF Annotations ", 16) == 0;
+}
+
 static rt_status check_signal_headers(const header_ctx *c, rt_edf_layout *layout)
 {
     rt_status s = check_ascii(c, MAIN_BYTES, layout->header_bytes);
@@ -420,8 +434,11 @@ static rt_status check_signal_headers(const header_ctx *c, rt_edf_layout *layout
     for (int k = 0; k < c->ns && s == RT_OK; k++) {
         long long samples = 0;
         if ((s = check_physical_range(c, k)) == RT_OK && (s = check_digital_range(c, k)) == RT_OK &&
-            (s = check_samples(c, k, &samples)) == RT_OK)
+            (s = check_samples(c, k, &samples)) == RT_OK) {
             samples_per_record += samples;
+            layout->samples_per_record[k] = (int)samples;
+            layout->edflib_annotation[k] = edflib_hides_signal(c, k);
+        }
     }
     if (s != RT_OK)
         return s;
@@ -514,9 +531,10 @@ static rt_status check_open_file(header_ctx *c, FILE *f, rt_edf_layout *layout)
     return check_file_size(c, layout);
 }
 
-rt_status rt_edf_header_check(const char *path, rt_edf_layout *layout, rt_error *err)
+static rt_status header_check(header_ctx c, rt_edf_layout *layout)
 {
-    header_ctx c = {.path = path, .err = err};
+    const char *path = c.path;
+    rt_error *err = c.err;
     FILE *f = NULL;
     rt_status s = open_regular(path, &f, &c.file_bytes, err);
     if (s != RT_OK)
@@ -531,4 +549,14 @@ rt_status rt_edf_header_check(const char *path, rt_edf_layout *layout, rt_error 
     free(c.bytes);
     fclose(f);
     return s;
+}
+
+rt_status rt_edf_header_check(const char *path, rt_edf_layout *layout, rt_error *err)
+{
+    return header_check((header_ctx){.path = path, .err = err}, layout);
+}
+
+rt_status rt_edf_header_check_written(const char *path, rt_edf_layout *layout, rt_error *err)
+{
+    return header_check((header_ctx){.path = path, .err = err, .allow_no_records = true}, layout);
 }

@@ -9,6 +9,9 @@
 
 #include "remtone/status.h"
 
+/* EDFlib's EDFLIB_MAXSIGNALS; the header checks refuse more signals. */
+#define RT_EDF_MAX_SIGNALS 640
+
 /* What the checks learned; only filled when they pass. */
 typedef struct rt_edf_layout {
     bool is_bdf;              /* "\xffBIOSEMI" version field: 3-byte samples */
@@ -18,6 +21,12 @@ typedef struct rt_edf_layout {
     double record_s;          /* duration of one data record, seconds (> 0) */
     long long record_bytes;   /* bytes of one data record */
     long long file_bytes;     /* size of the file; may exceed the data (extra bytes are ignored) */
+    /* Per signal, in file order (annotation signals included), for reading
+     * the data records directly: */
+    int samples_per_record[RT_EDF_MAX_SIGNALS];
+    /* EDFlib's rule for the signals it hides: in an EDF+/BDF+ file, a label of
+     * exactly "EDF Annotations " ("BDF Annotations "), all 16 bytes. */
+    bool edflib_annotation[RT_EDF_MAX_SIGNALS];
 } rt_edf_layout;
 
 /* Reads the header of path and checks it. Returns RT_OK and fills layout, or
@@ -25,5 +34,11 @@ typedef struct rt_edf_layout {
  * RT_ERR_RECORDING (the message names the path, the field, the signal and the
  * byte offset). Refuses EDF+D/BDF+D. */
 rt_status rt_edf_header_check(const char *path, rt_edf_layout *layout, rt_error *err);
+
+/* The same checks for a file remtone has just written through EDFlib, which
+ * ignores failed writes: a file cut short is refused as above. Zero data
+ * records are allowed (EDFlib writes an annotation-only file without
+ * annotations so). */
+rt_status rt_edf_header_check_written(const char *path, rt_edf_layout *layout, rt_error *err);
 
 #endif

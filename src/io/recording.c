@@ -1,24 +1,66 @@
 /* The recording reader: remtone's header checks (edf_header_check.c) first,
- * then EDFlib for the header values, the annotations and the samples. EDFlib
- * keeps a process-wide table of open files and its open/close are not
- * thread-safe (edflib.h, "EDFlib and thread-safety"), so every EDFlib call here
- * runs under one static mutex. Samples come out in microvolts: the physical
- * value EDFlib computes from the header's ranges, times the unit's factor. */
+ * then EDFlib for the header values and the annotations. EDFlib keeps a
+ * process-wide table of open files and its open/close are not thread-safe
+ * (edflib.h, "EDFlib and thread-safety"), so every EDFlib call runs under the
+ * io/ lock (edflib_lock.h).
+ *
+ * Samples are read straight from the data records, not through EDFlib, which
+ * reads them a byte at a time. The layout is fixed by the EDF specification:
+ * after the 256 x (ns + 1) header bytes come the data records, each holding
+ * every signal's samples-per-record samples in signal order (annotation
+ * signals included), 16-bit little-endian two's complement in EDF, 24-bit in
+ * BDF. The conversion is EDFlib's own, operation for operation, so the values
+ * are bit-identical to edfread_physical_samples (tests/unit/test_read_direct.c):
+ * the digital value clamped to [dig_min, dig_max], then
+ * bitvalue * (offset + digital) with bitvalue = (phys_max - phys_min) /
+ * (dig_max - dig_min) and offset = phys_max / bitvalue - dig_max, from the
+ * header values as EDFlib parsed them. The direct reads use the recording's
+ * own descriptor and pread(2), which has no shared file position, so they
+ * need no lock and run in parallel; EDFlib's handle is closed once the header
+ * and the annotations are read. Should remtone's view of the record layout
+ * ever disagree with EDFlib's, EDFlib's handle stays open and samples are
+ * read through it, under the lock, as before. Samples come out in
+ * microvolts: the physical value times the unit's factor. */
+#define _FILE_OFFSET_BITS 64 /* 64-bit off_t for pread on 32-bit systems */
+
 #include "remtone/recording.h"
 
 #include <edflib.h>
-#include <pthread.h>
+#include <errno.h>
+#include <fcntl.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
+#include <sys/types.h>
+#include <unistd.h>
 
 #include "edf_header_check.h"
+#include "edflib_lock.h"
 #include "internal.h"
 
-enum { IDENTITY_TEXT_MAX = 512, READ_CHUNK = 1 << 20 };
+_Static_assert(sizeof(off_t) >= 8, "recordings above 2 GiB need a 64-bit off_t");
+
+/* READ_CHUNK: samples per EDFlib call (it takes an int count).
+ * SPAN_BYTES: most bytes one direct read asks for, which bounds the buffer.
+ * SKIP_BYTES: records are read whole, several per pread, when the bytes of the
+ * other signals in between are fewer than this (copying them costs less than
+ * a system call per record); otherwise the channel's bytes record by record. */
+enum { IDENTITY_TEXT_MAX = 512, READ_CHUNK = 1 << 20, SPAN_BYTES = 1 << 18, SKIP_BYTES = 16 << 10 };
+
+/* Where one channel lies in the data records, and EDFlib's conversion of it. */
+typedef struct record_slot {
+    long long offset;     /* byte offset of the channel's first sample in a record */
+    long long spr;        /* samples per record */
+    long long group;      /* records per read (1: the channel's bytes only) */
+    int dig_min, dig_max; /* digital values are clamped to these, as EDFlib does */
+    double bitvalue;      /* EDFlib's (phys_max - phys_min) / (dig_max - dig_min) */
+    double phys_offset;   /* EDFlib's phys_max / bitvalue - dig_max */
+} record_slot;
 
 struct rt_recording {
     char *path;
-    int handle;
+    int handle;           /* EDFlib's; -1 once closed (direct reads) */
+    int fd;               /* own descriptor for direct reads; -1 when reading through EDFlib */
     rt_file_kind kind;
     double duration_s;
     rt_clock_time start;
@@ -29,9 +71,12 @@ struct rt_recording {
     rt_channel_info *channels;
     size_t n_annotations;
     rt_annotation *annotations;
+    /* the data records, for direct reads */
+    long long header_bytes;
+    long long record_bytes;
+    int sample_bytes;     /* 2 (EDF) or 3 (BDF) */
+    record_slot *slots;   /* one per channel */
 };
-
-static pthread_mutex_t edflib_lock = PTHREAD_MUTEX_INITIALIZER;
 
 /* ---- units ------------------------------------------------------------ */
 
@@ -252,11 +297,10 @@ static rt_status read_annotations(rt_recording *rec, long long count, rt_error *
 
 /* ---- open / close ---------------------------------------------------------- */
 
+/* Caller holds the lock. */
 static rt_status open_with_edflib(rt_recording *rec, struct edf_hdr_struct *h, rt_error *err)
 {
-    pthread_mutex_lock(&edflib_lock);
     int rc = edfopen_file_readonly(rec->path, h, EDFLIB_READ_ALL_ANNOTATIONS);
-    pthread_mutex_unlock(&edflib_lock);
     if (rc != 0)
         return rt_fail(err, edflib_open_status(h->filetype), "%s: %s (EDFlib error %d)", rec->path,
                        edflib_error_text(h->filetype), h->filetype);
@@ -264,6 +308,7 @@ static rt_status open_with_edflib(rt_recording *rec, struct edf_hdr_struct *h, r
     return RT_OK;
 }
 
+/* Caller holds the lock. */
 static rt_status fill_from_header(rt_recording *rec, const struct edf_hdr_struct *h, rt_error *err)
 {
     rec->kind = kind_from_edflib(h->filetype);
@@ -276,10 +321,7 @@ static rt_status fill_from_header(rt_recording *rec, const struct edf_hdr_struct
     rt_status s = fill_channels(rec, h, err);
     if (s != RT_OK)
         return s;
-    pthread_mutex_lock(&edflib_lock);
-    s = read_annotations(rec, h->annotations_in_file, err);
-    pthread_mutex_unlock(&edflib_lock);
-    return s;
+    return read_annotations(rec, h->annotations_in_file, err);
 }
 
 static rt_recording *recording_new(const char *path, rt_error *err)
@@ -295,6 +337,7 @@ static rt_recording *recording_new(const char *path, rt_error *err)
     }
     memcpy(rec->path, path, n + 1);
     rec->handle = -1;
+    rec->fd = -1;
     return rec;
 }
 
@@ -313,29 +356,123 @@ static rt_status check_no_trailing_bytes(const char *path, const rt_edf_layout *
                    path, layout->file_bytes - end, layout->n_records, end, end, end);
 }
 
+/* ---- the data records, read directly ------------------------------------ */
+
+/* Maps EDFlib's channels onto the file's signals (EDFlib hides the annotation
+ * signals) and checks that both agree on the record layout: the record count,
+ * the sample size and every channel's samples per record. The file size check
+ * of both already ties the record size to the sum over all signals. */
+static bool layout_agrees(const rt_edf_layout *l, const struct edf_hdr_struct *h, int *signal_of)
+{
+    bool bdf = h->filetype == EDFLIB_FILETYPE_BDF || h->filetype == EDFLIB_FILETYPE_BDFPLUS;
+    if (h->datarecords_in_file != l->n_records || bdf != l->is_bdf || h->edfsignals > l->n_signals)
+        return false;
+    int j = 0;
+    for (int k = 0; k < l->n_signals; k++) {
+        if (l->edflib_annotation[k])
+            continue;
+        if (j == h->edfsignals || h->signalparam[j].smp_in_datarecord != l->samples_per_record[k])
+            return false;
+        signal_of[j++] = k;
+    }
+    return j == h->edfsignals;
+}
+
+static void plan_slot(record_slot *slot, const rt_edf_layout *l, int signal, const struct edf_param_struct *p)
+{
+    int width = l->is_bdf ? 3 : 2;
+    slot->offset = 0;
+    for (int k = 0; k < signal; k++)
+        slot->offset += (long long)l->samples_per_record[k] * width;
+    slot->spr = l->samples_per_record[signal];
+    long long skipped = l->record_bytes - slot->spr * width;
+    slot->group = l->record_bytes <= SPAN_BYTES && skipped < SKIP_BYTES ? SPAN_BYTES / l->record_bytes : 1;
+    slot->dig_min = p->dig_min;
+    slot->dig_max = p->dig_max;
+    /* EDFlib's two expressions as it writes them (edflib.c, end of the header
+     * check): the digital span is an int difference */
+    slot->bitvalue = (p->phys_max - p->phys_min) / (p->dig_max - p->dig_min);
+    slot->phys_offset = p->phys_max / slot->bitvalue - p->dig_max;
+}
+
+/* Opens the recording's own descriptor and plans every channel's slot.
+ * Returns RT_OK with rec->fd >= 0, or RT_OK with rec->fd == -1 when the
+ * layouts disagree (samples then come through EDFlib). */
+static rt_status plan_direct_reads(rt_recording *rec, const rt_edf_layout *l, const struct edf_hdr_struct *h,
+                                   rt_error *err)
+{
+    int signal_of[RT_EDF_MAX_SIGNALS];
+    if (!layout_agrees(l, h, signal_of))
+        return RT_OK;
+    rec->slots = rt_calloc(h->edfsignals > 0 ? (size_t)h->edfsignals : 1, sizeof *rec->slots);
+    if (!rec->slots)
+        return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", rec->path);
+    for (int j = 0; j < h->edfsignals; j++)
+        plan_slot(&rec->slots[j], l, signal_of[j], &h->signalparam[j]);
+    rec->header_bytes = l->header_bytes;
+    rec->record_bytes = l->record_bytes;
+    rec->sample_bytes = l->is_bdf ? 3 : 2;
+    int fd = open(rec->path, O_RDONLY | O_CLOEXEC);
+    if (fd < 0)
+        return rt_fail(err, RT_ERR_IO, "%s: cannot open: %s", rec->path, strerror(errno));
+    struct stat st;
+    if (fstat(fd, &st) != 0 || !S_ISREG(st.st_mode) || (long long)st.st_size != l->file_bytes) {
+        close(fd);
+        return rt_fail(err, RT_ERR_IO, "%s: the file changed while it was being opened (%lld bytes "
+                       "when its header was checked)", rec->path, l->file_bytes);
+    }
+    rec->fd = fd;
+    return RT_OK;
+}
+
+/* ---- open / close (continued) ------------------------------------------ */
+
+/* The whole EDFlib session of an open runs under the lock: open, header,
+ * annotations and, when the records are read directly, close. */
+static rt_status open_locked(rt_recording *rec, const rt_edf_layout *layout, rt_error *err)
+{
+    struct edf_hdr_struct *h = rt_calloc(1, sizeof *h);
+    if (!h)
+        return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", rec->path);
+    rt_edflib_lock();
+    rt_status s = open_with_edflib(rec, h, err);
+    if (s == RT_OK)
+        s = fill_from_header(rec, h, err);
+    if (s == RT_OK)
+        s = plan_direct_reads(rec, layout, h, err);
+    if (s == RT_OK && rec->fd >= 0) {
+        edfclose_file(rec->handle);
+        rec->handle = -1;
+    }
+    rt_edflib_unlock();
+    free(h);
+    return s;
+}
+
 rt_recording *rt_recording_open(const char *path, rt_error *err)
 {
-    rt_edf_layout layout;
+    rt_edf_layout *layout = NULL;
     if (!path) {
         rt_fail(err, RT_ERR_USAGE, "no recording path given");
         return NULL;
     }
-    if (rt_edf_header_check(path, &layout, err) != RT_OK || check_no_trailing_bytes(path, &layout, err) != RT_OK)
-        return NULL;
-    rt_recording *rec = recording_new(path, err);
-    struct edf_hdr_struct *h = rt_calloc(1, sizeof *h);
-    rt_status s = !rec ? RT_ERR_NOMEM
-                  : !h ? rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", path)
-                       : open_with_edflib(rec, h, err);
-    if (s == RT_OK) {
-        rec->file_bytes = layout.file_bytes;
-        s = fill_from_header(rec, h, err);
-    }
-    free(h);
-    if (s != RT_OK) {
-        rt_recording_close(rec);
+    /* the layout holds per-signal tables of EDFlib's 640-signal limit */
+    layout = rt_calloc(1, sizeof *layout);
+    if (!layout) {
+        rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", path);
         return NULL;
     }
+    rt_recording *rec = NULL;
+    if (rt_edf_header_check(path, layout, err) == RT_OK && check_no_trailing_bytes(path, layout, err) == RT_OK)
+        rec = recording_new(path, err);
+    if (rec) {
+        rec->file_bytes = layout->file_bytes;
+        if (open_locked(rec, layout, err) != RT_OK) {
+            rt_recording_close(rec);
+            rec = NULL;
+        }
+    }
+    free(layout);
     return rec;
 }
 
@@ -344,10 +481,13 @@ void rt_recording_close(rt_recording *rec)
     if (!rec)
         return;
     if (rec->handle >= 0) {
-        pthread_mutex_lock(&edflib_lock);
+        rt_edflib_lock();
         edfclose_file(rec->handle);
-        pthread_mutex_unlock(&edflib_lock);
+        rt_edflib_unlock();
     }
+    if (rec->fd >= 0)
+        close(rec->fd);
+    free(rec->slots);
     free(rec->channels);
     free(rec->annotations);
     free(rec->path);
@@ -422,18 +562,108 @@ static rt_status read_physical(rt_recording *rec, int channel, long long first, 
     return RT_OK;
 }
 
+static rt_status read_through_edflib(rt_recording *rec, int channel, long long first, size_t n, double *out,
+                                     rt_error *err)
+{
+    rt_edflib_lock();
+    rt_status s = read_physical(rec, channel, first, n, out, err);
+    rt_edflib_unlock();
+    double factor = rec->channels[channel].uv_per_unit;
+    if (s == RT_OK && factor != 1.0)
+        for (size_t i = 0; i < n; i++)
+            out[i] *= factor;
+    return s;
+}
+
+static rt_status read_bytes_at(const rt_recording *rec, int channel, unsigned char *buf, size_t len,
+                               long long offset, rt_error *err)
+{
+    for (size_t done = 0; done < len;) {
+        ssize_t got = pread(rec->fd, buf + done, len - done, (off_t)(offset + (long long)done));
+        if (got < 0 && errno == EINTR)
+            continue;
+        if (got <= 0)
+            return rt_fail(err, RT_ERR_IO, "%s: channel \"%s\": cannot read %zu bytes at byte offset %lld: %s",
+                           rec->path, rec->channels[channel].label, len - done, offset + (long long)done,
+                           got < 0 ? strerror(errno) : "the file ends early (cut after it was opened?)");
+        done += (size_t)got;
+    }
+    return RT_OK;
+}
+
+/* n samples from p (little-endian, 2 or 3 bytes each, two's complement) to
+ * physical values the way EDFlib computes them, then to microvolts. The
+ * factor is applied to EDFlib's value, as a separate multiplication (x * 1 is
+ * exact), so the result equals EDFlib's read followed by the unit factor. */
+static void convert(const unsigned char *p, size_t n, int width, const record_slot *slot, double factor,
+                    double *out)
+{
+    for (size_t i = 0; i < n; i++, p += width) {
+        int d;
+        if (width == 2) {
+            d = p[0] | p[1] << 8;
+            d -= (d & 0x8000) << 1;
+        } else {
+            d = p[0] | p[1] << 8 | p[2] << 16;
+            d -= (d & 0x800000) << 1;
+        }
+        d = d > slot->dig_max ? slot->dig_max : d < slot->dig_min ? slot->dig_min : d;
+        double physical = slot->bitvalue * (slot->phys_offset + (double)d);
+        out[i] = physical * factor;
+    }
+}
+
+static long long min_ll(long long a, long long b) { return a < b ? a : b; }
+
+/* Reads samples [first, first + n) of channel from the records: each pread
+ * covers up to slot->group records (from the first wanted sample to the last
+ * one it needs) or, record by record, the channel's bytes only; never more
+ * than SPAN_BYTES, so the buffer stays small whatever the request. */
+static rt_status read_direct(const rt_recording *rec, int channel, long long first, size_t n, double *out,
+                             rt_error *err)
+{
+    const record_slot *slot = &rec->slots[channel];
+    const long long spr = slot->spr, rb = rec->record_bytes, width = rec->sample_bytes;
+    const long long end = first + (long long)n; /* one past the last sample wanted */
+    const double factor = rec->channels[channel].uv_per_unit;
+    long long span = ((end - 1) / spr - first / spr) * rb + ((end - 1) % spr - first % spr + 1) * width;
+    size_t cap = (size_t)min_ll(span, SPAN_BYTES);
+    unsigned char *buf = malloc(cap);
+    if (!buf)
+        return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory reading channel \"%s\"", rec->path,
+                       rec->channels[channel].label);
+    rt_status s = RT_OK;
+    for (long long pos = first; pos < end && s == RT_OK;) {
+        long long r0 = pos / spr, k0 = pos % spr;
+        long long stop = min_ll(end, (r0 + slot->group) * spr);
+        if (slot->group == 1)
+            stop = min_ll(stop, pos + SPAN_BYTES / width);
+        long long r1 = (stop - 1) / spr, k1 = (stop - 1) % spr;
+        long long at = rec->header_bytes + r0 * rb + slot->offset + k0 * width;
+        size_t len = (size_t)((r1 - r0) * rb + (k1 - k0 + 1) * width);
+        s = read_bytes_at(rec, channel, buf, len, at, err);
+        /* each record's run of the channel's samples sits at (r - r0) records
+         * and (k - k0) samples from the start of the buffer */
+        for (long long cur = pos; cur < stop && s == RT_OK;) {
+            long long r = cur / spr, k = cur % spr;
+            long long count = min_ll(stop, (r + 1) * spr) - cur;
+            convert(buf + (r - r0) * rb + (k - k0) * width, (size_t)count, (int)width, slot, factor,
+                    out + (cur - first));
+            cur += count;
+        }
+        pos = stop;
+    }
+    free(buf);
+    return s;
+}
+
 rt_status rt_recording_read_uv(rt_recording *rec, int channel, long long first, size_t n, double *out,
                                rt_error *err)
 {
     rt_status s = check_read_range(rec, channel, first, n, err);
     if (s != RT_OK || n == 0)
         return s;
-    pthread_mutex_lock(&edflib_lock);
-    s = read_physical(rec, channel, first, n, out, err);
-    pthread_mutex_unlock(&edflib_lock);
-    double factor = rec->channels[channel].uv_per_unit;
-    if (s == RT_OK && factor != 1.0)
-        for (size_t i = 0; i < n; i++)
-            out[i] *= factor;
-    return s;
+    if (rec->fd < 0)
+        return read_through_edflib(rec, channel, first, n, out, err);
+    return read_direct(rec, channel, first, n, out, err);
 }

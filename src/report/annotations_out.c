@@ -1,18 +1,16 @@
 /* The detected activity as an EDF+ annotation file, so that a reviewer's own
  * viewer can lay it over the recording: every phasic burst (per rule set and
  * channel), every run of tonic 3-s mini-epochs within an epoch, and the ranked
- * evidence epochs. The file is written by EDFlib's writer with no signals (an
- * annotation-only EDF+, which EDFlib 1.23 accepts), starts at the recording's
- * start date and time, and is written to a temporary name and renamed. The
- * texts are listed in docs/review-report.md. EDFlib is not thread-safe; this
- * writer is used from one thread at a time. */
-#include <edflib.h>
-#include <math.h>
+ * evidence epochs. The file is written by EDFlib's writer (through
+ * io/edf_writer.h, under the EDFlib lock) with no signals (an annotation-only
+ * EDF+, which EDFlib 1.23 accepts), starts at the recording's start date and
+ * time, and is written to a temporary name, checked and renamed. The texts
+ * are listed in docs/review-report.md. */
 #include <stdlib.h>
 #include <string.h>
 
 #include "internal.h"
-#include "output.h"
+#include "io/edf_writer.h"
 #include "remtone/report.h"
 #include "svg.h"
 
@@ -117,38 +115,22 @@ static int collect_evidence(const rt_night *night, notes *ns)
     return 0;
 }
 
-/* EDFlib counts time in units of 100 microseconds (EDFLIB_TIME_DIMENSION is
- * 10^7 per second; annotation onsets are written in 10^-4 s). */
-static long long ticks(double s) { return llround(s * 10000.0); }
-
-static rt_status write_file(const char *temp, const char *path, const rt_recording *rec,
-                            const notes *ns, rt_error *err)
+static rt_status write_file(const char *path, const rt_recording *rec, const notes *ns, rt_error *err)
 {
-    int h = edfopen_file_writeonly(temp, EDFLIB_FILETYPE_EDFPLUS, 0);
-    if (h < 0)
-        return rt_fail(err, RT_ERR_IO, "%s: EDFlib cannot create the annotation file (code %d)",
-                       path, h);
     rt_clock_time t = rt_recording_start(rec);
-    rt_status st = RT_OK;
-    if (edf_set_startdatetime(h, t.year, t.month, t.day, t.hour, t.minute, t.second) != 0)
-        st = rt_fail(err, RT_ERR_IO, "%s: EDFlib refused the start %04d-%02d-%02d %02d:%02d:%02d",
-                     path, t.year, t.month, t.day, t.hour, t.minute, t.second);
-    /* sub-second start in units of 100 ns (EDFlib) */
-    if (st == RT_OK && t.subsecond > 0 &&
-        edf_set_subsecond_starttime(h, (int)llround(t.subsecond * 1e7)) != 0)
-        st = rt_fail(err, RT_ERR_IO, "%s: EDFlib refused the sub-second start", path);
-    if (st == RT_OK && (edf_set_equipment(h, "remtone") != 0 ||
-                        edf_set_recording_additional(h, "remtone detected activity") != 0))
-        st = rt_fail(err, RT_ERR_IO, "%s: EDFlib refused a header field", path);
-    for (size_t i = 0; i < ns->n && st == RT_OK; i++) {
-        const note *x = &ns->v[i];
-        if (edfwrite_annotation_utf8(h, ticks(x->onset_s), ticks(x->duration_s), x->text) != 0)
-            st = rt_fail(err, RT_ERR_IO, "%s: EDFlib refused annotation %zu (%s at %.4f s)", path,
-                         i + 1, x->text, x->onset_s);
+    rt_edf_writer_header header = {.year = t.year, .month = t.month, .day = t.day, .hour = t.hour,
+                                   .minute = t.minute, .second = t.second, .subsecond = t.subsecond,
+                                   .equipment = "remtone",
+                                   .recording_additional = "remtone detected activity"};
+    rt_edf_writer *w;
+    rt_status st = rt_edf_writer_begin(&w, path, &header, NULL, 0, err);
+    for (size_t i = 0; i < ns->n && st == RT_OK; i++)
+        st = rt_edf_writer_annotation(w, ns->v[i].onset_s, ns->v[i].duration_s, ns->v[i].text, err);
+    if (st != RT_OK) {
+        rt_edf_writer_abort(w);
+        return st;
     }
-    if (edfclose_file(h) != 0 && st == RT_OK)
-        st = rt_fail(err, RT_ERR_IO, "%s: EDFlib cannot finish the annotation file", path);
-    return st;
+    return rt_edf_writer_finish(w, err);
 }
 
 rt_status rt_night_write_annotations(const rt_night *night, const rt_recording *rec,
@@ -165,15 +147,7 @@ rt_status rt_night_write_annotations(const rt_night *night, const rt_recording *
     /* a stable sort is not needed: equal onsets carry different texts and any
      * order of them is valid EDF+ */
     qsort(ns.v, ns.n, sizeof *ns.v, by_onset);
-    rt_output out;
-    rt_status st = rt_output_begin(&out, path, 0, err);
-    if (st == RT_OK) {
-        st = write_file(out.temp_path, path, rec, &ns, err);
-        if (st == RT_OK)
-            st = rt_output_commit(&out, err);
-        else
-            rt_output_abort(&out);
-    }
+    rt_status st = write_file(path, rec, &ns, err);
     free(ns.v);
     return st;
 }

@@ -4,16 +4,17 @@
  * scaled by the planned rectified level and the drift gain; emg_model.c);
  * EEG, EOG, ECG, respiration, SpO2, snore and position are cheap
  * placeholders that only need to look plausible and follow the stages and
- * events. Each channel draws from its own random stream. */
+ * events. Each channel draws from its own random stream. The file goes
+ * through io/edf_writer.h (EDFlib's writer under the EDFlib lock, written to a
+ * temporary name, checked and renamed). */
 #include "synth_internal.h"
 
-#include <edflib.h>
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
 
 #include "internal.h"
-#include "output.h"
+#include "io/edf_writer.h"
 
 #define SYNTH_PI 3.14159265358979323846
 
@@ -427,105 +428,83 @@ static void make_resp(writer *w, long s, size_t *cursor)
     w->buf[CH_POS][0] = plan->position[s / SYNTH_EPOCH_S];
 }
 
-static rt_status set_header(int h, const synth_plan *plan, const char *path, rt_error *err)
+static rt_status begin_file(rt_edf_writer **out, const synth_plan *plan, const char *path, rt_error *err)
 {
-    int bad = 0;
+    rt_edf_writer_signal sig[N_CHANNELS];
     double emg_range = rt_synth_emg_range_uv(plan);
     for (int c = 0; c < N_CHANNELS; c++) {
         const channel_spec *cs = &channels[c];
         int emg = c >= CH_EMG0 && c < CH_EMG0 + SYNTH_ROLES;
-        bad |= edf_set_samplefrequency(h, c, channel_rate(plan, c));
-        bad |= edf_set_physical_maximum(h, c, emg ? emg_range : cs->phys_max);
-        bad |= edf_set_physical_minimum(h, c, emg ? -emg_range : cs->phys_min);
-        bad |= edf_set_digital_maximum(h, c, cs->dig_max);
-        bad |= edf_set_digital_minimum(h, c, cs->dig_min);
-        bad |= edf_set_label(h, c, cs->label);
-        bad |= edf_set_physical_dimension(h, c, cs->unit);
-        bad |= edf_set_transducer(h, c, cs->transducer);
-        bad |= edf_set_prefilter(h, c, cs->prefilter);
+        sig[c] = (rt_edf_writer_signal){.label = cs->label, .unit = cs->unit, .transducer = cs->transducer,
+                                        .prefilter = cs->prefilter, .rate_hz = channel_rate(plan, c),
+                                        .phys_min = emg ? -emg_range : cs->phys_min,
+                                        .phys_max = emg ? emg_range : cs->phys_max,
+                                        .dig_min = cs->dig_min, .dig_max = cs->dig_max};
     }
     const rt_synth_options *o = &plan->opt;
     /* A fixed fictional date keeps the file byte-identical between runs. */
-    bad |= edf_set_startdatetime(h, 2024, 1, 1, o->start_hour, o->start_minute, 0);
-    bad |= edf_set_patientname(h, o->patient ? o->patient : "X");
-    bad |= edf_set_recording_additional(h, o->recording ? o->recording : rt_synth_profile_name(o->profile));
-    bad |= edf_set_equipment(h, "remtone-synth");
-    if (bad)
-        return rt_fail(err, RT_ERR_INTERNAL, "%s: EDFlib refused a header field", path);
-    return RT_OK;
+    rt_edf_writer_header header = {
+        .year = 2024, .month = 1, .day = 1, .hour = o->start_hour, .minute = o->start_minute,
+        .patient_name = o->patient ? o->patient : "X",
+        .recording_additional = o->recording ? o->recording : rt_synth_profile_name(o->profile),
+        .equipment = "remtone-synth"};
+    return rt_edf_writer_begin(out, path, &header, sig, N_CHANNELS, err);
 }
 
-static rt_status write_annotations(int h, const synth_plan *plan, const char *path, rt_error *err)
+static rt_status write_annotations(rt_edf_writer *w, const synth_plan *plan, rt_error *err)
 {
-    int bad = 0;
-    for (int e = 0; e < plan->n_epochs;) {
+    rt_status st = RT_OK;
+    for (int e = 0; e < plan->n_epochs && st == RT_OK;) {
         int end = e;
         while (end < plan->n_epochs && plan->stage[end] == plan->stage[e])
             end++;
-        bad |= edfwrite_annotation_utf8(h, (long long)e * SYNTH_EPOCH_S * 10000LL,
-                                        (long long)(end - e) * SYNTH_EPOCH_S * 10000LL,
-                                        rt_synth_stage_edf_text(plan->stage[e]));
+        st = rt_edf_writer_annotation(w, (double)e * SYNTH_EPOCH_S, (double)(end - e) * SYNTH_EPOCH_S,
+                                      rt_synth_stage_edf_text(plan->stage[e]), err);
         e = end;
     }
-    for (size_t i = 0; i < plan->n_events; i++)
-        bad |= edfwrite_annotation_utf8(h, plan->events[i].start_s * 10000LL,
-                                        plan->events[i].duration_s * 10000LL,
-                                        rt_synth_event_edf_text(plan->events[i].type));
-    if (bad)
-        return rt_fail(err, RT_ERR_INTERNAL, "%s: EDFlib refused an annotation", path);
-    return RT_OK;
+    for (size_t i = 0; i < plan->n_events && st == RT_OK; i++)
+        st = rt_edf_writer_annotation(w, (double)plan->events[i].start_s, (double)plan->events[i].duration_s,
+                                      rt_synth_event_edf_text(plan->events[i].type), err);
+    return st;
 }
 
-static rt_status write_records(int h, writer *w, const char *path, rt_error *err)
+static rt_status write_records(rt_edf_writer *w, writer *g, const char *path, rt_error *err)
 {
     size_t cursor = 0;
-    for (long s = 0; s < w->plan->n_seconds; s++) {
-        make_eeg(w, s);
-        make_eog(w, s);
-        make_emg(w, s);
-        make_ecg(w, s);
-        make_resp(w, s, &cursor);
-        for (int c = 0; c < N_CHANNELS; c++)
-            if (edfwrite_physical_samples(h, w->buf[c]) != 0)
-                return rt_fail(err, RT_ERR_IO, "%s: record %ld: cannot write signal %d", path, s, c);
+    for (long s = 0; s < g->plan->n_seconds; s++) {
+        make_eeg(g, s);
+        make_eog(g, s);
+        make_emg(g, s);
+        make_ecg(g, s);
+        make_resp(g, s, &cursor);
+        rt_status st = rt_edf_writer_record(w, (const double *const *)g->buf, err);
+        if (st != RT_OK)
+            return st;
     }
-    if (w->emg_peak_uv >= w->emg_range_uv)
+    if (g->emg_peak_uv >= g->emg_range_uv)
         return rt_fail(err, RT_ERR_INTERNAL, "%s: EMG reached %.1f uV and would clip at +-%g uV", path,
-                       w->emg_peak_uv, w->emg_range_uv);
+                       g->emg_peak_uv, g->emg_range_uv);
     return RT_OK;
 }
 
 rt_status rt_synth_write_edf(const synth_plan *plan, const char *path, rt_error *err)
 {
-    rt_output out;
-    rt_status st = rt_output_begin(&out, path, 0, err);
-    if (st != RT_OK)
-        return st;
-    writer *w = malloc(sizeof *w);
-    if (!w) {
-        rt_output_abort(&out);
+    writer *g = malloc(sizeof *g);
+    if (!g)
         return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", path);
-    }
-    st = writer_init(w, plan, err);
-    int h = -1;
-    if (st == RT_OK) {
-        h = edfopen_file_writeonly(out.temp_path, EDFLIB_FILETYPE_EDFPLUS, N_CHANNELS);
-        if (h < 0)
-            st = rt_fail(err, RT_ERR_IO, "%s: EDFlib cannot create the file (code %d)", path, h);
-    }
+    rt_edf_writer *w = NULL;
+    rt_status st = writer_init(g, plan, err);
     if (st == RT_OK)
-        st = set_header(h, plan, path, err);
+        st = begin_file(&w, plan, path, err);
     if (st == RT_OK)
-        st = write_annotations(h, plan, path, err);
+        st = write_annotations(w, plan, err);
     if (st == RT_OK)
-        st = write_records(h, w, path, err);
-    if (h >= 0 && edfclose_file(h) != 0 && st == RT_OK)
-        st = rt_fail(err, RT_ERR_IO, "%s: EDFlib cannot finish the file", path);
-    writer_free(w);
-    free(w);
+        st = write_records(w, g, path, err);
+    writer_free(g);
+    free(g);
     if (st != RT_OK) {
-        rt_output_abort(&out);
+        rt_edf_writer_abort(w);
         return st;
     }
-    return rt_output_commit(&out, err);
+    return rt_edf_writer_finish(w, err);
 }

@@ -1,8 +1,9 @@
 #!/usr/bin/env bash
 # The layering of src/ (DEVELOPERS.md): dsp/ is beneath quality/ and score/,
 # and neither quality/ nor report/ reaches up into score/'s private headers;
-# the CLI uses the public API only. A check on #include lines, so a change
-# that breaks the layering fails here.
+# the CLI uses the public API only; only src/io/ calls EDFlib, where every
+# call runs under the EDFlib lock (src/io/edflib_lock.h). A check on #include
+# lines, so a change that breaks the layering fails here.
 set -u
 src=${REMTONE_SOURCE:?}
 fails=0
@@ -18,5 +19,13 @@ forbid src/quality 'score/' "quality is beneath score"
 forbid src/report 'score/' "reports read the public result"
 forbid src/report 'quality/' "reports read the public result"
 forbid cli '(score|quality|dsp|report|common|io|staging|synth|cohort|roles)/' "the CLI uses the public API"
+# EDFlib is not thread-safe: outside src/io/ no library, CLI, benchmark, fuzz
+# or tool source includes it. (The unit tests do: they use EDFlib as an
+# independent reference, single-threaded, to write files and to check reads.)
+hits=$(grep -rnE '^#include [<"]edflib\.h[>"]' "$src/src" "$src/include" "$src/cli" "$src/bench" \
+         "$src/fuzz" "$src/tests/tools" 2>/dev/null | grep -v "^$src/src/io/")
+if [ -n "$hits" ]; then echo "FAIL edflib.h included outside src/io (EDFlib calls belong under the lock there):"
+  echo "$hits" | sed 's/^/    /'; fails=$((fails+1))
+else echo "ok   only src/io includes edflib.h"; fi
 echo "$fails failed"
 [ "$fails" = 0 ]

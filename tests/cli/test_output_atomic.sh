@@ -6,7 +6,7 @@
 #    input is untouched, however the path is spelled (symlink, hard link);
 #  - a write that fails (no space: /dev/full, and a full tmpfs when this
 #    machine lets root mount one) exits 7, leaves no partial file and keeps
-#    the previous file;
+#    the previous file, also for the EDF+ files EDFlib writes;
 #  - a run killed with SIGKILL in the middle of writing leaves the previous
 #    file intact (a stray PATH.tmp-XXXXXX may remain, never a partial PATH).
 # Exit codes: README.md "Exit codes".
@@ -109,6 +109,29 @@ if ls "$night"/night.edf.tmp-* >/dev/null 2>&1; then
 else
   wait "$pid" 2>/dev/null
   bad "killed-write: the 12-h write ended before it could be interrupted"
+fi
+
+# 7. the EDF+ annotation file goes through EDFlib's writer, which does not
+# report failed writes: remtone reads the file back before renaming it. A
+# device gets a private temporary file (in TMPDIR) that is copied, then removed.
+# (A night of its own: case 6 may have left the 12-h tables beside night.edf.)
+night="$work/night7"
+run synth-for-annotations 0 synth --profile rbd --hours 1 --seed 5 --out "$night"
+nstages="$night/stages.csv"
+mkdir -p "$work/tmpdir"
+TMPDIR="$work/tmpdir" run annotations-to-dev-full 7 score "$night/night.edf" --stages "$nstages" --quiet --annotations /dev/full
+has_err annotations-to-dev-full-message "/dev/full: cannot write output"
+[ -z "$(ls -A "$work/tmpdir")" ] && ok annotations-private-temp-removed || bad annotations-private-temp-removed
+run annotations-to-dev-null 0 score "$night/night.edf" --stages "$nstages" --quiet --annotations /dev/null
+if [ "$(id -u)" = 0 ] && mount -t tmpfs -o size=16k tmpfs "$mnt" 2>/dev/null; then
+  echo "previous annotations" >"$mnt/a.edf"
+  run annotations-to-full-fs 7 score "$night/night.edf" --stages "$nstages" --quiet --annotations "$mnt/a.edf"
+  has_err annotations-to-full-fs-message "cannot write output"
+  [ "$(cat "$mnt/a.edf")" = "previous annotations" ] && ok annotations-full-fs-keeps-previous || bad annotations-full-fs-keeps-previous
+  no_temp annotations-full-fs-no-temp "$mnt"
+  umount "$mnt"
+else
+  echo "skip annotations-full-fs: cannot mount a tmpfs here (needs root and mount rights)"
 fi
 
 echo "$fails failed"

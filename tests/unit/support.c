@@ -49,6 +49,49 @@ const char *rt_test_text_file(const char *dir, const char *name, const char *tex
     return path;
 }
 
+/* Signal header field widths in file order (EDF specification). */
+static const int EDF_SIGNAL_WIDTH[10] = {16, 80, 8, 8, 8, 8, 8, 80, 8, 32};
+
+void rt_test_edf_put(unsigned char *at, int width, const char *text)
+{
+    memset(at, ' ', (size_t)width);
+    memcpy(at, text, strlen(text) < (size_t)width ? strlen(text) : (size_t)width);
+}
+
+long long rt_test_edf_signal_offset(int ns, int field, int k)
+{
+    long long off = 256;
+    for (int i = 0; i < field; i++)
+        off += (long long)ns * EDF_SIGNAL_WIDTH[i];
+    return off + (long long)k * EDF_SIGNAL_WIDTH[field];
+}
+
+void rt_test_edf_put_signal(unsigned char *h, int ns, int field, int k, const char *text)
+{
+    rt_test_edf_put(h + rt_test_edf_signal_offset(ns, field, k), EDF_SIGNAL_WIDTH[field], text);
+}
+
+void rt_test_edf_put_main(unsigned char *h, const rt_test_edf_main *m)
+{
+    char text[32];
+    if (m->bdf)
+        memcpy(h, "\xff" "BIOSEMI", 8);
+    else
+        rt_test_edf_put(h, 8, "0");
+    rt_test_edf_put(h + 8, 80, m->patient);
+    rt_test_edf_put(h + 88, 80, m->recording);
+    rt_test_edf_put(h + 168, 8, m->date);
+    rt_test_edf_put(h + 176, 8, m->time);
+    snprintf(text, sizeof text, "%d", 256 * (m->ns + 1));
+    rt_test_edf_put(h + 184, 8, text);
+    rt_test_edf_put(h + 192, 44, m->reserved);
+    snprintf(text, sizeof text, "%d", m->n_records);
+    rt_test_edf_put(h + 236, 8, text);
+    rt_test_edf_put(h + 244, 8, m->record_s);
+    snprintf(text, sizeof text, "%d", m->ns);
+    rt_test_edf_put(h + 252, 4, text);
+}
+
 uint64_t rt_test_seed(void)
 {
     const char *s = getenv("REMTONE_SEED");

@@ -5,6 +5,7 @@
 #include <setjmp.h>
 #include <stdarg.h>
 #include <stddef.h>
+#include <stdbool.h>
 #include <stdint.h>
 #include <cmocka.h>
 
@@ -22,6 +23,35 @@ const char *rt_test_text_file(const char *dir, const char *name, const char *tex
 /* Seed for randomised tests: REMTONE_SEED from the environment, or a fixed
  * default; printed so a failing run can be repeated. */
 uint64_t rt_test_seed(void);
+
+/* ---- EDF/BDF files byte by byte (EDF specification, Kemp et al. 1992) ---- */
+
+/* Writes text into a header field of width bytes, padded with spaces (cut
+ * when longer). */
+void rt_test_edf_put(unsigned char *at, int width, const char *text);
+
+/* Byte offset of field (0 label, 1 transducer, 2 physical dimension,
+ * 3 physical minimum, 4 physical maximum, 5 digital minimum, 6 digital
+ * maximum, 7 prefilter, 8 samples per record, 9 reserved) of signal k
+ * (0-based) in the header of a file of ns signals. */
+long long rt_test_edf_signal_offset(int ns, int field, int k);
+
+/* Writes text into that field of signal k of the header h. */
+void rt_test_edf_put_signal(unsigned char *h, int ns, int field, int k, const char *text);
+
+/* The fields of the 256-byte main header, as text where the file holds text. */
+typedef struct rt_test_edf_main {
+    bool bdf;              /* version "\xffBIOSEMI" (BDF) instead of "0" */
+    const char *patient, *recording;
+    const char *date, *time; /* "dd.mm.yy", "hh.mm.ss" */
+    const char *reserved;  /* "", "EDF+C", "24BIT", ... */
+    int n_records;
+    const char *record_s;  /* data record duration */
+    int ns;                /* signals; the header byte count follows */
+} rt_test_edf_main;
+
+/* Writes the main header (the first 256 bytes of h). */
+void rt_test_edf_put_main(unsigned char *h, const rt_test_edf_main *m);
 
 /* ---- shared fixtures (one copy for every test file) ---- */
 

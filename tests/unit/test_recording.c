@@ -38,23 +38,6 @@ typedef struct bytes {
     size_t n;
 } bytes;
 
-/* Signal header field widths and order, from the EDF specification. */
-static const int SIG_WIDTH[10] = {16, 80, 8, 8, 8, 8, 8, 80, 8, 32};
-
-static void put(unsigned char *at, int width, const char *text)
-{
-    memset(at, ' ', (size_t)width);
-    memcpy(at, text, strlen(text) < (size_t)width ? strlen(text) : (size_t)width);
-}
-
-static long long sig_offset(int ns, int field, int k)
-{
-    long long off = 256;
-    for (int i = 0; i < field; i++)
-        off += (long long)ns * SIG_WIDTH[i];
-    return off + (long long)k * SIG_WIDTH[field];
-}
-
 /* Deterministic digital value of sample j (0-based over the file) of signal k. */
 static int digital_value(const sig_spec *s, int k, long long j)
 {
@@ -70,47 +53,28 @@ static double physical_value(const sig_spec *s, int d)
 
 static void put_main_header(const file_spec *f, unsigned char *h)
 {
-    char text[32];
-    if (f->bdf)
-        memcpy(h, "\xff" "BIOSEMI", 8);
-    else
-        put(h, 8, "0");
-    put(h + 8, 80, strcmp(f->reserved, "EDF+C") == 0 || strcmp(f->reserved, "EDF+D") == 0
-                       ? "X M 02-FEB-1948 Fictional_Sleeper"
-                       : "Fictional sleeper 7");
-    put(h + 88, 80, strncmp(f->reserved, "EDF+", 4) == 0 ? "Startdate 01-DEC-2026 X X X" : "Night 1 lab B");
-    put(h + 168, 8, "01.12.26");
-    put(h + 176, 8, "22.30.05");
-    snprintf(text, sizeof text, "%d", 256 * (f->ns + 1));
-    put(h + 184, 8, text);
-    put(h + 192, 44, f->reserved);
-    snprintf(text, sizeof text, "%d", f->n_records);
-    put(h + 236, 8, text);
-    put(h + 244, 8, f->record_s);
-    snprintf(text, sizeof text, "%d", f->ns);
-    put(h + 252, 4, text);
+    bool plus_patient = strcmp(f->reserved, "EDF+C") == 0 || strcmp(f->reserved, "EDF+D") == 0;
+    rt_test_edf_put_main(h, &(rt_test_edf_main){
+        .bdf = f->bdf, .patient = plus_patient ? "X M 02-FEB-1948 Fictional_Sleeper" : "Fictional sleeper 7",
+        .recording = strncmp(f->reserved, "EDF+", 4) == 0 ? "Startdate 01-DEC-2026 X X X" : "Night 1 lab B",
+        .date = "01.12.26", .time = "22.30.05", .reserved = f->reserved, .n_records = f->n_records,
+        .record_s = f->record_s, .ns = f->ns});
 }
 
 static void put_signal_headers(const file_spec *f, unsigned char *h)
 {
     for (int k = 0; k < f->ns; k++) {
         const sig_spec *s = &f->sig[k];
-        char text[32];
-        put(h + sig_offset(f->ns, 0, k), 16, s->label);
-        put(h + sig_offset(f->ns, 1, k), 80, k == f->annot_signal ? "" : "AgAgCl electrode");
-        put(h + sig_offset(f->ns, 2, k), 8, s->unit);
-        snprintf(text, sizeof text, "%g", s->pmin);
-        put(h + sig_offset(f->ns, 3, k), 8, text);
-        snprintf(text, sizeof text, "%g", s->pmax);
-        put(h + sig_offset(f->ns, 4, k), 8, text);
-        snprintf(text, sizeof text, "%d", s->dmin);
-        put(h + sig_offset(f->ns, 5, k), 8, text);
-        snprintf(text, sizeof text, "%d", s->dmax);
-        put(h + sig_offset(f->ns, 6, k), 8, text);
-        put(h + sig_offset(f->ns, 7, k), 80, "");
-        snprintf(text, sizeof text, "%d", s->spr);
-        put(h + sig_offset(f->ns, 8, k), 8, text);
-        put(h + sig_offset(f->ns, 9, k), 32, "");
+        char pmin[32], pmax[32], dmin[16], dmax[16], spr[16];
+        snprintf(pmin, sizeof pmin, "%g", s->pmin);
+        snprintf(pmax, sizeof pmax, "%g", s->pmax);
+        snprintf(dmin, sizeof dmin, "%d", s->dmin);
+        snprintf(dmax, sizeof dmax, "%d", s->dmax);
+        snprintf(spr, sizeof spr, "%d", s->spr);
+        const char *text[10] = {s->label, k == f->annot_signal ? "" : "AgAgCl electrode", s->unit, pmin, pmax,
+                                dmin, dmax, "", spr, ""};
+        for (int field = 0; field < 10; field++)
+            rt_test_edf_put_signal(h, f->ns, field, k, text[field]);
     }
 }
 
@@ -402,7 +366,7 @@ static void expect_refusal(const char *name, const bytes *b, size_t len, rt_stat
 
 static void patch(bytes *b, long long offset, int width, const char *text)
 {
-    put(b->p + offset, width, text);
+    rt_test_edf_put(b->p + offset, width, text);
 }
 
 static void truncated_files(void **state)
@@ -461,25 +425,28 @@ static void signal_header_faults(void **state)
     file_spec f = plain_edf();
     bytes b = build_file(&f);
     char where[64];
-    patch(&b, sig_offset(3, 4, 1), 8, "-2"); /* physical maximum of signal 2 = its minimum */
-    snprintf(where, sizeof where, "\"physical maximum\" (byte offset %lld)", sig_offset(3, 4, 1));
+    patch(&b, rt_test_edf_signal_offset(3, 4, 1), 8, "-2"); /* physical maximum of signal 2 = its minimum */
+    snprintf(where, sizeof where, "\"physical maximum\" (byte offset %lld)",
+             rt_test_edf_signal_offset(3, 4, 1));
     expect_refusal("bad_phys_equal", &b, b.n, RT_ERR_RECORDING, where, "signal 2 of 3 (\"Leg R\")");
-    patch(&b, sig_offset(3, 4, 1), 8, "2");
-    patch(&b, sig_offset(3, 6, 0), 8, "40000"); /* EDF samples are 16-bit */
-    snprintf(where, sizeof where, "\"digital maximum\" (byte offset %lld)", sig_offset(3, 6, 0));
+    patch(&b, rt_test_edf_signal_offset(3, 4, 1), 8, "2");
+    patch(&b, rt_test_edf_signal_offset(3, 6, 0), 8, "40000"); /* EDF samples are 16-bit */
+    snprintf(where, sizeof where, "\"digital maximum\" (byte offset %lld)",
+             rt_test_edf_signal_offset(3, 6, 0));
     expect_refusal("bad_dig_range", &b, b.n, RT_ERR_RECORDING, where, "-32768..32767");
-    patch(&b, sig_offset(3, 6, 0), 8, "-32768");
+    patch(&b, rt_test_edf_signal_offset(3, 6, 0), 8, "-32768");
     expect_refusal("bad_dig_order", &b, b.n, RT_ERR_RECORDING, "\"digital maximum\"", "greater than the digital minimum");
-    patch(&b, sig_offset(3, 6, 0), 8, "32767");
-    patch(&b, sig_offset(3, 8, 2), 8, "0");
-    snprintf(where, sizeof where, "\"samples per record\" (byte offset %lld)", sig_offset(3, 8, 2));
+    patch(&b, rt_test_edf_signal_offset(3, 6, 0), 8, "32767");
+    patch(&b, rt_test_edf_signal_offset(3, 8, 2), 8, "0");
+    snprintf(where, sizeof where, "\"samples per record\" (byte offset %lld)",
+             rt_test_edf_signal_offset(3, 8, 2));
     expect_refusal("bad_spr", &b, b.n, RT_ERR_RECORDING, where, "at least 1");
     free(b.p);
 
     file_spec g = {.bdf = true, .reserved = "24BIT", .n_records = 1, .record_s = "1", .ns = 1,
                    .annot_signal = -1, .sig = {{"Chin", "uV", -1, 1, -8388608, 8388607, 8}}};
     b = build_file(&g);
-    patch(&b, sig_offset(1, 5, 0), 8, "-9000000"); /* BDF samples are 24-bit */
+    patch(&b, rt_test_edf_signal_offset(1, 5, 0), 8, "-9000000"); /* BDF samples are 24-bit */
     expect_refusal("bad_bdf_range", &b, b.n, RT_ERR_RECORDING, "\"digital minimum\"", "-8388608..8388607");
     free(b.p);
 }
@@ -494,11 +461,11 @@ static void edfplus_faults(void **state)
     expect_refusal("bad_plus_recording", &b, b.n, RT_ERR_RECORDING, "\"recording\" (byte offset 88)",
                    "Startdate");
     patch(&b, 88, 80, "Startdate 01-DEC-2026 X X X");
-    patch(&b, sig_offset(2, 1, 1), 80, "electrode"); /* transducer of the annotation signal */
+    patch(&b, rt_test_edf_signal_offset(2, 1, 1), 80, "electrode"); /* transducer of the annotation signal */
     expect_refusal("bad_plus_transducer", &b, b.n, RT_ERR_RECORDING, "signal 2 of 2 (\"EDF Annotations\")",
                    "must be blank");
-    patch(&b, sig_offset(2, 1, 1), 80, "");
-    patch(&b, sig_offset(2, 0, 1), 16, "EDF Notes");
+    patch(&b, rt_test_edf_signal_offset(2, 1, 1), 80, "");
+    patch(&b, rt_test_edf_signal_offset(2, 0, 1), 16, "EDF Notes");
     expect_refusal("bad_plus_no_annotations", &b, b.n, RT_ERR_RECORDING, "needs a signal labelled", NULL);
     free(b.p);
 }

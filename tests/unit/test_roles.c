@@ -81,27 +81,19 @@ typedef struct chan {
     int spr;
 } chan;
 
-static void put(unsigned char *at, int width, const char *text)
-{
-    memset(at, ' ', (size_t)width);
-    memcpy(at, text, strlen(text) < (size_t)width ? strlen(text) : (size_t)width);
-}
-
 static int digital_value(int k, int j) { return (j * 37 + k * 1001) % 20000 - 10000; }
 
 static double uv_value(int k, int j) { return -1000.0 + (digital_value(k, j) + 32768) * 2000.0 / 65535.0; }
 
 static void put_signal_headers(unsigned char *h, const chan *c, int ns)
 {
-    static const int width[10] = {16, 80, 8, 8, 8, 8, 8, 80, 8, 32};
-    unsigned char *at = h + 256;
-    for (int f = 0; f < 10; f++)
-        for (int k = 0; k < ns; k++, at += width[f]) {
-            char spr[16];
-            snprintf(spr, sizeof spr, "%d", c[k].spr);
-            const char *text[10] = {c[k].label, "", c[k].unit, "-1000", "1000", "-32768", "32767", "", spr, ""};
-            put(at, width[f], text[f]);
-        }
+    for (int k = 0; k < ns; k++) {
+        char spr[16];
+        snprintf(spr, sizeof spr, "%d", c[k].spr);
+        const char *text[10] = {c[k].label, "", c[k].unit, "-1000", "1000", "-32768", "32767", "", spr, ""};
+        for (int f = 0; f < 10; f++)
+            rt_test_edf_put_signal(h, ns, f, k, text[f]);
+    }
 }
 
 static rt_recording *open_channels(const char *name, const chan *c, int ns)
@@ -110,17 +102,9 @@ static rt_recording *open_channels(const char *name, const chan *c, int ns)
     for (int k = 0; k < ns; k++)
         record += 2 * (size_t)c[k].spr;
     unsigned char *b = calloc(header + record, 1);
-    char text[32];
-    put(b, 8, "0");
-    put(b + 8, 160, "Fictional");
-    put(b + 168, 16, "01.12.2622.00.00");
-    snprintf(text, sizeof text, "%zu", header);
-    put(b + 184, 8, text);
-    put(b + 192, 44, "");
-    put(b + 236, 8, "1");
-    put(b + 244, 8, "1");
-    snprintf(text, sizeof text, "%d", ns);
-    put(b + 252, 4, text);
+    rt_test_edf_put_main(b, &(rt_test_edf_main){.patient = "Fictional", .recording = "", .date = "01.12.26",
+                                                .time = "22.00.00", .reserved = "", .n_records = 1,
+                                                .record_s = "1", .ns = ns});
     put_signal_headers(b, c, ns);
     unsigned char *at = b + header;
     for (int k = 0; k < ns; k++)
