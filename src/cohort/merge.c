@@ -69,10 +69,12 @@ static rt_status read_result(const char *dir, const char *id, cohort_row *row, b
     const char *schema = json_string_value(json_object_get(root, "schema"));
     json_t *rem = json_object_get(root, "rem"), *review = json_object_get(root, "review");
     json_t *indices = json_object_get(root, "indices");
-    if (!schema || strcmp(schema, "remtone-night/1") != 0 || !json_is_object(rem) ||
+    /* remtone-night/1 results (before reservations) are still read */
+    bool v1 = schema && strcmp(schema, "remtone-night/1") == 0;
+    if (!schema || (!v1 && strcmp(schema, "remtone-night/2") != 0) || !json_is_object(rem) ||
         !json_is_object(review) || !json_is_object(indices)) {
         json_decref(root);
-        return rt_fail(err, RT_ERR_STAGING, "%s: not a remtone-night/1 result", path);
+        return rt_fail(err, RT_ERR_STAGING, "%s: not a remtone-night/2 (or /1) result", path);
     }
     rt_copy_string(row->id, sizeof row->id, id);
     row->flagged = json_is_true(json_object_get(review, "flagged"));

@@ -326,9 +326,6 @@ static void summarise_exclusions(rt_night *night)
     if (isnan(lm->value))
         rt_copy_string(lm->reason, sizeof lm->reason,
                        "no limb-movement events were given and no leg EMG channel");
-    if (x->have_respiratory && x->rem_ahi >= 15.0)
-        rt_night_warn(night, "REM apnea-hypopnea index %.1f/h is 15/h or more: RSWA indices are "
-                             "less reliable (Cesari et al. 2023, Sleep)", x->rem_ahi);
 }
 
 static void apply_missing(rt_night *night, bool arms)
