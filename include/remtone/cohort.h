@@ -3,7 +3,7 @@
  * every index against the cohort's own labels (docs/cohort.md).
  *
  * A run writes, under an output folder, one result per night
- * (nights/ID.json, schema "remtone-night/1"), a key beside it (nights/ID.key:
+ * (nights/ID.json, schema "remtone-night/2"), a key beside it (nights/ID.key:
  * the sizes and XXH3 digests of the night's inputs and a digest of the
  * settings, so a rerun skips nights whose identity is unchanged), or a
  * failure record (nights/ID.error.json). Every file is written to a

@@ -34,7 +34,7 @@ typedef struct rt_run_inputs {
     const char *label_map;
 } rt_run_inputs;
 
-/* The night result, schema "remtone-night/1" (docs/night-json.md). */
+/* The night result, schema "remtone-night/2" (docs/night-json.md). */
 rt_status rt_night_write_json(const rt_night *night, const rt_run_inputs *inputs,
                               const char *path, rt_error *err);
 /* The short text summary for people. */

@@ -122,6 +122,12 @@ typedef struct rt_score_params {
     double min_rate_hz;          /* below this a channel is scored with a warning */
     double min_scorable_min;     /* less scorable REM is not assessable */
     double near_fraction;        /* "near the cutoff" from this share of it */
+    /* Reservations (docs/scoring.md, "Reservations"): what limits a level */
+    double staging_edge_tolerance_min; /* unstaged minutes allowed at either end of the
+                                          recording when the staging gives no lights time */
+    double index_min_epochs;     /* an index counted on less scorable REM than this many
+                                    30-s epochs hold carries a reservation */
+    double excluded_share_max;   /* more than this share of REM left out: a reservation */
     /* Event-aware scoring (docs/exclusions.md): mini-epochs overlapping these
      * events, widened by event_margin_s on each side, leave numerator and
      * denominator. */
@@ -177,6 +183,9 @@ typedef struct rt_index_value {
     char reason[200];         /* why not computed, or a note; empty otherwise */
 } rt_index_value;
 
+/* A level comes with the night's reservations (rt_night.reservations): a
+ * level with any reservation reads "clear, with reservations" (and so on),
+ * never as a plain level. */
 typedef enum rt_review_level {
     RT_REVIEW_CLEAR = 0,       /* no index reaches or nears a cutoff */
     RT_REVIEW_NEAR,            /* an index is near a cutoff, none reaches one */
@@ -296,6 +305,60 @@ typedef struct rt_agreement {
     rt_agreement_cell cell[RT_ROLE_COUNT][RT_AGREE_TYPES];
 } rt_agreement;
 
+/* What the staging covers (docs/scoring.md, "Reservations"). Epochs with a
+ * stage (W, N1, N2, N3, R, MT) are staged; unscored epochs ("?" or no row)
+ * are not. The staging should cover lights-off to lights-on when the scoring
+ * gives them, else the whole recording; an unstaged stretch at either end is
+ * allowed up to the tolerance of that end (one epoch at a lights time, since
+ * the epoch grid cannot follow it exactly; params.staging_edge_tolerance_min
+ * at a recording edge). Unstaged runs between the first and the last staged
+ * epoch are gaps. */
+typedef struct rt_staging_gap {
+    double start_s;            /* seconds from the recording start */
+    double duration_s;
+} rt_staging_gap;
+
+typedef struct rt_staging_summary {
+    double staged_s;           /* staged epochs x epoch length, inside the expected span */
+    double expect_from_s;      /* the span the staging should cover: lights-off or 0 ... */
+    double expect_to_s;        /* ... to lights-on or the recording's end */
+    bool lights_off_given;
+    bool lights_on_given;
+    double first_staged_s;     /* start of the first staged epoch (NaN when none) */
+    double staged_end_s;       /* end of the last staged epoch (NaN when none) */
+    double unstaged_start_s;   /* unstaged at the start of the expected span */
+    double unstaged_end_s;     /* unstaged at its end */
+    double tolerance_start_s;  /* allowed at the start */
+    double tolerance_end_s;    /* allowed at the end */
+    bool partial;              /* an end is unstaged beyond its tolerance, or nothing is staged */
+    size_t n_gaps;             /* unstaged runs inside the staged span (within the expected span) */
+    rt_staging_gap *gaps;      /* n_gaps, in time order; owned by the night */
+    double gap_total_s;
+} rt_staging_summary;
+
+/* What limits a review level: each kind at most once per night, in this
+ * order. The codes are part of the JSON contract (docs/night-json.md). */
+typedef enum rt_reservation_code {
+    RT_RESERVE_PARTIAL_STAGING = 0, /* "partial-staging": staging ends short of the night */
+    RT_RESERVE_STAGING_GAPS,        /* "staging-gaps": unstaged stretches inside the staging */
+    RT_RESERVE_REM_AHI,             /* "rem-ahi-15": REM apnea-hypopnea index >= 15/h */
+    RT_RESERVE_REM_EXCLUDED,        /* "rem-excluded": more than excluded_share_max of REM
+                                       left out */
+    RT_RESERVE_CHANNEL_MARKED,      /* "channel-partly-unusable": quality marks on a channel */
+    RT_RESERVE_FEW_UNITS,           /* "few-units": an index counted on little REM */
+    RT_RESERVE_CUTOFF_UNVERIFIED,   /* "cutoff-not-verified": a recalled cutoff is reached or
+                                       neared and did not decide the level */
+    RT_RESERVE_COUNT
+} rt_reservation_code;
+
+/* The stable code ("partial-staging", ...); "unknown" out of range. */
+const char *rt_reservation_code_name(rt_reservation_code code);
+
+typedef struct rt_reservation {
+    rt_reservation_code code;
+    char text[800];            /* a sentence or two in plain words, with the numbers */
+} rt_reservation;
+
 typedef struct rt_exclusion_summary {
     double minutes[RT_EVENT_TYPE_COUNT]; /* REM minutes left out, by the event that caused it
                                             (a mini-epoch counts once, for its first cause) */
@@ -333,10 +396,16 @@ typedef struct rt_night {
                             line (rt_night_background_uv); NaN for an absent role */
     rt_exclusion_summary exclusions;
     rt_agreement agreement;
+    rt_clock_time start;                 /* the recording's start (clock times of gaps) */
+    rt_staging_summary staging;
+    size_t n_reservations;
+    rt_reservation reservations[RT_RESERVE_COUNT]; /* in rt_reservation_code order */
 } rt_night;
 
 /* Scores one night. cutoffs may be NULL (published); params may be NULL
- * (defaults). Fails with RT_ERR_STAGING when the staging does not use 30-s
+ * (defaults). Besides the indices and the review level it fills what the
+ * staging covers (night->staging: staged time, unstaged ends, gaps) and the
+ * reservations that limit the level (night->reservations). Fails with RT_ERR_STAGING when the staging does not use 30-s
  * epochs, RT_ERR_USAGE on a parameter out of range, RT_ERR_NOMEM, and with
  * the reader's status on a recording that cannot be read. A night without REM
  * or without a chin channel is a result, not a failure: its level is "not

@@ -42,6 +42,8 @@ typedef struct cohort_row {
     bool failed;
     bool flagged;
     char level[32];              /* review level, or "failed" */
+    char reservations[256];      /* reservation codes joined by ';' ("" none; "unknown" for a
+                                    remtone-night/1 result, which had none to give) */
     double rem_minutes;          /* NaN for a failed night */
     double scorable_minutes;
     double value[RT_IX_COUNT];   /* NaN when not computed or failed */

@@ -49,6 +49,29 @@ static cohort_row *new_row(rows *r)
 
 static double number_or_nan(json_t *v) { return json_is_number(v) ? json_number_value(v) : NAN; }
 
+/* The codes of a result's reservations joined by ';', "unknown" when the
+ * result carries no list (remtone-night/1). */
+static void reservation_codes(json_t *list, char *dst, size_t cap)
+{
+    if (!json_is_array(list)) {
+        rt_copy_string(dst, cap, "unknown");
+        return;
+    }
+    dst[0] = '\0';
+    size_t used = 0;
+    for (size_t i = 0; i < json_array_size(list); i++) {
+        const char *code = json_string_value(json_object_get(json_array_get(list, i), "code"));
+        if (!code)
+            continue;
+        int n = snprintf(dst + used, cap - used, "%s%s", used ? ";" : "", code);
+        if (n < 0 || (size_t)n >= cap - used) {
+            dst[used] = '\0'; /* whole codes only */
+            break;
+        }
+        used += (size_t)n;
+    }
+}
+
 static rt_status read_result(const char *dir, const char *id, cohort_row *row, bool *complete,
                              rt_error *err)
 {
@@ -69,15 +92,20 @@ static rt_status read_result(const char *dir, const char *id, cohort_row *row, b
     const char *schema = json_string_value(json_object_get(root, "schema"));
     json_t *rem = json_object_get(root, "rem"), *review = json_object_get(root, "review");
     json_t *indices = json_object_get(root, "indices");
-    if (!schema || strcmp(schema, "remtone-night/1") != 0 || !json_is_object(rem) ||
+    /* remtone-night/1 results (before reservations) are still read; their
+     * reservations are unknown, not none */
+    bool v1 = schema && strcmp(schema, "remtone-night/1") == 0;
+    if (!schema || (!v1 && strcmp(schema, "remtone-night/2") != 0) || !json_is_object(rem) ||
         !json_is_object(review) || !json_is_object(indices)) {
         json_decref(root);
-        return rt_fail(err, RT_ERR_STAGING, "%s: not a remtone-night/1 result", path);
+        return rt_fail(err, RT_ERR_STAGING, "%s: not a remtone-night/2 (or /1) result", path);
     }
     rt_copy_string(row->id, sizeof row->id, id);
     row->flagged = json_is_true(json_object_get(review, "flagged"));
     const char *level = json_string_value(json_object_get(review, "level"));
     rt_copy_string(row->level, sizeof row->level, level ? level : "");
+    reservation_codes(v1 ? NULL : json_object_get(root, "reservations"), row->reservations,
+                      sizeof row->reservations);
     row->rem_minutes = number_or_nan(json_object_get(rem, "minutes"));
     row->scorable_minutes = number_or_nan(json_object_get(rem, "scorable_minutes"));
     for (int i = 0; i < RT_IX_COUNT; i++)
@@ -199,7 +227,7 @@ static rt_status write_table(const char *path, const rows *r, rt_error *err)
     if (st != RT_OK)
         return st;
     FILE *f = o.file;
-    fputs("id,group,flagged,level,rem_minutes,scorable_minutes", f);
+    fputs("id,group,flagged,level,reservations,rem_minutes,scorable_minutes", f);
     for (int i = 0; i < RT_IX_COUNT; i++)
         fprintf(f, ",%s", rt_index_rules()[i].id);
     fputs(",warnings,error\n", f);
@@ -209,6 +237,8 @@ static rt_status write_table(const char *path, const rows *r, rt_error *err)
         fputc(',', f);
         put_text(f, row->group);
         fprintf(f, ",%s,%s,", row->failed ? "" : row->flagged ? "true" : "false", row->level);
+        put_text(f, row->reservations);
+        fputc(',', f);
         put_number(f, row->rem_minutes);
         fputc(',', f);
         put_number(f, row->scorable_minutes);

@@ -105,3 +105,11 @@ int rt_parse_double(const char *s, double *out)
     *out = v;
     return 0;
 }
+
+void rt_duration_text(double seconds, char *buf, size_t cap)
+{
+    if (seconds < 90.0 * 60.0)
+        snprintf(buf, cap, "%.1f min", seconds / 60.0);
+    else
+        snprintf(buf, cap, "%.1f h", seconds / 3600.0);
+}

@@ -27,6 +27,9 @@ int rt_equal_nocase(const char *a, const char *b);
 /* Overflow-checked allocation of n * size bytes, zeroed. NULL on failure. */
 void *rt_calloc(size_t n, size_t size);
 
+/* A length for people: "12.5 min" below 90 minutes, "3.5 h" from there on. */
+void rt_duration_text(double seconds, char *buf, size_t cap);
+
 /* Parses a finite decimal number filling the whole string (after trimming).
  * Returns 0 on success, -1 otherwise. */
 int rt_parse_double(const char *s, double *out);

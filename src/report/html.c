@@ -8,6 +8,7 @@
  * traces shown are the ones the labels came from. docs/review-report.md
  * describes the page. */
 #include <libxml/xmlwriter.h>
+#include <ctype.h>
 #include <errno.h>
 #include <math.h>
 #include <stdlib.h>
@@ -57,6 +58,17 @@ static const char CSS[] =
     ".level{display:inline-block;padding:4px 12px;border-radius:4px;font-weight:700;color:#fff}"
     ".level-review{background:#a8322d}.level-near-cutoff{background:#b86e00}"
     ".level-clear{background:#2f7350}.level-not-assessable{background:#5c6876}"
+    /* a level with reservations is never the plain colour: clear turns ochre */
+    ".level-review-with-reservations{background:#a8322d}"
+    ".level-near-cutoff-with-reservations{background:#b86e00}"
+    ".level-clear-with-reservations{background:#6f5a12}"
+    ".level-not-assessable-with-reservations{background:#5c6876}"
+    ".verdict{display:flex;flex-wrap:wrap;gap:14px;align-items:flex-start;margin:8px 0}"
+    ".reservations{flex:1;min-width:320px;border:2px solid #b86e00;border-radius:6px;"
+    "background:#fff7ea;padding:4px 14px}"
+    ".reservations h3{margin:4px 0;color:#7a4300}"
+    ".reservations li{margin:3px 0}"
+    ".reservations span.code{font-family:monospace;font-size:12px;color:#5b6875}"
     ".facts td{border:none;padding:1px 14px 1px 0}"
     ".muted{color:#5b6875;font-size:12px}"
     ".caution li{margin:3px 0}"
@@ -103,13 +115,13 @@ static void value_text(const rt_index_rule *rule, double v, char *buf, size_t ca
         snprintf(buf, cap, "%.1f %s", v, rule->unit);
 }
 
-static const char *level_words(rt_review_level level)
+static const char *level_means(rt_review_level level)
 {
     switch (level) {
-    case RT_REVIEW_FLAGGED: return "Review advised: a published cutoff is reached";
-    case RT_REVIEW_NEAR: return "Near a cutoff: none reached, one is close";
-    case RT_REVIEW_CLEAR: return "Clear: no index reaches or nears a verified cutoff";
-    case RT_REVIEW_NOT_ASSESSABLE: return "Not assessable: too little usable REM or no chin channel";
+    case RT_REVIEW_FLAGGED: return "a published cutoff is reached";
+    case RT_REVIEW_NEAR: return "none reached, one is close";
+    case RT_REVIEW_CLEAR: return "no index reaches or nears a verified cutoff";
+    case RT_REVIEW_NOT_ASSESSABLE: return "too little usable REM or no chin channel";
     }
     return "";
 }
@@ -267,6 +279,54 @@ static void write_identity(html_ctx *c)
     rt_page_end_html(p);
 }
 
+/* Gap rows shown on the page; the JSON result lists them all. */
+#define PAGE_GAPS 20
+
+/* What the staging covers, and its gaps with clock time, offset and length. */
+static void write_staging(html_ctx *c)
+{
+    rt_page *p = &c->p;
+    const rt_night *n = c->night;
+    const rt_staging_summary *s = &n->staging;
+    char line[400], buf[48];
+    rt_report_staging_text(n, line, sizeof line);
+    rt_page_start(p, "p");
+    rt_page_attr(p, "id", "staging");
+    rt_page_textf(p, "Staging: %s.", line);
+    if (s->n_gaps == 0) {
+        rt_page_text(p, " No gaps inside the staging.");
+        rt_page_end_html(p);
+        return;
+    }
+    rt_duration_text(s->gap_total_s, buf, sizeof buf);
+    rt_page_textf(p, " %zu unstaged gap%s inside the staging, %s in all:", s->n_gaps,
+                  s->n_gaps == 1 ? "" : "s", buf);
+    rt_page_end_html(p);
+    rt_page_start(p, "table");
+    rt_page_attr(p, "id", "staging-gaps");
+    rt_page_start(p, "tr");
+    static const char *const HEAD[] = {"gap starts", "seconds from the recording start", "length"};
+    for (size_t h = 0; h < sizeof HEAD / sizeof HEAD[0]; h++)
+        rt_page_element(p, "th", NULL, HEAD[h]);
+    rt_page_end_html(p);
+    for (size_t i = 0; i < s->n_gaps && i < PAGE_GAPS; i++) {
+        rt_page_start(p, "tr");
+        rt_report_clock(&c->start, s->gaps[i].start_s, buf, sizeof buf);
+        cell(p, buf, false);
+        snprintf(buf, sizeof buf, "%.0f", s->gaps[i].start_s);
+        cell(p, buf, true);
+        rt_duration_text(s->gaps[i].duration_s, buf, sizeof buf);
+        cell(p, buf, true);
+        rt_page_end_html(p);
+    }
+    rt_page_end_html(p);
+    if (s->n_gaps > PAGE_GAPS) {
+        snprintf(line, sizeof line, "and %zu more gaps (all in the JSON result)",
+                 s->n_gaps - PAGE_GAPS);
+        rt_page_element(p, "p", "muted", line);
+    }
+}
+
 static void write_summary(html_ctx *c)
 {
     rt_page *p = &c->p;
@@ -296,7 +356,9 @@ static void write_summary(html_ctx *c)
     rt_page_end_html(p);
     rt_page_element(p, "p", "muted", hr->title);
 
+    write_staging(c);
     rt_page_start(p, "p");
+    rt_page_attr(p, "id", "rem-minutes");
     rt_page_textf(p, "REM sleep: %.1f min in %zu bouts; %.1f min scorable", n->rem_minutes,
                   n->n_bouts, n->scorable_minutes);
     if (n->exclusions.total_minutes > 0)
@@ -304,11 +366,35 @@ static void write_summary(html_ctx *c)
     rt_page_text(p, ".");
     rt_page_end_html(p);
 
-    rt_page_start(p, "p");
+    /* the level and, beside it, what limits it */
+    char statement[64];
+    rt_report_statement(n, statement, sizeof statement);
+    rt_page_start(p, "div");
+    rt_page_attr(p, "class", "verdict");
     rt_page_start(p, "span");
-    rt_page_attrf(p, "class", "level level-%s", rt_review_level_name(n->level));
-    rt_page_text(p, level_words(n->level));
+    rt_page_attr(p, "id", "level");
+    rt_page_attrf(p, "class", "level level-%s%s", rt_review_level_name(n->level),
+                  n->n_reservations ? "-with-reservations" : "");
+    statement[0] = (char)toupper((unsigned char)statement[0]);
+    rt_page_textf(p, "%s: %s", statement, level_means(n->level));
     rt_page_end_html(p);
+    if (n->n_reservations) {
+        rt_page_start(p, "div");
+        rt_page_attr(p, "class", "reservations");
+        rt_page_attr(p, "id", "reservations");
+        rt_page_element(p, "h3", NULL, "Reservations: what limits this result");
+        rt_page_start(p, "ul");
+        for (size_t i = 0; i < n->n_reservations; i++) {
+            rt_page_start(p, "li");
+            rt_page_attr(p, "data-code", rt_reservation_code_name(n->reservations[i].code));
+            rt_page_text(p, n->reservations[i].text);
+            rt_page_text(p, " ");
+            rt_page_element(p, "span", "code", rt_reservation_code_name(n->reservations[i].code));
+            rt_page_end_html(p);
+        }
+        rt_page_end_html(p);
+        rt_page_end_html(p);
+    }
     rt_page_end_html(p);
     rt_page_start(p, "ul");
     for (size_t i = 0; i < n->n_reasons; i++)
@@ -360,11 +446,34 @@ static int stage_row(unsigned char s)
     }
 }
 
+/* A grey band over time nobody staged, from a to b seconds. */
+static void unstaged_band(html_ctx *c, double a, double b, double y0, double h)
+{
+    if (!(b > a))
+        return;
+    char tip[96], t0[16], len[32];
+    rt_report_clock(&c->start, a, t0, sizeof t0);
+    rt_duration_text(b - a, len, sizeof len);
+    snprintf(tip, sizeof tip, "not staged: %s from %s (never scored)", len, t0);
+    double x = time_x(c, a);
+    rt_svg_rect(&c->p, x, y0, fmax(time_x(c, b) - x, 1.0), h, "#d5dbe1", tip);
+}
+
 static void hypnogram(html_ctx *c, double y0, double row_h)
 {
     rt_page *p = &c->p;
     static const char *const ROWS[] = {"Wake", "REM", "N1", "N2", "N3"};
     const rt_night *n = c->night;
+    const rt_staging_summary *st = &n->staging;
+    if (isfinite(st->first_staged_s)) {
+        unstaged_band(c, st->expect_from_s, st->first_staged_s, y0, 5 * row_h);
+        unstaged_band(c, st->staged_end_s, st->expect_to_s, y0, 5 * row_h);
+    } else {
+        unstaged_band(c, st->expect_from_s, st->expect_to_s, y0, 5 * row_h);
+    }
+    for (size_t g = 0; g < st->n_gaps; g++)
+        unstaged_band(c, st->gaps[g].start_s, st->gaps[g].start_s + st->gaps[g].duration_s, y0,
+                      5 * row_h);
     /* REM shading first, under everything */
     for (size_t k = 0; k < n->n_epochs; k++) {
         double x = time_x(c, n->epochs[k].onset_s), w = time_x(c, n->epochs[k].onset_s + 30) - x;
@@ -451,9 +560,10 @@ static void write_overview(html_ctx *c)
     rt_page_attr(p, "id", "overview");
     rt_page_element(p, "h2", NULL, "The night");
     rt_page_element(p, "p", "muted",
-                    "Top: the staging given to remtone, REM shaded. Below: each REM epoch coloured "
-                    "by how many of its ten 3-s mini-epochs hold activity (chin: any SINBAR "
-                    "activity; arms and legs: SINBAR phasic bursts on either side).");
+                    "Top: the staging given to remtone, REM shaded; grey bands: time nobody "
+                    "staged, never scored. Below: each REM epoch coloured by how many of its ten "
+                    "3-s mini-epochs hold activity (chin: any SINBAR activity; arms and legs: "
+                    "SINBAR phasic bursts on either side).");
     rt_svg_begin(p, PAGE_W, axis_y + 20, "Hypnogram with REM activity per channel group");
     hypnogram(c, hyp_y, row_h);
     activity_strip(c, strip_y, strip_h);

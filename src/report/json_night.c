@@ -1,4 +1,4 @@
-/* The night result as JSON (schema "remtone-night/1", docs/night-json.md),
+/* The night result as JSON (schema "remtone-night/2", docs/night-json.md),
  * built with jansson and written atomically. */
 #include <jansson.h>
 #include <math.h>
@@ -217,6 +217,50 @@ static json_t *exclusions_json(const rt_night *night)
     return o;
 }
 
+/* What the staging covers, with every gap (docs/night-json.md, `staging`). */
+static json_t *staging_json(const rt_night *night)
+{
+    const rt_staging_summary *s = &night->staging;
+    json_t *gaps = json_array();
+    char clock[16];
+    for (size_t i = 0; i < s->n_gaps; i++) {
+        rt_report_clock(&night->start, s->gaps[i].start_s, clock, sizeof clock);
+        json_array_append_new(gaps, json_pack("{s:f,s:s,s:f}", "start_s", s->gaps[i].start_s,
+                                              "start_clock", clock, "duration_s",
+                                              s->gaps[i].duration_s));
+    }
+    json_t *o = json_object();
+    json_object_set_new(o, "recording_hours", json_real(rounded(night->recording_s / 3600.0, 3)));
+    json_object_set_new(o, "staged_hours", json_real(rounded(s->staged_s / 3600.0, 3)));
+    json_object_set_new(o, "complete", json_boolean(!s->partial && s->n_gaps == 0));
+    json_object_set_new(o, "expected_from_s", json_real(s->expect_from_s));
+    json_object_set_new(o, "expected_to_s", json_real(s->expect_to_s));
+    json_object_set_new(o, "expected_from", json_string(s->lights_off_given ? "lights-off"
+                                                                            : "recording-start"));
+    json_object_set_new(o, "expected_to", json_string(s->lights_on_given ? "lights-on"
+                                                                         : "recording-end"));
+    json_object_set_new(o, "first_staged_s", number(s->first_staged_s));
+    json_object_set_new(o, "staged_end_s", number(s->staged_end_s));
+    json_object_set_new(o, "unstaged_start_s", json_real(s->unstaged_start_s));
+    json_object_set_new(o, "unstaged_end_s", json_real(s->unstaged_end_s));
+    json_object_set_new(o, "tolerance_start_s", json_real(s->tolerance_start_s));
+    json_object_set_new(o, "tolerance_end_s", json_real(s->tolerance_end_s));
+    json_object_set_new(o, "partial", json_boolean(s->partial));
+    json_object_set_new(o, "gaps", gaps);
+    json_object_set_new(o, "gap_total_s", json_real(s->gap_total_s));
+    return o;
+}
+
+static json_t *reservations_json(const rt_night *night)
+{
+    json_t *a = json_array();
+    for (size_t i = 0; i < night->n_reservations; i++)
+        json_array_append_new(a, json_pack("{s:s,s:s}", "code",
+                                           rt_reservation_code_name(night->reservations[i].code),
+                                           "text", night->reservations[i].text));
+    return a;
+}
+
 static json_t *cautions_json(void)
 {
     json_t *a = json_array();
@@ -234,13 +278,14 @@ rt_status rt_night_write_json(const rt_night *night, const rt_run_inputs *inputs
     if (st != RT_OK)
         return st;
     json_t *root = json_object();
-    json_object_set_new(root, "schema", json_string("remtone-night/1"));
+    json_object_set_new(root, "schema", json_string("remtone-night/2"));
     json_object_set_new(root, "rem", json_pack("{s:I,s:f,s:f,s:I}", "epochs",
                                                (json_int_t)night->rem_epochs, "minutes",
                                                night->rem_minutes, "scorable_minutes",
                                                night->scorable_minutes, "bouts",
                                                (json_int_t)night->n_bouts));
     json_object_set_new(root, "recording_s", json_real(night->recording_s));
+    json_object_set_new(root, "staging", staging_json(night));
     json_object_set_new(root, "channels", channels_json(night));
     json_object_set_new(root, "aasm_nrem_reference_uv", number(rounded(night->nrem_reference_uv, 4)));
     json_object_set_new(root, "headline", json_pack("{s:s,s:o}", "index",
@@ -251,7 +296,12 @@ rt_status rt_night_write_json(const rt_night *night, const rt_run_inputs *inputs
     json_object_set_new(rev, "flagged", json_boolean(night->level == RT_REVIEW_FLAGGED));
     json_object_set_new(rev, "level", json_string(rt_review_level_name(night->level)));
     json_object_set_new(rev, "reasons", strings_json(night->reasons, night->n_reasons));
+    json_object_set_new(rev, "with_reservations", json_boolean(night->n_reservations > 0));
+    char statement[64];
+    rt_report_statement(night, statement, sizeof statement);
+    json_object_set_new(rev, "statement", json_string(statement));
     json_object_set_new(root, "review", rev);
+    json_object_set_new(root, "reservations", reservations_json(night));
     json_object_set_new(root, "exclusions", exclusions_json(night));
     json_object_set_new(root, "agreement", rt_agreement_json(&night->agreement));
     json_object_set_new(root, "evidence", evidence_json(night, 10));

@@ -44,6 +44,17 @@ void rt_report_elapsed(double seconds, char *buf, size_t cap);
  * order[] and returns how many. */
 size_t rt_report_rank_evidence(const rt_night *night, size_t *order, size_t limit);
 
+/* The review level in plain words: "review advised", "near a cutoff",
+ * "clear", "not assessable". */
+const char *rt_report_level_plain(rt_review_level level);
+/* The level as the reports state it: "clear", or "clear, with reservations"
+ * when the night has any (and so for every level). */
+void rt_report_statement(const rt_night *night, char *buf, size_t cap);
+/* What the staging covers, one line: "4.0 h staged of the 7.5-h recording;
+ * partial, unstaged 3.5 h at the end (more than the 30.0 min allowed)". The
+ * gaps are listed separately (night->staging.gaps). */
+void rt_report_staging_text(const rt_night *night, char *buf, size_t cap);
+
 /* The last component of a path (the path itself when it has no '/'). */
 const char *rt_report_basename(const char *path);
 

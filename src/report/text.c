@@ -20,15 +20,46 @@ static void value_text(const rt_index_rule *rule, double v, char *buf, size_t ca
         snprintf(buf, cap, "%.3f", v);
 }
 
-static const char *level_words(rt_review_level level)
+/* The level line: its name in capitals, ", WITH RESERVATIONS" when the night
+ * has any, and what it means. */
+static void level_line(FILE *out, const rt_night *night)
 {
-    switch (level) {
-    case RT_REVIEW_FLAGGED: return "REVIEW: a published cutoff is reached; physician review advised";
-    case RT_REVIEW_NEAR: return "NEAR CUTOFF: no cutoff reached, but one is close";
-    case RT_REVIEW_CLEAR: return "CLEAR: no index reaches or nears a verified cutoff";
-    case RT_REVIEW_NOT_ASSESSABLE: return "NOT ASSESSABLE: the night cannot be scored reliably";
+    static const char *const NAME[] = {"CLEAR", "NEAR CUTOFF", "REVIEW", "NOT ASSESSABLE"};
+    static const char *const MEANS[] = {
+        "no index reaches or nears a verified cutoff",
+        "no cutoff reached, but one is close",
+        "a published cutoff is reached; physician review advised",
+        "the night cannot be scored reliably"};
+    int l = (int)night->level;
+    if (l < 0 || l > RT_REVIEW_NOT_ASSESSABLE)
+        return;
+    fprintf(out, "%s%s: %s%s\n", NAME[l], night->n_reservations ? ", WITH RESERVATIONS" : "",
+            MEANS[l], night->n_reservations ? "; the reservations below limit what this says" : "");
+}
+
+/* Gaps listed in the text; the JSON result lists them all. */
+#define TEXT_GAPS 10
+
+static void staging_lines(FILE *out, const rt_night *night)
+{
+    const rt_staging_summary *s = &night->staging;
+    char line[400], clock[16], len[32];
+    rt_report_staging_text(night, line, sizeof line);
+    fprintf(out, "Staging: %s\n", line);
+    if (s->n_gaps == 0) {
+        fprintf(out, "Staging gaps: none\n");
+        return;
     }
-    return "";
+    rt_duration_text(s->gap_total_s, len, sizeof len);
+    fprintf(out, "Staging gaps: %zu, %s in all (unstaged epochs inside the staging):\n", s->n_gaps,
+            len);
+    for (size_t i = 0; i < s->n_gaps && i < TEXT_GAPS; i++) {
+        rt_report_clock(&night->start, s->gaps[i].start_s, clock, sizeof clock);
+        rt_duration_text(s->gaps[i].duration_s, len, sizeof len);
+        fprintf(out, "  - %s (%.0f s into the recording), %s\n", clock, s->gaps[i].start_s, len);
+    }
+    if (s->n_gaps > TEXT_GAPS)
+        fprintf(out, "  - and %zu more (all in the JSON result)\n", s->n_gaps - TEXT_GAPS);
 }
 
 /* One line of a channel's quality: mains, ECG, minutes not scorable. */
@@ -63,6 +94,7 @@ rt_status rt_night_write_text(const rt_night *night, FILE *out, rt_error *err)
     const rt_index_rule *rules = rt_index_rules();
     char v[32], c[32];
     fprintf(out, "remtone night summary: %s\n\n", night->recording_path);
+    staging_lines(out, night);
     fprintf(out, "REM: %.1f min in %zu bouts, %.1f min scorable\n", night->rem_minutes,
             night->n_bouts, night->scorable_minutes);
     fprintf(out, "Channels:");
@@ -111,9 +143,15 @@ rt_status rt_night_write_text(const rt_night *night, FILE *out, rt_error *err)
         quality_line(out, rt_role_name((rt_role)r), &ch->quality);
     }
     fprintf(out, "\n");
-    fprintf(out, "%s\n", level_words(night->level));
+    level_line(out, night);
     for (size_t i = 0; i < night->n_reasons; i++)
         fprintf(out, "  - %s\n", night->reasons[i]);
+    if (night->n_reservations) {
+        fprintf(out, "Reservations:\n");
+        for (size_t i = 0; i < night->n_reservations; i++)
+            fprintf(out, "  - [%s] %s\n", rt_reservation_code_name(night->reservations[i].code),
+                    night->reservations[i].text);
+    }
     if (night->agreement.present) {
         fprintf(out, "\n");
         rt_agreement_write_text(&night->agreement, out);

@@ -326,9 +326,6 @@ static void summarise_exclusions(rt_night *night)
     if (isnan(lm->value))
         rt_copy_string(lm->reason, sizeof lm->reason,
                        "no limb-movement events were given and no leg EMG channel");
-    if (x->have_respiratory && x->rem_ahi >= 15.0)
-        rt_night_warn(night, "REM apnea-hypopnea index %.1f/h is 15/h or more: RSWA indices are "
-                             "less reliable (Cesari et al. 2023, Sleep)", x->rem_ahi);
 }
 
 static void apply_missing(rt_night *night, bool arms)
@@ -391,7 +388,7 @@ static void decide_status(rt_night *night)
     }
 }
 
-static bool abnormal(const rt_night *night, int i)
+bool rt_night_index_abnormal(const rt_night *night, int i)
 {
     const rt_index_value *v = &night->index[i];
     if (v->status == RT_STATUS_NOT_COMPUTED || v->status == RT_STATUS_NO_CUTOFF)
@@ -410,7 +407,7 @@ bool rt_night_cutoff_verified(const rt_night *night, int i)
            (r->lower_is_worse && night->cutoffs.normal_from[i] != r->normal_from);
 }
 
-static bool near(const rt_night *night, int i)
+bool rt_night_index_near(const rt_night *night, int i)
 {
     const rt_index_value *v = &night->index[i];
     if (v->status == RT_STATUS_NOT_COMPUTED || v->status == RT_STATUS_NO_CUTOFF)
@@ -420,7 +417,7 @@ static bool near(const rt_night *night, int i)
     return v->value >= night->params.near_fraction * night->cutoffs.value[i];
 }
 
-static void value_text(const rt_night *night, int i, double value, char *buf, size_t cap)
+void rt_night_value_text(const rt_night *night, int i, double value, char *buf, size_t cap)
 {
     if (strcmp(rt_index_rules()[i].unit, "%") == 0)
         snprintf(buf, cap, "%.1f %%", value);
@@ -467,10 +464,10 @@ static void review(rt_night *night)
     bool flagged = false, nearing = false;
     for (int i = 0; i < RT_IX_COUNT; i++) {
         char val[32], cut[32];
-        if (abnormal(night, i) && rt_night_cutoff_verified(night, i)) {
+        if (rt_night_index_abnormal(night, i) && rt_night_cutoff_verified(night, i)) {
             flagged = true;
-            value_text(night, i, night->index[i].value, val, sizeof val);
-            value_text(night, i, night->cutoffs.value[i], cut, sizeof cut);
+            rt_night_value_text(night, i, night->index[i].value, val, sizeof val);
+            rt_night_value_text(night, i, night->cutoffs.value[i], cut, sizeof cut);
             add_reason(night, "%s is %s, %s the cutoff %s (%s)", rules[i].id, val,
                        rules[i].lower_is_worse ? "below" : "at or above", cut,
                        strcmp(night->cutoffs.origin, "published") == 0 ? rules[i].source
@@ -479,12 +476,12 @@ static void review(rt_night *night)
     }
     if (!flagged) {
         for (int i = 0; i < RT_IX_COUNT; i++) {
-            if (!near(night, i) || !rt_night_cutoff_verified(night, i))
+            if (!rt_night_index_near(night, i) || !rt_night_cutoff_verified(night, i))
                 continue;
             char val[32], cut[32];
             nearing = true;
-            value_text(night, i, night->index[i].value, val, sizeof val);
-            value_text(night, i, night->cutoffs.value[i], cut, sizeof cut);
+            rt_night_value_text(night, i, night->index[i].value, val, sizeof val);
+            rt_night_value_text(night, i, night->cutoffs.value[i], cut, sizeof cut);
             add_reason(night, "%s is %s, near the cutoff %s", rules[i].id, val, cut);
         }
     }
@@ -492,11 +489,11 @@ static void review(rt_night *night)
     if (night->level == RT_REVIEW_CLEAR)
         add_reason(night, "no index reaches or nears a verified cutoff");
     for (int i = 0; i < RT_IX_COUNT; i++) {
-        if (!abnormal(night, i) || rt_night_cutoff_verified(night, i))
+        if (!rt_night_index_abnormal(night, i) || rt_night_cutoff_verified(night, i))
             continue;
         char val[32], cut[32];
-        value_text(night, i, night->index[i].value, val, sizeof val);
-        value_text(night, i, night->cutoffs.value[i], cut, sizeof cut);
+        rt_night_value_text(night, i, night->index[i].value, val, sizeof val);
+        rt_night_value_text(night, i, night->cutoffs.value[i], cut, sizeof cut);
         add_reason(night, "context only: %s is %s, %s %s, a cutoff recalled but not verified "
                           "against the published text: not a reason for review",
                    rules[i].id, val, rules[i].lower_is_worse ? "below" : "at or above", cut);
@@ -560,5 +557,6 @@ rt_status rt_night_summarise(rt_night *night, const scoring_state *ss, rt_error 
                           ? RT_IX_SINBAR_COMBINED_3S
                           : RT_IX_SINBAR_CHIN_ANY_3S;
     review(night);
+    rt_night_reserve(night);
     return RT_OK;
 }

@@ -673,7 +673,13 @@ rt_status rt_night_score(rt_recording *rec, const rt_role_map *roles, const rt_t
         rt_cutoffs_published(&night->cutoffs);
     rt_copy_string(night->recording_path, sizeof night->recording_path, rt_recording_path(rec));
     night->recording_s = rt_recording_duration_s(rec);
+    night->start = rt_recording_start(rec);
     night->nrem_reference_uv = NAN;
+    st = rt_night_staging_summarise(night, tl, err);
+    if (st != RT_OK) {
+        rt_night_free(night);
+        return st;
+    }
 
     scoring_state ss;
     memset(&ss, 0, sizeof ss);
@@ -743,5 +749,6 @@ void rt_night_free(rt_night *night)
     free(night->minis2);
     free(night->bursts);
     free(night->bout_lift);
+    free(night->staging.gaps);
     free(night);
 }

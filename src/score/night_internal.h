@@ -3,6 +3,7 @@
 #ifndef REMTONE_NIGHT_INTERNAL_H
 #define REMTONE_NIGHT_INTERNAL_H
 
+#include <stdbool.h>
 #include <stddef.h>
 
 #include "internal.h"
@@ -31,8 +32,27 @@ typedef struct scoring_state {
 /* Appends a warning (printf-style) to the night; drops it when full. */
 void rt_night_warn(rt_night *night, const char *fmt, ...) RT_PRINTF(2, 3);
 
-/* Epoch aggregates, indices, statuses, headline and review level. */
+/* Epoch aggregates, indices, statuses, headline, review level and the
+ * reservations (rt_night_reserve). */
 rt_status rt_night_summarise(rt_night *night, const scoring_state *ss, rt_error *err);
+
+/* Index i reaches its cutoff in force (RAI: below it); near it (at or above
+ * near_fraction of it; RAI: intermediate). False when not computed or without
+ * a cutoff. */
+bool rt_night_index_abnormal(const rt_night *night, int i);
+bool rt_night_index_near(const rt_night *night, int i);
+/* Index i's value in its unit ("12.3 %", "0.812", "4.0/h"). */
+void rt_night_value_text(const rt_night *night, int i, double value, char *buf, size_t cap);
+
+/* What the staging covers against the recording and its lights times
+ * (night->staging; night->recording_s must be set). RT_ERR_NOMEM only. */
+rt_status rt_night_staging_summarise(rt_night *night, const rt_timeline *tl, rt_error *err);
+
+/* The reservations that limit the night's level (night->reservations), from
+ * the staging summary, the exclusions, the channels' quality, the indices'
+ * denominators and the cutoffs that did not decide the level. Called last by
+ * rt_night_summarise. */
+void rt_night_reserve(rt_night *night);
 
 
 #endif

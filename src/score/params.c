@@ -80,6 +80,14 @@ static const rt_param_desc table[] = {
          "AASM Manual: minimum EMG sampling rate 200 Hz (from memory)"),
     REAL(min_scorable_min, 5.0, 0.0, 600.0, "min", "common practice"),
     REAL(near_fraction, 0.8, 0.0, 1.0, "x", "our choice: the review list starts at 80 % of a cutoff"),
+    REAL(staging_edge_tolerance_min, 30.0, 0.0, 240.0, "min",
+         "our choice: a recording often starts before lights-off and runs past lights-on; "
+         "longer unstaged ends without lights times make the staging partial"),
+    REAL(index_min_epochs, 10.0, 0.0, 1000.0, "epochs",
+         "our choice: below 10 REM epochs one epoch moves an epoch index by more than 10 "
+         "points"),
+    REAL(excluded_share_max, 1.0 / 3.0, 0.0, 1.0, "x",
+         "our choice: with more than a third of REM left out, the indices describe a selection"),
     BOOL(exclude_artifacts, 1, "common practice (docs/exclusions.md)"),
     BOOL(exclude_snoring, 1, "common practice (docs/exclusions.md)"),
     BOOL(exclude_respiratory, 1,

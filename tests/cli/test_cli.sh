@@ -52,7 +52,10 @@ has score-cautions "$work/out" "not a diagnosis"
 has score-visual-note "$work/out" "visual scoring"
 check score-json-shape 0 "$py" -c '
 import json,sys; d=json.load(open(sys.argv[1]))
-assert d["schema"]=="remtone-night/1"
+assert d["schema"]=="remtone-night/2"
+# the synthetic night is staged from start to end: complete, no gaps (docs/night-json.md)
+s=d["staging"]; assert s["complete"] is True and s["staged_hours"]==s["recording_hours"]==1.0 and s["gaps"]==[], s
+assert isinstance(d["reservations"],list) and d["review"]["with_reservations"]==(len(d["reservations"])>0)
 for k in ("epochs","minutes","scorable_minutes"): assert k in d["rem"]
 ids=["aasm.tonic_chin_epochs","aasm.phasic_chin_epochs","aasm.phasic_any_epochs","aasm.rswa_epochs",
  "sinbar.chin_any_3s","sinbar.chin_phasic_3s","sinbar.chin_tonic_30s","sinbar.fds_phasic_3s",
@@ -121,6 +124,20 @@ assert d["provenance"]["cutoffs"].endswith("cut.csv")' "$work/c.json"
 printf 'index,cutoff\nsinbar.nonsense,5\n' > "$work/badcut.csv"
 check score-bad-cutoffs 5 "$bin" score "$work/n/night.edf" --stages "$work/n/stages.csv" --cutoffs "$work/badcut.csv"
 has bad-cutoffs-line "$work/err" "line 2"
+
+# a stage row missing inside the staging: the gap is listed and the level carries the reservation
+# `staging-gaps` in the summary, the JSON result and the page (docs/scoring.md, "Reservations")
+awk -F, 'NR != 4' "$work/n/stages.csv" > "$work/holed.csv"
+check score-holed 0 "$bin" score "$work/n/night.edf" --stages "$work/holed.csv" --json "$work/h.json" --html "$work/h.html"
+has holed-gap-listed "$work/out" "Staging gaps: 1, 8.5 min in all"
+has holed-level "$work/out" ", WITH RESERVATIONS: "
+has holed-reservation "$work/out" "  - [staging-gaps] "
+has holed-page "$work/h.html" 'data-code="staging-gaps"'
+check holed-json 0 "$py" -c '
+import json,sys; d=json.load(open(sys.argv[1])); s=d["staging"]
+assert [r["code"] for r in d["reservations"]][:1]==["staging-gaps"], d["reservations"]
+assert s["complete"] is False and s["partial"] is False and s["gaps"]==[{"start_s":960.0,"start_clock":"22:46:00","duration_s":510.0}], s
+assert d["review"]["statement"].endswith(", with reservations")' "$work/h.json"
 
 # exit codes of the README table
 check missing-recording 3 "$bin" score "$work/nope.edf" --stages "$work/n/stages.csv"

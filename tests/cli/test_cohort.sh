@@ -52,7 +52,7 @@ expect table-shape 0 "$py" -c '
 import csv,sys
 rows=list(csv.DictReader(open(sys.argv[1])))
 h=list(rows[0].keys())
-assert h[:6]==["id","group","flagged","level","rem_minutes","scorable_minutes"], h
+assert h[:7]==["id","group","flagged","level","reservations","rem_minutes","scorable_minutes"], h
 assert "sinbar.chin_any_fds_phasic_3s" in h and "rai" in h and "warnings" in h
 assert [r["id"] for r in rows]==["r1","r2","r3","t4","t5","t6"]
 assert all(r["flagged"]=="true" for r in rows[:3]) and all(r["group"]=="control" for r in rows[3:])' ref/cohort.csv
@@ -147,7 +147,7 @@ has failing-counted "$work/out" "3 scored, 0 already current, 1 failed"
 expect error-record-shape 0 "$py" -c '
 import json,sys; d=json.load(open(sys.argv[1]))
 assert d["id"]=="broken" and d["status"]=="recording" and d["exit_code"]==4 and "stages.csv" in d["message"]' mixed/nights/broken.error.json
-has failed-row mixed/cohort.csv "broken,case,,failed"
+has failed-row mixed/cohort.csv "broken,case,,failed,,"
 expect help 0 "$bin" cohort --help
 
 echo "$fails failure(s)"

@@ -133,18 +133,23 @@ static void test_part_of_is_xxh3_mod_n(void **state)
         assert_true(count[k] > 180 && count[k] < 320);
 }
 
-static void write_night(const char *nights, const char *id, const char *group, double combined,
-                        double rai, bool with_key)
+/* A hand-made night result: reservations NULL writes a remtone-night/1
+ * result (which had no reservations), else a /2 one with these codes. */
+static void write_night_with(const char *nights, const char *id, const char *group,
+                             double combined, double rai, bool with_key, const char *reservations)
 {
-    char name[256], text[2048];
+    char name[256], text[2048], list[512] = "";
     snprintf(name, sizeof name, "%s.json", id);
+    if (reservations)
+        snprintf(list, sizeof list, ",\"reservations\":[%s]", reservations);
     snprintf(text, sizeof text,
-             "{\"schema\":\"remtone-night/1\",\"rem\":{\"epochs\":20,\"minutes\":10,"
+             "{\"schema\":\"remtone-night/%d\",\"rem\":{\"epochs\":20,\"minutes\":10,"
              "\"scorable_minutes\":9.5},\"review\":{\"flagged\":%s,\"level\":\"%s\"},"
              "\"indices\":{\"sinbar.chin_any_fds_phasic_3s\":{\"value\":%g},"
              "\"rai\":{\"value\":%g},\"sinbar.chin_any_3s\":{\"value\":null}},"
-             "\"warnings\":[\"low rate\"]}",
-             combined >= 31.9 ? "true" : "false", combined >= 31.9 ? "review" : "clear", combined, rai);
+             "\"warnings\":[\"low rate\"]%s}",
+             reservations ? 2 : 1, combined >= 31.9 ? "true" : "false",
+             combined >= 31.9 ? "review" : "clear", combined, rai, list);
     rt_test_text_file(nights, name, text);
     if (!with_key)
         return;
@@ -152,6 +157,12 @@ static void write_night(const char *nights, const char *id, const char *group, d
     snprintf(text, sizeof text, "{\"schema\":\"remtone-cohort-key/1\",\"id\":\"%s\",\"group\":\"%s\","
                                 "\"identity\":{}}", id, group);
     rt_test_text_file(nights, name, text);
+}
+
+static void write_night(const char *nights, const char *id, const char *group, double combined,
+                        double rai, bool with_key)
+{
+    write_night_with(nights, id, group, combined, rai, with_key, "");
 }
 
 /* Merge of hand-made results. Cases score 40 and 20 on the combined SINBAR
@@ -168,8 +179,13 @@ static void test_merge_table_and_calibration(void **state)
     write_night(nights, "c2", "case", 20, 0.95, true);
     write_night(nights, "c1", "case", 40, 0.5, true);
     write_night(nights, "k1", "control", 10, 0.97, true);
-    write_night(nights, "k2", "control", 30, 0.92, true);
-    write_night(nights, "x1", "other, \\\"quoted\\\"", 50, 0.3, true); /* JSON-escaped */
+    /* a clear night whose staging stopped short and whose epoch indices
+     * rest on few epochs (codes of docs/night-json.md) */
+    write_night_with(nights, "k2", "control", 30, 0.92, true,
+                     "{\"code\":\"partial-staging\",\"text\":\"a, b\"},"
+                     "{\"code\":\"few-units\",\"text\":\"c\"}");
+    /* JSON-escaped group; a remtone-night/1 result, whose reservations are unknown */
+    write_night_with(nights, "x1", "other, \\\"quoted\\\"", 50, 0.3, true, NULL);
     write_night(nights, "half", "case", 99, 0.1, false); /* killed before its key */
     rt_test_text_file(nights, "bad.error.json", "{\"id\":\"bad\",\"group\":\"case\",\"status\":"
                                                 "\"recording\",\"message\":\"broken, really\"}");
@@ -188,10 +204,12 @@ static void test_merge_table_and_calibration(void **state)
     snprintf(path, sizeof path, "%s/cohort.csv", dir);
     const char *csv = slurp(path);
     assert_non_null(csv);
-    assert_non_null(strstr(csv, "id,group,flagged,level,rem_minutes,scorable_minutes,"));
-    /* rows in id order; RFC 4180 quoting of a group with a comma and quotes */
-    const char *bad = strstr(csv, "\nbad,case,,failed,"), *c1 = strstr(csv, "\nc1,case,true,review,10,9.5,");
-    const char *x1 = strstr(csv, "\nx1,\"other, \"\"quoted\"\"\",true,");
+    assert_non_null(strstr(csv, "id,group,flagged,level,reservations,rem_minutes,scorable_minutes,"));
+    /* rows in id order; RFC 4180 quoting of a group with a comma and quotes;
+     * the reservation codes of each night (none, two, unknown for /1) */
+    const char *bad = strstr(csv, "\nbad,case,,failed,,"), *c1 = strstr(csv, "\nc1,case,true,review,,10,9.5,");
+    const char *x1 = strstr(csv, "\nx1,\"other, \"\"quoted\"\"\",true,review,unknown,10,");
+    assert_non_null(strstr(csv, "\nk2,control,false,clear,partial-staging;few-units,10,9.5,"));
     assert_non_null(bad);
     assert_non_null(c1);
     assert_non_null(x1);

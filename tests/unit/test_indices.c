@@ -212,6 +212,16 @@ static void unverified_cutoff_is_context(void **state)
         context |= strstr(n->reasons[i], "context only: sinbar.chin_any_fds_phasic_30s") != NULL;
     }
     assert_true(context);
+    /* and the clear level carries the reservation that says so (docs/scoring.md,
+     * "Reservations") */
+    assert_int_equal(n->n_reservations, 1);
+    assert_int_equal(n->reservations[0].code, RT_RESERVE_CUTOFF_UNVERIFIED);
+    assert_string_equal(rt_reservation_code_name(n->reservations[0].code), "cutoff-not-verified");
+    print_message("# reservation: %s\n", n->reservations[0].text);
+    /* FDS 3-s 15 % is at or above 0.8 x its recalled 16.8 % (near_fraction) */
+    assert_non_null(strstr(n->reservations[0].text, "sinbar.fds_phasic_3s is 15.0 %, near 16.8 %; "
+                                                    "sinbar.chin_any_fds_phasic_30s is 30.0 %, "
+                                                    "at or above 27.0 %: cutoffs recalled"));
     rt_night_free(n);
 
     /* a lab's own 30-s cutoff (a value other than the published one) decides */
@@ -219,6 +229,7 @@ static void unverified_cutoff_is_context(void **state)
     n->cutoffs.value[RT_IX_SINBAR_COMBINED_30S] = 28.0;
     summarise(n);
     assert_int_equal(n->level, RT_REVIEW_FLAGGED);
+    assert_int_equal(n->n_reservations, 0);
     rt_night_free(n);
 
     /* a verified cutoff still flags: 13 epochs with 5 active minis give the
