@@ -1,0 +1,69 @@
+#!/usr/bin/env bash
+# Hostile inputs beyond the malformed corpus (docs/hardening.md, "Classes of
+# hostile input"): text that is not UTF-8 on its way to JSON, CSV and HTML;
+# outputs over inputs and over each other; channel labels that differ only in
+# case or repeat; implausible physical ranges; indices over empty
+# denominators. Recordings are written here with tests/malformed/edf_writer.py.
+set -u
+bin=${REMTONE_BIN:?}
+src=${REMTONE_SOURCE:?}
+py=/usr/bin/python3
+work="${REMTONE_TMP:-/tmp}/hostile"
+rm -rf "$work" && mkdir -p "$work"
+cd "$work" || exit 1
+fails=0
+ok() { echo "ok   $1"; }
+bad() { echo "FAIL $1"; fails=$((fails+1)); }
+expect() { # expect NAME EXIT CMD... (stdout in $work/out, stderr in $work/err)
+  local name=$1 want=$2; shift 2
+  "$@" >"$work/out" 2>"$work/err"; local got=$?
+  if [ "$got" = "$want" ]; then ok "$name"; else bad "$name: exit $got, want $want"; sed 's/^/    /' "$work/err" | head -5; fi
+}
+has() { if grep -qF -- "$3" "$2"; then ok "$1"; else bad "$1: '$3' not in $2"; sed 's/^/    /' "$2" | head -3; fi; }
+hasnt() { if grep -qF -- "$3" "$2"; then bad "$1: '$3' in $2"; else ok "$1"; fi; }
+
+# edf NAME CHANNELS [ANNOTATIONS]: a 5-minute EDF+ of 1-s records; CHANNELS is a
+# Python list of (label, kind, physical range) with kind "live" (noise) or
+# "flat"; ANNOTATIONS a Python list of (onset_s, duration_s, bytes)
+edf() {
+  "$py" - "$src/tests/malformed" "$@" <<'PY'
+import random, sys
+sys.path.insert(0, sys.argv[1])
+import edf_writer as ew
+name, chans = sys.argv[2], eval(sys.argv[3])
+ann = eval(sys.argv[4]) if len(sys.argv) > 4 else [(0, None, b"Lights off")]
+rng = random.Random(7)
+noise = [rng.randint(-300, 300) for _ in range(4096)]
+def sig(label, kind, phys):
+    v = (lambda r, i: noise[(r * 256 + i) % 4096]) if kind == "live" else (lambda r, i: 0)
+    return ew.Signal(label, 256, phys=phys, value=v)
+open(name, "wb").write(ew.edf_bytes([sig(*c) for c in chans], 300, plus=True, annotations=ann))
+PY
+}
+stages=$src/tests/malformed/good-stages.csv
+live='[("Chin1-Chin2", "live", (-500.0, 500.0))]'
+
+# ---- 1. text that is not UTF-8 reaches JSON, CSV and HTML escaped, never dropped
+edf bad-stage.edf "$live" '[(0, 30, b"Sleep stage W"), (30, 30, b"Sleep stage R\xff\xfe")]' || bad "write bad-stage.edf"
+mkdir -p c && cp bad-stage.edf c/ && cp bad-stage.edf c/good.edf
+printf 'id,recording,stages,events,group\nbad,bad-stage.edf,,,case\ngood,good.edf,%s,,control\n' "$stages" > c/manifest.csv
+expect utf8-cohort-runs 0 "$bin" cohort c/manifest.csv --out c/out --jobs 1
+has utf8-cohort-counts "$work/out" "2 nights in cohort.csv (1 scored, 1 failed)"
+[ -s c/out/nights/bad.error.json ] && ok utf8-error-record || bad "utf8-error-record: no nights/bad.error.json"
+expect utf8-cohort-row 0 "$py" -c '
+import csv, json, sys
+rows = {r["id"]: r for r in csv.DictReader(open(sys.argv[1], encoding="utf-8"))}
+assert rows["bad"]["level"] == "failed" and "\ufffd" in rows["bad"]["error"], rows
+e = json.load(open(sys.argv[2], encoding="utf-8"))
+assert "\ufffd" in e["message"] and e["exit_code"] == 5, e' c/out/cohort.csv c/out/nights/bad.error.json
+# a path with a byte that is not UTF-8 stays in the provenance, escaped
+edf "odd-$(printf '\xe9').edf" "$live" || bad "write odd path"
+expect utf8-path-score 0 "$bin" score "odd-$(printf '\xe9').edf" --stages "$stages" --quiet --json odd.json --html odd.html --minis odd.csv
+expect utf8-path-kept 0 "$py" -c '
+import json, sys
+d = json.load(open(sys.argv[1], encoding="utf-8"))
+assert d["provenance"]["inputs"]["recording"]["path"] == "odd-\ufffd.edf", d["provenance"]["inputs"]
+open(sys.argv[2], encoding="utf-8").read(); open(sys.argv[3], encoding="utf-8").read()' odd.json odd.html odd.csv
+
+echo "$fails failed"
+[ "$fails" = 0 ]
