@@ -44,8 +44,9 @@ stages=$src/tests/malformed/good-stages.csv
 live='[("Chin1-Chin2", "live", (-500.0, 500.0))]'
 
 # ---- 1. text that is not UTF-8 reaches JSON, CSV and HTML escaped, never dropped
+edf good.edf "$live" || bad "write good.edf"
 edf bad-stage.edf "$live" '[(0, 30, b"Sleep stage W"), (30, 30, b"Sleep stage R\xff\xfe")]' || bad "write bad-stage.edf"
-mkdir -p c && cp bad-stage.edf c/ && cp bad-stage.edf c/good.edf
+mkdir -p c && cp bad-stage.edf good.edf c/
 printf 'id,recording,stages,events,group\nbad,bad-stage.edf,,,case\ngood,good.edf,%s,,control\n' "$stages" > c/manifest.csv
 expect utf8-cohort-runs 0 "$bin" cohort c/manifest.csv --out c/out --jobs 1
 has utf8-cohort-counts "$work/out" "2 nights in cohort.csv (1 scored, 1 failed)"
@@ -64,6 +65,30 @@ import json, sys
 d = json.load(open(sys.argv[1], encoding="utf-8"))
 assert d["provenance"]["inputs"]["recording"]["path"] == "odd-\ufffd.edf", d["provenance"]["inputs"]
 open(sys.argv[2], encoding="utf-8").read(); open(sys.argv[3], encoding="utf-8").read()' odd.json odd.html odd.csv
+
+# ---- 2. a cohort never writes over its own inputs (the manifest, the cutoffs)
+mkdir -p m && cp c/good.edf m/ && printf 'id,recording,stages,events,group\ngood,good.edf,%s,,control\n' "$stages" > m/cohort.csv
+cp m/cohort.csv m/cohort.csv.orig
+expect cohort-manifest-as-output 2 "$bin" cohort m/cohort.csv --out m --jobs 1
+has cohort-manifest-named "$work/err" "is the input file"
+cmp -s m/cohort.csv m/cohort.csv.orig && ok cohort-manifest-kept || bad "cohort-manifest-kept: the manifest was replaced"
+printf 'index,cutoff\nrai,0.8\n' > c/out/calibrated-cutoffs.csv && cp c/out/calibrated-cutoffs.csv cut.orig
+expect cohort-cutoffs-as-output 2 "$bin" cohort c/manifest.csv --out c/out --cutoffs c/out/calibrated-cutoffs.csv --jobs 1
+cmp -s c/out/calibrated-cutoffs.csv cut.orig && ok cohort-cutoffs-kept || bad "cohort-cutoffs-kept: the cutoffs were replaced"
+expect merge-cutoffs-as-output 2 "$bin" cohort-merge c/out --cutoffs c/out/calibrated-cutoffs.csv
+cmp -s c/out/calibrated-cutoffs.csv cut.orig && ok merge-cutoffs-kept || bad "merge-cutoffs-kept: the cutoffs were replaced"
+
+# ---- 3. two outputs of one command never share a destination
+expect outputs-same-file 2 "$bin" score good.edf --stages "$stages" --json same.out --html same.out
+has outputs-same-file-named "$work/err" "--json same.out and --html same.out"
+[ -e same.out ] && bad "outputs-same-file: same.out written" || ok outputs-same-file-nothing-written
+expect outputs-same-file-spelled 2 "$bin" score good.edf --stages "$stages" --minis ./x.csv --annotations ../hostile/x.csv
+expect outputs-both-stdout 2 "$bin" score good.edf --stages "$stages" --json - --html -
+has outputs-both-stdout-named "$work/err" "--json - and --html -"
+[ -s "$work/out" ] && bad "outputs-both-stdout: printed a result" || ok outputs-both-stdout-silent
+touch exists.json && ln -sf exists.json link.json
+expect outputs-same-file-link 2 "$bin" score good.edf --stages "$stages" --json exists.json --minis link.json
+expect outputs-devices-allowed 0 "$bin" score good.edf --stages "$stages" --quiet --json /dev/null --html /dev/null
 
 echo "$fails failed"
 [ "$fails" = 0 ]
