@@ -90,5 +90,29 @@ touch exists.json && ln -sf exists.json link.json
 expect outputs-same-file-link 2 "$bin" score good.edf --stages "$stages" --json exists.json --minis link.json
 expect outputs-devices-allowed 0 "$bin" score good.edf --stages "$stages" --quiet --json /dev/null --html /dev/null
 
+# ---- 4. a role option takes the channel it names, or none
+edf case.edf '[("Chin", "flat", (-500.0, 500.0)), ("CHIN", "live", (-500.0, 500.0))]' || bad "write case.edf"
+expect chin-exact-label 0 "$bin" score case.edf --stages "$stages" --quiet --chin CHIN --json case.json
+expect chin-exact-label-taken 0 "$py" -c '
+import json, sys
+c = json.load(open(sys.argv[1]))["channels"]
+chin = [x for x in c if x["role"] == "chin"][0]
+assert chin["label"] == "CHIN" and chin["rem_median_uv"] > 0, chin' case.json
+expect chin-case-ambiguous 6 "$bin" score case.edf --stages "$stages" --quiet --chin chin
+has chin-case-ambiguous-says "$work/err" "--chin '#"
+edf dup.edf '[("Chin", "flat", (-500.0, 500.0)), ("Chin", "live", (-500.0, 500.0))]' || bad "write dup.edf"
+expect chin-dup-detected 6 "$bin" score dup.edf --stages "$stages" --quiet
+has chin-dup-suggests-number "$work/err" "--chin '#1'"
+expect chin-dup-label 6 "$bin" score dup.edf --stages "$stages" --quiet --chin Chin
+has chin-dup-label-suggests-number "$work/err" "--chin '#2'"
+expect chin-by-number 0 "$bin" score dup.edf --stages "$stages" --quiet --chin '#2' --json dup.json
+expect chin-by-number-taken 0 "$py" -c '
+import json, sys
+c = json.load(open(sys.argv[1]))["channels"]
+chin = [x for x in c if x["role"] == "chin"][0]
+assert chin["label"] == "Chin" and chin["rem_median_uv"] > 0, chin' dup.json
+expect chin-help 0 "$bin" score --help
+has chin-help-number "$work/out" "'#N'"
+
 echo "$fails failed"
 [ "$fails" = 0 ]
