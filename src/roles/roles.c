@@ -12,6 +12,7 @@
 #include "remtone/roles.h"
 
 #include <ctype.h>
+#include <math.h>
 #include <stdio.h>
 #include <string.h>
 
@@ -393,12 +394,37 @@ static rt_status check_voltage(const rt_recording *rec, rt_role role, int channe
                    rt_recording_path(rec), ch->label, rt_role_name(role), ch->unit, rt_role_name(role));
 }
 
+/* Surface EMG stays far below 100 mV, and amplifiers' input ranges with it
+ * (common practice: a few mV at most); a channel whose header allows more
+ * cannot hold EMG in the unit it claims, so it is refused rather than scored
+ * (with +-1e100 uV every sample quantises to a huge step, and the night would
+ * score as all tonic). */
+#define EMG_RANGE_MAX_UV 1e5
+
+static rt_status check_range(const rt_recording *rec, rt_role role, int channel, rt_error *err)
+{
+    const rt_channel_info *ch = rt_recording_channel(rec, channel);
+    double most_uv = fmax(fabs(ch->phys_min), fabs(ch->phys_max)) * ch->uv_per_unit;
+    if (most_uv <= EMG_RANGE_MAX_UV)
+        return RT_OK;
+    return rt_fail(err, RT_ERR_CHANNEL,
+                   "%s: channel \"%s\" (%s) has physical range %g..%g %s, implausible for EMG "
+                   "(more than +-100 mV); fix the header or choose another channel with --%s",
+                   rt_recording_path(rec), ch->label, rt_role_name(role), ch->phys_min, ch->phys_max,
+                   ch->unit, rt_role_name(role));
+}
+
 static rt_status check_role_unit(const rt_recording *rec, rt_role role, const rt_role_source *src,
                                  bool allow_any_unit, rt_error *err)
 {
-    if (allow_any_unit || role == RT_ROLE_ECG || src->channel < 0)
+    if (role == RT_ROLE_ECG || src->channel < 0)
         return RT_OK;
-    rt_status s = check_voltage(rec, role, src->channel, err);
+    rt_status s = check_range(rec, role, src->channel, err);
+    if (s == RT_OK && src->reference >= 0)
+        s = check_range(rec, role, src->reference, err);
+    if (s != RT_OK || allow_any_unit)
+        return s;
+    s = check_voltage(rec, role, src->channel, err);
     if (s == RT_OK && src->reference >= 0)
         s = check_voltage(rec, role, src->reference, err);
     return s;
