@@ -56,6 +56,22 @@ int cli_exit_code(rt_status status, int output);
 int cli_refuse_output_over_input(const char *command, const char *option, const char *output,
                                  const char *const *inputs, size_t n_inputs);
 
+/* One output of a command: the option that names it (without "--") and its
+ * path (NULL = not asked for, "-" = standard output). */
+typedef struct cli_output {
+    const char *option;
+    const char *path;
+} cli_output;
+
+/* The one check every command makes on its outputs before reading anything:
+ * no output is one of the inputs (cli_refuse_output_over_input), and no two
+ * outputs are the same destination -- both standard output, or the same
+ * file however spelled (device and inode when it exists, otherwise the same
+ * folder and name) -- since one would replace or interleave the other.
+ * Returns EXIT_OK, or EXIT_USAGE after naming both options. */
+int cli_check_outputs(const char *command, const cli_output *outputs, size_t n_outputs,
+                      const char *const *inputs, size_t n_inputs);
+
 /* Prints "remtone: message" to stderr and returns the exit code. */
 int cli_report(const rt_error *err, int output);
 

@@ -116,6 +116,38 @@ static void show_progress(const rt_cohort_progress *p, void *user)
     fflush(stderr);
 }
 
+/* The files a run or a merge writes in the output folder (docs/cohort.md,
+ * "Files"); none may be an input, however spelled (cli_check_outputs). The
+ * inputs are the manifest, the cutoffs and every file the manifest names. */
+static int check_outputs(const cohort_config *c, const char *manifest_path, const rt_manifest *m)
+{
+    static const char *const NAMES[] = {"cohort.csv", "calibration.csv", "calibrated-cutoffs.csv",
+                                        "cohort.html", "cohort.log"};
+    enum { N = sizeof NAMES / sizeof NAMES[0] };
+    char paths[N][4096];
+    cli_output outputs[N];
+    for (size_t i = 0; i < N; i++) {
+        snprintf(paths[i], sizeof paths[i], "%s/%s", c->o.out_dir, NAMES[i]);
+        outputs[i] = (cli_output){"out", paths[i]};
+    }
+    size_t n_inputs = 2 + (m ? 3 * m->n_entries : 0);
+    const char **inputs = calloc(n_inputs, sizeof *inputs);
+    if (!inputs) {
+        fprintf(stderr, "remtone %s: out of memory\n", c->cmd);
+        return EXIT_INTERNAL;
+    }
+    inputs[0] = manifest_path;
+    inputs[1] = c->o.cutoffs_path;
+    for (size_t i = 0; m && i < m->n_entries; i++) {
+        inputs[2 + 3 * i] = m->entries[i].recording;
+        inputs[3 + 3 * i] = m->entries[i].stages;
+        inputs[4 + 3 * i] = m->entries[i].events;
+    }
+    int rc = cli_check_outputs(c->cmd, outputs, N, inputs, n_inputs);
+    free(inputs);
+    return rc;
+}
+
 static int merge_and_report(cohort_config *c)
 {
     rt_error err;
@@ -156,6 +188,10 @@ static int run(int argc, char **argv)
     rt_manifest *m = rt_manifest_load(pos[0], &err);
     if (!m)
         return cli_report(&err, 0);
+    if ((rc = check_outputs(&c, pos[0], m)) != EXIT_OK) {
+        rt_manifest_free(m);
+        return rc;
+    }
     bool tty = !c.quiet && isatty(STDERR_FILENO);
     if (tty)
         c.o.progress = show_progress;
@@ -187,6 +223,8 @@ static int run_merge(int argc, char **argv)
     if (rc != EXIT_OK)
         return rc < 0 ? EXIT_OK : rc;
     c.o.out_dir = pos[0];
+    if ((rc = check_outputs(&c, NULL, NULL)) != EXIT_OK)
+        return rc;
     return merge_and_report(&c);
 }
 

@@ -38,7 +38,8 @@ static int run(int argc, char **argv)
     if (rc != EXIT_OK)
         return rc < 0 ? EXIT_OK : rc;
     const char *inputs[] = {pos[0]};
-    if ((rc = cli_refuse_output_over_input("scan", "json", c.json, inputs, 1)) != EXIT_OK)
+    const cli_output outputs[] = {{"json", c.json}};
+    if ((rc = cli_check_outputs("scan", outputs, 1, inputs, 1)) != EXIT_OK)
         return rc;
     rt_error err;
     rt_error_clear(&err);

@@ -127,10 +127,10 @@ static int run(int argc, char **argv)
         return rc < 0 ? EXIT_OK : rc;
     const char *inputs[] = {pos[0], c.stages, c.events, c.cutoffs, c.labels};
     size_t n_inputs = sizeof inputs / sizeof inputs[0];
-    if ((rc = cli_refuse_output_over_input("score", "json", c.json, inputs, n_inputs)) != EXIT_OK ||
-        (rc = cli_refuse_output_over_input("score", "html", c.html, inputs, n_inputs)) != EXIT_OK ||
-        (rc = cli_refuse_output_over_input("score", "minis", c.minis, inputs, n_inputs)) != EXIT_OK ||
-        (rc = cli_refuse_output_over_input("score", "annotations", c.annotations, inputs, n_inputs)) != EXIT_OK)
+    const cli_output outputs[] = {{"json", c.json}, {"html", c.html}, {"minis", c.minis},
+                                  {"annotations", c.annotations}};
+    if ((rc = cli_check_outputs("score", outputs, sizeof outputs / sizeof outputs[0], inputs,
+                                n_inputs)) != EXIT_OK)
         return rc;
     rt_error err;
     rt_error_clear(&err);

@@ -1,5 +1,6 @@
 /* Table-driven option parsing and help for every command. */
 #include <getopt.h>
+#include <libgen.h>
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
@@ -102,5 +103,57 @@ int cli_refuse_output_over_input(const char *command, const char *option, const 
                             "input\n", command, option, output, inputs[i]);
             return EXIT_USAGE;
         }
+    return EXIT_OK;
+}
+
+/* The same regular file, or the same name in the same folder for files not
+ * made yet; "-" only matches "-". Devices such as /dev/null may take any
+ * number of outputs. */
+static int same_destination(const char *a, const char *b)
+{
+    if (strcmp(a, "-") == 0 || strcmp(b, "-") == 0)
+        return strcmp(a, b) == 0;
+    struct stat sa, sb;
+    int ea = stat(a, &sa) == 0, eb = stat(b, &sb) == 0;
+    if (ea && eb)
+        return S_ISREG(sa.st_mode) && sa.st_dev == sb.st_dev && sa.st_ino == sb.st_ino;
+    if (strcmp(a, b) == 0)
+        return 1;
+    if (ea || eb)
+        return 0;
+    /* neither exists yet: compare folder identity and the last name */
+    char ca[4096], cb[4096];
+    snprintf(ca, sizeof ca, "%s", a);
+    snprintf(cb, sizeof cb, "%s", b);
+    char *na = basename(ca), *nb = basename(cb);
+    if (strcmp(na, nb) != 0)
+        return 0;
+    snprintf(ca, sizeof ca, "%s", a);
+    snprintf(cb, sizeof cb, "%s", b);
+    const char *da = dirname(ca), *db = dirname(cb);
+    return stat(da, &sa) == 0 && stat(db, &sb) == 0 && sa.st_dev == sb.st_dev &&
+           sa.st_ino == sb.st_ino;
+}
+
+int cli_check_outputs(const char *command, const cli_output *outputs, size_t n_outputs,
+                      const char *const *inputs, size_t n_inputs)
+{
+    for (size_t i = 0; i < n_outputs; i++) {
+        if (!outputs[i].path)
+            continue;
+        int rc = cli_refuse_output_over_input(command, outputs[i].option, outputs[i].path, inputs,
+                                              n_inputs);
+        if (rc != EXIT_OK)
+            return rc;
+        for (size_t j = i + 1; j < n_outputs; j++)
+            if (outputs[j].path && same_destination(outputs[i].path, outputs[j].path)) {
+                fprintf(stderr, "remtone %s: --%s %s and --%s %s name the same %s; give each "
+                                "output its own destination\n", command, outputs[i].option,
+                        outputs[i].path, outputs[j].option, outputs[j].path,
+                        strcmp(outputs[i].path, "-") == 0 ? "destination (standard output)"
+                                                          : "file");
+                return EXIT_USAGE;
+            }
+    }
     return EXIT_OK;
 }

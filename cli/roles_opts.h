@@ -7,7 +7,7 @@
 enum { KEY_ROLE_BASE = 1000, KEY_ANY_UNIT = 1100 };
 
 #define CLI_ROLE_OPTIONS                                                                        \
-    {"chin", 1, KEY_ROLE_BASE + RT_ROLE_CHIN, "LABEL", "chin EMG channel, or A-B for a bipolar derivation"}, \
+    {"chin", 1, KEY_ROLE_BASE + RT_ROLE_CHIN, "LABEL", "chin EMG channel: its label (exact, else any case when unique), '#N' for channel N counted from 1 (labels that repeat), or A-B for a bipolar derivation"}, \
     {"arm-left", 1, KEY_ROLE_BASE + RT_ROLE_ARM_LEFT, "LABEL", "left arm (FDS) EMG channel or A-B"}, \
     {"arm-right", 1, KEY_ROLE_BASE + RT_ROLE_ARM_RIGHT, "LABEL", "right arm (FDS) EMG channel or A-B"}, \
     {"leg-left", 1, KEY_ROLE_BASE + RT_ROLE_LEG_LEFT, "LABEL", "left leg (tibialis anterior) EMG or A-B"}, \

@@ -96,8 +96,14 @@ long long rt_recording_file_size(const rt_recording *rec);
 int rt_recording_channel_count(const rt_recording *rec);
 /* NULL when index is out of range. */
 const rt_channel_info *rt_recording_channel(const rt_recording *rec, int index);
-/* Index of the channel whose label equals name (case-insensitive, surrounding
- * spaces ignored); -1 when none. */
+/* Index of the channel named by name (surrounding spaces ignored): the one
+ * channel whose label equals it exactly; else the one whose label equals it
+ * ignoring ASCII case; else, for "#N", channel N counted from 1 among the
+ * ordinary channels (the way to name one of several channels with the same
+ * label). RT_CHANNEL_NONE (-1) when none, RT_CHANNEL_AMBIGUOUS (-2) when
+ * several channels match at the first level that matches any: never the
+ * first of them. */
+enum { RT_CHANNEL_NONE = -1, RT_CHANNEL_AMBIGUOUS = -2 };
 int rt_recording_find_channel(const rt_recording *rec, const char *name);
 
 size_t rt_recording_annotation_count(const rt_recording *rec);

@@ -2,17 +2,20 @@
  * against the cutoff in force and the Youden cutoff (a strip plot), and the
  * ROC curve of the positive against the negative group, as inline SVG in one
  * HTML file without scripts. Written through libxml2's xmlTextWriter, so
- * every text -- group names come from the user's manifest -- is escaped. */
+ * every text -- group names come from the user's manifest -- is escaped,
+ * after rt_utf8_clean (src/common/text.h) made it valid UTF-8. */
 #include "cohort_internal.h"
 
 #include <libxml/xmlwriter.h>
 #include <math.h>
 #include <stdarg.h>
 #include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
 
 #include "internal.h"
 #include "output.h"
+#include "text.h"
 #include "remtone/report.h"
 
 enum { STRIP_W = 560, ROW_H = 26, ROC_SIZE = 220 };
@@ -39,7 +42,9 @@ static void attr(writer *h, const char *name, const char *fmt, ...)
     va_start(ap, fmt);
     vsnprintf(buf, sizeof buf, fmt, ap);
     va_end(ap);
-    h->failed |= xmlTextWriterWriteAttribute(h->w, BAD_CAST name, BAD_CAST buf) < 0;
+    char *clean = rt_utf8_clean(buf, true);
+    h->failed |= !clean || xmlTextWriterWriteAttribute(h->w, BAD_CAST name, BAD_CAST clean) < 0;
+    free(clean);
 }
 
 static void text(writer *h, const char *fmt, ...) RT_PRINTF(2, 3);
@@ -50,7 +55,9 @@ static void text(writer *h, const char *fmt, ...)
     va_start(ap, fmt);
     vsnprintf(buf, sizeof buf, fmt, ap);
     va_end(ap);
-    h->failed |= xmlTextWriterWriteString(h->w, BAD_CAST buf) < 0;
+    char *clean = rt_utf8_clean(buf, true);
+    h->failed |= !clean || xmlTextWriterWriteString(h->w, BAD_CAST clean) < 0;
+    free(clean);
 }
 
 static void element(writer *h, const char *name, const char *content)

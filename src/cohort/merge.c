@@ -16,6 +16,7 @@
 
 #include "internal.h"
 #include "output.h"
+#include "text.h"
 
 typedef struct rows {
     cohort_row *v;
@@ -204,22 +205,6 @@ static void put_number(FILE *f, double v)
         fprintf(f, "%.10g", v);
 }
 
-/* RFC 4180: quote a field holding a comma, quote, or line break. */
-static void put_text(FILE *f, const char *s)
-{
-    if (!strpbrk(s, ",\"\r\n\t")) {
-        fputs(s, f);
-        return;
-    }
-    fputc('"', f);
-    for (; *s; s++) {
-        if (*s == '"')
-            fputc('"', f);
-        fputc(*s, f);
-    }
-    fputc('"', f);
-}
-
 static rt_status write_table(const char *path, const rows *r, rt_error *err)
 {
     rt_output o;
@@ -231,13 +216,14 @@ static rt_status write_table(const char *path, const rows *r, rt_error *err)
     for (int i = 0; i < RT_IX_COUNT; i++)
         fprintf(f, ",%s", rt_index_rules()[i].id);
     fputs(",warnings,error\n", f);
-    for (size_t k = 0; k < r->n; k++) {
+    int no_memory = 0; /* text fields go through rt_csv_put_field (src/common/text.h) */
+    for (size_t k = 0; k < r->n && !no_memory; k++) {
         const cohort_row *row = &r->v[k];
-        put_text(f, row->id);
+        no_memory |= rt_csv_put_field(f, row->id);
         fputc(',', f);
-        put_text(f, row->group);
+        no_memory |= rt_csv_put_field(f, row->group);
         fprintf(f, ",%s,%s,", row->failed ? "" : row->flagged ? "true" : "false", row->level);
-        put_text(f, row->reservations);
+        no_memory |= rt_csv_put_field(f, row->reservations);
         fputc(',', f);
         put_number(f, row->rem_minutes);
         fputc(',', f);
@@ -250,8 +236,12 @@ static rt_status write_table(const char *path, const rows *r, rt_error *err)
         if (row->warnings >= 0)
             fprintf(f, "%ld", row->warnings);
         fputc(',', f);
-        put_text(f, row->error);
+        no_memory |= rt_csv_put_field(f, row->error);
         fputc('\n', f);
+    }
+    if (no_memory) {
+        rt_output_abort(&o);
+        return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", path);
     }
     return rt_output_commit(&o, err);
 }

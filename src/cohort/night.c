@@ -117,8 +117,8 @@ static rt_status write_json_atomic(json_t *root, const char *path, rt_error *err
 
 static json_t *key_json(const rt_manifest_entry *e, json_t *identity)
 {
-    json_t *k = json_pack("{s:s,s:s,s:s,s:O}", "schema", "remtone-cohort-key/1", "id", e->id,
-                          "group", e->group, "identity", identity);
+    json_t *k = json_pack("{s:s,s:o,s:o,s:O}", "schema", "remtone-cohort-key/1", "id",
+                          rt_json_text(e->id), "group", rt_json_text(e->group), "identity", identity);
     return k;
 }
 
@@ -211,11 +211,14 @@ static void write_error(const cohort_shared *s, const rt_manifest_entry *e, cons
     char path[COHORT_PATH_MAX];
     if (!cohort_night_path(path, sizeof path, s->nights_dir, e->id, ".error.json"))
         return;
-    json_t *root = json_pack("{s:s,s:s,s:s,s:s,s:i,s:s,s:s}", "schema", "remtone-cohort-error/1",
-                             "id", e->id, "group", e->group, "status", rt_status_name(why->status),
-                             "exit_code", exit_code_of(why->status), "message",
-                             why->message[0] ? why->message : rt_status_name(why->status),
-                             "recording", e->recording);
+    /* every text through rt_json_text: a message quoting bytes of a broken file
+     * must not cost the night its failure record, and so its row in cohort.csv */
+    json_t *root = json_pack("{s:s,s:o,s:o,s:s,s:i,s:o,s:o}", "schema", "remtone-cohort-error/1",
+                             "id", rt_json_text(e->id), "group", rt_json_text(e->group), "status",
+                             rt_status_name(why->status), "exit_code", exit_code_of(why->status),
+                             "message",
+                             rt_json_text(why->message[0] ? why->message : rt_status_name(why->status)),
+                             "recording", rt_json_text(e->recording));
     if (root)
         write_json_atomic(root, path, NULL);
     json_decref(root);

@@ -13,6 +13,7 @@
 #include <sys/stat.h>
 
 #include "internal.h"
+#include "text.h"
 
 #define TABLE_MAX_BYTES (64L * 1024 * 1024)
 enum { FIELD_MAX_BYTES = 4096 }; /* no stage, time, path or label needs more */
@@ -24,36 +25,11 @@ static size_t utf8_invalid_at(const unsigned char *s, size_t len)
 {
     size_t i = 0;
     while (i < len) {
-        unsigned char c = s[i];
-        if (c == 0)
+        unsigned code = 0;
+        size_t n = s[i] ? rt_utf8_sequence(s + i, len - i, &code) : 0;
+        if (n == 0)
             return i;
-        if (c < 0x80) {
-            i++;
-            continue;
-        }
-        size_t n;
-        unsigned int min;
-        if (c >= 0xC2 && c <= 0xDF) {
-            n = 1;
-            min = 0x80;
-        } else if (c >= 0xE0 && c <= 0xEF) {
-            n = 2;
-            min = 0x800;
-        } else if (c >= 0xF0 && c <= 0xF4) {
-            n = 3;
-            min = 0x10000;
-        } else {
-            return i;
-        }
-        unsigned int cp = c & (0x3F >> n);
-        for (size_t k = 1; k <= n; k++) {
-            if (i + k >= len || (s[i + k] & 0xC0) != 0x80)
-                return i;
-            cp = (cp << 6) | (s[i + k] & 0x3F);
-        }
-        if (cp < min || cp > 0x10FFFF || (cp >= 0xD800 && cp <= 0xDFFF))
-            return i;
-        i += n + 1;
+        i += n;
     }
     return len;
 }

@@ -518,10 +518,27 @@ int rt_recording_find_channel(const rt_recording *rec, const char *name)
     char wanted[64];
     rt_copy_string(wanted, sizeof wanted, name ? name : "");
     rt_trim(wanted);
-    for (int i = 0; i < rec->n_channels; i++)
-        if (rt_equal_nocase(rec->channels[i].label, wanted))
-            return i;
-    return -1;
+    int exact = RT_CHANNEL_NONE, n_exact = 0, folded = RT_CHANNEL_NONE, n_folded = 0;
+    for (int i = 0; i < rec->n_channels; i++) {
+        if (strcmp(rec->channels[i].label, wanted) == 0) {
+            exact = i;
+            n_exact++;
+        } else if (rt_equal_nocase(rec->channels[i].label, wanted)) {
+            folded = i;
+            n_folded++;
+        }
+    }
+    if (n_exact > 0)
+        return n_exact == 1 ? exact : RT_CHANNEL_AMBIGUOUS;
+    if (n_folded > 0)
+        return n_folded == 1 ? folded : RT_CHANNEL_AMBIGUOUS;
+    if (wanted[0] == '#' && wanted[1] >= '1' && wanted[1] <= '9') {
+        char *end = NULL;
+        long k = strtol(wanted + 1, &end, 10);
+        if (*end == '\0' && k >= 1 && k <= rec->n_channels)
+            return (int)(k - 1);
+    }
+    return RT_CHANNEL_NONE;
 }
 
 const rt_annotation *rt_recording_annotation(const rt_recording *rec, size_t index)

@@ -42,7 +42,7 @@ json_t *rt_agreement_json(const rt_agreement *a)
     json_object_set_new(o, "present", json_boolean(a && a->present));
     if (!a || !a->present)
         return o;
-    json_object_set_new(o, "scorer", json_string(a->scorer));
+    json_object_set_new(o, "scorer", rt_json_text(a->scorer));
     json_object_set_new(o, "unit", json_string("3-s mini-epoch"));
     json_t *roles = json_object();
     for (int r = 0; r < RT_ROLE_COUNT; r++) {

@@ -43,7 +43,7 @@ static json_t *indices_json(const rt_night *night)
         json_object_set_new(x, "numerator", json_integer((json_int_t)v->numerator));
         json_object_set_new(x, "denominator", json_integer((json_int_t)v->denominator));
         if (v->reason[0])
-            json_object_set_new(x, "reason", json_string(v->reason));
+            json_object_set_new(x, "reason", rt_json_text(v->reason));
         json_object_set_new(o, rules[i].id, x);
     }
     return o;
@@ -81,7 +81,7 @@ static json_t *channels_json(const rt_night *night)
             continue;
         json_t *x = json_object();
         json_object_set_new(x, "role", json_string(rt_role_name((rt_role)r)));
-        json_object_set_new(x, "label", json_string(c->label));
+        json_object_set_new(x, "label", rt_json_text(c->label));
         json_object_set_new(x, "rate_hz", json_real(c->rate_hz));
         json_object_set_new(x, "band_hz", json_pack("[ff]", night->params.band_low_hz,
                                                      c->band_high_hz));
@@ -105,7 +105,7 @@ static json_t *strings_json(const char (*items)[240], size_t n)
 {
     json_t *a = json_array();
     for (size_t i = 0; i < n; i++)
-        json_array_append_new(a, json_string(items[i]));
+        json_array_append_new(a, rt_json_text(items[i]));
     return a;
 }
 
@@ -187,9 +187,9 @@ static rt_status provenance_json(const rt_night *night, const rt_run_inputs *in,
     struct tm tm;
     gmtime_r(&now, &tm);
     strftime(when, sizeof when, "%Y-%m-%dT%H:%M:%SZ", &tm);
-    *out = json_pack("{s:s,s:s,s:o,s:s,s:o}", "tool", "remtone", "version", rt_version(),
+    *out = json_pack("{s:s,s:s,s:o,s:o,s:o}", "tool", "remtone", "version", rt_version(),
                      "parameters", params_json(&night->params), "cutoffs",
-                     night->cutoffs.origin, "inputs", inputs);
+                     rt_json_text(night->cutoffs.origin), "inputs", inputs);
     json_object_set_new(*out, "run_at", json_string(when));
     return RT_OK;
 }

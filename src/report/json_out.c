@@ -3,6 +3,9 @@
 #include "internal.h"
 #include "output.h"
 #include "report_internal.h"
+#include "text.h"
+
+#include <stdlib.h>
 
 rt_status rt_json_write(json_t *root, const char *path, size_t flags, rt_error *err)
 {
@@ -17,6 +20,14 @@ rt_status rt_json_write(json_t *root, const char *path, size_t flags, rt_error *
     return rt_output_commit(&out, err);
 }
 
+json_t *rt_json_text(const char *text)
+{
+    char *clean = rt_utf8_clean(text, false);
+    json_t *s = clean ? json_string(clean) : NULL;
+    free(clean);
+    return s;
+}
+
 json_t *rt_file_identity_json(const char *path, bool with_path, rt_error *err)
 {
     long long size = 0;
@@ -25,7 +36,7 @@ json_t *rt_file_identity_json(const char *path, bool with_path, rt_error *err)
         return NULL;
     json_t *o = json_object();
     if (with_path)
-        json_object_set_new(o, "path", json_string(path));
+        json_object_set_new(o, "path", rt_json_text(path));
     json_object_set_new(o, "bytes", json_integer((json_int_t)size));
     json_object_set_new(o, "xxh3", json_string(hex));
     return o;

@@ -2,39 +2,18 @@
  * present, with the levels and labels the indices are counted from, so that a
  * reviewer (or a spreadsheet) can recount every 3-s index of the night.
  * Columns and meanings: docs/review-report.md. Channel labels come from the
- * recording header, which is untrusted: fields are quoted as RFC 4180 says
- * and a value that a spreadsheet would run as a formula gets a leading
- * apostrophe. Written atomically. */
+ * recording header, which is untrusted: fields go through rt_csv_put_field
+ * (src/common/text.h: valid UTF-8, RFC 4180 quoting, formulas defused).
+ * Written atomically. */
 #include <math.h>
 #include <stdio.h>
 #include <string.h>
 
 #include "internal.h"
 #include "output.h"
+#include "text.h"
 #include "remtone/report.h"
 #include "svg.h"
-
-/* Writes one text field: formula-looking values are defused (a leading =, +,
- * -, @, tab or carriage return, the triggers spreadsheet programs act on,
- * common practice), then the field is quoted when it holds a comma, quote or
- * line break, doubling inner quotes (RFC 4180). */
-static void put_field(FILE *f, const char *s)
-{
-    bool formula = s[0] == '=' || s[0] == '+' || s[0] == '-' || s[0] == '@' || s[0] == '\t' ||
-                   s[0] == '\r';
-    bool quote = strpbrk(s, ",\"\r\n") != NULL;
-    if (quote)
-        fputc('"', f);
-    if (formula)
-        fputc('\'', f);
-    for (const char *c = s; *c; c++) {
-        if (*c == '"')
-            fputc('"', f);
-        fputc(*c, f);
-    }
-    if (quote)
-        fputc('"', f);
-}
 
 /* Event names that left this mini-epoch out, joined by '+'; "unscorable" when
  * the channel is marked excluded without a recorded event. Empty when scored. */
@@ -68,10 +47,11 @@ rt_status rt_night_write_minis_csv(const rt_night *night, const rt_recording *re
     if (st != RT_OK)
         return st;
     FILE *f = out.file;
+    int no_memory = 0;
     rt_clock_time start = rt_recording_start(rec);
     fprintf(f, "epoch,mini,clock_time,elapsed_s,stage,role,label,envelope_uv,background_uv,"
                "aasm_phasic,sinbar_phasic,sinbar_tonic,sinbar_any,excluded_by\n");
-    for (size_t i = 0; i < night->n_minis3 && !ferror(f); i++) {
+    for (size_t i = 0; i < night->n_minis3 && !ferror(f) && !no_memory; i++) {
         const rt_mini *m = &night->minis3[i];
         char clock[16], excl[160];
         rt_report_clock(&start, m->onset_s, clock, sizeof clock);
@@ -81,7 +61,7 @@ rt_status rt_night_write_minis_csv(const rt_night *night, const rt_recording *re
             unsigned char l = m->labels[r];
             fprintf(f, "%zu,%d,%s,%.3f,R,%s,", m->epoch, m->index, clock, m->onset_s,
                     rt_role_name((rt_role)r));
-            put_field(f, night->channel[r].label);
+            no_memory |= rt_csv_put_field(f, night->channel[r].label);
             fputc(',', f);
             put_level(f, m->envelope_uv[r]);
             fputc(',', f);
@@ -89,13 +69,14 @@ rt_status rt_night_write_minis_csv(const rt_night *night, const rt_recording *re
             excluded_text(m, (rt_role)r, excl, sizeof excl);
             fprintf(f, ",%d,%d,%d,%d,", bit(l, RT_LABEL_AASM_PHASIC), bit(l, RT_LABEL_SINBAR_PHASIC),
                     bit(l, RT_LABEL_SINBAR_TONIC), bit(l, RT_LABEL_SINBAR_ANY));
-            put_field(f, excl);
+            no_memory |= rt_csv_put_field(f, excl);
             fputc('\n', f);
         }
     }
-    if (ferror(f)) {
+    if (ferror(f) || no_memory) {
         rt_output_abort(&out);
-        return rt_fail(err, RT_ERR_IO, "%s: cannot write the mini-epoch table", path);
+        return no_memory ? rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", path)
+                         : rt_fail(err, RT_ERR_IO, "%s: cannot write the mini-epoch table", path);
     }
     return rt_output_commit(&out, err);
 }

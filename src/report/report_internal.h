@@ -14,6 +14,13 @@
  * flags are extra jansson dump flags. Does not take ownership of root. */
 rt_status rt_json_write(json_t *root, const char *path, size_t flags, rt_error *err);
 
+/* A JSON string of text made valid UTF-8 (rt_utf8_clean, src/common/text.h):
+ * every text that comes from a file, a path or an error message goes through
+ * this, never json_string, which refuses invalid UTF-8 and so would drop the
+ * field or the whole document. NULL text gives "". NULL only when out of
+ * memory. */
+json_t *rt_json_text(const char *text);
+
 /* {"path": path (when with_path), "bytes": size, "xxh3": digest} of a file,
  * for provenance and resumable runs; NULL with err filled on failure. */
 json_t *rt_file_identity_json(const char *path, bool with_path, rt_error *err);

@@ -1,6 +1,7 @@
 /* XHTML and SVG through xmlTextWriter, UTF-8 cleaning of untrusted text, and
  * the time and ranking helpers the review page and its companions share. */
 #include "svg.h"
+#include "text.h"
 
 #include <math.h>
 #include <stdarg.h>
@@ -12,61 +13,9 @@
 
 static const xmlChar *X(const char *s) { return (const xmlChar *)s; }
 
-/* Length of the valid UTF-8 sequence at s (1..4), or 0 when it is not one
- * (overlong forms, surrogates and values past U+10FFFF are not). */
-static size_t utf8_sequence(const unsigned char *s, unsigned *code)
-{
-    unsigned c = s[0];
-    size_t len;
-    unsigned min;
-    if (c < 0x80) {
-        *code = c;
-        return 1;
-    }
-    if ((c & 0xE0) == 0xC0) { len = 2; min = 0x80; c &= 0x1F; }
-    else if ((c & 0xF0) == 0xE0) { len = 3; min = 0x800; c &= 0x0F; }
-    else if ((c & 0xF8) == 0xF0) { len = 4; min = 0x10000; c &= 0x07; }
-    else return 0;
-    for (size_t i = 1; i < len; i++) {
-        if ((s[i] & 0xC0) != 0x80)
-            return 0;
-        c = (c << 6) | (s[i] & 0x3F);
-    }
-    if (c < min || c > 0x10FFFF || (c >= 0xD800 && c <= 0xDFFF))
-        return 0;
-    *code = c;
-    return len;
-}
-
 char *rt_xml_clean_text(const char *text)
 {
-    if (!text)
-        text = "";
-    size_t n = strlen(text);
-    /* each input byte becomes at most 3 output bytes (U+FFFD) */
-    char *out = rt_calloc(3 * n + 1, 1);
-    if (!out)
-        return NULL;
-    const unsigned char *s = (const unsigned char *)text;
-    size_t o = 0;
-    while (*s) {
-        unsigned code = 0;
-        size_t len = utf8_sequence(s, &code);
-        if (len == 0 || code == 0xFFFE || code == 0xFFFF) {
-            memcpy(out + o, "\xEF\xBF\xBD", 3);
-            o += 3;
-            s += len ? len : 1;
-        } else if (code < 0x20 && code != '\t' && code != '\n') {
-            out[o++] = ' ';
-            s++;
-        } else {
-            memcpy(out + o, s, len);
-            o += len;
-            s += len;
-        }
-    }
-    out[o] = '\0';
-    return out;
+    return rt_utf8_clean(text, true);
 }
 
 static void check(rt_page *p, int rc)

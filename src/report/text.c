@@ -216,10 +216,11 @@ rt_status rt_scan_write_json(const rt_recording *rec, const rt_role_map *roles,
     for (int i = 0; i < rt_recording_channel_count(rec); i++) {
         const rt_channel_info *ch = rt_recording_channel(rec, i);
         const char *role = role_of(roles, i);
-        json_array_append_new(chans, json_pack("{s:s,s:f,s:s,s:f,s:f,s:s,s:s*}", "label", ch->label,
-                                               "rate_hz", ch->rate_hz, "unit", ch->unit,
+        json_array_append_new(chans, json_pack("{s:o,s:f,s:o,s:f,s:f,s:o,s:s*}", "label",
+                                               rt_json_text(ch->label), "rate_hz", ch->rate_hz,
+                                               "unit", rt_json_text(ch->unit),
                                                "physical_min", ch->phys_min, "physical_max",
-                                               ch->phys_max, "transducer", ch->transducer, "role",
+                                               ch->phys_max, "transducer", rt_json_text(ch->transducer), "role",
                                                role[0] ? role : NULL));
     }
     json_object_set_new(root, "channels", chans);
@@ -227,7 +228,7 @@ rt_status rt_scan_write_json(const rt_recording *rec, const rt_role_map *roles,
     json_t *map = json_object();
     for (int r = 0; r < RT_ROLE_COUNT; r++)
         json_object_set_new(map, rt_role_name((rt_role)r),
-                            roles->role[r].channel >= 0 ? json_string(roles->role[r].label)
+                            roles->role[r].channel >= 0 ? rt_json_text(roles->role[r].label)
                                                         : json_null());
     json_object_set_new(root, "roles", map);
     if (quality) {

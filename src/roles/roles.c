@@ -12,6 +12,7 @@
 #include "remtone/roles.h"
 
 #include <ctype.h>
+#include <math.h>
 #include <stdio.h>
 #include <string.h>
 
@@ -223,7 +224,8 @@ static void list_channels(const rt_recording *rec, char *out, size_t cap)
     out[0] = '\0';
     for (int i = 0; i < rt_recording_channel_count(rec); i++) {
         size_t n = strlen(out);
-        snprintf(out + n, cap - n, "%s\"%s\"", i ? ", " : "", rt_recording_channel(rec, i)->label);
+        snprintf(out + n, cap - n, "%s\"%s\" (#%d)", i ? ", " : "", rt_recording_channel(rec, i)->label,
+                 i + 1);
     }
 }
 
@@ -281,6 +283,22 @@ static rt_status resolve_override(const rt_recording *rec, rt_role role, const c
         set_single(rec, channel, false, src);
         return RT_OK;
     }
+    if (channel == RT_CHANNEL_AMBIGUOUS) {
+        char names[700] = "";
+        int last = 0;
+        for (int i = 0; i < rt_recording_channel_count(rec); i++)
+            if (rt_equal_nocase(rt_recording_channel(rec, i)->label, text)) {
+                size_t n = strlen(names);
+                snprintf(names + n, sizeof names - n, "%s\"%s\" (#%d)", names[0] ? ", " : "",
+                         rt_recording_channel(rec, i)->label, i + 1);
+                last = i + 1;
+            }
+        return rt_fail(err, RT_ERR_CHANNEL,
+                       "%s: --%s \"%s\": several channels have this label (%s); choose one by "
+                       "its number, counted from 1, e.g. --%s '#%d'",
+                       rt_recording_path(rec), rt_role_name(role), text, names, rt_role_name(role),
+                       last);
+    }
     int a, b;
     if (find_pair(rec, text, &a, &b))
         return set_pair(rec, role, a, b, src, err);
@@ -288,7 +306,7 @@ static rt_status resolve_override(const rt_recording *rec, rt_role role, const c
     list_channels(rec, names, sizeof names);
     return rt_fail(err, RT_ERR_CHANNEL,
                    "%s: --%s \"%s\": no channel has this label, and it is not A-B of two labels "
-                   "(channels: %s)",
+                   "(channels: %s; a channel whose label repeats is named by number, '#N')",
                    rt_recording_path(rec), rt_role_name(role), text, names);
 }
 
@@ -308,6 +326,17 @@ static bool is_single_electrode(const char *label)
     return words == 1 && digit;
 }
 
+/* How an override names channel i: its label when that names it alone
+ * (rt_recording_find_channel), else its number "#N". */
+static void channel_name(const rt_recording *rec, int i, char *out, size_t cap)
+{
+    const char *label = rt_recording_channel(rec, i)->label;
+    if (rt_recording_find_channel(rec, label) == i)
+        snprintf(out, cap, "%s", label);
+    else
+        snprintf(out, cap, "'#%d'", i + 1);
+}
+
 static rt_status fail_ambiguous(const rt_recording *rec, rt_role role, const int *found, int n,
                                 rt_error *err)
 {
@@ -316,17 +345,23 @@ static rt_status fail_ambiguous(const rt_recording *rec, rt_role role, const int
     for (int i = 0; i < n; i++) {
         const char *label = rt_recording_channel(rec, found[i])->label;
         size_t len = strlen(names);
-        snprintf(names + len, sizeof names - len, "%s\"%s\"", i == 0 ? "" : i == n - 1 ? " and " : ", ",
-                 label);
+        snprintf(names + len, sizeof names - len, "%s\"%s\" (#%d)",
+                 i == 0 ? "" : i == n - 1 ? " and " : ", ", label, found[i] + 1);
         electrodes = electrodes && is_single_electrode(label);
     }
     const char *path = rt_recording_path(rec), *name = rt_role_name(role);
+    char first[80], second[80];
+    channel_name(rec, found[0], first, sizeof first);
+    channel_name(rec, found[1], second, sizeof second);
     if (electrodes)
         return rt_fail(err, RT_ERR_CHANNEL,
                        "%s: channels %s are separate chin electrodes; choose a derivation with "
-                       "--chin %s-%s (or one channel with --chin LABEL)",
-                       path, names, rt_recording_channel(rec, found[0])->label,
-                       rt_recording_channel(rec, found[1])->label);
+                       "--chin %s-%s (or one channel with --chin %s)",
+                       path, names, first, second, first);
+    /* a label that repeats names no channel: then only a number chooses */
+    if (first[0] == '\'')
+        return rt_fail(err, RT_ERR_CHANNEL, "%s: channels %s all look like the %s; choose one by "
+                       "its number, counted from 1: --%s %s", path, names, name, name, first);
     return rt_fail(err, RT_ERR_CHANNEL, "%s: channels %s all look like the %s; choose one with --%s LABEL",
                    path, names, name, name);
 }
@@ -359,12 +394,37 @@ static rt_status check_voltage(const rt_recording *rec, rt_role role, int channe
                    rt_recording_path(rec), ch->label, rt_role_name(role), ch->unit, rt_role_name(role));
 }
 
+/* Surface EMG stays far below 100 mV, and amplifiers' input ranges with it
+ * (common practice: a few mV at most); a channel whose header allows more
+ * cannot hold EMG in the unit it claims, so it is refused rather than scored
+ * (with +-1e100 uV every sample quantises to a huge step, and the night would
+ * score as all tonic). */
+#define EMG_RANGE_MAX_UV 1e5
+
+static rt_status check_range(const rt_recording *rec, rt_role role, int channel, rt_error *err)
+{
+    const rt_channel_info *ch = rt_recording_channel(rec, channel);
+    double most_uv = fmax(fabs(ch->phys_min), fabs(ch->phys_max)) * ch->uv_per_unit;
+    if (most_uv <= EMG_RANGE_MAX_UV)
+        return RT_OK;
+    return rt_fail(err, RT_ERR_CHANNEL,
+                   "%s: channel \"%s\" (%s) has physical range %g..%g %s, implausible for EMG "
+                   "(more than +-100 mV); fix the header or choose another channel with --%s",
+                   rt_recording_path(rec), ch->label, rt_role_name(role), ch->phys_min, ch->phys_max,
+                   ch->unit, rt_role_name(role));
+}
+
 static rt_status check_role_unit(const rt_recording *rec, rt_role role, const rt_role_source *src,
                                  bool allow_any_unit, rt_error *err)
 {
-    if (allow_any_unit || role == RT_ROLE_ECG || src->channel < 0)
+    if (role == RT_ROLE_ECG || src->channel < 0)
         return RT_OK;
-    rt_status s = check_voltage(rec, role, src->channel, err);
+    rt_status s = check_range(rec, role, src->channel, err);
+    if (s == RT_OK && src->reference >= 0)
+        s = check_range(rec, role, src->reference, err);
+    if (s != RT_OK || allow_any_unit)
+        return s;
+    s = check_voltage(rec, role, src->channel, err);
     if (s == RT_OK && src->reference >= 0)
         s = check_voltage(rec, role, src->reference, err);
     return s;

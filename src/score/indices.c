@@ -228,12 +228,25 @@ static size_t mini_holding(const rt_mini *m, size_t count, double len_s, double 
     return lo < count && m[lo].onset_s <= t_s ? lo : count;
 }
 
-static double leg_movements_per_h(const rt_night *night, size_t *count)
+/* REM 3-s mini-epochs in which a leg movement could be counted: a leg
+ * channel present and not excluded there. The denominator of the rate. */
+static size_t leg_scorable_minis(const rt_night *night)
+{
+    size_t n = 0;
+    for (size_t i = 0; i < night->n_minis3; i++)
+        for (int r = RT_ROLE_LEG_LEFT; r <= RT_ROLE_LEG_RIGHT; r++)
+            if (night->channel[r].present &&
+                !(night->minis3[i].labels[r] & (RT_LABEL_EXCLUDED | RT_LABEL_ABSENT))) {
+                n++;
+                break;
+            }
+    return n;
+}
+
+/* Movements per hour of leg-scorable REM (minutes > 0); NaN out of memory. */
+static double leg_movements_per_h(const rt_night *night, size_t *count, double minutes)
 {
     *count = 0;
-    if ((!night->channel[RT_ROLE_LEG_LEFT].present && !night->channel[RT_ROLE_LEG_RIGHT].present) ||
-        night->rem_minutes <= 0)
-        return NAN;
     const rt_score_params *p = &night->params;
     leg_move *mv = rt_calloc(night->n_bursts + 1, sizeof *mv);
     if (!mv)
@@ -288,7 +301,7 @@ static double leg_movements_per_h(const rt_night *night, size_t *count)
             }
     }
     free(mv);
-    return (double)*count / (night->rem_minutes / 60.0);
+    return (double)*count / (minutes / 60.0);
 }
 
 /* REM minutes left out, each mini-epoch counted once for its first cause;
@@ -311,21 +324,49 @@ static void summarise_exclusions(rt_night *night)
                 break;
             }
     }
+    /* a rate per hour needs as much REM as an assessable night (the least
+     * scorable REM, min_scorable_min): over one 30-s epoch, 4 movements
+     * would read 480/h */
     rt_index_value *lm = &night->index[RT_IX_MONTREAL_LM_PER_H];
-    lm->value = x->rem_leg_movements_per_h;
-    if (isnan(lm->value)) {
+    const double least_min = night->params.min_scorable_min;
+    const bool legs = night->channel[RT_ROLE_LEG_LEFT].present ||
+                      night->channel[RT_ROLE_LEG_RIGHT].present;
+    char why[sizeof lm->reason];
+    size_t minis = legs ? leg_scorable_minis(night) : 0;
+    double minutes = (double)minis * 3.0 / 60.0;
+    if (night->rem_minutes <= 0) {
+        not_computed(lm, "no REM epochs");
+    } else if (!isnan(x->rem_leg_movements_per_h)) {
+        if (night->rem_minutes < least_min) {
+            snprintf(why, sizeof why, "only %.1f min of REM; a rate per hour needs at least %.1f min",
+                     night->rem_minutes, least_min);
+            not_computed(lm, why);
+        } else {
+            lm->value = x->rem_leg_movements_per_h;
+            lm->status = RT_STATUS_NO_CUTOFF;
+        }
+    } else if (!legs) {
+        not_computed(lm, "no limb-movement events were given and no leg EMG channel");
+    } else if (minis == 0) {
+        not_computed(lm, "no limb-movement events were given, and every REM mini-epoch is "
+                         "excluded for the leg EMG");
+    } else if (minutes < least_min) {
+        snprintf(why, sizeof why, "only %.1f min of REM with scorable leg EMG; a rate per hour "
+                 "needs at least %.1f min", minutes, least_min);
+        not_computed(lm, why);
+    } else {
         size_t count = 0;
-        lm->value = leg_movements_per_h(night, &count);
+        lm->value = leg_movements_per_h(night, &count, minutes);
         lm->numerator = count;
-        if (!isnan(lm->value))
-            rt_copy_string(lm->reason, sizeof lm->reason,
-                           "counted from the leg EMG by the AASM limb-movement rules: 0.5-10 s, "
-                           "8 uV above the background, legs with onsets under 5 s apart once");
-    }
-    lm->status = isnan(lm->value) ? RT_STATUS_NOT_COMPUTED : RT_STATUS_NO_CUTOFF;
-    if (isnan(lm->value))
+        lm->denominator = minis;
+        lm->status = isnan(lm->value) ? RT_STATUS_NOT_COMPUTED : RT_STATUS_NO_CUTOFF;
         rt_copy_string(lm->reason, sizeof lm->reason,
-                       "no limb-movement events were given and no leg EMG channel");
+                       isnan(lm->value) ? "out of memory"
+                                        : "counted from the leg EMG by the AASM limb-movement "
+                                          "rules: 0.5-10 s, 8 uV above the background, legs with "
+                                          "onsets under 5 s apart once; per hour of REM with "
+                                          "scorable leg EMG");
+    }
 }
 
 static void apply_missing(rt_night *night, bool arms)

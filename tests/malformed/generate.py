@@ -63,6 +63,7 @@ def main(out):
         "phys-min-equals-max.edf": patch(patch(g, sig_offset(ns, 3, 0), "100", 8), sig_offset(ns, 4, 0), "100", 8),
         "digital-range-edf.edf": patch(g, sig_offset(ns, 6, 0), "40000", 8),
         "unit-not-voltage.edf": good(unit="degC"),
+        "absurd-range.edf": good(phys=(-1e100, 1e100)),
         "non-ascii-header.edf": patch(g, 8, b"Jos\xe9 X X X", 80),
         "discontinuous.edf": patch(g, 192, "EDF+D", 44),
         "trailing-bytes.edf": g + b"\x00" * 17,

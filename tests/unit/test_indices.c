@@ -255,11 +255,12 @@ typedef struct leg_burst {
     double onset_s, duration_s, rise_uv;
 } leg_burst;
 
-static size_t leg_movements(const leg_burst *b, size_t nb)
+/* ne REM epochs (at most 20) with both legs present and scorable, the given
+ * bursts; summarised. */
+static rt_night *leg_night(size_t ne, const leg_burst *b, size_t nb)
 {
-    const size_t ne = 10;
     rt_night *n = arm_night(0, 0);
-    n->n_epochs = ne; /* the first ten of the twenty */
+    n->n_epochs = ne; /* the first ne of the twenty */
     n->n_minis3 = 10 * ne;
     n->n_minis2 = 15 * ne;
     n->channel[RT_ROLE_LEG_LEFT].present = n->channel[RT_ROLE_LEG_RIGHT].present = true;
@@ -276,8 +277,15 @@ static size_t leg_movements(const leg_burst *b, size_t nb)
         n->bursts[i] = (rt_burst){b[i].leg, b[i].onset_s, b[i].duration_s,
                                   1.0 + b[i].rise_uv / 2.0, RT_LABEL_MONTREAL_PHASIC};
     summarise(n);
+    return n;
+}
+
+static size_t leg_movements(const leg_burst *b, size_t nb)
+{
+    rt_night *n = leg_night(10, b, nb);
     const rt_index_value *lm = &n->index[RT_IX_MONTREAL_LM_PER_H];
     size_t count = lm->numerator;
+    assert_int_equal(lm->denominator, 100); /* 100 leg-scorable 3-s mini-epochs */
     /* per hour of REM: 5 min of REM */
     assert_true(fabs(lm->value - (double)count * 12.0) < 1e-9);
     rt_night_free(n);
@@ -322,6 +330,44 @@ static char *summary_text(const rt_night *n)
     return buf;
 }
 
+/* A rate per hour over no REM, over REM entirely excluded for the legs, or
+ * over less REM than an assessable night needs (min_scorable_min, default
+ * 5 min) is not computed, with that reason; never 0/0 or 4 movements in one
+ * epoch read as 480/h (common practice: a rate needs a denominator). */
+static void leg_rate_needs_a_denominator(void **state)
+{
+    (void)state;
+    const rt_role L = RT_ROLE_LEG_LEFT;
+    const leg_burst four[] = {{L, 1.0, 1.0, 9.0}, {L, 8.0, 1.0, 9.0}, {L, 15.0, 1.0, 9.0},
+                              {L, 22.0, 1.0, 9.0}};
+    rt_night *n = leg_night(1, four, 4);
+    const rt_index_value *lm = &n->index[RT_IX_MONTREAL_LM_PER_H];
+    assert_int_equal(lm->status, RT_STATUS_NOT_COMPUTED);
+    assert_true(isnan(lm->value));
+    assert_non_null(strstr(lm->reason, "only 0.5 min of REM"));
+    rt_night_free(n);
+
+    n = leg_night(0, NULL, 0);
+    lm = &n->index[RT_IX_MONTREAL_LM_PER_H];
+    assert_int_equal(lm->status, RT_STATUS_NOT_COMPUTED);
+    assert_string_equal(lm->reason, "no REM epochs");
+    rt_night_free(n);
+
+    n = leg_night(10, four, 4);
+    for (size_t k = 0; k < n->n_minis3; k++)
+        n->minis3[k].labels[RT_ROLE_LEG_LEFT] = n->minis3[k].labels[RT_ROLE_LEG_RIGHT] =
+            RT_LABEL_EXCLUDED;
+    for (size_t k = 0; k < n->n_minis2; k++)
+        n->minis2[k].labels[RT_ROLE_LEG_LEFT] = n->minis2[k].labels[RT_ROLE_LEG_RIGHT] =
+            RT_LABEL_EXCLUDED;
+    summarise(n);
+    lm = &n->index[RT_IX_MONTREAL_LM_PER_H];
+    assert_int_equal(lm->status, RT_STATUS_NOT_COMPUTED);
+    assert_true(isnan(lm->value));
+    assert_non_null(strstr(lm->reason, "excluded for the leg EMG"));
+    rt_night_free(n);
+}
+
 static void ecg_wording(void **state)
 {
     (void)state;
@@ -354,6 +400,7 @@ int main(void)
         cmocka_unit_test(sinbar_30s_five_of_ten),
         cmocka_unit_test(unverified_cutoff_is_context),
         cmocka_unit_test(leg_movement_boundaries),
+        cmocka_unit_test(leg_rate_needs_a_denominator),
         cmocka_unit_test(ecg_wording),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);

@@ -209,6 +209,8 @@ static void plain_edf_channels_and_units(void **state)
     assert_string_equal(rt_recording_recording_text(rec), "Night 1 lab B");
     assert_int_equal(rt_recording_find_channel(rec, " leg r "), 1);
     assert_int_equal(rt_recording_find_channel(rec, "Leg"), -1);
+    assert_int_equal(rt_recording_find_channel(rec, "#2"), 1); /* channel 2 counted from 1 */
+    assert_int_equal(rt_recording_find_channel(rec, "#4"), RT_CHANNEL_NONE);
     assert_null(rt_recording_channel(rec, 3));
     assert_null(rt_recording_channel(rec, -1));
     rt_recording_close(rec);

@@ -136,14 +136,14 @@ static void three_chin_electrodes_are_ambiguous(void **state)
     rt_role_map map;
     rt_error err;
     assert_int_equal(rt_roles_resolve(rec, NULL, &map, &err), RT_ERR_CHANNEL);
-    assert_non_null(strstr(err.message, "\"Chin1\", \"Chin2\" and \"Chin3\""));
+    assert_non_null(strstr(err.message, "\"Chin1\" (#2), \"Chin2\" (#3) and \"Chin3\" (#4)"));
     assert_non_null(strstr(err.message, "--chin Chin1-Chin2"));
     rt_recording_close(rec);
 
     const chan two[] = {{"Chin", "uV", 256}, {"EMG submental", "uV", 256}};
     rec = open_channels("roles_two", two, 2);
     assert_int_equal(rt_roles_resolve(rec, NULL, &map, &err), RT_ERR_CHANNEL);
-    assert_non_null(strstr(err.message, "\"Chin\" and \"EMG submental\""));
+    assert_non_null(strstr(err.message, "\"Chin\" (#1) and \"EMG submental\" (#2)"));
     assert_non_null(strstr(err.message, "--chin LABEL"));
     rt_recording_close(rec);
 }
@@ -201,7 +201,14 @@ static void override_by_label(void **state)
     opt.override[RT_ROLE_ARM_LEFT] = "FDS L";
     assert_int_equal(rt_roles_resolve(rec, &opt, &map, &err), RT_ERR_CHANNEL);
     assert_non_null(strstr(err.message, "--arm-left \"FDS L\""));
-    assert_non_null(strstr(err.message, "\"Chin1-Chin2\", \"Chin1\", \"Chin2\""));
+    assert_non_null(strstr(err.message, "\"Chin1-Chin2\" (#1), \"Chin1\" (#2), \"Chin2\" (#3)"));
+    /* '#N' names channel N counted from 1 (docs/recording.md, "Overrides") */
+    opt.override[RT_ROLE_ARM_LEFT] = NULL;
+    opt.override[RT_ROLE_CHIN] = "#3";
+    assert_int_equal(rt_roles_resolve(rec, &opt, &map, &err), RT_OK);
+    assert_int_equal(map.role[RT_ROLE_CHIN].channel, 2);
+    opt.override[RT_ROLE_CHIN] = "#4";
+    assert_int_equal(rt_roles_resolve(rec, &opt, &map, &err), RT_ERR_CHANNEL);
     rt_recording_close(rec);
 }
 

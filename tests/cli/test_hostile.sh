@@ -1,0 +1,118 @@
+#!/usr/bin/env bash
+# Hostile inputs beyond the malformed corpus (docs/hardening.md, "Classes of
+# hostile input"): text that is not UTF-8 on its way to JSON, CSV and HTML;
+# outputs over inputs and over each other; channel labels that differ only in
+# case or repeat; implausible physical ranges; indices over empty
+# denominators. Recordings are written here with tests/malformed/edf_writer.py.
+set -u
+bin=${REMTONE_BIN:?}
+src=${REMTONE_SOURCE:?}
+py=/usr/bin/python3
+work="${REMTONE_TMP:-/tmp}/hostile"
+rm -rf "$work" && mkdir -p "$work"
+cd "$work" || exit 1
+fails=0
+ok() { echo "ok   $1"; }
+bad() { echo "FAIL $1"; fails=$((fails+1)); }
+expect() { # expect NAME EXIT CMD... (stdout in $work/out, stderr in $work/err)
+  local name=$1 want=$2; shift 2
+  "$@" >"$work/out" 2>"$work/err"; local got=$?
+  if [ "$got" = "$want" ]; then ok "$name"; else bad "$name: exit $got, want $want"; sed 's/^/    /' "$work/err" | head -5; fi
+}
+has() { if grep -qF -- "$3" "$2"; then ok "$1"; else bad "$1: '$3' not in $2"; sed 's/^/    /' "$2" | head -3; fi; }
+hasnt() { if grep -qF -- "$3" "$2"; then bad "$1: '$3' in $2"; else ok "$1"; fi; }
+
+# edf NAME CHANNELS [ANNOTATIONS]: a 5-minute EDF+ of 1-s records; CHANNELS is a
+# Python list of (label, kind, physical range) with kind "live" (noise) or
+# "flat"; ANNOTATIONS a Python list of (onset_s, duration_s, bytes)
+edf() {
+  "$py" - "$src/tests/malformed" "$@" <<'PY'
+import random, sys
+sys.path.insert(0, sys.argv[1])
+import edf_writer as ew
+name, chans = sys.argv[2], eval(sys.argv[3])
+ann = eval(sys.argv[4]) if len(sys.argv) > 4 else [(0, None, b"Lights off")]
+rng = random.Random(7)
+noise = [rng.randint(-300, 300) for _ in range(4096)]
+def sig(label, kind, phys):
+    v = (lambda r, i: noise[(r * 256 + i) % 4096]) if kind == "live" else (lambda r, i: 0)
+    return ew.Signal(label, 256, phys=phys, value=v)
+open(name, "wb").write(ew.edf_bytes([sig(*c) for c in chans], 300, plus=True, annotations=ann))
+PY
+}
+stages=$src/tests/malformed/good-stages.csv
+live='[("Chin1-Chin2", "live", (-500.0, 500.0))]'
+
+# ---- 1. text that is not UTF-8 reaches JSON, CSV and HTML escaped, never dropped
+edf good.edf "$live" || bad "write good.edf"
+edf bad-stage.edf "$live" '[(0, 30, b"Sleep stage W"), (30, 30, b"Sleep stage R\xff\xfe")]' || bad "write bad-stage.edf"
+mkdir -p c && cp bad-stage.edf good.edf c/
+printf 'id,recording,stages,events,group\nbad,bad-stage.edf,,,case\ngood,good.edf,%s,,control\n' "$stages" > c/manifest.csv
+expect utf8-cohort-runs 0 "$bin" cohort c/manifest.csv --out c/out --jobs 1
+has utf8-cohort-counts "$work/out" "2 nights in cohort.csv (1 scored, 1 failed)"
+[ -s c/out/nights/bad.error.json ] && ok utf8-error-record || bad "utf8-error-record: no nights/bad.error.json"
+expect utf8-cohort-row 0 "$py" -c '
+import csv, json, sys
+rows = {r["id"]: r for r in csv.DictReader(open(sys.argv[1], encoding="utf-8"))}
+assert rows["bad"]["level"] == "failed" and "\ufffd" in rows["bad"]["error"], rows
+e = json.load(open(sys.argv[2], encoding="utf-8"))
+assert "\ufffd" in e["message"] and e["exit_code"] == 5, e' c/out/cohort.csv c/out/nights/bad.error.json
+# a path with a byte that is not UTF-8 stays in the provenance, escaped
+edf "odd-$(printf '\xe9').edf" "$live" || bad "write odd path"
+expect utf8-path-score 0 "$bin" score "odd-$(printf '\xe9').edf" --stages "$stages" --quiet --json odd.json --html odd.html --minis odd.csv
+expect utf8-path-kept 0 "$py" -c '
+import json, sys
+d = json.load(open(sys.argv[1], encoding="utf-8"))
+assert d["provenance"]["inputs"]["recording"]["path"] == "odd-\ufffd.edf", d["provenance"]["inputs"]
+open(sys.argv[2], encoding="utf-8").read(); open(sys.argv[3], encoding="utf-8").read()' odd.json odd.html odd.csv
+
+# ---- 2. a cohort never writes over its own inputs (the manifest, the cutoffs)
+mkdir -p m && cp c/good.edf m/ && printf 'id,recording,stages,events,group\ngood,good.edf,%s,,control\n' "$stages" > m/cohort.csv
+cp m/cohort.csv m/cohort.csv.orig
+expect cohort-manifest-as-output 2 "$bin" cohort m/cohort.csv --out m --jobs 1
+has cohort-manifest-named "$work/err" "is the input file"
+cmp -s m/cohort.csv m/cohort.csv.orig && ok cohort-manifest-kept || bad "cohort-manifest-kept: the manifest was replaced"
+printf 'index,cutoff\nrai,0.8\n' > c/out/calibrated-cutoffs.csv && cp c/out/calibrated-cutoffs.csv cut.orig
+expect cohort-cutoffs-as-output 2 "$bin" cohort c/manifest.csv --out c/out --cutoffs c/out/calibrated-cutoffs.csv --jobs 1
+cmp -s c/out/calibrated-cutoffs.csv cut.orig && ok cohort-cutoffs-kept || bad "cohort-cutoffs-kept: the cutoffs were replaced"
+expect merge-cutoffs-as-output 2 "$bin" cohort-merge c/out --cutoffs c/out/calibrated-cutoffs.csv
+cmp -s c/out/calibrated-cutoffs.csv cut.orig && ok merge-cutoffs-kept || bad "merge-cutoffs-kept: the cutoffs were replaced"
+
+# ---- 3. two outputs of one command never share a destination
+expect outputs-same-file 2 "$bin" score good.edf --stages "$stages" --json same.out --html same.out
+has outputs-same-file-named "$work/err" "--json same.out and --html same.out"
+[ -e same.out ] && bad "outputs-same-file: same.out written" || ok outputs-same-file-nothing-written
+expect outputs-same-file-spelled 2 "$bin" score good.edf --stages "$stages" --minis ./x.csv --annotations ../hostile/x.csv
+expect outputs-both-stdout 2 "$bin" score good.edf --stages "$stages" --json - --html -
+has outputs-both-stdout-named "$work/err" "--json - and --html -"
+[ -s "$work/out" ] && bad "outputs-both-stdout: printed a result" || ok outputs-both-stdout-silent
+touch exists.json && ln -sf exists.json link.json
+expect outputs-same-file-link 2 "$bin" score good.edf --stages "$stages" --json exists.json --minis link.json
+expect outputs-devices-allowed 0 "$bin" score good.edf --stages "$stages" --quiet --json /dev/null --html /dev/null
+
+# ---- 4. a role option takes the channel it names, or none
+edf case.edf '[("Chin", "flat", (-500.0, 500.0)), ("CHIN", "live", (-500.0, 500.0))]' || bad "write case.edf"
+expect chin-exact-label 0 "$bin" score case.edf --stages "$stages" --quiet --chin CHIN --json case.json
+expect chin-exact-label-taken 0 "$py" -c '
+import json, sys
+c = json.load(open(sys.argv[1]))["channels"]
+chin = [x for x in c if x["role"] == "chin"][0]
+assert chin["label"] == "CHIN" and chin["rem_median_uv"] > 0, chin' case.json
+expect chin-case-ambiguous 6 "$bin" score case.edf --stages "$stages" --quiet --chin chin
+has chin-case-ambiguous-says "$work/err" "--chin '#"
+edf dup.edf '[("Chin", "flat", (-500.0, 500.0)), ("Chin", "live", (-500.0, 500.0))]' || bad "write dup.edf"
+expect chin-dup-detected 6 "$bin" score dup.edf --stages "$stages" --quiet
+has chin-dup-suggests-number "$work/err" "--chin '#1'"
+expect chin-dup-label 6 "$bin" score dup.edf --stages "$stages" --quiet --chin Chin
+has chin-dup-label-suggests-number "$work/err" "--chin '#2'"
+expect chin-by-number 0 "$bin" score dup.edf --stages "$stages" --quiet --chin '#2' --json dup.json
+expect chin-by-number-taken 0 "$py" -c '
+import json, sys
+c = json.load(open(sys.argv[1]))["channels"]
+chin = [x for x in c if x["role"] == "chin"][0]
+assert chin["label"] == "Chin" and chin["rem_median_uv"] > 0, chin' dup.json
+expect chin-help 0 "$bin" score --help
+has chin-help-number "$work/out" "'#N'"
+
+echo "$fails failed"
+[ "$fails" = 0 ]
