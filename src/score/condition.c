@@ -109,6 +109,13 @@ rt_status rt_conditioner_open(rt_recording *rec, const rt_role_source *src,
     return RT_OK;
 }
 
+rt_status rt_conditioner_copy(const rt_conditioner *from, rt_conditioner *c, rt_error *err)
+{
+    *c = *from;
+    c->bp = rt_bandpass_clone(from->bp, err);
+    return c->bp ? RT_OK : err ? err->status : RT_ERR_NOMEM;
+}
+
 void rt_conditioner_close(rt_conditioner *c)
 {
     if (!c)

@@ -52,6 +52,12 @@ rt_status rt_conditioner_open(rt_recording *rec, const rt_role_source *src,
                               rt_conditioner *c, rt_error *err);
 void rt_conditioner_close(rt_conditioner *c);
 
+/* A copy of an open conditioner for another thread: the same channel, mains
+ * estimate and response, with a band-pass of its own (a filter keeps scratch
+ * buffers), so both condition every stretch to the same samples. Close it
+ * with rt_conditioner_close; on failure nothing is left to free. */
+rt_status rt_conditioner_copy(const rt_conditioner *from, rt_conditioner *c, rt_error *err);
+
 /* Heart beats for a stretch: R peaks from the ECG role when the recording has
  * one, otherwise from the raw chin (Pan & Tompkins 1985), detected over the
  * padded stretch. Times are seconds from the recording start. *source is 0
