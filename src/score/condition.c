@@ -224,9 +224,53 @@ static rt_status remove_ecg(rt_stretch *s, size_t n_padded, double padded_t0_s,
     return st;
 }
 
+/* The marks a caller already has for this stretch. */
+static rt_status known_marks(rt_stretch *s, const rt_stretch_request *req, rt_error *err)
+{
+    rt_status st = grow((void **)&s->marks, &s->marks_cap, req->n_marks + 1, sizeof *s->marks, err);
+    if (st != RT_OK)
+        return st;
+    if (req->n_marks)
+        memcpy(s->marks, req->marks, req->n_marks * sizeof *s->marks);
+    s->n_marks = req->n_marks;
+    return RT_OK;
+}
+
+/* Prefix sums of the rectified stretch and each second's mean. */
+static rt_status rectified_sums(rt_stretch *s, const double *x, rt_error *err)
+{
+    if (s->cum_cap < s->n + 1) {
+        double *cum = realloc(s->rect_cum, (s->n + 1) * sizeof *cum);
+        if (!cum)
+            return rt_fail(err, RT_ERR_NOMEM, "out of memory for %zu samples", s->n + 1);
+        s->rect_cum = cum;
+        s->cum_cap = s->n + 1;
+    }
+    double sum = 0.0;
+    s->rect_cum[0] = 0.0;
+    for (size_t i = 0; i < s->n; i++) {
+        sum += fabs(x[i]);
+        s->rect_cum[i + 1] = sum;
+    }
+    for (size_t j = 0; j < s->seconds; j++) {
+        size_t len = s->starts[j + 1] - s->starts[j];
+        s->rect_mean_uv[j] =
+            len ? (s->rect_cum[s->starts[j + 1]] - s->rect_cum[s->starts[j]]) / (double)len : 0.0;
+    }
+    return RT_OK;
+}
+
 rt_status rt_condition_stretch(const rt_conditioner *c, double t0_s, size_t seconds,
                                const rt_qrs_beats *beats, rt_stretch *s, rt_error *err)
 {
+    return rt_condition_stretch_for(c, t0_s, seconds, beats, NULL, s, err);
+}
+
+rt_status rt_condition_stretch_for(const rt_conditioner *c, double t0_s, size_t seconds,
+                                   const rt_qrs_beats *beats, const rt_stretch_request *req,
+                                   rt_stretch *s, rt_error *err)
+{
+    unsigned need = req ? req->need : RT_STRETCH_ALL;
     double rate = c->src.rate_hz;
     long long first = llround(t0_s * rate), last = llround((t0_s + (double)seconds) * rate);
     long long pf, pl;
@@ -240,7 +284,8 @@ rt_status rt_condition_stretch(const rt_conditioner *c, double t0_s, size_t seco
     if (st == RT_OK)
         st = reserve_seconds(s, seconds, err);
     if (st == RT_OK)
-        st = stretch_marks(c, s, n_padded, (double)off / rate, err);
+        st = req && req->marks ? known_marks(s, req, err)
+                               : stretch_marks(c, s, n_padded, (double)off / rate, err);
     if (st == RT_OK)
         st = rt_bandpass_apply(c->bp, s->buf, n_padded, err);
     if (st == RT_OK)
@@ -249,31 +294,18 @@ rt_status rt_condition_stretch(const rt_conditioner *c, double t0_s, size_t seco
         return st;
     for (size_t j = 0; j <= seconds; j++)
         s->starts[j] = (size_t)(llround((t0_s + (double)j) * rate) - first);
-    if (s->cum_cap < s->n + 1) {
-        double *cum = realloc(s->rect_cum, (s->n + 1) * sizeof *cum);
-        if (!cum)
-            return rt_fail(err, RT_ERR_NOMEM, "out of memory for %zu samples", s->n + 1);
-        s->rect_cum = cum;
-        s->cum_cap = s->n + 1;
-    }
-    const double *x = s->buf + off;
-    double sum = 0.0;
-    s->rect_cum[0] = 0.0;
-    for (size_t i = 0; i < s->n; i++) {
-        sum += fabs(x[i]);
-        s->rect_cum[i + 1] = sum;
-    }
-    for (size_t j = 0; j < seconds; j++) {
-        size_t len = s->starts[j + 1] - s->starts[j];
-        s->rect_mean_uv[j] =
-            len ? (s->rect_cum[s->starts[j + 1]] - s->rect_cum[s->starts[j]]) / (double)len : 0.0;
+    if (need & RT_STRETCH_SUMS) {
+        st = rectified_sums(s, s->buf + off, err);
+        if (st != RT_OK)
+            return st;
     }
     rt_envelope(s->buf, n_padded, c->envelope_window, s->buf, s->scratch);
     s->env = s->buf + off;
     /* a stride of a quarter window: the envelope barely moves in between */
     size_t stride = c->envelope_window / 4 ? c->envelope_window / 4 : 1;
-    rt_block_quantiles(s->env, s->starts, seconds, c->level_quantile, stride, s->level_uv,
-                       s->scratch);
+    if (need & RT_STRETCH_LEVELS)
+        rt_block_quantiles(s->env, s->starts, seconds, c->level_quantile, stride, s->level_uv,
+                           s->scratch);
     return RT_OK;
 }
 

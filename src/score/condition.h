@@ -94,6 +94,27 @@ typedef struct rt_stretch {
  * call with the same arguments gives the same samples, whoever calls it. */
 rt_status rt_condition_stretch(const rt_conditioner *c, double t0_s, size_t seconds,
                                const rt_qrs_beats *beats, rt_stretch *out, rt_error *err);
+
+/* What a caller needs of a stretch besides the envelope, the marks and the
+ * QRS windows, which every stretch has. Leaving a part out leaves its arrays
+ * unset; what is made is the same as rt_condition_stretch makes. */
+enum {
+    RT_STRETCH_LEVELS = 1u << 0, /* level_uv */
+    RT_STRETCH_SUMS = 1u << 1,   /* rect_cum and rect_mean_uv */
+    RT_STRETCH_ALL = RT_STRETCH_LEVELS | RT_STRETCH_SUMS
+};
+
+typedef struct rt_stretch_request {
+    unsigned need;                /* RT_STRETCH_* bits */
+    const rt_quality_mark *marks; /* the marks an earlier call on the same conditioner, t0_s and
+                                     seconds found (its out->marks), or NULL: find them */
+    size_t n_marks;
+} rt_stretch_request;
+
+/* rt_condition_stretch making only what req asks for (NULL: everything). */
+rt_status rt_condition_stretch_for(const rt_conditioner *c, double t0_s, size_t seconds,
+                                   const rt_qrs_beats *beats, const rt_stretch_request *req,
+                                   rt_stretch *out, rt_error *err);
 void rt_stretch_free(rt_stretch *s);
 
 /* True when a quality mark of s overlaps [a_s, b_s) (relative to t0). */

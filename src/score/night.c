@@ -61,6 +61,8 @@ typedef struct marked_minutes {
 typedef struct item_out {
     rt_level_point *points;  /* NREM runs and pass 1: each scorable second's level */
     size_t n_points;
+    rt_quality_mark *marks;  /* pass 1: the stretch's quality marks, which pass 2 reuses */
+    size_t n_marks;
     double *medians;         /* NREM runs of the chin: each unmarked epoch's median envelope */
     size_t n_medians;
     rt_burst *bursts;        /* pass 2 */
@@ -114,6 +116,7 @@ typedef struct pass_ctx {
     worker_ctx *workers;
     unsigned n_workers;
     const item_list *job;    /* the job the pool is running */
+    const item_list *levels; /* pass 1's items, in the order of pass 2's: their marks */
     rt_level_point *points[RT_ROLE_COUNT]; /* pass 1: scorable REM seconds */
     size_t n_points[RT_ROLE_COUNT];
     size_t *bout_first_point[RT_ROLE_COUNT]; /* per bout: its first entry in points, */
@@ -383,26 +386,39 @@ static rt_status append_levels(const rt_stretch *st, rt_level_point **pts, size_
     return RT_OK;
 }
 
-/* Pass 1 for one role of one bout: the level of every scorable second. */
+/* Pass 1 for one role of one bout: the level of every scorable second, and
+ * the quality marks (pass 2 reads the same stretch: they are kept). */
 static rt_status collect_levels(const pass_ctx *c, worker_ctx *w, item_out *o, const item *it,
                                 rt_error *err)
 {
     const bout_span *bout = &c->bouts[it->bout];
-    rt_status st = rt_condition_stretch(&w->cond[it->role], bout->t0, bout->n_epochs * 30,
-                                        &c->beats[it->bout], &w->st, err);
-    return st == RT_OK ? append_levels(&w->st, &o->points, &o->n_points, err) : st;
+    const rt_stretch_request req = {RT_STRETCH_LEVELS, NULL, 0};
+    rt_status st = rt_condition_stretch_for(&w->cond[it->role], bout->t0, bout->n_epochs * 30,
+                                            &c->beats[it->bout], &req, &w->st, err);
+    if (st == RT_OK)
+        st = append_levels(&w->st, &o->points, &o->n_points, err);
+    if (st != RT_OK)
+        return st;
+    o->marks = rt_calloc(w->st.n_marks + 1, sizeof *o->marks);
+    if (!o->marks)
+        return rt_fail(err, RT_ERR_NOMEM, "out of memory for quality marks");
+    if (w->st.n_marks)
+        memcpy(o->marks, w->st.marks, w->st.n_marks * sizeof *o->marks);
+    o->n_marks = w->st.n_marks;
+    return RT_OK;
 }
 
 /* Pass 2 for one role of one bout: quality, bursts, tonic, RAI. */
 static rt_status label_role_bout(const pass_ctx *c, worker_ctx *w, item_out *o, const item *it,
-                                 rt_error *err)
+                                 const item_out *pass1, rt_error *err)
 {
     const rt_score_params *p = &c->night->params;
     rt_role role = it->role;
     const bout_span *bout = &c->bouts[it->bout];
     size_t seconds = bout->n_epochs * 30;
-    rt_status st = rt_condition_stretch(&w->cond[role], bout->t0, seconds, &c->beats[it->bout],
-                                        &w->st, err);
+    const rt_stretch_request req = {RT_STRETCH_SUMS, pass1->marks, pass1->n_marks};
+    rt_status st = rt_condition_stretch_for(&w->cond[role], bout->t0, seconds, &c->beats[it->bout],
+                                            &req, &w->st, err);
     if (st == RT_OK)
         st = apply_marks(c, w, o, role, bout, err);
     if (st == RT_OK)
@@ -442,8 +458,10 @@ static rt_status nrem_run(const pass_ctx *c, worker_ctx *w, item_out *o, const i
                           rt_error *err)
 {
     rt_stretch *st = &w->st;
-    rt_status s = rt_condition_stretch(&w->cond[it->role], (double)it->first_epoch * c->tl->epoch_s,
-                                       it->epochs * 30, NULL, st, err);
+    const rt_stretch_request req = {RT_STRETCH_LEVELS, NULL, 0};
+    rt_status s = rt_condition_stretch_for(&w->cond[it->role],
+                                           (double)it->first_epoch * c->tl->epoch_s,
+                                           it->epochs * 30, NULL, &req, st, err);
     if (s == RT_OK)
         s = append_levels(st, &o->points, &o->n_points, err);
     if (s != RT_OK || it->role != RT_ROLE_CHIN)
@@ -477,8 +495,8 @@ static rt_status run_item(void *ctx, unsigned worker, size_t i, rt_error *err)
     }
     case ITEM_LEVELS:
         return collect_levels(c, w, o, it, err);
-    case ITEM_LABELS:
-        return label_role_bout(c, w, o, it, err);
+    case ITEM_LABELS: /* pass 1's item of this bout and role has the same index */
+        return label_role_bout(c, w, o, it, &c->levels->outs[i], err);
     }
     return rt_fail(err, RT_ERR_INTERNAL, "night.c: unknown item kind %d", (int)it->kind);
 }
@@ -512,6 +530,7 @@ static void item_list_free(item_list *l)
 {
     for (size_t i = 0; l->outs && i < l->n; i++) {
         free(l->outs[i].points);
+        free(l->outs[i].marks);
         free(l->outs[i].medians);
         free(l->outs[i].bursts);
         free(l->outs[i].marked);
@@ -610,7 +629,7 @@ static rt_status gather_levels(const item_list *l, rt_level_point **pts, size_t 
 {
     for (size_t i = 0; i < l->n; i++) {
         const item *it = &l->items[i];
-        const item_out *o = &l->outs[i];
+        item_out *o = &l->outs[i];
         rt_role r = it->role;
         if (first_point)
             first_point[r][it->bout] = n[r];
@@ -623,6 +642,8 @@ static rt_status gather_levels(const item_list *l, rt_level_point **pts, size_t 
         n[r] += o->n_points;
         if (first_point)
             first_point[r][it->bout + 1] = n[r];
+        free(o->points);
+        o->points = NULL;
     }
     return RT_OK;
 }
@@ -998,9 +1019,9 @@ static rt_status score_passes(pass_ctx *c, unsigned threads, rt_error *err)
     if (st == RT_OK)
         st = gather_levels(&levels, c->points, c->n_points, c->bout_first_point, err);
     item_list_free(&nrem_beats);
-    item_list_free(&levels);
     if (st == RT_OK)
         st = fit_backgrounds(c, err);
+    c->levels = &levels;
     if (st == RT_OK && run_job(c, &labels, &f) != RT_OK) {
         st = f.error.status;
         if (err)
@@ -1008,6 +1029,8 @@ static rt_status score_passes(pass_ctx *c, unsigned threads, rt_error *err)
     }
     if (st == RT_OK)
         st = gather_labels(c, &labels, err);
+    c->levels = NULL;
+    item_list_free(&levels);
     item_list_free(&labels);
     return st;
 }
