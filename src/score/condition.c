@@ -8,6 +8,7 @@
 
 #include "detect.h"
 #include "internal.h"
+#include "pages.h"
 
 /* The mains estimate needs a few seconds; 5 minutes of the first REM bout
  * give a stable spectrum at little cost (docs/quality.md). */
@@ -48,11 +49,16 @@ static rt_status grow_pair(double **a, double **b, size_t *cap, size_t need, rt_
     return RT_OK;
 }
 
-/* Reads [first, first + n) of a role, or fails with the reader's message. */
+/* Reads [first, first + n) of a role into *buf (with *scratch for a bipolar
+ * derivation; both grown as pages.h arrays), or fails with the reader's
+ * message. */
 static rt_status read_raw(rt_recording *rec, const rt_role_source *src, long long first, size_t n,
-                          double **buf, double **scratch, size_t *cap, rt_error *err)
+                          double **buf, size_t *buf_cap, double **scratch, size_t *scratch_cap,
+                          rt_error *err)
 {
-    rt_status st = grow_pair(buf, scratch, cap, n + 1, err);
+    rt_status st = rt_pages_reserve(buf, buf_cap, n + 1, err);
+    if (st == RT_OK)
+        st = rt_pages_reserve(scratch, scratch_cap, n + 1, err);
     return st == RT_OK ? rt_role_read_uv(rec, src, first, n, *buf, *scratch, err) : st;
 }
 
@@ -93,12 +99,12 @@ rt_status rt_conditioner_open(rt_recording *rec, const rt_role_source *src,
         long long first = llround(probe_t0_s * src->rate_hz);
         size_t n = (size_t)(llround((probe_t0_s + seconds) * src->rate_hz) - first);
         double *x = NULL, *scratch = NULL;
-        size_t cap = 0;
-        rt_status st = read_raw(rec, src, first, n, &x, &scratch, &cap, err);
+        size_t x_cap = 0, scratch_cap = 0;
+        rt_status st = read_raw(rec, src, first, n, &x, &x_cap, &scratch, &scratch_cap, err);
         if (st == RT_OK)
             st = rt_mains_estimate(x, n, src->rate_hz, spec.low_hz, spec.high_hz, &c->mains, err);
-        free(x);
-        free(scratch);
+        rt_pages_free(x, x_cap);
+        rt_pages_free(scratch, scratch_cap);
         if (st != RT_OK)
             return st;
         rt_mains_apply(&c->mains, &spec);
@@ -140,6 +146,27 @@ static void padded(long long first, long long last, double rate_hz, long long to
 rt_status rt_condition_beats(rt_recording *rec, const rt_role_map *roles, double t0_s,
                              size_t seconds, rt_qrs_beats *beats, int *source, rt_error *err)
 {
+    rt_beats_work work;
+    memset(&work, 0, sizeof work);
+    rt_status st = rt_condition_beats_with(rec, roles, t0_s, seconds, &work, beats, source, err);
+    rt_beats_work_free(&work);
+    return st;
+}
+
+void rt_beats_work_free(rt_beats_work *work)
+{
+    if (!work)
+        return;
+    rt_pages_free(work->x, work->x_cap);
+    rt_pages_free(work->scratch, work->scratch_cap);
+    rt_pages_free(work->detector, work->detector_cap);
+    memset(work, 0, sizeof *work);
+}
+
+rt_status rt_condition_beats_with(rt_recording *rec, const rt_role_map *roles, double t0_s,
+                                  size_t seconds, rt_beats_work *w, rt_qrs_beats *beats,
+                                  int *source, rt_error *err)
+{
     memset(beats, 0, sizeof *beats);
     *source = 0;
     const rt_role_source *ecg = &roles->role[RT_ROLE_ECG];
@@ -153,15 +180,13 @@ rt_status rt_condition_beats(rt_recording *rec, const rt_role_map *roles, double
     long long pf, pl;
     padded(first, last, rate, rt_recording_channel(rec, src->channel)->n_samples, &pf, &pl);
     size_t n = (size_t)(pl - pf);
-    double *x = NULL, *scratch = NULL;
-    size_t cap = 0;
-    rt_status st = read_raw(rec, src, pf, n, &x, &scratch, &cap, err);
+    rt_status st = read_raw(rec, src, pf, n, &w->x, &w->x_cap, &w->scratch, &w->scratch_cap, err);
+    if (st == RT_OK)
+        st = rt_pages_reserve(&w->detector, &w->detector_cap, 3 * n, err);
     /* without an ECG channel the beats come from the raw chin, before the
      * 10-Hz high-pass takes most of the QRS band away */
     if (st == RT_OK)
-        st = rt_qrs_detect(x, n, rate, from_chin, beats, err);
-    free(x);
-    free(scratch);
+        st = rt_qrs_detect_with(w->x, n, rate, from_chin, w->detector, beats, err);
     if (st != RT_OK)
         return st;
     double shift = (double)pf / rate;
@@ -239,13 +264,9 @@ static rt_status known_marks(rt_stretch *s, const rt_stretch_request *req, rt_er
 /* Prefix sums of the rectified stretch and each second's mean. */
 static rt_status rectified_sums(rt_stretch *s, const double *x, rt_error *err)
 {
-    if (s->cum_cap < s->n + 1) {
-        double *cum = realloc(s->rect_cum, (s->n + 1) * sizeof *cum);
-        if (!cum)
-            return rt_fail(err, RT_ERR_NOMEM, "out of memory for %zu samples", s->n + 1);
-        s->rect_cum = cum;
-        s->cum_cap = s->n + 1;
-    }
+    rt_status st = rt_pages_reserve(&s->rect_cum, &s->cum_cap, s->n + 1, err);
+    if (st != RT_OK)
+        return st;
     double sum = 0.0;
     s->rect_cum[0] = 0.0;
     for (size_t i = 0; i < s->n; i++) {
@@ -280,7 +301,8 @@ rt_status rt_condition_stretch_for(const rt_conditioner *c, double t0_s, size_t 
     s->seconds = seconds;
     s->rate_hz = rate;
     s->n = (size_t)(last - first);
-    rt_status st = read_raw(c->rec, &c->src, pf, n_padded, &s->buf, &s->scratch, &s->cap, err);
+    rt_status st = read_raw(c->rec, &c->src, pf, n_padded, &s->buf, &s->cap, &s->scratch,
+                            &s->scratch_cap, err);
     if (st == RT_OK)
         st = reserve_seconds(s, seconds, err);
     if (st == RT_OK)
@@ -313,12 +335,12 @@ void rt_stretch_free(rt_stretch *s)
 {
     if (!s)
         return;
-    free(s->buf);
-    free(s->scratch);
+    rt_pages_free(s->buf, s->cap);
+    rt_pages_free(s->scratch, s->scratch_cap);
     free(s->starts);
     free(s->level_uv);
     free(s->rect_mean_uv);
-    free(s->rect_cum);
+    rt_pages_free(s->rect_cum, s->cum_cap);
     free(s->marks);
     free(s->qrs);
     memset(s, 0, sizeof *s);

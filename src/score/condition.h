@@ -66,6 +66,21 @@ rt_status rt_conditioner_copy(const rt_conditioner *from, rt_conditioner *c, rt_
 rt_status rt_condition_beats(rt_recording *rec, const rt_role_map *roles, double t0_s,
                              size_t seconds, rt_qrs_beats *beats, int *source, rt_error *err);
 
+/* Buffers for rt_condition_beats_with, kept from call to call (grown on
+ * demand) so that a scorer reading bout after bout allocates them once.
+ * Start from all zeros; free with rt_beats_work_free. */
+typedef struct rt_beats_work {
+    double *x, *scratch;     /* the padded stretch read, and the reader's scratch */
+    double *detector;        /* the QRS detector's arrays: 3 per sample */
+    size_t x_cap, scratch_cap, detector_cap;
+} rt_beats_work;
+
+/* rt_condition_beats with the caller's buffers. */
+rt_status rt_condition_beats_with(rt_recording *rec, const rt_role_map *roles, double t0_s,
+                                  size_t seconds, rt_beats_work *work, rt_qrs_beats *beats,
+                                  int *source, rt_error *err);
+void rt_beats_work_free(rt_beats_work *work);
+
 /* One conditioned stretch [t0, t0 + seconds) of a channel. Arrays are owned
  * by the struct and reused across calls (grown on demand); every position is
  * relative to t0, the padding is already trimmed. */
@@ -84,9 +99,9 @@ typedef struct rt_stretch {
     rt_time_span *qrs;        /* QRS windows relative to t0 (only when ECG was found) */
     size_t n_qrs;
     rt_ecg_removal ecg;       /* what the template subtraction found */
-    /* private */
+    /* private: buf, scratch and rect_cum are pages.h arrays */
     double *buf, *scratch;
-    size_t cap, sec_cap, marks_cap, qrs_cap, cum_cap;
+    size_t cap, scratch_cap, sec_cap, marks_cap, qrs_cap, cum_cap;
 } rt_stretch;
 
 /* Conditions [t0_s, t0_s + seconds) of c's channel into *out, with the beats

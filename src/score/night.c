@@ -42,6 +42,7 @@ typedef struct worker_ctx {
     rt_conditioner cond[RT_ROLE_COUNT];
     bool copied[RT_ROLE_COUNT]; /* cond[r] is this worker's copy, closed with it */
     rt_stretch st;
+    rt_beats_work beats;     /* the beats' read and detector buffers */
     double *bg;              /* background per second of the current bout */
     size_t bg_cap;
     rt_span *spans;
@@ -490,8 +491,8 @@ static rt_status run_item(void *ctx, unsigned worker, size_t i, rt_error *err)
         return nrem_run(c, w, o, it, err);
     case ITEM_BEATS: {
         const bout_span *b = &c->bouts[it->bout];
-        return rt_condition_beats(c->rec, c->roles, b->t0, b->n_epochs * 30, &c->beats[it->bout],
-                                  &c->beats_source[it->bout], err);
+        return rt_condition_beats_with(c->rec, c->roles, b->t0, b->n_epochs * 30, &w->beats,
+                                       &c->beats[it->bout], &c->beats_source[it->bout], err);
     }
     case ITEM_LEVELS:
         return collect_levels(c, w, o, it, err);
@@ -934,6 +935,7 @@ static void pass_ctx_free(pass_ctx *c)
             if (wk->copied[r])
                 rt_conditioner_close(&wk->cond[r]);
         rt_stretch_free(&wk->st);
+        rt_beats_work_free(&wk->beats);
         free(wk->bg);
         free(wk->spans);
     }
@@ -1005,6 +1007,8 @@ static rt_status score_passes(pass_ctx *c, unsigned threads, rt_error *err)
     if (st == RT_OK) {
         /* the beats of a bout are ready before its pass 1 starts */
         run_job(c, &nrem_beats, &f);
+        for (unsigned w = 0; w < c->n_workers; w++)
+            rt_beats_work_free(&c->workers[w].beats); /* no more beats to find */
         run_job(c, &levels, &f);
         st = f.rank == SIZE_MAX ? RT_OK : f.error.status;
         if (st != RT_OK && err)
