@@ -35,6 +35,9 @@
 static bool is_emg(rt_role r) { return r != RT_ROLE_ECG; }
 static bool is_nrem(unsigned char s) { return s == RT_STAGE_N1 || s == RT_STAGE_N2 || s == RT_STAGE_N3; }
 
+/* The rule sets' bursts: AASM, SINBAR, Montreal. */
+#define BURST_RULES 3
+
 /* What one worker thread owns: conditioners with a band-pass of its own (a
  * filter keeps scratch buffers), the stretch buffers and the per-second
  * arrays of the bout it labels. Worker 0 uses the night's own conditioners. */
@@ -45,7 +48,7 @@ typedef struct worker_ctx {
     rt_beats_work beats;     /* the beats' read and detector buffers */
     double *bg;              /* background per second of the current bout */
     size_t bg_cap;
-    rt_span *spans;
+    rt_span *spans[BURST_RULES]; /* each rule's bursts in the current bout */
     size_t span_cap;
 } worker_ctx;
 
@@ -183,38 +186,41 @@ static rt_status add_burst(item_out *o, rt_role role, double t0, double rate, co
     return RT_OK;
 }
 
-/* One rule's bursts on the conditioned bout, marked on the grids it applies to. */
-static rt_status detect_rule(const pass_ctx *c, worker_ctx *w, item_out *o, rt_role role,
-                             const bout_span *bout, const rt_burst_rule *rule, unsigned label,
-                             rt_error *err)
+/* Each rule's bursts on the conditioned bout (rules sharing an amplitude
+ * share one scan), marked on the grids the rule applies to, rule by rule. */
+static rt_status detect_rules(const pass_ctx *c, worker_ctx *w, item_out *o, rt_role role,
+                              const bout_span *bout, const rt_burst_rule *rules,
+                              const unsigned *labels, rt_error *err)
 {
     rt_night *night = c->night;
     const rt_stretch *st = &w->st;
     double rate = st->rate_hz;
     size_t merge = (size_t)llround(night->params.burst_merge_gap_s * rate);
     rt_burst_signal sig = {st->env, st->rect_cum, st->n, w->bg, st->starts, st->seconds, rate};
-    size_t found = rt_find_bursts(&sig, rule, merge < 1 ? 1 : merge, w->spans, w->span_cap,
-                                  st->scratch);
-    if (found > w->span_cap)
-        found = w->span_cap;
-    for (size_t i = 0; i < found; i++) {
-        const rt_span *s = &w->spans[i];
-        double a = s->start / rate, b = s->end / rate;
-        if (rt_stretch_marked(st, a, b))
-            continue; /* not scorable there: the mini-epochs are left out anyway */
-        if (st->n_qrs && rt_qrs_overlap(st->qrs, st->n_qrs, a, b) >= 0.5) {
-            o->vetoed += label == RT_LABEL_SINBAR_PHASIC;
-            continue; /* an ECG complex, not muscle */
+    size_t found[BURST_RULES];
+    rt_find_bursts_rules(&sig, rules, BURST_RULES, merge < 1 ? 1 : merge, w->spans, w->span_cap,
+                         found, st->scratch);
+    for (int r = 0; r < BURST_RULES; r++) {
+        unsigned label = labels[r];
+        for (size_t i = 0; i < found[r] && i < w->span_cap; i++) {
+            const rt_span *s = &w->spans[r][i];
+            double a = s->start / rate, b = s->end / rate;
+            if (rt_stretch_marked(st, a, b))
+                continue; /* not scorable there: the mini-epochs are left out anyway */
+            if (st->n_qrs && rt_qrs_overlap(st->qrs, st->n_qrs, a, b) >= 0.5) {
+                o->vetoed += label == RT_LABEL_SINBAR_PHASIC;
+                continue; /* an ECG complex, not muscle */
+            }
+            if (label == RT_LABEL_MONTREAL_PHASIC)
+                mark_minis(night->minis2 + bout->mini2_first, bout->n_epochs * MINI2_PER_EPOCH,
+                           2.0, bout->t0, rate, s, bout->t0, role, label);
+            else
+                mark_minis(night->minis3 + bout->mini3_first, bout->n_epochs * MINI3_PER_EPOCH,
+                           3.0, bout->t0, rate, s, bout->t0, role, label);
+            rt_status stt = add_burst(o, role, bout->t0, rate, s, label, err);
+            if (stt != RT_OK)
+                return stt;
         }
-        if (label == RT_LABEL_MONTREAL_PHASIC)
-            mark_minis(night->minis2 + bout->mini2_first, bout->n_epochs * MINI2_PER_EPOCH, 2.0,
-                       bout->t0, rate, s, bout->t0, role, label);
-        else
-            mark_minis(night->minis3 + bout->mini3_first, bout->n_epochs * MINI3_PER_EPOCH, 3.0,
-                       bout->t0, rate, s, bout->t0, role, label);
-        rt_status stt = add_burst(o, role, bout->t0, rate, s, label, err);
-        if (stt != RT_OK)
-            return stt;
     }
     return RT_OK;
 }
@@ -359,10 +365,14 @@ static rt_status bout_background(const pass_ctx *c, worker_ctx *w, rt_role role,
     w->bg[seconds] = seconds ? w->bg[seconds - 1] : NAN;
     size_t need = 10 * seconds + 16; /* bursts are 0.1 s apart at the least */
     if (need > w->span_cap) {
-        rt_span *sp = realloc(w->spans, need * sizeof *sp);
-        if (!sp)
-            return rt_fail(err, RT_ERR_NOMEM, "out of memory for bursts");
-        w->spans = sp;
+        for (int r = 0; r < BURST_RULES; r++) {
+            rt_span *sp = realloc(w->spans[r], need * sizeof *sp);
+            if (!sp) {
+                w->span_cap = 0; /* the others may have grown: size them again next time */
+                return rt_fail(err, RT_ERR_NOMEM, "out of memory for bursts");
+            }
+            w->spans[r] = sp;
+        }
         w->span_cap = need;
     }
     return RT_OK;
@@ -430,15 +440,13 @@ static rt_status label_role_bout(const pass_ctx *c, worker_ctx *w, item_out *o, 
     o->ecg_removed = w->st.ecg.removed;
     double tol = p->burst_duration_tolerance_s;
     size_t win = w->cond[role].envelope_window;
-    const rt_burst_rule aasm = {p->aasm_burst_k, p->burst_min_s, p->burst_max_s, tol, win};
-    const rt_burst_rule sinbar = {p->sinbar_burst_k, p->burst_min_s, p->burst_max_s, tol, win};
-    const rt_burst_rule montreal = {p->montreal_burst_k, p->burst_min_s, p->montreal_burst_max_s,
-                                    tol, win};
-    st = detect_rule(c, w, o, role, bout, &aasm, RT_LABEL_AASM_PHASIC, err);
-    if (st == RT_OK)
-        st = detect_rule(c, w, o, role, bout, &sinbar, RT_LABEL_SINBAR_PHASIC, err);
-    if (st == RT_OK)
-        st = detect_rule(c, w, o, role, bout, &montreal, RT_LABEL_MONTREAL_PHASIC, err);
+    const rt_burst_rule rules[BURST_RULES] = {
+        {p->aasm_burst_k, p->burst_min_s, p->burst_max_s, tol, win},
+        {p->sinbar_burst_k, p->burst_min_s, p->burst_max_s, tol, win},
+        {p->montreal_burst_k, p->burst_min_s, p->montreal_burst_max_s, tol, win}};
+    static const unsigned labels[BURST_RULES] = {RT_LABEL_AASM_PHASIC, RT_LABEL_SINBAR_PHASIC,
+                                                 RT_LABEL_MONTREAL_PHASIC};
+    st = detect_rules(c, w, o, role, bout, rules, labels, err);
     if (st != RT_OK)
         return st;
     label_tonic(c, w, o, role, bout);
@@ -937,7 +945,8 @@ static void pass_ctx_free(pass_ctx *c)
         rt_stretch_free(&wk->st);
         rt_beats_work_free(&wk->beats);
         free(wk->bg);
-        free(wk->spans);
+        for (int r = 0; r < BURST_RULES; r++)
+            free(wk->spans[r]);
     }
     free(c->workers);
     for (int r = 0; r < RT_ROLE_COUNT; r++) {
