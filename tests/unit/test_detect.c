@@ -8,6 +8,7 @@
 #include "support.h"
 
 #include <math.h>
+#include <stdint.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -207,6 +208,61 @@ static void envelope_is_centred_average(void **state)
     assert_true(fabs(x[3] - 4.0) < 1e-12);
 }
 
+/* Several rules in one call find, rule by rule, exactly what each finds
+ * alone (the contract of rt_find_bursts_rules, which shares the scan of rules
+ * with the same amplitude): noise with bursts of random length and height,
+ * varying background, the rect_cum edge refinement on. */
+static void rules_together_equal_rules_alone(void **state)
+{
+    (void)state;
+    uint64_t seed = rt_test_seed();
+    rt_test_rng_seed(seed);
+    fixture *f = make_fixture();
+    double *cum = calloc(N + 1, sizeof *cum);
+    assert_non_null(cum);
+    for (size_t i = 0; i < N; i++)
+        f->x[i] = rt_test_gauss();
+    for (int b = 0; b < 40; b++) { /* bursts 0.05-12 s at 1-10 x */
+        size_t a = (size_t)(rt_test_uniform() * (double)N);
+        size_t len = (size_t)((0.05 + 12.0 * rt_test_uniform() * rt_test_uniform()) * FS);
+        double gain = 1.0 + 9.0 * rt_test_uniform();
+        for (size_t i = a; i < a + len && i < N; i++)
+            f->x[i] *= gain;
+    }
+    for (size_t i = 0; i < N; i++)
+        cum[i + 1] = cum[i] + fabs(f->x[i]);
+    rt_envelope(f->x, N, (size_t)(0.05 * FS), f->env, f->scratch);
+    for (size_t j = 0; j < SECONDS; j++)
+        f->background[j] = 0.8 * (0.9 + 0.2 * rt_test_uniform());
+    rt_burst_signal sig = {f->env, cum, N, f->background, f->starts, SECONDS, FS};
+    size_t win = (size_t)(0.05 * FS);
+    /* AASM, SINBAR and Montreal as the scorer sets them (two share k = 4),
+     * and a fourth rule sharing SINBAR's k with other limits */
+    const rt_burst_rule rules[4] = {{4.0, 0.1, 5.0, 0.05, win}, {2.0, 0.1, 5.0, 0.05, win},
+                                    {4.0, 0.1, 10.0, 0.05, win}, {2.0, 0.5, 2.0, 0.0, win}};
+    enum { CAP = 400 };
+    rt_span *together[4], alone[CAP];
+    size_t found[4];
+    for (int r = 0; r < 4; r++) {
+        together[r] = calloc(CAP, sizeof *together[r]);
+        assert_non_null(together[r]);
+    }
+    rt_find_bursts_rules(&sig, rules, 4, (size_t)(0.25 * FS), together, CAP, found, f->scratch);
+    size_t total = 0;
+    for (int r = 0; r < 4; r++) {
+        size_t n = rt_find_bursts(&sig, &rules[r], (size_t)(0.25 * FS), alone, CAP, f->scratch);
+        if (n != found[r])
+            fail_msg("seed %llu: rule %d finds %zu alone, %zu together", (unsigned long long)seed,
+                     r, n, found[r]);
+        assert_memory_equal(alone, together[r], (n < CAP ? n : CAP) * sizeof *alone);
+        total += n;
+        free(together[r]);
+    }
+    assert_true(total > 0); /* the signal has bursts for every check to bite on */
+    free(cum);
+    free(f);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -218,6 +274,7 @@ int main(void)
         cmocka_unit_test(tonic_absolute_level),
         cmocka_unit_test(quantile_matches_type7),
         cmocka_unit_test(envelope_is_centred_average),
+        cmocka_unit_test(rules_together_equal_rules_alone),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
