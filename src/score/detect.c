@@ -308,3 +308,17 @@ size_t rt_count_tonic(const double *env, size_t from, size_t to, const double *b
     }
     return count;
 }
+
+void rt_count_tonic_blocks(const double *env, const double *background, const size_t *starts,
+                           size_t n_blocks, double rel, double abs_uv, size_t *counts)
+{
+    bool use_rel = rel > 0, use_abs = abs_uv > 0;
+    for (size_t b = 0; b < n_blocks; b++) {
+        /* at_threshold's level, once per block */
+        double level = rel * background[b] * (1.0 - RT_RATIO_SLACK);
+        size_t count = 0;
+        for (size_t i = starts[b]; i < starts[b + 1]; i++)
+            count += (size_t)((use_rel && env[i] >= level) | (use_abs && env[i] > abs_uv));
+        counts[b] = count;
+    }
+}

@@ -63,4 +63,9 @@ void rt_find_bursts_rules(const rt_burst_signal *sig, const rt_burst_rule *rules
 size_t rt_count_tonic(const double *env, size_t from, size_t to, const double *background,
                       const size_t *starts, size_t n_blocks, double rel, double abs_uv);
 
+/* rt_count_tonic of every block: counts[b] for [starts[b], starts[b+1]), so
+ * that a stretch of whole blocks counts as the sum of its blocks. */
+void rt_count_tonic_blocks(const double *env, const double *background, const size_t *starts,
+                           size_t n_blocks, double rel, double abs_uv, size_t *counts);
+
 #endif

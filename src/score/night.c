@@ -47,6 +47,8 @@ typedef struct worker_ctx {
     rt_stretch st;
     rt_beats_work beats;     /* the beats' read and detector buffers */
     double *bg;              /* background per second of the current bout */
+    size_t *tonic;           /* samples at the tonic level, per second of the bout */
+    size_t *above;           /* samples above the AASM chin level, per second */
     size_t bg_cap;
     rt_span *spans[BURST_RULES]; /* each rule's bursts in the current bout */
     size_t span_cap;
@@ -225,12 +227,15 @@ static rt_status detect_rules(const pass_ctx *c, worker_ctx *w, item_out *o, rt_
     return RT_OK;
 }
 
-/* Samples of [a, b) at the SINBAR/Montreal tonic level: at least tonic_k x
- * background, or above the absolute level. */
-static size_t tonic_samples(const rt_score_params *p, const worker_ctx *w, size_t a, size_t b)
+/* Samples of seconds [a, b) of the bout at the SINBAR/Montreal tonic level
+ * (at least tonic_k x background, or above the absolute level), from the
+ * counts of each second. */
+static size_t tonic_samples(const worker_ctx *w, size_t a, size_t b)
 {
-    return rt_count_tonic(w->st.env, a, b, w->bg, w->st.starts, w->st.seconds, p->tonic_k,
-                          abs_tonic_env_uv(p));
+    size_t sum = 0;
+    for (size_t j = a; j < b; j++)
+        sum += w->tonic[j];
+    return sum;
 }
 
 static double stretch_median(const rt_stretch *st, size_t a, size_t b, double *scratch)
@@ -249,10 +254,12 @@ static void label_tonic(const pass_ctx *c, worker_ctx *w, item_out *o, rt_role r
     const rt_score_params *p = &night->params;
     const rt_stretch *st = &w->st;
     size_t seconds = st->seconds;
+    rt_count_tonic_blocks(st->env, w->bg, st->starts, seconds, p->tonic_k, abs_tonic_env_uv(p),
+                          w->tonic);
     for (size_t k = 0; k < bout->n_epochs * MINI3_PER_EPOCH; k++) {
         rt_mini *m = &night->minis3[bout->mini3_first + k];
         size_t a = st->starts[3 * k], b = st->starts[3 * k + 3];
-        size_t tonic = tonic_samples(p, w, a, b);
+        size_t tonic = tonic_samples(w, 3 * k, 3 * k + 3);
         if (b > a && 2 * tonic > b - a)
             m->labels[role] |= RT_LABEL_SINBAR_TONIC;
         if (m->labels[role] & (RT_LABEL_SINBAR_TONIC | RT_LABEL_SINBAR_PHASIC))
@@ -263,17 +270,21 @@ static void label_tonic(const pass_ctx *c, worker_ctx *w, item_out *o, rt_role r
     if (role != RT_ROLE_CHIN)
         return;
     double aasm_level = p->aasm_nrem_margin * night->nrem_reference_uv;
+    bool aasm = isfinite(night->nrem_reference_uv);
+    if (aasm)
+        rt_count_tonic_blocks(st->env, w->bg, st->starts, seconds, 0.0, aasm_level, w->above);
     for (size_t e = 0; e < bout->n_epochs; e++) {
         rt_epoch_result *er = &night->epochs[bout->epoch_first + e];
         size_t a = st->starts[30 * e], b = st->starts[30 * e + 30];
-        size_t tonic = tonic_samples(p, w, a, b);
+        size_t tonic = tonic_samples(w, 30 * e, 30 * e + 30);
         er->tonic_share = b > a ? (double)tonic / (double)(b - a) : 0.0;
         er->sinbar_tonic = 2 * tonic > b - a;
-        if (isfinite(night->nrem_reference_uv)) {
+        if (aasm) {
             /* "greater than the minimum NREM amplitude" for at least 50 % (AASM),
              * "greater" meaning by the margin a scorer sees */
-            size_t above = rt_count_tonic(st->env, a, b, w->bg, st->starts, seconds, 0.0,
-                                          aasm_level);
+            size_t above = 0;
+            for (size_t j = 30 * e; j < 30 * e + 30; j++)
+                above += w->above[j];
             er->aasm_tonic = 2 * above >= b - a;
         }
     }
@@ -285,7 +296,7 @@ static void label_tonic(const pass_ctx *c, worker_ctx *w, item_out *o, rt_role r
             continue; /* a window touching an excluding event leaves the count */
         size_t a = st->starts[s0], b = st->starts[s0 + win];
         o->montreal_windows++;
-        o->montreal_tonic += 2 * tonic_samples(p, w, a, b) > b - a;
+        o->montreal_tonic += 2 * tonic_samples(w, s0, s0 + win) > b - a;
     }
 }
 
@@ -355,9 +366,15 @@ static rt_status bout_background(const pass_ctx *c, worker_ctx *w, rt_role role,
     size_t seconds = w->st.seconds;
     if (seconds + 1 > w->bg_cap) {
         double *bg = realloc(w->bg, (seconds + 1) * sizeof *bg);
-        if (!bg)
+        if (bg)
+            w->bg = bg;
+        size_t *tonic = bg ? realloc(w->tonic, (seconds + 1) * sizeof *tonic) : NULL;
+        if (tonic)
+            w->tonic = tonic;
+        size_t *above = tonic ? realloc(w->above, (seconds + 1) * sizeof *above) : NULL;
+        if (!above)
             return rt_fail(err, RT_ERR_NOMEM, "out of memory for %zu seconds", seconds);
-        w->bg = bg;
+        w->above = above;
         w->bg_cap = seconds + 1;
     }
     for (size_t j = 0; j < seconds; j++)
@@ -945,6 +962,8 @@ static void pass_ctx_free(pass_ctx *c)
         rt_stretch_free(&wk->st);
         rt_beats_work_free(&wk->beats);
         free(wk->bg);
+        free(wk->tonic);
+        free(wk->above);
         for (int r = 0; r < BURST_RULES; r++)
             free(wk->spans[r]);
     }

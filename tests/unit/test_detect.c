@@ -263,6 +263,41 @@ static void rules_together_equal_rules_alone(void **state)
     free(f);
 }
 
+/* Tonic counts block by block add up to the count over whole blocks
+ * (rt_count_tonic), for relative, absolute and combined levels, including
+ * samples exactly at k x background. */
+static void tonic_blocks_add_up(void **state)
+{
+    (void)state;
+    uint64_t seed = rt_test_seed();
+    rt_test_rng_seed(seed);
+    fixture *f = make_fixture();
+    for (size_t j = 0; j < SECONDS; j++)
+        f->background[j] = 0.5 + rt_test_uniform();
+    for (size_t i = 0; i < N; i++) {
+        f->env[i] = 3.0 * rt_test_uniform();
+        if (i % 97 == 0) /* exactly at 2x: the slack must count it both ways */
+            f->env[i] = 2.0 * f->background[i / FS_INT];
+    }
+    const double levels[3][2] = {{2.0, 0.0}, {0.0, 1.5}, {2.0, 1.5}};
+    size_t counts[SECONDS];
+    for (int l = 0; l < 3; l++) {
+        rt_count_tonic_blocks(f->env, f->background, f->starts, SECONDS, levels[l][0],
+                              levels[l][1], counts);
+        for (size_t a = 0; a < SECONDS; a += 7) {
+            size_t b = a + 20 < SECONDS ? a + 20 : SECONDS, sum = 0;
+            for (size_t j = a; j < b; j++)
+                sum += counts[j];
+            size_t whole = rt_count_tonic(f->env, f->starts[a], f->starts[b], f->background,
+                                          f->starts, SECONDS, levels[l][0], levels[l][1]);
+            if (sum != whole)
+                fail_msg("seed %llu: level %d, seconds %zu-%zu: %zu by blocks, %zu whole",
+                         (unsigned long long)seed, l, a, b, sum, whole);
+        }
+    }
+    free(f);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -275,6 +310,7 @@ int main(void)
         cmocka_unit_test(quantile_matches_type7),
         cmocka_unit_test(envelope_is_centred_average),
         cmocka_unit_test(rules_together_equal_rules_alone),
+        cmocka_unit_test(tonic_blocks_add_up),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
