@@ -194,6 +194,56 @@ static void quantile_matches_type7(void **state)
     assert_true(fabs(rt_quantile(big, 200, 0.05) - 9.95) < 1e-12); /* numpy: 9.95 */
 }
 
+static int compare_doubles(const void *a, const void *b)
+{
+    double x = *(const double *)a, y = *(const double *)b;
+    return (x > y) - (x < y);
+}
+
+/* The selection finds the order statistics of a sorted copy, bit for bit, so
+ * the type-7 quantile is the formula on the sorted values (Hyndman & Fan
+ * 1996): random sizes on both sides of the in-buffer partition limit, with
+ * many repeated values, all-equal arrays and sorted and reversed input. */
+static void quantile_equals_sorted_order_statistics(void **state)
+{
+    (void)state;
+    uint64_t seed = rt_test_seed();
+    rt_test_rng_seed(seed);
+    const size_t sizes[] = {9, 10, 43, 384, 1023, 1024, 1025, 3840, 5000};
+    for (size_t t = 0; t < sizeof sizes / sizeof sizes[0]; t++) {
+        size_t n = sizes[t];
+        double *v = malloc(n * sizeof *v), *sorted = malloc(n * sizeof *sorted);
+        assert_non_null(v);
+        assert_non_null(sorted);
+        for (int shape = 0; shape < 5; shape++) {
+            for (size_t i = 0; i < n; i++) {
+                double u = rt_test_uniform();
+                v[i] = shape == 0 ? u : shape == 1 ? floor(u * 5.0) /* repeats */
+                     : shape == 2 ? 1.25 : shape == 3 ? (double)i : -(double)i;
+            }
+            memcpy(sorted, v, n * sizeof *v);
+            qsort(sorted, n, sizeof *sorted, compare_doubles);
+            const double qs[] = {0.0, 0.05, 0.5, 0.9, 1.0};
+            for (size_t k = 0; k < 5; k++) {
+                double pos = qs[k] * (double)(n - 1);
+                size_t i = (size_t)floor(pos);
+                double want = i >= n - 1 ? sorted[n - 1]
+                                         : sorted[i] + (pos - (double)i) * (sorted[i + 1] - sorted[i]);
+                double *w = malloc(n * sizeof *w);
+                assert_non_null(w);
+                memcpy(w, v, n * sizeof *v);
+                double got = rt_quantile(w, n, qs[k]);
+                if (memcmp(&got, &want, sizeof got) != 0)
+                    fail_msg("seed %llu: n %zu, shape %d, q %g: %.17g, sorted %.17g",
+                             (unsigned long long)seed, n, shape, qs[k], got, want);
+                free(w);
+            }
+        }
+        free(v);
+        free(sorted);
+    }
+}
+
 /* The envelope is a plain centred moving average of |x| (clipped ends). */
 static void envelope_is_centred_average(void **state)
 {
@@ -308,6 +358,7 @@ int main(void)
         cmocka_unit_test(tonic_share_boundary),
         cmocka_unit_test(tonic_absolute_level),
         cmocka_unit_test(quantile_matches_type7),
+        cmocka_unit_test(quantile_equals_sorted_order_statistics),
         cmocka_unit_test(envelope_is_centred_average),
         cmocka_unit_test(rules_together_equal_rules_alone),
         cmocka_unit_test(tonic_blocks_add_up),
