@@ -1,7 +1,8 @@
 /* Benchmark: score an 8-hour, 20-channel synthetic night (5 EMG at 512 Hz) and
  * compare with the time needed merely to read the EMG samples the scorer
  * uses. Prints wall time, CPU time, peak resident memory and the machine.
- * Usage: bench_score [HOURS] [DIR]   (DIR keeps the night between runs) */
+ * Usage: bench_score [HOURS] [DIR] [THREADS]   (DIR keeps the night between
+ * runs; THREADS as `remtone score --threads`, default 0: the cores available) */
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -54,13 +55,19 @@ static void machine(void)
 
 static bool is_nrem(unsigned char s) { return s == RT_STAGE_N1 || s == RT_STAGE_N2 || s == RT_STAGE_N3; }
 
+/* The read buffers, kept from run to run. */
+typedef struct read_bufs {
+    double *buf, *scratch;
+    size_t cap;
+} read_bufs;
+
 /* Reads what the scorer reads: every REM bout of every EMG role, plus the chin
- * over NREM, without processing it. Returns samples read. */
-static size_t read_only(rt_recording *rec, const rt_role_map *roles, const rt_timeline *tl)
+ * over NREM in runs of at most 20 epochs (as the scorer reads it), without
+ * processing it. Returns samples read. */
+static size_t read_only(rt_recording *rec, const rt_role_map *roles, const rt_timeline *tl,
+                        read_bufs *b)
 {
     size_t total = 0;
-    size_t cap = 0;
-    double *buf = NULL, *scratch = NULL;
     rt_error err;
     for (int r = 0; r < RT_ROLE_ECG; r++) {
         const rt_role_source *src = &roles->role[r];
@@ -74,26 +81,24 @@ static size_t read_only(rt_recording *rec, const rt_role_map *roles, const rt_ti
                 continue;
             }
             size_t run = 0;
-            while (e + run < tl->n_epochs &&
+            while (e + run < tl->n_epochs && (rem || run < 20) &&
                    (rem ? tl->stages[e + run] == RT_STAGE_R : is_nrem(tl->stages[e + run])))
                 run++;
             long long first = (long long)((double)e * tl->epoch_s * src->rate_hz + 0.5);
             size_t n = (size_t)((double)run * tl->epoch_s * src->rate_hz + 0.5);
-            if (n > cap) {
-                free(buf);
-                free(scratch);
-                buf = malloc(n * sizeof *buf);
-                scratch = malloc(n * sizeof *scratch);
-                cap = n;
+            if (n > b->cap) {
+                free(b->buf);
+                free(b->scratch);
+                b->buf = malloc(n * sizeof *b->buf);
+                b->scratch = malloc(n * sizeof *b->scratch);
+                b->cap = n;
             }
-            if (rt_role_read_uv(rec, src, first, n, buf, scratch, &err) != RT_OK)
+            if (rt_role_read_uv(rec, src, first, n, b->buf, b->scratch, &err) != RT_OK)
                 die(&err);
             total += n;
             e += run;
         }
     }
-    free(buf);
-    free(scratch);
     return total;
 }
 
@@ -101,6 +106,7 @@ int main(int argc, char **argv)
 {
     double hours = argc > 1 ? atof(argv[1]) : 8.0;
     const char *dir = argc > 2 ? argv[2] : "bench-night";
+    int threads = argc > 3 ? atoi(argv[3]) : 0;
     char path[4200], stages[4200];
     snprintf(path, sizeof path, "%s/night.edf", dir);
     snprintf(stages, sizeof stages, "%s/stages.csv", dir);
@@ -129,20 +135,25 @@ int main(int argc, char **argv)
         die(&err);
     printf("night: %.2f h, %d channels, %s\n", rt_recording_duration_s(rec) / 3600.0,
            rt_recording_channel_count(rec), path);
+    if (threads > 0)
+        printf("scoring threads: %d\n", threads);
+    else
+        printf("scoring threads: the cores available\n");
 
     enum { RUNS = 5 };
     double best_read = 1e9, best_wall = 1e9, best_cpu = 1e9;
     size_t samples = 0;
     rt_night *night = NULL;
+    read_bufs bufs = {NULL, NULL, 0};
     for (int i = 0; i < RUNS; i++) {
         double t0 = now_s();
-        samples = read_only(rec, &roles, tl);
+        samples = read_only(rec, &roles, tl, &bufs);
         double tr = now_s() - t0;
         if (tr < best_read)
             best_read = tr;
         rt_night_free(night);
         double w0 = now_s(), c0 = cpu_s();
-        if (rt_night_score(rec, &roles, tl, NULL, NULL, &night, &err) != RT_OK)
+        if (rt_night_score_threads(rec, &roles, tl, NULL, NULL, threads, &night, &err) != RT_OK)
             die(&err);
         double w = now_s() - w0, c = cpu_s() - c0;
         if (w < best_wall)
@@ -160,6 +171,8 @@ int main(int argc, char **argv)
     printf("REM %.1f min, headline %s = %.1f\n", night->rem_minutes,
            rt_index_rules()[night->headline].id, night->index[night->headline].value);
     rt_night_free(night);
+    free(bufs.buf);
+    free(bufs.scratch);
     rt_timeline_free(tl);
     rt_recording_close(rec);
     return 0;

@@ -9,11 +9,13 @@
 #include "remtone/cohort.h"
 
 enum { KEY_OUT = 1, KEY_JOBS, KEY_FORCE, KEY_PART, KEY_CUTOFFS, KEY_POSITIVE, KEY_NEGATIVE,
-       KEY_QUIET, KEY_MIN_REM };
+       KEY_QUIET, KEY_MIN_REM, KEY_THREADS };
 
 static const cli_option OPTIONS[] = {
     {"out", 1, KEY_OUT, "DIR", "output folder (created when missing; required)"},
-    {"jobs", 1, KEY_JOBS, "N", "worker threads (default: online processor cores)"},
+    {"jobs", 1, KEY_JOBS, "N", "nights scored at once (default: the processor cores available)"},
+    {"threads", 1, KEY_THREADS, "N", "threads scoring each night (default: the cores available "
+                                     "divided by the jobs, at least 1)"},
     {"force", 0, KEY_FORCE, NULL, "rescore nights whose result is current"},
     {"part", 1, KEY_PART, "K/N", "score only slice K of N (1-based, by a hash of the id); "
                                  "run cohort-merge after all parts"},
@@ -72,13 +74,15 @@ static int on_option(void *ctx, int key, const char *arg)
     case KEY_NEGATIVE: c->o.negative = arg; break;
     case KEY_QUIET: c->quiet = 1; break;
     case KEY_PART: return parse_part(c, arg);
-    case KEY_JOBS: {
+    case KEY_JOBS:
+    case KEY_THREADS: {
+        const char *name = key == KEY_JOBS ? "jobs" : "threads";
         long j = strtol(arg, &end, 10);
         if (end == arg || *end || j < 1 || j > 256) {
-            fprintf(stderr, "remtone %s: --jobs must be 1 to 256, got '%s'\n", c->cmd, arg);
+            fprintf(stderr, "remtone %s: --%s must be 1 to 256, got '%s'\n", c->cmd, name, arg);
             return EXIT_USAGE;
         }
-        c->o.jobs = (int)j;
+        *(key == KEY_JOBS ? &c->o.jobs : &c->o.threads) = (int)j;
         break;
     }
     case KEY_MIN_REM:
@@ -229,7 +233,7 @@ static int run_merge(int argc, char **argv)
 }
 
 const cli_command CLI_COHORT = {
-    "cohort", "MANIFEST --out DIR [--jobs N] [--force] [--part K/N] [options]",
+    "cohort", "MANIFEST --out DIR [--jobs N] [--threads N] [--force] [--part K/N] [options]",
     "Score a cohort from a manifest: resumable, parallel, shardable; table and calibration.",
     OPTIONS, run, "a manifest"};
 

@@ -8,7 +8,7 @@
 enum {
     KEY_STAGES = 1, KEY_EVENTS, KEY_JSON, KEY_CUTOFFS, KEY_LABELS, KEY_MIN_REM, KEY_QUIET,
     KEY_KEEP_ARTIFACTS, KEY_KEEP_SNORING, KEY_KEEP_RESPIRATORY, KEY_EVENT_MARGIN,
-    KEY_HTML, KEY_MINIS, KEY_ANNOTATIONS, KEY_SHOW_IDENTITY, KEY_RECORDING_ID
+    KEY_HTML, KEY_MINIS, KEY_ANNOTATIONS, KEY_SHOW_IDENTITY, KEY_RECORDING_ID, KEY_THREADS
 };
 
 static const cli_option OPTIONS[] = {
@@ -29,6 +29,8 @@ static const cli_option OPTIONS[] = {
     {"annotations", 1, KEY_ANNOTATIONS, "PATH", "write the detected activity as an EDF+ annotation file"},
     {"show-identity", 0, KEY_SHOW_IDENTITY, NULL, "show the recording header's patient fields and date in the report"},
     {"recording-id", 1, KEY_RECORDING_ID, "ID", "name the recording in the report (default: its file name)"},
+    {"threads", 1, KEY_THREADS, "N", "score with N threads, 1 to 256 (default: the processor cores "
+                                     "available; the result is the same for any N)"},
     CLI_ROLE_OPTIONS,
     {0},
 };
@@ -39,6 +41,7 @@ typedef struct score_config {
     rt_report_options report;
     double min_rem;
     int quiet;
+    int threads;             /* 0: the cores available */
     rt_role_options roles;
     rt_score_params params;
 } score_config;
@@ -71,6 +74,15 @@ static int on_option(void *ctx, int key, const char *arg)
             return EXIT_USAGE;
         }
         break;
+    case KEY_THREADS: {
+        long n = strtol(arg, &end, 10);
+        if (end == arg || *end || n < 1 || n > 256) {
+            fprintf(stderr, "remtone score: --threads must be 1 to 256, got '%s'\n", arg);
+            return EXIT_USAGE;
+        }
+        c->threads = (int)n;
+        break;
+    }
     case KEY_MIN_REM:
         c->min_rem = strtod(arg, &end);
         if (*end || !(c->min_rem >= 0 && c->min_rem <= 600)) {
@@ -142,7 +154,8 @@ static int run(int argc, char **argv)
     if (st == RT_OK) {
         if (c.min_rem >= 0)
             c.params.min_scorable_min = c.min_rem;
-        st = rt_night_score(l.rec, &l.roles, l.tl, &c.params, &l.cutoffs, &night, &err);
+        st = rt_night_score_threads(l.rec, &l.roles, l.tl, &c.params, &l.cutoffs, c.threads,
+                                    &night, &err);
     }
     if (st == RT_OK && !c.quiet && !(c.json && strcmp(c.json, "-") == 0) &&
         !(c.html && strcmp(c.html, "-") == 0) && !(c.minis && strcmp(c.minis, "-") == 0))

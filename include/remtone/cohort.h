@@ -91,7 +91,10 @@ typedef void (*rt_cohort_progress_fn)(const rt_cohort_progress *progress, void *
 
 typedef struct rt_cohort_options {
     const char *out_dir;       /* required; created when missing (its parent must exist) */
-    int jobs;                  /* worker threads, 1..256; 0 = online processor cores */
+    int jobs;                  /* worker threads, 1..256; 0 = the processor cores available */
+    int threads;               /* threads scoring each night (rt_night_score_threads), 1..256;
+                                  0 = the cores available shared among the workers, at least 1;
+                                  results do not depend on it */
     bool force;                /* rescore nights whose result is current */
     unsigned part;             /* this run's slice, 1..part_count (1-based) */
     unsigned part_count;       /* number of slices; 0 or 1 = the whole manifest */
@@ -104,7 +107,7 @@ typedef struct rt_cohort_options {
     double progress_interval_s;     /* default 0.5 */
 } rt_cohort_options;
 
-/* Defaults: jobs 0, no force, whole manifest, published cutoffs, default
+/* Defaults: jobs 0, threads 0, no force, whole manifest, published cutoffs, default
  * parameters, positive "case", negative "control", no progress callback. */
 void rt_cohort_options_default(rt_cohort_options *options);
 

@@ -10,7 +10,8 @@
  *
  * Ownership: rt_night_score() returns an rt_night the caller frees with
  * rt_night_free(); every array inside belongs to it. Fields are read-only.
- * Thread safety: scoring different nights in different threads is safe. */
+ * Thread safety: scoring different nights in different threads is safe;
+ * rt_night_score_threads also shares one night among threads of its own. */
 #ifndef REMTONE_SCORE_H
 #define REMTONE_SCORE_H
 
@@ -413,6 +414,16 @@ typedef struct rt_night {
 rt_status rt_night_score(rt_recording *rec, const rt_role_map *roles, const rt_timeline *tl,
                          const rt_score_params *params, const rt_cutoffs *cutoffs,
                          rt_night **out, rt_error *err);
+/* As rt_night_score (which scores on the calling thread alone), with the EMG
+ * roles' stretches shared among up to `threads` threads: 0 = the processor
+ * cores available to the process, 1 = the calling thread alone. The result is
+ * the same, byte for byte, for every thread count. Memory grows by one
+ * conditioned REM bout (about 16 bytes per sample of the longest bout) per
+ * extra thread. RT_ERR_USAGE when threads < 0. */
+rt_status rt_night_score_threads(rt_recording *rec, const rt_role_map *roles,
+                                 const rt_timeline *tl, const rt_score_params *params,
+                                 const rt_cutoffs *cutoffs, int threads, rt_night **out,
+                                 rt_error *err);
 void rt_night_free(rt_night *night);
 
 /* The conditioned envelope a reviewer is shown, exactly as the scorer

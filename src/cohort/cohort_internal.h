@@ -14,6 +14,7 @@ typedef enum night_outcome { NIGHT_SCORED = 0, NIGHT_SKIPPED, NIGHT_FAILED } nig
 /* What every night of one run shares. */
 typedef struct cohort_shared {
     const rt_cohort_options *options;
+    int threads;               /* threads scoring each night */
     rt_cutoffs cutoffs;        /* in force for this run */
     char settings[8192];       /* every setting that changes a result, as text; hashed per night */
     char nights_dir[COHORT_PATH_MAX];

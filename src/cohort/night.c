@@ -173,7 +173,8 @@ static rt_status score_and_write(const cohort_shared *s, const rt_manifest_entry
     if (st == RT_OK)
         st = rt_roles_resolve(rec, &ro, &roles, err);
     if (st == RT_OK)
-        st = rt_night_score(rec, &roles, tl, &s->options->params, &s->cutoffs, &night, err);
+        st = rt_night_score_threads(rec, &roles, tl, &s->options->params, &s->cutoffs,
+                                    s->threads, &night, err);
     if (st == RT_OK) {
         rt_run_inputs in = {e->recording, e->stages, e->events, s->options->cutoffs_path, NULL};
         st = rt_night_write_json(night, &in, json_path, err);

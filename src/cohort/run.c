@@ -25,6 +25,7 @@
 #include <unistd.h>
 
 #include "internal.h"
+#include "parallel.h"
 
 enum { MAX_JOBS = 256 };
 
@@ -218,6 +219,9 @@ static rt_status check_options(const rt_cohort_options *o, rt_error *err)
         return rt_fail(err, RT_ERR_USAGE, "%s: output folder path too long", o->out_dir);
     if (o->jobs < 0 || o->jobs > MAX_JOBS)
         return rt_fail(err, RT_ERR_USAGE, "cohort: jobs must be 0 to %d, got %d", MAX_JOBS, o->jobs);
+    if (o->threads < 0 || o->threads > MAX_JOBS)
+        return rt_fail(err, RT_ERR_USAGE, "cohort: threads must be 0 to %d, got %d", MAX_JOBS,
+                       o->threads);
     if (o->part_count > 1 && (o->part < 1 || o->part > o->part_count))
         return rt_fail(err, RT_ERR_USAGE, "cohort: part %u of %u: the part must be 1 to %u",
                        o->part, o->part_count, o->part_count);
@@ -255,9 +259,7 @@ static int worker_count(const rt_cohort_options *o, size_t n_jobs)
 {
     long n = o->jobs;
     if (n == 0) {
-        n = sysconf(_SC_NPROCESSORS_ONLN);
-        if (n < 1)
-            n = 1;
+        n = rt_cores_available();
         if (n > MAX_JOBS)
             n = MAX_JOBS;
     }
@@ -327,8 +329,14 @@ rt_status rt_cohort_run(const rt_manifest *m, const rt_cohort_options *o,
         clear_temporaries(&r);
         /* jansson seeds its hash function on first use; do it before threads exist */
         json_object_seed(0);
-        if (r.n_jobs > 0)
-            st = run_workers(&r, worker_count(o, r.n_jobs), err);
+        if (r.n_jobs > 0) {
+            int workers = worker_count(o, r.n_jobs);
+            /* workers x threads stay within the cores unless both were asked for */
+            r.shared.threads = o->threads ? o->threads : rt_cores_available() / workers;
+            if (r.shared.threads < 1)
+                r.shared.threads = 1;
+            st = run_workers(&r, workers, err);
+        }
     }
     if (st == RT_OK && summary)
         *summary = r.progress;

@@ -228,6 +228,29 @@ static size_t choose_block(size_t margin)
     return n;
 }
 
+/* The last step of making a filter: its n-sample block, the response at the
+ * block's bins (sampled, or copied from a filter of the same block) and the
+ * overlap state. Frees bp and returns NULL on failure. */
+static rt_bandpass *with_block(rt_bandpass *bp, size_t n, const double *gain, rt_error *err)
+{
+    if (use_block(bp, n, err) != RT_OK)
+        goto fail;
+    if (gain)
+        memcpy(bp->gain, gain, (n / 2 + 1) * sizeof *bp->gain);
+    else
+        sample_gain(bp, n, bp->gain);
+    bp->saved = rt_calloc(bp->margin, sizeof *bp->saved);
+    bp->tail = rt_calloc(bp->margin + 1, sizeof *bp->tail);
+    if (!bp->saved || !bp->tail) {
+        rt_fail(err, RT_ERR_NOMEM, "bandpass: out of memory");
+        goto fail;
+    }
+    return bp;
+fail:
+    rt_bandpass_free(bp);
+    return NULL;
+}
+
 rt_bandpass *rt_bandpass_new_with_block(const rt_bandpass_spec *spec, size_t block_samples,
                                         rt_error *err)
 {
@@ -252,16 +275,7 @@ rt_bandpass *rt_bandpass_new_with_block(const rt_bandpass_spec *spec, size_t blo
                 n, 4 * bp->margin, RT_FFT_MAX_SAMPLES);
         goto fail;
     }
-    if (use_block(bp, n, err) != RT_OK)
-        goto fail;
-    sample_gain(bp, n, bp->gain);
-    bp->saved = rt_calloc(bp->margin, sizeof *bp->saved);
-    bp->tail = rt_calloc(bp->margin + 1, sizeof *bp->tail);
-    if (!bp->saved || !bp->tail) {
-        rt_fail(err, RT_ERR_NOMEM, "bandpass: out of memory");
-        goto fail;
-    }
-    return bp;
+    return with_block(bp, n, NULL, err);
 fail:
     rt_bandpass_free(bp);
     return NULL;
@@ -270,6 +284,20 @@ fail:
 rt_bandpass *rt_bandpass_new(const rt_bandpass_spec *spec, rt_error *err)
 {
     return rt_bandpass_new_with_block(spec, 0, err);
+}
+
+rt_bandpass *rt_bandpass_clone(const rt_bandpass *bp, rt_error *err)
+{
+    rt_bandpass *c = rt_calloc(1, sizeof *c);
+    if (!c) {
+        rt_fail(err, RT_ERR_NOMEM, "bandpass: out of memory");
+        return NULL;
+    }
+    c->spec = bp->spec;
+    c->tan_low = bp->tan_low;
+    c->tan_high = bp->tan_high;
+    c->margin = bp->margin;
+    return with_block(c, bp->block, bp->gain, err); /* the same response, bin for bin */
 }
 
 void rt_bandpass_free(rt_bandpass *bp)

@@ -56,6 +56,12 @@ rt_bandpass *rt_bandpass_new(const rt_bandpass_spec *spec, rt_error *err);
 rt_bandpass *rt_bandpass_new_with_block(const rt_bandpass_spec *spec, size_t block_samples,
                                         rt_error *err);
 
+/* A second filter with bp's response, margin and block size, and its own
+ * buffers, for another thread: it filters exactly as bp does. NULL with err
+ * filled (RT_ERR_NOMEM) when memory runs out. Thread-safe while bp is not
+ * being freed (the copy only reads bp). */
+rt_bandpass *rt_bandpass_clone(const rt_bandpass *bp, rt_error *err);
+
 /* Frees the filter, its buffers and its hold on the plan cache; bp may be NULL. */
 void rt_bandpass_free(rt_bandpass *bp);
 

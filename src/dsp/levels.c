@@ -3,6 +3,7 @@
 #include "levels.h"
 
 #include <math.h>
+#include <stdbool.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -47,8 +48,9 @@ static int compare_double(const void *a, const void *b)
     return (x > y) - (x < y);
 }
 
-/* Hoare's selection: places the k-th smallest at v[k]. */
-static double select_kth(double *v, size_t n, size_t k)
+/* Hoare's selection: places the k-th smallest at v[k]. Kept for arrays
+ * holding NaN, which have no order: there the quantile is what this gives. */
+static double select_kth_hoare(double *v, size_t n, size_t k)
 {
     size_t lo = 0, hi = n - 1;
     while (lo < hi) {
@@ -79,6 +81,90 @@ static double select_kth(double *v, size_t n, size_t k)
     return v[k];
 }
 
+/* Moves the elements of v[lo..hi] that pass (x < p, or x <= p with
+ * or_equal) to the front, without branches on the data (a comparison's
+ * outcome cannot be guessed on noise); returns where the others begin. Up to
+ * PARTITION_STACK elements go through a buffer, filled from both ends, so that
+ * no store waits for the one before it; longer ranges are swapped in place. */
+enum { PARTITION_STACK = 1024 };
+
+static size_t partition(double *v, size_t lo, size_t hi, double p, bool or_equal)
+{
+    size_t len = hi - lo + 1;
+    if (len <= PARTITION_STACK) {
+        double tmp[PARTITION_STACK];
+        size_t a = 0, b = len;
+        for (size_t j = lo; j <= hi; j++) {
+            double x = v[j];
+            size_t in = or_equal ? (size_t)(x <= p) : (size_t)(x < p);
+            tmp[a] = x;
+            tmp[b - 1] = x;
+            a += in;
+            b -= 1 - in;
+        }
+        memcpy(v + lo, tmp, len * sizeof *tmp);
+        return lo + a;
+    }
+    size_t store = lo;
+    for (size_t j = lo; j <= hi; j++) {
+        double x = v[j];
+        size_t in = or_equal ? (size_t)(x <= p) : (size_t)(x < p);
+        v[j] = v[store];
+        v[store] = x;
+        store += in;
+    }
+    return store;
+}
+
+static double median3(double a, double b, double c)
+{
+    if (a > b) {
+        double t = a;
+        a = b;
+        b = t;
+    }
+    return c <= a ? a : c >= b ? b : c;
+}
+
+/* Places the k-th smallest of v[0..n) (no NaN) at v[k], everything before it
+ * no larger and everything after it no smaller. The value is the k-th order
+ * statistic whatever the algorithm: this one partitions without branches,
+ * around a median of three, and splits off the elements equal to the pivot
+ * so that repeated values cannot make it quadratic. */
+static double select_kth(double *v, size_t n, size_t k)
+{
+    size_t lo = 0, hi = n - 1;
+    while (lo < hi) {
+        double p = median3(v[lo], v[lo + (hi - lo) / 2], v[hi]);
+        size_t less = partition(v, lo, hi, p, false); /* [lo, less) < p <= [less, hi] */
+        if (k < less) {
+            hi = less - 1;
+            continue;
+        }
+        size_t equal = partition(v, less, hi, p, true); /* [less, equal) == p < [equal, hi] */
+        if (k < equal)
+            return v[k];
+        lo = equal;
+    }
+    return v[k];
+}
+
+/* Type-7 quantile of v[0..n) with a selection function. */
+static double quantile_with(double *v, size_t n, double q, double (*select)(double *, size_t, size_t))
+{
+    double pos = q * (double)(n - 1);
+    size_t i = (size_t)floor(pos);
+    if (i >= n - 1)
+        return select(v, n, n - 1);
+    double a = select(v, n, i);
+    /* after selection everything above i is >= a: the next order statistic is their minimum */
+    double b = v[i + 1];
+    for (size_t j = i + 2; j < n; j++)
+        if (v[j] < b)
+            b = v[j];
+    return a + (pos - (double)i) * (b - a);
+}
+
 double rt_quantile(double *v, size_t n, double q)
 {
     if (n == 1)
@@ -91,17 +177,10 @@ double rt_quantile(double *v, size_t n, double q)
             return v[n - 1];
         return v[i] + (pos - (double)i) * (v[i + 1] - v[i]);
     }
-    double pos = q * (double)(n - 1);
-    size_t i = (size_t)floor(pos);
-    if (i >= n - 1)
-        return select_kth(v, n, n - 1);
-    double a = select_kth(v, n, i);
-    /* after selection everything above i is >= a: the next order statistic is their minimum */
-    double b = v[i + 1];
-    for (size_t j = i + 2; j < n; j++)
-        if (v[j] < b)
-            b = v[j];
-    return a + (pos - (double)i) * (b - a);
+    bool nan = false;
+    for (size_t j = 0; j < n; j++)
+        nan |= v[j] != v[j];
+    return quantile_with(v, n, q, nan ? select_kth_hoare : select_kth);
 }
 
 void rt_block_quantiles(const double *env, const size_t *starts, size_t n_blocks, double q,

@@ -292,15 +292,14 @@ static size_t keep_shaped_beats(const double *x, size_t n, double rate, double *
  * passes only with a template that explains most of the energy. The share is
  * measured on the chin band-passed 10-100 Hz like the scorer's EMG. */
 static rt_status chin_evidence(const double *x, size_t n, double rate, rt_qrs_beats *beats,
-                               size_t nb, bool *cardiac, rt_error *err)
+                               size_t nb, double *y, bool *cardiac, rt_error *err)
 {
     *cardiac = false;
     beats->candidates = nb;
     size_t a = (size_t)lround(RT_ECG_PRE_S * rate), b = (size_t)lround(RT_ECG_POST_S * rate);
-    double *y = malloc(n * sizeof *y), *scratch = malloc(2 * (nb + 1) * sizeof *scratch),
+    double *scratch = malloc(2 * (nb + 1) * sizeof *scratch),
            *tpl = malloc((a + b + 1) * sizeof *tpl);
-    if (!y || !scratch || !tpl) {
-        free(y);
+    if (!scratch || !tpl) {
         free(scratch);
         free(tpl);
         return rt_fail(err, RT_ERR_NOMEM, "QRS detector: out of memory for %zu samples", n);
@@ -322,7 +321,6 @@ static rt_status chin_evidence(const double *x, size_t n, double rate, rt_qrs_be
                beats->locked_share >= ratio2 * beats->random_share &&
                (beats->rr_irregularity <= RT_QRS_CHIN_MAX_IRREGULARITY ||
                 beats->locked_share >= RT_QRS_CHIN_STRONG_SHARE);
-    free(y);
     free(scratch);
     free(tpl);
     return RT_OK;
@@ -330,6 +328,12 @@ static rt_status chin_evidence(const double *x, size_t n, double rate, rt_qrs_be
 
 rt_status rt_qrs_detect(const double *x_uv, size_t n, double rate_hz, bool from_chin,
                         rt_qrs_beats *beats, rt_error *err)
+{
+    return rt_qrs_detect_with(x_uv, n, rate_hz, from_chin, NULL, beats, err);
+}
+
+rt_status rt_qrs_detect_with(const double *x_uv, size_t n, double rate_hz, bool from_chin,
+                             double *work, rt_qrs_beats *beats, rt_error *err)
 {
     memset(beats, 0, sizeof *beats);
     beats->from_chin = from_chin;
@@ -343,15 +347,13 @@ rt_status rt_qrs_detect(const double *x_uv, size_t n, double rate_hz, bool from_
     for (size_t i = 0; i < n; i++)
         if (!isfinite(x_uv[i]))
             return rt_fail(err, RT_ERR_USAGE, "QRS detector: sample %zu is not finite", i);
-    double *bp = malloc(n * sizeof *bp), *deriv = malloc(n * sizeof *deriv),
-           *mwi = malloc(n * sizeof *mwi);
+    double *own = work ? NULL : malloc(3 * n * sizeof *own);
+    double *bp = work ? work : own, *deriv = bp ? bp + n : NULL, *mwi = bp ? bp + 2 * n : NULL;
     size_t cap = n / refractory + 2;
     size_t *peaks = malloc(cap * sizeof *peaks);
     beats->r_s = malloc(cap * sizeof *beats->r_s);
-    if (!bp || !deriv || !mwi || !peaks || !beats->r_s) {
-        free(bp);
-        free(deriv);
-        free(mwi);
+    if (!bp || !peaks || !beats->r_s) {
+        free(own);
         free(peaks);
         rt_qrs_beats_free(beats);
         return rt_fail(err, RT_ERR_NOMEM, "QRS detector: out of memory for %zu samples", n);
@@ -467,21 +469,20 @@ rt_status rt_qrs_detect(const double *x_uv, size_t n, double rate_hz, bool from_
     for (size_t k = 0; k < n_qrs; k++)
         if (m == 0 || beats->r_s[k] > beats->r_s[m - 1])
             beats->r_s[m++] = beats->r_s[k];
-    free(bp);
-    free(deriv);
-    free(mwi);
     free(peaks);
     beats->candidates = m;
-    if (from_chin && m > 0) {
-        bool cardiac = false;
-        rt_status st = chin_evidence(x_uv, n, rate_hz, beats, m, &cardiac, err);
-        if (st != RT_OK) {
-            rt_qrs_beats_free(beats);
-            return st;
-        }
-        if (!cardiac)
-            m = 0; /* no evidence of a heart: nothing to remove, nothing to veto */
+    bool cardiac = true;
+    rt_status st = RT_OK;
+    /* the detector's arrays are free again: the first holds the filtered chin */
+    if (from_chin && m > 0)
+        st = chin_evidence(x_uv, n, rate_hz, beats, m, bp, &cardiac, err);
+    free(own);
+    if (st != RT_OK) {
+        rt_qrs_beats_free(beats);
+        return st;
     }
+    if (!cardiac)
+        m = 0; /* no evidence of a heart: nothing to remove, nothing to veto */
     beats->n = m;
     if (m >= 2)
         beats->mean_rr_s = (beats->r_s[m - 1] - beats->r_s[0]) / (double)(m - 1);

@@ -193,6 +193,11 @@ typedef struct rt_qrs_beats {
 rt_status rt_qrs_detect(const double *x_uv, size_t n, double rate_hz, bool from_chin,
                         rt_qrs_beats *beats, rt_error *err);
 
+/* rt_qrs_detect with its working arrays in work (3 n doubles, the caller's,
+ * reused from call to call; NULL: allocated and freed here). */
+rt_status rt_qrs_detect_with(const double *x_uv, size_t n, double rate_hz, bool from_chin,
+                             double *work, rt_qrs_beats *beats, rt_error *err);
+
 /* Frees beats->r_s and clears *beats; accepts NULL. */
 void rt_qrs_beats_free(rt_qrs_beats *beats);
 

@@ -8,6 +8,7 @@
 
 #include "detect.h"
 #include "internal.h"
+#include "pages.h"
 
 /* The mains estimate needs a few seconds; 5 minutes of the first REM bout
  * give a stable spectrum at little cost (docs/quality.md). */
@@ -48,11 +49,16 @@ static rt_status grow_pair(double **a, double **b, size_t *cap, size_t need, rt_
     return RT_OK;
 }
 
-/* Reads [first, first + n) of a role, or fails with the reader's message. */
+/* Reads [first, first + n) of a role into *buf (with *scratch for a bipolar
+ * derivation; both grown as pages.h arrays), or fails with the reader's
+ * message. */
 static rt_status read_raw(rt_recording *rec, const rt_role_source *src, long long first, size_t n,
-                          double **buf, double **scratch, size_t *cap, rt_error *err)
+                          double **buf, size_t *buf_cap, double **scratch, size_t *scratch_cap,
+                          rt_error *err)
 {
-    rt_status st = grow_pair(buf, scratch, cap, n + 1, err);
+    rt_status st = rt_pages_reserve(buf, buf_cap, n + 1, err);
+    if (st == RT_OK)
+        st = rt_pages_reserve(scratch, scratch_cap, n + 1, err);
     return st == RT_OK ? rt_role_read_uv(rec, src, first, n, *buf, *scratch, err) : st;
 }
 
@@ -93,12 +99,12 @@ rt_status rt_conditioner_open(rt_recording *rec, const rt_role_source *src,
         long long first = llround(probe_t0_s * src->rate_hz);
         size_t n = (size_t)(llround((probe_t0_s + seconds) * src->rate_hz) - first);
         double *x = NULL, *scratch = NULL;
-        size_t cap = 0;
-        rt_status st = read_raw(rec, src, first, n, &x, &scratch, &cap, err);
+        size_t x_cap = 0, scratch_cap = 0;
+        rt_status st = read_raw(rec, src, first, n, &x, &x_cap, &scratch, &scratch_cap, err);
         if (st == RT_OK)
             st = rt_mains_estimate(x, n, src->rate_hz, spec.low_hz, spec.high_hz, &c->mains, err);
-        free(x);
-        free(scratch);
+        rt_pages_free(x, x_cap);
+        rt_pages_free(scratch, scratch_cap);
         if (st != RT_OK)
             return st;
         rt_mains_apply(&c->mains, &spec);
@@ -107,6 +113,13 @@ rt_status rt_conditioner_open(rt_recording *rec, const rt_role_source *src,
     if (!c->bp)
         return err ? err->status : RT_ERR_NOMEM;
     return RT_OK;
+}
+
+rt_status rt_conditioner_copy(const rt_conditioner *from, rt_conditioner *c, rt_error *err)
+{
+    *c = *from;
+    c->bp = rt_bandpass_clone(from->bp, err);
+    return c->bp ? RT_OK : err ? err->status : RT_ERR_NOMEM;
 }
 
 void rt_conditioner_close(rt_conditioner *c)
@@ -133,6 +146,27 @@ static void padded(long long first, long long last, double rate_hz, long long to
 rt_status rt_condition_beats(rt_recording *rec, const rt_role_map *roles, double t0_s,
                              size_t seconds, rt_qrs_beats *beats, int *source, rt_error *err)
 {
+    rt_beats_work work;
+    memset(&work, 0, sizeof work);
+    rt_status st = rt_condition_beats_with(rec, roles, t0_s, seconds, &work, beats, source, err);
+    rt_beats_work_free(&work);
+    return st;
+}
+
+void rt_beats_work_free(rt_beats_work *work)
+{
+    if (!work)
+        return;
+    rt_pages_free(work->x, work->x_cap);
+    rt_pages_free(work->scratch, work->scratch_cap);
+    rt_pages_free(work->detector, work->detector_cap);
+    memset(work, 0, sizeof *work);
+}
+
+rt_status rt_condition_beats_with(rt_recording *rec, const rt_role_map *roles, double t0_s,
+                                  size_t seconds, rt_beats_work *w, rt_qrs_beats *beats,
+                                  int *source, rt_error *err)
+{
     memset(beats, 0, sizeof *beats);
     *source = 0;
     const rt_role_source *ecg = &roles->role[RT_ROLE_ECG];
@@ -146,15 +180,13 @@ rt_status rt_condition_beats(rt_recording *rec, const rt_role_map *roles, double
     long long pf, pl;
     padded(first, last, rate, rt_recording_channel(rec, src->channel)->n_samples, &pf, &pl);
     size_t n = (size_t)(pl - pf);
-    double *x = NULL, *scratch = NULL;
-    size_t cap = 0;
-    rt_status st = read_raw(rec, src, pf, n, &x, &scratch, &cap, err);
+    rt_status st = read_raw(rec, src, pf, n, &w->x, &w->x_cap, &w->scratch, &w->scratch_cap, err);
+    if (st == RT_OK)
+        st = rt_pages_reserve(&w->detector, &w->detector_cap, 3 * n, err);
     /* without an ECG channel the beats come from the raw chin, before the
      * 10-Hz high-pass takes most of the QRS band away */
     if (st == RT_OK)
-        st = rt_qrs_detect(x, n, rate, from_chin, beats, err);
-    free(x);
-    free(scratch);
+        st = rt_qrs_detect_with(w->x, n, rate, from_chin, w->detector, beats, err);
     if (st != RT_OK)
         return st;
     double shift = (double)pf / rate;
@@ -217,9 +249,49 @@ static rt_status remove_ecg(rt_stretch *s, size_t n_padded, double padded_t0_s,
     return st;
 }
 
+/* The marks a caller already has for this stretch. */
+static rt_status known_marks(rt_stretch *s, const rt_stretch_request *req, rt_error *err)
+{
+    rt_status st = grow((void **)&s->marks, &s->marks_cap, req->n_marks + 1, sizeof *s->marks, err);
+    if (st != RT_OK)
+        return st;
+    if (req->n_marks)
+        memcpy(s->marks, req->marks, req->n_marks * sizeof *s->marks);
+    s->n_marks = req->n_marks;
+    return RT_OK;
+}
+
+/* Prefix sums of the rectified stretch and each second's mean. */
+static rt_status rectified_sums(rt_stretch *s, const double *x, rt_error *err)
+{
+    rt_status st = rt_pages_reserve(&s->rect_cum, &s->cum_cap, s->n + 1, err);
+    if (st != RT_OK)
+        return st;
+    double sum = 0.0;
+    s->rect_cum[0] = 0.0;
+    for (size_t i = 0; i < s->n; i++) {
+        sum += fabs(x[i]);
+        s->rect_cum[i + 1] = sum;
+    }
+    for (size_t j = 0; j < s->seconds; j++) {
+        size_t len = s->starts[j + 1] - s->starts[j];
+        s->rect_mean_uv[j] =
+            len ? (s->rect_cum[s->starts[j + 1]] - s->rect_cum[s->starts[j]]) / (double)len : 0.0;
+    }
+    return RT_OK;
+}
+
 rt_status rt_condition_stretch(const rt_conditioner *c, double t0_s, size_t seconds,
                                const rt_qrs_beats *beats, rt_stretch *s, rt_error *err)
 {
+    return rt_condition_stretch_for(c, t0_s, seconds, beats, NULL, s, err);
+}
+
+rt_status rt_condition_stretch_for(const rt_conditioner *c, double t0_s, size_t seconds,
+                                   const rt_qrs_beats *beats, const rt_stretch_request *req,
+                                   rt_stretch *s, rt_error *err)
+{
+    unsigned need = req ? req->need : RT_STRETCH_ALL;
     double rate = c->src.rate_hz;
     long long first = llround(t0_s * rate), last = llround((t0_s + (double)seconds) * rate);
     long long pf, pl;
@@ -229,11 +301,13 @@ rt_status rt_condition_stretch(const rt_conditioner *c, double t0_s, size_t seco
     s->seconds = seconds;
     s->rate_hz = rate;
     s->n = (size_t)(last - first);
-    rt_status st = read_raw(c->rec, &c->src, pf, n_padded, &s->buf, &s->scratch, &s->cap, err);
+    rt_status st = read_raw(c->rec, &c->src, pf, n_padded, &s->buf, &s->cap, &s->scratch,
+                            &s->scratch_cap, err);
     if (st == RT_OK)
         st = reserve_seconds(s, seconds, err);
     if (st == RT_OK)
-        st = stretch_marks(c, s, n_padded, (double)off / rate, err);
+        st = req && req->marks ? known_marks(s, req, err)
+                               : stretch_marks(c, s, n_padded, (double)off / rate, err);
     if (st == RT_OK)
         st = rt_bandpass_apply(c->bp, s->buf, n_padded, err);
     if (st == RT_OK)
@@ -242,31 +316,18 @@ rt_status rt_condition_stretch(const rt_conditioner *c, double t0_s, size_t seco
         return st;
     for (size_t j = 0; j <= seconds; j++)
         s->starts[j] = (size_t)(llround((t0_s + (double)j) * rate) - first);
-    if (s->cum_cap < s->n + 1) {
-        double *cum = realloc(s->rect_cum, (s->n + 1) * sizeof *cum);
-        if (!cum)
-            return rt_fail(err, RT_ERR_NOMEM, "out of memory for %zu samples", s->n + 1);
-        s->rect_cum = cum;
-        s->cum_cap = s->n + 1;
-    }
-    const double *x = s->buf + off;
-    double sum = 0.0;
-    s->rect_cum[0] = 0.0;
-    for (size_t i = 0; i < s->n; i++) {
-        sum += fabs(x[i]);
-        s->rect_cum[i + 1] = sum;
-    }
-    for (size_t j = 0; j < seconds; j++) {
-        size_t len = s->starts[j + 1] - s->starts[j];
-        s->rect_mean_uv[j] =
-            len ? (s->rect_cum[s->starts[j + 1]] - s->rect_cum[s->starts[j]]) / (double)len : 0.0;
+    if (need & RT_STRETCH_SUMS) {
+        st = rectified_sums(s, s->buf + off, err);
+        if (st != RT_OK)
+            return st;
     }
     rt_envelope(s->buf, n_padded, c->envelope_window, s->buf, s->scratch);
     s->env = s->buf + off;
     /* a stride of a quarter window: the envelope barely moves in between */
     size_t stride = c->envelope_window / 4 ? c->envelope_window / 4 : 1;
-    rt_block_quantiles(s->env, s->starts, seconds, c->level_quantile, stride, s->level_uv,
-                       s->scratch);
+    if (need & RT_STRETCH_LEVELS)
+        rt_block_quantiles(s->env, s->starts, seconds, c->level_quantile, stride, s->level_uv,
+                           s->scratch);
     return RT_OK;
 }
 
@@ -274,12 +335,12 @@ void rt_stretch_free(rt_stretch *s)
 {
     if (!s)
         return;
-    free(s->buf);
-    free(s->scratch);
+    rt_pages_free(s->buf, s->cap);
+    rt_pages_free(s->scratch, s->scratch_cap);
     free(s->starts);
     free(s->level_uv);
     free(s->rect_mean_uv);
-    free(s->rect_cum);
+    rt_pages_free(s->rect_cum, s->cum_cap);
     free(s->marks);
     free(s->qrs);
     memset(s, 0, sizeof *s);

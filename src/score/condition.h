@@ -52,6 +52,12 @@ rt_status rt_conditioner_open(rt_recording *rec, const rt_role_source *src,
                               rt_conditioner *c, rt_error *err);
 void rt_conditioner_close(rt_conditioner *c);
 
+/* A copy of an open conditioner for another thread: the same channel, mains
+ * estimate and response, with a band-pass of its own (a filter keeps scratch
+ * buffers), so both condition every stretch to the same samples. Close it
+ * with rt_conditioner_close; on failure nothing is left to free. */
+rt_status rt_conditioner_copy(const rt_conditioner *from, rt_conditioner *c, rt_error *err);
+
 /* Heart beats for a stretch: R peaks from the ECG role when the recording has
  * one, otherwise from the raw chin (Pan & Tompkins 1985), detected over the
  * padded stretch. Times are seconds from the recording start. *source is 0
@@ -59,6 +65,21 @@ void rt_conditioner_close(rt_conditioner *c);
  * rt_qrs_beats_free. */
 rt_status rt_condition_beats(rt_recording *rec, const rt_role_map *roles, double t0_s,
                              size_t seconds, rt_qrs_beats *beats, int *source, rt_error *err);
+
+/* Buffers for rt_condition_beats_with, kept from call to call (grown on
+ * demand) so that a scorer reading bout after bout allocates them once.
+ * Start from all zeros; free with rt_beats_work_free. */
+typedef struct rt_beats_work {
+    double *x, *scratch;     /* the padded stretch read, and the reader's scratch */
+    double *detector;        /* the QRS detector's arrays: 3 per sample */
+    size_t x_cap, scratch_cap, detector_cap;
+} rt_beats_work;
+
+/* rt_condition_beats with the caller's buffers. */
+rt_status rt_condition_beats_with(rt_recording *rec, const rt_role_map *roles, double t0_s,
+                                  size_t seconds, rt_beats_work *work, rt_qrs_beats *beats,
+                                  int *source, rt_error *err);
+void rt_beats_work_free(rt_beats_work *work);
 
 /* One conditioned stretch [t0, t0 + seconds) of a channel. Arrays are owned
  * by the struct and reused across calls (grown on demand); every position is
@@ -78,9 +99,9 @@ typedef struct rt_stretch {
     rt_time_span *qrs;        /* QRS windows relative to t0 (only when ECG was found) */
     size_t n_qrs;
     rt_ecg_removal ecg;       /* what the template subtraction found */
-    /* private */
+    /* private: buf, scratch and rect_cum are pages.h arrays */
     double *buf, *scratch;
-    size_t cap, sec_cap, marks_cap, qrs_cap, cum_cap;
+    size_t cap, scratch_cap, sec_cap, marks_cap, qrs_cap, cum_cap;
 } rt_stretch;
 
 /* Conditions [t0_s, t0_s + seconds) of c's channel into *out, with the beats
@@ -88,6 +109,27 @@ typedef struct rt_stretch {
  * call with the same arguments gives the same samples, whoever calls it. */
 rt_status rt_condition_stretch(const rt_conditioner *c, double t0_s, size_t seconds,
                                const rt_qrs_beats *beats, rt_stretch *out, rt_error *err);
+
+/* What a caller needs of a stretch besides the envelope, the marks and the
+ * QRS windows, which every stretch has. Leaving a part out leaves its arrays
+ * unset; what is made is the same as rt_condition_stretch makes. */
+enum {
+    RT_STRETCH_LEVELS = 1u << 0, /* level_uv */
+    RT_STRETCH_SUMS = 1u << 1,   /* rect_cum and rect_mean_uv */
+    RT_STRETCH_ALL = RT_STRETCH_LEVELS | RT_STRETCH_SUMS
+};
+
+typedef struct rt_stretch_request {
+    unsigned need;                /* RT_STRETCH_* bits */
+    const rt_quality_mark *marks; /* the marks an earlier call on the same conditioner, t0_s and
+                                     seconds found (its out->marks), or NULL: find them */
+    size_t n_marks;
+} rt_stretch_request;
+
+/* rt_condition_stretch making only what req asks for (NULL: everything). */
+rt_status rt_condition_stretch_for(const rt_conditioner *c, double t0_s, size_t seconds,
+                                   const rt_qrs_beats *beats, const rt_stretch_request *req,
+                                   rt_stretch *out, rt_error *err);
 void rt_stretch_free(rt_stretch *s);
 
 /* True when a quality mark of s overlaps [a_s, b_s) (relative to t0). */

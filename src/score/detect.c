@@ -3,6 +3,7 @@
 #include "detect.h"
 
 #include <math.h>
+#include <stdbool.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -174,29 +175,53 @@ static void refine_edges(const double *cum, size_t n, size_t window, double half
     }
 }
 
-size_t rt_find_bursts(const rt_burst_signal *sig, const rt_burst_rule *rule, size_t merge_gap,
-                      rt_span *spans, size_t cap, double *scratch)
+/* The first sample from i on at k x background, or n: block by block, with
+ * the block's threshold computed once (at_threshold's own expression). */
+static size_t next_at_threshold(const rt_burst_signal *sig, size_t i, double k, size_t *cursor)
+{
+    const double *env = sig->env;
+    size_t n = sig->n;
+    size_t b = block_of(i, sig->starts, sig->n_blocks, cursor);
+    while (i < n) {
+        size_t end = b + 1 < sig->n_blocks ? sig->starts[b + 1] : n;
+        double level = k * sig->background[b] * (1.0 - RT_RATIO_SLACK);
+        for (; i < end; i++)
+            if (env[i] >= level)
+                return i;
+        if (b + 1 >= sig->n_blocks)
+            break;
+        b++;
+        *cursor = b;
+    }
+    return n;
+}
+
+/* The rules of one scan: they share k and the envelope window, so they share
+ * every candidate run and its measured edges and amplitude; only the
+ * duration limits differ. */
+enum { MAX_RULES = 8 };
+
+static void scan_group(const rt_burst_signal *sig, const rt_burst_rule *rules,
+                       const size_t *members, size_t n_members, size_t merge_gap,
+                       rt_span *const *spans, size_t cap, size_t *found, double *scratch)
 {
     const double *env = sig->env, *background = sig->background;
     const size_t *starts = sig->starts;
     size_t n = sig->n, n_blocks = sig->n_blocks;
     double rate_hz = sig->rate_hz;
-    size_t found = 0;
+    double k = rules[members[0]].k;
+    size_t window = rules[members[0]].window;
     size_t cursor = 0;
     size_t i = 0;
-    double tolerance = rule->tolerance_s * rate_hz + 0.5; /* samples */
-    size_t window = rule->window;
     while (i < n) {
-        size_t b = block_of(i, starts, n_blocks, &cursor);
-        if (!at_threshold(env[i], background[b], rule->k)) {
-            i++;
-            continue;
-        }
+        i = next_at_threshold(sig, i, k, &cursor);
+        if (i >= n)
+            break;
         /* grow the run, bridging gaps shorter than merge_gap */
         size_t first = i, last = i, j = i + 1, gap = 0;
         while (j < n) {
             size_t bj = block_of(j, starts, n_blocks, &cursor);
-            if (at_threshold(env[j], background[bj], rule->k)) {
+            if (at_threshold(env[j], background[bj], k)) {
                 last = j;
                 gap = 0;
             } else if (++gap >= merge_gap) {
@@ -219,19 +244,52 @@ size_t rt_find_bursts(const rt_burst_signal *sig, const rt_burst_rule *rule, siz
         /* the burst's own amplitude must reach k: noise peaks on a stretch
          * below k cross the threshold only briefly (docs/scoring.md, "Bursts") */
         double amplitude = burst_amplitude(env, n, start, end, bg, window);
-        if (at_threshold(amplitude, bg, rule->k) && dur >= rule->min_s * rate_hz - tolerance &&
-            dur <= rule->max_s * rate_hz + tolerance) {
-            if (found < cap) {
-                spans[found].start = start;
-                spans[found].end = end;
-                spans[found].ratio = bg > 0 ? amplitude / bg : INFINITY;
+        for (size_t m = 0; m < n_members; m++) {
+            size_t r = members[m];
+            const rt_burst_rule *rule = &rules[r];
+            double tolerance = rule->tolerance_s * rate_hz + 0.5; /* samples */
+            if (at_threshold(amplitude, bg, rule->k) && dur >= rule->min_s * rate_hz - tolerance &&
+                dur <= rule->max_s * rate_hz + tolerance) {
+                if (found[r] < cap) {
+                    spans[r][found[r]].start = start;
+                    spans[r][found[r]].end = end;
+                    spans[r][found[r]].ratio = bg > 0 ? amplitude / bg : INFINITY;
+                }
+                found[r]++;
             }
-            found++;
         }
         /* continue after the measured extent so one burst is counted once */
         size_t next = (size_t)ceil(end);
         i = next > last + 1 ? next : last + 1;
     }
+}
+
+void rt_find_bursts_rules(const rt_burst_signal *sig, const rt_burst_rule *rules, size_t n_rules,
+                          size_t merge_gap, rt_span *const *spans, size_t cap, size_t *found,
+                          double *scratch)
+{
+    bool done[MAX_RULES] = {false};
+    for (size_t r = 0; r < n_rules; r++)
+        found[r] = 0;
+    for (size_t r = 0; r < n_rules && r < MAX_RULES; r++) {
+        if (done[r])
+            continue;
+        size_t members[MAX_RULES], n_members = 0;
+        for (size_t q = r; q < n_rules && q < MAX_RULES; q++)
+            if (!done[q] && rules[q].k == rules[r].k && rules[q].window == rules[r].window) {
+                members[n_members++] = q;
+                done[q] = true;
+            }
+        scan_group(sig, rules, members, n_members, merge_gap, spans, cap, found, scratch);
+    }
+}
+
+size_t rt_find_bursts(const rt_burst_signal *sig, const rt_burst_rule *rule, size_t merge_gap,
+                      rt_span *spans, size_t cap, double *scratch)
+{
+    rt_span *const out[1] = {spans};
+    size_t found = 0;
+    rt_find_bursts_rules(sig, rule, 1, merge_gap, out, cap, &found, scratch);
     return found;
 }
 
@@ -249,4 +307,18 @@ size_t rt_count_tonic(const double *env, size_t from, size_t to, const double *b
         count += (size_t)tonic;
     }
     return count;
+}
+
+void rt_count_tonic_blocks(const double *env, const double *background, const size_t *starts,
+                           size_t n_blocks, double rel, double abs_uv, size_t *counts)
+{
+    bool use_rel = rel > 0, use_abs = abs_uv > 0;
+    for (size_t b = 0; b < n_blocks; b++) {
+        /* at_threshold's level, once per block */
+        double level = rel * background[b] * (1.0 - RT_RATIO_SLACK);
+        size_t count = 0;
+        for (size_t i = starts[b]; i < starts[b + 1]; i++)
+            count += (size_t)((use_rel && env[i] >= level) | (use_abs && env[i] > abs_uv));
+        counts[b] = count;
+    }
 }

@@ -48,10 +48,24 @@ typedef struct rt_burst_signal {
 size_t rt_find_bursts(const rt_burst_signal *sig, const rt_burst_rule *rule, size_t merge_gap,
                       rt_span *spans, size_t cap, double *scratch);
 
+/* rt_find_bursts for several rules (at most 8) on one signal: rule r's spans
+ * go to spans[r] (cap each), their number to found[r]. Rules with the same k
+ * and window share one scan, since their candidate runs, edges and
+ * amplitudes are the same; each is then kept by its own duration limits, so
+ * every rule finds exactly what rt_find_bursts finds for it alone. */
+void rt_find_bursts_rules(const rt_burst_signal *sig, const rt_burst_rule *rules, size_t n_rules,
+                          size_t merge_gap, rt_span *const *spans, size_t cap, size_t *found,
+                          double *scratch);
+
 /* Number of samples in [from, to) whose envelope is at the tonic level: at or
  * above rel x background, or above abs_uv (abs_uv <= 0: relative only;
  * rel <= 0: absolute only). */
 size_t rt_count_tonic(const double *env, size_t from, size_t to, const double *background,
                       const size_t *starts, size_t n_blocks, double rel, double abs_uv);
+
+/* rt_count_tonic of every block: counts[b] for [starts[b], starts[b+1]), so
+ * that a stretch of whole blocks counts as the sum of its blocks. */
+void rt_count_tonic_blocks(const double *env, const double *background, const size_t *starts,
+                           size_t n_blocks, double rel, double abs_uv, size_t *counts);
 
 #endif

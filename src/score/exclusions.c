@@ -103,11 +103,19 @@ void rt_exclusions_free(rt_exclusion_masks *m)
     memset(m, 0, sizeof *m);
 }
 
-rt_status rt_exclusions_mark_role(rt_exclusion_masks *m, rt_role role, size_t first, size_t n,
-                                  unsigned bits, rt_error *err)
+rt_status rt_exclusions_reserve_role(rt_exclusion_masks *m, rt_role role, rt_error *err)
 {
     if (!m->role[role] && !(m->role[role] = rt_calloc(m->n_seconds, sizeof *m->global)))
         return rt_fail(err, RT_ERR_NOMEM, "out of memory for exclusion masks");
+    return RT_OK;
+}
+
+rt_status rt_exclusions_mark_role(rt_exclusion_masks *m, rt_role role, size_t first, size_t n,
+                                  unsigned bits, rt_error *err)
+{
+    rt_status st = rt_exclusions_reserve_role(m, role, err);
+    if (st != RT_OK)
+        return st;
     for (size_t j = first; j < first + n && j < m->n_seconds; j++)
         m->role[role][j] |= (unsigned short)bits;
     return RT_OK;

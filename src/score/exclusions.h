@@ -26,6 +26,10 @@ rt_status rt_exclusions_build(const rt_timeline *tl, const rt_score_params *p,
                               rt_exclusion_masks *masks, rt_error *err);
 void rt_exclusions_free(rt_exclusion_masks *masks);
 
+/* Makes room for one role's own reasons ahead of time, so that threads
+ * marking different seconds of the role never allocate it at once. */
+rt_status rt_exclusions_reserve_role(rt_exclusion_masks *masks, rt_role role, rt_error *err);
+
 /* Adds reasons for one role to REM seconds [first, first + n). */
 rt_status rt_exclusions_mark_role(rt_exclusion_masks *masks, rt_role role, size_t first, size_t n,
                                   unsigned bits, rt_error *err);

@@ -7,8 +7,13 @@
  *          bursts and tonic shares against that background, quality marks,
  *          the REM Atonia Index counts.
  * The indices and the review level are computed from the labels in
- * indices.c. */
+ * indices.c. Each pass is a list of items (one stretch of one role, or the
+ * beats of one bout) that worker threads share (common/parallel.c); an item
+ * writes only its own results and its own bout's and role's labels, and the
+ * results are gathered in the order of the sequential loop, so the night does
+ * not depend on the number of threads. */
 #include <math.h>
+#include <stdint.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -18,8 +23,10 @@
 #include "exclusions.h"
 #include "internal.h"
 #include "night_internal.h"
+#include "parallel.h"
 #include "quality/quality.h"
 #include "rai.h"
+
 
 #define MINI3_PER_EPOCH 10
 #define MINI2_PER_EPOCH 15
@@ -28,11 +35,83 @@
 static bool is_emg(rt_role r) { return r != RT_ROLE_ECG; }
 static bool is_nrem(unsigned char s) { return s == RT_STAGE_N1 || s == RT_STAGE_N2 || s == RT_STAGE_N3; }
 
+/* The rule sets' bursts: AASM, SINBAR, Montreal. */
+#define BURST_RULES 3
+
+/* What one worker thread owns: conditioners with a band-pass of its own (a
+ * filter keeps scratch buffers), the stretch buffers and the per-second
+ * arrays of the bout it labels. Worker 0 uses the night's own conditioners. */
+typedef struct worker_ctx {
+    rt_conditioner cond[RT_ROLE_COUNT];
+    bool copied[RT_ROLE_COUNT]; /* cond[r] is this worker's copy, closed with it */
+    rt_stretch st;
+    rt_beats_work beats;     /* the beats' read and detector buffers */
+    double *bg;              /* background per second of the current bout */
+    size_t *tonic;           /* samples at the tonic level, per second of the bout */
+    size_t *above;           /* samples above the AASM chin level, per second */
+    size_t bg_cap;
+    rt_span *spans[BURST_RULES]; /* each rule's bursts in the current bout */
+    size_t span_cap;
+} worker_ctx;
+
+/* A quality mark's REM minutes, added to its channel's total in the merge. */
+typedef struct marked_minutes {
+    rt_quality_reason reason;
+    double minutes;
+} marked_minutes;
+
+/* What one item found. Items write only here and into the mini-epochs,
+ * epochs and exclusion seconds of their own bout and role; the merge adds the
+ * rest to the night in the sequential order (bout, then role, then rule), so
+ * sums and lists come out the same for any number of threads. */
+typedef struct item_out {
+    rt_level_point *points;  /* NREM runs and pass 1: each scorable second's level */
+    size_t n_points;
+    rt_quality_mark *marks;  /* pass 1: the stretch's quality marks, which pass 2 reuses */
+    size_t n_marks;
+    double *medians;         /* NREM runs of the chin: each unmarked epoch's median envelope */
+    size_t n_medians;
+    rt_burst *bursts;        /* pass 2 */
+    size_t n_bursts, burst_cap;
+    marked_minutes *marked;  /* pass 2: the quality marks, in order */
+    size_t n_marked, marked_cap;
+    size_t vetoed;           /* pass 2: SINBAR bursts refused at QRS complexes */
+    bool ecg_found, ecg_removed;
+    rt_rai_counts rai;       /* pass 2, chin */
+    size_t montreal_windows, montreal_tonic; /* pass 2, chin */
+} item_out;
+
+typedef enum item_kind {
+    ITEM_NREM,   /* a run of NREM epochs of one role: levels (drift) and the chin's reference */
+    ITEM_BEATS,  /* the heart beats of one REM bout */
+    ITEM_LEVELS, /* pass 1: one bout of one role */
+    ITEM_LABELS  /* pass 2: one bout of one role */
+} item_kind;
+
+typedef struct item {
+    item_kind kind;
+    rt_role role;
+    size_t bout;             /* REM items: the bout */
+    size_t first_epoch;      /* ITEM_NREM: the run */
+    size_t epochs;
+} item;
+
+/* One job of the pool: items, their place in the sequential order, their
+ * cost (seconds conditioned) and their results. */
+typedef struct item_list {
+    item *items;
+    size_t *rank;
+    double *cost;
+    item_out *outs;
+    size_t n, cap;
+} item_list;
+
 /* What both passes share: the conditioners, the beats of each bout, the
- * stretch buffers and the per-second arrays of the bout being labelled. */
+ * workers and the per-second levels gathered for the background fit. */
 typedef struct pass_ctx {
     rt_recording *rec;
     const rt_role_map *roles;
+    const rt_timeline *tl;
     rt_night *night;
     scoring_state *ss;
     bout_span *bouts;
@@ -40,11 +119,10 @@ typedef struct pass_ctx {
     bool cond_open[RT_ROLE_COUNT];
     rt_qrs_beats *beats;     /* per bout */
     int *beats_source;       /* per bout */
-    rt_stretch st;
-    double *bg;              /* background per second of the current bout */
-    size_t bg_cap;
-    rt_span *spans;
-    size_t span_cap;
+    worker_ctx *workers;
+    unsigned n_workers;
+    const item_list *job;    /* the job the pool is running */
+    const item_list *levels; /* pass 1's items, in the order of pass 2's: their marks */
     rt_level_point *points[RT_ROLE_COUNT]; /* pass 1: scorable REM seconds */
     size_t n_points[RT_ROLE_COUNT];
     size_t *bout_first_point[RT_ROLE_COUNT]; /* per bout: its first entry in points, */
@@ -80,18 +158,28 @@ static void mark_minis(rt_mini *minis, size_t n_minis, double mini_s, double t0,
     }
 }
 
-static rt_status add_burst(rt_night *night, size_t *cap, rt_role role, double t0, double rate,
-                           const rt_span *s, unsigned rules, rt_error *err)
+/* Grows *p (elements of size bytes) to hold one more than *n. */
+static rt_status room_for_one(void **p, size_t *cap, size_t n, size_t size, rt_error *err)
 {
-    if (night->n_bursts == *cap) {
-        size_t ncap = *cap ? 2 * *cap : 256;
-        rt_burst *nb = realloc(night->bursts, ncap * sizeof *nb);
-        if (!nb)
-            return rt_fail(err, RT_ERR_NOMEM, "out of memory for bursts");
-        night->bursts = nb;
-        *cap = ncap;
-    }
-    rt_burst *b = &night->bursts[night->n_bursts++];
+    if (n < *cap)
+        return RT_OK;
+    size_t ncap = *cap ? 2 * *cap : 64;
+    void *q = realloc(*p, ncap * size);
+    if (!q)
+        return rt_fail(err, RT_ERR_NOMEM, "out of memory for the labels of a bout");
+    *p = q;
+    *cap = ncap;
+    return RT_OK;
+}
+
+static rt_status add_burst(item_out *o, rt_role role, double t0, double rate, const rt_span *s,
+                           unsigned rules, rt_error *err)
+{
+    rt_status st = room_for_one((void **)&o->bursts, &o->burst_cap, o->n_bursts,
+                                sizeof *o->bursts, err);
+    if (st != RT_OK)
+        return st;
+    rt_burst *b = &o->bursts[o->n_bursts++];
     b->role = role;
     b->onset_s = t0 + s->start / rate;
     b->duration_s = (s->end - s->start) / rate;
@@ -100,49 +188,54 @@ static rt_status add_burst(rt_night *night, size_t *cap, rt_role role, double t0
     return RT_OK;
 }
 
-/* One rule's bursts on the conditioned bout, marked on the grids it applies to. */
-static rt_status detect_rule(pass_ctx *c, rt_role role, const bout_span *bout,
-                             const rt_burst_rule *rule, unsigned label, rt_error *err)
+/* Each rule's bursts on the conditioned bout (rules sharing an amplitude
+ * share one scan), marked on the grids the rule applies to, rule by rule. */
+static rt_status detect_rules(const pass_ctx *c, worker_ctx *w, item_out *o, rt_role role,
+                              const bout_span *bout, const rt_burst_rule *rules,
+                              const unsigned *labels, rt_error *err)
 {
     rt_night *night = c->night;
-    const rt_stretch *st = &c->st;
+    const rt_stretch *st = &w->st;
     double rate = st->rate_hz;
     size_t merge = (size_t)llround(night->params.burst_merge_gap_s * rate);
-    rt_burst_signal sig = {st->env, st->rect_cum, st->n, c->bg, st->starts, st->seconds, rate};
-    size_t found = rt_find_bursts(&sig, rule, merge < 1 ? 1 : merge, c->spans, c->span_cap,
-                                  st->scratch);
-    if (found > c->span_cap)
-        found = c->span_cap;
-    rt_channel_quality *q = &night->channel[role].quality;
-    for (size_t i = 0; i < found; i++) {
-        const rt_span *s = &c->spans[i];
-        double a = s->start / rate, b = s->end / rate;
-        if (rt_stretch_marked(st, a, b))
-            continue; /* not scorable there: the mini-epochs are left out anyway */
-        if (st->n_qrs && rt_qrs_overlap(st->qrs, st->n_qrs, a, b) >= 0.5) {
-            q->bursts_vetoed += label == RT_LABEL_SINBAR_PHASIC;
-            continue; /* an ECG complex, not muscle */
+    rt_burst_signal sig = {st->env, st->rect_cum, st->n, w->bg, st->starts, st->seconds, rate};
+    size_t found[BURST_RULES];
+    rt_find_bursts_rules(&sig, rules, BURST_RULES, merge < 1 ? 1 : merge, w->spans, w->span_cap,
+                         found, st->scratch);
+    for (int r = 0; r < BURST_RULES; r++) {
+        unsigned label = labels[r];
+        for (size_t i = 0; i < found[r] && i < w->span_cap; i++) {
+            const rt_span *s = &w->spans[r][i];
+            double a = s->start / rate, b = s->end / rate;
+            if (rt_stretch_marked(st, a, b))
+                continue; /* not scorable there: the mini-epochs are left out anyway */
+            if (st->n_qrs && rt_qrs_overlap(st->qrs, st->n_qrs, a, b) >= 0.5) {
+                o->vetoed += label == RT_LABEL_SINBAR_PHASIC;
+                continue; /* an ECG complex, not muscle */
+            }
+            if (label == RT_LABEL_MONTREAL_PHASIC)
+                mark_minis(night->minis2 + bout->mini2_first, bout->n_epochs * MINI2_PER_EPOCH,
+                           2.0, bout->t0, rate, s, bout->t0, role, label);
+            else
+                mark_minis(night->minis3 + bout->mini3_first, bout->n_epochs * MINI3_PER_EPOCH,
+                           3.0, bout->t0, rate, s, bout->t0, role, label);
+            rt_status stt = add_burst(o, role, bout->t0, rate, s, label, err);
+            if (stt != RT_OK)
+                return stt;
         }
-        if (label == RT_LABEL_MONTREAL_PHASIC)
-            mark_minis(night->minis2 + bout->mini2_first, bout->n_epochs * MINI2_PER_EPOCH, 2.0,
-                       bout->t0, rate, s, bout->t0, role, label);
-        else
-            mark_minis(night->minis3 + bout->mini3_first, bout->n_epochs * MINI3_PER_EPOCH, 3.0,
-                       bout->t0, rate, s, bout->t0, role, label);
-        rt_status stt = add_burst(night, &c->ss->burst_cap, role, bout->t0, rate, s, label, err);
-        if (stt != RT_OK)
-            return stt;
     }
     return RT_OK;
 }
 
-/* Samples of [a, b) at the SINBAR/Montreal tonic level: at least tonic_k x
- * background, or above the absolute level. */
-static size_t tonic_samples(const pass_ctx *c, size_t a, size_t b)
+/* Samples of seconds [a, b) of the bout at the SINBAR/Montreal tonic level
+ * (at least tonic_k x background, or above the absolute level), from the
+ * counts of each second. */
+static size_t tonic_samples(const worker_ctx *w, size_t a, size_t b)
 {
-    const rt_score_params *p = &c->night->params;
-    return rt_count_tonic(c->st.env, a, b, c->bg, c->st.starts, c->st.seconds, p->tonic_k,
-                          abs_tonic_env_uv(p));
+    size_t sum = 0;
+    for (size_t j = a; j < b; j++)
+        sum += w->tonic[j];
+    return sum;
 }
 
 static double stretch_median(const rt_stretch *st, size_t a, size_t b, double *scratch)
@@ -154,37 +247,44 @@ static double stretch_median(const rt_stretch *st, size_t a, size_t b, double *s
 }
 
 /* Tonic shares and audit levels on the 3-s grid and the epochs of a bout. */
-static void label_tonic(pass_ctx *c, rt_role role, const bout_span *bout)
+static void label_tonic(const pass_ctx *c, worker_ctx *w, item_out *o, rt_role role,
+                        const bout_span *bout)
 {
     rt_night *night = c->night;
     const rt_score_params *p = &night->params;
-    const rt_stretch *st = &c->st;
+    const rt_stretch *st = &w->st;
     size_t seconds = st->seconds;
+    rt_count_tonic_blocks(st->env, w->bg, st->starts, seconds, p->tonic_k, abs_tonic_env_uv(p),
+                          w->tonic);
     for (size_t k = 0; k < bout->n_epochs * MINI3_PER_EPOCH; k++) {
         rt_mini *m = &night->minis3[bout->mini3_first + k];
         size_t a = st->starts[3 * k], b = st->starts[3 * k + 3];
-        size_t tonic = tonic_samples(c, a, b);
+        size_t tonic = tonic_samples(w, 3 * k, 3 * k + 3);
         if (b > a && 2 * tonic > b - a)
             m->labels[role] |= RT_LABEL_SINBAR_TONIC;
         if (m->labels[role] & (RT_LABEL_SINBAR_TONIC | RT_LABEL_SINBAR_PHASIC))
             m->labels[role] |= RT_LABEL_SINBAR_ANY;
         m->envelope_uv[role] = (float)stretch_median(st, a, b, st->scratch);
-        m->background_uv[role] = (float)c->bg[3 * k + 1];
+        m->background_uv[role] = (float)w->bg[3 * k + 1];
     }
     if (role != RT_ROLE_CHIN)
         return;
     double aasm_level = p->aasm_nrem_margin * night->nrem_reference_uv;
+    bool aasm = isfinite(night->nrem_reference_uv);
+    if (aasm)
+        rt_count_tonic_blocks(st->env, w->bg, st->starts, seconds, 0.0, aasm_level, w->above);
     for (size_t e = 0; e < bout->n_epochs; e++) {
         rt_epoch_result *er = &night->epochs[bout->epoch_first + e];
         size_t a = st->starts[30 * e], b = st->starts[30 * e + 30];
-        size_t tonic = tonic_samples(c, a, b);
+        size_t tonic = tonic_samples(w, 30 * e, 30 * e + 30);
         er->tonic_share = b > a ? (double)tonic / (double)(b - a) : 0.0;
         er->sinbar_tonic = 2 * tonic > b - a;
-        if (isfinite(night->nrem_reference_uv)) {
+        if (aasm) {
             /* "greater than the minimum NREM amplitude" for at least 50 % (AASM),
              * "greater" meaning by the margin a scorer sees */
-            size_t above = rt_count_tonic(st->env, a, b, c->bg, st->starts, seconds, 0.0,
-                                          aasm_level);
+            size_t above = 0;
+            for (size_t j = 30 * e; j < 30 * e + 30; j++)
+                above += w->above[j];
             er->aasm_tonic = 2 * above >= b - a;
         }
     }
@@ -195,14 +295,15 @@ static void label_tonic(pass_ctx *c, rt_role role, const bout_span *bout)
         if (rt_exclusions_of(c->ss->masks, RT_ROLE_CHIN, base + s0, win))
             continue; /* a window touching an excluding event leaves the count */
         size_t a = st->starts[s0], b = st->starts[s0 + win];
-        c->ss->montreal_windows++;
-        c->ss->montreal_tonic += 2 * tonic_samples(c, a, b) > b - a;
+        o->montreal_windows++;
+        o->montreal_tonic += 2 * tonic_samples(w, s0, s0 + win) > b - a;
     }
 }
 
-static rt_status count_rai(pass_ctx *c, const bout_span *bout, rt_error *err)
+static rt_status count_rai(const pass_ctx *c, const worker_ctx *w, item_out *o,
+                           const bout_span *bout, rt_error *err)
 {
-    size_t seconds = c->st.seconds;
+    size_t seconds = w->st.seconds;
     double *floored = rt_calloc(seconds ? seconds : 1, sizeof *floored);
     bool *skip = rt_calloc(seconds ? seconds : 1, sizeof *skip);
     if (!floored || !skip) {
@@ -212,11 +313,11 @@ static rt_status count_rai(pass_ctx *c, const bout_span *bout, rt_error *err)
     }
     /* the floor is taken over every second of the bout; excluded seconds are
      * then left out of the counts (as for the mini-epoch indices) */
-    rt_rai_remove_floor(c->st.rect_mean_uv, seconds, 60, floored);
+    rt_rai_remove_floor(w->st.rect_mean_uv, seconds, 60, floored);
     size_t base = bout->epoch_first * 30;
     for (size_t j = 0; j < seconds; j++)
         skip[j] = rt_exclusions_of(c->ss->masks, RT_ROLE_CHIN, base + j, 1) != 0;
-    rt_rai_count(floored, seconds, skip, &c->ss->rai);
+    rt_rai_count(floored, seconds, skip, &o->rai);
     free(floored);
     free(skip);
     return RT_OK;
@@ -224,11 +325,11 @@ static rt_status count_rai(pass_ctx *c, const bout_span *bout, rt_error *err)
 
 /* Leaves out the mini-epochs, seconds and minutes a quality mark covers, for
  * this role. */
-static rt_status apply_marks(pass_ctx *c, rt_role role, const bout_span *bout, rt_error *err)
+static rt_status apply_marks(const pass_ctx *c, const worker_ctx *w, item_out *o, rt_role role,
+                             const bout_span *bout, rt_error *err)
 {
     rt_night *night = c->night;
-    const rt_stretch *st = &c->st;
-    rt_channel_quality *q = &night->channel[role].quality;
+    const rt_stretch *st = &w->st;
     size_t base = bout->epoch_first * 30;
     for (size_t k = 0; k < st->n_marks; k++) {
         const rt_quality_mark *m = &st->marks[k];
@@ -239,9 +340,12 @@ static rt_status apply_marks(pass_ctx *c, rt_role role, const bout_span *bout, r
             continue;
         unsigned bit = RT_EXCLUDED_BY_QUALITY(m->reason);
         rt_status s = rt_exclusions_mark_role(c->ss->masks, role, base + a, b - a, bit, err);
+        if (s == RT_OK)
+            s = room_for_one((void **)&o->marked, &o->marked_cap, o->n_marked, sizeof *o->marked,
+                             err);
         if (s != RT_OK)
             return s;
-        q->unscorable_min[m->reason] += (m->end_s - m->start_s) / 60.0;
+        o->marked[o->n_marked++] = (marked_minutes){m->reason, (m->end_s - m->start_s) / 60.0};
         for (size_t i = a / 3; i * 3 < b; i++) {
             rt_mini *mi = &night->minis3[bout->mini3_first + i];
             mi->labels[role] |= RT_LABEL_EXCLUDED;
@@ -256,26 +360,37 @@ static rt_status apply_marks(pass_ctx *c, rt_role role, const bout_span *bout, r
 
 /* The per-second background of the current bout from the role's model, and
  * room for the bursts. */
-static rt_status bout_background(pass_ctx *c, rt_role role, const bout_span *bout, rt_error *err)
+static rt_status bout_background(const pass_ctx *c, worker_ctx *w, rt_role role,
+                                 const bout_span *bout, rt_error *err)
 {
-    size_t seconds = c->st.seconds;
-    if (seconds + 1 > c->bg_cap) {
-        double *bg = realloc(c->bg, (seconds + 1) * sizeof *bg);
-        if (!bg)
+    size_t seconds = w->st.seconds;
+    if (seconds + 1 > w->bg_cap) {
+        double *bg = realloc(w->bg, (seconds + 1) * sizeof *bg);
+        if (bg)
+            w->bg = bg;
+        size_t *tonic = bg ? realloc(w->tonic, (seconds + 1) * sizeof *tonic) : NULL;
+        if (tonic)
+            w->tonic = tonic;
+        size_t *above = tonic ? realloc(w->above, (seconds + 1) * sizeof *above) : NULL;
+        if (!above)
             return rt_fail(err, RT_ERR_NOMEM, "out of memory for %zu seconds", seconds);
-        c->bg = bg;
-        c->bg_cap = seconds + 1;
+        w->above = above;
+        w->bg_cap = seconds + 1;
     }
     for (size_t j = 0; j < seconds; j++)
-        c->bg[j] = rt_night_background_uv(c->night, role, bout->t0 + (double)j + 0.5);
-    c->bg[seconds] = seconds ? c->bg[seconds - 1] : NAN;
+        w->bg[j] = rt_night_background_uv(c->night, role, bout->t0 + (double)j + 0.5);
+    w->bg[seconds] = seconds ? w->bg[seconds - 1] : NAN;
     size_t need = 10 * seconds + 16; /* bursts are 0.1 s apart at the least */
-    if (need > c->span_cap) {
-        rt_span *sp = realloc(c->spans, need * sizeof *sp);
-        if (!sp)
-            return rt_fail(err, RT_ERR_NOMEM, "out of memory for bursts");
-        c->spans = sp;
-        c->span_cap = need;
+    if (need > w->span_cap) {
+        for (int r = 0; r < BURST_RULES; r++) {
+            rt_span *sp = realloc(w->spans[r], need * sizeof *sp);
+            if (!sp) {
+                w->span_cap = 0; /* the others may have grown: size them again next time */
+                return rt_fail(err, RT_ERR_NOMEM, "out of memory for bursts");
+            }
+            w->spans[r] = sp;
+        }
+        w->span_cap = need;
     }
     return RT_OK;
 }
@@ -299,77 +414,194 @@ static rt_status append_levels(const rt_stretch *st, rt_level_point **pts, size_
     return RT_OK;
 }
 
-/* Pass 1 for one role of one bout: the level of every scorable second. */
-static rt_status collect_levels(pass_ctx *c, rt_role role, const bout_span *bout, size_t b,
+/* Pass 1 for one role of one bout: the level of every scorable second, and
+ * the quality marks (pass 2 reads the same stretch: they are kept). */
+static rt_status collect_levels(const pass_ctx *c, worker_ctx *w, item_out *o, const item *it,
                                 rt_error *err)
 {
-    rt_status st = rt_condition_stretch(&c->cond[role], bout->t0, bout->n_epochs * 30,
-                                        &c->beats[b], &c->st, err);
-    c->bout_first_point[role][b] = c->n_points[role];
+    const bout_span *bout = &c->bouts[it->bout];
+    const rt_stretch_request req = {RT_STRETCH_LEVELS, NULL, 0};
+    rt_status st = rt_condition_stretch_for(&w->cond[it->role], bout->t0, bout->n_epochs * 30,
+                                            &c->beats[it->bout], &req, &w->st, err);
     if (st == RT_OK)
-        st = append_levels(&c->st, &c->points[role], &c->n_points[role], err);
-    c->bout_first_point[role][b + 1] = c->n_points[role];
-    return st;
+        st = append_levels(&w->st, &o->points, &o->n_points, err);
+    if (st != RT_OK)
+        return st;
+    o->marks = rt_calloc(w->st.n_marks + 1, sizeof *o->marks);
+    if (!o->marks)
+        return rt_fail(err, RT_ERR_NOMEM, "out of memory for quality marks");
+    if (w->st.n_marks)
+        memcpy(o->marks, w->st.marks, w->st.n_marks * sizeof *o->marks);
+    o->n_marks = w->st.n_marks;
+    return RT_OK;
 }
 
 /* Pass 2 for one role of one bout: quality, bursts, tonic, RAI. */
-static rt_status label_role_bout(pass_ctx *c, rt_role role, const bout_span *bout, size_t b,
-                                 rt_error *err)
+static rt_status label_role_bout(const pass_ctx *c, worker_ctx *w, item_out *o, const item *it,
+                                 const item_out *pass1, rt_error *err)
 {
-    rt_night *night = c->night;
-    const rt_score_params *p = &night->params;
-    rt_channel_quality *q = &night->channel[role].quality;
+    const rt_score_params *p = &c->night->params;
+    rt_role role = it->role;
+    const bout_span *bout = &c->bouts[it->bout];
     size_t seconds = bout->n_epochs * 30;
-    rt_status st = rt_condition_stretch(&c->cond[role], bout->t0, seconds, &c->beats[b], &c->st, err);
+    const rt_stretch_request req = {RT_STRETCH_SUMS, pass1->marks, pass1->n_marks};
+    rt_status st = rt_condition_stretch_for(&w->cond[role], bout->t0, seconds, &c->beats[it->bout],
+                                            &req, &w->st, err);
     if (st == RT_OK)
-        st = apply_marks(c, role, bout, err);
+        st = apply_marks(c, w, o, role, bout, err);
     if (st == RT_OK)
-        st = bout_background(c, role, bout, err);
+        st = bout_background(c, w, role, bout, err);
     if (st != RT_OK)
         return st;
-    q->ecg_source = c->beats_source[b] ? c->beats_source[b] : q->ecg_source;
-    q->beats += role == RT_ROLE_CHIN ? c->beats[b].n : 0;
-    q->ecg_found |= c->st.ecg.found;
-    q->ecg_removed |= c->st.ecg.removed;
+    o->ecg_found = w->st.ecg.found;
+    o->ecg_removed = w->st.ecg.removed;
     double tol = p->burst_duration_tolerance_s;
-    size_t win = c->cond[role].envelope_window;
-    const rt_burst_rule aasm = {p->aasm_burst_k, p->burst_min_s, p->burst_max_s, tol, win};
-    const rt_burst_rule sinbar = {p->sinbar_burst_k, p->burst_min_s, p->burst_max_s, tol, win};
-    const rt_burst_rule montreal = {p->montreal_burst_k, p->burst_min_s, p->montreal_burst_max_s,
-                                    tol, win};
-    st = detect_rule(c, role, bout, &aasm, RT_LABEL_AASM_PHASIC, err);
-    if (st == RT_OK)
-        st = detect_rule(c, role, bout, &sinbar, RT_LABEL_SINBAR_PHASIC, err);
-    if (st == RT_OK)
-        st = detect_rule(c, role, bout, &montreal, RT_LABEL_MONTREAL_PHASIC, err);
+    size_t win = w->cond[role].envelope_window;
+    const rt_burst_rule rules[BURST_RULES] = {
+        {p->aasm_burst_k, p->burst_min_s, p->burst_max_s, tol, win},
+        {p->sinbar_burst_k, p->burst_min_s, p->burst_max_s, tol, win},
+        {p->montreal_burst_k, p->burst_min_s, p->montreal_burst_max_s, tol, win}};
+    static const unsigned labels[BURST_RULES] = {RT_LABEL_AASM_PHASIC, RT_LABEL_SINBAR_PHASIC,
+                                                 RT_LABEL_MONTREAL_PHASIC};
+    st = detect_rules(c, w, o, role, bout, rules, labels, err);
     if (st != RT_OK)
         return st;
-    label_tonic(c, role, bout);
-    return role == RT_ROLE_CHIN ? count_rai(c, bout, err) : RT_OK;
+    label_tonic(c, w, o, role, bout);
+    return role == RT_ROLE_CHIN ? count_rai(c, w, o, bout, err) : RT_OK;
 }
 
 /* Limb NREM runs read for the drift: one run in NREM_DRIFT_STRIDE (10 minutes
  * of every hour or so of NREM is plenty for a line through the night). */
 #define NREM_DRIFT_STRIDE 6
+/* NREM is read in runs of at most this many epochs. */
+#define NREM_RUN_EPOCHS 20
 
-/* NREM in runs of up to 20 epochs on the same conditioning path as REM: the
- * per-second levels of every role (the drift of its background; the chin's
- * from every run, the limbs' from every NREM_DRIFT_STRIDE-th) and, for the
- * chin, the AASM tonic reference: a low
- * quantile of the median envelope of each unmarked NREM epoch ("the minimum
- * amplitude in NREM"). */
-static rt_status nrem_pass(pass_ctx *c, const rt_timeline *tl, double *ref, rt_error *err)
+/* One NREM run of one role, on the same conditioning path as REM: the
+ * per-second levels (the drift of the role's background) and, for the chin,
+ * the median envelope of each unmarked epoch, from which the AASM tonic
+ * reference is taken. */
+static rt_status nrem_run(const pass_ctx *c, worker_ctx *w, item_out *o, const item *it,
+                          rt_error *err)
 {
-    *ref = NAN;
-    size_t count = 0;
-    for (size_t e = 0; e < tl->n_epochs; e++)
-        count += is_nrem(tl->stages[e]);
-    if (count == 0)
-        return RT_OK;
-    double *medians = rt_calloc(count, sizeof *medians);
-    if (!medians)
-        return rt_fail(err, RT_ERR_NOMEM, "out of memory for %zu NREM epochs", count);
-    size_t m = 0, e = 0, chunk = 0;
+    rt_stretch *st = &w->st;
+    const rt_stretch_request req = {RT_STRETCH_LEVELS, NULL, 0};
+    rt_status s = rt_condition_stretch_for(&w->cond[it->role],
+                                           (double)it->first_epoch * c->tl->epoch_s,
+                                           it->epochs * 30, NULL, &req, st, err);
+    if (s == RT_OK)
+        s = append_levels(st, &o->points, &o->n_points, err);
+    if (s != RT_OK || it->role != RT_ROLE_CHIN)
+        return s;
+    o->medians = rt_calloc(it->epochs, sizeof *o->medians);
+    if (!o->medians)
+        return rt_fail(err, RT_ERR_NOMEM, "out of memory for %zu NREM epochs", it->epochs);
+    for (size_t k = 0; k < it->epochs; k++) {
+        double e0 = (double)(k * 30);
+        if (rt_stretch_marked(st, e0, e0 + 30.0))
+            continue; /* a loose lead or clipping would bend the reference */
+        o->medians[o->n_medians++] = stretch_median(st, st->starts[k * 30],
+                                                    st->starts[k * 30 + 30], st->scratch);
+    }
+    return RT_OK;
+}
+
+static rt_status run_item(void *ctx, unsigned worker, size_t i, rt_error *err)
+{
+    const pass_ctx *c = ctx;
+    const item *it = &c->job->items[i];
+    item_out *o = &c->job->outs[i];
+    worker_ctx *w = &c->workers[worker];
+    switch (it->kind) {
+    case ITEM_NREM:
+        return nrem_run(c, w, o, it, err);
+    case ITEM_BEATS: {
+        const bout_span *b = &c->bouts[it->bout];
+        return rt_condition_beats_with(c->rec, c->roles, b->t0, b->n_epochs * 30, &w->beats,
+                                       &c->beats[it->bout], &c->beats_source[it->bout], err);
+    }
+    case ITEM_LEVELS:
+        return collect_levels(c, w, o, it, err);
+    case ITEM_LABELS: /* pass 1's item of this bout and role has the same index */
+        return label_role_bout(c, w, o, it, &c->levels->outs[i], err);
+    }
+    return rt_fail(err, RT_ERR_INTERNAL, "night.c: unknown item kind %d", (int)it->kind);
+}
+
+/* ---- The jobs --------------------------------------------------------- */
+
+static rt_status add_item(item_list *l, item it, size_t rank, double cost, rt_error *err)
+{
+    if (l->n == l->cap) {
+        size_t ncap = l->cap ? 2 * l->cap : 64;
+        item *items = realloc(l->items, ncap * sizeof *items);
+        if (items)
+            l->items = items;
+        size_t *ranks = items ? realloc(l->rank, ncap * sizeof *ranks) : NULL;
+        if (ranks)
+            l->rank = ranks;
+        double *costs = ranks ? realloc(l->cost, ncap * sizeof *costs) : NULL;
+        if (!costs)
+            return rt_fail(err, RT_ERR_NOMEM, "out of memory for the scoring jobs");
+        l->cost = costs;
+        l->cap = ncap;
+    }
+    l->items[l->n] = it;
+    l->rank[l->n] = rank;
+    l->cost[l->n] = cost;
+    l->n++;
+    return RT_OK;
+}
+
+static void item_list_free(item_list *l)
+{
+    for (size_t i = 0; l->outs && i < l->n; i++) {
+        free(l->outs[i].points);
+        free(l->outs[i].marks);
+        free(l->outs[i].medians);
+        free(l->outs[i].bursts);
+        free(l->outs[i].marked);
+    }
+    free(l->outs);
+    free(l->items);
+    free(l->rank);
+    free(l->cost);
+    memset(l, 0, sizeof *l);
+}
+
+/* Runs every item of l on the workers; the lowest-ranked failure so far is
+ * kept in *f. */
+static rt_status run_job(pass_ctx *c, item_list *l, rt_parallel_failure *f)
+{
+    if (!l->outs && !(l->outs = rt_calloc(l->n, sizeof *l->outs))) {
+        f->rank = 0;
+        return rt_fail(&f->error, RT_ERR_NOMEM, "out of memory for the scoring jobs");
+    }
+    c->job = l;
+    rt_parallel_job job = {l->n, l->rank, l->cost, run_item, c};
+    rt_status st = rt_parallel_run(&job, c->n_workers, f);
+    c->job = NULL;
+    return st;
+}
+
+/* The place of each item in the sequential loop: the NREM runs (run, then
+ * role), then bout by bout its beats and each role's pass 1, then bout by
+ * bout each role's pass 2. Only the order of ranks matters. */
+static size_t rank_levels(size_t n_nrem, size_t bout, int role)
+{
+    return n_nrem + bout * (RT_ROLE_COUNT + 1) + (role < 0 ? 0 : 1 + (size_t)role);
+}
+
+static size_t rank_labels(size_t n_nrem, size_t n_bouts, size_t bout, int role)
+{
+    return rank_levels(n_nrem, n_bouts, -1) + bout * RT_ROLE_COUNT + (size_t)role;
+}
+
+/* The NREM runs (at most NREM_RUN_EPOCHS epochs each) of every open role: the
+ * chin's every run, the limbs' every NREM_DRIFT_STRIDE-th. */
+static rt_status nrem_items(const pass_ctx *c, item_list *l, rt_error *err)
+{
+    const rt_timeline *tl = c->tl;
+    size_t e = 0, chunk = 0;
     rt_status st = RT_OK;
     while (e < tl->n_epochs && st == RT_OK) {
         if (!is_nrem(tl->stages[e])) {
@@ -377,31 +609,132 @@ static rt_status nrem_pass(pass_ctx *c, const rt_timeline *tl, double *ref, rt_e
             continue;
         }
         size_t run = 0;
-        while (e + run < tl->n_epochs && is_nrem(tl->stages[e + run]) && run < 20)
+        while (e + run < tl->n_epochs && is_nrem(tl->stages[e + run]) && run < NREM_RUN_EPOCHS)
             run++;
         for (int r = 0; r < RT_ROLE_COUNT && st == RT_OK; r++) {
             if (!c->cond_open[r] || (r != RT_ROLE_CHIN && chunk % NREM_DRIFT_STRIDE != 0))
                 continue;
-            st = rt_condition_stretch(&c->cond[r], (double)e * tl->epoch_s, run * 30, NULL,
-                                      &c->st, err);
-            if (st == RT_OK)
-                st = append_levels(&c->st, &c->nrem_points[r], &c->n_nrem_points[r], err);
-            for (size_t k = 0; r == RT_ROLE_CHIN && k < run && st == RT_OK; k++) {
-                double e0 = (double)(k * 30);
-                if (rt_stretch_marked(&c->st, e0, e0 + 30.0))
-                    continue; /* a loose lead or clipping would bend the reference */
-                medians[m++] = stretch_median(&c->st, c->st.starts[k * 30],
-                                              c->st.starts[k * 30 + 30], c->st.scratch);
-            }
+            item it = {ITEM_NREM, (rt_role)r, 0, e, run};
+            st = add_item(l, it, l->n, (double)run * 30.0, err);
         }
         e += run;
         chunk++;
     }
-    if (st == RT_OK && m > 0)
-        *ref = rt_quantile(medians, m, c->night->params.aasm_nrem_quantile);
-    free(medians);
     return st;
 }
+
+/* Detecting beats costs about as much as conditioning two or three channels. */
+#define BEATS_COST 2.5
+
+static rt_status bout_items(const pass_ctx *c, item_list *beats, item_list *levels,
+                            item_list *labels, size_t n_nrem, rt_error *err)
+{
+    size_t n_bouts = c->night->n_bouts;
+    rt_status st = RT_OK;
+    for (size_t b = 0; b < n_bouts && st == RT_OK; b++) {
+        double seconds = (double)c->bouts[b].n_epochs * 30.0;
+        item it = {ITEM_BEATS, RT_ROLE_ECG, b, 0, c->bouts[b].n_epochs};
+        st = add_item(beats, it, rank_levels(n_nrem, b, -1), BEATS_COST * seconds, err);
+        for (int r = 0; r < RT_ROLE_COUNT && st == RT_OK; r++) {
+            if (!c->cond_open[r])
+                continue;
+            it.role = (rt_role)r;
+            it.kind = ITEM_LEVELS;
+            st = add_item(levels, it, rank_levels(n_nrem, b, r), seconds, err);
+            it.kind = ITEM_LABELS;
+            if (st == RT_OK)
+                st = add_item(labels, it, rank_labels(n_nrem, n_bouts, b, r), seconds, err);
+        }
+    }
+    return st;
+}
+
+/* Appends the items' levels to each role's list, in item order. */
+static rt_status gather_levels(const item_list *l, rt_level_point **pts, size_t *n,
+                               size_t **first_point, rt_error *err)
+{
+    for (size_t i = 0; i < l->n; i++) {
+        const item *it = &l->items[i];
+        item_out *o = &l->outs[i];
+        rt_role r = it->role;
+        if (first_point)
+            first_point[r][it->bout] = n[r];
+        rt_level_point *p = realloc(pts[r], (n[r] + o->n_points + 1) * sizeof *p);
+        if (!p)
+            return rt_fail(err, RT_ERR_NOMEM, "out of memory for the per-second levels");
+        pts[r] = p;
+        if (o->n_points)
+            memcpy(p + n[r], o->points, o->n_points * sizeof *p);
+        n[r] += o->n_points;
+        if (first_point)
+            first_point[r][it->bout + 1] = n[r];
+        free(o->points);
+        o->points = NULL;
+    }
+    return RT_OK;
+}
+
+/* The AASM tonic reference: a low quantile of the median envelope of each
+ * unmarked NREM epoch of the chin ("the minimum amplitude in NREM"). */
+static rt_status nrem_reference(const pass_ctx *c, const item_list *l, double *ref, rt_error *err)
+{
+    *ref = NAN;
+    size_t count = 0;
+    for (size_t i = 0; i < l->n; i++)
+        count += l->outs[i].n_medians;
+    if (count == 0)
+        return RT_OK;
+    double *medians = rt_calloc(count, sizeof *medians);
+    if (!medians)
+        return rt_fail(err, RT_ERR_NOMEM, "out of memory for %zu NREM epochs", count);
+    size_t m = 0;
+    for (size_t i = 0; i < l->n; i++)
+        for (size_t k = 0; k < l->outs[i].n_medians; k++)
+            medians[m++] = l->outs[i].medians[k];
+    *ref = rt_quantile(medians, m, c->night->params.aasm_nrem_quantile);
+    free(medians);
+    return RT_OK;
+}
+
+/* Adds pass 2's counts, marks and bursts to the night, bout by bout, role by
+ * role, rule by rule: the order of the sequential loop. */
+static rt_status gather_labels(pass_ctx *c, const item_list *l, rt_error *err)
+{
+    rt_night *night = c->night;
+    scoring_state *ss = c->ss;
+    for (size_t i = 0; i < l->n; i++) {
+        const item *it = &l->items[i];
+        const item_out *o = &l->outs[i];
+        rt_channel_quality *q = &night->channel[it->role].quality;
+        for (size_t k = 0; k < o->n_marked; k++)
+            q->unscorable_min[o->marked[k].reason] += o->marked[k].minutes;
+        q->ecg_source = c->beats_source[it->bout] ? c->beats_source[it->bout] : q->ecg_source;
+        q->beats += it->role == RT_ROLE_CHIN ? c->beats[it->bout].n : 0;
+        q->ecg_found |= o->ecg_found;
+        q->ecg_removed |= o->ecg_removed;
+        q->bursts_vetoed += o->vetoed;
+        ss->montreal_windows += o->montreal_windows;
+        ss->montreal_tonic += o->montreal_tonic;
+        ss->rai.at_most_1 += o->rai.at_most_1;
+        ss->rai.from_1_to_2 += o->rai.from_1_to_2;
+        ss->rai.total += o->rai.total;
+        if (night->n_bursts + o->n_bursts > ss->burst_cap) {
+            size_t ncap = ss->burst_cap ? ss->burst_cap : 256;
+            while (ncap < night->n_bursts + o->n_bursts)
+                ncap *= 2;
+            rt_burst *nb = realloc(night->bursts, ncap * sizeof *nb);
+            if (!nb)
+                return rt_fail(err, RT_ERR_NOMEM, "out of memory for bursts");
+            night->bursts = nb;
+            ss->burst_cap = ncap;
+        }
+        if (o->n_bursts)
+            memcpy(night->bursts + night->n_bursts, o->bursts, o->n_bursts * sizeof *o->bursts);
+        night->n_bursts += o->n_bursts;
+    }
+    return RT_OK;
+}
+
 
 /* REM bouts and the mini-epoch grids laid over them. */
 static rt_status lay_out_rem(rt_night *night, const rt_timeline *tl, bout_span **bouts_out,
@@ -559,26 +892,40 @@ static rt_status open_channels(pass_ctx *c, rt_error *err)
     return RT_OK;
 }
 
-/* Pass 1 over every bout, then the background fit of each role. */
+/* The workers: as many as threads asked for and items to share, each with
+ * copies of the open conditioners (worker 0 uses the night's own). */
+static rt_status open_workers(pass_ctx *c, unsigned threads, size_t most_items, rt_error *err)
+{
+    if (threads > most_items)
+        threads = most_items ? (unsigned)most_items : 1;
+    c->workers = rt_calloc(threads, sizeof *c->workers);
+    if (!c->workers)
+        return rt_fail(err, RT_ERR_NOMEM, "out of memory for %u workers", threads);
+    c->n_workers = threads;
+    for (unsigned w = 0; w < threads; w++) {
+        worker_ctx *wk = &c->workers[w];
+        for (int r = 0; r < RT_ROLE_COUNT; r++) {
+            if (!c->cond_open[r])
+                continue;
+            if (w == 0) {
+                wk->cond[r] = c->cond[r];
+                continue;
+            }
+            rt_status st = rt_conditioner_copy(&c->cond[r], &wk->cond[r], err);
+            if (st != RT_OK)
+                return st;
+            wk->copied[r] = true;
+        }
+    }
+    return RT_OK;
+}
+
+/* The atonic background of each role, fitted to its pass-1 levels of the
+ * whole night and the NREM drift, and each bout's lift over it. */
 static rt_status fit_backgrounds(pass_ctx *c, rt_error *err)
 {
     rt_night *night = c->night;
     rt_status st = RT_OK;
-    night->bout_lift = rt_calloc(night->n_bouts * RT_ROLE_COUNT + 1, sizeof *night->bout_lift);
-    bool ok = night->bout_lift != NULL;
-    for (int r = 0; r < RT_ROLE_COUNT; r++) {
-        c->bout_first_point[r] = rt_calloc(night->n_bouts + 1, sizeof *c->bout_first_point[r]);
-        ok = ok && c->bout_first_point[r];
-    }
-    if (!ok)
-        return rt_fail(err, RT_ERR_NOMEM, "out of memory for %zu REM bouts", night->n_bouts);
-    for (size_t b = 0; b < night->n_bouts && st == RT_OK; b++) {
-        st = rt_condition_beats(c->rec, c->roles, c->bouts[b].t0, c->bouts[b].n_epochs * 30,
-                                &c->beats[b], &c->beats_source[b], err);
-        for (int r = 0; r < RT_ROLE_COUNT && st == RT_OK; r++)
-            if (c->cond_open[r])
-                st = collect_levels(c, (rt_role)r, &c->bouts[b], b, err);
-    }
     for (int r = 0; r < RT_ROLE_COUNT && st == RT_OK; r++) {
         if (!c->cond_open[r])
             continue;
@@ -607,6 +954,20 @@ static rt_status fit_backgrounds(pass_ctx *c, rt_error *err)
 
 static void pass_ctx_free(pass_ctx *c)
 {
+    for (unsigned w = 0; c->workers && w < c->n_workers; w++) {
+        worker_ctx *wk = &c->workers[w];
+        for (int r = 0; r < RT_ROLE_COUNT; r++)
+            if (wk->copied[r])
+                rt_conditioner_close(&wk->cond[r]);
+        rt_stretch_free(&wk->st);
+        rt_beats_work_free(&wk->beats);
+        free(wk->bg);
+        free(wk->tonic);
+        free(wk->above);
+        for (int r = 0; r < BURST_RULES; r++)
+            free(wk->spans[r]);
+    }
+    free(c->workers);
     for (int r = 0; r < RT_ROLE_COUNT; r++) {
         rt_conditioner_close(&c->cond[r]);
         free(c->points[r]);
@@ -618,40 +979,103 @@ static void pass_ctx_free(pass_ctx *c)
             rt_qrs_beats_free(&c->beats[b]);
     free(c->beats);
     free(c->beats_source);
-    rt_stretch_free(&c->st);
-    free(c->bg);
-    free(c->spans);
 }
 
-static rt_status score_passes(pass_ctx *c, const rt_timeline *tl, rt_error *err)
+/* Room for what the passes gather over the night. */
+static rt_status reserve_night(pass_ctx *c, rt_error *err)
+{
+    rt_night *night = c->night;
+    size_t n_bouts = night->n_bouts;
+    night->bout_lift = rt_calloc(n_bouts * RT_ROLE_COUNT + 1, sizeof *night->bout_lift);
+    c->beats = rt_calloc(n_bouts + 1, sizeof *c->beats);
+    c->beats_source = rt_calloc(n_bouts + 1, sizeof *c->beats_source);
+    bool ok = night->bout_lift && c->beats && c->beats_source;
+    for (int r = 0; r < RT_ROLE_COUNT; r++) {
+        c->bout_first_point[r] = rt_calloc(n_bouts + 1, sizeof *c->bout_first_point[r]);
+        ok = ok && c->bout_first_point[r];
+    }
+    if (!ok)
+        return rt_fail(err, RT_ERR_NOMEM, "out of memory for %zu REM bouts", n_bouts);
+    /* pass 2 marks each role's own seconds from several threads */
+    for (int r = 0; r < RT_ROLE_COUNT; r++) {
+        rt_status st = c->cond_open[r] ? rt_exclusions_reserve_role(c->ss->masks, (rt_role)r, err)
+                                       : RT_OK;
+        if (st != RT_OK)
+            return st;
+    }
+    return RT_OK;
+}
+
+/* The NREM runs and pass 1 over every bout, the background fit, then pass 2.
+ * Items run on the workers in any order; their results are gathered in the
+ * sequential order, so the night is the same for any number of threads. */
+static rt_status score_passes(pass_ctx *c, unsigned threads, rt_error *err)
 {
     rt_night *night = c->night;
     rt_status st = open_channels(c, err);
-    if (st == RT_OK && night->n_bouts) {
-        c->beats = rt_calloc(night->n_bouts, sizeof *c->beats);
-        c->beats_source = rt_calloc(night->n_bouts, sizeof *c->beats_source);
-        if (!c->beats || !c->beats_source)
-            st = rt_fail(err, RT_ERR_NOMEM, "out of memory for %zu REM bouts", night->n_bouts);
-    }
     for (int r = 0; r < RT_ROLE_COUNT; r++)
         if (is_emg((rt_role)r) && !night->channel[r].present)
             mark_absent(night, (rt_role)r);
+    item_list nrem_beats, levels, labels;
+    memset(&nrem_beats, 0, sizeof nrem_beats);
+    memset(&levels, 0, sizeof levels);
+    memset(&labels, 0, sizeof labels);
     if (st == RT_OK)
-        st = nrem_pass(c, tl, &night->nrem_reference_uv, err);
+        st = reserve_night(c, err);
+    if (st == RT_OK)
+        st = nrem_items(c, &nrem_beats, err);
+    size_t n_nrem = nrem_beats.n;
+    if (st == RT_OK)
+        st = bout_items(c, &nrem_beats, &levels, &labels, n_nrem, err);
+    size_t most = nrem_beats.n > levels.n ? nrem_beats.n : levels.n;
+    if (st == RT_OK)
+        st = open_workers(c, threads, most > labels.n ? most : labels.n, err);
+    rt_parallel_failure f;
+    rt_parallel_failure_init(&f);
+    if (st == RT_OK) {
+        /* the beats of a bout are ready before its pass 1 starts */
+        run_job(c, &nrem_beats, &f);
+        for (unsigned w = 0; w < c->n_workers; w++)
+            rt_beats_work_free(&c->workers[w].beats); /* no more beats to find */
+        run_job(c, &levels, &f);
+        st = f.rank == SIZE_MAX ? RT_OK : f.error.status;
+        if (st != RT_OK && err)
+            *err = f.error;
+    }
+    item_list nrem = nrem_beats;
+    nrem.n = n_nrem; /* the NREM items come first */
+    if (st == RT_OK)
+        st = gather_levels(&nrem, c->nrem_points, c->n_nrem_points, NULL, err);
+    if (st == RT_OK)
+        st = nrem_reference(c, &nrem, &night->nrem_reference_uv, err);
+    if (st == RT_OK)
+        st = gather_levels(&levels, c->points, c->n_points, c->bout_first_point, err);
+    item_list_free(&nrem_beats);
     if (st == RT_OK)
         st = fit_backgrounds(c, err);
-    for (size_t b = 0; b < night->n_bouts && st == RT_OK; b++)
-        for (int r = 0; r < RT_ROLE_COUNT && st == RT_OK; r++)
-            if (c->cond_open[r])
-                st = label_role_bout(c, (rt_role)r, &c->bouts[b], b, err);
+    c->levels = &levels;
+    if (st == RT_OK && run_job(c, &labels, &f) != RT_OK) {
+        st = f.error.status;
+        if (err)
+            *err = f.error;
+    }
+    if (st == RT_OK)
+        st = gather_labels(c, &labels, err);
+    c->levels = NULL;
+    item_list_free(&levels);
+    item_list_free(&labels);
     return st;
 }
 
-rt_status rt_night_score(rt_recording *rec, const rt_role_map *roles, const rt_timeline *tl,
-                         const rt_score_params *params, const rt_cutoffs *cutoffs,
-                         rt_night **out, rt_error *err)
+rt_status rt_night_score_threads(rt_recording *rec, const rt_role_map *roles,
+                                 const rt_timeline *tl, const rt_score_params *params,
+                                 const rt_cutoffs *cutoffs, int threads, rt_night **out,
+                                 rt_error *err)
 {
     *out = NULL;
+    if (threads < 0)
+        return rt_fail(err, RT_ERR_USAGE, "scoring threads must be 0 (the cores available) or "
+                       "more, got %d", threads);
     if (fabs(tl->epoch_s - 30.0) > 1e-9)
         return rt_fail(err, RT_ERR_STAGING, "scoring needs 30-s epochs; the staging has %g-s epochs",
                        tl->epoch_s);
@@ -688,6 +1112,7 @@ rt_status rt_night_score(rt_recording *rec, const rt_role_map *roles, const rt_t
     night->roles = *roles;
     c.rec = rec;
     c.roles = roles;
+    c.tl = tl;
     c.night = night;
     c.ss = &ss;
     rt_exclusion_masks masks;
@@ -701,7 +1126,7 @@ rt_status rt_night_score(rt_recording *rec, const rt_role_map *roles, const rt_t
         rt_exclusions_rates(tl, c.bouts, night->n_bouts,
                             (double)night->rem_epochs * tl->epoch_s / 3600.0, &night->exclusions);
         ss.masks = &masks;
-        st = score_passes(&c, tl, err);
+        st = score_passes(&c, threads ? (unsigned)threads : (unsigned)rt_cores_available(), err);
     }
     pass_ctx_free(&c);
     rt_exclusions_free(&masks);
@@ -716,6 +1141,13 @@ rt_status rt_night_score(rt_recording *rec, const rt_role_map *roles, const rt_t
     }
     *out = night;
     return RT_OK;
+}
+
+rt_status rt_night_score(rt_recording *rec, const rt_role_map *roles, const rt_timeline *tl,
+                         const rt_score_params *params, const rt_cutoffs *cutoffs,
+                         rt_night **out, rt_error *err)
+{
+    return rt_night_score_threads(rec, roles, tl, params, cutoffs, 1, out, err);
 }
 
 double rt_night_background_uv(const rt_night *night, rt_role role, double t_s)

@@ -8,6 +8,7 @@
 #include "support.h"
 
 #include <math.h>
+#include <stdint.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -193,6 +194,56 @@ static void quantile_matches_type7(void **state)
     assert_true(fabs(rt_quantile(big, 200, 0.05) - 9.95) < 1e-12); /* numpy: 9.95 */
 }
 
+static int compare_doubles(const void *a, const void *b)
+{
+    double x = *(const double *)a, y = *(const double *)b;
+    return (x > y) - (x < y);
+}
+
+/* The selection finds the order statistics of a sorted copy, bit for bit, so
+ * the type-7 quantile is the formula on the sorted values (Hyndman & Fan
+ * 1996): random sizes on both sides of the in-buffer partition limit, with
+ * many repeated values, all-equal arrays and sorted and reversed input. */
+static void quantile_equals_sorted_order_statistics(void **state)
+{
+    (void)state;
+    uint64_t seed = rt_test_seed();
+    rt_test_rng_seed(seed);
+    const size_t sizes[] = {9, 10, 43, 384, 1023, 1024, 1025, 3840, 5000};
+    for (size_t t = 0; t < sizeof sizes / sizeof sizes[0]; t++) {
+        size_t n = sizes[t];
+        double *v = malloc(n * sizeof *v), *sorted = malloc(n * sizeof *sorted);
+        assert_non_null(v);
+        assert_non_null(sorted);
+        for (int shape = 0; shape < 5; shape++) {
+            for (size_t i = 0; i < n; i++) {
+                double u = rt_test_uniform();
+                v[i] = shape == 0 ? u : shape == 1 ? floor(u * 5.0) /* repeats */
+                     : shape == 2 ? 1.25 : shape == 3 ? (double)i : -(double)i;
+            }
+            memcpy(sorted, v, n * sizeof *v);
+            qsort(sorted, n, sizeof *sorted, compare_doubles);
+            const double qs[] = {0.0, 0.05, 0.5, 0.9, 1.0};
+            for (size_t k = 0; k < 5; k++) {
+                double pos = qs[k] * (double)(n - 1);
+                size_t i = (size_t)floor(pos);
+                double want = i >= n - 1 ? sorted[n - 1]
+                                         : sorted[i] + (pos - (double)i) * (sorted[i + 1] - sorted[i]);
+                double *w = malloc(n * sizeof *w);
+                assert_non_null(w);
+                memcpy(w, v, n * sizeof *v);
+                double got = rt_quantile(w, n, qs[k]);
+                if (memcmp(&got, &want, sizeof got) != 0)
+                    fail_msg("seed %llu: n %zu, shape %d, q %g: %.17g, sorted %.17g",
+                             (unsigned long long)seed, n, shape, qs[k], got, want);
+                free(w);
+            }
+        }
+        free(v);
+        free(sorted);
+    }
+}
+
 /* The envelope is a plain centred moving average of |x| (clipped ends). */
 static void envelope_is_centred_average(void **state)
 {
@@ -207,6 +258,96 @@ static void envelope_is_centred_average(void **state)
     assert_true(fabs(x[3] - 4.0) < 1e-12);
 }
 
+/* Several rules in one call find, rule by rule, exactly what each finds
+ * alone (the contract of rt_find_bursts_rules, which shares the scan of rules
+ * with the same amplitude): noise with bursts of random length and height,
+ * varying background, the rect_cum edge refinement on. */
+static void rules_together_equal_rules_alone(void **state)
+{
+    (void)state;
+    uint64_t seed = rt_test_seed();
+    rt_test_rng_seed(seed);
+    fixture *f = make_fixture();
+    double *cum = calloc(N + 1, sizeof *cum);
+    assert_non_null(cum);
+    for (size_t i = 0; i < N; i++)
+        f->x[i] = rt_test_gauss();
+    for (int b = 0; b < 40; b++) { /* bursts 0.05-12 s at 1-10 x */
+        size_t a = (size_t)(rt_test_uniform() * (double)N);
+        size_t len = (size_t)((0.05 + 12.0 * rt_test_uniform() * rt_test_uniform()) * FS);
+        double gain = 1.0 + 9.0 * rt_test_uniform();
+        for (size_t i = a; i < a + len && i < N; i++)
+            f->x[i] *= gain;
+    }
+    for (size_t i = 0; i < N; i++)
+        cum[i + 1] = cum[i] + fabs(f->x[i]);
+    rt_envelope(f->x, N, (size_t)(0.05 * FS), f->env, f->scratch);
+    for (size_t j = 0; j < SECONDS; j++)
+        f->background[j] = 0.8 * (0.9 + 0.2 * rt_test_uniform());
+    rt_burst_signal sig = {f->env, cum, N, f->background, f->starts, SECONDS, FS};
+    size_t win = (size_t)(0.05 * FS);
+    /* AASM, SINBAR and Montreal as the scorer sets them (two share k = 4),
+     * and a fourth rule sharing SINBAR's k with other limits */
+    const rt_burst_rule rules[4] = {{4.0, 0.1, 5.0, 0.05, win}, {2.0, 0.1, 5.0, 0.05, win},
+                                    {4.0, 0.1, 10.0, 0.05, win}, {2.0, 0.5, 2.0, 0.0, win}};
+    enum { CAP = 400 };
+    rt_span *together[4], alone[CAP];
+    size_t found[4];
+    for (int r = 0; r < 4; r++) {
+        together[r] = calloc(CAP, sizeof *together[r]);
+        assert_non_null(together[r]);
+    }
+    rt_find_bursts_rules(&sig, rules, 4, (size_t)(0.25 * FS), together, CAP, found, f->scratch);
+    size_t total = 0;
+    for (int r = 0; r < 4; r++) {
+        size_t n = rt_find_bursts(&sig, &rules[r], (size_t)(0.25 * FS), alone, CAP, f->scratch);
+        if (n != found[r])
+            fail_msg("seed %llu: rule %d finds %zu alone, %zu together", (unsigned long long)seed,
+                     r, n, found[r]);
+        assert_memory_equal(alone, together[r], (n < CAP ? n : CAP) * sizeof *alone);
+        total += n;
+        free(together[r]);
+    }
+    assert_true(total > 0); /* the signal has bursts for every check to bite on */
+    free(cum);
+    free(f);
+}
+
+/* Tonic counts block by block add up to the count over whole blocks
+ * (rt_count_tonic), for relative, absolute and combined levels, including
+ * samples exactly at k x background. */
+static void tonic_blocks_add_up(void **state)
+{
+    (void)state;
+    uint64_t seed = rt_test_seed();
+    rt_test_rng_seed(seed);
+    fixture *f = make_fixture();
+    for (size_t j = 0; j < SECONDS; j++)
+        f->background[j] = 0.5 + rt_test_uniform();
+    for (size_t i = 0; i < N; i++) {
+        f->env[i] = 3.0 * rt_test_uniform();
+        if (i % 97 == 0) /* exactly at 2x: the slack must count it both ways */
+            f->env[i] = 2.0 * f->background[i / FS_INT];
+    }
+    const double levels[3][2] = {{2.0, 0.0}, {0.0, 1.5}, {2.0, 1.5}};
+    size_t counts[SECONDS];
+    for (int l = 0; l < 3; l++) {
+        rt_count_tonic_blocks(f->env, f->background, f->starts, SECONDS, levels[l][0],
+                              levels[l][1], counts);
+        for (size_t a = 0; a < SECONDS; a += 7) {
+            size_t b = a + 20 < SECONDS ? a + 20 : SECONDS, sum = 0;
+            for (size_t j = a; j < b; j++)
+                sum += counts[j];
+            size_t whole = rt_count_tonic(f->env, f->starts[a], f->starts[b], f->background,
+                                          f->starts, SECONDS, levels[l][0], levels[l][1]);
+            if (sum != whole)
+                fail_msg("seed %llu: level %d, seconds %zu-%zu: %zu by blocks, %zu whole",
+                         (unsigned long long)seed, l, a, b, sum, whole);
+        }
+    }
+    free(f);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -217,7 +358,10 @@ int main(void)
         cmocka_unit_test(tonic_share_boundary),
         cmocka_unit_test(tonic_absolute_level),
         cmocka_unit_test(quantile_matches_type7),
+        cmocka_unit_test(quantile_equals_sorted_order_statistics),
         cmocka_unit_test(envelope_is_centred_average),
+        cmocka_unit_test(rules_together_equal_rules_alone),
+        cmocka_unit_test(tonic_blocks_add_up),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

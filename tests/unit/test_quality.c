@@ -276,6 +276,77 @@ static void test_marks_flat(void **state)
     free(x);
 }
 
+/* The flat-block and clipping tests decide at their very limits as their
+ * definitions do (quality.h): a block is quiet when mad < RT_QUALITY_FLAT_UV
+ * with mean and mad running sums in sample order, a sample clips at or
+ * beyond the limits less RT_QUALITY_CLIP_FRACTION of the range or when not
+ * finite. Groups of 7 blocks hold the same block again and again, with the
+ * swing around its mean one ulp below, at and above the threshold; single
+ * samples sit at, just inside and just outside the clipping limits. */
+static bool reference_quiet(const double *x, size_t len)
+{
+    double mean = 0.0, mad = 0.0;
+    for (size_t i = 0; i < len; i++)
+        mean += x[i];
+    mean /= (double)len;
+    for (size_t i = 0; i < len; i++)
+        mad += fabs(x[i] - mean);
+    return mad / (double)len < RT_QUALITY_FLAT_UV;
+}
+
+static void test_marks_at_their_limits(void **state)
+{
+    (void)state;
+    const double offsets[] = {0.0, 7.3, -123.456, 400.01};
+    const double swings[] = {nextafter(RT_QUALITY_FLAT_UV, 0.0), RT_QUALITY_FLAT_UV,
+                             nextafter(RT_QUALITY_FLAT_UV, 1.0), 0.9999999999 * RT_QUALITY_FLAT_UV,
+                             1.0000000001 * RT_QUALITY_FLAT_UV};
+    size_t block = (size_t)llround(RT_QUALITY_FLAT_BLOCK_S * RATE);
+    size_t group = 7 * block, gap = (size_t)(2 * RATE);
+    size_t n_groups = 4 * 5, n = n_groups * (group + gap) + gap;
+    double *x = clean_with_bursts(n, RATE);
+    size_t expect = 0;
+    bool quiet[4 * 5];
+    for (size_t g = 0; g < n_groups; g++) {
+        double c = offsets[g / 5], h = swings[g % 5];
+        double *b = x + gap + g * (group + gap);
+        for (size_t i = 0; i < group; i++)
+            b[i] = c + ((i & 1) ? -h : h);
+        quiet[g] = reference_quiet(b, block);
+        expect += quiet[g];
+    }
+    assert_true(expect > 0 && expect < n_groups); /* the limit falls between the groups */
+    rt_channel_info ch = chin_info(RATE);
+    rt_quality_mark marks[64];
+    size_t k = rt_quality_marks(x, n, RATE, NULL, marks, 64), f = 0;
+    assert_int_equal(marks_of(marks, k, RT_QUALITY_FLAT, &f), expect);
+    for (size_t g = 0, m = 0; g < n_groups; g++) {
+        if (!quiet[g])
+            continue;
+        while (marks[f + m].reason != RT_QUALITY_FLAT)
+            m++;
+        double t0 = (double)(gap + g * (group + gap)) / RATE;
+        assert_true(fabs(marks[f + m].start_s - t0) < 1e-9);
+        m++;
+    }
+    /* clipping: single samples 3 s apart at, inside and outside the limits */
+    double *y = clean_with_bursts(n, RATE);
+    double range = ch.phys_max - ch.phys_min, tol = RT_QUALITY_CLIP_FRACTION * range;
+    double hi = ch.phys_max - tol, lo = ch.phys_min + tol;
+    const double probes[] = {hi, nextafter(hi, 0.0), nextafter(hi, 1e9), lo, nextafter(lo, 0.0),
+                             nextafter(lo, -1e9), NAN, INFINITY, -INFINITY, 0.0};
+    size_t n_probes = sizeof probes / sizeof probes[0], clips = 0;
+    for (size_t p = 0; p < n_probes; p++) {
+        y[(size_t)((3.0 + 3.0 * (double)p) * RATE) + 5] = probes[p];
+        clips += !isfinite(probes[p]) || probes[p] >= ch.phys_max - tol ||
+                 probes[p] <= ch.phys_min + tol;
+    }
+    k = rt_quality_marks(y, n, RATE, &ch, marks, 64);
+    assert_int_equal(marks_of(marks, k, RT_QUALITY_CLIPPING, &f), clips);
+    free(x);
+    free(y);
+}
+
 static void test_marks_pops(void **state)
 {
     (void)state;
@@ -439,6 +510,7 @@ int main(void)
         cmocka_unit_test(test_prefilter_parse),
         cmocka_unit_test(test_channel_check),
         cmocka_unit_test(test_qrs_windows),
+        cmocka_unit_test(test_marks_at_their_limits),
     };
     return cmocka_run_group_tests(tests, NULL, cleanup);
 }
