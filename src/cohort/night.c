@@ -158,11 +158,9 @@ static rt_status score_and_write(const cohort_shared *s, const rt_manifest_entry
     memset(&ro, 0, sizeof ro);
     for (int r = 0; r < RT_ROLE_COUNT; r++)
         ro.override[r] = e->role_override[r];
-    rt_status st = RT_OK;
-    if (!(rec = rt_recording_open(e->recording, err)))
-        st = err->status;
-    if (st == RT_OK && !(tl = rt_timeline_new()))
-        st = rt_fail(err, RT_ERR_NOMEM, "out of memory");
+    rt_status st = rt_recording_open(e->recording, &rec, err);
+    if (st == RT_OK)
+        st = rt_timeline_new(&tl, err);
     if (st == RT_OK)
         st = e->stages ? rt_timeline_load_staging(tl, e->stages, NULL, err)
                        : rt_timeline_load_annotations(tl, rec, NULL, true, true, err);
@@ -189,8 +187,8 @@ static rt_status score_and_write(const cohort_shared *s, const rt_manifest_entry
  * nothing else. */
 static int exit_code_of(rt_status st)
 {
-    static const int codes[] = {0, 2, 3, 4, 5, 6, 8, 8};
-    return (int)st >= 0 && (size_t)st < sizeof codes / sizeof codes[0] ? codes[st] : 8;
+    static const int codes[] = {0, 2, 3, 4, 5, 6, 8, 9};
+    return (int)st >= 0 && (size_t)st < sizeof codes / sizeof codes[0] ? codes[st] : 9;
 }
 
 static void append_log(const char *log_path, const char *what, const char *id)

@@ -282,20 +282,21 @@ static rt_status fill_from_header(rt_recording *rec, const struct edf_hdr_struct
     return s;
 }
 
-static rt_recording *recording_new(const char *path, rt_error *err)
+static rt_status recording_new(const char *path, rt_recording **out, rt_error *err)
 {
+    *out = NULL;
     rt_recording *rec = rt_calloc(1, sizeof *rec);
     size_t n = strlen(path);
     if (rec)
         rec->path = rt_calloc(n + 1, 1);
     if (!rec || !rec->path) {
         free(rec);
-        rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", path);
-        return NULL;
+        return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", path);
     }
     memcpy(rec->path, path, n + 1);
     rec->handle = -1;
-    return rec;
+    *out = rec;
+    return RT_OK;
 }
 
 /* The EDF specification does not forbid bytes after the last data record,
@@ -313,20 +314,24 @@ static rt_status check_no_trailing_bytes(const char *path, const rt_edf_layout *
                    path, layout->file_bytes - end, layout->n_records, end, end, end);
 }
 
-rt_recording *rt_recording_open(const char *path, rt_error *err)
+rt_status rt_recording_open(const char *path, rt_recording **out, rt_error *err)
 {
+    if (!out)
+        return rt_fail(err, RT_ERR_USAGE, "rt_recording_open: no place for the result");
+    *out = NULL;
+    if (!path)
+        return rt_fail(err, RT_ERR_USAGE, "no recording path given");
     rt_edf_layout layout;
-    if (!path) {
-        rt_fail(err, RT_ERR_USAGE, "no recording path given");
-        return NULL;
-    }
-    if (rt_edf_header_check(path, &layout, err) != RT_OK || check_no_trailing_bytes(path, &layout, err) != RT_OK)
-        return NULL;
-    rt_recording *rec = recording_new(path, err);
+    rt_status s = rt_edf_header_check(path, &layout, err);
+    if (s == RT_OK)
+        s = check_no_trailing_bytes(path, &layout, err);
+    if (s != RT_OK)
+        return s;
+    rt_recording *rec = NULL;
+    if ((s = recording_new(path, &rec, err)) != RT_OK)
+        return s;
     struct edf_hdr_struct *h = rt_calloc(1, sizeof *h);
-    rt_status s = !rec ? RT_ERR_NOMEM
-                  : !h ? rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", path)
-                       : open_with_edflib(rec, h, err);
+    s = !h ? rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", path) : open_with_edflib(rec, h, err);
     if (s == RT_OK) {
         rec->file_bytes = layout.file_bytes;
         s = fill_from_header(rec, h, err);
@@ -334,9 +339,10 @@ rt_recording *rt_recording_open(const char *path, rt_error *err)
     free(h);
     if (s != RT_OK) {
         rt_recording_close(rec);
-        return NULL;
+        return s;
     }
-    return rec;
+    *out = rec;
+    return RT_OK;
 }
 
 void rt_recording_close(rt_recording *rec)

@@ -103,10 +103,7 @@ rt_status rt_conditioner_open(rt_recording *rec, const rt_role_source *src,
             return st;
         rt_mains_apply(&c->mains, &spec);
     }
-    c->bp = rt_bandpass_new(&spec, err);
-    if (!c->bp)
-        return err ? err->status : RT_ERR_NOMEM;
-    return RT_OK;
+    return rt_bandpass_new(&spec, &c->bp, err);
 }
 
 void rt_conditioner_close(rt_conditioner *c)

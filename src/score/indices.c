@@ -534,8 +534,9 @@ static rt_status channel_levels(rt_night *night, rt_error *err)
 
 rt_status rt_night_summarise(rt_night *night, const scoring_state *ss, rt_error *err)
 {
-    if (channel_levels(night, err) != RT_OK)
-        return err ? err->status : RT_ERR_NOMEM;
+    rt_status st = channel_levels(night, err);
+    if (st != RT_OK)
+        return st;
     bool arms = night->channel[RT_ROLE_ARM_LEFT].present && night->channel[RT_ROLE_ARM_RIGHT].present;
     aggregate_epochs(night, arms);
     size_t scorable_minis = 0;

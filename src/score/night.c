@@ -650,7 +650,12 @@ rt_status rt_night_score(rt_recording *rec, const rt_role_map *roles, const rt_t
                          const rt_score_params *params, const rt_cutoffs *cutoffs,
                          rt_night **out, rt_error *err)
 {
+    if (!out)
+        return rt_fail(err, RT_ERR_USAGE, "rt_night_score: no place for the result");
     *out = NULL;
+    if (!rec || !roles || !tl)
+        return rt_fail(err, RT_ERR_USAGE, "rt_night_score: a recording, roles and a timeline are "
+                                          "needed");
     if (fabs(tl->epoch_s - 30.0) > 1e-9)
         return rt_fail(err, RT_ERR_STAGING, "scoring needs 30-s epochs; the staging has %g-s epochs",
                        tl->epoch_s);

@@ -644,11 +644,8 @@ rt_status rt_timeline_load_xml_memory(rt_timeline *tl, const char *data, size_t 
         return st;
     st = validate_document(doc, name, err);
     rt_timeline *scratch = NULL;
-    if (st == RT_OK) {
-        scratch = rt_timeline_new();
-        if (!scratch)
-            st = rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", name);
-    }
+    if (st == RT_OK)
+        st = rt_timeline_new(&scratch, err);
     if (st == RT_OK) {
         reader r = {name, scratch, err};
         st = read_root(&r, xmlDocGetRootElement(doc));
