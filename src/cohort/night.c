@@ -238,7 +238,8 @@ night_outcome cohort_night(const cohort_shared *s, const rt_manifest_entry *e)
         return NIGHT_SKIPPED;
     }
     if (st == RT_OK && unlink(key_path) != 0 && errno != ENOENT)
-        st = rt_fail(&err, RT_ERR_IO, "%s: cannot remove: %s", key_path, strerror(errno));
+        st = rt_fail(&err, rt_errno_status(errno, RT_ERR_IO), "%s: cannot remove: %s", key_path,
+                     strerror(errno));
     if (st == RT_OK)
         st = score_and_write(s, e, json_path, &err);
     if (st == RT_OK) {

@@ -189,7 +189,8 @@ static rt_status make_dir(const char *path, rt_error *err)
             return RT_OK;
         return rt_fail(err, RT_ERR_IO, "%s: exists and is not a folder", path);
     }
-    return rt_fail(err, RT_ERR_IO, "%s: cannot create folder: %s", path, strerror(errno));
+    return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
+                   "%s: cannot create folder: %s", path, strerror(errno));
 }
 
 /* A whole run holds OUT/.run.lock exclusively; a slice holds it shared and
@@ -202,7 +203,8 @@ static rt_status take_locks(const rt_cohort_options *o, int fds[2], rt_error *er
     snprintf(path, sizeof path, "%s/.run.lock", o->out_dir);
     fds[0] = open(path, O_RDWR | O_CREAT, 0666);
     if (fds[0] < 0)
-        return rt_fail(err, RT_ERR_IO, "%s: cannot create: %s", path, strerror(errno));
+        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
+                       "%s: cannot create: %s", path, strerror(errno));
     if (flock(fds[0], (sliced ? LOCK_SH : LOCK_EX) | LOCK_NB) != 0)
         return rt_fail(err, RT_ERR_USAGE, "%s: another cohort run is writing this folder%s",
                        o->out_dir, sliced ? " (a whole run)" : "");
@@ -211,7 +213,8 @@ static rt_status take_locks(const rt_cohort_options *o, int fds[2], rt_error *er
     snprintf(path, sizeof path, "%s/.part-%u-of-%u.lock", o->out_dir, o->part, o->part_count);
     fds[1] = open(path, O_RDWR | O_CREAT, 0666);
     if (fds[1] < 0)
-        return rt_fail(err, RT_ERR_IO, "%s: cannot create: %s", path, strerror(errno));
+        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
+                       "%s: cannot create: %s", path, strerror(errno));
     if (flock(fds[1], LOCK_EX | LOCK_NB) != 0)
         return rt_fail(err, RT_ERR_USAGE, "%s: part %u of %u is already running", o->out_dir,
                        o->part, o->part_count);

@@ -4,6 +4,7 @@
  * thread-safe (edflib.h, "EDFlib and thread-safety"), so every EDFlib call here
  * runs under one static mutex. Samples come out in microvolts: the physical
  * value EDFlib computes from the header's ranges, times the unit's factor. */
+#include <errno.h>
 #include "remtone/recording.h"
 
 #include <edflib.h>
@@ -255,8 +256,16 @@ static rt_status read_annotations(rt_recording *rec, long long count, rt_error *
 static rt_status open_with_edflib(rt_recording *rec, struct edf_hdr_struct *h, rt_error *err)
 {
     pthread_mutex_lock(&edflib_lock);
+    errno = 0;
     int rc = edfopen_file_readonly(rec->path, h, EDFLIB_READ_ALL_ANNOTATIONS);
+    int saved = errno;
     pthread_mutex_unlock(&edflib_lock);
+    /* EDFlib 1.23 reports an allocation that failed while it reads the
+     * annotations as a format error; the allocator's ENOMEM tells them apart
+     * (remtone's own header checks have already passed by now). */
+    if (rc != 0 && saved == ENOMEM)
+        return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory inside EDFlib (EDFlib error %d)",
+                       rec->path, h->filetype);
     if (rc != 0)
         return rt_fail(err, edflib_open_status(h->filetype), "%s: %s (EDFlib error %d)", rec->path,
                        edflib_error_text(h->filetype), h->filetype);
@@ -419,10 +428,13 @@ static rt_status read_physical(rt_recording *rec, int channel, long long first, 
                        rec->channels[channel].label, first);
     for (size_t done = 0; done < n;) {
         int want = (int)(n - done < READ_CHUNK ? n - done : READ_CHUNK);
+        errno = 0; /* EDFlib allocates a buffer per read: ENOMEM tells that failure */
         int got = edfread_physical_samples(rec->handle, channel, want, out + done);
         if (got != want)
-            return rt_fail(err, RT_ERR_IO, "%s: channel \"%s\": read failed at sample %lld", rec->path,
-                           rec->channels[channel].label, first + (long long)done);
+            return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
+                           "%s: channel \"%s\": read failed at sample %lld%s", rec->path,
+                           rec->channels[channel].label, first + (long long)done,
+                           errno == ENOMEM ? ": out of memory" : "");
         done += (size_t)got;
     }
     return RT_OK;

@@ -315,12 +315,14 @@ static rt_status sniff_format(const char *path, staging_format *format, rt_error
 {
     struct stat st;
     if (stat(path, &st) != 0)
-        return rt_fail(err, RT_ERR_IO, "%s: cannot open: %s", path, strerror(errno));
+        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
+                       "%s: cannot open: %s", path, strerror(errno));
     if (S_ISDIR(st.st_mode))
         return rt_fail(err, RT_ERR_IO, "%s: is a directory, not a staging file", path);
     FILE *f = fopen(path, "rb");
     if (!f)
-        return rt_fail(err, RT_ERR_IO, "%s: cannot open: %s", path, strerror(errno));
+        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
+                       "%s: cannot open: %s", path, strerror(errno));
     unsigned char head[256];
     size_t n = fread(head, 1, sizeof head, f);
     int read_error = ferror(f);

@@ -663,7 +663,8 @@ rt_status rt_timeline_load_xml(rt_timeline *tl, const char *path, rt_error *err)
         return rt_fail(err, RT_ERR_USAGE, "rt_timeline_load_xml: NULL argument");
     FILE *f = fopen(path, "rb");
     if (!f)
-        return rt_fail(err, RT_ERR_IO, "%s: cannot open: %s", path, strerror(errno));
+        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
+                       "%s: cannot open: %s", path, strerror(errno));
     struct stat sb;
     if (fstat(fileno(f), &sb) == 0 && S_ISDIR(sb.st_mode)) {
         fclose(f);
@@ -701,7 +702,8 @@ rt_status rt_timeline_load_xml(rt_timeline *tl, const char *path, rt_error *err)
         len += got;
         if (got == 0) {
             if (ferror(f))
-                st = rt_fail(err, RT_ERR_IO, "%s: cannot read: %s", path, strerror(errno));
+                st = rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
+                             "%s: cannot read: %s", path, strerror(errno));
             break;
         }
     }
@@ -867,7 +869,8 @@ rt_status rt_timeline_write_xml(const rt_timeline *tl, const char *path, rt_erro
             size_t n = (size_t)xmlBufferLength(buf);
             if (fwrite(xmlBufferContent(buf), 1, n, out.file) != n) {
                 rt_output_abort(&out);
-                st = rt_fail(err, RT_ERR_IO, "%s: cannot write: %s", path, strerror(errno));
+                st = rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
+                             "%s: cannot write: %s", path, strerror(errno));
             } else {
                 st = rt_output_commit(&out, err);
             }
