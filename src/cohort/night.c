@@ -63,11 +63,13 @@ static rt_status input_identity(json_t *inputs, const char *role, const char *pa
 {
     if (!path)
         return RT_OK;
-    json_t *id = rt_file_identity_json(path, false, err);
-    if (!id)
-        return err ? err->status : RT_ERR_IO;
-    json_object_set_new(inputs, role, id);
-    return RT_OK;
+    json_t *id = NULL;
+    rt_status st = rt_file_identity_json(path, false, &id, err);
+    if (st != RT_OK)
+        return st;
+    bool ok = true;
+    rt_json_set(inputs, role, id, &ok);
+    return ok ? RT_OK : rt_fail(err, RT_ERR_NOMEM, "%s: out of memory for its identity", path);
 }
 
 /* The identity of a night: what its result depends on, not where it lives. */
@@ -104,22 +106,29 @@ static rt_status night_identity(const cohort_shared *s, const rt_manifest_entry 
     char hex[17];
     snprintf(hex, sizeof hex, "%016llx", (unsigned long long)XXH3_64bits_digest(h));
     XXH3_freeState(h);
-    json_object_set_new(id, "stages_from", json_string(e->stages ? "file" : "annotations"));
-    json_object_set_new(id, "settings", json_string(hex));
-    *out = id;
+    bool ok = true;
+    rt_json_set(id, "stages_from", json_string(e->stages ? "file" : "annotations"), &ok);
+    rt_json_set(id, "settings", json_string(hex), &ok);
+    if (!(*out = rt_json_done(id, ok)))
+        return rt_fail(err, RT_ERR_NOMEM, "out of memory");
     return RT_OK;
 }
 
 static rt_status write_json_atomic(json_t *root, const char *path, rt_error *err)
 {
-    return rt_json_write(root, path, JSON_SORT_KEYS, err);
+    return rt_json_write(root, path, JSON_INDENT(2) | JSON_SORT_KEYS, err);
 }
 
+/* The key file's content (NULL when out of memory); identity is not taken. */
 static json_t *key_json(const rt_manifest_entry *e, json_t *identity)
 {
-    json_t *k = json_pack("{s:s,s:s,s:s,s:O}", "schema", "remtone-cohort-key/1", "id", e->id,
-                          "group", e->group, "identity", identity);
-    return k;
+    bool ok = true;
+    json_t *k = json_object();
+    rt_json_set(k, "schema", json_string("remtone-cohort-key/1"), &ok);
+    rt_json_set(k, "id", json_string(e->id), &ok);
+    rt_json_set(k, "group", rt_json_text(e->group), &ok);
+    rt_json_set(k, "identity", json_incref(identity), &ok);
+    return rt_json_done(k, ok);
 }
 
 /* A current result: its key exists, names this night and holds the same
@@ -209,12 +218,19 @@ static void write_error(const cohort_shared *s, const rt_manifest_entry *e, cons
     char path[COHORT_PATH_MAX];
     if (!cohort_night_path(path, sizeof path, s->nights_dir, e->id, ".error.json"))
         return;
-    json_t *root = json_pack("{s:s,s:s,s:s,s:s,s:i,s:s,s:s}", "schema", "remtone-cohort-error/1",
-                             "id", e->id, "group", e->group, "status", rt_status_name(why->status),
-                             "exit_code", exit_code_of(why->status), "message",
-                             why->message[0] ? why->message : rt_status_name(why->status),
-                             "recording", e->recording);
-    if (root)
+    bool ok = true;
+    json_t *root = json_object();
+    rt_json_set(root, "schema", json_string("remtone-cohort-error/1"), &ok);
+    rt_json_set(root, "id", json_string(e->id), &ok);
+    rt_json_set(root, "group", rt_json_text(e->group), &ok);
+    rt_json_set(root, "status", json_string(rt_status_name(why->status)), &ok);
+    rt_json_set(root, "exit_code", json_integer(exit_code_of(why->status)), &ok);
+    rt_json_set(root, "message",
+                rt_json_text(why->message[0] ? why->message : rt_status_name(why->status)), &ok);
+    rt_json_set(root, "recording", rt_json_text(e->recording), &ok);
+    /* the night has failed already; without memory for its record, the
+     * missing result and the log line still say so */
+    if ((root = rt_json_done(root, ok)))
         write_json_atomic(root, path, NULL);
     json_decref(root);
 }

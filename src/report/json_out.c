@@ -1,32 +1,39 @@
-/* Writing JSON files and file identities, shared by every JSON writer. */
+/* File identities and untrusted text for the JSON writers. */
+#include <stdlib.h>
+
 #include "digest.h"
 #include "internal.h"
-#include "output.h"
 #include "report_internal.h"
 
-rt_status rt_json_write(json_t *root, const char *path, size_t flags, rt_error *err)
+rt_status rt_file_identity_json(const char *path, bool with_path, json_t **out, rt_error *err)
 {
-    rt_output out;
-    rt_status st = rt_output_begin(&out, path, 1, err);
-    if (st != RT_OK)
-        return st;
-    if (json_dumpf(root, out.file, JSON_INDENT(2) | flags) != 0 || fputc('\n', out.file) == EOF) {
-        rt_output_abort(&out);
-        return rt_fail(err, RT_ERR_IO, "%s: cannot write JSON", path);
-    }
-    return rt_output_commit(&out, err);
-}
-
-json_t *rt_file_identity_json(const char *path, bool with_path, rt_error *err)
-{
+    *out = NULL;
     long long size = 0;
     char hex[17];
-    if (rt_file_digest(path, &size, hex, err) != RT_OK)
-        return NULL;
+    rt_status st = rt_file_digest(path, &size, hex, err);
+    if (st != RT_OK)
+        return st;
+    bool ok = true;
     json_t *o = json_object();
     if (with_path)
-        json_object_set_new(o, "path", json_string(path));
-    json_object_set_new(o, "bytes", json_integer((json_int_t)size));
-    json_object_set_new(o, "xxh3", json_string(hex));
-    return o;
+        rt_json_set(o, "path", rt_json_text(path), &ok);
+    rt_json_set(o, "bytes", json_integer((json_int_t)size), &ok);
+    rt_json_set(o, "xxh3", json_string(hex), &ok);
+    if (!(*out = rt_json_done(o, ok)))
+        return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory for its identity", path);
+    return RT_OK;
+}
+
+json_t *rt_json_text(const char *text)
+{
+    json_t *s = json_string(text ? text : "");
+    if (s)
+        return s;
+    /* not UTF-8 (or out of memory): the cleaned copy, which is UTF-8 */
+    char *clean = NULL;
+    if (rt_xml_clean_text(text, &clean, NULL) != RT_OK)
+        return NULL;
+    s = json_string(clean);
+    free(clean);
+    return s;
 }
