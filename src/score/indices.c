@@ -233,15 +233,20 @@ static size_t mini_holding(const rt_mini *m, size_t count, double len_s, double 
     return lo < count && m[lo].onset_s <= t_s ? lo : count;
 }
 
-static double leg_movements_per_h(const rt_night *night, size_t *count)
+/* Leg movements per hour of REM from the leg EMG into *per_h (NaN without a
+ * leg channel or REM) and their number into *count. RT_ERR_NOMEM when there is
+ * no room to sort them: never a silent "not computed". */
+static rt_status leg_movements_per_h(const rt_night *night, double *per_h, size_t *count,
+                                     rt_error *err)
 {
     *count = 0;
+    *per_h = NAN;
     if ((!night->channel[RT_ROLE_LEG_LEFT].present && !night->channel[RT_ROLE_LEG_RIGHT].present) ||
         night->rem_minutes <= 0)
-        return NAN;
+        return RT_OK;
     leg_move *mv = rt_calloc(night->n_bursts + 1, sizeof *mv);
     if (!mv)
-        return NAN;
+        return rt_fail(err, RT_ERR_NOMEM, "out of memory for %zu leg bursts", night->n_bursts);
     size_t n = 0;
     for (size_t i = 0; i < night->n_bursts; i++) {
         const rt_burst *b = &night->bursts[i];
@@ -290,12 +295,13 @@ static double leg_movements_per_h(const rt_night *night, size_t *count)
             }
     }
     free(mv);
-    return (double)*count / (night->rem_minutes / 60.0);
+    *per_h = (double)*count / (night->rem_minutes / 60.0);
+    return RT_OK;
 }
 
 /* REM minutes left out, each mini-epoch counted once for its first cause;
  * the leg-movement rate. */
-static void summarise_exclusions(rt_night *night)
+static rt_status summarise_exclusions(rt_night *night, rt_error *err)
 {
     rt_exclusion_summary *x = &night->exclusions;
     for (size_t i = 0; i < night->n_minis3; i++) {
@@ -317,7 +323,9 @@ static void summarise_exclusions(rt_night *night)
     lm->value = x->rem_leg_movements_per_h;
     if (isnan(lm->value)) {
         size_t count = 0;
-        lm->value = leg_movements_per_h(night, &count);
+        rt_status st = leg_movements_per_h(night, &lm->value, &count, err);
+        if (st != RT_OK)
+            return st;
         lm->numerator = count;
         if (!isnan(lm->value))
             rt_copy_string(lm->reason, sizeof lm->reason,
@@ -331,6 +339,7 @@ static void summarise_exclusions(rt_night *night)
     if (x->have_respiratory && x->rem_ahi >= 15.0)
         rt_night_warn(night, "REM apnea-hypopnea index %.1f/h is 15/h or more: RSWA indices are "
                              "less reliable (Cesari et al. 2023, Sleep)", x->rem_ahi);
+    return RT_OK;
 }
 
 static void apply_missing(rt_night *night, bool arms)
@@ -549,7 +558,8 @@ rt_status rt_night_summarise(rt_night *night, const scoring_state *ss, rt_error 
     compute_epoch_indices(night, arms);
     set_value(&night->index[RT_IX_MONTREAL_TONIC_CHIN], ss->montreal_tonic, ss->montreal_windows,
               100.0);
-    summarise_exclusions(night);
+    if ((st = summarise_exclusions(night, err)) != RT_OK)
+        return st;
     rt_index_value *rai = &night->index[RT_IX_RAI];
     rai->numerator = ss->rai.at_most_1;
     rai->denominator = ss->rai.total;
