@@ -59,19 +59,6 @@ void cohort_settings_text(cohort_shared *s)
     }
 }
 
-static rt_status input_identity(json_t *inputs, const char *role, const char *path, rt_error *err)
-{
-    if (!path)
-        return RT_OK;
-    json_t *id = NULL;
-    rt_status st = rt_file_identity_json(path, false, &id, err);
-    if (st != RT_OK)
-        return st;
-    bool ok = true;
-    rt_json_set(inputs, role, id, &ok);
-    return ok ? RT_OK : rt_fail(err, RT_ERR_NOMEM, "%s: out of memory for its identity", path);
-}
-
 /* The identity of a night: what its result depends on, not where it lives. */
 static rt_status night_identity(const cohort_shared *s, const rt_manifest_entry *e, json_t **out,
                                 rt_error *err)
@@ -79,13 +66,13 @@ static rt_status night_identity(const cohort_shared *s, const rt_manifest_entry 
     json_t *id = json_object();
     if (!id)
         return rt_fail(err, RT_ERR_NOMEM, "out of memory");
-    rt_status st = input_identity(id, "recording", e->recording, err);
+    rt_status st = rt_file_identity_add(id, "recording", e->recording, false, err);
     if (st == RT_OK)
-        st = input_identity(id, "stages", e->stages, err);
+        st = rt_file_identity_add(id, "stages", e->stages, false, err);
     if (st == RT_OK)
-        st = input_identity(id, "events", e->events, err);
+        st = rt_file_identity_add(id, "events", e->events, false, err);
     if (st == RT_OK)
-        st = input_identity(id, "cutoffs", s->options->cutoffs_path, err);
+        st = rt_file_identity_add(id, "cutoffs", s->options->cutoffs_path, false, err);
     if (st != RT_OK) {
         json_decref(id);
         return st;

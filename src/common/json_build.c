@@ -1,7 +1,6 @@
 /* The JSON building and writing helpers of json_build.h. */
 #include "json_build.h"
 
-#include <errno.h>
 #include <stdint.h>
 #include <stdlib.h>
 #include <string.h>
@@ -70,20 +69,7 @@ rt_status rt_json_write(json_t *root, const char *path, size_t flags, rt_error *
         free(d.text);
         return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory composing the JSON", path);
     }
-    char *text = d.text;
-    size_t len = d.len;
-    rt_output out;
-    rt_status st = rt_output_begin(&out, path, 1, err);
-    if (st == RT_OK) {
-        if ((len > 0 && fwrite(text, 1, len, out.file) != len) || fputc('\n', out.file) == EOF) {
-            int saved = errno;
-            rt_output_abort(&out);
-            st = rt_fail(err, RT_ERR_IO, "%s: cannot write JSON: %s", path,
-                         strerror(saved ? saved : EIO));
-        } else {
-            st = rt_output_commit(&out, err);
-        }
-    }
-    free(text);
+    rt_status st = rt_output_write_all(path, d.text, d.len, 1, "JSON", err);
+    free(d.text);
     return st;
 }

@@ -108,6 +108,23 @@ rt_status rt_output_commit(rt_output *out, rt_error *err)
     return RT_OK;
 }
 
+rt_status rt_output_write_all(const char *path, const char *bytes, size_t len, int add_newline,
+                              const char *what, rt_error *err)
+{
+    rt_output out;
+    rt_status st = rt_output_begin(&out, path, 1, err);
+    if (st != RT_OK)
+        return st;
+    if ((len > 0 && fwrite(bytes, 1, len, out.file) != len) ||
+        (add_newline && fputc('\n', out.file) == EOF)) {
+        int saved = errno;
+        rt_output_abort(&out);
+        return rt_fail(err, RT_ERR_IO, "%s: cannot write %s: %s", path, what,
+                       strerror(saved ? saved : EIO));
+    }
+    return rt_output_commit(&out, err);
+}
+
 void rt_output_abort(rt_output *out)
 {
     if (out->file == stdout) {

@@ -157,19 +157,6 @@ static json_t *params_json(const rt_score_params *p)
     return rt_json_done(o, ok);
 }
 
-static rt_status input_json(json_t *inputs, const char *role, const char *path, rt_error *err)
-{
-    if (!path)
-        return RT_OK;
-    json_t *id = NULL;
-    rt_status st = rt_file_identity_json(path, true, &id, err);
-    if (st != RT_OK)
-        return st;
-    bool ok = true;
-    rt_json_set(inputs, role, id, &ok);
-    return ok ? RT_OK : rt_fail(err, RT_ERR_NOMEM, "%s: out of memory for its identity", path);
-}
-
 static rt_status provenance_json(const rt_night *night, const rt_run_inputs *in, json_t **out,
                                  rt_error *err)
 {
@@ -179,15 +166,15 @@ static rt_status provenance_json(const rt_night *night, const rt_run_inputs *in,
         return rt_fail(err, RT_ERR_NOMEM, "out of memory for the provenance");
     rt_status st = RT_OK;
     if (in) {
-        st = input_json(inputs, "recording", in->recording, err);
+        st = rt_file_identity_add(inputs, "recording", in->recording, true, err);
         if (st == RT_OK)
-            st = input_json(inputs, "stages", in->stages, err);
+            st = rt_file_identity_add(inputs, "stages", in->stages, true, err);
         if (st == RT_OK)
-            st = input_json(inputs, "events", in->events, err);
+            st = rt_file_identity_add(inputs, "events", in->events, true, err);
         if (st == RT_OK)
-            st = input_json(inputs, "cutoffs", in->cutoffs, err);
+            st = rt_file_identity_add(inputs, "cutoffs", in->cutoffs, true, err);
         if (st == RT_OK)
-            st = input_json(inputs, "label_map", in->label_map, err);
+            st = rt_file_identity_add(inputs, "label_map", in->label_map, true, err);
     }
     if (st != RT_OK) {
         json_decref(inputs);

@@ -24,6 +24,20 @@ rt_status rt_file_identity_json(const char *path, bool with_path, json_t **out, 
     return RT_OK;
 }
 
+rt_status rt_file_identity_add(json_t *o, const char *key, const char *path, bool with_path,
+                               rt_error *err)
+{
+    if (!path)
+        return RT_OK;
+    json_t *id = NULL;
+    rt_status st = rt_file_identity_json(path, with_path, &id, err);
+    if (st != RT_OK)
+        return st;
+    bool ok = true;
+    rt_json_set(o, key, id, &ok);
+    return ok ? RT_OK : rt_fail(err, RT_ERR_NOMEM, "%s: out of memory for its identity", path);
+}
+
 json_t *rt_json_text(const char *text)
 {
     json_t *s = json_string(text ? text : "");

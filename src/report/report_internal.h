@@ -18,6 +18,9 @@
  * in *out, for provenance and resumable runs; on failure *out is NULL and the
  * status (RT_ERR_IO, RT_ERR_NOMEM) is returned. */
 rt_status rt_file_identity_json(const char *path, bool with_path, json_t **out, rt_error *err);
+/* o[key] = that identity of path; nothing when path is NULL. */
+rt_status rt_file_identity_add(json_t *o, const char *key, const char *path, bool with_path,
+                               rt_error *err);
 
 /* Builders below that return json_t * are built with json_build.h: NULL
  * means out of memory. json_string for text that may not be UTF-8 (header labels, file names):

@@ -167,20 +167,8 @@ rt_status rt_page_save(rt_page *p, const char *path, bool add_newline, rt_error 
     const char *bytes = NULL;
     size_t len = 0;
     rt_status st = rt_page_finish(p, path, &bytes, &len, err);
-    rt_output out;
     if (st == RT_OK)
-        st = rt_output_begin(&out, path, 1, err);
-    if (st == RT_OK) {
-        if (fwrite(bytes, 1, len, out.file) != len ||
-            (add_newline && fputc('\n', out.file) == EOF)) {
-            int saved = errno;
-            rt_output_abort(&out);
-            st = rt_fail(err, RT_ERR_IO, "%s: cannot write the page: %s", path,
-                         strerror(saved ? saved : EIO));
-        } else {
-            st = rt_output_commit(&out, err);
-        }
-    }
+        st = rt_output_write_all(path, bytes, len, add_newline, "the page", err);
     rt_page_close(p);
     return st;
 }
