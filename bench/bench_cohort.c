@@ -68,8 +68,8 @@ int main(int argc, char **argv)
                 i % 2 ? "control" : "case");
     }
     fclose(m);
-    rt_manifest *man = rt_manifest_load(manifest, &err);
-    if (!man) {
+    rt_manifest *man = NULL;
+    if (rt_manifest_load(manifest, &man, &err) != RT_OK) {
         fprintf(stderr, "%s\n", err.message);
         return 1;
     }

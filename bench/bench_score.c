@@ -125,12 +125,12 @@ int main(int argc, char **argv)
         printf("synthetic night written in %.2f s\n", now_s() - t);
     }
     machine();
-    rt_recording *rec = rt_recording_open(path, &err);
-    if (!rec)
+    rt_recording *rec = NULL;
+    if (rt_recording_open(path, &rec, &err) != RT_OK)
         die(&err);
     rt_role_map roles;
-    rt_timeline *tl = rt_timeline_new();
-    if (rt_roles_resolve(rec, NULL, &roles, &err) != RT_OK ||
+    rt_timeline *tl = NULL;
+    if (rt_timeline_new(&tl, &err) != RT_OK || rt_roles_resolve(rec, NULL, &roles, &err) != RT_OK ||
         rt_timeline_load_stages_csv(tl, stages, NULL, &err) != RT_OK)
         die(&err);
     printf("night: %.2f h, %d channels, %s\n", rt_recording_duration_s(rec) / 3600.0,

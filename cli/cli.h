@@ -16,7 +16,8 @@ enum {
     EXIT_STAGING = 5,    /* staging, events, label map or cutoff file malformed */
     EXIT_CHANNEL = 6,    /* a channel role is missing, ambiguous or has a wrong unit */
     EXIT_OUTPUT = 7,     /* an output file cannot be written */
-    EXIT_INTERNAL = 8    /* out of memory or an internal error */
+    EXIT_NOMEM = 8,      /* out of memory */
+    EXIT_INTERNAL = 9    /* an internal error (a bug in remtone) */
 };
 
 typedef struct cli_option {
@@ -72,8 +73,10 @@ typedef struct cli_output {
 int cli_check_outputs(const char *command, const cli_output *outputs, size_t n_outputs,
                       const char *const *inputs, size_t n_inputs);
 
-/* Prints "remtone: message" to stderr and returns the exit code. */
-int cli_report(const rt_error *err, int output);
+/* Prints "remtone: message" to stderr and returns the exit code of status,
+ * the status the failed call returned (err may be NULL or hold no message:
+ * the status is still named). */
+int cli_report(rt_status status, const rt_error *err, int output);
 
 extern const cli_command CLI_SCAN, CLI_SYNTH, CLI_SCORE, CLI_RULES;
 extern const cli_command CLI_COHORT, CLI_COHORT_MERGE; /* cmd_cohort.c */

@@ -157,8 +157,9 @@ static int merge_and_report(cohort_config *c)
     rt_error err;
     rt_error_clear(&err);
     rt_cohort_merge_summary s;
-    if (rt_cohort_merge(&c->o, &s, &err) != RT_OK)
-        return cli_report(&err, err.status == RT_ERR_IO);
+    rt_status st = rt_cohort_merge(&c->o, &s, &err);
+    if (st != RT_OK)
+        return cli_report(st, &err, st == RT_ERR_IO);
     if (!c->quiet)
         printf("%s: %zu nights in cohort.csv (%zu scored, %zu failed%s); calibration on %zu "
                "\"%s\" and %zu \"%s\" nights\n",
@@ -189,9 +190,10 @@ static int run(int argc, char **argv)
     }
     rt_error err;
     rt_error_clear(&err);
-    rt_manifest *m = rt_manifest_load(pos[0], &err);
-    if (!m)
-        return cli_report(&err, 0);
+    rt_manifest *m = NULL;
+    rt_status st = rt_manifest_load(pos[0], &m, &err);
+    if (st != RT_OK)
+        return cli_report(st, &err, 0);
     if ((rc = check_outputs(&c, pos[0], m)) != EXIT_OK) {
         rt_manifest_free(m);
         return rc;
@@ -200,12 +202,12 @@ static int run(int argc, char **argv)
     if (tty)
         c.o.progress = show_progress;
     rt_cohort_progress p;
-    rt_status st = rt_cohort_run(m, &c.o, &p, &err);
+    st = rt_cohort_run(m, &c.o, &p, &err);
     rt_manifest_free(m);
     if (tty)
         fputc('\n', stderr);
     if (st != RT_OK)
-        return cli_report(&err, st == RT_ERR_IO);
+        return cli_report(st, &err, st == RT_ERR_IO);
     if (!c.quiet)
         printf("%s: %zu nights: %zu scored, %zu already current, %zu failed (nights/*.error.json)\n",
                c.o.out_dir, p.total, p.scored, p.skipped, p.failed);

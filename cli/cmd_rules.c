@@ -37,14 +37,17 @@ static int run(int argc, char **argv)
     const char *file = cfg.cutoffs;
     rt_error err;
     rt_error_clear(&err);
-    if (cfg.params)
-        return rt_params_write_markdown(stdout, &err) == RT_OK ? EXIT_OK : cli_report(&err, 1);
+    rt_status st;
+    if (cfg.params) {
+        st = rt_params_write_markdown(stdout, &err);
+        return st == RT_OK ? EXIT_OK : cli_report(st, &err, 1);
+    }
     rt_cutoffs cutoffs;
     rt_cutoffs_published(&cutoffs);
-    if (file && rt_cutoffs_load(&cutoffs, file, &err) != RT_OK)
-        return cli_report(&err, 0);
-    if (rt_rules_write_text(&cutoffs, stdout, &err) != RT_OK)
-        return cli_report(&err, 1);
+    if (file && (st = rt_cutoffs_load(&cutoffs, file, &err)) != RT_OK)
+        return cli_report(st, &err, 0);
+    if ((st = rt_rules_write_text(&cutoffs, stdout, &err)) != RT_OK)
+        return cli_report(st, &err, 1);
     return EXIT_OK;
 }
 

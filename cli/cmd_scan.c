@@ -43,12 +43,13 @@ static int run(int argc, char **argv)
         return rc;
     rt_error err;
     rt_error_clear(&err);
-    rt_recording *rec = rt_recording_open(pos[0], &err);
-    if (!rec)
-        return cli_report(&err, 0);
+    rt_recording *rec = NULL;
+    rt_status st = rt_recording_open(pos[0], &rec, &err);
+    if (st != RT_OK)
+        return cli_report(st, &err, 0);
     rt_role_map map;
     rt_channel_quality quality[RT_ROLE_COUNT];
-    rt_status st = rt_roles_resolve(rec, &c.roles, &map, &err);
+    st = rt_roles_resolve(rec, &c.roles, &map, &err);
     if (st == RT_OK)
         st = rt_recording_quality(rec, &map, quality, &err);
     if (st == RT_OK && !(c.json && strcmp(c.json, "-") == 0))
@@ -59,7 +60,7 @@ static int run(int argc, char **argv)
         out_err = 1;
     }
     rt_recording_close(rec);
-    return st == RT_OK ? EXIT_OK : cli_report(&err, out_err && st == RT_ERR_IO);
+    return st == RT_OK ? EXIT_OK : cli_report(st, &err, out_err && st == RT_ERR_IO);
 }
 
 const cli_command CLI_SCAN = {"scan", "REC [options]",

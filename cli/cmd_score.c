@@ -106,16 +106,18 @@ typedef struct loaded {
 static rt_status load_inputs(const score_config *c, const char *rec_path, loaded *l, rt_error *err)
 {
     rt_cutoffs_published(&l->cutoffs);
-    if (c->cutoffs && rt_cutoffs_load(&l->cutoffs, c->cutoffs, err) != RT_OK)
-        return err->status;
-    if (c->labels && !(l->labels = rt_labelmap_load(c->labels, err)))
-        return err->status;
-    if (!(l->rec = rt_recording_open(rec_path, err)))
-        return err->status;
-    if (!(l->tl = rt_timeline_new()))
-        return RT_ERR_NOMEM;
-    rt_status st = c->stages ? rt_timeline_load_staging(l->tl, c->stages, l->labels, err)
-                             : rt_timeline_load_annotations(l->tl, l->rec, l->labels, true, true, err);
+    rt_status st = RT_OK;
+    if (c->cutoffs)
+        st = rt_cutoffs_load(&l->cutoffs, c->cutoffs, err);
+    if (st == RT_OK && c->labels)
+        st = rt_labelmap_load(c->labels, &l->labels, err);
+    if (st == RT_OK)
+        st = rt_recording_open(rec_path, &l->rec, err);
+    if (st == RT_OK)
+        st = rt_timeline_new(&l->tl, err);
+    if (st == RT_OK)
+        st = c->stages ? rt_timeline_load_staging(l->tl, c->stages, l->labels, err)
+                       : rt_timeline_load_annotations(l->tl, l->rec, l->labels, true, true, err);
     if (st == RT_OK && c->events)
         st = rt_timeline_load_events_csv(l->tl, c->events, l->labels, err);
     if (st == RT_OK)
@@ -183,7 +185,7 @@ static int run(int argc, char **argv)
     rt_recording_close(l.rec);
     if (st == RT_OK)
         return EXIT_OK;
-    return cli_report(&err, output_error && st == RT_ERR_IO);
+    return cli_report(st, &err, output_error && st == RT_ERR_IO);
 }
 
 const cli_command CLI_SCORE = {"score", "REC [--stages FILE] [--events FILE] [--json PATH] [options]",

@@ -149,8 +149,9 @@ static int run(int argc, char **argv)
     }
     rt_error err;
     rt_error_clear(&err);
-    if (rt_synth_write(&c.o, c.out, &err) != RT_OK)
-        return cli_report(&err, 1);
+    rt_status st = rt_synth_write(&c.o, c.out, &err);
+    if (st != RT_OK)
+        return cli_report(st, &err, 1);
     printf("wrote %s/night.edf, stages.csv, events.csv, truth.json (%s, %g h, seed %llu)\n", c.out,
            rt_synth_profile_name(c.o.profile), c.o.hours, (unsigned long long)c.o.seed);
     return EXIT_OK;

@@ -78,16 +78,29 @@ int cli_exit_code(rt_status status, int output)
     case RT_ERR_RECORDING: return EXIT_RECORDING;
     case RT_ERR_STAGING: return EXIT_STAGING;
     case RT_ERR_CHANNEL: return EXIT_CHANNEL;
-    case RT_ERR_NOMEM:
+    case RT_ERR_NOMEM: return EXIT_NOMEM;
     case RT_ERR_INTERNAL: return EXIT_INTERNAL;
     }
     return EXIT_INTERNAL;
 }
 
-int cli_report(const rt_error *err, int output)
+int cli_report(rt_status status, const rt_error *err, int output)
 {
-    fprintf(stderr, "remtone: %s\n", err->message[0] ? err->message : rt_status_name(err->status));
-    return cli_exit_code(err->status, output);
+    /* The status returned is the truth; the message explains it. Running out
+     * of memory is always named in those words, whatever the place said (a
+     * file that "cannot open: Cannot allocate memory"), and a message left
+     * empty still names the failure. */
+    const char *what = status == RT_ERR_NOMEM ? "out of memory" : rt_status_name(status);
+    const char *msg = err && err->message[0] && err->status == status ? err->message : NULL;
+    if (msg && (status != RT_ERR_NOMEM || strstr(msg, "out of memory")))
+        fprintf(stderr, "remtone: %s\n", msg);
+    else if (msg)
+        fprintf(stderr, "remtone: out of memory: %s\n", msg);
+    else if (err && err->message[0]) /* a message of another status: shown, not trusted */
+        fprintf(stderr, "remtone: %s (%s)\n", what, err->message);
+    else
+        fprintf(stderr, "remtone: %s\n", what);
+    return cli_exit_code(status, output);
 }
 
 int cli_refuse_output_over_input(const char *command, const char *option, const char *output,

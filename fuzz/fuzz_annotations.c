@@ -27,10 +27,10 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
     const char *path = rt_fuzz_write_file("input.edf", data, size);
     rt_error err;
     rt_error_clear(&err);
-    rt_recording *rec = rt_recording_open(path, &err);
-    if (rec) {
-        rt_timeline *tl = rt_timeline_new();
-        if (!tl)
+    rt_recording *rec = NULL;
+    if (rt_recording_open(path, &rec, &err) == RT_OK) {
+        rt_timeline *tl = NULL;
+        if (rt_timeline_new(&tl, NULL) != RT_OK)
             abort();
         rt_status s = rt_timeline_load_annotations(tl, rec, NULL, true, true, &err);
         check_message(s, &err);
@@ -46,8 +46,8 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
     }
     /* EDFlib refuses a file already open in the process, so the hypnogram
      * route runs after the recording is closed */
-    rt_timeline *tl = rt_timeline_new();
-    if (!tl)
+    rt_timeline *tl = NULL;
+    if (rt_timeline_new(&tl, NULL) != RT_OK)
         abort();
     rt_error_clear(&err);
     rt_status s = rt_timeline_load_staging(tl, path, NULL, &err);

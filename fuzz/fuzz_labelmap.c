@@ -12,8 +12,8 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
     const char *path = rt_fuzz_write_file("input.csv", data, size);
     rt_error err;
     rt_error_clear(&err);
-    rt_labelmap *map = rt_labelmap_load(path, &err);
-    if (!map) {
+    rt_labelmap *map = NULL;
+    if (rt_labelmap_load(path, &map, &err) != RT_OK) {
         if (err.message[0] == '\0')
             abort();
         return 0;

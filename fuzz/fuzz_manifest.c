@@ -22,8 +22,8 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
     const char *path = rt_fuzz_write_file("manifest.csv", data, size);
     rt_error err;
     rt_error_clear(&err);
-    rt_manifest *m = rt_manifest_load(path, &err);
-    if (!m) {
+    rt_manifest *m = NULL;
+    if (rt_manifest_load(path, &m, &err) != RT_OK) {
         if (err.message[0] == '\0')
             abort();
         return 0;

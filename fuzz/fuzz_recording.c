@@ -43,8 +43,8 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
     const char *path = rt_fuzz_write_file("input.edf", data, size);
     rt_error err;
     rt_error_clear(&err);
-    rt_recording *rec = rt_recording_open(path, &err);
-    if (!rec) {
+    rt_recording *rec = NULL;
+    if (rt_recording_open(path, &rec, &err) != RT_OK) {
         check_message(&err);
         return 0;
     }

@@ -12,8 +12,8 @@ static rt_labelmap *fixed_map(void)
 {
     /* a lab's map of the kind docs/staging.md shows: renamed stages, an
      * event and an ignored label */
-    rt_labelmap *map = rt_labelmap_new();
-    if (!map || rt_labelmap_add(map, "Stage R", "R", NULL) != RT_OK ||
+    rt_labelmap *map = NULL;
+    if (rt_labelmap_new(&map, NULL) != RT_OK || rt_labelmap_add(map, "Stage R", "R", NULL) != RT_OK ||
         rt_labelmap_add(map, "Wake", "W", NULL) != RT_OK ||
         rt_labelmap_add(map, "Snore?", "snore", NULL) != RT_OK ||
         rt_labelmap_add(map, "movement", "ignore", NULL) != RT_OK)
@@ -28,8 +28,8 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
     unsigned mode = data[0];
     const char *path = rt_fuzz_write_file("input.csv", data + 1, size - 1);
     rt_labelmap *map = (mode & 0x80) ? fixed_map() : NULL;
-    rt_timeline *tl = rt_timeline_new();
-    if (!tl)
+    rt_timeline *tl = NULL;
+    if (rt_timeline_new(&tl, NULL) != RT_OK)
         abort();
     rt_error err;
     rt_error_clear(&err);

@@ -28,8 +28,8 @@ static void check_equal(const rt_timeline *a, const rt_timeline *b)
 
 int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
 {
-    rt_timeline *tl = rt_timeline_new();
-    if (!tl)
+    rt_timeline *tl = NULL;
+    if (rt_timeline_new(&tl, NULL) != RT_OK)
         abort();
     rt_error err;
     rt_error_clear(&err);
@@ -42,8 +42,8 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
         rt_error_clear(&err);
         if (rt_timeline_write_xml(tl, path, &err) != RT_OK)
             abort();
-        rt_timeline *back = rt_timeline_new();
-        if (!back)
+        rt_timeline *back = NULL;
+        if (rt_timeline_new(&back, NULL) != RT_OK)
             abort();
         if (rt_timeline_load_xml(back, path, &err) != RT_OK)
             abort();

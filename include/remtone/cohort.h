@@ -11,7 +11,7 @@
  * merge step reads those files back and writes cohort.csv, calibration.csv,
  * calibrated-cutoffs.csv and cohort.html.
  *
- * Ownership: rt_manifest_load() returns a manifest freed by rt_manifest_free();
+ * Ownership: rt_manifest_load() makes a manifest (*out) freed by rt_manifest_free();
  * rt_roc_compute() fills an rt_roc whose arrays rt_roc_free() releases.
  * Thread safety: rt_cohort_run() starts and joins its own worker threads;
  * the progress callback is called from the calling thread only. */
@@ -60,8 +60,9 @@ typedef struct rt_manifest {
  * folder. Errors name the file and line: a missing input file (RT_ERR_IO), a
  * duplicate id (compared case-insensitively, as some file systems do), an id
  * that is not a safe file name, a malformed row, an empty manifest
- * (RT_ERR_STAGING). Returns NULL on failure. */
-rt_manifest *rt_manifest_load(const char *path, rt_error *err);
+ * (RT_ERR_STAGING); RT_ERR_NOMEM when out of memory. On success *out holds
+ * the manifest; on failure *out is NULL. */
+rt_status rt_manifest_load(const char *path, rt_manifest **out, rt_error *err);
 void rt_manifest_free(rt_manifest *manifest);
 
 /* True when id may name files: 1..RT_COHORT_ID_MAX bytes of ASCII letters,

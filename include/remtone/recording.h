@@ -8,7 +8,7 @@
  * data records in blocks (not through EDFlib), with values bit-identical to
  * EDFlib's edfread_physical_samples.
  *
- * Ownership: rt_recording_open() returns an object the caller frees with
+ * Ownership: rt_recording_open() makes an object (*out) the caller frees with
  * rt_recording_close(). Pointers returned by accessors live until then.
  * Thread safety: EDFlib keeps a process-wide table of open files and is not
  * thread-safe, so remtone serialises every EDFlib call (the open, header and
@@ -73,8 +73,9 @@ typedef struct rt_clock_time {
  * truncated files, trailing bytes and malformed headers with RT_ERR_RECORDING
  * (the message starts with the path and names the field and byte offset), a
  * missing, unreadable or directory path with RT_ERR_IO (with the system's
- * reason). Returns NULL on failure. */
-rt_recording *rt_recording_open(const char *path, rt_error *err);
+ * reason), RT_ERR_NOMEM when out of memory, RT_ERR_USAGE without a path.
+ * On success *out holds the recording; on failure *out is NULL. */
+rt_status rt_recording_open(const char *path, rt_recording **out, rt_error *err);
 
 /* Closes and frees; accepts NULL. */
 void rt_recording_close(rt_recording *rec);

@@ -3,7 +3,14 @@
  * A function that can fail returns an rt_status and, when the caller passes
  * a non-NULL rt_error, fills it with the same status and a one-line message
  * that names the file and the place (byte offset, line, record) where the
- * problem was found. The library never prints and never exits. */
+ * problem was found. The library never prints and never exits.
+ *
+ * Functions that make an object (rt_x_new, rt_x_open, rt_x_load) have one
+ * form: `rt_status rt_x_new(..., rt_x **out, rt_error *err)`. On success
+ * *out holds the object and RT_OK is returned; on failure *out is NULL, err
+ * (when not NULL) carries the same status as the return value, and nothing
+ * is left to free. A violated precondition (a NULL argument, a value out of
+ * its documented range) is RT_ERR_USAGE, never RT_ERR_NOMEM. */
 #ifndef REMTONE_STATUS_H
 #define REMTONE_STATUS_H
 

@@ -7,7 +7,7 @@
  * & Kales and EDF+ standard forms are understood; others need a label map.
  * Epochs nobody scored stay RT_STAGE_UNSCORED: they are never guessed.
  *
- * Ownership: rt_timeline_new() returns an object freed by rt_timeline_free();
+ * Ownership: rt_timeline_new() makes an object (*out) freed by rt_timeline_free();
  * the stages and events arrays belong to it. Fields are read-only for callers. */
 #ifndef REMTONE_TIMELINE_H
 #define REMTONE_TIMELINE_H
@@ -95,10 +95,12 @@ typedef struct rt_labelmap rt_labelmap;
 /* The map's CSV has a header row naming the columns `label` and `meaning`
  * (any order, comma or tab, as the stage table). A label listed twice with
  * different meanings is an error naming the line. The caller frees the map
- * with rt_labelmap_free(). Returns NULL on failure (RT_ERR_IO, RT_ERR_STAGING). */
-rt_labelmap *rt_labelmap_load(const char *path, rt_error *err);
-/* An empty map, to be filled with rt_labelmap_add(); NULL when out of memory. */
-rt_labelmap *rt_labelmap_new(void);
+ * with rt_labelmap_free(). On success *out holds the map; on failure *out is
+ * NULL and the status is RT_ERR_IO, RT_ERR_STAGING or RT_ERR_NOMEM. */
+rt_status rt_labelmap_load(const char *path, rt_labelmap **out, rt_error *err);
+/* An empty map in *out, to be filled with rt_labelmap_add(); RT_ERR_NOMEM
+ * (and *out NULL) when out of memory. */
+rt_status rt_labelmap_new(rt_labelmap **out, rt_error *err);
 /* Adds label -> meaning (meaning as in the CSV: W, N1, N2, N3, R, MT, ? or
  * unscored, an event type name, or ignore; case-insensitive). The strings are
  * copied. Fails with RT_ERR_STAGING for an unknown meaning, an empty label,
@@ -126,7 +128,10 @@ bool rt_stage_parse(const char *label, const rt_labelmap *map, rt_stage *stage);
  * the label is an event. */
 bool rt_event_parse(const char *label, const rt_labelmap *map, rt_event_type *type);
 
-rt_timeline *rt_timeline_new(void);
+/* An empty timeline in *out: 30-s epochs, no stages, no events, lights not
+ * given. RT_ERR_NOMEM (and *out NULL) when out of memory. */
+rt_status rt_timeline_new(rt_timeline **out, rt_error *err);
+/* Accepts NULL. */
 void rt_timeline_free(rt_timeline *tl);
 
 /* The one checked path by which every loader (CSV, EDF+ annotations, XML)

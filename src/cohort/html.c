@@ -6,7 +6,6 @@
  * after rt_utf8_clean (src/common/text.h) made it valid UTF-8. */
 #include "cohort_internal.h"
 
-#include <libxml/xmlwriter.h>
 #include <math.h>
 #include <stdarg.h>
 #include <stdio.h>
@@ -14,25 +13,22 @@
 #include <string.h>
 
 #include "internal.h"
-#include "output.h"
-#include "text.h"
 #include "remtone/report.h"
+#include "report/svg.h"
 
 enum { STRIP_W = 560, ROW_H = 26, ROC_SIZE = 220 };
 static const char *const COLOR_POS = "#b03a2e", *const COLOR_NEG = "#1f618d",
                          *const COLOR_OTHER = "#7b7d7d";
 
+/* The page helpers of the review report (report/svg.h): texts made valid
+ * UTF-8, and a shortage of memory told from a refused call. */
 typedef struct writer {
-    xmlTextWriterPtr w;
-    int failed;
+    rt_page p;
 } writer;
 
-static void start(writer *h, const char *name)
-{
-    h->failed |= xmlTextWriterStartElement(h->w, BAD_CAST name) < 0;
-}
+static void start(writer *h, const char *name) { rt_page_start(&h->p, name); }
 
-static void end(writer *h) { h->failed |= xmlTextWriterEndElement(h->w) < 0; }
+static void end(writer *h) { rt_page_end_svg(&h->p); }
 
 static void attr(writer *h, const char *name, const char *fmt, ...) RT_PRINTF(3, 4);
 static void attr(writer *h, const char *name, const char *fmt, ...)
@@ -42,9 +38,7 @@ static void attr(writer *h, const char *name, const char *fmt, ...)
     va_start(ap, fmt);
     vsnprintf(buf, sizeof buf, fmt, ap);
     va_end(ap);
-    char *clean = rt_utf8_clean(buf, true);
-    h->failed |= !clean || xmlTextWriterWriteAttribute(h->w, BAD_CAST name, BAD_CAST clean) < 0;
-    free(clean);
+    rt_page_attr(&h->p, name, buf);
 }
 
 static void text(writer *h, const char *fmt, ...) RT_PRINTF(2, 3);
@@ -55,9 +49,7 @@ static void text(writer *h, const char *fmt, ...)
     va_start(ap, fmt);
     vsnprintf(buf, sizeof buf, fmt, ap);
     va_end(ap);
-    char *clean = rt_utf8_clean(buf, true);
-    h->failed |= !clean || xmlTextWriterWriteString(h->w, BAD_CAST clean) < 0;
-    free(clean);
+    rt_page_text(&h->p, buf);
 }
 
 static void element(writer *h, const char *name, const char *content)
@@ -257,7 +249,7 @@ static void page(writer *h, const cohort_row *rows, size_t n, const cohort_calib
     size_t failed = 0;
     for (size_t i = 0; i < n; i++)
         failed += rows[i].failed;
-    h->failed |= xmlTextWriterWriteRaw(h->w, BAD_CAST "<!DOCTYPE html>\n") < 0;
+    rt_page_raw(&h->p, "<!DOCTYPE html>\n");
     start(h, "html");
     attr(h, "lang", "en");
     start(h, "head");
@@ -306,22 +298,10 @@ rt_status cohort_write_html(const char *path, const cohort_row *rows, size_t n_r
                             const cohort_calibration *cal, const rt_cohort_options *o,
                             rt_error *err)
 {
-    rt_output out;
-    rt_status st = rt_output_begin(&out, path, 0, err);
+    writer h;
+    rt_status st = rt_page_open(&h.p, err);
     if (st != RT_OK)
         return st;
-    writer h = {xmlNewTextWriterFilename(out.temp_path, 0), 0};
-    if (!h.w) {
-        rt_output_abort(&out);
-        return rt_fail(err, RT_ERR_IO, "%s: cannot write", path);
-    }
-    xmlTextWriterSetIndent(h.w, 0);
     page(&h, rows, n_rows, cal, o);
-    h.failed |= xmlTextWriterEndDocument(h.w) < 0;
-    xmlFreeTextWriter(h.w);
-    if (h.failed) {
-        rt_output_abort(&out);
-        return rt_fail(err, RT_ERR_IO, "%s: cannot write the page", path);
-    }
-    return rt_output_commit(&out, err);
+    return rt_page_save(&h.p, path, false, err);
 }

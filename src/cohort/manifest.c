@@ -52,14 +52,17 @@ unsigned rt_cohort_part_of(const char *id, unsigned n_parts)
 }
 
 /* Resolves a path from the manifest against the manifest's folder and checks
- * that it names a readable regular file. */
-static char *resolve(rt_table *t, loader *l, const char *id, const char *what, const char *value)
+ * that it names a readable regular file: the path in *out (NULL on failure,
+ * which is also recorded in the table). */
+static rt_status resolve(rt_table *t, loader *l, const char *id, const char *what,
+                         const char *value, char **out)
 {
+    *out = NULL;
     size_t need = strlen(l->dir) + strlen(value) + 2;
     char *path = malloc(need);
     if (!path) {
         rt_table_fail(t, rt_fail(&t->error, RT_ERR_NOMEM, "%s: out of memory", t->path));
-        return NULL;
+        return RT_ERR_NOMEM;
     }
     if (value[0] == '/' || !l->dir[0])
         snprintf(path, need, "%s", value);
@@ -74,12 +77,14 @@ static char *resolve(rt_table *t, loader *l, const char *id, const char *what, c
     if (why) {
         char q[RT_TABLE_QUOTE_MAX + 8];
         rt_table_quote(q, sizeof q, value);
-        rt_table_fail(t, rt_fail(&t->error, RT_ERR_IO, "%s line %ld (night %s): %s '%s' (%s): %s",
-                                 t->path, t->row_line, id, what, q, path, why));
+        rt_status st = rt_fail(&t->error, RT_ERR_IO, "%s line %ld (night %s): %s '%s' (%s): %s",
+                               t->path, t->row_line, id, what, q, path, why);
+        rt_table_fail(t, st);
         free(path);
-        return NULL;
+        return st;
     }
-    return path;
+    *out = path;
+    return RT_OK;
 }
 
 static void entry_free(rt_manifest_entry *e)
@@ -150,11 +155,11 @@ static void on_row(rt_table *t, char **v)
     rt_copy_string(e.id, sizeof e.id, v[COL_ID]);
     rt_copy_string(e.group, sizeof e.group, v[COL_GROUP]);
     e.line = t->row_line;
-    bool ok = (e.recording = resolve(t, l, e.id, "recording", v[COL_RECORDING])) != NULL;
+    bool ok = resolve(t, l, e.id, "recording", v[COL_RECORDING], &e.recording) == RT_OK;
     if (ok && v[COL_STAGES][0])
-        ok = (e.stages = resolve(t, l, e.id, "stages", v[COL_STAGES])) != NULL;
+        ok = resolve(t, l, e.id, "stages", v[COL_STAGES], &e.stages) == RT_OK;
     if (ok && v[COL_EVENTS][0])
-        ok = (e.events = resolve(t, l, e.id, "events", v[COL_EVENTS])) != NULL;
+        ok = resolve(t, l, e.id, "events", v[COL_EVENTS], &e.events) == RT_OK;
     for (int r = 0; ok && r < RT_ROLE_COUNT; r++) {
         if (v[COL_ROLE0 + r][0] && !(e.role_override[r] = strdup(v[COL_ROLE0 + r]))) {
             rt_table_fail(t, rt_fail(&t->error, RT_ERR_NOMEM, "%s: out of memory", t->path));
@@ -168,13 +173,16 @@ static void on_row(rt_table *t, char **v)
     l->m->entries[l->m->n_entries++] = e;
 }
 
-rt_manifest *rt_manifest_load(const char *path, rt_error *err)
+rt_status rt_manifest_load(const char *path, rt_manifest **out, rt_error *err)
 {
+    if (!out)
+        return rt_fail(err, RT_ERR_USAGE, "rt_manifest_load: no place for the result");
+    *out = NULL;
+    if (!path)
+        return rt_fail(err, RT_ERR_USAGE, "rt_manifest_load: NULL path");
     rt_manifest *m = rt_calloc(1, sizeof *m);
-    if (!m) {
-        rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", path);
-        return NULL;
-    }
+    if (!m)
+        return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", path);
     rt_copy_string(m->path, sizeof m->path, path);
     loader l;
     memset(&l, 0, sizeof l);
@@ -185,9 +193,8 @@ rt_manifest *rt_manifest_load(const char *path, rt_error *err)
         if (n == 0)
             n = 1; /* a manifest in "/" */
         if (n >= sizeof l.dir) {
-            rt_fail(err, RT_ERR_USAGE, "%s: path too long", path);
             free(m);
-            return NULL;
+            return rt_fail(err, RT_ERR_USAGE, "%s: path too long", path);
         }
         memcpy(l.dir, path, n);
         l.dir[n] = '\0';
@@ -213,9 +220,10 @@ rt_manifest *rt_manifest_load(const char *path, rt_error *err)
         st = rt_fail(err, RT_ERR_STAGING, "%s: the manifest lists no nights", path);
     if (st != RT_OK) {
         rt_manifest_free(m);
-        return NULL;
+        return st;
     }
-    return m;
+    *out = m;
+    return RT_OK;
 }
 
 void rt_manifest_free(rt_manifest *manifest)

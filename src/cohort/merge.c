@@ -252,8 +252,9 @@ static rt_status calibrate(const rows *r, const rt_cohort_options *o, cohort_cal
     rt_cutoffs published, in_force;
     rt_cutoffs_published(&published);
     in_force = published;
-    if (o->cutoffs_path && rt_cutoffs_load(&in_force, o->cutoffs_path, err) != RT_OK)
-        return err->status;
+    rt_status st = o->cutoffs_path ? rt_cutoffs_load(&in_force, o->cutoffs_path, err) : RT_OK;
+    if (st != RT_OK)
+        return st;
     double *values = rt_calloc(r->n + 1, sizeof *values);
     bool *positive = rt_calloc(r->n + 1, sizeof *positive);
     if (!values || !positive) {
@@ -261,7 +262,6 @@ static rt_status calibrate(const rows *r, const rt_cohort_options *o, cohort_cal
         free(positive);
         return rt_fail(err, RT_ERR_NOMEM, "out of memory");
     }
-    rt_status st = RT_OK;
     for (int i = 0; i < RT_IX_COUNT && st == RT_OK; i++) {
         const rt_index_rule *rule = &rt_index_rules()[i];
         size_t n = 0;

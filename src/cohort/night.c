@@ -59,17 +59,6 @@ void cohort_settings_text(cohort_shared *s)
     }
 }
 
-static rt_status input_identity(json_t *inputs, const char *role, const char *path, rt_error *err)
-{
-    if (!path)
-        return RT_OK;
-    json_t *id = rt_file_identity_json(path, false, err);
-    if (!id)
-        return err ? err->status : RT_ERR_IO;
-    json_object_set_new(inputs, role, id);
-    return RT_OK;
-}
-
 /* The identity of a night: what its result depends on, not where it lives. */
 static rt_status night_identity(const cohort_shared *s, const rt_manifest_entry *e, json_t **out,
                                 rt_error *err)
@@ -77,13 +66,13 @@ static rt_status night_identity(const cohort_shared *s, const rt_manifest_entry 
     json_t *id = json_object();
     if (!id)
         return rt_fail(err, RT_ERR_NOMEM, "out of memory");
-    rt_status st = input_identity(id, "recording", e->recording, err);
+    rt_status st = rt_file_identity_add(id, "recording", e->recording, false, err);
     if (st == RT_OK)
-        st = input_identity(id, "stages", e->stages, err);
+        st = rt_file_identity_add(id, "stages", e->stages, false, err);
     if (st == RT_OK)
-        st = input_identity(id, "events", e->events, err);
+        st = rt_file_identity_add(id, "events", e->events, false, err);
     if (st == RT_OK)
-        st = input_identity(id, "cutoffs", s->options->cutoffs_path, err);
+        st = rt_file_identity_add(id, "cutoffs", s->options->cutoffs_path, false, err);
     if (st != RT_OK) {
         json_decref(id);
         return st;
@@ -104,22 +93,29 @@ static rt_status night_identity(const cohort_shared *s, const rt_manifest_entry 
     char hex[17];
     snprintf(hex, sizeof hex, "%016llx", (unsigned long long)XXH3_64bits_digest(h));
     XXH3_freeState(h);
-    json_object_set_new(id, "stages_from", json_string(e->stages ? "file" : "annotations"));
-    json_object_set_new(id, "settings", json_string(hex));
-    *out = id;
+    bool ok = true;
+    rt_json_set(id, "stages_from", json_string(e->stages ? "file" : "annotations"), &ok);
+    rt_json_set(id, "settings", json_string(hex), &ok);
+    if (!(*out = rt_json_done(id, ok)))
+        return rt_fail(err, RT_ERR_NOMEM, "out of memory");
     return RT_OK;
 }
 
 static rt_status write_json_atomic(json_t *root, const char *path, rt_error *err)
 {
-    return rt_json_write(root, path, JSON_SORT_KEYS, err);
+    return rt_json_write(root, path, JSON_INDENT(2) | JSON_SORT_KEYS, err);
 }
 
+/* The key file's content (NULL when out of memory); identity is not taken. */
 static json_t *key_json(const rt_manifest_entry *e, json_t *identity)
 {
-    json_t *k = json_pack("{s:s,s:o,s:o,s:O}", "schema", "remtone-cohort-key/1", "id",
-                          rt_json_text(e->id), "group", rt_json_text(e->group), "identity", identity);
-    return k;
+    bool ok = true;
+    json_t *k = json_object();
+    rt_json_set(k, "schema", json_string("remtone-cohort-key/1"), &ok);
+    rt_json_set(k, "id", rt_json_text(e->id), &ok);
+    rt_json_set(k, "group", rt_json_text(e->group), &ok);
+    rt_json_set(k, "identity", json_incref(identity), &ok);
+    return rt_json_done(k, ok);
 }
 
 /* A current result: its key exists, names this night and holds the same
@@ -158,11 +154,9 @@ static rt_status score_and_write(const cohort_shared *s, const rt_manifest_entry
     memset(&ro, 0, sizeof ro);
     for (int r = 0; r < RT_ROLE_COUNT; r++)
         ro.override[r] = e->role_override[r];
-    rt_status st = RT_OK;
-    if (!(rec = rt_recording_open(e->recording, err)))
-        st = err->status;
-    if (st == RT_OK && !(tl = rt_timeline_new()))
-        st = rt_fail(err, RT_ERR_NOMEM, "out of memory");
+    rt_status st = rt_recording_open(e->recording, &rec, err);
+    if (st == RT_OK)
+        st = rt_timeline_new(&tl, err);
     if (st == RT_OK)
         st = e->stages ? rt_timeline_load_staging(tl, e->stages, NULL, err)
                        : rt_timeline_load_annotations(tl, rec, NULL, true, true, err);
@@ -190,8 +184,8 @@ static rt_status score_and_write(const cohort_shared *s, const rt_manifest_entry
  * nothing else. */
 static int exit_code_of(rt_status st)
 {
-    static const int codes[] = {0, 2, 3, 4, 5, 6, 8, 8};
-    return (int)st >= 0 && (size_t)st < sizeof codes / sizeof codes[0] ? codes[st] : 8;
+    static const int codes[] = {0, 2, 3, 4, 5, 6, 8, 9};
+    return (int)st >= 0 && (size_t)st < sizeof codes / sizeof codes[0] ? codes[st] : 9;
 }
 
 static void append_log(const char *log_path, const char *what, const char *id)
@@ -212,15 +206,21 @@ static void write_error(const cohort_shared *s, const rt_manifest_entry *e, cons
     char path[COHORT_PATH_MAX];
     if (!cohort_night_path(path, sizeof path, s->nights_dir, e->id, ".error.json"))
         return;
+    bool ok = true;
+    json_t *root = json_object();
+    rt_json_set(root, "schema", json_string("remtone-cohort-error/1"), &ok);
     /* every text through rt_json_text: a message quoting bytes of a broken file
      * must not cost the night its failure record, and so its row in cohort.csv */
-    json_t *root = json_pack("{s:s,s:o,s:o,s:s,s:i,s:o,s:o}", "schema", "remtone-cohort-error/1",
-                             "id", rt_json_text(e->id), "group", rt_json_text(e->group), "status",
-                             rt_status_name(why->status), "exit_code", exit_code_of(why->status),
-                             "message",
-                             rt_json_text(why->message[0] ? why->message : rt_status_name(why->status)),
-                             "recording", rt_json_text(e->recording));
-    if (root)
+    rt_json_set(root, "id", rt_json_text(e->id), &ok);
+    rt_json_set(root, "group", rt_json_text(e->group), &ok);
+    rt_json_set(root, "status", json_string(rt_status_name(why->status)), &ok);
+    rt_json_set(root, "exit_code", json_integer(exit_code_of(why->status)), &ok);
+    rt_json_set(root, "message",
+                rt_json_text(why->message[0] ? why->message : rt_status_name(why->status)), &ok);
+    rt_json_set(root, "recording", rt_json_text(e->recording), &ok);
+    /* the night has failed already; without memory for its record, the
+     * missing result and the log line still say so */
+    if ((root = rt_json_done(root, ok)))
         write_json_atomic(root, path, NULL);
     json_decref(root);
 }
@@ -244,7 +244,8 @@ night_outcome cohort_night(const cohort_shared *s, const rt_manifest_entry *e)
         return NIGHT_SKIPPED;
     }
     if (st == RT_OK && unlink(key_path) != 0 && errno != ENOENT)
-        st = rt_fail(&err, RT_ERR_IO, "%s: cannot remove: %s", key_path, strerror(errno));
+        st = rt_fail(&err, rt_errno_status(errno, RT_ERR_IO), "%s: cannot remove: %s", key_path,
+                     strerror(errno));
     if (st == RT_OK)
         st = score_and_write(s, e, json_path, &err);
     if (st == RT_OK) {

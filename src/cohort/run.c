@@ -62,12 +62,20 @@ static double now_s(void)
     return (double)ts.tv_sec + 1e-9 * (double)ts.tv_nsec;
 }
 
-static char *canonical(const char *path)
+/* The canonical spelling of path in *out (a copy of path when it cannot be
+ * resolved; NULL for a NULL path), so two rows naming one file are seen. */
+static rt_status canonical(const char *path, char **out, rt_error *err)
 {
+    *out = NULL;
     if (!path)
-        return NULL;
+        return RT_OK;
     char *c = realpath(path, NULL);
-    return c ? c : strdup(path);
+    if (!c)
+        c = strdup(path);
+    if (!c)
+        return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", path);
+    *out = c;
+    return RT_OK;
 }
 
 static bool busy(const runner *r, const job *j)
@@ -182,7 +190,8 @@ static rt_status make_dir(const char *path, rt_error *err)
             return RT_OK;
         return rt_fail(err, RT_ERR_IO, "%s: exists and is not a folder", path);
     }
-    return rt_fail(err, RT_ERR_IO, "%s: cannot create folder: %s", path, strerror(errno));
+    return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
+                   "%s: cannot create folder: %s", path, strerror(errno));
 }
 
 /* A whole run holds OUT/.run.lock exclusively; a slice holds it shared and
@@ -195,7 +204,8 @@ static rt_status take_locks(const rt_cohort_options *o, int fds[2], rt_error *er
     snprintf(path, sizeof path, "%s/.run.lock", o->out_dir);
     fds[0] = open(path, O_RDWR | O_CREAT, 0666);
     if (fds[0] < 0)
-        return rt_fail(err, RT_ERR_IO, "%s: cannot create: %s", path, strerror(errno));
+        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
+                       "%s: cannot create: %s", path, strerror(errno));
     if (flock(fds[0], (sliced ? LOCK_SH : LOCK_EX) | LOCK_NB) != 0)
         return rt_fail(err, RT_ERR_USAGE, "%s: another cohort run is writing this folder%s",
                        o->out_dir, sliced ? " (a whole run)" : "");
@@ -204,7 +214,8 @@ static rt_status take_locks(const rt_cohort_options *o, int fds[2], rt_error *er
     snprintf(path, sizeof path, "%s/.part-%u-of-%u.lock", o->out_dir, o->part, o->part_count);
     fds[1] = open(path, O_RDWR | O_CREAT, 0666);
     if (fds[1] < 0)
-        return rt_fail(err, RT_ERR_IO, "%s: cannot create: %s", path, strerror(errno));
+        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
+                       "%s: cannot create: %s", path, strerror(errno));
     if (flock(fds[1], LOCK_EX | LOCK_NB) != 0)
         return rt_fail(err, RT_ERR_USAGE, "%s: part %u of %u is already running", o->out_dir,
                        o->part, o->part_count);
@@ -232,8 +243,9 @@ static rt_status prepare(runner *r, const rt_manifest *m, const rt_cohort_option
 {
     r->shared.options = o;
     rt_cutoffs_published(&r->shared.cutoffs);
-    if (o->cutoffs_path && rt_cutoffs_load(&r->shared.cutoffs, o->cutoffs_path, err) != RT_OK)
-        return err->status;
+    rt_status st = o->cutoffs_path ? rt_cutoffs_load(&r->shared.cutoffs, o->cutoffs_path, err) : RT_OK;
+    if (st != RT_OK)
+        return st;
     cohort_settings_text(&r->shared);
     snprintf(r->shared.nights_dir, sizeof r->shared.nights_dir, "%s/nights", o->out_dir);
     snprintf(r->shared.log_path, sizeof r->shared.log_path, "%s/cohort.log", o->out_dir);
@@ -246,10 +258,9 @@ static rt_status prepare(runner *r, const rt_manifest *m, const rt_cohort_option
             continue;
         job *j = &r->jobs[r->n_jobs++];
         j->e = e;
-        j->files[0] = canonical(e->recording);
-        j->files[1] = canonical(e->stages);
-        if (!j->files[0] || (e->stages && !j->files[1]))
-            return rt_fail(err, RT_ERR_NOMEM, "out of memory");
+        if ((st = canonical(e->recording, &j->files[0], err)) != RT_OK ||
+            (st = canonical(e->stages, &j->files[1], err)) != RT_OK)
+            return st;
     }
     r->progress.total = r->n_jobs;
     return RT_OK;

@@ -13,7 +13,8 @@ rt_status rt_file_digest(const char *path, long long *size_bytes, char hex[17], 
 {
     FILE *f = fopen(path, "rb");
     if (!f)
-        return rt_fail(err, RT_ERR_IO, "%s: cannot open: %s", path, strerror(errno));
+        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
+                       "%s: cannot open: %s", path, strerror(errno));
     XXH3_state_t *state = XXH3_createState();
     enum { CHUNK = 1 << 20 };
     unsigned char *buf = malloc(CHUNK);

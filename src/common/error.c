@@ -80,6 +80,11 @@ int rt_equal_nocase(const char *a, const char *b)
     return *a == *b;
 }
 
+rt_status rt_errno_status(int e, rt_status otherwise)
+{
+    return e == ENOMEM ? RT_ERR_NOMEM : otherwise;
+}
+
 void *rt_calloc(size_t n, size_t size)
 {
     if (size != 0 && n > SIZE_MAX / size)

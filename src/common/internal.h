@@ -24,6 +24,12 @@ char *rt_trim(char *s);
 /* ASCII case-insensitive equality. */
 int rt_equal_nocase(const char *a, const char *b);
 
+/* The status of a failed system or C library call from its errno: the C
+ * library allocates inside fopen, fdopen and realpath, and the kernel may
+ * lack memory for an open or mkdir, so ENOMEM is RT_ERR_NOMEM, whatever the
+ * call; any other errno gives `otherwise` (RT_ERR_IO for file calls). */
+rt_status rt_errno_status(int e, rt_status otherwise);
+
 /* Overflow-checked allocation of n * size bytes, zeroed. NULL on failure. */
 void *rt_calloc(size_t n, size_t size);
 

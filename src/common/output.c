@@ -20,7 +20,8 @@ static rt_status begin_direct(rt_output *out, int open_stream, rt_error *err)
         return RT_OK;
     out->file = fopen(out->path, "wb");
     if (!out->file)
-        return rt_fail(err, RT_ERR_IO, "%s: cannot open output: %s", out->path, strerror(errno));
+        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
+                       "%s: cannot open output: %s", out->path, strerror(errno));
     return RT_OK;
 }
 
@@ -47,7 +48,8 @@ rt_status rt_output_begin(rt_output *out, const char *path, int open_stream, rt_
     int fd = mkstemp(out->temp_path);
     if (fd < 0) {
         out->temp_path[0] = '\0';
-        return rt_fail(err, RT_ERR_IO, "%s: cannot create output: %s", path, strerror(errno));
+        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
+                       "%s: cannot create output: %s", path, strerror(errno));
     }
     /* mkstemp makes the file private; give it the permissions a plain
      * fopen would (0666 less the umask) */
@@ -62,7 +64,8 @@ rt_status rt_output_begin(rt_output *out, const char *path, int open_stream, rt_
     if (!out->file) {
         close(fd);
         rt_output_abort(out);
-        return rt_fail(err, RT_ERR_IO, "%s: cannot open output: %s", path, strerror(errno));
+        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
+                       "%s: cannot open output: %s", path, strerror(errno));
     }
     return RT_OK;
 }
@@ -72,7 +75,8 @@ rt_status rt_output_commit(rt_output *out, rt_error *err)
     if (out->file == stdout) {
         out->file = NULL;
         if (fflush(stdout) != 0)
-            return rt_fail(err, RT_ERR_IO, "standard output: cannot write: %s", strerror(errno));
+            return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
+                           "standard output: cannot write: %s", strerror(errno));
         return RT_OK;
     }
     int failed = 0;
@@ -102,6 +106,23 @@ rt_status rt_output_commit(rt_output *out, rt_error *err)
     }
     out->temp_path[0] = '\0';
     return RT_OK;
+}
+
+rt_status rt_output_write_all(const char *path, const char *bytes, size_t len, int add_newline,
+                              const char *what, rt_error *err)
+{
+    rt_output out;
+    rt_status st = rt_output_begin(&out, path, 1, err);
+    if (st != RT_OK)
+        return st;
+    if ((len > 0 && fwrite(bytes, 1, len, out.file) != len) ||
+        (add_newline && fputc('\n', out.file) == EOF)) {
+        int saved = errno;
+        rt_output_abort(&out);
+        return rt_fail(err, RT_ERR_IO, "%s: cannot write %s: %s", path, what,
+                       strerror(saved ? saved : EIO));
+    }
+    return rt_output_commit(&out, err);
 }
 
 void rt_output_abort(rt_output *out)

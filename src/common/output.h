@@ -35,4 +35,10 @@ rt_status rt_output_commit(rt_output *out, rt_error *err);
 /* Removes the temporary file; safe to call after a failed commit or twice. */
 void rt_output_abort(rt_output *out);
 
+/* The whole of an output composed in memory: len bytes (and a newline when
+ * add_newline) written to path as above, begin to commit. A write error is
+ * RT_ERR_IO naming what was written ("JSON", "the page"). */
+rt_status rt_output_write_all(const char *path, const char *bytes, size_t len, int add_newline,
+                              const char *what, rt_error *err);
+
 #endif

@@ -49,7 +49,8 @@ static rt_status read_text_file(const char *path, unsigned char **out, size_t *o
 {
     struct stat st;
     if (stat(path, &st) != 0)
-        return rt_fail(err, RT_ERR_IO, "%s: cannot open: %s", path, strerror(errno));
+        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
+                       "%s: cannot open: %s", path, strerror(errno));
     if (S_ISDIR(st.st_mode))
         return rt_fail(err, RT_ERR_IO, "%s: is a directory, not a table", path);
     if (S_ISREG(st.st_mode) && st.st_size > TABLE_MAX_BYTES)
@@ -58,7 +59,8 @@ static rt_status read_text_file(const char *path, unsigned char **out, size_t *o
                        TABLE_MAX_BYTES / (1024 * 1024));
     FILE *f = fopen(path, "rb");
     if (!f)
-        return rt_fail(err, RT_ERR_IO, "%s: cannot open: %s", path, strerror(errno));
+        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
+                       "%s: cannot open: %s", path, strerror(errno));
     size_t cap = S_ISREG(st.st_mode) ? (size_t)st.st_size + 1 : 65536;
     unsigned char *buf = malloc(cap);
     if (!buf) {
@@ -324,9 +326,13 @@ rt_status rt_table_read(rt_table *r, rt_error *err)
         const unsigned char *nl = memchr(buf + pos, '\n', len - pos);
         size_t n = nl ? (size_t)(nl - (buf + pos)) + 1 : len - pos;
         if (csv_parse(&p, buf + pos, n, on_field, on_row_end, r) != n) {
-            rt_table_fail(r, rt_fail(&r->error, RT_ERR_STAGING,
-                                          "%s line %ld: malformed CSV (%s); check the quotes",
-                                          r->path, r->line, csv_strerror(csv_error(&p))));
+            if (csv_error(&p) == CSV_ENOMEM) /* libcsv grows its field buffer */
+                rt_table_fail(r, rt_fail(&r->error, RT_ERR_NOMEM, "%s line %ld: out of memory",
+                                         r->path, r->line));
+            else
+                rt_table_fail(r, rt_fail(&r->error, RT_ERR_STAGING,
+                                         "%s line %ld: malformed CSV (%s); check the quotes",
+                                         r->path, r->line, csv_strerror(csv_error(&p))));
             break;
         }
         pos += n;

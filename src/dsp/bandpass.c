@@ -230,10 +230,12 @@ static size_t choose_block(size_t margin)
 
 /* The last step of making a filter: its n-sample block, the response at the
  * block's bins (sampled, or copied from a filter of the same block) and the
- * overlap state. Frees bp and returns NULL on failure. */
-static rt_bandpass *with_block(rt_bandpass *bp, size_t n, const double *gain, rt_error *err)
+ * overlap state. The filter in *out, or bp freed and the status returned. */
+static rt_status with_block(rt_bandpass *bp, size_t n, const double *gain, rt_bandpass **out,
+                            rt_error *err)
 {
-    if (use_block(bp, n, err) != RT_OK)
+    rt_status st = use_block(bp, n, err);
+    if (st != RT_OK)
         goto fail;
     if (gain)
         memcpy(bp->gain, gain, (n / 2 + 1) * sizeof *bp->gain);
@@ -242,62 +244,64 @@ static rt_bandpass *with_block(rt_bandpass *bp, size_t n, const double *gain, rt
     bp->saved = rt_calloc(bp->margin, sizeof *bp->saved);
     bp->tail = rt_calloc(bp->margin + 1, sizeof *bp->tail);
     if (!bp->saved || !bp->tail) {
-        rt_fail(err, RT_ERR_NOMEM, "bandpass: out of memory");
+        st = rt_fail(err, RT_ERR_NOMEM, "bandpass: out of memory");
         goto fail;
     }
-    return bp;
+    *out = bp;
+    return RT_OK;
 fail:
     rt_bandpass_free(bp);
-    return NULL;
+    return st;
 }
 
-rt_bandpass *rt_bandpass_new_with_block(const rt_bandpass_spec *spec, size_t block_samples,
-                                        rt_error *err)
+rt_status rt_bandpass_new_with_block(const rt_bandpass_spec *spec, size_t block_samples,
+                                     rt_bandpass **out, rt_error *err)
 {
+    if (!out)
+        return rt_fail(err, RT_ERR_USAGE, "bandpass: no place for the result");
+    *out = NULL;
     rt_bandpass_spec checked;
-    if (check_spec(spec, &checked, err) != RT_OK)
-        return NULL;
+    rt_status st = check_spec(spec, &checked, err);
+    if (st != RT_OK)
+        return st;
     rt_bandpass *bp = rt_calloc(1, sizeof *bp);
-    if (!bp) {
-        rt_fail(err, RT_ERR_NOMEM, "bandpass: out of memory");
-        return NULL;
-    }
+    if (!bp)
+        return rt_fail(err, RT_ERR_NOMEM, "bandpass: out of memory");
     bp->spec = checked;
     bp->tan_low = tan(RT_PI * checked.low_hz / checked.rate_hz);
     bp->tan_high = tan(RT_PI * checked.high_hz / checked.rate_hz);
-    if (find_margin(bp, err) != RT_OK)
+    if ((st = find_margin(bp, err)) != RT_OK)
         goto fail;
     size_t n = block_samples ? block_samples : choose_block(bp->margin);
     if (block_samples && ((n & (n - 1)) != 0 || n < 4 * bp->margin ||
                           n > (size_t)RT_FFT_MAX_SAMPLES)) {
-        rt_fail(err, RT_ERR_USAGE,
-                "bandpass: block of %zu samples must be a power of two from %zu to %d",
-                n, 4 * bp->margin, RT_FFT_MAX_SAMPLES);
+        st = rt_fail(err, RT_ERR_USAGE,
+                     "bandpass: block of %zu samples must be a power of two from %zu to %d",
+                     n, 4 * bp->margin, RT_FFT_MAX_SAMPLES);
         goto fail;
     }
-    return with_block(bp, n, NULL, err);
+    return with_block(bp, n, NULL, out, err);
 fail:
     rt_bandpass_free(bp);
-    return NULL;
+    return st;
 }
 
-rt_bandpass *rt_bandpass_new(const rt_bandpass_spec *spec, rt_error *err)
+rt_status rt_bandpass_new(const rt_bandpass_spec *spec, rt_bandpass **out, rt_error *err)
 {
-    return rt_bandpass_new_with_block(spec, 0, err);
+    return rt_bandpass_new_with_block(spec, 0, out, err);
 }
 
-rt_bandpass *rt_bandpass_clone(const rt_bandpass *bp, rt_error *err)
+rt_status rt_bandpass_clone(const rt_bandpass *bp, rt_bandpass **out, rt_error *err)
 {
+    *out = NULL;
     rt_bandpass *c = rt_calloc(1, sizeof *c);
-    if (!c) {
-        rt_fail(err, RT_ERR_NOMEM, "bandpass: out of memory");
-        return NULL;
-    }
+    if (!c)
+        return rt_fail(err, RT_ERR_NOMEM, "bandpass: out of memory");
     c->spec = bp->spec;
     c->tan_low = bp->tan_low;
     c->tan_high = bp->tan_high;
     c->margin = bp->margin;
-    return with_block(c, bp->block, bp->gain, err); /* the same response, bin for bin */
+    return with_block(c, bp->block, bp->gain, out, err); /* the same response, bin for bin */
 }
 
 void rt_bandpass_free(rt_bandpass *bp)

@@ -43,24 +43,25 @@ typedef struct rt_bandpass_spec {
  * Why these values: docs/conditioning.md. */
 rt_bandpass_spec rt_bandpass_spec_defaults(double rate_hz);
 
-/* Creates a filter; returns NULL and fills err (may be NULL) with RT_ERR_USAGE
- * on an invalid spec (the message names the field), RT_ERR_NOMEM when memory
- * runs out. The block size is chosen from the response (docs/conditioning.md);
- * FFTW plans come from the shared cache in fft_plans.h, made under its lock.
- * The caller frees the filter with rt_bandpass_free. */
-rt_bandpass *rt_bandpass_new(const rt_bandpass_spec *spec, rt_error *err);
+/* Creates a filter in *out; on failure *out is NULL and the status (also in
+ * err, which may be NULL) is RT_ERR_USAGE on an invalid spec (the message
+ * names the field), RT_ERR_NOMEM when memory runs out. The block size is
+ * chosen from the response (docs/conditioning.md); FFTW plans come from the
+ * shared cache in fft_plans.h, made under its lock. The caller frees the
+ * filter with rt_bandpass_free. */
+rt_status rt_bandpass_new(const rt_bandpass_spec *spec, rt_bandpass **out, rt_error *err);
 
 /* As rt_bandpass_new, with the block size forced to block_samples (a power of
  * two, at least 4 times the margin and at most 2^22); 0 chooses it as
  * rt_bandpass_new does. For tests that compare block sizes. */
-rt_bandpass *rt_bandpass_new_with_block(const rt_bandpass_spec *spec, size_t block_samples,
-                                        rt_error *err);
+rt_status rt_bandpass_new_with_block(const rt_bandpass_spec *spec, size_t block_samples,
+                                     rt_bandpass **out, rt_error *err);
 
 /* A second filter with bp's response, margin and block size, and its own
- * buffers, for another thread: it filters exactly as bp does. NULL with err
- * filled (RT_ERR_NOMEM) when memory runs out. Thread-safe while bp is not
- * being freed (the copy only reads bp). */
-rt_bandpass *rt_bandpass_clone(const rt_bandpass *bp, rt_error *err);
+ * buffers, for another thread, in *out: it filters exactly as bp does.
+ * RT_ERR_NOMEM (and *out NULL) when memory runs out. Thread-safe while bp is
+ * not being freed (the copy only reads bp). */
+rt_status rt_bandpass_clone(const rt_bandpass *bp, rt_bandpass **out, rt_error *err);
 
 /* Frees the filter, its buffers and its hold on the plan cache; bp may be NULL. */
 void rt_bandpass_free(rt_bandpass *bp);

@@ -65,14 +65,16 @@ rt_status rt_fft_plan_acquire(size_t n, const rt_fft_plan **out, rt_error *err)
     int e = size_exponent(n);
     *out = NULL;
     if (e < 0)
-        return rt_fail(err, RT_ERR_INTERNAL,
+        return rt_fail(err, RT_ERR_USAGE,
                        "fft_plans.c: transform size %zu is not a power of two in 2..%d",
                        n, RT_FFT_MAX_SAMPLES);
     pthread_mutex_lock(&cache_lock);
     cache_slot *slot = &cache[e];
     if (!slot->made && !make_plans(slot, n)) {
         pthread_mutex_unlock(&cache_lock);
-        return rt_fail(err, RT_ERR_NOMEM, "fft_plans.c: cannot plan a transform of %zu samples", n);
+        /* FFTW_ESTIMATE planning fails only when its arrays cannot be had */
+        return rt_fail(err, RT_ERR_NOMEM,
+                       "fft_plans.c: out of memory planning a transform of %zu samples", n);
     }
     cache_users++;
     *out = &slot->plan;

@@ -29,7 +29,9 @@ typedef struct rt_fft_plan {
  * and registers one more user. Buffers passed to the plans must come from
  * fftw_alloc_real / fftw_alloc_complex (the plans assume SIMD alignment) and be
  * distinct arrays (out of place). The cache owns the plans; release each
- * acquired plan with rt_fft_plan_release. Thread-safe. */
+ * acquired plan with rt_fft_plan_release. RT_ERR_USAGE for any other n,
+ * RT_ERR_NOMEM when the plan's arrays cannot be had (FFTW's own allocations
+ * stop the process: cli/fftw_abort.c). Thread-safe. */
 rt_status rt_fft_plan_acquire(size_t n, const rt_fft_plan **out, rt_error *err);
 
 /* Drops one user registered by rt_fft_plan_acquire; plan may be NULL.

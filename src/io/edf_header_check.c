@@ -500,7 +500,8 @@ static rt_status open_regular(const char *path, FILE **out, long long *size, rt_
                        "file EDFlib can seek in)", path);
     FILE *f = fopen(path, "rb");
     if (!f)
-        return rt_fail(err, RT_ERR_IO, "%s: cannot open: %s", path, strerror(errno));
+        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
+                       "%s: cannot open: %s", path, strerror(errno));
     struct stat st;
     if (fstat(fileno(f), &st) != 0 || S_ISDIR(st.st_mode)) {
         int code = S_ISDIR(st.st_mode) ? EISDIR : errno;

@@ -300,7 +300,15 @@ static rt_status read_annotations(rt_recording *rec, long long count, rt_error *
 /* Caller holds the lock. */
 static rt_status open_with_edflib(rt_recording *rec, struct edf_hdr_struct *h, rt_error *err)
 {
+    errno = 0;
     int rc = edfopen_file_readonly(rec->path, h, EDFLIB_READ_ALL_ANNOTATIONS);
+    int saved = errno;
+    /* EDFlib 1.23 reports an allocation that failed while it reads the
+     * annotations as a format error; the allocator's ENOMEM tells them apart
+     * (remtone's own header checks have already passed by now). */
+    if (rc != 0 && saved == ENOMEM)
+        return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory inside EDFlib (EDFlib error %d)",
+                       rec->path, h->filetype);
     if (rc != 0)
         return rt_fail(err, edflib_open_status(h->filetype), "%s: %s (EDFlib error %d)", rec->path,
                        edflib_error_text(h->filetype), h->filetype);
@@ -324,21 +332,22 @@ static rt_status fill_from_header(rt_recording *rec, const struct edf_hdr_struct
     return read_annotations(rec, h->annotations_in_file, err);
 }
 
-static rt_recording *recording_new(const char *path, rt_error *err)
+static rt_status recording_new(const char *path, rt_recording **out, rt_error *err)
 {
+    *out = NULL;
     rt_recording *rec = rt_calloc(1, sizeof *rec);
     size_t n = strlen(path);
     if (rec)
         rec->path = rt_calloc(n + 1, 1);
     if (!rec || !rec->path) {
         free(rec);
-        rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", path);
-        return NULL;
+        return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", path);
     }
     memcpy(rec->path, path, n + 1);
     rec->handle = -1;
     rec->fd = -1;
-    return rec;
+    *out = rec;
+    return RT_OK;
 }
 
 /* The EDF specification does not forbid bytes after the last data record,
@@ -449,31 +458,34 @@ static rt_status open_locked(rt_recording *rec, const rt_edf_layout *layout, rt_
     return s;
 }
 
-rt_recording *rt_recording_open(const char *path, rt_error *err)
+rt_status rt_recording_open(const char *path, rt_recording **out, rt_error *err)
 {
-    rt_edf_layout *layout = NULL;
-    if (!path) {
-        rt_fail(err, RT_ERR_USAGE, "no recording path given");
-        return NULL;
-    }
+    if (!out)
+        return rt_fail(err, RT_ERR_USAGE, "rt_recording_open: no place for the result");
+    *out = NULL;
+    if (!path)
+        return rt_fail(err, RT_ERR_USAGE, "no recording path given");
     /* the layout holds per-signal tables of EDFlib's 640-signal limit */
-    layout = rt_calloc(1, sizeof *layout);
-    if (!layout) {
-        rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", path);
-        return NULL;
-    }
+    rt_edf_layout *layout = rt_calloc(1, sizeof *layout);
+    if (!layout)
+        return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", path);
     rt_recording *rec = NULL;
-    if (rt_edf_header_check(path, layout, err) == RT_OK && check_no_trailing_bytes(path, layout, err) == RT_OK)
-        rec = recording_new(path, err);
-    if (rec) {
+    rt_status s = rt_edf_header_check(path, layout, err);
+    if (s == RT_OK)
+        s = check_no_trailing_bytes(path, layout, err);
+    if (s == RT_OK)
+        s = recording_new(path, &rec, err);
+    if (s == RT_OK) {
         rec->file_bytes = layout->file_bytes;
-        if (open_locked(rec, layout, err) != RT_OK) {
-            rt_recording_close(rec);
-            rec = NULL;
-        }
+        s = open_locked(rec, layout, err);
     }
     free(layout);
-    return rec;
+    if (s != RT_OK) {
+        rt_recording_close(rec);
+        return s;
+    }
+    *out = rec;
+    return RT_OK;
 }
 
 void rt_recording_close(rt_recording *rec)
@@ -570,10 +582,13 @@ static rt_status read_physical(rt_recording *rec, int channel, long long first, 
                        rec->channels[channel].label, first);
     for (size_t done = 0; done < n;) {
         int want = (int)(n - done < READ_CHUNK ? n - done : READ_CHUNK);
+        errno = 0; /* EDFlib allocates a buffer per read: ENOMEM tells that failure */
         int got = edfread_physical_samples(rec->handle, channel, want, out + done);
         if (got != want)
-            return rt_fail(err, RT_ERR_IO, "%s: channel \"%s\": read failed at sample %lld", rec->path,
-                           rec->channels[channel].label, first + (long long)done);
+            return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
+                           "%s: channel \"%s\": read failed at sample %lld%s", rec->path,
+                           rec->channels[channel].label, first + (long long)done,
+                           errno == ENOMEM ? ": out of memory" : "");
         done += (size_t)got;
     }
     return RT_OK;

@@ -230,15 +230,19 @@ static double locate_r(const double *bp, size_t n, size_t peak, size_t half, dou
  * signal within +-60 ms of it correlates with the average of all detections
  * (Pearson r >= 0.4). A QRS, 10 ms wide, dominates that window even inside
  * a burst of comparable amplitude, while broadband muscle noise gives r near
- * 0 (about +-0.13 for 60 independent samples). Returns the beats kept. */
-static size_t keep_shaped_beats(const double *x, size_t n, double rate, double *r_s, size_t nb)
+ * 0 (about +-0.13 for 60 independent samples). *nb becomes the number of
+ * beats kept; RT_ERR_NOMEM without room for the template (never a silent
+ * keep-all, which would change the result). */
+static rt_status keep_shaped_beats(const double *x, size_t n, double rate, double *r_s,
+                                   size_t *nb_io, rt_error *err)
 {
+    size_t nb = *nb_io;
+    if (nb < 8)
+        return RT_OK;
     size_t half = samples(0.060, rate), len = 2 * half + 1;
     double *tpl = rt_calloc(len, sizeof *tpl);
-    if (!tpl || nb < 8) {
-        free(tpl);
-        return nb;
-    }
+    if (!tpl)
+        return rt_fail(err, RT_ERR_NOMEM, "QRS detector: out of memory for a template");
     size_t used = 0;
     for (size_t k = 0; k < nb; k++) {
         long c = lround(r_s[k] * rate);
@@ -257,7 +261,7 @@ static size_t keep_shaped_beats(const double *x, size_t n, double rate, double *
         tn += tpl[j] * tpl[j];
     if (used < 8 || tn <= 0.0) {
         free(tpl);
-        return nb;
+        return RT_OK;
     }
     size_t kept = 0;
     for (size_t k = 0; k < nb; k++) {
@@ -279,7 +283,8 @@ static size_t keep_shaped_beats(const double *x, size_t n, double rate, double *
             r_s[kept++] = r_s[k];
     }
     free(tpl);
-    return kept;
+    *nb_io = kept;
+    return RT_OK;
 }
 
 /* Chin-only mode: are the detections heart beats? The detector chose its own
@@ -462,14 +467,18 @@ rt_status rt_qrs_detect_with(const double *x_uv, size_t n, double rate_hz, bool 
     }
     for (size_t k = 0; k < n_qrs; k++)
         beats->r_s[k] = locate_r(bp, n, qrs[k], qrs_half, rate_hz);
-    if (from_chin)
-        n_qrs = keep_shaped_beats(x_uv, n, rate_hz, beats->r_s, n_qrs);
+    rt_status shaped = from_chin ? keep_shaped_beats(x_uv, n, rate_hz, beats->r_s, &n_qrs, err)
+                                 : RT_OK;
     /* parabolic refinement may reorder beats closer than a sample: keep order */
     size_t m = 0;
     for (size_t k = 0; k < n_qrs; k++)
         if (m == 0 || beats->r_s[k] > beats->r_s[m - 1])
             beats->r_s[m++] = beats->r_s[k];
     free(peaks);
+    if (shaped != RT_OK) {
+        rt_qrs_beats_free(beats);
+        return shaped;
+    }
     beats->candidates = m;
     bool cardiac = true;
     rt_status st = RT_OK;

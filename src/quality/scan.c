@@ -96,9 +96,9 @@ rt_status rt_recording_quality(rt_recording *rec, const rt_role_map *roles,
             rt_mains_apply(&mains, &spec);
             q->notches = mains.n_notches;
         }
-        rt_bandpass *bp = st == RT_OK ? rt_bandpass_new(&spec, err) : NULL;
-        if (st == RT_OK && !bp)
-            st = err ? err->status : RT_ERR_USAGE;
+        rt_bandpass *bp = NULL;
+        if (st == RT_OK)
+            st = rt_bandpass_new(&spec, &bp, err);
         if (st == RT_OK)
             st = rt_bandpass_apply(bp, buf, n, err);
         rt_ecg_removal rep;

@@ -19,42 +19,40 @@ static json_t *rounded(double v, int decimals)
 
 static json_t *cell_json(const rt_agreement_cell *c)
 {
+    bool ok = true;
     json_t *o = json_object();
-    if (!o)
-        return NULL;
-    json_object_set_new(o, "n", json_integer((json_int_t)c->n));
-    json_object_set_new(o, "both", json_integer((json_int_t)c->both));
-    json_object_set_new(o, "manual_only", json_integer((json_int_t)c->manual_only));
-    json_object_set_new(o, "auto_only", json_integer((json_int_t)c->auto_only));
-    json_object_set_new(o, "neither", json_integer((json_int_t)c->neither));
-    json_object_set_new(o, "percent", rounded(c->percent, 2));
-    json_object_set_new(o, "kappa", rounded(c->kappa, 3));
-    json_object_set_new(o, "manual_pct", rounded(c->manual_pct, 2));
-    json_object_set_new(o, "auto_pct", rounded(c->auto_pct, 2));
-    return o;
+    rt_json_set(o, "n", json_integer((json_int_t)c->n), &ok);
+    rt_json_set(o, "both", json_integer((json_int_t)c->both), &ok);
+    rt_json_set(o, "manual_only", json_integer((json_int_t)c->manual_only), &ok);
+    rt_json_set(o, "auto_only", json_integer((json_int_t)c->auto_only), &ok);
+    rt_json_set(o, "neither", json_integer((json_int_t)c->neither), &ok);
+    rt_json_set(o, "percent", rounded(c->percent, 2), &ok);
+    rt_json_set(o, "kappa", rounded(c->kappa, 3), &ok);
+    rt_json_set(o, "manual_pct", rounded(c->manual_pct, 2), &ok);
+    rt_json_set(o, "auto_pct", rounded(c->auto_pct, 2), &ok);
+    return rt_json_done(o, ok);
 }
 
 json_t *rt_agreement_json(const rt_agreement *a)
 {
+    bool ok = true;
     json_t *o = json_object();
-    if (!o)
-        return NULL;
-    json_object_set_new(o, "present", json_boolean(a && a->present));
+    rt_json_set(o, "present", json_boolean(a && a->present), &ok);
     if (!a || !a->present)
-        return o;
-    json_object_set_new(o, "scorer", rt_json_text(a->scorer));
-    json_object_set_new(o, "unit", json_string("3-s mini-epoch"));
+        return rt_json_done(o, ok);
+    rt_json_set(o, "scorer", rt_json_text(a->scorer), &ok);
+    rt_json_set(o, "unit", json_string("3-s mini-epoch"), &ok);
     json_t *roles = json_object();
-    for (int r = 0; r < RT_ROLE_COUNT; r++) {
+    for (int r = 0; r < RT_ROLE_COUNT && ok; r++) {
         if (a->cell[r][RT_AGREE_ANY].n == 0)
             continue;
         json_t *x = json_object();
         for (int t = 0; t < RT_AGREE_TYPES; t++)
-            json_object_set_new(x, type_names[t], cell_json(&a->cell[r][t]));
-        json_object_set_new(roles, rt_role_name((rt_role)r), x);
+            rt_json_set(x, type_names[t], cell_json(&a->cell[r][t]), &ok);
+        rt_json_set(roles, rt_role_name((rt_role)r), rt_json_done(x, ok), &ok);
     }
-    json_object_set_new(o, "roles", roles);
-    return o;
+    rt_json_set(o, "roles", rt_json_done(roles, ok), &ok);
+    return rt_json_done(o, ok);
 }
 
 static void field(char *buf, size_t cap, double v, const char *fmt)

@@ -7,16 +7,13 @@
  * the scorer's own conditioning (bandpass.h, detect.h) and parameters, so the
  * traces shown are the ones the labels came from. docs/review-report.md
  * describes the page. */
-#include <libxml/xmlwriter.h>
 #include <ctype.h>
-#include <errno.h>
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
 #include <time.h>
 
 #include "internal.h"
-#include "output.h"
 #include "remtone/report.h"
 #include "remtone/version.h"
 #include "svg.h"
@@ -210,8 +207,7 @@ static void write_head(html_ctx *c)
     rt_page_text(p, "remtone review report");
     rt_page_end_html(p);
     rt_page_start(p, "style");
-    if (!p->failed && xmlTextWriterWriteRaw(p->w, (const xmlChar *)CSS) < 0)
-        p->failed = true;
+    rt_page_raw(p, CSS);
     rt_page_end_html(p);
     rt_page_end_html(p);
 }
@@ -489,7 +485,7 @@ static void hypnogram(html_ctx *c, double y0, double row_h)
         if (!xs || !ys) {
             free(xs);
             free(ys);
-            c->p.failed = true;
+            rt_page_fail(&c->p, RT_ERR_NOMEM);
             return;
         }
         size_t m = 0;
@@ -747,7 +743,7 @@ static void write_bouts(html_ctx *c)
     size_t nb = 0;
     bout_stats *bs = rt_calloc(n->n_bouts ? n->n_bouts : 1, sizeof *bs);
     if (!bs) {
-        p->failed = true;
+        rt_page_fail(p, RT_ERR_NOMEM);
         return;
     }
     for (size_t k = 0; k < n->n_epochs && nb < n->n_bouts;) {
@@ -890,7 +886,7 @@ static void trace_row(html_ctx *c, const trace *tr, rt_role role, size_t k, doub
         if (abs_env < peak)
             rt_svg_line(p, px, YV(abs_env), px + pw, YV(abs_env), "#6b3fa0", 0.8, "1,3");
     } else if (!(xs && ys)) {
-        p->failed = true;
+        rt_page_fail(p, RT_ERR_NOMEM);
     }
     free(xs);
     free(ys);
@@ -929,7 +925,7 @@ static void evidence_plot(html_ctx *c, size_t rank, size_t k, const trace *trace
         }
     }
     int row = 0;
-    for (int r = 0; r < RT_ROLE_COUNT && !p->failed; r++) {
+    for (int r = 0; r < RT_ROLE_COUNT && p->status == RT_OK; r++) {
         if (r == RT_ROLE_ECG || !n->channel[r].present)
             continue;
         double y0 = top + row * (row_h + gap);
@@ -1060,7 +1056,7 @@ static void write_evidence(html_ctx *c)
     memset(traces, 0, sizeof traces);
     size_t plots = count < EVIDENCE_PLOTS ? count : EVIDENCE_PLOTS;
     if (compute_traces(c, order, plots, traces) == RT_OK)
-        for (size_t i = 0; i < plots && !p->failed; i++)
+        for (size_t i = 0; i < plots && p->status == RT_OK; i++)
             evidence_plot(c, i, order[i], traces[i]);
     for (size_t i = 0; i < plots; i++)
         for (int r = 0; r < RT_ROLE_COUNT; r++)
@@ -1205,9 +1201,7 @@ static void write_footer(html_ctx *c)
 static void write_page(html_ctx *c)
 {
     rt_page *p = &c->p;
-    if (xmlTextWriterWriteDTD(p->w, (const xmlChar *)"html", NULL, NULL, NULL) < 0 ||
-        xmlTextWriterWriteRaw(p->w, (const xmlChar *)"\n") < 0)
-        p->failed = true;
+    rt_page_raw(p, "<!DOCTYPE html>\n");
     rt_page_start(p, "html");
     rt_page_attr(p, "xmlns", "http://www.w3.org/1999/xhtml");
     rt_page_attr(p, "lang", "en");
@@ -1226,8 +1220,6 @@ static void write_page(html_ctx *c)
     write_footer(c);
     rt_page_end_html(p);
     rt_page_end_html(p);
-    if (!p->failed && xmlTextWriterEndDocument(p->w) < 0)
-        p->failed = true;
 }
 
 rt_status rt_night_write_html(const rt_night *night, rt_recording *rec, const rt_timeline *tl,
@@ -1247,31 +1239,13 @@ rt_status rt_night_write_html(const rt_night *night, rt_recording *rec, const rt
     if (tl && tl->n_epochs * tl->epoch_s > c.span_s)
         c.span_s = (double)tl->n_epochs * tl->epoch_s;
 
-    xmlBufferPtr buf = xmlBufferCreate();
-    c.p.w = buf ? xmlNewTextWriterMemory(buf, 0) : NULL;
-    if (!c.p.w) {
-        xmlBufferFree(buf);
-        return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory for the review report", path);
-    }
+    rt_status st = rt_page_open(&c.p, err);
+    if (st != RT_OK)
+        return st;
     write_page(&c);
-    xmlFreeTextWriter(c.p.w); /* flushes into buf */
-    rt_status st = c.status;
-    if (st == RT_OK && c.p.failed)
-        st = rt_fail(err, RT_ERR_NOMEM, "%s: cannot compose the review report", path);
-    rt_output out;
-    if (st == RT_OK)
-        st = rt_output_begin(&out, path, 1, err);
-    if (st == RT_OK) {
-        size_t len = (size_t)xmlBufferLength(buf);
-        if (fwrite(xmlBufferContent(buf), 1, len, out.file) != len || fputc('\n', out.file) == EOF) {
-            int saved = errno;
-            rt_output_abort(&out);
-            st = rt_fail(err, RT_ERR_IO, "%s: cannot write the review report: %s", path,
-                         strerror(saved ? saved : EIO));
-        } else {
-            st = rt_output_commit(&out, err);
-        }
+    if (c.status != RT_OK) { /* a recomputation failed: its message is in err */
+        rt_page_close(&c.p);
+        return c.status;
     }
-    xmlBufferFree(buf);
-    return st;
+    return rt_page_save(&c.p, path, true, err);
 }

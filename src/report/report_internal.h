@@ -7,12 +7,23 @@
 
 #include <jansson.h>
 
+#include "json_build.h"
+
 #include "remtone/recording.h"
 #include "remtone/score.h"
 
-/* Writes root as indented JSON to path ("-": standard output) atomically;
- * flags are extra jansson dump flags. Does not take ownership of root. */
-rt_status rt_json_write(json_t *root, const char *path, size_t flags, rt_error *err);
+/* rt_json_write, which writes a JSON file atomically: json_build.h. */
+
+/* {"path": path (when with_path), "bytes": size, "xxh3": digest} of a file
+ * in *out, for provenance and resumable runs; on failure *out is NULL and the
+ * status (RT_ERR_IO, RT_ERR_NOMEM) is returned. */
+rt_status rt_file_identity_json(const char *path, bool with_path, json_t **out, rt_error *err);
+/* o[key] = that identity of path; nothing when path is NULL. */
+rt_status rt_file_identity_add(json_t *o, const char *key, const char *path, bool with_path,
+                               rt_error *err);
+
+/* Builders below that return json_t * are built with json_build.h: NULL
+ * means out of memory. */
 
 /* A JSON string of text made valid UTF-8 (rt_utf8_clean, src/common/text.h):
  * every text that comes from a file, a path or an error message goes through
@@ -21,9 +32,11 @@ rt_status rt_json_write(json_t *root, const char *path, size_t flags, rt_error *
  * memory. */
 json_t *rt_json_text(const char *text);
 
-/* {"path": path (when with_path), "bytes": size, "xxh3": digest} of a file,
- * for provenance and resumable runs; NULL with err filled on failure. */
-json_t *rt_file_identity_json(const char *path, bool with_path, rt_error *err);
+/* Copies text into *out (the caller frees it) as valid XML 1.0 UTF-8: valid
+ * UTF-8 sequences are kept, invalid bytes become U+FFFD, control characters
+ * other than tab and newline become spaces. NULL text gives "". RT_ERR_NOMEM
+ * (and *out NULL) when out of memory. */
+rt_status rt_xml_clean_text(const char *text, char **out, rt_error *err);
 
 /* A channel's quality summary as JSON (docs/night-json.md). */
 json_t *rt_quality_json(const rt_channel_quality *q);
@@ -33,7 +46,7 @@ json_t *rt_quality_json(const rt_channel_quality *q);
  * scorer and, per role that has compared mini-epochs, per type ("phasic",
  * "tonic", "any"), the counts, percent agreement, kappa and the two rates
  * (null where undefined). Returns a new reference the caller owns (NULL only
- * when out of memory). */
+ * when out of memory, as every builder here). */
 json_t *rt_agreement_json(const rt_agreement *a);
 
 /* The same as a short text table; writes nothing when a->present is false. */

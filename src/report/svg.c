@@ -3,55 +3,167 @@
 #include "svg.h"
 #include "text.h"
 
+#include <errno.h>
 #include <math.h>
 #include <stdarg.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
+#include "output.h"
+
 #define SVG_NS "http://www.w3.org/2000/svg"
 
 static const xmlChar *X(const char *s) { return (const xmlChar *)s; }
 
-char *rt_xml_clean_text(const char *text)
+rt_status rt_xml_clean_text(const char *text, char **result, rt_error *err)
 {
-    return rt_utf8_clean(text, true);
+    *result = rt_utf8_clean(text, true);
+    if (!*result)
+        return rt_fail(err, RT_ERR_NOMEM, "out of memory for %zu bytes of text",
+                       text ? strlen(text) : 0);
+    return RT_OK;
 }
+
+/* Every writer call runs as WRITE(p, call): errno is cleared before it, so
+ * afterwards ENOMEM (set by the allocator) or libxml2's last error of this
+ * thread (reset by rt_page_open) tells a shortage of memory from a refused
+ * call. libxml2 does not always say: a failed allocation in its list code
+ * only prints, and one while escaping a text drops the text and still
+ * succeeds, so ENOMEM after a call that succeeded is a failure too. */
+#define WRITE(p, call) \
+    do {               \
+        errno = 0;     \
+        check(p, call); \
+    } while (0)
 
 static void check(rt_page *p, int rc)
 {
-    if (rc < 0)
-        p->failed = true;
+    const xmlError *e = xmlGetLastError();
+    bool nomem = errno == ENOMEM || (e && e->code == XML_ERR_NO_MEMORY);
+    if (nomem)
+        rt_page_fail(p, RT_ERR_NOMEM);
+    else if (rc < 0)
+        rt_page_fail(p, RT_ERR_INTERNAL);
+}
+
+static void silent(void *ctx, const char *msg, ...)
+{
+    (void)ctx;
+    (void)msg;
+}
+
+static void silent_structured(void *ctx, xmlErrorPtr error)
+{
+    (void)ctx;
+    (void)error;
+}
+
+rt_status rt_page_open(rt_page *p, rt_error *err)
+{
+    memset(p, 0, sizeof *p);
+    p->saved_generic = xmlGenericError;
+    p->saved_generic_ctx = xmlGenericErrorContext;
+    p->saved_structured = xmlStructuredError;
+    p->saved_structured_ctx = xmlStructuredErrorContext;
+    xmlSetGenericErrorFunc(NULL, silent);
+    xmlSetStructuredErrorFunc(NULL, silent_structured);
+    xmlResetLastError();
+    p->buf = xmlBufferCreate();
+    p->w = p->buf ? xmlNewTextWriterMemory(p->buf, 0) : NULL;
+    if (!p->w) {
+        rt_page_close(p);
+        return rt_fail(err, RT_ERR_NOMEM, "out of memory for a page writer");
+    }
+    return RT_OK;
+}
+
+rt_status rt_page_finish(rt_page *p, const char *what, const char **bytes, size_t *len,
+                         rt_error *err)
+{
+    *bytes = NULL;
+    *len = 0;
+    if (p->status == RT_OK)
+        WRITE(p, xmlTextWriterEndDocument(p->w));
+    if (p->w) {
+        xmlFreeTextWriter(p->w); /* flushes into buf */
+        p->w = NULL;
+    }
+    const xmlError *e = xmlGetLastError();
+    if (p->status == RT_OK && e && e->code == XML_ERR_NO_MEMORY)
+        p->status = RT_ERR_NOMEM; /* a text libxml2 dropped without failing the call */
+    if (p->status == RT_ERR_NOMEM)
+        return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory composing the page", what);
+    if (p->status != RT_OK)
+        return rt_fail(err, p->status, "%s: the XML writer refused a call while composing the "
+                                       "page (a bug in remtone)", what);
+    *bytes = (const char *)xmlBufferContent(p->buf);
+    *len = (size_t)xmlBufferLength(p->buf);
+    return RT_OK;
+}
+
+void rt_page_close(rt_page *p)
+{
+    if (p->w)
+        xmlFreeTextWriter(p->w);
+    xmlBufferFree(p->buf);
+    p->w = NULL;
+    p->buf = NULL;
+    xmlSetGenericErrorFunc(p->saved_generic_ctx, p->saved_generic);
+    xmlSetStructuredErrorFunc(p->saved_structured_ctx, p->saved_structured);
+}
+
+rt_status rt_page_save(rt_page *p, const char *path, bool add_newline, rt_error *err)
+{
+    const char *bytes = NULL;
+    size_t len = 0;
+    rt_status st = rt_page_finish(p, path, &bytes, &len, err);
+    if (st == RT_OK)
+        st = rt_output_write_all(path, bytes, len, add_newline, "the page", err);
+    rt_page_close(p);
+    return st;
+}
+
+void rt_page_fail(rt_page *p, rt_status st)
+{
+    if (p->status == RT_OK)
+        p->status = st;
+}
+
+void rt_page_raw(rt_page *p, const char *markup)
+{
+    if (p->status == RT_OK)
+        WRITE(p, xmlTextWriterWriteRaw(p->w, X(markup)));
 }
 
 void rt_page_start(rt_page *p, const char *name)
 {
-    if (!p->failed)
-        check(p, xmlTextWriterStartElement(p->w, X(name)));
+    if (p->status == RT_OK)
+        WRITE(p, xmlTextWriterStartElement(p->w, X(name)));
 }
 
 void rt_page_end_html(rt_page *p)
 {
-    if (!p->failed)
-        check(p, xmlTextWriterFullEndElement(p->w));
+    if (p->status == RT_OK)
+        WRITE(p, xmlTextWriterFullEndElement(p->w));
 }
 
 void rt_page_end_svg(rt_page *p)
 {
-    if (!p->failed)
-        check(p, xmlTextWriterEndElement(p->w));
+    if (p->status == RT_OK)
+        WRITE(p, xmlTextWriterEndElement(p->w));
 }
 
 void rt_page_attr(rt_page *p, const char *name, const char *value)
 {
-    if (p->failed)
+    if (p->status != RT_OK)
         return;
-    char *clean = rt_xml_clean_text(value);
-    if (!clean) {
-        p->failed = true;
+    char *clean = NULL;
+    if (rt_xml_clean_text(value, &clean, NULL) != RT_OK) {
+        rt_page_fail(p, RT_ERR_NOMEM);
         return;
     }
-    check(p, xmlTextWriterWriteAttribute(p->w, X(name), X(clean)));
+    WRITE(p, xmlTextWriterWriteAttribute(p->w, X(name), X(clean)));
     free(clean);
 }
 
@@ -67,14 +179,14 @@ void rt_page_attrf(rt_page *p, const char *name, const char *fmt, ...)
 
 void rt_page_text(rt_page *p, const char *text)
 {
-    if (p->failed)
+    if (p->status != RT_OK)
         return;
-    char *clean = rt_xml_clean_text(text);
-    if (!clean) {
-        p->failed = true;
+    char *clean = NULL;
+    if (rt_xml_clean_text(text, &clean, NULL) != RT_OK) {
+        rt_page_fail(p, RT_ERR_NOMEM);
         return;
     }
-    check(p, xmlTextWriterWriteString(p->w, X(clean)));
+    WRITE(p, xmlTextWriterWriteString(p->w, X(clean)));
     free(clean);
 }
 
@@ -150,12 +262,12 @@ void rt_svg_line(rt_page *p, double x1, double y1, double x2, double y2, const c
 void rt_svg_polyline(rt_page *p, const double *xs, const double *ys, size_t n, const char *stroke,
                      double width)
 {
-    if (p->failed || n == 0)
+    if (p->status != RT_OK || n == 0)
         return;
     /* up to 24 bytes per point */
     char *pts = rt_calloc(n, 24);
     if (!pts) {
-        p->failed = true;
+        rt_page_fail(p, RT_ERR_NOMEM);
         return;
     }
     size_t o = 0;

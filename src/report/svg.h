@@ -17,19 +17,45 @@
 #include "remtone/score.h"
 #include "report_internal.h"
 
-/* A page being written. `failed` becomes true at the first writer error and
- * stays so; every helper does nothing once it is set, so callers check once
- * at the end. */
+/* A page being written into memory. `status` is RT_OK until the first
+ * failure and then keeps its status; every helper does nothing once it is set,
+ * so callers check once at the end. While a page is open, libxml2 prints
+ * nothing (its error reports of this thread are silenced): the library never
+ * prints, and what went wrong reaches the caller as a status. */
 typedef struct rt_page {
     xmlTextWriterPtr w;
-    bool failed;
+    xmlBufferPtr buf;
+    rt_status status;
+    xmlGenericErrorFunc saved_generic;
+    void *saved_generic_ctx;
+    xmlStructuredErrorFunc saved_structured;
+    void *saved_structured_ctx;
 } rt_page;
 
-/* Copies text into a fresh buffer as valid XML 1.0 UTF-8: valid UTF-8
- * sequences are kept, invalid bytes become U+FFFD, control characters other
- * than tab and newline become spaces. NULL text gives "". The caller frees
- * the result; NULL when out of memory. */
-char *rt_xml_clean_text(const char *text);
+/* Opens an empty page; RT_ERR_NOMEM when the writer cannot be made (then
+ * nothing is left to close). */
+rt_status rt_page_open(rt_page *p, rt_error *err);
+/* Ends the document and gives its bytes in *bytes and *len (they belong to
+ * the page and live until rt_page_close). The page's status: RT_ERR_NOMEM
+ * when memory ran out at any point -- libxml2 included, even where it carried
+ * on and dropped a text -- and RT_ERR_INTERNAL when the writer refused a call
+ * (an element closed that was not open: a bug in the page code, never a
+ * shortage of memory). what names the page in the message. */
+rt_status rt_page_finish(rt_page *p, const char *what, const char **bytes, size_t *len,
+                         rt_error *err);
+/* Frees the writer and the bytes and restores libxml2's error reports. */
+void rt_page_close(rt_page *p);
+/* Finishes the page (rt_page_finish), writes it to path atomically (output.h)
+ * with a newline added when add_newline, and closes it (always). The page's
+ * status, else the output's (RT_ERR_IO for the disk). */
+rt_status rt_page_save(rt_page *p, const char *path, bool add_newline, rt_error *err);
+/* Records a failure of the page code itself (st, such as RT_ERR_NOMEM for an
+ * allocation) unless one is recorded already. */
+void rt_page_fail(rt_page *p, rt_status st);
+/* Raw markup (the style sheet), written as is. */
+void rt_page_raw(rt_page *p, const char *markup);
+
+/* rt_xml_clean_text, which makes any text valid UTF-8: report_internal.h. */
 
 /* An element with the given name; end_html closes it with an explicit end
  * tag (HTML parsers read <div/> as an open tag), end_svg may self-close. */

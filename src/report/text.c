@@ -211,34 +211,43 @@ rt_status rt_scan_write_text(const rt_recording *rec, const rt_role_map *roles,
 rt_status rt_scan_write_json(const rt_recording *rec, const rt_role_map *roles,
                              const rt_channel_quality *quality, const char *path, rt_error *err)
 {
+    if (!rec || !roles || !path)
+        return rt_fail(err, RT_ERR_USAGE, "scan JSON: a recording, roles and a path are needed");
+    bool ok = true;
     json_t *root = json_object();
     json_t *chans = json_array();
-    for (int i = 0; i < rt_recording_channel_count(rec); i++) {
+    for (int i = 0; i < rt_recording_channel_count(rec) && ok; i++) {
         const rt_channel_info *ch = rt_recording_channel(rec, i);
         const char *role = role_of(roles, i);
-        json_array_append_new(chans, json_pack("{s:o,s:f,s:o,s:f,s:f,s:o,s:s*}", "label",
-                                               rt_json_text(ch->label), "rate_hz", ch->rate_hz,
-                                               "unit", rt_json_text(ch->unit),
-                                               "physical_min", ch->phys_min, "physical_max",
-                                               ch->phys_max, "transducer", rt_json_text(ch->transducer), "role",
-                                               role[0] ? role : NULL));
+        json_t *x = json_object();
+        rt_json_set(x, "label", rt_json_text(ch->label), &ok);
+        rt_json_set(x, "rate_hz", json_real(ch->rate_hz), &ok);
+        rt_json_set(x, "unit", rt_json_text(ch->unit), &ok);
+        rt_json_set(x, "physical_min", json_real(ch->phys_min), &ok);
+        rt_json_set(x, "physical_max", json_real(ch->phys_max), &ok);
+        rt_json_set(x, "transducer", rt_json_text(ch->transducer), &ok);
+        if (role[0])
+            rt_json_set(x, "role", json_string(role), &ok);
+        rt_json_push(chans, rt_json_done(x, ok), &ok);
     }
-    json_object_set_new(root, "channels", chans);
-    json_object_set_new(root, "duration_s", json_real(rt_recording_duration_s(rec)));
+    rt_json_set(root, "channels", rt_json_done(chans, ok), &ok);
+    rt_json_set(root, "duration_s", json_real(rt_recording_duration_s(rec)), &ok);
     json_t *map = json_object();
     for (int r = 0; r < RT_ROLE_COUNT; r++)
-        json_object_set_new(map, rt_role_name((rt_role)r),
-                            roles->role[r].channel >= 0 ? rt_json_text(roles->role[r].label)
-                                                        : json_null());
-    json_object_set_new(root, "roles", map);
+        rt_json_set(map, rt_role_name((rt_role)r),
+                    roles->role[r].channel >= 0 ? rt_json_text(roles->role[r].label) : json_null(),
+                    &ok);
+    rt_json_set(root, "roles", rt_json_done(map, ok), &ok);
     if (quality) {
         json_t *qo = json_object();
         for (int r = 0; r < RT_ROLE_ECG; r++)
             if (roles->role[r].channel >= 0)
-                json_object_set_new(qo, rt_role_name((rt_role)r), rt_quality_json(&quality[r]));
-        json_object_set_new(root, "quality", qo);
+                rt_json_set(qo, rt_role_name((rt_role)r), rt_quality_json(&quality[r]), &ok);
+        rt_json_set(root, "quality", rt_json_done(qo, ok), &ok);
     }
-    rt_status st = rt_json_write(root, path, 0, err);
+    if (!(root = rt_json_done(root, ok)))
+        return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory composing the scan", path);
+    rt_status st = rt_json_write(root, path, JSON_INDENT(2), err);
     json_decref(root);
     return st;
 }

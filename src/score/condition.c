@@ -109,17 +109,14 @@ rt_status rt_conditioner_open(rt_recording *rec, const rt_role_source *src,
             return st;
         rt_mains_apply(&c->mains, &spec);
     }
-    c->bp = rt_bandpass_new(&spec, err);
-    if (!c->bp)
-        return err ? err->status : RT_ERR_NOMEM;
-    return RT_OK;
+    return rt_bandpass_new(&spec, &c->bp, err);
 }
 
 rt_status rt_conditioner_copy(const rt_conditioner *from, rt_conditioner *c, rt_error *err)
 {
     *c = *from;
-    c->bp = rt_bandpass_clone(from->bp, err);
-    return c->bp ? RT_OK : err ? err->status : RT_ERR_NOMEM;
+    c->bp = NULL;
+    return rt_bandpass_clone(from->bp, &c->bp, err);
 }
 
 void rt_conditioner_close(rt_conditioner *c)

@@ -243,14 +243,18 @@ static size_t leg_scorable_minis(const rt_night *night)
     return n;
 }
 
-/* Movements per hour of leg-scorable REM (minutes > 0); NaN out of memory. */
-static double leg_movements_per_h(const rt_night *night, size_t *count, double minutes)
+/* Movements per hour of leg-scorable REM (minutes > 0) into *per_h and their
+ * number into *count. RT_ERR_NOMEM when there is no room to sort them: never
+ * a silent "not computed". */
+static rt_status leg_movements_per_h(const rt_night *night, double minutes, double *per_h,
+                                     size_t *count, rt_error *err)
 {
     *count = 0;
+    *per_h = NAN;
     const rt_score_params *p = &night->params;
     leg_move *mv = rt_calloc(night->n_bursts + 1, sizeof *mv);
     if (!mv)
-        return NAN;
+        return rt_fail(err, RT_ERR_NOMEM, "out of memory for %zu leg bursts", night->n_bursts);
     size_t n = 0;
     for (size_t i = 0; i < night->n_bursts; i++) {
         const rt_burst *b = &night->bursts[i];
@@ -301,12 +305,13 @@ static double leg_movements_per_h(const rt_night *night, size_t *count, double m
             }
     }
     free(mv);
-    return (double)*count / (minutes / 60.0);
+    *per_h = (double)*count / (minutes / 60.0);
+    return RT_OK;
 }
 
 /* REM minutes left out, each mini-epoch counted once for its first cause;
  * the leg-movement rate. */
-static void summarise_exclusions(rt_night *night)
+static rt_status summarise_exclusions(rt_night *night, rt_error *err)
 {
     rt_exclusion_summary *x = &night->exclusions;
     for (size_t i = 0; i < night->n_minis3; i++) {
@@ -356,17 +361,18 @@ static void summarise_exclusions(rt_night *night)
         not_computed(lm, why);
     } else {
         size_t count = 0;
-        lm->value = leg_movements_per_h(night, &count, minutes);
+        rt_status st = leg_movements_per_h(night, minutes, &lm->value, &count, err);
+        if (st != RT_OK)
+            return st;
         lm->numerator = count;
         lm->denominator = minis;
-        lm->status = isnan(lm->value) ? RT_STATUS_NOT_COMPUTED : RT_STATUS_NO_CUTOFF;
+        lm->status = RT_STATUS_NO_CUTOFF;
         rt_copy_string(lm->reason, sizeof lm->reason,
-                       isnan(lm->value) ? "out of memory"
-                                        : "counted from the leg EMG by the AASM limb-movement "
-                                          "rules: 0.5-10 s, 8 uV above the background, legs with "
-                                          "onsets under 5 s apart once; per hour of REM with "
-                                          "scorable leg EMG");
+                       "counted from the leg EMG by the AASM limb-movement rules: 0.5-10 s, "
+                       "8 uV above the background, legs with onsets under 5 s apart once; per "
+                       "hour of REM with scorable leg EMG");
     }
+    return RT_OK;
 }
 
 static void apply_missing(rt_night *night, bool arms)
@@ -570,8 +576,9 @@ static rt_status channel_levels(rt_night *night, rt_error *err)
 
 rt_status rt_night_summarise(rt_night *night, const scoring_state *ss, rt_error *err)
 {
-    if (channel_levels(night, err) != RT_OK)
-        return err ? err->status : RT_ERR_NOMEM;
+    rt_status st = channel_levels(night, err);
+    if (st != RT_OK)
+        return st;
     bool arms = night->channel[RT_ROLE_ARM_LEFT].present && night->channel[RT_ROLE_ARM_RIGHT].present;
     aggregate_epochs(night, arms);
     size_t scorable_minis = 0;
@@ -584,7 +591,8 @@ rt_status rt_night_summarise(rt_night *night, const scoring_state *ss, rt_error 
     compute_epoch_indices(night, arms);
     set_value(&night->index[RT_IX_MONTREAL_TONIC_CHIN], ss->montreal_tonic, ss->montreal_windows,
               100.0);
-    summarise_exclusions(night);
+    if ((st = summarise_exclusions(night, err)) != RT_OK)
+        return st;
     rt_index_value *rai = &night->index[RT_IX_RAI];
     rai->numerator = ss->rai.at_most_1;
     rai->denominator = ss->rai.total;

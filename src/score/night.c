@@ -1072,7 +1072,12 @@ rt_status rt_night_score_threads(rt_recording *rec, const rt_role_map *roles,
                                  const rt_cutoffs *cutoffs, int threads, rt_night **out,
                                  rt_error *err)
 {
+    if (!out)
+        return rt_fail(err, RT_ERR_USAGE, "rt_night_score: no place for the result");
     *out = NULL;
+    if (!rec || !roles || !tl)
+        return rt_fail(err, RT_ERR_USAGE, "rt_night_score: a recording, roles and a timeline are "
+                                          "needed");
     if (threads < 0)
         return rt_fail(err, RT_ERR_USAGE, "scoring threads must be 0 (the cores available) or "
                        "more, got %d", threads);

@@ -44,7 +44,11 @@ static bool bout_extent(const rt_night *night, size_t bout, double *t0, size_t *
 rt_status rt_night_tracer_open(rt_recording *rec, const rt_night *night, rt_night_tracer **out,
                                rt_error *err)
 {
+    if (!out)
+        return rt_fail(err, RT_ERR_USAGE, "rt_night_tracer_open: no place for the result");
     *out = NULL;
+    if (!rec || !night)
+        return rt_fail(err, RT_ERR_USAGE, "rt_night_tracer_open: a recording and a night are needed");
     rt_night_tracer *t = rt_calloc(1, sizeof *t);
     if (!t)
         return rt_fail(err, RT_ERR_NOMEM, "out of memory for the review traces");

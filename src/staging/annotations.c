@@ -176,14 +176,14 @@ rt_status rt_timeline_load_annotations(rt_timeline *tl, const rt_recording *rec,
     if (!want_stages && !want_events)
         return RT_OK;
     size_t n = rt_recording_annotation_count(rec);
-    rt_timeline *scratch = rt_timeline_new();
+    rt_timeline *scratch = NULL;
+    rt_status st = rt_timeline_new(&scratch, err);
     stage_mark *marks = rt_calloc(n, sizeof *marks);
     unknown_stage_texts *unknown = rt_calloc(1, sizeof *unknown);
-    rt_status st = RT_OK;
-    if (!scratch || !marks || !unknown) {
+    if (st == RT_OK && (!marks || !unknown))
         st = rt_fail(err, RT_ERR_NOMEM, "%s: out of memory for %zu annotations", path, n);
+    if (st != RT_OK)
         goto done;
-    }
     scratch->epoch_s = tl->epoch_s;
     size_t n_marks = 0;
     for (size_t i = 0; i < n && st == RT_OK; i++) {

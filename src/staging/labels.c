@@ -244,9 +244,13 @@ bool rt_label_is_ignored(const char *label, const rt_labelmap *map)
     return e && e->kind == MAP_IGNORE;
 }
 
-rt_labelmap *rt_labelmap_new(void)
+rt_status rt_labelmap_new(rt_labelmap **out, rt_error *err)
 {
-    return rt_calloc(1, sizeof(rt_labelmap));
+    if (!out)
+        return rt_fail(err, RT_ERR_USAGE, "rt_labelmap_new: no place for the result");
+    if (!(*out = rt_calloc(1, sizeof(rt_labelmap))))
+        return rt_fail(err, RT_ERR_NOMEM, "out of memory for the label map");
+    return RT_OK;
 }
 
 void rt_labelmap_free(rt_labelmap *map)

@@ -148,11 +148,13 @@ static void on_event_row(rt_table *r, char **v)
 static rt_status load_table(rt_timeline *tl, const char *path, const rt_labelmap *map,
                             bool is_staging, rt_error *err)
 {
-    rt_timeline *scratch = rt_timeline_new();
+    rt_timeline *scratch = NULL;
+    rt_status st = rt_timeline_new(&scratch, err);
+    if (st != RT_OK)
+        return st;
     unknown_labels *unknown = rt_calloc(1, sizeof *unknown);
-    if (!scratch || !unknown) {
+    if (!unknown) {
         rt_timeline_free(scratch);
-        free(unknown);
         return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", path);
     }
     scratch->epoch_s = tl->epoch_s;
@@ -161,7 +163,7 @@ static rt_status load_table(rt_timeline *tl, const char *path, const rt_labelmap
                   .columns = {"start_s", "duration_s", is_staging ? "stage" : "type"},
                   .n_columns = 3, .on_row = is_staging ? on_stage_row : on_event_row,
                   .user = &rows};
-    rt_status st = rt_table_read(&r, err);
+    st = rt_table_read(&r, err);
     if (st == RT_OK && unknown->n > 0)
         st = unknown_report(unknown, path, is_staging ? "stage" : "event", err);
     if (st == RT_OK && is_staging && r.n_rows == 0)
@@ -209,22 +211,24 @@ static void on_map_row(rt_table *r, char **v)
                                       local.message));
 }
 
-rt_labelmap *rt_labelmap_load(const char *path, rt_error *err)
+rt_status rt_labelmap_load(const char *path, rt_labelmap **out, rt_error *err)
 {
-    if (!path) {
-        rt_fail(err, RT_ERR_USAGE, "rt_labelmap_load: NULL path");
-        return NULL;
-    }
-    rt_labelmap *map = rt_labelmap_new();
-    if (!map) {
-        rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", path);
-        return NULL;
-    }
+    if (!out)
+        return rt_fail(err, RT_ERR_USAGE, "rt_labelmap_load: no place for the result");
+    *out = NULL;
+    if (!path)
+        return rt_fail(err, RT_ERR_USAGE, "rt_labelmap_load: NULL path");
+    rt_labelmap *map = NULL;
+    rt_status st = rt_labelmap_new(&map, err);
+    if (st != RT_OK)
+        return st;
     rt_table r = {.path = path, .what = "label map", .columns = {"label", "meaning"},
                       .n_columns = 2, .on_row = on_map_row, .user = map};
-    if (rt_table_read(&r, err) != RT_OK) {
+    st = rt_table_read(&r, err);
+    if (st != RT_OK) {
         rt_labelmap_free(map);
-        return NULL;
+        return st;
     }
-    return map;
+    *out = map;
+    return RT_OK;
 }

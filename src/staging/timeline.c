@@ -23,15 +23,17 @@
 #define MAX_TIMELINE_S (31.0 * 86400.0)
 #define DEFAULT_EPOCH_S 30.0
 
-rt_timeline *rt_timeline_new(void)
+rt_status rt_timeline_new(rt_timeline **out, rt_error *err)
 {
-    rt_timeline *tl = rt_calloc(1, sizeof *tl);
+    if (!out)
+        return rt_fail(err, RT_ERR_USAGE, "rt_timeline_new: no place for the result");
+    rt_timeline *tl = *out = rt_calloc(1, sizeof *tl);
     if (!tl)
-        return NULL;
+        return rt_fail(err, RT_ERR_NOMEM, "out of memory for a timeline");
     tl->epoch_s = DEFAULT_EPOCH_S;
     tl->lights_off_s = 0.0;
     tl->lights_on_s = -1.0;
-    return tl;
+    return RT_OK;
 }
 
 void rt_timeline_free(rt_timeline *tl)
@@ -313,12 +315,14 @@ static rt_status sniff_format(const char *path, staging_format *format, rt_error
 {
     struct stat st;
     if (stat(path, &st) != 0)
-        return rt_fail(err, RT_ERR_IO, "%s: cannot open: %s", path, strerror(errno));
+        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
+                       "%s: cannot open: %s", path, strerror(errno));
     if (S_ISDIR(st.st_mode))
         return rt_fail(err, RT_ERR_IO, "%s: is a directory, not a staging file", path);
     FILE *f = fopen(path, "rb");
     if (!f)
-        return rt_fail(err, RT_ERR_IO, "%s: cannot open: %s", path, strerror(errno));
+        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
+                       "%s: cannot open: %s", path, strerror(errno));
     unsigned char head[256];
     size_t n = fread(head, 1, sizeof head, f);
     int read_error = ferror(f);
@@ -349,14 +353,9 @@ rt_status rt_timeline_load_staging(rt_timeline *tl, const char *path, const rt_l
         return st;
     switch (format) {
     case FORMAT_EDF: {
-        rt_error local;
-        rt_error_clear(&local);
-        rt_recording *rec = rt_recording_open(path, &local);
-        if (!rec) {
-            if (err)
-                *err = local;
-            return local.status != RT_OK ? local.status : RT_ERR_RECORDING;
-        }
+        rt_recording *rec = NULL;
+        if ((st = rt_recording_open(path, &rec, err)) != RT_OK)
+            return st;
         st = rt_timeline_load_annotations(tl, rec, map, true, true, err);
         rt_recording_close(rec);
         return st;

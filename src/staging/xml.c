@@ -644,11 +644,8 @@ rt_status rt_timeline_load_xml_memory(rt_timeline *tl, const char *data, size_t 
         return st;
     st = validate_document(doc, name, err);
     rt_timeline *scratch = NULL;
-    if (st == RT_OK) {
-        scratch = rt_timeline_new();
-        if (!scratch)
-            st = rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", name);
-    }
+    if (st == RT_OK)
+        st = rt_timeline_new(&scratch, err);
     if (st == RT_OK) {
         reader r = {name, scratch, err};
         st = read_root(&r, xmlDocGetRootElement(doc));
@@ -666,7 +663,8 @@ rt_status rt_timeline_load_xml(rt_timeline *tl, const char *path, rt_error *err)
         return rt_fail(err, RT_ERR_USAGE, "rt_timeline_load_xml: NULL argument");
     FILE *f = fopen(path, "rb");
     if (!f)
-        return rt_fail(err, RT_ERR_IO, "%s: cannot open: %s", path, strerror(errno));
+        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
+                       "%s: cannot open: %s", path, strerror(errno));
     struct stat sb;
     if (fstat(fileno(f), &sb) == 0 && S_ISDIR(sb.st_mode)) {
         fclose(f);
@@ -704,7 +702,8 @@ rt_status rt_timeline_load_xml(rt_timeline *tl, const char *path, rt_error *err)
         len += got;
         if (got == 0) {
             if (ferror(f))
-                st = rt_fail(err, RT_ERR_IO, "%s: cannot read: %s", path, strerror(errno));
+                st = rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
+                             "%s: cannot read: %s", path, strerror(errno));
             break;
         }
     }
@@ -870,7 +869,8 @@ rt_status rt_timeline_write_xml(const rt_timeline *tl, const char *path, rt_erro
             size_t n = (size_t)xmlBufferLength(buf);
             if (fwrite(xmlBufferContent(buf), 1, n, out.file) != n) {
                 rt_output_abort(&out);
-                st = rt_fail(err, RT_ERR_IO, "%s: cannot write: %s", path, strerror(errno));
+                st = rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
+                             "%s: cannot write: %s", path, strerror(errno));
             } else {
                 st = rt_output_commit(&out, err);
             }

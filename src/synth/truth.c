@@ -11,6 +11,7 @@
 #include <string.h>
 
 #include "internal.h"
+#include "json_build.h"
 #include "output.h"
 
 /* Whether a burst of role with one of the SYNTH_HOLD_* bits overlaps
@@ -240,38 +241,38 @@ void rt_synth_indices_compute(const synth_plan *plan, int exclude_events, synth_
     out->rai = c.secs > 0 && p2 < 100.0 ? p1 / (100.0 - p2) : NAN;
 }
 
-/* Builders below return NULL only when jansson runs out of memory; the
- * caller checks the finished tree once. */
+/* The builders below store every value through json_build.h and clear *ok
+ * when jansson runs out of memory; the caller releases the tree then. */
 static json_t *number(double x)
 {
     return isfinite(x) ? json_real(x) : json_null();
 }
 
-static json_t *indices_json(const synth_indices *ix)
+static json_t *indices_json(const synth_indices *ix, bool *ok)
 {
     json_t *aasm = json_object(), *sinbar = json_object(), *montreal = json_object();
-    json_object_set_new(aasm, "tonic_chin_epochs", number(ix->aasm_tonic_chin_epochs));
-    json_object_set_new(aasm, "phasic_chin_epochs", number(ix->aasm_phasic_chin_epochs));
-    json_object_set_new(aasm, "phasic_any_epochs", number(ix->aasm_phasic_any_epochs));
-    json_object_set_new(aasm, "rswa_epochs", number(ix->aasm_rswa_epochs));
-    json_object_set_new(aasm, "tonic_unsure_epochs", number(ix->aasm_tonic_unsure_epochs));
-    json_object_set_new(sinbar, "chin_phasic_3s", number(ix->sinbar_chin_phasic_3s));
-    json_object_set_new(sinbar, "chin_any_3s", number(ix->sinbar_chin_any_3s));
-    json_object_set_new(sinbar, "chin_tonic_30s", number(ix->sinbar_chin_tonic_30s));
-    json_object_set_new(sinbar, "fds_phasic_3s", number(ix->sinbar_fds_phasic_3s));
-    json_object_set_new(sinbar, "chin_any_fds_phasic_3s", number(ix->sinbar_chin_any_fds_phasic_3s));
-    json_object_set_new(sinbar, "chin_any_fds_phasic_30s", number(ix->sinbar_chin_any_fds_phasic_30s));
-    json_object_set_new(montreal, "tonic_chin", number(ix->montreal_tonic_chin));
-    json_object_set_new(montreal, "phasic_chin", number(ix->montreal_phasic_chin));
+    rt_json_set(aasm, "tonic_chin_epochs", number(ix->aasm_tonic_chin_epochs), ok);
+    rt_json_set(aasm, "phasic_chin_epochs", number(ix->aasm_phasic_chin_epochs), ok);
+    rt_json_set(aasm, "phasic_any_epochs", number(ix->aasm_phasic_any_epochs), ok);
+    rt_json_set(aasm, "rswa_epochs", number(ix->aasm_rswa_epochs), ok);
+    rt_json_set(aasm, "tonic_unsure_epochs", number(ix->aasm_tonic_unsure_epochs), ok);
+    rt_json_set(sinbar, "chin_phasic_3s", number(ix->sinbar_chin_phasic_3s), ok);
+    rt_json_set(sinbar, "chin_any_3s", number(ix->sinbar_chin_any_3s), ok);
+    rt_json_set(sinbar, "chin_tonic_30s", number(ix->sinbar_chin_tonic_30s), ok);
+    rt_json_set(sinbar, "fds_phasic_3s", number(ix->sinbar_fds_phasic_3s), ok);
+    rt_json_set(sinbar, "chin_any_fds_phasic_3s", number(ix->sinbar_chin_any_fds_phasic_3s), ok);
+    rt_json_set(sinbar, "chin_any_fds_phasic_30s", number(ix->sinbar_chin_any_fds_phasic_30s), ok);
+    rt_json_set(montreal, "tonic_chin", number(ix->montreal_tonic_chin), ok);
+    rt_json_set(montreal, "phasic_chin", number(ix->montreal_phasic_chin), ok);
     json_t *o = json_object();
-    json_object_set_new(o, "aasm", aasm);
-    json_object_set_new(o, "sinbar", sinbar);
-    json_object_set_new(o, "montreal", montreal);
-    json_object_set_new(o, "rai", number(ix->rai));
+    rt_json_set(o, "aasm", aasm, ok);
+    rt_json_set(o, "sinbar", sinbar, ok);
+    rt_json_set(o, "montreal", montreal, ok);
+    rt_json_set(o, "rai", number(ix->rai), ok);
     return o;
 }
 
-static json_t *minis_json(const synth_plan *plan)
+static json_t *minis_json(const synth_plan *plan, bool *ok)
 {
     json_t *minis = json_array();
     for (int b = 0; b < plan->n_bouts; b++) {
@@ -283,23 +284,23 @@ static json_t *minis_json(const synth_plan *plan)
                 json_t *aasm = json_array(), *sinbar = json_array();
                 for (int r = 0; r < SYNTH_ROLES; r++) {
                     if (span_holds(plan, r, s0, 3, SYNTH_HOLD_ANY))
-                        json_array_append_new(phasic, json_string(rt_synth_role_name(r)));
+                        rt_json_push(phasic, json_string(rt_synth_role_name(r)), ok);
                     if (span_holds(plan, r, s0, 3, SYNTH_HOLD_AASM))
-                        json_array_append_new(aasm, json_string(rt_synth_role_name(r)));
+                        rt_json_push(aasm, json_string(rt_synth_role_name(r)), ok);
                     if (span_holds(plan, r, s0, 3, SYNTH_HOLD_SINBAR))
-                        json_array_append_new(sinbar, json_string(rt_synth_role_name(r)));
+                        rt_json_push(sinbar, json_string(rt_synth_role_name(r)), ok);
                 }
                 if (plan->tonic[e])
-                    json_array_append_new(tonic, json_string(rt_synth_role_name(SYNTH_CHIN)));
-                json_object_set_new(o, "epoch", json_integer(e));
-                json_object_set_new(o, "mini", json_integer(m));
-                json_object_set_new(o, "onset_s", json_integer(s0));
-                json_object_set_new(o, "phasic", phasic);
-                json_object_set_new(o, "phasic_aasm", aasm);
-                json_object_set_new(o, "phasic_sinbar", sinbar);
-                json_object_set_new(o, "tonic", tonic);
-                json_object_set_new(o, "excluded", json_boolean(span_excluded(plan, s0, 3)));
-                json_array_append_new(minis, o);
+                    rt_json_push(tonic, json_string(rt_synth_role_name(SYNTH_CHIN)), ok);
+                rt_json_set(o, "epoch", json_integer(e), ok);
+                rt_json_set(o, "mini", json_integer(m), ok);
+                rt_json_set(o, "onset_s", json_integer(s0), ok);
+                rt_json_set(o, "phasic", phasic, ok);
+                rt_json_set(o, "phasic_aasm", aasm, ok);
+                rt_json_set(o, "phasic_sinbar", sinbar, ok);
+                rt_json_set(o, "tonic", tonic, ok);
+                rt_json_set(o, "excluded", json_boolean(span_excluded(plan, s0, 3)), ok);
+                rt_json_push(minis, o, ok);
             }
     }
     return minis;
@@ -307,91 +308,91 @@ static json_t *minis_json(const synth_plan *plan)
 
 /* Exactly what rt_synth_artifact_uv and rt_synth_chin_override add; a
  * switched-off artifact is null. */
-static json_t *artifacts_json(const synth_plan *plan)
+static json_t *artifacts_json(const synth_plan *plan, bool *ok)
 {
     const rt_synth_options *o = &plan->opt;
     json_t *a = json_object();
     static const char *const emg[SYNTH_ROLES] = {"chin", "arm-left", "arm-right", "leg-left", "leg-right"};
     if (o->mains_hz > 0.0 && o->mains_uv > 0.0) {
         json_t *m = json_object(), *comp = json_array(), *chs = json_array();
-        json_object_set_new(m, "line_hz", json_real(o->mains_hz));
+        rt_json_set(m, "line_hz", number(o->mains_hz), ok);
         double amp = o->mains_uv;
         for (int h = 1; h <= 1 + o->mains_harmonics; h++, amp *= 0.5) {
             json_t *c = json_object();
-            json_object_set_new(c, "hz", json_real(o->mains_hz * h));
-            json_object_set_new(c, "amplitude_uv", json_real(amp));
-            json_array_append_new(comp, c);
+            rt_json_set(c, "hz", number(o->mains_hz * h), ok);
+            rt_json_set(c, "amplitude_uv", number(amp), ok);
+            rt_json_push(comp, c, ok);
         }
-        json_object_set_new(m, "components", comp);
+        rt_json_set(m, "components", comp, ok);
         json_t *dropped = json_array();
         for (int h = 1; h <= 1 + o->mains_harmonics; h++)
             for (int r = 0; r < SYNTH_ROLES; r++)
                 if (!rt_synth_mains_reaches(plan, r, h)) {
                     json_t *d = json_object();
-                    json_object_set_new(d, "hz", json_real(o->mains_hz * h));
-                    json_object_set_new(d, "role", json_string(rt_synth_role_name(r)));
-                    json_array_append_new(dropped, d);
+                    rt_json_set(d, "hz", number(o->mains_hz * h), ok);
+                    rt_json_set(d, "role", json_string(rt_synth_role_name(r)), ok);
+                    rt_json_push(dropped, d, ok);
                 }
-        json_object_set_new(m, "dropped", dropped);
-        json_object_set_new(m, "phase", json_string("sine from 0 at the recording start"));
+        rt_json_set(m, "dropped", dropped, ok);
+        rt_json_set(m, "phase", json_string("sine from 0 at the recording start"), ok);
         for (int r = 0; r < SYNTH_ROLES; r++)
-            json_array_append_new(chs, json_string(emg[r]));
-        json_object_set_new(m, "roles", chs);
-        json_object_set_new(a, "mains", m);
+            rt_json_push(chs, json_string(emg[r]), ok);
+        rt_json_set(m, "roles", chs, ok);
+        rt_json_set(a, "mains", m, ok);
     } else {
-        json_object_set_new(a, "mains", json_null());
+        rt_json_set(a, "mains", json_null(), ok);
     }
     json_t *ecg = json_object(), *beats = json_array();
-    json_object_set_new(ecg, "heart_rate_bpm", json_real(rt_synth_heart_rate_bpm(o)));
-    json_object_set_new(ecg, "chin_r_uv", json_real(o->ecg_bleed_uv));
-    json_object_set_new(ecg, "limb_r_uv", json_real(o->ecg_bleed_limb_uv));
+    rt_json_set(ecg, "heart_rate_bpm", number(rt_synth_heart_rate_bpm(o)), ok);
+    rt_json_set(ecg, "chin_r_uv", number(o->ecg_bleed_uv), ok);
+    rt_json_set(ecg, "limb_r_uv", number(o->ecg_bleed_limb_uv), ok);
     for (size_t k = 0; k < plan->n_beats; k++) {
         double t = (double)plan->beats[k] / SYNTH_ECG_RATE_HZ;
         if (t < (double)plan->n_seconds)
-            json_array_append_new(beats, json_real(t));
+            rt_json_push(beats, number(t), ok);
     }
-    json_object_set_new(ecg, "r_s", beats);
-    json_object_set_new(a, "ecg", ecg);
+    rt_json_set(ecg, "r_s", beats, ok);
+    rt_json_set(a, "ecg", ecg, ok);
     if (o->clip_duration_s > 0.0) {
         json_t *c = json_object();
-        json_object_set_new(c, "role", json_string("chin"));
-        json_object_set_new(c, "start_s", json_real(o->clip_start_s));
-        json_object_set_new(c, "end_s", json_real(o->clip_start_s + o->clip_duration_s));
-        json_object_set_new(c, "swing_uv", json_real(SYNTH_CLIP_SWING_UV));
-        json_object_set_new(c, "swing_hz", json_real(SYNTH_CLIP_SWING_HZ));
-        json_object_set_new(c, "range_uv", json_real(rt_synth_emg_range_uv(plan)));
-        json_object_set_new(a, "clipping", c);
+        rt_json_set(c, "role", json_string("chin"), ok);
+        rt_json_set(c, "start_s", number(o->clip_start_s), ok);
+        rt_json_set(c, "end_s", number(o->clip_start_s + o->clip_duration_s), ok);
+        rt_json_set(c, "swing_uv", number(SYNTH_CLIP_SWING_UV), ok);
+        rt_json_set(c, "swing_hz", number(SYNTH_CLIP_SWING_HZ), ok);
+        rt_json_set(c, "range_uv", number(rt_synth_emg_range_uv(plan)), ok);
+        rt_json_set(a, "clipping", c, ok);
     } else {
-        json_object_set_new(a, "clipping", json_null());
+        rt_json_set(a, "clipping", json_null(), ok);
     }
     if (o->detach_s > 0.0) {
         json_t *d = json_object();
-        json_object_set_new(d, "role", json_string("chin"));
-        json_object_set_new(d, "from_s", json_real(o->detach_s));
-        json_object_set_new(d, "value_uv", json_real(0.0));
-        json_object_set_new(a, "detached", d);
+        rt_json_set(d, "role", json_string("chin"), ok);
+        rt_json_set(d, "from_s", number(o->detach_s), ok);
+        rt_json_set(d, "value_uv", number(0.0), ok);
+        rt_json_set(a, "detached", d, ok);
     } else {
-        json_object_set_new(a, "detached", json_null());
+        rt_json_set(a, "detached", json_null(), ok);
     }
     json_t *pops = json_array();
     for (size_t i = 0; i < plan->n_pops; i++) {
         json_t *p = json_object();
-        json_object_set_new(p, "role", json_string("chin"));
-        json_object_set_new(p, "onset_s", json_real(plan->pops[i].onset_s));
-        json_object_set_new(p, "amplitude_uv", json_real(plan->pops[i].amplitude_uv));
-        json_object_set_new(p, "tau_s", json_real(plan->pops[i].tau_s));
-        json_array_append_new(pops, p);
+        rt_json_set(p, "role", json_string("chin"), ok);
+        rt_json_set(p, "onset_s", number(plan->pops[i].onset_s), ok);
+        rt_json_set(p, "amplitude_uv", number(plan->pops[i].amplitude_uv), ok);
+        rt_json_set(p, "tau_s", number(plan->pops[i].tau_s), ok);
+        rt_json_push(pops, p, ok);
     }
-    json_object_set_new(a, "pops", pops);
+    rt_json_set(a, "pops", pops, ok);
     return a;
 }
 
 /* The 3-s or 2-s minis (onsets) that [a, b) overlaps. */
-static json_t *minis_of(double a, double b, int len)
+static json_t *minis_of(double a, double b, int len, bool *ok)
 {
     json_t *v = json_array();
     for (long m = (long)floor(a / len); (double)(m * len) < b; m++)
-        json_array_append_new(v, json_integer(m * len));
+        rt_json_push(v, json_integer(m * len), ok);
     return v;
 }
 
@@ -404,27 +405,27 @@ static double mean_gain(const synth_plan *plan, double a, double b)
 /* Every placed burst: where, how long, how loud (rect_uv before drift,
  * ratio to its background, mean gain over it), which rules count it and
  * which 3-s and 2-s minis it marks. */
-static json_t *bursts_json(const synth_plan *plan)
+static json_t *bursts_json(const synth_plan *plan, bool *ok)
 {
     json_t *bursts = json_array();
     for (size_t i = 0; i < plan->n_bursts; i++) {
         const synth_burst *b = &plan->bursts[i];
         double end = b->onset_s + b->duration_s;
         json_t *o = json_object(), *by_rule = json_object();
-        json_object_set_new(o, "role", json_string(rt_synth_role_name(b->role)));
-        json_object_set_new(o, "onset_s", json_real(b->onset_s));
-        json_object_set_new(o, "duration_s", json_real(b->duration_s));
-        json_object_set_new(o, "rect_uv", json_real(b->rect_uv));
-        json_object_set_new(o, "arousal_bound", json_boolean(b->arousal_bound));
-        json_object_set_new(o, "ratio", json_real(b->ratio));
-        json_object_set_new(o, "gain", json_real(mean_gain(plan, b->onset_s, end)));
+        rt_json_set(o, "role", json_string(rt_synth_role_name(b->role)), ok);
+        rt_json_set(o, "onset_s", number(b->onset_s), ok);
+        rt_json_set(o, "duration_s", number(b->duration_s), ok);
+        rt_json_set(o, "rect_uv", number(b->rect_uv), ok);
+        rt_json_set(o, "arousal_bound", json_boolean(b->arousal_bound), ok);
+        rt_json_set(o, "ratio", number(b->ratio), ok);
+        rt_json_set(o, "gain", number(mean_gain(plan, b->onset_s, end)), ok);
         unsigned rules = rt_synth_burst_rules(b);
         for (int r = 0; r < SYNTH_RULES; r++)
-            json_object_set_new(by_rule, rt_synth_rule(r)->name, json_boolean(rules >> r & 1u));
-        json_object_set_new(o, "counts", by_rule);
-        json_object_set_new(o, "minis_3s", minis_of(b->onset_s, end, 3));
-        json_object_set_new(o, "minis_2s", minis_of(b->onset_s, end, 2));
-        json_array_append_new(bursts, o);
+            rt_json_set(by_rule, rt_synth_rule(r)->name, json_boolean(rules >> r & 1u), ok);
+        rt_json_set(o, "counts", by_rule, ok);
+        rt_json_set(o, "minis_3s", minis_of(b->onset_s, end, 3, ok), ok);
+        rt_json_set(o, "minis_2s", minis_of(b->onset_s, end, 2, ok), ok);
+        rt_json_push(bursts, o, ok);
     }
     return bursts;
 }
@@ -432,22 +433,22 @@ static json_t *bursts_json(const synth_plan *plan)
 /* Every tonic stretch; montreal_half_windows lists the 20-s windows (tiled
  * from the bout start) that the stretch covers by exactly half: not tonic by
  * either definition (> 50 % or whole), but a measurement can fall either way. */
-static json_t *tonics_json(const synth_plan *plan)
+static json_t *tonics_json(const synth_plan *plan, bool *ok)
 {
     static const char *const sources[] = {"profile", "run", "whole-bout"};
     json_t *tonics = json_array();
     for (size_t i = 0; i < plan->n_tonics; i++) {
         const synth_tonic *t = &plan->tonics[i];
         json_t *o = json_object(), *half = json_array();
-        json_object_set_new(o, "role", json_string(rt_synth_role_name(SYNTH_CHIN)));
-        json_object_set_new(o, "onset_s", json_real(t->onset_s));
-        json_object_set_new(o, "duration_s", json_real(t->duration_s));
-        json_object_set_new(o, "rect_uv", json_real(t->rect_uv));
-        json_object_set_new(o, "ratio", json_real(t->ratio));
-        json_object_set_new(o, "bout", json_integer(t->bout));
-        json_object_set_new(o, "source", json_string(sources[t->source]));
-        json_object_set_new(o, "gain_start", json_real(rt_synth_gain(plan, t->onset_s)));
-        json_object_set_new(o, "gain_end", json_real(rt_synth_gain(plan, t->onset_s + t->duration_s)));
+        rt_json_set(o, "role", json_string(rt_synth_role_name(SYNTH_CHIN)), ok);
+        rt_json_set(o, "onset_s", number(t->onset_s), ok);
+        rt_json_set(o, "duration_s", number(t->duration_s), ok);
+        rt_json_set(o, "rect_uv", number(t->rect_uv), ok);
+        rt_json_set(o, "ratio", number(t->ratio), ok);
+        rt_json_set(o, "bout", json_integer(t->bout), ok);
+        rt_json_set(o, "source", json_string(sources[t->source]), ok);
+        rt_json_set(o, "gain_start", number(rt_synth_gain(plan, t->onset_s)), ok);
+        rt_json_set(o, "gain_end", number(rt_synth_gain(plan, t->onset_s + t->duration_s)), ok);
         if (t->bout >= 0) {
             const synth_bout *bout = &plan->bouts[t->bout];
             double b0 = (double)bout->first_epoch * SYNTH_EPOCH_S;
@@ -456,148 +457,139 @@ static json_t *tonics_json(const synth_plan *plan)
                 double w0 = b0 + 20.0 * (double)w;
                 double cover = fmin(w0 + 20.0, t->onset_s + t->duration_s) - fmax(w0, t->onset_s);
                 if (cover == 10.0)
-                    json_array_append_new(half, json_real(w0));
+                    rt_json_push(half, number(w0), ok);
             }
         }
-        json_object_set_new(o, "montreal_half_windows", half);
-        json_array_append_new(tonics, o);
+        rt_json_set(o, "montreal_half_windows", half, ok);
+        rt_json_push(tonics, o, ok);
     }
     return tonics;
 }
 
 /* The difficulty switches as used, and what they set. */
-static json_t *difficulty_json(const synth_plan *plan)
+static json_t *difficulty_json(const synth_plan *plan, bool *ok)
 {
     const rt_synth_options *o = &plan->opt;
     json_t *d = json_object(), *rates = json_object(), *rules = json_object(), *singles = json_array();
-    json_object_set_new(d, "tonic_run_epochs", json_integer(o->tonic_run_epochs));
-    json_object_set_new(d, "tonic_whole_bout", json_integer(o->tonic_whole_bout));
-    json_object_set_new(d, "tonic_ratio", o->tonic_ratio > 0.0 ? json_real(o->tonic_ratio) : json_null());
-    json_object_set_new(d, "drift_end", json_real(o->drift_end > 0.0 ? o->drift_end : 1.0));
-    json_object_set_new(d, "drift_law", json_string("gain(t) = drift_end ^ (t / night_s)"));
-    json_object_set_new(d, "night_s", json_integer(plan->n_seconds));
-    json_object_set_new(d, "chin_rem_scale", json_real(plan->chin_rem_scale));
-    json_object_set_new(d, "short_bursts", json_boolean(o->short_bursts));
+    rt_json_set(d, "tonic_run_epochs", json_integer(o->tonic_run_epochs), ok);
+    rt_json_set(d, "tonic_whole_bout", json_integer(o->tonic_whole_bout), ok);
+    rt_json_set(d, "tonic_ratio", o->tonic_ratio > 0.0 ? number(o->tonic_ratio) : json_null(), ok);
+    rt_json_set(d, "drift_end", number(o->drift_end > 0.0 ? o->drift_end : 1.0), ok);
+    rt_json_set(d, "drift_law", json_string("gain(t) = drift_end ^ (t / night_s)"), ok);
+    rt_json_set(d, "night_s", json_integer(plan->n_seconds), ok);
+    rt_json_set(d, "chin_rem_scale", number(plan->chin_rem_scale), ok);
+    rt_json_set(d, "short_bursts", json_boolean(o->short_bursts), ok);
     double lo, hi;
     rt_synth_burst_ratio_range(o, &lo, &hi);
     json_t *range = json_array();
-    json_array_append_new(range, json_real(lo));
-    json_array_append_new(range, json_real(hi));
-    json_object_set_new(d, "burst_ratio", range);
+    rt_json_push(range, number(lo), ok);
+    rt_json_push(range, number(hi), ok);
+    rt_json_set(d, "burst_ratio", range, ok);
     for (int i = 0; i < plan->n_single; i++)
-        json_array_append_new(singles, json_integer(plan->single_epochs[i]));
-    json_object_set_new(d, "single_epoch_bouts", singles);
+        rt_json_push(singles, json_integer(plan->single_epochs[i]), ok);
+    rt_json_set(d, "single_epoch_bouts", singles, ok);
     for (int r = 0; r < SYNTH_ROLES; r++)
-        json_object_set_new(rates, rt_synth_role_name(r), json_integer(plan->emg_rate_hz[r]));
-    json_object_set_new(d, "emg_rate_hz", rates);
-    json_object_set_new(d, "mixed_rates", json_boolean(o->mixed_rates));
-    json_object_set_new(d, "emg_range_uv", json_real(rt_synth_emg_range_uv(plan)));
+        rt_json_set(rates, rt_synth_role_name(r), json_integer(plan->emg_rate_hz[r]), ok);
+    rt_json_set(d, "emg_rate_hz", rates, ok);
+    rt_json_set(d, "mixed_rates", json_boolean(o->mixed_rates), ok);
+    rt_json_set(d, "emg_range_uv", number(rt_synth_emg_range_uv(plan)), ok);
     if (o->spiky) {
         json_t *sp = json_object(), *scale = json_object();
-        json_object_set_new(sp, "model", json_string("motor-unit spike trains plus Gaussian noise"));
-        json_object_set_new(sp, "units_per_channel", json_integer(SYNTH_SPIKY_UNITS));
-        json_object_set_new(sp, "scale_method", json_string("calibration run, 600 s, fixed seed"));
+        rt_json_set(sp, "model", json_string("motor-unit spike trains plus Gaussian noise"), ok);
+        rt_json_set(sp, "units_per_channel", json_integer(SYNTH_SPIKY_UNITS), ok);
+        rt_json_set(sp, "scale_method", json_string("calibration run, 600 s, fixed seed"), ok);
         for (int r = 0; r < SYNTH_ROLES; r++)
-            json_object_set_new(scale, rt_synth_role_name(r), json_real(plan->spiky[r].scale));
-        json_object_set_new(sp, "scale", scale);
-        json_object_set_new(d, "spiky", sp);
+            rt_json_set(scale, rt_synth_role_name(r), number(plan->spiky[r].scale), ok);
+        rt_json_set(sp, "scale", scale, ok);
+        rt_json_set(d, "spiky", sp, ok);
     } else {
-        json_object_set_new(d, "spiky", json_null());
+        rt_json_set(d, "spiky", json_null(), ok);
     }
     for (int r = 0; r < SYNTH_RULES; r++) {
         const synth_rule *ru = rt_synth_rule(r);
         json_t *x = json_object();
-        json_object_set_new(x, "k", json_real(ru->k));
-        json_object_set_new(x, "min_s", json_real(ru->min_s));
-        json_object_set_new(x, "max_s", json_real(ru->max_s));
-        json_object_set_new(rules, ru->name, x);
+        rt_json_set(x, "k", number(ru->k), ok);
+        rt_json_set(x, "min_s", number(ru->min_s), ok);
+        rt_json_set(x, "max_s", number(ru->max_s), ok);
+        rt_json_set(rules, ru->name, x, ok);
     }
-    json_object_set_new(d, "rules", rules);
+    rt_json_set(d, "rules", rules, ok);
     return d;
 }
 
-static json_t *truth_json(const synth_plan *plan)
+static json_t *truth_json(const synth_plan *plan, bool *ok)
 {
     json_t *root = json_object();
-    json_object_set_new(root, "schema", json_string("remtone-truth/1"));
-    json_object_set_new(root, "profile", json_string(rt_synth_profile_name(plan->opt.profile)));
+    rt_json_set(root, "schema", json_string("remtone-truth/1"), ok);
+    rt_json_set(root, "profile", json_string(rt_synth_profile_name(plan->opt.profile)), ok);
     /* Seeds above INT64_MAX do not fit a JSON integer in jansson; they are
      * written as decimal strings. */
     if (plan->opt.seed <= (uint64_t)INT64_MAX) {
-        json_object_set_new(root, "seed", json_integer((json_int_t)plan->opt.seed));
+        rt_json_set(root, "seed", json_integer((json_int_t)plan->opt.seed), ok);
     } else {
         char buf[32];
         snprintf(buf, sizeof buf, "%llu", (unsigned long long)plan->opt.seed);
-        json_object_set_new(root, "seed", json_string(buf));
+        rt_json_set(root, "seed", json_string(buf), ok);
     }
-    json_object_set_new(root, "hours", json_real(plan->opt.hours));
-    json_object_set_new(root, "epoch_s", json_integer(SYNTH_EPOCH_S));
+    rt_json_set(root, "hours", number(plan->opt.hours), ok);
+    rt_json_set(root, "epoch_s", json_integer(SYNTH_EPOCH_S), ok);
 
     json_t *ch = json_object();
     static const char *labels[] = {"Chin1-Chin2", "FDS L", "FDS R", "Tib L", "Tib R"};
     for (int r = 0; r < SYNTH_ROLES; r++)
-        json_object_set_new(ch, rt_synth_role_name(r), json_string(labels[r]));
-    json_object_set_new(ch, "ecg", json_string("ECG"));
-    json_object_set_new(root, "channels", ch);
+        rt_json_set(ch, rt_synth_role_name(r), json_string(labels[r]), ok);
+    rt_json_set(ch, "ecg", json_string("ECG"), ok);
+    rt_json_set(root, "channels", ch, ok);
 
     int rem_epochs = 0;
     json_t *bouts = json_array();
     for (int b = 0; b < plan->n_bouts; b++) {
         json_t *o = json_object();
-        json_object_set_new(o, "first_epoch", json_integer(plan->bouts[b].first_epoch));
-        json_object_set_new(o, "epochs", json_integer(plan->bouts[b].epochs));
-        json_object_set_new(o, "chin_bg_uv", json_real(plan->bouts[b].chin_bg_uv));
-        json_array_append_new(bouts, o);
+        rt_json_set(o, "first_epoch", json_integer(plan->bouts[b].first_epoch), ok);
+        rt_json_set(o, "epochs", json_integer(plan->bouts[b].epochs), ok);
+        rt_json_set(o, "chin_bg_uv", number(plan->bouts[b].chin_bg_uv), ok);
+        rt_json_push(bouts, o, ok);
         rem_epochs += plan->bouts[b].epochs;
     }
     json_t *rem = json_object();
-    json_object_set_new(rem, "epochs", json_integer(rem_epochs));
-    json_object_set_new(rem, "minutes", json_real(rem_epochs * 0.5));
-    json_object_set_new(rem, "bouts", bouts);
-    json_object_set_new(root, "rem", rem);
+    rt_json_set(rem, "epochs", json_integer(rem_epochs), ok);
+    rt_json_set(rem, "minutes", number(rem_epochs * 0.5), ok);
+    rt_json_set(rem, "bouts", bouts, ok);
+    rt_json_set(root, "rem", rem, ok);
 
-    json_object_set_new(root, "bursts", bursts_json(plan));
-    json_object_set_new(root, "tonic", tonics_json(plan));
+    rt_json_set(root, "bursts", bursts_json(plan, ok), ok);
+    rt_json_set(root, "tonic", tonics_json(plan, ok), ok);
 
     json_t *events = json_array();
     for (size_t i = 0; i < plan->n_events; i++) {
         json_t *o = json_object();
-        json_object_set_new(o, "type", json_string(rt_synth_event_name(plan->events[i].type)));
-        json_object_set_new(o, "start_s", json_integer(plan->events[i].start_s));
-        json_object_set_new(o, "duration_s", json_integer(plan->events[i].duration_s));
-        json_array_append_new(events, o);
+        rt_json_set(o, "type", json_string(rt_synth_event_name(plan->events[i].type)), ok);
+        rt_json_set(o, "start_s", json_integer(plan->events[i].start_s), ok);
+        rt_json_set(o, "duration_s", json_integer(plan->events[i].duration_s), ok);
+        rt_json_push(events, o, ok);
     }
-    json_object_set_new(root, "events", events);
-    json_object_set_new(root, "artifacts", artifacts_json(plan));
-    json_object_set_new(root, "difficulty", difficulty_json(plan));
-    json_object_set_new(root, "minis_3s", minis_json(plan));
+    rt_json_set(root, "events", events, ok);
+    rt_json_set(root, "artifacts", artifacts_json(plan, ok), ok);
+    rt_json_set(root, "difficulty", difficulty_json(plan, ok), ok);
+    rt_json_set(root, "minis_3s", minis_json(plan, ok), ok);
 
     synth_indices ix, ix_ex;
     rt_synth_indices_compute(plan, 0, &ix);
     rt_synth_indices_compute(plan, 1, &ix_ex);
-    json_object_set_new(root, "indices", indices_json(&ix));
-    json_object_set_new(root, "indices_events_excluded", indices_json(&ix_ex));
+    rt_json_set(root, "indices", indices_json(&ix, ok), ok);
+    rt_json_set(root, "indices_events_excluded", indices_json(&ix_ex, ok), ok);
     return root;
 }
 
 rt_status rt_synth_write_truth(const synth_plan *plan, const char *path, rt_error *err)
 {
-    json_t *root = truth_json(plan);
+    bool ok = true;
+    json_t *root = rt_json_done(truth_json(plan, &ok), ok);
     if (!root)
         return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory building the truth", path);
-    rt_output out;
-    rt_status st = rt_output_begin(&out, path, 1, err);
-    if (st != RT_OK) {
-        json_decref(root);
-        return st;
-    }
     /* 12 significant digits: exact for the 1-ms / 0.001-uV grid of the
      * placement, and stable across platforms. */
-    int rc = json_dumpf(root, out.file, JSON_INDENT(1) | JSON_REAL_PRECISION(12));
+    rt_status st = rt_json_write(root, path, JSON_INDENT(1) | JSON_REAL_PRECISION(12), err);
     json_decref(root);
-    if (rc != 0 || fputc('\n', out.file) == EOF) {
-        rt_output_abort(&out);
-        return rt_fail(err, RT_ERR_IO, "%s: cannot write the truth", path);
-    }
-    return rt_output_commit(&out, err);
+    return st;
 }

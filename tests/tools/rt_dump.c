@@ -91,8 +91,8 @@ int main(int argc, char **argv)
         return 1;
     }
     rt_error err;
-    rt_recording *rec = rt_recording_open(argv[1], &err);
-    if (!rec) {
+    rt_recording *rec = NULL;
+    if (rt_recording_open(argv[1], &rec, &err) != RT_OK) {
         fprintf(stderr, "rt_dump: %s: %s\n", rt_status_name(err.status), err.message);
         return 2;
     }

@@ -151,8 +151,8 @@ int main(int argc, char **argv)
             usage();
     }
     rt_error err;
-    rt_bandpass *bp = rt_bandpass_new_with_block(&spec, block, &err);
-    if (!bp) {
+    rt_bandpass *bp = NULL;
+    if (rt_bandpass_new_with_block(&spec, block, &bp, &err) != RT_OK) {
         fprintf(stderr, "rt_filter: %s\n", err.message);
         return err.status == RT_ERR_USAGE ? 1 : 2;
     }

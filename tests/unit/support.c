@@ -12,6 +12,24 @@
 #include <sys/stat.h>
 #include <unistd.h>
 
+rt_timeline *rt_test_timeline(void)
+{
+    rt_timeline *tl = NULL;
+    rt_error err;
+    if (rt_timeline_new(&tl, &err) != RT_OK)
+        fail_msg("rt_timeline_new: %s", err.message);
+    return tl;
+}
+
+rt_labelmap *rt_test_labelmap(void)
+{
+    rt_labelmap *map = NULL;
+    rt_error err;
+    if (rt_labelmap_new(&map, &err) != RT_OK)
+        fail_msg("rt_labelmap_new: %s", err.message);
+    return map;
+}
+
 static void remove_tree(const char *path)
 {
     char cmd[4200];
@@ -121,8 +139,8 @@ double rt_test_gauss(void)
 void rt_test_bandpass(double *x, size_t n, const rt_bandpass_spec *spec)
 {
     rt_error err;
-    rt_bandpass *bp = rt_bandpass_new(spec, &err);
-    if (!bp)
+    rt_bandpass *bp = NULL;
+    if (rt_bandpass_new(spec, &bp, &err) != RT_OK)
         fail_msg("rt_bandpass_new: %s", err.message);
     assert_int_equal(rt_bandpass_apply(bp, x, n, &err), RT_OK);
     rt_bandpass_free(bp);
@@ -188,12 +206,12 @@ void rt_test_score_synthetic(const rt_synth_options *o, const char *dir, bool wi
         fail_msg("%s", err.message);
     char path[4200];
     snprintf(path, sizeof path, "%s/night.edf", dir);
-    *rec = rt_recording_open(path, &err);
-    if (!*rec)
+    *rec = NULL;
+    if (rt_recording_open(path, rec, &err) != RT_OK)
         fail_msg("%s", err.message);
     rt_role_map roles;
     assert_int_equal(rt_roles_resolve(*rec, NULL, &roles, &err), RT_OK);
-    rt_timeline *tl = rt_timeline_new();
+    rt_timeline *tl = rt_test_timeline();
     snprintf(path, sizeof path, "%s/stages.csv", dir);
     assert_int_equal(rt_timeline_load_stages_csv(tl, path, NULL, &err), RT_OK);
     if (with_events) {
@@ -255,8 +273,8 @@ double *rt_test_read_channel(const char *dir, const char *label, double t0_s, do
     char path[4200];
     snprintf(path, sizeof path, "%s/night.edf", dir);
     rt_error err;
-    rt_recording *rec = rt_recording_open(path, &err);
-    if (!rec)
+    rt_recording *rec = NULL;
+    if (rt_recording_open(path, &rec, &err) != RT_OK)
         fail_msg("%s", err.message);
     int ch = rt_recording_find_channel(rec, label);
     assert_true(ch >= 0);

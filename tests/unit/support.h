@@ -61,6 +61,11 @@ void rt_test_edf_put_main(unsigned char *h, const rt_test_edf_main *m);
 #include "remtone/remtone.h"
 #include "dsp/bandpass.h"
 
+/* An empty timeline and an empty label map (the test fails when they cannot
+ * be made); the caller frees them. */
+rt_timeline *rt_test_timeline(void);
+rt_labelmap *rt_test_labelmap(void);
+
 /* A seeded xorshift64* stream (Vigna 2016, constants from memory) with
  * uniform (0, 1) and Box-Muller Gaussian draws; seed it with rt_test_seed(). */
 void rt_test_rng_seed(uint64_t seed);

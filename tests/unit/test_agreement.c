@@ -111,7 +111,7 @@ static void night_comparison(void **state)
     (void)state;
     rt_error err;
     rt_night *night = hand_night();
-    rt_timeline *tl = rt_timeline_new();
+    rt_timeline *tl = rt_test_timeline();
     assert_int_equal(rt_timeline_add_stage_run(tl, 600, 30, RT_STAGE_R, "t", 0, &err), RT_OK);
     snprintf(tl->scorer, sizeof tl->scorer, "Scorer Z");
     /* The scorer's chin: phasic on minis 0, 1 and 4; tonic on minis 3 and 5;
@@ -192,7 +192,7 @@ static void night_comparison(void **state)
     free(text);
 
     /* Without a manual scoring: not present, nothing compared. */
-    rt_timeline *plain = rt_timeline_new();
+    rt_timeline *plain = rt_test_timeline();
     rt_night_agreement(night, plain);
     assert_false(night->agreement.present);
     assert_int_equal(night->agreement.cell[RT_ROLE_CHIN][RT_AGREE_ANY].n, 0);

@@ -88,8 +88,8 @@ static void every_onset_is_in_the_file(void **state)
     rt_error err;
     if (rt_night_write_annotations(n, f->rec, path, &err) != RT_OK)
         fail_msg("%s", err.message);
-    rt_recording *a = rt_recording_open(path, &err);
-    if (!a)
+    rt_recording *a = NULL;
+    if (rt_recording_open(path, &a, &err) != RT_OK)
         fail_msg("%s", err.message);
     assert_int_equal(rt_recording_kind(a), RT_FILE_EDFPLUS);
     assert_int_equal(rt_recording_channel_count(a), 0);

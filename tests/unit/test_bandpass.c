@@ -46,8 +46,8 @@ static double *copy_of(const double *x, size_t n)
 static rt_bandpass *make(const rt_bandpass_spec *spec, size_t block)
 {
     rt_error err;
-    rt_bandpass *bp = rt_bandpass_new_with_block(spec, block, &err);
-    if (!bp)
+    rt_bandpass *bp = NULL;
+    if (rt_bandpass_new_with_block(spec, block, &bp, &err) != RT_OK)
         fail_msg("rt_bandpass_new: %s", err.message);
     return bp;
 }
@@ -212,8 +212,8 @@ static void expect_refused(const rt_bandpass_spec *spec, const char *why)
 {
     rt_error err;
     rt_error_clear(&err);
-    rt_bandpass *bp = rt_bandpass_new(spec, &err);
-    if (bp) {
+    rt_bandpass *bp = NULL;
+    if (rt_bandpass_new(spec, &bp, &err) == RT_OK) {
         rt_bandpass_free(bp);
         fail_msg("accepted a spec with %s", why);
     }
@@ -299,8 +299,8 @@ static void *run_job(void *arg)
 {
     job *j = arg;
     rt_bandpass_spec s = rt_bandpass_spec_defaults(512);
-    rt_bandpass *bp = rt_bandpass_new_with_block(&s, j->block, NULL);
-    if (bp) {
+    rt_bandpass *bp = NULL;
+    if (rt_bandpass_new_with_block(&s, j->block, &bp, NULL) == RT_OK) {
         memcpy(j->output, j->input, j->n * sizeof *j->output);
         if (rt_bandpass_apply(bp, j->output, j->n, NULL) != RT_OK)
             j->output[0] = NAN;
@@ -355,10 +355,9 @@ static void clone_filters_identically(void **state)
     rt_bandpass_spec s = rt_bandpass_spec_defaults(500);
     s.n_notches = 1;
     s.notch_hz[0] = 50.0;
-    rt_bandpass *bp = rt_bandpass_new(&s, NULL);
-    assert_non_null(bp);
-    rt_bandpass *c = rt_bandpass_clone(bp, NULL);
-    assert_non_null(c);
+    rt_bandpass *bp = NULL, *c = NULL;
+    assert_int_equal(rt_bandpass_new(&s, &bp, NULL), RT_OK);
+    assert_int_equal(rt_bandpass_clone(bp, &c, NULL), RT_OK);
     assert_int_equal(rt_bandpass_block_samples(c), rt_bandpass_block_samples(bp));
     assert_int_equal(rt_bandpass_margin_samples(c), rt_bandpass_margin_samples(bp));
     filter(bp, a, n);

@@ -31,7 +31,12 @@ static rt_manifest *load_text(const char *dir, const char *text, rt_error *err)
     char path[1024];
     snprintf(path, sizeof path, "%s", rt_test_text_file(dir, "manifest.csv", text));
     rt_error_clear(err);
-    return rt_manifest_load(path, err);
+    rt_manifest *m = NULL;
+    rt_status st = rt_manifest_load(path, &m, err);
+    /* the one convention: a result exactly when the status is RT_OK */
+    assert_true((st == RT_OK) == (m != NULL));
+    assert_true(st == RT_OK || err->status == st);
+    return m;
 }
 
 static void test_manifest_reads_rows(void **state)

@@ -121,8 +121,8 @@ static rt_recording *open_ok(const char *path)
 {
     rt_error err;
     rt_error_clear(&err);
-    rt_recording *rec = rt_recording_open(path, &err);
-    if (!rec)
+    rt_recording *rec = NULL;
+    if (rt_recording_open(path, &rec, &err) != RT_OK)
         fail_msg("%s: %s", path, err.message);
     return rec;
 }
@@ -232,7 +232,9 @@ static void continuous_records_must_be_contiguous(void **state)
     write_edfplus(path, 4, 30.0, 0.0, NULL, 0, tk);
     rt_error err;
     rt_error_clear(&err);
-    assert_null(rt_recording_open(path, &err));
+    rt_recording *rec = (rt_recording *)&err; /* must be reset to NULL */
+    assert_int_equal(rt_recording_open(path, &rec, &err), RT_ERR_RECORDING);
+    assert_null(rec);
     assert_int_equal(err.status, RT_ERR_RECORDING);
     assert_non_null(strstr(err.message, "gap.edf"));
 }
@@ -263,7 +265,7 @@ static void stages_and_events_from_annotations(void **state)
     snprintf(path, sizeof path, "%s", file_in(dir, "night.edf"));
     write_edfplus(path, 8, 30.0, 0.0, NIGHT_TALS, sizeof NIGHT_TALS / sizeof NIGHT_TALS[0], NULL);
     rt_recording *rec = open_ok(path);
-    rt_timeline *tl = rt_timeline_new();
+    rt_timeline *tl = rt_test_timeline();
     rt_error err;
     rt_error_clear(&err);
     if (rt_timeline_load_annotations(tl, rec, NULL, true, true, &err) != RT_OK)
@@ -289,7 +291,7 @@ static void stages_and_events_from_annotations(void **state)
     rt_timeline_free(tl);
 
     /* Stages only: the events are left out. */
-    tl = rt_timeline_new();
+    tl = rt_test_timeline();
     assert_int_equal(rt_timeline_load_annotations(tl, rec, NULL, true, false, &err), RT_OK);
     assert_int_equal(tl->n_events, 0);
     assert_int_equal(tl->n_epochs, sizeof want);
@@ -297,7 +299,7 @@ static void stages_and_events_from_annotations(void **state)
     rt_recording_close(rec);
 
     /* The same file given as a staging file is recognised by its header. */
-    tl = rt_timeline_new();
+    tl = rt_test_timeline();
     if (rt_timeline_load_staging(tl, path, NULL, &err) != RT_OK)
         fail_msg("%s", err.message);
     assert_memory_equal(tl->stages, want, sizeof want);
@@ -313,7 +315,7 @@ static rt_status load_night(const char *dir, const char *name, const tal_bytes *
     snprintf(path, sizeof path, "%s", file_in(dir, name));
     write_edfplus(path, n_records, 30.0, 0.0, tals, n, NULL);
     rt_recording *rec = open_ok(path);
-    rt_timeline *tl = rt_timeline_new();
+    rt_timeline *tl = rt_test_timeline();
     rt_error_clear(err);
     rt_status st = rt_timeline_load_annotations(tl, rec, NULL, true, true, err);
     if (st != RT_OK)

@@ -28,12 +28,12 @@ static rt_night *score_dir(const char *dir, const char *stages)
     rt_error err;
     char path[4200];
     snprintf(path, sizeof path, "%s/night.edf", dir);
-    rt_recording *rec = rt_recording_open(path, &err);
-    if (!rec)
+    rt_recording *rec = NULL;
+    if (rt_recording_open(path, &rec, &err) != RT_OK)
         fail_msg("%s", err.message);
     rt_role_map roles;
     assert_int_equal(rt_roles_resolve(rec, NULL, &roles, &err), RT_OK);
-    rt_timeline *tl = rt_timeline_new();
+    rt_timeline *tl = rt_test_timeline();
     snprintf(path, sizeof path, "%s/stages.csv", dir);
     assert_int_equal(rt_timeline_load_stages_csv(tl, stages ? stages : path, NULL, &err), RT_OK);
     rt_night *night = NULL;
@@ -446,8 +446,8 @@ static void bout_edges_change_nothing(void **state)
     rt_night *b = score_dir(d, restaged(d, "shifted.csv", first_rem_epoch_of_bouts));
     snprintf(path, sizeof path, "%s/night.edf", d);
     rt_error err;
-    rt_recording *rec = rt_recording_open(path, &err);
-    assert_non_null(rec);
+    rt_recording *rec = NULL;
+    assert_int_equal(rt_recording_open(path, &rec, &err), RT_OK);
     rt_night_tracer *ta = NULL, *tb = NULL;
     assert_int_equal(rt_night_tracer_open(rec, a, &ta, &err), RT_OK);
     assert_int_equal(rt_night_tracer_open(rec, b, &tb, &err), RT_OK);
@@ -533,8 +533,8 @@ static void page_traces_are_the_scorers(void **state)
     rt_night *n = score_dir(d, NULL);
     snprintf(path, sizeof path, "%s/night.edf", d);
     rt_error err;
-    rt_recording *rec = rt_recording_open(path, &err);
-    assert_non_null(rec);
+    rt_recording *rec = NULL;
+    assert_int_equal(rt_recording_open(path, &rec, &err), RT_OK);
     rt_night_tracer *t = NULL;
     assert_int_equal(rt_night_tracer_open(rec, n, &t, &err), RT_OK);
     size_t compared = 0, differ = 0;

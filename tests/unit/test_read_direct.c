@@ -173,8 +173,8 @@ static void compare_file(const file_spec *f)
 {
     const char *path = build_file(f);
     rt_error err;
-    rt_recording *rec = rt_recording_open(path, &err);
-    if (!rec)
+    rt_recording *rec = NULL;
+    if (rt_recording_open(path, &rec, &err) != RT_OK)
         fail_msg("%s", err.message);
     struct edf_hdr_struct h;
     if (edfopen_file_readonly(path, &h, EDFLIB_DO_NOT_READ_ANNOTATIONS) != 0)
@@ -317,8 +317,8 @@ static void threads_read_one_recording(void **state)
     rt_test_rng_seed(seed + 4);
     const char *path = build_file(&f);
     rt_error err;
-    rt_recording *rec = rt_recording_open(path, &err);
-    if (!rec)
+    rt_recording *rec = NULL;
+    if (rt_recording_open(path, &rec, &err) != RT_OK)
         fail_msg("%s", err.message);
     long long total = rt_recording_channel(rec, 0)->n_samples;
     double *want = malloc((size_t)total * sizeof *want);

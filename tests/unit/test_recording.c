@@ -154,8 +154,8 @@ static file_spec edfplus(const char *reserved)
 static rt_recording *open_ok(const char *path)
 {
     rt_error err;
-    rt_recording *rec = rt_recording_open(path, &err);
-    if (!rec)
+    rt_recording *rec = NULL;
+    if (rt_recording_open(path, &rec, &err) != RT_OK)
         fail_msg("open %s: %s", path, err.message);
     return rec;
 }
@@ -357,8 +357,8 @@ static void expect_refusal(const char *name, const bytes *b, size_t len, rt_stat
 {
     rt_error err;
     const char *path = write_bytes(name, b, len);
-    rt_recording *rec = rt_recording_open(path, &err);
-    if (rec)
+    rt_recording *rec = NULL;
+    if (rt_recording_open(path, &rec, &err) == RT_OK)
         fail_msg("%s: opened, expected a refusal", name);
     assert_int_equal(err.status, status);
     if (strncmp(err.message, path, strlen(path)) != 0 || !strstr(err.message, part1) ||
@@ -489,10 +489,13 @@ static void unsupported_and_missing(void **state)
     const char *dir = rt_test_dir("rec_missing");
     char path[4400];
     snprintf(path, sizeof path, "%s/none.edf", dir);
-    assert_null(rt_recording_open(path, &err));
+    rt_recording *rec = NULL;
+    assert_int_equal(rt_recording_open(path, &rec, &err), RT_ERR_IO);
+    assert_null(rec);
     assert_int_equal(err.status, RT_ERR_IO);
     assert_non_null(strstr(err.message, "No such file or directory")); /* strerror(ENOENT), glibc */
-    assert_null(rt_recording_open(dir, &err));
+    assert_int_equal(rt_recording_open(dir, &rec, &err), RT_ERR_IO);
+    assert_null(rec);
     assert_int_equal(err.status, RT_ERR_IO);
     assert_non_null(strstr(err.message, "Is a directory")); /* strerror(EISDIR), glibc */
 }

@@ -119,12 +119,11 @@ static scored score(const char *dir, const char *stages, const char *events, con
     rt_error err;
     char path[4200];
     snprintf(path, sizeof path, "%s/night.edf", dir);
-    s.rec = rt_recording_open(path, &err);
-    if (!s.rec)
+    if (rt_recording_open(path, &s.rec, &err) != RT_OK)
         fail_msg("%s", err.message);
     rt_role_map roles;
     assert_int_equal(rt_roles_resolve(s.rec, NULL, &roles, &err), RT_OK);
-    s.tl = rt_timeline_new();
+    assert_int_equal(rt_timeline_new(&s.tl, &err), RT_OK);
     if (rt_timeline_load_staging(s.tl, stages, NULL, &err) != RT_OK)
         fail_msg("%s", err.message);
     if (events && rt_timeline_load_events_csv(s.tl, events, NULL, &err) != RT_OK)

@@ -118,8 +118,8 @@ static rt_recording *open_channels(const char *name, const chan *c, int ns)
     rt_test_write_file(path, b, header + record);
     free(b);
     rt_error err;
-    rt_recording *rec = rt_recording_open(path, &err);
-    if (!rec)
+    rt_recording *rec = NULL;
+    if (rt_recording_open(path, &rec, &err) != RT_OK)
         fail_msg("%s", err.message);
     return rec;
 }

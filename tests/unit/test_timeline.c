@@ -39,7 +39,7 @@ static void expect_stage_error(const char *dir, const char *name, const char *te
     const char *path = write_table(dir, name, text);
     char path_copy[4400];
     snprintf(path_copy, sizeof path_copy, "%s", path);
-    rt_timeline *tl = rt_timeline_new();
+    rt_timeline *tl = rt_test_timeline();
     assert_non_null(tl);
     rt_error err;
     rt_error_clear(&err);
@@ -59,7 +59,7 @@ static void expect_stage_error(const char *dir, const char *name, const char *te
 
 static rt_timeline *load_stages_ok(const char *path, const rt_labelmap *map)
 {
-    rt_timeline *tl = rt_timeline_new();
+    rt_timeline *tl = rt_test_timeline();
     assert_non_null(tl);
     rt_error err;
     rt_error_clear(&err);
@@ -221,8 +221,8 @@ static void label_map_comes_first(void **state)
                                    "N2\tREM\n");
     rt_error err;
     rt_error_clear(&err);
-    rt_labelmap *map = rt_labelmap_load(path, &err);
-    if (!map)
+    rt_labelmap *map = NULL;
+    if (rt_labelmap_load(path, &map, &err) != RT_OK)
         fail_msg("%s", err.message);
     rt_stage s;
     assert_true(rt_stage_parse("0", map, &s));
@@ -253,6 +253,17 @@ static void label_map_comes_first(void **state)
     rt_labelmap_free(NULL);
 }
 
+/* A label map load expected to fail: the status returned and err agree, and
+ * *out is left NULL. Returns that NULL. */
+static rt_labelmap *load_map_fails(const char *path, rt_error *err)
+{
+    rt_labelmap *map = (rt_labelmap *)err; /* must be reset to NULL */
+    rt_status st = rt_labelmap_load(path, &map, err);
+    assert_int_not_equal(st, RT_OK);
+    assert_int_equal(st, err->status);
+    return map;
+}
+
 static void label_map_errors(void **state)
 {
     (void)state;
@@ -260,23 +271,23 @@ static void label_map_errors(void **state)
     rt_error err;
     char path[4400];
     snprintf(path, sizeof path, "%s", write_table(dir, "dup.csv", "label,meaning\nX,W\nY,R\nx,N1\n"));
-    assert_null(rt_labelmap_load(path, &err));
+    assert_null(load_map_fails(path, &err));
     assert_int_equal(err.status, RT_ERR_STAGING);
     assert_non_null(strstr(err.message, "dup.csv line 4"));
     assert_non_null(strstr(err.message, "already mapped to W"));
 
     snprintf(path, sizeof path, "%s", write_table(dir, "bad.csv", "label,meaning\nX,deep sleep\n"));
-    assert_null(rt_labelmap_load(path, &err));
+    assert_null(load_map_fails(path, &err));
     assert_non_null(strstr(err.message, "bad.csv line 2"));
     assert_non_null(strstr(err.message, "\"deep sleep\""));
 
     snprintf(path, sizeof path, "%s", write_table(dir, "nocol.csv", "label,stage\nX,W\n"));
-    assert_null(rt_labelmap_load(path, &err));
+    assert_null(load_map_fails(path, &err));
     assert_non_null(strstr(err.message, "nocol.csv line 1"));
     assert_non_null(strstr(err.message, "\"meaning\""));
 
     /* The same mapping twice is harmless. */
-    rt_labelmap *map = rt_labelmap_new();
+    rt_labelmap *map = rt_test_labelmap();
     assert_int_equal(rt_labelmap_add(map, "X", "W", &err), RT_OK);
     assert_int_equal(rt_labelmap_add(map, " x ", "w", &err), RT_OK);
     assert_int_equal(rt_labelmap_add(map, "  ", "w", &err), RT_ERR_STAGING);
@@ -301,7 +312,7 @@ static void stage_table_forms(void **state)
                        "   \r\n"
                        "R,\"a \"\"quoted\"\" note\",180,60\r\n";
     rt_error err;
-    rt_labelmap *map = rt_labelmap_new();
+    rt_labelmap *map = rt_test_labelmap();
     assert_int_equal(rt_labelmap_add(map, "N2, light", "N2", &err), RT_OK);
     rt_timeline *tl = load_stages_ok(write_table(dir, "forms.csv", text), map);
     assert_true(tl->epoch_s == 30.0); /* [FMT] epochs are 30 s */
@@ -409,7 +420,7 @@ static void stage_table_file_errors(void **state)
     const char *dir = rt_test_dir("tl_files");
     char path[4400];
     rt_error err;
-    rt_timeline *tl = rt_timeline_new();
+    rt_timeline *tl = rt_test_timeline();
 
     snprintf(path, sizeof path, "%s/absent.csv", dir);
     assert_int_equal(rt_timeline_load_stages_csv(tl, path, NULL, &err), RT_ERR_IO);
@@ -455,7 +466,7 @@ static void stages_load_once(void **state)
 static void add_stage_run_checks(void **state)
 {
     (void)state;
-    rt_timeline *tl = rt_timeline_new();
+    rt_timeline *tl = rt_test_timeline();
     rt_error err;
     assert_int_equal(rt_timeline_add_stage_run(tl, 60, 30, RT_STAGE_N2, "x.xml", 12, &err), RT_OK);
     expect_stages(tl, "??b"); /* [FMT] epochs before the first entry stay unscored */
@@ -480,7 +491,7 @@ static void event_table(void **state)
 {
     (void)state;
     const char *dir = rt_test_dir("tl_events");
-    rt_timeline *tl = rt_timeline_new();
+    rt_timeline *tl = rt_test_timeline();
     rt_error err;
     /* Rows out of order: the timeline keeps events ordered by onset; equal
      * onsets keep file order. */
@@ -526,7 +537,7 @@ static void event_table(void **state)
 static void check_past_end(void **state)
 {
     (void)state;
-    rt_timeline *tl = rt_timeline_new();
+    rt_timeline *tl = rt_test_timeline();
     rt_error err;
     assert_int_equal(rt_timeline_check(tl, 100, &err), RT_ERR_STAGING);
     assert_non_null(strstr(err.message, "empty"));
@@ -560,7 +571,7 @@ static void staging_format_by_content(void **state)
     (void)state;
     const char *dir = rt_test_dir("tl_sniff");
     rt_error err;
-    rt_timeline *tl = rt_timeline_new();
+    rt_timeline *tl = rt_test_timeline();
     char path[4400];
     snprintf(path, sizeof path, "%s",
              write_table(dir, "scoring.dat", "\xef\xbb\xbf  \n<?xml version=\"1.0\"?><x/>"));
@@ -613,7 +624,7 @@ static void mutated_tables_never_crash(void **state)
             }
         }
         rt_test_write_file(path, text, len);
-        rt_timeline *tl = rt_timeline_new();
+        rt_timeline *tl = rt_test_timeline();
         rt_error err;
         rt_error_clear(&err);
         rt_status st = rt_timeline_load_stages_csv(tl, path, NULL, &err);

@@ -57,17 +57,17 @@ static void three_sources_agree(void **state)
     if (rt_synth_write(&opt, dir, &err) != RT_OK)
         fail_msg("%s", err.message);
 
-    rt_timeline *tables = rt_timeline_new();
+    rt_timeline *tables = rt_test_timeline();
     if (rt_timeline_load_stages_csv(tables, in_dir("stages.csv"), NULL, &err) != RT_OK ||
         rt_timeline_load_events_csv(tables, in_dir("events.csv"), NULL, &err) != RT_OK)
         fail_msg("%s", err.message);
     assert_true(tables->n_epochs > 0);
     assert_true(tables->n_events > 0); /* the apnea profile places events */
 
-    rt_recording *rec = rt_recording_open(in_dir("night.edf"), &err);
-    if (!rec)
+    rt_recording *rec = NULL;
+    if (rt_recording_open(in_dir("night.edf"), &rec, &err) != RT_OK)
         fail_msg("%s", err.message);
-    rt_timeline *annotations = rt_timeline_new();
+    rt_timeline *annotations = rt_test_timeline();
     if (rt_timeline_load_annotations(annotations, rec, NULL, true, true, &err) != RT_OK)
         fail_msg("%s", err.message);
     rt_recording_close(rec);
@@ -77,13 +77,13 @@ static void three_sources_agree(void **state)
     snprintf(xml, sizeof xml, "%s", in_dir("scoring.xml"));
     if (rt_timeline_write_xml(tables, xml, &err) != RT_OK)
         fail_msg("%s", err.message);
-    rt_timeline *from_xml = rt_timeline_new();
+    rt_timeline *from_xml = rt_test_timeline();
     if (rt_timeline_load_staging(from_xml, xml, NULL, &err) != RT_OK)
         fail_msg("%s", err.message);
     expect_same(tables, from_xml, "tables vs XML");
 
     /* The recording given as a staging file reads as its annotations. */
-    rt_timeline *sniffed = rt_timeline_new();
+    rt_timeline *sniffed = rt_test_timeline();
     if (rt_timeline_load_staging(sniffed, in_dir("night.edf"), NULL, &err) != RT_OK)
         fail_msg("%s", err.message);
     expect_same(annotations, sniffed, "EDF+ annotations vs staging sniffer");

@@ -99,13 +99,13 @@ static void example_loads(void **state)
 {
     (void)state;
     rt_error err;
-    rt_timeline *tl = rt_timeline_new();
+    rt_timeline *tl = rt_test_timeline();
     if (rt_timeline_load_xml(tl, example_path(), &err) != RT_OK)
         fail_msg("%s", err.message);
     check_example(tl);
     rt_timeline_free(tl);
     /* The same through the format sniffer (docs/staging.md: '<' means XML). */
-    tl = rt_timeline_new();
+    tl = rt_test_timeline();
     if (rt_timeline_load_staging(tl, example_path(), NULL, &err) != RT_OK)
         fail_msg("%s", err.message);
     check_example(tl);
@@ -122,7 +122,7 @@ static void expect_refusal(const char *name, const char *text, const char *needl
     char saved[4400];
     snprintf(saved, sizeof saved, "%s", path);
     rt_error err;
-    rt_timeline *tl = rt_timeline_new();
+    rt_timeline *tl = rt_test_timeline();
     rt_status st = rt_timeline_load_staging(tl, saved, NULL, &err);
     if (st != RT_ERR_STAGING)
         fail_msg("%s: status %d, message: %s", name, (int)st, st == RT_OK ? "" : err.message);
@@ -234,7 +234,7 @@ static void expect_doctype_refused(const char *name, const char *text)
     char path[4400];
     snprintf(path, sizeof path, "%s", rt_test_text_file(dir, name, text));
     rt_error err;
-    rt_timeline *tl = rt_timeline_new();
+    rt_timeline *tl = rt_test_timeline();
     alarm(20); /* the test dies rather than hang */
     double t0 = now_s();
     rt_status st = rt_timeline_load_staging(tl, path, NULL, &err);
@@ -315,7 +315,7 @@ static void size_limit(void **state)
     assert_int_equal(ftruncate(fd, 64L * 1024 * 1024 + 1), 0);
     close(fd);
     rt_error err;
-    rt_timeline *tl = rt_timeline_new();
+    rt_timeline *tl = rt_test_timeline();
     double t0 = now_s();
     assert_int_equal(rt_timeline_load_staging(tl, path, NULL, &err), RT_ERR_STAGING);
     assert_true(now_s() - t0 < 1.0);
@@ -339,7 +339,7 @@ static void write_read_back(void **state)
 {
     (void)state;
     rt_error err;
-    rt_timeline *tl = rt_timeline_new();
+    rt_timeline *tl = rt_test_timeline();
     tl->epoch_s = 20.0; /* an epoch length other than 30 s is carried */
     assert_int_equal(rt_timeline_add_stage_run(tl, 0, 60, RT_STAGE_W, "t", 0, &err), RT_OK);
     assert_int_equal(rt_timeline_add_stage_run(tl, 100, 40, RT_STAGE_R, "t", 0, &err), RT_OK);
@@ -365,7 +365,7 @@ static void write_read_back(void **state)
     snprintf(path, sizeof path, "%s/out.xml", dir);
     if (rt_timeline_write_xml(tl, path, &err) != RT_OK)
         fail_msg("%s", err.message);
-    rt_timeline *back = rt_timeline_new();
+    rt_timeline *back = rt_test_timeline();
     if (rt_timeline_load_staging(back, path, NULL, &err) != RT_OK)
         fail_msg("%s", err.message);
     assert_true(back->epoch_s == 20.0);
@@ -397,7 +397,7 @@ static void write_read_back(void **state)
     rt_timeline_free(back);
 
     /* Nothing staged: nothing to write. */
-    rt_timeline *empty = rt_timeline_new();
+    rt_timeline *empty = rt_test_timeline();
     assert_int_equal(rt_timeline_write_xml(empty, path, &err), RT_ERR_USAGE);
     rt_timeline_free(empty);
     rt_timeline_free(tl);
@@ -423,7 +423,7 @@ static void mutated_example_never_crashes(void **state)
             buf[at] = (char)(seed >> 17);
         }
         rt_error err;
-        rt_timeline *tl = rt_timeline_new();
+        rt_timeline *tl = rt_test_timeline();
         rt_status st = rt_timeline_load_xml_memory(tl, buf, len, "mutant", &err);
         if (st != RT_OK) {
             assert_int_equal(st, RT_ERR_STAGING);

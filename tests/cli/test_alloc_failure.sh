@@ -1,0 +1,131 @@
+#!/usr/bin/env bash
+# Running out of memory anywhere: remtone_failalloc is the command-line program
+# linked with tests/alloc/fail_alloc.c, which fails the Nth allocation of the
+# process (REMTONE_TEST_FAIL_ALLOC=N) -- remtone's own and those of the C
+# library, FFTW, libxml2, jansson and EDFlib alike. `remtone score` on a short
+# synthetic night is run with the text summary, with --json and with --html;
+# a counting run first gives every allocation of each (REMTONE_TEST_COUNT_ALLOC:
+# one letter per allocation, 'f' when FFTW asked for it). For each N tried:
+#  - the exit code is 8, "out of memory" (README.md, "Exit codes"), and standard
+#    error says "out of memory"; a failure the program gets round (the C
+#    library's own fallbacks) may instead exit 0, with the same output as the
+#    run without a failure;
+#  - no output file is left: neither the final name nor a temporary PATH.tmp-*;
+#  - no crash and, in the sanitizer build, no leak (LeakSanitizer, on by
+#    default with AddressSanitizer, changes the exit code and prints a report;
+#    tests/alloc/lsan.supp names the one leak that is libxml2's own).
+# In the ordinary build the program's frees are not counted against its
+# allocations: the C library and the dependencies keep blocks for the life of
+# the process, so leaks are LeakSanitizer's to find, in build-asan/.
+# A run takes 0.1-0.5 s (more under AddressSanitizer) and one night makes
+# 18000-36000 allocations (FFTW's planner alone 17000, libxml2 another 17000
+# for the page), so not every N is tried by default: the first 15 allocations
+# of the text run (start-up, options, opening the files) all, then, per
+# output, one N drawn at random from each of 16 equal strata of the
+# allocations that are not FFTW's, and from 3 strata of FFTW's (whose failures
+# all end in one handler, cli/fftw_abort.c): about 70 runs, under a minute in
+# either build. Every run draws anew and prints its seed (REMTONE_SEED=S
+# repeats it); REMTONE_ALLOC_STRATA=K draws from K strata instead of 16, and
+# REMTONE_ALLOC_ALL=1 tries every N (hours).
+set -u
+bin=${REMTONE_BIN:?}
+fa=${REMTONE_FAILALLOC_BIN:?}
+work="${REMTONE_TMP:-/tmp}/alloc-failure"
+rm -rf "$work" && mkdir -p "$work"
+fails=0
+bad() { echo "FAIL $1"; fails=$((fails + 1)); }
+export LSAN_OPTIONS="suppressions=${REMTONE_SOURCE:?}/tests/alloc/lsan.supp${LSAN_OPTIONS:+:$LSAN_OPTIONS}"
+strata=${REMTONE_ALLOC_STRATA:-16}
+
+# A short night: one hour of synthetic RBD, staged for four minutes only (two
+# N2 epochs, then REM), so scoring conditions little and every stage of the
+# pipeline still runs.
+"$bin" synth --profile rbd --hours 1 --seed 3 --out "$work/n" >/dev/null || { echo "FAIL synth"; exit 1; }
+rec="$work/n/night.edf"
+stages="$work/stages.csv"
+printf 'start_s,duration_s,stage\n2880,60,N2\n2940,180,R\n' > "$stages"
+
+seed=${REMTONE_SEED:-$(( $(date +%s) % 100000 ))}
+echo "seed $seed (REMTONE_SEED=$seed repeats this run)"
+
+# same A B: the two outputs agree but for the time of the run they carry
+same() {
+  cmp -s <(sed -E 's/"run_at": "[^"]*"//; s/[0-9]{4}-[0-9]{2}-[0-9]{2} [0-9]{2}:[0-9]{2} UTC//' "$1") \
+         <(sed -E 's/"run_at": "[^"]*"//; s/[0-9]{4}-[0-9]{2}-[0-9]{2} [0-9]{2}:[0-9]{2} UTC//' "$2")
+}
+
+# pick KINDS_FILE FIRST_ALL STRATA_OTHER STRATA_FFTW: the N to try, one a line
+pick() {
+  awk -v seed="$seed" -v first="$2" -v so="$3" -v sf="$4" -v all="${REMTONE_ALLOC_ALL:-0}" '
+    { s = s $0 }
+    END {
+      srand(seed); no = 0; nf = 0
+      for (i = 1; i <= length(s); i++) {
+        if (substr(s, i, 1) == "f") f[++nf] = i; else o[++no] = i
+      }
+      if (all == 1) { for (i = 1; i <= length(s); i++) print i; exit }
+      for (i = 1; i <= first && i <= length(s); i++) print i
+      strata(o, no, so); strata(f, nf, sf)
+    }
+    function strata(v, n, k,   j, a, b) {
+      if (n == 0) return
+      if (k > n) k = n
+      for (j = 0; j < k; j++) {
+        a = int(j * n / k) + 1; b = int((j + 1) * n / k)
+        print v[a + int(rand() * (b - a + 1))]
+      }
+    }' "$1" | sort -n -u
+}
+
+# sweep NAME FIRST_ALL OUTPUT_FILE ARGS...: count, then fail each N picked
+sweep() {
+  local name=$1 first=$2 file=$3; shift 3
+  local out="$work/$name"
+  mkdir -p "$out"
+  if ! REMTONE_TEST_COUNT_ALLOC="$work/$name.kinds" "$fa" score "$rec" --stages "$stages" "$@" \
+       >"$work/$name.ref" 2>"$work/$name.referr"; then
+    bad "$name: the run without a failure fails: $(head -2 "$work/$name.referr")"
+    return
+  fi
+  if [ -n "$file" ]; then cp "$out/$file" "$work/$name.reffile" || { bad "$name: no $file"; return; }; fi
+  rm -rf "$out" && mkdir -p "$out"
+  local total tried=0 zero=0 n rc left before=$fails
+  total=$(wc -c <"$work/$name.kinds")
+  for n in $(pick "$work/$name.kinds" "$first" "$strata" 3); do
+    tried=$((tried + 1))
+    REMTONE_TEST_FAIL_ALLOC=$n "$fa" score "$rec" --stages "$stages" "$@" \
+      >"$work/stdout" 2>"$work/stderr" </dev/null
+    rc=$?
+    left=$(find "$out" -mindepth 1 | head -3)
+    if grep -qE 'Sanitizer|runtime error' "$work/stderr"; then
+      bad "$name N=$n: sanitizer report: $(grep -m1 -E 'Sanitizer|runtime error' "$work/stderr")"
+    elif [ "$rc" = 0 ]; then
+      zero=$((zero + 1))
+      # only a failure something got round: the same output as without it
+      if [ -n "$file" ]; then
+        if ! [ -f "$out/$file" ] || ! same "$out/$file" "$work/$name.reffile"; then
+          bad "$name N=$n: exit 0 without the whole $file"
+        elif [ -n "$(find "$out" -name '*.tmp-*')" ]; then
+          bad "$name N=$n: exit 0 leaving $(find "$out" -name '*.tmp-*' | head -1)"
+        fi
+      elif ! cmp -s "$work/stdout" "$work/$name.ref"; then
+        bad "$name N=$n: exit 0 with a different summary"
+      fi
+    elif [ "$rc" != 8 ]; then
+      bad "$name N=$n: exit $rc, want 8: $(head -2 "$work/stderr" | tr '\n' ' ')"
+    elif ! grep -q 'out of memory' "$work/stderr"; then
+      bad "$name N=$n: stderr does not say out of memory: $(head -2 "$work/stderr" | tr '\n' ' ')"
+    elif [ -n "$left" ]; then
+      bad "$name N=$n: left $left"
+    fi
+    rm -rf "$out" && mkdir -p "$out"
+  done
+  [ "$fails" = "$before" ] && echo "ok   $name: $tried of $total allocations failed in turn ($zero got round)"
+}
+
+sweep text 15 ""
+sweep json 0 r.json --quiet --json "$work/json/r.json"
+sweep html 0 r.html --quiet --html "$work/html/r.html"
+
+echo "$fails failed"
+[ "$fails" = 0 ]
