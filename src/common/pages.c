@@ -1,6 +1,6 @@
 /* Work arrays mapped from the system (pages.h). */
-/* MAP_ANONYMOUS is outside strict POSIX 2008 */
-#define _DEFAULT_SOURCE 1
+/* MAP_ANONYMOUS is outside strict POSIX 2008, mremap is Linux's */
+#define _GNU_SOURCE 1
 #include "pages.h"
 
 #include <stdint.h>
@@ -12,13 +12,24 @@ rt_status rt_pages_reserve(double **p, size_t *cap, size_t need, rt_error *err)
 {
     if (need <= *cap && *p)
         return RT_OK;
-    rt_pages_free(*p, *cap);
-    *p = NULL;
-    *cap = 0;
     if (need == 0)
         need = 1;
     if (need > SIZE_MAX / sizeof **p)
         return rt_fail(err, RT_ERR_NOMEM, "out of memory for %zu samples", need);
+#ifdef MREMAP_MAYMOVE
+    /* growing keeps the pages already touched: they need not fault again */
+    if (*p) {
+        void *q = mremap(*p, *cap * sizeof **p, need * sizeof **p, MREMAP_MAYMOVE);
+        if (q != MAP_FAILED) {
+            *p = q;
+            *cap = need;
+            return RT_OK;
+        }
+    }
+#endif
+    rt_pages_free(*p, *cap);
+    *p = NULL;
+    *cap = 0;
     void *q = mmap(NULL, need * sizeof **p, PROT_READ | PROT_WRITE, MAP_PRIVATE | MAP_ANONYMOUS,
                    -1, 0);
     if (q == MAP_FAILED)

@@ -13,7 +13,8 @@
 #include "remtone/status.h"
 
 /* Makes *p hold at least need doubles; *cap is its capacity in doubles (0
- * with *p NULL at first). The contents are not kept when it grows. */
+ * with *p NULL at first). The contents are not kept when it grows (where
+ * the system can, pages already written are moved, not faulted in again). */
 rt_status rt_pages_reserve(double **p, size_t *cap, size_t need, rt_error *err);
 
 /* Returns an array of rt_pages_reserve with its capacity; p may be NULL. */

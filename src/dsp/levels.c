@@ -48,8 +48,9 @@ static int compare_double(const void *a, const void *b)
     return (x > y) - (x < y);
 }
 
-/* Hoare's selection: places the k-th smallest at v[k]. Kept for arrays
- * holding NaN, which have no order: there the quantile is what this gives. */
+/* Hoare's selection: places the k-th smallest at v[k]. For long arrays, and
+ * for arrays holding NaN, which have no order: there the quantile is what
+ * this gives. */
 static double select_kth_hoare(double *v, size_t n, size_t k)
 {
     size_t lo = 0, hi = n - 1;
@@ -82,38 +83,32 @@ static double select_kth_hoare(double *v, size_t n, size_t k)
 }
 
 /* Moves the elements of v[lo..hi] that pass (x < p, or x <= p with
- * or_equal) to the front, without branches on the data (a comparison's
- * outcome cannot be guessed on noise); returns where the others begin. Up to
- * PARTITION_STACK elements go through a buffer, filled from both ends, so that
- * no store waits for the one before it; longer ranges are swapped in place. */
-enum { PARTITION_STACK = 1024 };
-
-static size_t partition(double *v, size_t lo, size_t hi, double p, bool or_equal)
+ * or_equal) to the front, through tmp, which it fills from both ends: no
+ * branch on the data (a comparison's outcome cannot be guessed on noise) and
+ * no store waits for the one before it. Returns where the others begin. */
+static size_t partition(double *v, size_t lo, size_t hi, double p, bool or_equal, double *tmp)
 {
-    size_t len = hi - lo + 1;
-    if (len <= PARTITION_STACK) {
-        double tmp[PARTITION_STACK];
-        size_t a = 0, b = len;
+    size_t len = hi - lo + 1, a = 0, b = len;
+    if (or_equal)
         for (size_t j = lo; j <= hi; j++) {
             double x = v[j];
-            size_t in = or_equal ? (size_t)(x <= p) : (size_t)(x < p);
+            size_t in = (size_t)(x <= p);
             tmp[a] = x;
             tmp[b - 1] = x;
             a += in;
             b -= 1 - in;
         }
-        memcpy(v + lo, tmp, len * sizeof *tmp);
-        return lo + a;
-    }
-    size_t store = lo;
-    for (size_t j = lo; j <= hi; j++) {
-        double x = v[j];
-        size_t in = or_equal ? (size_t)(x <= p) : (size_t)(x < p);
-        v[j] = v[store];
-        v[store] = x;
-        store += in;
-    }
-    return store;
+    else
+        for (size_t j = lo; j <= hi; j++) {
+            double x = v[j];
+            size_t in = (size_t)(x < p);
+            tmp[a] = x;
+            tmp[b - 1] = x;
+            a += in;
+            b -= 1 - in;
+        }
+    memcpy(v + lo, tmp, len * sizeof *tmp);
+    return lo + a;
 }
 
 static double median3(double a, double b, double c)
@@ -127,26 +122,44 @@ static double median3(double a, double b, double c)
 }
 
 /* Places the k-th smallest of v[0..n) (no NaN) at v[k], everything before it
- * no larger and everything after it no smaller. The value is the k-th order
- * statistic whatever the algorithm: this one partitions without branches,
- * around a median of three, and splits off the elements equal to the pivot
- * so that repeated values cannot make it quadratic. */
-static double select_kth(double *v, size_t n, size_t k)
+ * no larger and everything after it no smaller, using tmp (n doubles). The
+ * value is the k-th order statistic whatever the algorithm: this one
+ * partitions without branches around a median of three, and when no element
+ * lies below the pivot it splits off those equal to it, so that repeated
+ * values cannot make it quadratic. */
+static double select_kth_with(double *v, size_t n, size_t k, double *tmp)
 {
     size_t lo = 0, hi = n - 1;
     while (lo < hi) {
         double p = median3(v[lo], v[lo + (hi - lo) / 2], v[hi]);
-        size_t less = partition(v, lo, hi, p, false); /* [lo, less) < p <= [less, hi] */
+        size_t less = partition(v, lo, hi, p, false, tmp); /* [lo, less) < p <= [less, hi] */
         if (k < less) {
             hi = less - 1;
-            continue;
+        } else if (less > lo) {
+            lo = less;
+        } else {
+            size_t equal = partition(v, lo, hi, p, true, tmp); /* [lo, equal) == p < rest */
+            if (k < equal)
+                return v[k];
+            lo = equal;
         }
-        size_t equal = partition(v, less, hi, p, true); /* [less, equal) == p < [equal, hi] */
-        if (k < equal)
-            return v[k];
-        lo = equal;
     }
     return v[k];
+}
+
+/* Arrays up to this size (32 KiB of doubles: the per-second levels, the
+ * mini-epoch and NREM epoch medians, most bursts) select through a buffer on
+ * the stack; longer ones are mostly contiguous envelope, whose runs make
+ * Hoare's branches predictable, and it was the faster there when measured
+ * (bench-style timing of 10^5 contiguous envelope samples). */
+enum { SELECT_STACK = 4096 };
+
+static double select_kth(double *v, size_t n, size_t k)
+{
+    if (n > SELECT_STACK)
+        return select_kth_hoare(v, n, k);
+    double tmp[SELECT_STACK];
+    return select_kth_with(v, n, k, tmp);
 }
 
 /* Type-7 quantile of v[0..n) with a selection function. */

@@ -27,7 +27,6 @@
 #include "quality/quality.h"
 #include "rai.h"
 
-
 #define MINI3_PER_EPOCH 10
 #define MINI2_PER_EPOCH 15
 #define PI 3.14159265358979323846
