@@ -9,7 +9,7 @@
 #include "remtone/cohort.h"
 
 enum { KEY_OUT = 1, KEY_JOBS, KEY_FORCE, KEY_PART, KEY_CUTOFFS, KEY_POSITIVE, KEY_NEGATIVE,
-       KEY_QUIET, KEY_MIN_REM, KEY_THREADS };
+       KEY_QUIET, KEY_MIN_REM, KEY_THREADS, KEY_PAGES };
 
 static const cli_option OPTIONS[] = {
     {"out", 1, KEY_OUT, "DIR", "output folder (created when missing; required)"},
@@ -17,6 +17,8 @@ static const cli_option OPTIONS[] = {
     {"threads", 1, KEY_THREADS, "N", "threads scoring each night (default: the cores available "
                                      "divided by the jobs, at least 1)"},
     {"force", 0, KEY_FORCE, NULL, "rescore nights whose result is current"},
+    {"html", 0, KEY_PAGES, NULL, "also write each night's review page, DIR/nights/ID.html, linked "
+                                 "from DIR/cohort.html"},
     {"part", 1, KEY_PART, "K/N", "score only slice K of N (1-based, by a hash of the id); "
                                  "run cohort-merge after all parts"},
     {"cutoffs", 1, KEY_CUTOFFS, "FILE", "a lab's own cutoffs (CSV index,cutoff)"},
@@ -69,9 +71,10 @@ static int on_option(void *ctx, int key, const char *arg)
     switch (key) {
     case KEY_OUT: c->o.out_dir = arg; break;
     case KEY_FORCE: c->o.force = true; break;
+    case KEY_PAGES: c->o.pages = true; break;
     case KEY_CUTOFFS: c->o.cutoffs_path = arg; break;
-    case KEY_POSITIVE: c->o.positive = arg; break;
-    case KEY_NEGATIVE: c->o.negative = arg; break;
+    case KEY_POSITIVE: c->o.positive = arg; c->o.groups_given = true; break;
+    case KEY_NEGATIVE: c->o.negative = arg; c->o.groups_given = true; break;
     case KEY_QUIET: c->quiet = 1; break;
     case KEY_PART: return parse_part(c, arg);
     case KEY_JOBS:
@@ -160,12 +163,16 @@ static int merge_and_report(cohort_config *c)
     rt_status st = rt_cohort_merge(&c->o, &s, &err);
     if (st != RT_OK)
         return cli_report(st, &err, st == RT_ERR_IO);
-    if (!c->quiet)
-        printf("%s: %zu nights in cohort.csv (%zu scored, %zu failed%s); calibration on %zu "
-               "\"%s\" and %zu \"%s\" nights\n",
-               c->o.out_dir, s.nights, s.scored, s.failed,
-               s.incomplete ? ", some incomplete results ignored" : "", s.positives, c->o.positive,
+    if (c->quiet)
+        return EXIT_OK;
+    printf("%s: %zu nights in cohort.csv (%zu scored, %zu failed%s); ", c->o.out_dir, s.nights,
+           s.scored, s.failed, s.incomplete ? ", some incomplete results ignored" : "");
+    if (s.calibrated)
+        printf("calibration on %zu \"%s\" and %zu \"%s\" nights\n", s.positives, c->o.positive,
                s.negatives, c->o.negative);
+    else
+        printf("no calibration: it needs nights in both groups \"%s\" and \"%s\" "
+               "(--positive, --negative)\n", c->o.positive, c->o.negative);
     return EXIT_OK;
 }
 

@@ -97,12 +97,18 @@ typedef struct rt_cohort_options {
                                   0 = the cores available shared among the workers, at least 1;
                                   results do not depend on it */
     bool force;                /* rescore nights whose result is current */
+    bool pages;                /* also write nights/ID.html, each night's review page
+                                  (rt_night_write_html, de-identified, titled with the id);
+                                  a current result without its page is scored again */
     unsigned part;             /* this run's slice, 1..part_count (1-based) */
     unsigned part_count;       /* number of slices; 0 or 1 = the whole manifest */
     const char *cutoffs_path;  /* a lab's cutoff file (rt_cutoffs_load), NULL = published */
     rt_score_params params;    /* scoring parameters (rt_score_params_default) */
     const char *positive;      /* calibration: group of the positive class, default "case" */
     const char *negative;      /* calibration: group of the negative class, default "control" */
+    bool groups_given;         /* the user named the groups: a named group that no night of
+                                  the table has is then an error (RT_ERR_STAGING) and nothing
+                                  is written; otherwise it only means no calibration */
     rt_cohort_progress_fn progress; /* called about every progress_interval_s and at the end */
     void *progress_user;
     double progress_interval_s;     /* default 0.5 */
@@ -131,11 +137,16 @@ typedef struct rt_cohort_merge_summary {
     size_t incomplete;    /* results without a key (a run stopped between the two): ignored */
     size_t positives;     /* scored nights of the positive group */
     size_t negatives;     /* scored nights of the negative group */
+    bool calibrated;      /* false when a group had no scored night: calibration.csv and
+                             calibrated-cutoffs.csv were then left as they were */
 } rt_cohort_merge_summary;
 
 /* Rebuilds OUT/cohort.csv, OUT/calibration.csv, OUT/calibrated-cutoffs.csv and
  * OUT/cohort.html from OUT/nights/ (rows in id order, so the files depend
  * only on the results, not on the order or the parts that produced them).
+ * The two calibration files are written only when both groups have a scored
+ * night; every check on the inputs (groups, cutoff file) runs before the
+ * first file is replaced, so a failed merge leaves the earlier files.
  * Uses options->out_dir, positive, negative and cutoffs_path (the cutoffs the
  * sensitivity and specificity are tabulated at besides the published ones).
  * summary may be NULL. */

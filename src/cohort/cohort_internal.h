@@ -49,11 +49,15 @@ typedef struct cohort_row {
     double scorable_minutes;
     double value[RT_IX_COUNT];   /* NaN when not computed or failed */
     long warnings;               /* -1 for a failed night */
+    char *warning_texts;         /* the warnings joined by " | " (NULL: none); owned */
     char error[512];             /* the failure message */
+    bool page;                   /* nights/ID.html exists (a per-night review page) */
 } cohort_row;
 
 /* Calibration of every index against the positive and negative groups. */
 typedef struct cohort_calibration {
+    bool computed;                   /* false when a group has no scored night: then no
+                                        calibration file is written and roc[] is empty */
     rt_roc roc[RT_IX_COUNT];
     double published[RT_IX_COUNT];   /* NaN when none */
     double sens_published[RT_IX_COUNT], spec_published[RT_IX_COUNT];

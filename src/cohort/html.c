@@ -1,13 +1,15 @@
-/* The cohort overview page: for every index, the values of each group
- * against the cutoff in force and the Youden cutoff (a strip plot), and the
- * ROC curve of the positive against the negative group, as inline SVG in one
- * HTML file without scripts. Written through libxml2's xmlTextWriter, so
+/* The cohort overview page: every night with its level, reservations and a
+ * link to its own page, the failed nights with their messages, then for
+ * every index the values of each group against the cutoff in force and the
+ * Youden cutoff (a strip plot on round ticks), and the ROC curve of the
+ * positive against the negative group with labelled axes, as inline SVG in
+ * one HTML file without scripts, through the review page's helpers
+ * (report/svg.h). Written through libxml2's xmlTextWriter, so
  * every text -- group names come from the user's manifest -- is escaped,
  * after rt_utf8_clean (src/common/text.h) made it valid UTF-8. */
 #include "cohort_internal.h"
 
 #include <math.h>
-#include <stdarg.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -16,72 +18,9 @@
 #include "remtone/report.h"
 #include "report/svg.h"
 
-enum { STRIP_W = 560, ROW_H = 26, ROC_SIZE = 220 };
+enum { STRIP_W = 560, ROW_H = 26, ROC_SIZE = 220, MAX_TICKS = 12 };
 static const char *const COLOR_POS = "#b03a2e", *const COLOR_NEG = "#1f618d",
                          *const COLOR_OTHER = "#7b7d7d";
-
-/* The page helpers of the review report (report/svg.h): texts made valid
- * UTF-8, and a shortage of memory told from a refused call. */
-typedef struct writer {
-    rt_page p;
-} writer;
-
-static void start(writer *h, const char *name) { rt_page_start(&h->p, name); }
-
-static void end(writer *h) { rt_page_end_svg(&h->p); }
-
-static void attr(writer *h, const char *name, const char *fmt, ...) RT_PRINTF(3, 4);
-static void attr(writer *h, const char *name, const char *fmt, ...)
-{
-    char buf[8192];
-    va_list ap;
-    va_start(ap, fmt);
-    vsnprintf(buf, sizeof buf, fmt, ap);
-    va_end(ap);
-    rt_page_attr(&h->p, name, buf);
-}
-
-static void text(writer *h, const char *fmt, ...) RT_PRINTF(2, 3);
-static void text(writer *h, const char *fmt, ...)
-{
-    char buf[2048];
-    va_list ap;
-    va_start(ap, fmt);
-    vsnprintf(buf, sizeof buf, fmt, ap);
-    va_end(ap);
-    rt_page_text(&h->p, buf);
-}
-
-static void element(writer *h, const char *name, const char *content)
-{
-    start(h, name);
-    text(h, "%s", content);
-    end(h);
-}
-
-static void svg_text(writer *h, double x, double y, const char *anchor, const char *content)
-{
-    start(h, "text");
-    attr(h, "x", "%.1f", x);
-    attr(h, "y", "%.1f", y);
-    attr(h, "text-anchor", "%s", anchor);
-    text(h, "%s", content);
-    end(h);
-}
-
-static void line(writer *h, double x1, double y1, double x2, double y2, const char *stroke,
-                 const char *dash)
-{
-    start(h, "line");
-    attr(h, "x1", "%.1f", x1);
-    attr(h, "y1", "%.1f", y1);
-    attr(h, "x2", "%.1f", x2);
-    attr(h, "y2", "%.1f", y2);
-    attr(h, "stroke", "%s", stroke);
-    if (dash)
-        attr(h, "stroke-dasharray", "%s", dash);
-    end(h);
-}
 
 /* Groups in display order: positive, negative, then the others as met. */
 static size_t list_groups(const cohort_row *rows, size_t n, const rt_cohort_options *o,
@@ -100,38 +39,47 @@ static size_t list_groups(const cohort_row *rows, size_t n, const rt_cohort_opti
     return k;
 }
 
-static void strip_plot(writer *h, const cohort_row *rows, size_t n, int ix,
+/* A horizontal value axis from 0 to the last round tick at or above the
+ * largest value; returns that end. */
+static double value_axis(rt_page *p, double left, double right, double y, double largest,
+                         const char *unit)
+{
+    double ticks[MAX_TICKS];
+    size_t n = rt_axis_ticks(0.0, largest, 5, ticks, MAX_TICKS);
+    double hi = n ? ticks[n - 1] : largest;
+    rt_svg_line(p, left, y, right, y, "#333", 1, NULL);
+    for (size_t t = 0; t < n; t++) {
+        double x = left + (right - left) * ticks[t] / hi;
+        char label[32];
+        snprintf(label, sizeof label, "%g", ticks[t]);
+        rt_svg_line(p, x, y, x, y + 4, "#333", 1, NULL);
+        rt_svg_text(p, x, y + 16, "middle", NULL, label);
+    }
+    rt_svg_text(p, (left + right) / 2, y + 32, "middle", NULL, unit);
+    return hi;
+}
+
+static void strip_plot(rt_page *p, const cohort_row *rows, size_t n, int ix,
                        const cohort_calibration *cal, const char **groups, size_t n_groups)
 {
     const rt_index_rule *rule = &rt_index_rules()[ix];
-    double hi = strcmp(rule->unit, "%") == 0 ? 10.0 : 1.0;
+    double largest = strcmp(rule->unit, "%") == 0 ? 10.0 : 1.0;
     for (size_t i = 0; i < n; i++)
-        if (isfinite(rows[i].value[ix]) && rows[i].value[ix] > hi)
-            hi = rows[i].value[ix];
-    if (isfinite(cal->in_force[ix]) && cal->in_force[ix] > hi)
-        hi = cal->in_force[ix];
-    hi *= 1.05;
+        if (isfinite(rows[i].value[ix]) && rows[i].value[ix] > largest)
+            largest = rows[i].value[ix];
+    if (isfinite(cal->in_force[ix]) && cal->in_force[ix] > largest)
+        largest = cal->in_force[ix];
     const double left = 130, right = STRIP_W - 20, top = 20;
     double height = top + ROW_H * (double)n_groups + 40;
-    start(h, "svg");
-    attr(h, "xmlns", "http://www.w3.org/2000/svg");
-    attr(h, "width", "%d", STRIP_W);
-    attr(h, "height", "%.0f", height);
-    attr(h, "role", "img");
+    char label[160];
+    snprintf(label, sizeof label, "%s of each night by group", rule->id);
+    rt_svg_begin(p, STRIP_W, height, label);
     double axis_y = top + ROW_H * (double)n_groups;
-    line(h, left, axis_y, right, axis_y, "#333", NULL);
-    for (int t = 0; t <= 4; t++) {
-        double v = hi / 1.05 * t / 4.0, x = left + (right - left) * v / hi;
-        char label[32];
-        snprintf(label, sizeof label, "%.3g", v);
-        line(h, x, axis_y, x, axis_y + 4, "#333", NULL);
-        svg_text(h, x, axis_y + 16, "middle", label);
-    }
-    svg_text(h, (left + right) / 2, axis_y + 32, "middle", rule->unit);
+    double hi = value_axis(p, left, right, axis_y, largest, rule->unit);
     for (size_t g = 0; g < n_groups; g++) {
         double cy = top + ROW_H * ((double)g + 0.5);
         const char *color = g == 0 ? COLOR_POS : g == 1 ? COLOR_NEG : COLOR_OTHER;
-        svg_text(h, left - 8, cy + 4, "end", groups[g][0] ? groups[g] : "(no group)");
+        rt_svg_text(p, left - 8, cy + 4, "end", NULL, groups[g][0] ? groups[g] : "(no group)");
         size_t k = 0;
         for (size_t i = 0; i < n; i++) {
             if (rows[i].failed || strcmp(rows[i].group, groups[g]) != 0 ||
@@ -139,16 +87,16 @@ static void strip_plot(writer *h, const cohort_row *rows, size_t n, int ix,
                 continue;
             /* a fixed jitter, so the page is the same on every merge */
             double jitter = (double)((k++ * 7) % 11) - 5.0;
-            start(h, "circle");
-            attr(h, "cx", "%.1f", left + (right - left) * rows[i].value[ix] / hi);
-            attr(h, "cy", "%.1f", cy + jitter);
-            attr(h, "r", "3");
-            attr(h, "fill", "%s", color);
-            attr(h, "fill-opacity", "0.7");
-            start(h, "title");
-            text(h, "%s: %.4g", rows[i].id, rows[i].value[ix]);
-            end(h);
-            end(h);
+            rt_page_start(p, "circle");
+            rt_page_attrf(p, "cx", "%.1f", left + (right - left) * rows[i].value[ix] / hi);
+            rt_page_attrf(p, "cy", "%.1f", cy + jitter);
+            rt_page_attr(p, "r", "3");
+            rt_page_attr(p, "fill", color);
+            rt_page_attr(p, "fill-opacity", "0.7");
+            rt_page_start(p, "title");
+            rt_page_textf(p, "%s: %.4g", rows[i].id, rows[i].value[ix]);
+            rt_page_end_html(p);
+            rt_page_end_svg(p);
         }
     }
     const double cuts[2] = {cal->in_force[ix], cal->roc[ix].youden_cutoff};
@@ -157,51 +105,55 @@ static void strip_plot(writer *h, const cohort_row *rows, size_t n, int ix,
         if (!isfinite(cuts[c]) || cuts[c] > hi)
             continue;
         double x = left + (right - left) * cuts[c] / hi;
-        line(h, x, top - 6, x, axis_y, colors[c], c ? "2,3" : "6,3");
-        char label[48];
+        rt_svg_line(p, x, top - 6, x, axis_y, colors[c], 1, c ? "2,3" : "6,3");
         snprintf(label, sizeof label, "%s %.3g", names[c], cuts[c]);
-        svg_text(h, x, top - 9 + 10.0 * c, "middle", label);
+        rt_svg_text(p, x, top - 9 + 10.0 * c, "middle", NULL, label);
     }
-    end(h);
+    rt_svg_end(p);
 }
 
-static void roc_plot(writer *h, const rt_roc *roc)
+/* The ROC curve in a unit square with ticks every 0.2 on both axes. */
+static void roc_plot(rt_page *p, const rt_roc *roc, const char *index_id)
 {
-    const double m = 34, s = ROC_SIZE;
-    start(h, "svg");
-    attr(h, "xmlns", "http://www.w3.org/2000/svg");
-    attr(h, "width", "%.0f", s + m + 10);
-    attr(h, "height", "%.0f", s + m + 10);
-    attr(h, "role", "img");
-    start(h, "rect");
-    attr(h, "x", "%.0f", m);
-    attr(h, "y", "10");
-    attr(h, "width", "%.0f", s);
-    attr(h, "height", "%.0f", s);
-    attr(h, "fill", "none");
-    attr(h, "stroke", "#333");
-    end(h);
-    line(h, m, 10 + s, m + s, 10, "#999", "4,3");
-    svg_text(h, m + s / 2, s + m + 6, "middle", "1 - specificity");
-    start(h, "text");
-    attr(h, "transform", "translate(12,%.0f) rotate(-90)", 10 + s / 2);
-    attr(h, "text-anchor", "middle");
-    text(h, "sensitivity");
-    end(h);
-    if (roc->n_points > 1) {
-        char pts[8192];
-        size_t u = 0;
-        for (size_t k = 0; k < roc->n_points && u + 32 < sizeof pts; k++)
-            u += (size_t)snprintf(pts + u, sizeof pts - u, "%.1f,%.1f ", m + s * roc->fpr[k],
-                                  10 + s * (1 - roc->tpr[k]));
-        start(h, "polyline");
-        attr(h, "points", "%s", pts);
-        attr(h, "fill", "none");
-        attr(h, "stroke", "%s", COLOR_POS);
-        attr(h, "stroke-width", "2");
-        end(h);
+    const double m = 48, s = ROC_SIZE, top = 10;
+    char label[160];
+    snprintf(label, sizeof label, "ROC curve of %s", index_id);
+    rt_svg_begin(p, s + m + 14, s + m + 24, label);
+    rt_svg_line(p, m, top, m + s, top, "#333", 1, NULL);
+    rt_svg_line(p, m, top + s, m + s, top + s, "#333", 1, NULL);
+    rt_svg_line(p, m, top, m, top + s, "#333", 1, NULL);
+    rt_svg_line(p, m + s, top, m + s, top + s, "#333", 1, NULL);
+    rt_svg_line(p, m, top + s, m + s, top, "#999", 1, "4,3"); /* chance */
+    for (int t = 0; t <= 5; t++) {
+        char tick[8];
+        snprintf(tick, sizeof tick, "%.1f", t / 5.0);
+        double x = m + s * t / 5.0, y = top + s * (1 - t / 5.0);
+        rt_svg_line(p, x, top + s, x, top + s + 4, "#333", 1, NULL);
+        rt_svg_text(p, x, top + s + 15, "middle", NULL, tick);
+        rt_svg_line(p, m - 4, y, m, y, "#333", 1, NULL);
+        rt_svg_text(p, m - 6, y + 4, "end", NULL, tick);
     }
-    end(h);
+    rt_svg_text(p, m + s / 2, top + s + 30, "middle", NULL, "1 - specificity (false-positive rate)");
+    rt_page_start(p, "text");
+    rt_page_attrf(p, "transform", "translate(12,%.0f) rotate(-90)", top + s / 2);
+    rt_page_attr(p, "text-anchor", "middle");
+    rt_page_text(p, "sensitivity (true-positive rate)");
+    rt_page_end_html(p);
+    if (roc->n_points > 1) {
+        double *xs = rt_calloc(roc->n_points, sizeof *xs), *ys = rt_calloc(roc->n_points, sizeof *ys);
+        if (xs && ys) {
+            for (size_t k = 0; k < roc->n_points; k++) {
+                xs[k] = m + s * roc->fpr[k];
+                ys[k] = top + s * (1 - roc->tpr[k]);
+            }
+            rt_svg_polyline(p, xs, ys, roc->n_points, COLOR_POS, 2);
+        } else {
+            rt_page_fail(p, RT_ERR_NOMEM);
+        }
+        free(xs);
+        free(ys);
+    }
+    rt_svg_end(p);
 }
 
 static void fmt_or_dash(char *dst, size_t cap, const char *fmt, double v)
@@ -212,15 +164,20 @@ static void fmt_or_dash(char *dst, size_t cap, const char *fmt, double v)
         rt_copy_string(dst, cap, "-");
 }
 
-static void summary_table(writer *h, const cohort_calibration *cal)
+static void row_of_cells(rt_page *p, const char *cell_name, const char *const *cells, size_t n)
+{
+    rt_page_start(p, "tr");
+    for (size_t k = 0; k < n; k++)
+        rt_page_element(p, cell_name, NULL, cells[k]);
+    rt_page_end_html(p);
+}
+
+static void summary_table(rt_page *p, const cohort_calibration *cal)
 {
     static const char *const heads[] = {"index", "AUC (95 % CI, DeLong)", "Youden cutoff",
                                         "published cutoff", "sensitivity", "specificity"};
-    start(h, "table");
-    start(h, "tr");
-    for (size_t k = 0; k < 6; k++)
-        element(h, "th", heads[k]);
-    end(h);
+    rt_page_start(p, "table");
+    row_of_cells(p, "th", heads, 6);
     for (int i = 0; i < RT_IX_COUNT; i++) {
         const rt_roc *c = &cal->roc[i];
         char cell[6][96];
@@ -233,15 +190,73 @@ static void summary_table(writer *h, const cohort_calibration *cal)
         fmt_or_dash(cell[3], sizeof cell[3], "%.4g", cal->published[i]);
         fmt_or_dash(cell[4], sizeof cell[4], "%.2f", cal->sens_published[i]);
         fmt_or_dash(cell[5], sizeof cell[5], "%.2f", cal->spec_published[i]);
-        start(h, "tr");
-        for (size_t k = 0; k < 6; k++)
-            element(h, "td", cell[k]);
-        end(h);
+        const char *cells[6] = {cell[0], cell[1], cell[2], cell[3], cell[4], cell[5]};
+        row_of_cells(p, "td", cells, 6);
     }
-    end(h);
+    rt_page_end_html(p);
 }
 
-static void page(writer *h, const cohort_row *rows, size_t n, const cohort_calibration *cal,
+/* Every night in id order: its level (a level with reservations says so),
+ * the reservation codes, REM minutes, warnings, and a link to its own page
+ * when the run wrote one (cohort --html). */
+static void nights_table(rt_page *p, const cohort_row *rows, size_t n)
+{
+    static const char *const heads[] = {"night", "group", "level", "reservations",
+                                        "REM min", "warnings"};
+    rt_page_start(p, "table");
+    row_of_cells(p, "th", heads, 6);
+    for (size_t i = 0; i < n; i++) {
+        const cohort_row *r = &rows[i];
+        rt_page_start(p, "tr");
+        rt_page_start(p, "td");
+        if (r->page) {
+            rt_page_start(p, "a");
+            rt_page_attrf(p, "href", "nights/%s.html", r->id);
+            rt_page_text(p, r->id);
+            rt_page_end_html(p);
+        } else {
+            rt_page_text(p, r->id);
+        }
+        rt_page_end_html(p);
+        char level[64], minutes[32], warnings[32];
+        bool reserved = r->reservations[0] && strcmp(r->reservations, "unknown") != 0;
+        snprintf(level, sizeof level, "%s%s", r->level, reserved && !r->failed ? ", with reservations" : "");
+        fmt_or_dash(minutes, sizeof minutes, "%.1f", r->rem_minutes);
+        if (r->warnings >= 0)
+            snprintf(warnings, sizeof warnings, "%ld", r->warnings);
+        else
+            rt_copy_string(warnings, sizeof warnings, "-");
+        const char *cells[5] = {r->group[0] ? r->group : "(no group)", level,
+                                r->reservations[0] ? r->reservations : "none", minutes, warnings};
+        for (size_t k = 0; k < 5; k++)
+            rt_page_element(p, "td", NULL, cells[k]);
+        rt_page_end_html(p);
+    }
+    rt_page_end_html(p);
+}
+
+static void failures_list(rt_page *p, const cohort_row *rows, size_t n, size_t failed)
+{
+    if (failed == 0)
+        return;
+    rt_page_element(p, "h2", NULL, "Failed nights");
+    rt_page_element(p, "p", NULL, "Each is left out of the calibration; its message names the "
+                                  "file and the place. Fix the input and run the cohort again: "
+                                  "only these nights are retried.");
+    rt_page_start(p, "ul");
+    for (size_t i = 0; i < n; i++) {
+        if (!rows[i].failed)
+            continue;
+        rt_page_start(p, "li");
+        rt_page_element(p, "strong", NULL, rows[i].id);
+        rt_page_textf(p, " (%s): %s", rows[i].group[0] ? rows[i].group : "no group",
+                      rows[i].error);
+        rt_page_end_html(p);
+    }
+    rt_page_end_html(p);
+}
+
+static void page(rt_page *p, const cohort_row *rows, size_t n, const cohort_calibration *cal,
                  const rt_cohort_options *o)
 {
     const char *groups[64];
@@ -249,59 +264,74 @@ static void page(writer *h, const cohort_row *rows, size_t n, const cohort_calib
     size_t failed = 0;
     for (size_t i = 0; i < n; i++)
         failed += rows[i].failed;
-    rt_page_raw(&h->p, "<!DOCTYPE html>\n");
-    start(h, "html");
-    attr(h, "lang", "en");
-    start(h, "head");
-    start(h, "meta");
-    attr(h, "charset", "utf-8");
-    end(h);
-    element(h, "title", "remtone cohort");
-    element(h, "style", "body{font-family:sans-serif;max-width:980px;margin:1em auto;color:#222}"
-                        "table{border-collapse:collapse}td,th{border:1px solid #bbb;padding:2px 6px;"
-                        "text-align:right}svg text{font-size:11px}section{margin:1.5em 0}");
-    end(h);
-    start(h, "body");
-    element(h, "h1", "Cohort overview");
-    start(h, "p");
-    text(h, "%zu nights: %zu scored, %zu failed. Calibration: positive group \"%s\" "
-            "(%zu scored), negative group \"%s\" (%zu scored); other groups are shown, not used.",
-         n, n - failed, failed, o->positive, cal->roc[0].n_pos, o->negative, cal->roc[0].n_neg);
-    end(h);
-    element(h, "p", rt_visual_scoring_note());
-    element(h, "p", "A cutoff fitted to one cohort (Youden) is optimistic for that cohort; check "
-                    "it on other nights before relying on it.");
-    summary_table(h, cal);
+    rt_page_raw(p, "<!DOCTYPE html>\n");
+    rt_page_start(p, "html");
+    rt_page_attr(p, "lang", "en");
+    rt_page_start(p, "head");
+    rt_page_start(p, "meta");
+    rt_page_attr(p, "charset", "utf-8");
+    rt_page_end_svg(p);
+    rt_page_element(p, "title", NULL, "remtone cohort");
+    rt_page_element(p, "style", NULL,
+                    "body{font-family:sans-serif;max-width:980px;margin:1em auto;color:#222}"
+                    "table{border-collapse:collapse}td,th{border:1px solid #bbb;padding:2px 6px;"
+                    "text-align:right}td:first-child,th:first-child{text-align:left}"
+                    "svg text{font-size:11px}section{margin:1.5em 0}");
+    rt_page_end_html(p);
+    rt_page_start(p, "body");
+    rt_page_element(p, "h1", NULL, "Cohort overview");
+    rt_page_start(p, "p");
+    rt_page_textf(p, "%zu night%s: %zu scored, %zu failed. ", n, n == 1 ? "" : "s", n - failed,
+                  failed);
+    if (cal->computed)
+        rt_page_textf(p, "Calibration: positive group \"%s\" (%zu scored), negative group \"%s\" "
+                         "(%zu scored); other groups are shown, not used.",
+                      o->positive, cal->roc[0].n_pos, o->negative, cal->roc[0].n_neg);
+    else
+        rt_page_textf(p, "No calibration: it needs scored nights in both groups \"%s\" and "
+                         "\"%s\".", o->positive, o->negative);
+    rt_page_end_html(p);
+    rt_page_element(p, "p", NULL, rt_visual_scoring_note());
+    rt_page_element(p, "h2", NULL, "Nights");
+    nights_table(p, rows, n);
+    failures_list(p, rows, n, failed);
+    if (cal->computed) {
+        rt_page_element(p, "h2", NULL, "Calibration");
+        rt_page_element(p, "p", NULL, "A cutoff fitted to one cohort (Youden) is optimistic for "
+                                      "that cohort; check it on other nights before relying on it.");
+        summary_table(p, cal);
+    }
     for (int i = 0; i < RT_IX_COUNT; i++) {
         const rt_index_rule *rule = &rt_index_rules()[i];
-        start(h, "section");
-        start(h, "h2");
-        text(h, "%s (%s)", rule->title, rule->id);
-        end(h);
-        start(h, "p");
+        rt_page_start(p, "section");
+        rt_page_start(p, "h2");
+        rt_page_textf(p, "%s (%s)", rule->title, rule->id);
+        rt_page_end_html(p);
+        rt_page_start(p, "p");
         if (isfinite(cal->roc[i].auc))
-            text(h, "AUC %.3f; abnormal %s the cutoff; %zu positive, %zu negative nights.",
-                 cal->roc[i].auc, rule->lower_is_worse ? "below" : "at or above", cal->roc[i].n_pos,
-                 cal->roc[i].n_neg);
+            rt_page_textf(p, "AUC %.3f; abnormal %s the cutoff; %zu positive, %zu negative nights.",
+                          cal->roc[i].auc, rule->lower_is_worse ? "below" : "at or above",
+                          cal->roc[i].n_pos, cal->roc[i].n_neg);
         else
-            text(h, "No ROC: both calibration groups need nights with a value.");
-        end(h);
-        strip_plot(h, rows, n, i, cal, groups, n_groups);
-        roc_plot(h, &cal->roc[i]);
-        end(h);
+            rt_page_text(p, "No ROC: both calibration groups need nights with a value.");
+        rt_page_end_html(p);
+        strip_plot(p, rows, n, i, cal, groups, n_groups);
+        if (cal->computed)
+            roc_plot(p, &cal->roc[i], rule->id);
+        rt_page_end_html(p);
     }
-    end(h);
-    end(h);
+    rt_page_end_html(p);
+    rt_page_end_html(p);
 }
 
 rt_status cohort_write_html(const char *path, const cohort_row *rows, size_t n_rows,
                             const cohort_calibration *cal, const rt_cohort_options *o,
                             rt_error *err)
 {
-    writer h;
-    rt_status st = rt_page_open(&h.p, err);
+    rt_page p;
+    rt_status st = rt_page_open(&p, err);
     if (st != RT_OK)
         return st;
-    page(&h, rows, n_rows, cal, o);
-    return rt_page_save(&h.p, path, false, err);
+    page(&p, rows, n_rows, cal, o);
+    return rt_page_save(&p, path, false, err);
 }

@@ -9,6 +9,7 @@
 
 #include <dirent.h>
 #include <jansson.h>
+#include <unistd.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -73,6 +74,31 @@ static void reservation_codes(json_t *list, char *dst, size_t cap)
     }
 }
 
+/* The strings of a JSON array joined by " | " into *out (NULL when there are
+ * none); the caller frees it. */
+static rt_status join_texts(json_t *list, char **out, rt_error *err)
+{
+    *out = NULL;
+    size_t len = 0, n = json_is_array(list) ? json_array_size(list) : 0;
+    for (size_t i = 0; i < n; i++)
+        if (json_is_string(json_array_get(list, i)))
+            len += json_string_length(json_array_get(list, i)) + 3;
+    if (len == 0)
+        return RT_OK;
+    char *text = rt_calloc(len + 1, 1);
+    if (!text)
+        return rt_fail(err, RT_ERR_NOMEM, "out of memory for %zu bytes of warnings", len);
+    size_t used = 0;
+    for (size_t i = 0; i < n; i++) {
+        const char *w = json_string_value(json_array_get(list, i));
+        if (!w)
+            continue;
+        used += (size_t)snprintf(text + used, len + 1 - used, "%s%s", used ? " | " : "", w);
+    }
+    *out = text;
+    return RT_OK;
+}
+
 static rt_status read_result(const char *dir, const char *id, cohort_row *row, bool *complete,
                              rt_error *err)
 {
@@ -114,8 +140,11 @@ static rt_status read_result(const char *dir, const char *id, cohort_row *row, b
                                                       "value"));
     json_t *warnings = json_object_get(root, "warnings");
     row->warnings = json_is_array(warnings) ? (long)json_array_size(warnings) : 0;
+    rt_status st = join_texts(warnings, &row->warning_texts, err);
     json_decref(root);
-    return RT_OK;
+    cohort_night_path(path, sizeof path, dir, id, ".html");
+    row->page = access(path, F_OK) == 0;
+    return st;
 }
 
 static rt_status read_failure(const char *dir, const char *id, cohort_row *row, rt_error *err)
@@ -215,7 +244,7 @@ static rt_status write_table(const char *path, const rows *r, rt_error *err)
     fputs("id,group,flagged,level,reservations,rem_minutes,scorable_minutes", f);
     for (int i = 0; i < RT_IX_COUNT; i++)
         fprintf(f, ",%s", rt_index_rules()[i].id);
-    fputs(",warnings,error\n", f);
+    fputs(",warnings,warning_texts,error\n", f);
     int no_memory = 0; /* text fields go through rt_csv_put_field (src/common/text.h) */
     for (size_t k = 0; k < r->n && !no_memory; k++) {
         const cohort_row *row = &r->v[k];
@@ -236,6 +265,8 @@ static rt_status write_table(const char *path, const rows *r, rt_error *err)
         if (row->warnings >= 0)
             fprintf(f, "%ld", row->warnings);
         fputc(',', f);
+        no_memory |= rt_csv_put_field(f, row->warning_texts ? row->warning_texts : "");
+        fputc(',', f);
         no_memory |= rt_csv_put_field(f, row->error);
         fputc('\n', f);
     }
@@ -244,6 +275,51 @@ static rt_status write_table(const char *path, const rows *r, rt_error *err)
         return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", path);
     }
     return rt_output_commit(&o, err);
+}
+
+/* The nights of a group: the scored ones, or all with failed ones. */
+static size_t group_size(const rows *r, const char *group, bool scored_only)
+{
+    size_t n = 0;
+    for (size_t k = 0; k < r->n; k++)
+        n += strcmp(r->v[k].group, group) == 0 && !(scored_only && r->v[k].failed);
+    return n;
+}
+
+/* Whether both calibration groups have a scored night. A group the user named
+ * (groups_given) that no night of the table has is an error, found before
+ * anything is written, so a mistyped name cannot replace an earlier
+ * calibration; a default group without nights only means no calibration. */
+static rt_status check_groups(const rows *r, const rt_cohort_options *o, bool *both,
+                              rt_error *err)
+{
+    const char *names[2] = {o->positive, o->negative};
+    const char *which[2] = {"positive", "negative"};
+    *both = true;
+    for (int g = 0; g < 2; g++) {
+        if (group_size(r, names[g], true) > 0)
+            continue;
+        *both = false;
+        if (!o->groups_given || group_size(r, names[g], false) > 0)
+            continue;
+        char present[512] = "";
+        size_t used = 0;
+        for (size_t k = 0; k < r->n && used + 1 < sizeof present; k++) {
+            bool seen = false;
+            for (size_t j = 0; j < k && !seen; j++)
+                seen = strcmp(r->v[j].group, r->v[k].group) == 0;
+            if (!seen)
+                used += (size_t)snprintf(present + used, sizeof present - used, "%s\"%s\"",
+                                         used ? ", " : "", r->v[k].group);
+        }
+        if (used >= sizeof present)
+            rt_copy_string(present + sizeof present - 5, 5, "...");
+        return rt_fail(err, RT_ERR_STAGING,
+                       "%s/nights: no night is in the %s group \"%s\" (the groups present: %s); "
+                       "nothing was written",
+                       o->out_dir, which[g], names[g], used ? present : "none");
+    }
+    return RT_OK;
 }
 
 static rt_status calibrate(const rows *r, const rt_cohort_options *o, cohort_calibration *cal,
@@ -255,6 +331,15 @@ static rt_status calibrate(const rows *r, const rt_cohort_options *o, cohort_cal
     rt_status st = o->cutoffs_path ? rt_cutoffs_load(&in_force, o->cutoffs_path, err) : RT_OK;
     if (st != RT_OK)
         return st;
+    for (int i = 0; i < RT_IX_COUNT; i++) {
+        cal->published[i] = published.has[i] ? published.value[i] : NAN;
+        cal->in_force[i] = in_force.has[i] ? in_force.value[i] : NAN;
+        cal->sens_published[i] = cal->spec_published[i] = NAN;
+        cal->sens_in_force[i] = cal->spec_in_force[i] = NAN;
+        cal->roc[i].auc = cal->roc[i].auc_var = cal->roc[i].youden_cutoff = NAN;
+    }
+    if (!cal->computed)
+        return RT_OK;
     double *values = rt_calloc(r->n + 1, sizeof *values);
     bool *positive = rt_calloc(r->n + 1, sizeof *positive);
     if (!values || !positive) {
@@ -278,8 +363,6 @@ static rt_status calibrate(const rows *r, const rt_cohort_options *o, cohort_cal
             positive[n++] = pos;
         }
         st = rt_roc_compute(values, positive, n, rule->lower_is_worse, &cal->roc[i], err);
-        cal->published[i] = published.has[i] ? published.value[i] : NAN;
-        cal->in_force[i] = in_force.has[i] ? in_force.value[i] : NAN;
         rt_roc_at_cutoff(values, positive, n, rule->lower_is_worse, cal->published[i],
                          &cal->sens_published[i], &cal->spec_published[i]);
         rt_roc_at_cutoff(values, positive, n, rule->lower_is_worse, cal->in_force[i],
@@ -362,17 +445,21 @@ rt_status rt_cohort_merge(const rt_cohort_options *o, rt_cohort_merge_summary *s
     rows r = {NULL, 0, 0};
     cohort_calibration *cal = rt_calloc(1, sizeof *cal);
     rt_status st = cal ? read_nights(dir, &r, &s, err) : rt_fail(err, RT_ERR_NOMEM, "out of memory");
+    /* everything that can fail on the inputs runs before the first file is
+     * replaced: the groups, the cutoff file, the calibration itself */
+    if (st == RT_OK)
+        st = check_groups(&r, &opts, &cal->computed, err);
+    if (st == RT_OK)
+        st = calibrate(&r, &opts, cal, &s, err);
     if (st == RT_OK) {
         snprintf(path, sizeof path, "%s/cohort.csv", o->out_dir);
         st = write_table(path, &r, err);
     }
-    if (st == RT_OK)
-        st = calibrate(&r, &opts, cal, &s, err);
-    if (st == RT_OK) {
+    if (st == RT_OK && cal->computed) {
         snprintf(path, sizeof path, "%s/calibration.csv", o->out_dir);
         st = write_calibration(path, cal, err);
     }
-    if (st == RT_OK) {
+    if (st == RT_OK && cal->computed) {
         snprintf(path, sizeof path, "%s/calibrated-cutoffs.csv", o->out_dir);
         st = write_calibrated_cutoffs(path, cal, err);
     }
@@ -380,10 +467,13 @@ rt_status rt_cohort_merge(const rt_cohort_options *o, rt_cohort_merge_summary *s
         snprintf(path, sizeof path, "%s/cohort.html", o->out_dir);
         st = cohort_write_html(path, r.v, r.n, cal, &opts, err);
     }
+    s.calibrated = cal && cal->computed;
     if (cal)
         for (int i = 0; i < RT_IX_COUNT; i++)
             rt_roc_free(&cal->roc[i]);
     free(cal);
+    for (size_t k = 0; k < r.n; k++)
+        free(r.v[k].warning_texts);
     free(r.v);
     if (summary)
         *summary = s;

@@ -144,7 +144,7 @@ static bool result_current(const char *json_path, const char *key_path,
 }
 
 static rt_status score_and_write(const cohort_shared *s, const rt_manifest_entry *e,
-                                 const char *json_path, rt_error *err)
+                                 const char *json_path, const char *page_path, rt_error *err)
 {
     rt_recording *rec = NULL;
     rt_timeline *tl = NULL;
@@ -172,6 +172,10 @@ static rt_status score_and_write(const cohort_shared *s, const rt_manifest_entry
     if (st == RT_OK) {
         rt_run_inputs in = {e->recording, e->stages, e->events, s->options->cutoffs_path, NULL};
         st = rt_night_write_json(night, &in, json_path, err);
+    }
+    if (st == RT_OK && s->options->pages) {
+        rt_report_options ro_page = {false, e->id}; /* de-identified, named by the id */
+        st = rt_night_write_html(night, rec, tl, &ro_page, page_path, err);
     }
     rt_night_free(night);
     rt_timeline_free(tl);
@@ -227,27 +231,34 @@ static void write_error(const cohort_shared *s, const rt_manifest_entry *e, cons
 
 night_outcome cohort_night(const cohort_shared *s, const rt_manifest_entry *e)
 {
-    char json_path[COHORT_PATH_MAX], key_path[COHORT_PATH_MAX], err_path[COHORT_PATH_MAX];
+    char json_path[COHORT_PATH_MAX], key_path[COHORT_PATH_MAX], err_path[COHORT_PATH_MAX],
+        page_path[COHORT_PATH_MAX];
     rt_error err;
     rt_error_clear(&err);
     if (!cohort_night_path(json_path, sizeof json_path, s->nights_dir, e->id, ".json") ||
         !cohort_night_path(key_path, sizeof key_path, s->nights_dir, e->id, ".key") ||
-        !cohort_night_path(err_path, sizeof err_path, s->nights_dir, e->id, ".error.json")) {
+        !cohort_night_path(err_path, sizeof err_path, s->nights_dir, e->id, ".error.json") ||
+        !cohort_night_path(page_path, sizeof page_path, s->nights_dir, e->id, ".html")) {
         rt_fail(&err, RT_ERR_USAGE, "%s: output path too long", e->id);
         write_error(s, e, &err);
         return NIGHT_FAILED;
     }
     json_t *identity = NULL;
     rt_status st = night_identity(s, e, &identity, &err);
-    if (st == RT_OK && !s->options->force && result_current(json_path, key_path, e, identity)) {
+    if (st == RT_OK && !s->options->force && result_current(json_path, key_path, e, identity) &&
+        (!s->options->pages || access(page_path, F_OK) == 0)) {
         json_decref(identity);
         return NIGHT_SKIPPED;
     }
     if (st == RT_OK && unlink(key_path) != 0 && errno != ENOENT)
         st = rt_fail(&err, rt_errno_status(errno, RT_ERR_IO), "%s: cannot remove: %s", key_path,
                      strerror(errno));
+    /* a page of an older result must not sit beside the new one */
+    if (st == RT_OK && unlink(page_path) != 0 && errno != ENOENT)
+        st = rt_fail(&err, rt_errno_status(errno, RT_ERR_IO), "%s: cannot remove: %s", page_path,
+                     strerror(errno));
     if (st == RT_OK)
-        st = score_and_write(s, e, json_path, &err);
+        st = score_and_write(s, e, json_path, page_path, &err);
     if (st == RT_OK) {
         json_t *k = key_json(e, identity);
         st = k ? write_json_atomic(k, key_path, &err) : rt_fail(&err, RT_ERR_NOMEM, "out of memory");
@@ -258,6 +269,7 @@ night_outcome cohort_night(const cohort_shared *s, const rt_manifest_entry *e)
         /* a stale result of older inputs must not outlive a failed rescoring */
         unlink(json_path);
         unlink(key_path);
+        unlink(page_path);
         write_error(s, e, &err);
         append_log(s->log_path, "failed", e->id);
         return NIGHT_FAILED;

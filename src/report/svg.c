@@ -297,6 +297,30 @@ void rt_svg_text(rt_page *p, double x, double y, const char *anchor, const char 
     rt_page_end_html(p);
 }
 
+size_t rt_axis_ticks(double lo, double hi, int max_steps, double *ticks, size_t cap)
+{
+    if (!isfinite(lo) || !isfinite(hi) || hi < lo || cap == 0)
+        return 0;
+    if (max_steps < 1)
+        max_steps = 1;
+    double span = hi > lo ? hi - lo : fmax(fabs(hi), 1.0);
+    double raw = span / max_steps, mag = pow(10.0, floor(log10(raw))), step = 10.0 * mag;
+    static const double multiples[] = {1.0, 2.0, 5.0};
+    for (size_t k = 0; k < 3; k++)
+        if (multiples[k] * mag >= raw * (1.0 - 1e-9)) {
+            step = multiples[k] * mag;
+            break;
+        }
+    double first = floor(lo / step + 1e-9) * step;
+    size_t n = 0;
+    for (double t = first; n < cap; t = first + step * (double)n) {
+        ticks[n++] = fabs(t) < 1e-12 * step ? 0.0 : t;
+        if (t >= hi - 1e-9 * step)
+            break;
+    }
+    return n;
+}
+
 void rt_report_clock(const rt_clock_time *start, double onset_s, char *buf, size_t cap)
 {
     double t = start->hour * 3600.0 + start->minute * 60.0 + start->second + start->subsecond +

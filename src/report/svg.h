@@ -87,6 +87,13 @@ void rt_svg_polyline(rt_page *p, const double *xs, const double *ys, size_t n, c
 void rt_svg_text(rt_page *p, double x, double y, const char *anchor, const char *cls,
                  const char *text);
 
+/* Round axis ticks over [lo, hi]: steps of 1, 2 or 5 times a power of ten,
+ * at most max_steps of them (at least 1), the first tick at or below lo and
+ * the last at or above hi, so the axis can end on a labelled tick. Writes up
+ * to cap ticks and returns how many; 0 when lo or hi is not finite or
+ * hi < lo. */
+size_t rt_axis_ticks(double lo, double hi, int max_steps, double *ticks, size_t cap);
+
 /* Times, evidence order and file names: report_internal.h. */
 
 #endif

@@ -143,12 +143,66 @@ has unsafe-names-row "$work/err" "line 2: id '../evil' is not a safe file name"
 printf 'id,recording,stages,events,group\nr1,r1/night.edf,r1/stages.csv,,case\nbroken,r1/stages.csv,r1/stages.csv,,case\nr1b,r1/night.edf,r1/stages.csv,,other\nr1c,r1/night.edf,r1/stages.csv,,other\n' > data/mixed.csv
 expect failing-night 0 "$bin" cohort data/mixed.csv --out mixed --jobs 2
 has failing-counted "$work/out" "3 scored, 0 already current, 1 failed"
+has no-calibration-said "$work/out" "no calibration: it needs nights in both groups"
 [ -s mixed/nights/broken.error.json ] && ok error-record || bad error-record
 expect error-record-shape 0 "$py" -c '
 import json,sys; d=json.load(open(sys.argv[1]))
 assert d["id"]=="broken" and d["status"]=="recording" and d["exit_code"]==4 and "stages.csv" in d["message"]' mixed/nights/broken.error.json
 has failed-row mixed/cohort.csv "broken,case,,failed,,"
+# the cohort page lists every night and every failure with its message; no
+# calibration without a "control" night, and no calibration file is written
+has failed-on-page mixed/cohort.html "broken"
+has failed-message-on-page mixed/cohort.html "stages.csv"
+[ ! -e mixed/calibration.csv ] && [ ! -e mixed/calibrated-cutoffs.csv ] && ok no-calibration-files || bad no-calibration-files
 expect help 0 "$bin" cohort --help
+
+# ---- cohort.csv carries each night's warning texts, as its JSON has them
+expect warning-texts 0 "$py" -c '
+import csv,json,sys
+for r in csv.DictReader(open(sys.argv[1]+"/cohort.csv")):
+    w=json.load(open(sys.argv[1]+"/nights/"+r["id"]+".json"))["warnings"]
+    assert r["warning_texts"]==" | ".join(w), (r["id"], r["warning_texts"], w)
+    assert int(r["warnings"])==len(w)' ref
+
+# ---- a named group that no night has: exit 5, the groups present named, and
+# nothing replaced (the earlier calibration survives a mistyped name)
+cp ref/calibration.csv "$work/cal.before"; cp ref/cohort.csv "$work/table.before"
+expect unknown-group 5 "$bin" cohort-merge ref --positive cases
+has unknown-group-names "$work/err" 'no night is in the positive group "cases" (the groups present: "case", "control")'
+cmp -s ref/calibration.csv "$work/cal.before" && cmp -s ref/cohort.csv "$work/table.before" && ok unknown-group-keeps-files || bad unknown-group-keeps-files
+expect unknown-negative 5 "$bin" cohort-merge ref --negative healthy
+
+# ---- --html: each night's own page, linked from the cohort page; a current
+# result without its page is scored again, then everything is current
+expect pages 0 "$bin" cohort data/manifest.csv --out ref --jobs 2 --html
+has pages-rescored "$work/out" "6 scored, 0 already current"
+for id in $ids; do [ -s "ref/nights/$id.html" ] || bad "page $id missing"; done
+expect pages-rerun 0 "$bin" cohort data/manifest.csv --out ref --jobs 2 --html
+has pages-current "$work/out" "0 scored, 6 already current"
+# the page: every night linked, round axis ticks (steps of 1, 2 or 5 times a
+# power of ten: common practice), labelled ROC axes
+expect cohort-page 0 "$py" -c '
+import math,re,sys,xml.etree.ElementTree as ET
+root=ET.parse(sys.argv[1]).getroot()
+ns="{http://www.w3.org/1999/xhtml}"
+links=[a.get("href") for a in root.iter() if a.tag.endswith("}a") or a.tag=="a"]
+for i in "r1 r2 r3 t4 t5 t6".split():
+    assert "nights/%s.html"%i in links, (i, links)
+texts=["".join(t.itertext()) for t in root.iter() if t.tag.endswith("text")]
+assert "1 - specificity (false-positive rate)" in texts and "sensitivity (true-positive rate)" in texts
+svgs=[e for e in root.iter() if e.tag.endswith("svg") and (e.get("aria-label") or "").endswith("by group")]
+assert svgs
+for svg in svgs:
+    ticks=[]
+    for t in svg.iter():
+        if t.tag.endswith("text") and t.get("y") and re.fullmatch(r"-?[0-9.]+(e[-+]?[0-9]+)?", "".join(t.itertext())):
+            ticks.append(float("".join(t.itertext())))
+    ticks=sorted(set(ticks))
+    assert ticks[0]==0 and len(ticks)>=2, ticks
+    step=ticks[1]-ticks[0]
+    mant=step/10**math.floor(math.log10(step))
+    assert min(abs(mant-m) for m in (1,2,5))<1e-9, (svg.get("aria-label"), ticks)
+    assert all(abs((b-a)-step)<1e-9*step for a,b in zip(ticks,ticks[1:])), ticks' ref/cohort.html
 
 echo "$fails failure(s)"
 [ "$fails" = 0 ]
