@@ -6,10 +6,11 @@
 #include <unistd.h>
 
 #include "cli.h"
+#include "exclusion_opts.h"
 #include "remtone/cohort.h"
 
 enum { KEY_OUT = 1, KEY_JOBS, KEY_FORCE, KEY_PART, KEY_CUTOFFS, KEY_POSITIVE, KEY_NEGATIVE,
-       KEY_QUIET, KEY_MIN_REM, KEY_THREADS, KEY_PAGES };
+       KEY_QUIET, KEY_MIN_REM, KEY_THREADS, KEY_PAGES, KEY_PER_SUBJECT };
 
 static const cli_option OPTIONS[] = {
     {"out", 1, KEY_OUT, "DIR", "output folder (created when missing; required)"},
@@ -25,6 +26,8 @@ static const cli_option OPTIONS[] = {
     {"positive", 1, KEY_POSITIVE, "GROUP", "group of the positive class for calibration (default case)"},
     {"negative", 1, KEY_NEGATIVE, "GROUP", "group of the negative class (default control)"},
     {"min-rem", 1, KEY_MIN_REM, "MIN", "least scorable REM minutes for an assessable night (default 5)"},
+    {"per-subject", 0, KEY_PER_SUBJECT, NULL, "calibrate on subjects (each one's mean), not nights"},
+    CLI_EXCLUSION_OPTIONS,
     {"quiet", 0, KEY_QUIET, NULL, "no progress line and no summary"},
     {0},
 };
@@ -33,6 +36,7 @@ static const cli_option MERGE_OPTIONS[] = {
     {"cutoffs", 1, KEY_CUTOFFS, "FILE", "cutoffs the run used (tabulated besides the published ones)"},
     {"positive", 1, KEY_POSITIVE, "GROUP", "group of the positive class (default case)"},
     {"negative", 1, KEY_NEGATIVE, "GROUP", "group of the negative class (default control)"},
+    {"per-subject", 0, KEY_PER_SUBJECT, NULL, "calibrate on subjects (each one's mean), not nights"},
     {"quiet", 0, KEY_QUIET, NULL, "no summary"},
     {0},
 };
@@ -67,11 +71,15 @@ static int parse_part(cohort_config *c, const char *arg)
 static int on_option(void *ctx, int key, const char *arg)
 {
     cohort_config *c = ctx;
+    int rc = EXIT_OK;
+    if (cli_exclusion_option(c->cmd, &c->o.params, &c->o.label_map_path, key, arg, &rc))
+        return rc;
     char *end = NULL;
     switch (key) {
     case KEY_OUT: c->o.out_dir = arg; break;
     case KEY_FORCE: c->o.force = true; break;
     case KEY_PAGES: c->o.pages = true; break;
+    case KEY_PER_SUBJECT: c->o.per_subject = true; break;
     case KEY_CUTOFFS: c->o.cutoffs_path = arg; break;
     case KEY_POSITIVE: c->o.positive = arg; c->o.groups_given = true; break;
     case KEY_NEGATIVE: c->o.negative = arg; c->o.groups_given = true; break;
@@ -129,7 +137,7 @@ static void show_progress(const rt_cohort_progress *p, void *user)
 static int check_outputs(const cohort_config *c, const char *manifest_path, const rt_manifest *m)
 {
     static const char *const NAMES[] = {"cohort.csv", "calibration.csv", "calibrated-cutoffs.csv",
-                                        "cohort.html", "cohort.log"};
+                                        "cohort.html", "cohort.log", "subjects.csv"};
     enum { N = sizeof NAMES / sizeof NAMES[0] };
     char paths[N][4096];
     cli_output outputs[N];
@@ -137,18 +145,20 @@ static int check_outputs(const cohort_config *c, const char *manifest_path, cons
         snprintf(paths[i], sizeof paths[i], "%s/%s", c->o.out_dir, NAMES[i]);
         outputs[i] = (cli_output){"out", paths[i]};
     }
-    size_t n_inputs = 2 + (m ? 3 * m->n_entries : 0);
+    enum { PER_ROW = 5 };
+    size_t n_inputs = 3 + (m ? PER_ROW * m->n_entries : 0);
     const char **inputs = calloc(n_inputs, sizeof *inputs);
     if (!inputs) {
         fprintf(stderr, "remtone %s: out of memory\n", c->cmd);
-        return EXIT_INTERNAL;
+        return EXIT_NOMEM;
     }
     inputs[0] = manifest_path;
     inputs[1] = c->o.cutoffs_path;
+    inputs[2] = c->o.label_map_path;
     for (size_t i = 0; m && i < m->n_entries; i++) {
-        inputs[2 + 3 * i] = m->entries[i].recording;
-        inputs[3 + 3 * i] = m->entries[i].stages;
-        inputs[4 + 3 * i] = m->entries[i].events;
+        const rt_manifest_entry *e = &m->entries[i];
+        const char *row[PER_ROW] = {e->recording, e->stages, e->events, e->label_map, e->cutoffs};
+        memcpy(&inputs[3 + PER_ROW * i], row, sizeof row);
     }
     int rc = cli_check_outputs(c->cmd, outputs, N, inputs, n_inputs);
     free(inputs);
@@ -168,8 +178,8 @@ static int merge_and_report(cohort_config *c)
     printf("%s: %zu nights in cohort.csv (%zu scored, %zu failed%s); ", c->o.out_dir, s.nights,
            s.scored, s.failed, s.incomplete ? ", some incomplete results ignored" : "");
     if (s.calibrated)
-        printf("calibration on %zu \"%s\" and %zu \"%s\" nights\n", s.positives, c->o.positive,
-               s.negatives, c->o.negative);
+        printf("calibration on %zu \"%s\" and %zu \"%s\" %s\n", s.positives, c->o.positive,
+               s.negatives, c->o.negative, c->o.per_subject ? "subjects" : "nights");
     else
         printf("no calibration: it needs nights in both groups \"%s\" and \"%s\" "
                "(--positive, --negative)\n", c->o.positive, c->o.negative);

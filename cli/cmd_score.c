@@ -3,11 +3,11 @@
 #include <string.h>
 
 #include "cli.h"
+#include "exclusion_opts.h"
 #include "roles_opts.h"
 
 enum {
-    KEY_STAGES = 1, KEY_EVENTS, KEY_JSON, KEY_CUTOFFS, KEY_LABELS, KEY_MIN_REM, KEY_QUIET,
-    KEY_KEEP_ARTIFACTS, KEY_KEEP_SNORING, KEY_KEEP_RESPIRATORY, KEY_EVENT_MARGIN,
+    KEY_STAGES = 1, KEY_EVENTS, KEY_JSON, KEY_CUTOFFS, KEY_MIN_REM, KEY_QUIET,
     KEY_HTML, KEY_MINIS, KEY_ANNOTATIONS, KEY_SHOW_IDENTITY, KEY_RECORDING_ID, KEY_THREADS
 };
 
@@ -16,14 +16,9 @@ static const cli_option OPTIONS[] = {
     {"events", 1, KEY_EVENTS, "FILE", "event table CSV (arousals, respiratory events, ...)"},
     {"json", 1, KEY_JSON, "PATH", "write the night result as JSON ('-' for standard output)"},
     {"cutoffs", 1, KEY_CUTOFFS, "FILE", "a lab's own cutoffs (CSV index,cutoff) instead of the published ones"},
-    {"label-map", 1, KEY_LABELS, "FILE", "map local stage or event labels (CSV label,meaning)"},
     {"min-rem", 1, KEY_MIN_REM, "MIN", "least scorable REM minutes for an assessable night (default 5)"},
     {"quiet", 0, KEY_QUIET, NULL, "do not print the text summary"},
-    {"keep-artifacts", 0, KEY_KEEP_ARTIFACTS, NULL, "score mini-epochs under artifact events too"},
-    {"keep-snoring", 0, KEY_KEEP_SNORING, NULL, "score mini-epochs under snoring events too"},
-    {"keep-respiratory", 0, KEY_KEEP_RESPIRATORY, NULL,
-     "score mini-epochs under respiratory events and their arousals too"},
-    {"event-margin", 1, KEY_EVENT_MARGIN, "S", "widen every excluding event by S seconds each side (default 0)"},
+    CLI_EXCLUSION_OPTIONS,
     {"html", 1, KEY_HTML, "PATH", "write the review report, one self-contained HTML page ('-' for standard output)"},
     {"minis", 1, KEY_MINIS, "PATH", "write the audit table: one CSV row per REM 3-s mini-epoch and channel"},
     {"annotations", 1, KEY_ANNOTATIONS, "PATH", "write the detected activity as an EDF+ annotation file"},
@@ -51,29 +46,21 @@ static int on_option(void *ctx, int key, const char *arg)
     score_config *c = ctx;
     if (cli_role_option(&c->roles, key, arg))
         return EXIT_OK;
+    int rc = EXIT_OK;
+    if (cli_exclusion_option("score", &c->params, &c->labels, key, arg, &rc))
+        return rc;
     char *end = NULL;
     switch (key) {
     case KEY_STAGES: c->stages = arg; break;
     case KEY_EVENTS: c->events = arg; break;
     case KEY_JSON: c->json = arg; break;
     case KEY_CUTOFFS: c->cutoffs = arg; break;
-    case KEY_LABELS: c->labels = arg; break;
     case KEY_QUIET: c->quiet = 1; break;
     case KEY_HTML: c->html = arg; break;
     case KEY_MINIS: c->minis = arg; break;
     case KEY_ANNOTATIONS: c->annotations = arg; break;
     case KEY_SHOW_IDENTITY: c->report.show_identity = true; break;
     case KEY_RECORDING_ID: c->report.recording_id = arg; break;
-    case KEY_KEEP_ARTIFACTS: c->params.exclude_artifacts = false; break;
-    case KEY_KEEP_SNORING: c->params.exclude_snoring = false; break;
-    case KEY_KEEP_RESPIRATORY: c->params.exclude_respiratory = false; break;
-    case KEY_EVENT_MARGIN:
-        c->params.event_margin_s = strtod(arg, &end);
-        if (*end || !(c->params.event_margin_s >= 0 && c->params.event_margin_s <= 60)) {
-            fprintf(stderr, "remtone score: --event-margin must be 0 to 60 seconds, got '%s'\n", arg);
-            return EXIT_USAGE;
-        }
-        break;
     case KEY_THREADS: {
         long n = strtol(arg, &end, 10);
         if (end == arg || *end || n < 1 || n > 256) {

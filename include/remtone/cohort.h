@@ -39,9 +39,14 @@ enum {
 typedef struct rt_manifest_entry {
     char id[RT_COHORT_ID_MAX + 1];
     char group[RT_COHORT_GROUP_MAX + 1]; /* "" when the row gives none */
+    char subject[RT_COHORT_GROUP_MAX + 1]; /* the person, "" when the row gives none */
+    char visit[RT_COHORT_GROUP_MAX + 1];   /* the visit or date, "" when none; a subject's
+                                              nights are ordered by it (as text) */
     char *recording;          /* resolved path, never NULL */
     char *stages;             /* resolved path; NULL = the recording's own annotations */
     char *events;             /* resolved path; NULL when none */
+    char *label_map;          /* resolved path of the row's label map; NULL = the run's */
+    char *cutoffs;            /* resolved path of the row's cutoff file; NULL = the run's */
     char *role_override[RT_ROLE_COUNT]; /* per-row role overrides ("LABEL" or "A-B"); NULL = detect */
     long line;                /* manifest line of the row */
 } rt_manifest_entry;
@@ -54,7 +59,9 @@ typedef struct rt_manifest {
 
 /* Reads a manifest: CSV (comma or tab) with header `id,recording,stages,events,group`
  * (events and group may be empty; stages may be empty to use the recording's
- * EDF+ annotations) and optional columns named after roles (`chin`,
+ * EDF+ annotations), optional columns `subject`, `visit`, `label_map` and
+ * `cutoffs` (a row's own label map and cutoff file, for nights of several
+ * sites) and optional columns named after roles (`chin`,
  * `arm-left`, `arm-right`, `leg-left`, `leg-right`, `ecg`) that override
  * detection for that night. Relative paths resolve against the manifest's
  * folder. Errors name the file and line: a missing input file (RT_ERR_IO), a
@@ -102,7 +109,12 @@ typedef struct rt_cohort_options {
                                   a current result without its page is scored again */
     unsigned part;             /* this run's slice, 1..part_count (1-based) */
     unsigned part_count;       /* number of slices; 0 or 1 = the whole manifest */
-    const char *cutoffs_path;  /* a lab's cutoff file (rt_cutoffs_load), NULL = published */
+    const char *cutoffs_path;  /* a lab's cutoff file (rt_cutoffs_load), NULL = published; a
+                                  row's own `cutoffs` column replaces it for that night */
+    const char *label_map_path; /* stage and event labels (rt_labelmap_load) of every night,
+                                  NULL = none; a row's own `label_map` column replaces it */
+    bool per_subject;          /* calibrate on subjects, not nights: each subject's mean
+                                  value of every index, so one person counts once */
     rt_score_params params;    /* scoring parameters (rt_score_params_default) */
     const char *positive;      /* calibration: group of the positive class, default "case" */
     const char *negative;      /* calibration: group of the negative class, default "control" */
@@ -135,8 +147,9 @@ typedef struct rt_cohort_merge_summary {
     size_t scored;        /* nights with a result */
     size_t failed;        /* nights with an error record */
     size_t incomplete;    /* results without a key (a run stopped between the two): ignored */
-    size_t positives;     /* scored nights of the positive group */
-    size_t negatives;     /* scored nights of the negative group */
+    size_t positives;     /* scored nights (subjects, with per_subject) of the positive group */
+    size_t negatives;     /* scored nights (subjects, with per_subject) of the negative group */
+    size_t subjects;      /* subjects named in the manifest (subjects.csv rows) */
     bool calibrated;      /* false when a group had no scored night: calibration.csv and
                              calibrated-cutoffs.csv were then left as they were */
 } rt_cohort_merge_summary;

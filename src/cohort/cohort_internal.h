@@ -4,6 +4,9 @@
 #define REMTONE_COHORT_INTERNAL_H
 
 #include <stddef.h>
+#include <stdio.h>
+
+#include "output.h"
 
 #include "remtone/cohort.h"
 
@@ -40,6 +43,8 @@ int cohort_night_path(char *dst, size_t cap, const char *nights_dir, const char 
 typedef struct cohort_row {
     char id[RT_COHORT_ID_MAX + 1];
     char group[RT_COHORT_GROUP_MAX + 1];
+    char subject[RT_COHORT_GROUP_MAX + 1]; /* "" when the manifest gave none */
+    char visit[RT_COHORT_GROUP_MAX + 1];
     bool failed;
     bool flagged;
     char level[32];              /* review level, or "failed" */
@@ -65,7 +70,49 @@ typedef struct cohort_calibration {
     double sens_in_force[RT_IX_COUNT], spec_in_force[RT_IX_COUNT];
 } cohort_calibration;
 
+/* A number in a cohort CSV (%.10g; nothing when not finite). */
+void cohort_put_number(FILE *f, double v);
+/* Commits a CSV written through o, or aborts it when a field ran out of
+ * memory (RT_ERR_NOMEM naming the file). */
+rt_status cohort_csv_commit(rt_output *o, int no_memory, rt_error *err);
+
+/* One subject of the cohort (rows with the same `subject`). */
+typedef struct cohort_subject {
+    char name[RT_COHORT_GROUP_MAX + 1];
+    char group[RT_COHORT_GROUP_MAX + 1]; /* the first night's group */
+    bool mixed_group;                    /* its nights are in more than one group */
+    size_t first, n;                     /* its nights: order[first .. first + n) */
+    size_t scored, flagged;              /* nights scored, and flagged among them */
+    double mean[RT_IX_COUNT], min[RT_IX_COUNT], max[RT_IX_COUNT];
+    double change[RT_IX_COUNT];          /* largest |difference| between a night and the
+                                            subject's next night with a value (visit order);
+                                            NaN with fewer than two values */
+} cohort_subject;
+
+typedef struct cohort_subjects {
+    cohort_subject *v;
+    size_t n;
+    size_t *order;   /* row indices by subject, then visit (as text), then id */
+    size_t n_rows;   /* rows that have a subject */
+} cohort_subjects;
+
+/* Groups rows by subject; rows without one are left out. */
+rt_status cohort_subjects_build(const cohort_row *rows, size_t n_rows, cohort_subjects *out,
+                                rt_error *err);
+void cohort_subjects_free(cohort_subjects *s);
+/* "agrees", "differs" (some nights flagged, some not) or "one night". */
+const char *cohort_subject_agreement(const cohort_subject *s);
+/* subjects.csv (docs/cohort.md). */
+rt_status cohort_write_subjects(const char *path, const cohort_subjects *subjects, rt_error *err);
+/* The rows a calibration on subjects uses: one per subject holding its mean
+ * values (failed when it has no scored night), then every night without a
+ * subject as it is. RT_ERR_STAGING when a subject's nights are in more than
+ * one group. *out is freed by the caller (not its warning texts: none). */
+rt_status cohort_subject_rows(const cohort_row *rows, size_t n_rows,
+                              const cohort_subjects *subjects, const char *out_dir,
+                              cohort_row **out, size_t *n_out, rt_error *err);
+
 rt_status cohort_write_html(const char *path, const cohort_row *rows, size_t n_rows,
-                            const cohort_calibration *cal, const rt_cohort_options *options,
-                            rt_error *err);
+                            const cohort_subjects *subjects, const cohort_calibration *cal,
+                            const rt_cohort_options *options, rt_error *err);
 #endif

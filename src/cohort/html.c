@@ -256,8 +256,37 @@ static void failures_list(rt_page *p, const cohort_row *rows, size_t n, size_t f
     rt_page_end_html(p);
 }
 
-static void page(rt_page *p, const cohort_row *rows, size_t n, const cohort_calibration *cal,
-                 const rt_cohort_options *o)
+/* Each subject on one line: its nights in visit order with their levels,
+ * and whether the flag agrees across them. */
+static void subjects_list(rt_page *p, const cohort_row *rows, const cohort_subjects *subjects)
+{
+    if (subjects->n == 0)
+        return;
+    rt_page_element(p, "h2", NULL, "Subjects");
+    rt_page_element(p, "p", NULL, "Nights of the same subject in visit order, with their review "
+                                  "levels; the flag agrees when every scored night of the subject "
+                                  "is flagged, or none is. subjects.csv holds each index's mean, "
+                                  "range and largest change from one night to the next.");
+    rt_page_start(p, "ul");
+    for (size_t j = 0; j < subjects->n; j++) {
+        const cohort_subject *s = &subjects->v[j];
+        rt_page_start(p, "li");
+        rt_page_element(p, "strong", NULL, s->name);
+        rt_page_textf(p, " (%s): ", s->mixed_group ? "groups differ" : s->group[0] ? s->group
+                                                                                  : "no group");
+        for (size_t k = 0; k < s->n; k++) {
+            const cohort_row *r = &rows[subjects->order[s->first + k]];
+            rt_page_textf(p, "%s%s%s%s %s", k ? "; " : "", r->id, r->visit[0] ? " " : "", r->visit,
+                          r->level);
+        }
+        rt_page_textf(p, " -- flag %s", cohort_subject_agreement(s));
+        rt_page_end_html(p);
+    }
+    rt_page_end_html(p);
+}
+
+static void page(rt_page *p, const cohort_row *rows, size_t n, const cohort_subjects *subjects,
+                 const cohort_calibration *cal, const rt_cohort_options *o)
 {
     const char *groups[64];
     size_t n_groups = list_groups(rows, n, o, groups, 64);
@@ -283,10 +312,11 @@ static void page(rt_page *p, const cohort_row *rows, size_t n, const cohort_cali
     rt_page_start(p, "p");
     rt_page_textf(p, "%zu night%s: %zu scored, %zu failed. ", n, n == 1 ? "" : "s", n - failed,
                   failed);
+    const char *unit = o->per_subject ? "subjects" : "nights";
     if (cal->computed)
-        rt_page_textf(p, "Calibration: positive group \"%s\" (%zu scored), negative group \"%s\" "
-                         "(%zu scored); other groups are shown, not used.",
-                      o->positive, cal->roc[0].n_pos, o->negative, cal->roc[0].n_neg);
+        rt_page_textf(p, "Calibration on %s: positive group \"%s\" (%zu scored), negative group "
+                         "\"%s\" (%zu scored); other groups are shown, not used.",
+                      unit, o->positive, cal->roc[0].n_pos, o->negative, cal->roc[0].n_neg);
     else
         rt_page_textf(p, "No calibration: it needs scored nights in both groups \"%s\" and "
                          "\"%s\".", o->positive, o->negative);
@@ -295,6 +325,7 @@ static void page(rt_page *p, const cohort_row *rows, size_t n, const cohort_cali
     rt_page_element(p, "h2", NULL, "Nights");
     nights_table(p, rows, n);
     failures_list(p, rows, n, failed);
+    subjects_list(p, rows, subjects);
     if (cal->computed) {
         rt_page_element(p, "h2", NULL, "Calibration");
         rt_page_element(p, "p", NULL, "A cutoff fitted to one cohort (Youden) is optimistic for "
@@ -325,13 +356,13 @@ static void page(rt_page *p, const cohort_row *rows, size_t n, const cohort_cali
 }
 
 rt_status cohort_write_html(const char *path, const cohort_row *rows, size_t n_rows,
-                            const cohort_calibration *cal, const rt_cohort_options *o,
-                            rt_error *err)
+                            const cohort_subjects *subjects, const cohort_calibration *cal,
+                            const rt_cohort_options *o, rt_error *err)
 {
     rt_page p;
     rt_status st = rt_page_open(&p, err);
     if (st != RT_OK)
         return st;
-    page(&p, rows, n_rows, cal, o);
+    page(&p, rows, n_rows, subjects, cal, o);
     return rt_page_save(&p, path, false, err);
 }

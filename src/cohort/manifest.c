@@ -1,5 +1,7 @@
 /* The cohort manifest: one row per night naming its recording, staging,
- * events, group and any per-night channel overrides. Read with the shared
+ * events, group, optionally its subject and visit, its own label map and
+ * cutoff file (nights from several sites), and any per-night channel
+ * overrides. Read with the shared
  * table reader, so quoting, tabs, a byte-order mark and CRLF behave as in
  * every other table; each row is checked here (safe id, no duplicate, input
  * files present) and every message names the manifest line. */
@@ -15,7 +17,11 @@
 #include "internal.h"
 #include "table.h"
 
-enum { COL_ID = 0, COL_RECORDING, COL_STAGES, COL_EVENTS, COL_GROUP, COL_ROLE0 };
+enum {
+    COL_ID = 0, COL_RECORDING, COL_STAGES, COL_EVENTS, COL_GROUP,
+    COL_SUBJECT, COL_VISIT, COL_LABEL_MAP, COL_CUTOFFS, /* optional */
+    COL_ROLE0
+};
 
 typedef struct loader {
     rt_manifest *m;
@@ -92,6 +98,8 @@ static void entry_free(rt_manifest_entry *e)
     free(e->recording);
     free(e->stages);
     free(e->events);
+    free(e->label_map);
+    free(e->cutoffs);
     for (int r = 0; r < RT_ROLE_COUNT; r++)
         free(e->role_override[r]);
     memset(e, 0, sizeof *e);
@@ -134,12 +142,17 @@ static void on_row(rt_table *t, char **v)
                                  t->row_line, v[COL_ID]));
         return;
     }
-    if (strlen(v[COL_GROUP]) > RT_COHORT_GROUP_MAX) {
-        rt_table_fail(t, rt_fail(&t->error, RT_ERR_STAGING,
-                                 "%s line %ld (night %s): group longer than %d bytes", t->path,
-                                 t->row_line, v[COL_ID], RT_COHORT_GROUP_MAX));
-        return;
-    }
+    static const struct {
+        int col;
+        const char *what;
+    } names[] = {{COL_GROUP, "group"}, {COL_SUBJECT, "subject"}, {COL_VISIT, "visit"}};
+    for (size_t k = 0; k < sizeof names / sizeof names[0]; k++)
+        if (strlen(v[names[k].col]) > RT_COHORT_GROUP_MAX) {
+            rt_table_fail(t, rt_fail(&t->error, RT_ERR_STAGING,
+                                     "%s line %ld (night %s): %s longer than %d bytes", t->path,
+                                     t->row_line, v[COL_ID], names[k].what, RT_COHORT_GROUP_MAX));
+            return;
+        }
     if (l->m->n_entries == l->cap) {
         size_t cap = l->cap ? 2 * l->cap : 64;
         rt_manifest_entry *grown = realloc(l->m->entries, cap * sizeof *grown);
@@ -154,12 +167,18 @@ static void on_row(rt_table *t, char **v)
     memset(&e, 0, sizeof e);
     rt_copy_string(e.id, sizeof e.id, v[COL_ID]);
     rt_copy_string(e.group, sizeof e.group, v[COL_GROUP]);
+    rt_copy_string(e.subject, sizeof e.subject, v[COL_SUBJECT]);
+    rt_copy_string(e.visit, sizeof e.visit, v[COL_VISIT]);
     e.line = t->row_line;
     bool ok = resolve(t, l, e.id, "recording", v[COL_RECORDING], &e.recording) == RT_OK;
     if (ok && v[COL_STAGES][0])
         ok = resolve(t, l, e.id, "stages", v[COL_STAGES], &e.stages) == RT_OK;
     if (ok && v[COL_EVENTS][0])
         ok = resolve(t, l, e.id, "events", v[COL_EVENTS], &e.events) == RT_OK;
+    if (ok && v[COL_LABEL_MAP][0])
+        ok = resolve(t, l, e.id, "label map", v[COL_LABEL_MAP], &e.label_map) == RT_OK;
+    if (ok && v[COL_CUTOFFS][0])
+        ok = resolve(t, l, e.id, "cutoffs", v[COL_CUTOFFS], &e.cutoffs) == RT_OK;
     for (int r = 0; ok && r < RT_ROLE_COUNT; r++) {
         if (v[COL_ROLE0 + r][0] && !(e.role_override[r] = strdup(v[COL_ROLE0 + r]))) {
             rt_table_fail(t, rt_fail(&t->error, RT_ERR_NOMEM, "%s: out of memory", t->path));
@@ -208,6 +227,11 @@ rt_status rt_manifest_load(const char *path, rt_manifest **out, rt_error *err)
     t.columns[COL_STAGES] = "stages";
     t.columns[COL_EVENTS] = "events";
     t.columns[COL_GROUP] = "group";
+    static const char *const extra[] = {"subject", "visit", "label_map", "cutoffs"};
+    for (int k = 0; k < 4; k++) {
+        t.columns[COL_SUBJECT + k] = extra[k];
+        t.optional[COL_SUBJECT + k] = true;
+    }
     for (int r = 0; r < RT_ROLE_COUNT; r++) {
         t.columns[COL_ROLE0 + r] = rt_role_name((rt_role)r);
         t.optional[COL_ROLE0 + r] = true;

@@ -99,6 +99,17 @@ static rt_status join_texts(json_t *list, char **out, rt_error *err)
     return RT_OK;
 }
 
+/* The group, subject and visit a key or an error record gives ("" when not). */
+static void copy_label(cohort_row *row, json_t *from)
+{
+    const char *g = json_string_value(json_object_get(from, "group"));
+    const char *s = json_string_value(json_object_get(from, "subject"));
+    const char *v = json_string_value(json_object_get(from, "visit"));
+    rt_copy_string(row->group, sizeof row->group, g ? g : "");
+    rt_copy_string(row->subject, sizeof row->subject, s ? s : "");
+    rt_copy_string(row->visit, sizeof row->visit, v ? v : "");
+}
+
 static rt_status read_result(const char *dir, const char *id, cohort_row *row, bool *complete,
                              rt_error *err)
 {
@@ -108,8 +119,7 @@ static rt_status read_result(const char *dir, const char *id, cohort_row *row, b
     *complete = key != NULL;
     if (!key)
         return RT_OK;
-    rt_copy_string(row->group, sizeof row->group, json_string_value(json_object_get(key, "group")) ?
-                   json_string_value(json_object_get(key, "group")) : "");
+    copy_label(row, key);
     json_decref(key);
     cohort_night_path(path, sizeof path, dir, id, ".json");
     json_error_t je;
@@ -156,9 +166,8 @@ static rt_status read_failure(const char *dir, const char *id, cohort_row *row, 
     if (!root)
         return rt_fail(err, RT_ERR_STAGING, "%s line %d: not valid JSON: %s", path, je.line, je.text);
     rt_copy_string(row->id, sizeof row->id, id);
-    const char *group = json_string_value(json_object_get(root, "group"));
     const char *msg = json_string_value(json_object_get(root, "message"));
-    rt_copy_string(row->group, sizeof row->group, group ? group : "");
+    copy_label(row, root);
     rt_copy_string(row->error, sizeof row->error, msg ? msg : "failed");
     rt_copy_string(row->level, sizeof row->level, "failed");
     row->failed = true;
@@ -228,10 +237,19 @@ static rt_status read_nights(const char *dir, rows *r, rt_cohort_merge_summary *
 
 /* ---- writing ---- */
 
-static void put_number(FILE *f, double v)
+void cohort_put_number(FILE *f, double v)
 {
     if (isfinite(v))
         fprintf(f, "%.10g", v);
+}
+
+rt_status cohort_csv_commit(rt_output *o, int no_memory, rt_error *err)
+{
+    if (no_memory) {
+        rt_output_abort(o);
+        return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", o->path);
+    }
+    return rt_output_commit(o, err);
 }
 
 static rt_status write_table(const char *path, const rows *r, rt_error *err)
@@ -241,7 +259,7 @@ static rt_status write_table(const char *path, const rows *r, rt_error *err)
     if (st != RT_OK)
         return st;
     FILE *f = o.file;
-    fputs("id,group,flagged,level,reservations,rem_minutes,scorable_minutes", f);
+    fputs("id,group,subject,visit,flagged,level,reservations,rem_minutes,scorable_minutes", f);
     for (int i = 0; i < RT_IX_COUNT; i++)
         fprintf(f, ",%s", rt_index_rules()[i].id);
     fputs(",warnings,warning_texts,error\n", f);
@@ -251,15 +269,19 @@ static rt_status write_table(const char *path, const rows *r, rt_error *err)
         no_memory |= rt_csv_put_field(f, row->id);
         fputc(',', f);
         no_memory |= rt_csv_put_field(f, row->group);
+        fputc(',', f);
+        no_memory |= rt_csv_put_field(f, row->subject);
+        fputc(',', f);
+        no_memory |= rt_csv_put_field(f, row->visit);
         fprintf(f, ",%s,%s,", row->failed ? "" : row->flagged ? "true" : "false", row->level);
         no_memory |= rt_csv_put_field(f, row->reservations);
         fputc(',', f);
-        put_number(f, row->rem_minutes);
+        cohort_put_number(f, row->rem_minutes);
         fputc(',', f);
-        put_number(f, row->scorable_minutes);
+        cohort_put_number(f, row->scorable_minutes);
         for (int i = 0; i < RT_IX_COUNT; i++) {
             fputc(',', f);
-            put_number(f, row->value[i]);
+            cohort_put_number(f, row->value[i]);
         }
         fputc(',', f);
         if (row->warnings >= 0)
@@ -270,11 +292,7 @@ static rt_status write_table(const char *path, const rows *r, rt_error *err)
         no_memory |= rt_csv_put_field(f, row->error);
         fputc('\n', f);
     }
-    if (no_memory) {
-        rt_output_abort(&o);
-        return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", path);
-    }
-    return rt_output_commit(&o, err);
+    return cohort_csv_commit(&o, no_memory, err);
 }
 
 /* The nights of a group: the scored ones, or all with failed ones. */
@@ -391,7 +409,7 @@ static rt_status write_calibration(const char *path, const cohort_calibration *c
         fputs(rt_index_rules()[i].id, f);
         for (size_t k = 0; k < sizeof cols / sizeof cols[0]; k++) {
             fputc(',', f);
-            put_number(f, cols[k]);
+            cohort_put_number(f, cols[k]);
         }
         fprintf(f, ",%s,%zu,%zu,", rt_index_rules()[i].lower_is_worse ? "below" : "at-or-above",
                 c->n_pos, c->n_neg);
@@ -400,7 +418,7 @@ static rt_status write_calibration(const char *path, const cohort_calibration *c
         for (size_t k = 0; k < sizeof rest / sizeof rest[0]; k++) {
             if (k)
                 fputc(',', f);
-            put_number(f, rest[k]);
+            cohort_put_number(f, rest[k]);
         }
         fputc('\n', f);
     }
@@ -442,18 +460,29 @@ rt_status rt_cohort_merge(const rt_cohort_options *o, rt_cohort_merge_summary *s
     opts.negative = negative;
     char dir[COHORT_PATH_MAX], path[COHORT_PATH_MAX];
     snprintf(dir, sizeof dir, "%s/nights", o->out_dir);
-    rows r = {NULL, 0, 0};
+    rows r = {NULL, 0, 0}, by_subject = {NULL, 0, 0};
+    cohort_subjects subjects;
+    memset(&subjects, 0, sizeof subjects);
     cohort_calibration *cal = rt_calloc(1, sizeof *cal);
     rt_status st = cal ? read_nights(dir, &r, &s, err) : rt_fail(err, RT_ERR_NOMEM, "out of memory");
     /* everything that can fail on the inputs runs before the first file is
-     * replaced: the groups, the cutoff file, the calibration itself */
+     * replaced: the groups, the subjects, the cutoff file, the calibration */
     if (st == RT_OK)
         st = check_groups(&r, &opts, &cal->computed, err);
     if (st == RT_OK)
-        st = calibrate(&r, &opts, cal, &s, err);
+        st = cohort_subjects_build(r.v, r.n, &subjects, err);
+    if (st == RT_OK && o->per_subject)
+        st = cohort_subject_rows(r.v, r.n, &subjects, o->out_dir, &by_subject.v, &by_subject.n,
+                                 err);
+    if (st == RT_OK)
+        st = calibrate(o->per_subject ? &by_subject : &r, &opts, cal, &s, err);
     if (st == RT_OK) {
         snprintf(path, sizeof path, "%s/cohort.csv", o->out_dir);
         st = write_table(path, &r, err);
+    }
+    if (st == RT_OK && subjects.n > 0) {
+        snprintf(path, sizeof path, "%s/subjects.csv", o->out_dir);
+        st = cohort_write_subjects(path, &subjects, err);
     }
     if (st == RT_OK && cal->computed) {
         snprintf(path, sizeof path, "%s/calibration.csv", o->out_dir);
@@ -465,13 +494,16 @@ rt_status rt_cohort_merge(const rt_cohort_options *o, rt_cohort_merge_summary *s
     }
     if (st == RT_OK) {
         snprintf(path, sizeof path, "%s/cohort.html", o->out_dir);
-        st = cohort_write_html(path, r.v, r.n, cal, &opts, err);
+        st = cohort_write_html(path, r.v, r.n, &subjects, cal, &opts, err);
     }
     s.calibrated = cal && cal->computed;
+    s.subjects = subjects.n;
     if (cal)
         for (int i = 0; i < RT_IX_COUNT; i++)
             rt_roc_free(&cal->roc[i]);
     free(cal);
+    cohort_subjects_free(&subjects);
+    free(by_subject.v);
     for (size_t k = 0; k < r.n; k++)
         free(r.v[k].warning_texts);
     free(r.v);

@@ -59,6 +59,17 @@ void cohort_settings_text(cohort_shared *s)
     }
 }
 
+/* The row's own cutoff file and label map, else the run's (NULL: none). */
+static const char *night_cutoffs_path(const cohort_shared *s, const rt_manifest_entry *e)
+{
+    return e->cutoffs ? e->cutoffs : s->options->cutoffs_path;
+}
+
+static const char *night_label_map_path(const cohort_shared *s, const rt_manifest_entry *e)
+{
+    return e->label_map ? e->label_map : s->options->label_map_path;
+}
+
 /* The identity of a night: what its result depends on, not where it lives. */
 static rt_status night_identity(const cohort_shared *s, const rt_manifest_entry *e, json_t **out,
                                 rt_error *err)
@@ -72,7 +83,9 @@ static rt_status night_identity(const cohort_shared *s, const rt_manifest_entry 
     if (st == RT_OK)
         st = rt_file_identity_add(id, "events", e->events, false, err);
     if (st == RT_OK)
-        st = rt_file_identity_add(id, "cutoffs", s->options->cutoffs_path, false, err);
+        st = rt_file_identity_add(id, "cutoffs", night_cutoffs_path(s, e), false, err);
+    if (st == RT_OK)
+        st = rt_file_identity_add(id, "label_map", night_label_map_path(s, e), false, err);
     if (st != RT_OK) {
         json_decref(id);
         return st;
@@ -114,12 +127,15 @@ static json_t *key_json(const rt_manifest_entry *e, json_t *identity)
     rt_json_set(k, "schema", json_string("remtone-cohort-key/1"), &ok);
     rt_json_set(k, "id", rt_json_text(e->id), &ok);
     rt_json_set(k, "group", rt_json_text(e->group), &ok);
+    rt_json_set(k, "subject", rt_json_text(e->subject), &ok);
+    rt_json_set(k, "visit", rt_json_text(e->visit), &ok);
     rt_json_set(k, "identity", json_incref(identity), &ok);
     return rt_json_done(k, ok);
 }
 
 /* A current result: its key exists, names this night and holds the same
- * identity. A changed group alone rewrites the key without rescoring. */
+ * identity. A changed group, subject or visit alone rewrites the key without
+ * rescoring. */
 static bool result_current(const char *json_path, const char *key_path,
                            const rt_manifest_entry *e, json_t *identity)
 {
@@ -131,8 +147,13 @@ static bool result_current(const char *json_path, const char *key_path,
     bool same = json_equal(json_object_get(old, "identity"), identity) &&
                 json_is_string(json_object_get(old, "id")) &&
                 strcmp(json_string_value(json_object_get(old, "id")), e->id) == 0;
-    const char *group = json_string_value(json_object_get(old, "group"));
-    bool regroup = same && (!group || strcmp(group, e->group) != 0);
+    /* the group, subject and visit label a result without changing it */
+    bool regroup = false;
+    const char *labels[3][2] = {{"group", e->group}, {"subject", e->subject}, {"visit", e->visit}};
+    for (int k = 0; k < 3; k++) {
+        const char *was = json_string_value(json_object_get(old, labels[k][0]));
+        regroup |= same && (!was || strcmp(was, labels[k][1]) != 0);
+    }
     json_decref(old);
     if (regroup) {
         json_t *k = key_json(e, identity);
@@ -154,29 +175,42 @@ static rt_status score_and_write(const cohort_shared *s, const rt_manifest_entry
     memset(&ro, 0, sizeof ro);
     for (int r = 0; r < RT_ROLE_COUNT; r++)
         ro.override[r] = e->role_override[r];
-    rt_status st = rt_recording_open(e->recording, &rec, err);
+    rt_labelmap *map = NULL;
+    const char *map_path = night_label_map_path(s, e), *cut_path = night_cutoffs_path(s, e);
+    /* a row's own cutoff file replaces the run's; the published ones stay underneath */
+    rt_cutoffs cutoffs = s->cutoffs;
+    rt_status st = RT_OK;
+    if (e->cutoffs) {
+        rt_cutoffs_published(&cutoffs);
+        st = rt_cutoffs_load(&cutoffs, e->cutoffs, err);
+    }
+    if (st == RT_OK && map_path)
+        st = rt_labelmap_load(map_path, &map, err);
+    if (st == RT_OK)
+        st = rt_recording_open(e->recording, &rec, err);
     if (st == RT_OK)
         st = rt_timeline_new(&tl, err);
     if (st == RT_OK)
-        st = e->stages ? rt_timeline_load_staging(tl, e->stages, NULL, err)
-                       : rt_timeline_load_annotations(tl, rec, NULL, true, true, err);
+        st = e->stages ? rt_timeline_load_staging(tl, e->stages, map, err)
+                       : rt_timeline_load_annotations(tl, rec, map, true, true, err);
     if (st == RT_OK && e->events)
-        st = rt_timeline_load_events_csv(tl, e->events, NULL, err);
+        st = rt_timeline_load_events_csv(tl, e->events, map, err);
     if (st == RT_OK)
         st = rt_timeline_check(tl, rt_recording_duration_s(rec), err);
     if (st == RT_OK)
         st = rt_roles_resolve(rec, &ro, &roles, err);
     if (st == RT_OK)
-        st = rt_night_score_threads(rec, &roles, tl, &s->options->params, &s->cutoffs,
-                                    s->threads, &night, err);
+        st = rt_night_score_threads(rec, &roles, tl, &s->options->params, &cutoffs, s->threads,
+                                    &night, err);
     if (st == RT_OK) {
-        rt_run_inputs in = {e->recording, e->stages, e->events, s->options->cutoffs_path, NULL};
+        rt_run_inputs in = {e->recording, e->stages, e->events, cut_path, map_path};
         st = rt_night_write_json(night, &in, json_path, err);
     }
     if (st == RT_OK && s->options->pages) {
         rt_report_options ro_page = {false, e->id}; /* de-identified, named by the id */
         st = rt_night_write_html(night, rec, tl, &ro_page, page_path, err);
     }
+    rt_labelmap_free(map);
     rt_night_free(night);
     rt_timeline_free(tl);
     rt_recording_close(rec);
@@ -217,6 +251,8 @@ static void write_error(const cohort_shared *s, const rt_manifest_entry *e, cons
      * must not cost the night its failure record, and so its row in cohort.csv */
     rt_json_set(root, "id", rt_json_text(e->id), &ok);
     rt_json_set(root, "group", rt_json_text(e->group), &ok);
+    rt_json_set(root, "subject", rt_json_text(e->subject), &ok);
+    rt_json_set(root, "visit", rt_json_text(e->visit), &ok);
     rt_json_set(root, "status", json_string(rt_status_name(why->status)), &ok);
     rt_json_set(root, "exit_code", json_integer(exit_code_of(why->status)), &ok);
     rt_json_set(root, "message",

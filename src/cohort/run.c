@@ -246,6 +246,14 @@ static rt_status prepare(runner *r, const rt_manifest *m, const rt_cohort_option
     rt_status st = o->cutoffs_path ? rt_cutoffs_load(&r->shared.cutoffs, o->cutoffs_path, err) : RT_OK;
     if (st != RT_OK)
         return st;
+    /* the run's label map is read by every night: a bad one stops the run here,
+     * once, rather than failing each night alike */
+    if (o->label_map_path) {
+        rt_labelmap *map = NULL;
+        if ((st = rt_labelmap_load(o->label_map_path, &map, err)) != RT_OK)
+            return st;
+        rt_labelmap_free(map);
+    }
     cohort_settings_text(&r->shared);
     snprintf(r->shared.nights_dir, sizeof r->shared.nights_dir, "%s/nights", o->out_dir);
     snprintf(r->shared.log_path, sizeof r->shared.log_path, "%s/cohort.log", o->out_dir);

@@ -12,7 +12,7 @@
 #include "remtone/status.h"
 
 enum {
-    RT_TABLE_MAX_COLUMNS = 16, /* columns a reader asks for */
+    RT_TABLE_MAX_COLUMNS = 32, /* columns a reader asks for */
     RT_TABLE_MAX_FIELDS = 256, /* fields a row may hold */
     RT_TABLE_QUOTE_MAX = 48    /* bytes of a bad value quoted in a message */
 };

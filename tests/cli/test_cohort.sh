@@ -52,7 +52,7 @@ expect table-shape 0 "$py" -c '
 import csv,sys
 rows=list(csv.DictReader(open(sys.argv[1])))
 h=list(rows[0].keys())
-assert h[:7]==["id","group","flagged","level","reservations","rem_minutes","scorable_minutes"], h
+assert h[:9]==["id","group","subject","visit","flagged","level","reservations","rem_minutes","scorable_minutes"], h
 assert "sinbar.chin_any_fds_phasic_3s" in h and "rai" in h and "warnings" in h
 assert [r["id"] for r in rows]==["r1","r2","r3","t4","t5","t6"]
 assert all(r["flagged"]=="true" for r in rows[:3]) and all(r["group"]=="control" for r in rows[3:])' ref/cohort.csv
@@ -148,7 +148,7 @@ has no-calibration-said "$work/out" "no calibration: it needs nights in both gro
 expect error-record-shape 0 "$py" -c '
 import json,sys; d=json.load(open(sys.argv[1]))
 assert d["id"]=="broken" and d["status"]=="recording" and d["exit_code"]==4 and "stages.csv" in d["message"]' mixed/nights/broken.error.json
-has failed-row mixed/cohort.csv "broken,case,,failed,,"
+has failed-row mixed/cohort.csv "broken,case,,,,failed,,"
 # the cohort page lists every night and every failure with its message; no
 # calibration without a "control" night, and no calibration file is written
 has failed-on-page mixed/cohort.html "broken"
@@ -203,6 +203,76 @@ for svg in svgs:
     mant=step/10**math.floor(math.log10(step))
     assert min(abs(mant-m) for m in (1,2,5))<1e-9, (svg.get("aria-label"), ticks)
     assert all(abs((b-a)-step)<1e-9*step for a,b in zip(ticks,ticks[1:])), ticks' ref/cohort.html
+
+# ---- subjects and visits: a person on several nights (common practice in
+# longitudinal cohorts: report per subject, calibrate without counting one
+# person twice)
+{
+  echo "id,recording,stages,events,group,subject,visit"
+  echo "r1,r1/night.edf,r1/stages.csv,r1/events.csv,case,S1,2026-01"
+  echo "r2,r2/night.edf,r2/stages.csv,r2/events.csv,case,S1,2026-07"
+  echo "r3,r3/night.edf,r3/stages.csv,r3/events.csv,case,S3,2026-01"
+  echo "t4,t4/night.edf,t4/stages.csv,,control,S4,2026-03"
+  echo "t5,t5/night.edf,t5/stages.csv,,control,S4,2026-02"
+  echo "t6,t6/night.edf,t6/stages.csv,,control,S6,2026-01"
+} > data/subjects.csv
+expect subjects-relabel 0 "$bin" cohort data/subjects.csv --out ref --jobs 2
+has subjects-not-rescored "$work/out" "0 scored, 6 already current"
+expect subjects-table 0 "$py" -c '
+import csv,sys
+nights={r["id"]:r for r in csv.DictReader(open(sys.argv[1]+"/cohort.csv"))}
+subj={r["subject"]:r for r in csv.DictReader(open(sys.argv[1]+"/subjects.csv"))}
+assert sorted(subj)==["S1","S3","S4","S6"], sorted(subj)
+ix="sinbar.chin_any_fds_phasic_3s"
+for name,ids in (("S1",["r1","r2"]),("S4",["t5","t4"])):   # visit order
+    v=[float(nights[i][ix]) for i in ids]
+    s=subj[name]
+    assert int(s["nights"])==2 and s["flag"]=="agrees", s
+    assert abs(float(s[ix+"_mean"])-sum(v)/2)<1e-6 and abs(float(s[ix+"_largest_change"])-abs(v[1]-v[0]))<1e-6, (s, v)
+    assert abs(float(s[ix+"_min"])-min(v))<1e-9 and abs(float(s[ix+"_max"])-max(v))<1e-9
+assert subj["S3"]["flag"]=="one night" and subj["S3"][ix+"_largest_change"]==""
+assert nights["t5"]["subject"]=="S4" and nights["t5"]["visit"]=="2026-02"' ref
+has subjects-on-page ref/cohort.html "t5 2026-02"
+expect per-subject 0 "$bin" cohort-merge ref --per-subject
+has per-subject-counts "$work/out" 'calibration on 2 "case" and 2 "control" subjects'
+expect per-subject-calibration 0 "$py" -c '
+import csv,sys
+c={r["index"]:r for r in csv.DictReader(open(sys.argv[1]))}
+assert int(c["rai"]["n_positive"])==2 and int(c["rai"]["n_negative"])==2, c["rai"]' ref/calibration.csv
+sed 's/^t6,\(.*\),control,S6,/t6,\1,control,S1,/' data/subjects.csv > data/subjects-mixed.csv
+expect subject-two-groups 5 "$bin" cohort data/subjects-mixed.csv --out ref --per-subject
+has subject-two-groups-named "$work/err" 'subject "S1" has nights in more than one group'
+
+# ---- mixed sites: a row's own label map and cutoff file, and the run's
+# label map (docs/staging.md, "Label maps"); the same night under local
+# labels scores as under the standard ones
+mkdir -p data/site2
+sed -e 's/,R$/,Paradoxical/' -e 's/,W$/,Awake/' data/t6/stages.csv > data/site2/stages.csv
+printf 'label,meaning\nParadoxical,R\nAwake,W\n' > data/site2/labels.csv
+printf 'index,cutoff\nsinbar.chin_any_fds_phasic_3s,12\n' > data/site2/cutoffs.csv
+{
+  echo "id,recording,stages,events,group,label_map,cutoffs"
+  echo "t6,t6/night.edf,t6/stages.csv,,control,,"
+  echo "t6b,t6/night.edf,site2/stages.csv,,control,site2/labels.csv,site2/cutoffs.csv"
+  echo "t6c,t6/night.edf,site2/stages.csv,,control,,"
+} > data/sites.csv
+expect sites 0 "$bin" cohort data/sites.csv --out sites --jobs 1
+has sites-unmapped-fails "$work/out" "2 scored, 0 already current, 1 failed"
+expect sites-same-night 0 "$py" -c '
+import json,sys
+a=json.load(open(sys.argv[1]+"/t6.json")); b=json.load(open(sys.argv[1]+"/t6b.json"))
+for k,v in a["indices"].items():
+    assert v["value"]==b["indices"][k]["value"], k
+assert a["rem"]==b["rem"]
+assert b["indices"]["sinbar.chin_any_fds_phasic_3s"]["cutoff"]==12 and a["indices"]["sinbar.chin_any_fds_phasic_3s"]["cutoff"]!=12
+assert b["provenance"]["inputs"]["label_map"]["path"].endswith("site2/labels.csv")' sites/nights
+expect sites-run-map 0 "$bin" cohort data/sites.csv --out sites --jobs 1 --label-map data/site2/labels.csv --keep-artifacts --event-margin 2
+has sites-run-map-all "$work/out" "3 scored, 0 already current, 0 failed"
+expect sites-run-options 0 "$py" -c '
+import json,sys
+p=json.load(open(sys.argv[1]+"/t6c.json"))["provenance"]["parameters"]
+assert p["exclude_artifacts"] is False and p["event_margin_s"]==2, p' sites/nights
+expect sites-bad-map 5 "$bin" cohort data/sites.csv --out sites --label-map data/t6/stages.csv
 
 echo "$fails failure(s)"
 [ "$fails" = 0 ]

@@ -209,12 +209,14 @@ static void test_merge_table_and_calibration(void **state)
     snprintf(path, sizeof path, "%s/cohort.csv", dir);
     const char *csv = slurp(path);
     assert_non_null(csv);
-    assert_non_null(strstr(csv, "id,group,flagged,level,reservations,rem_minutes,scorable_minutes,"));
+    assert_non_null(strstr(csv, "id,group,subject,visit,flagged,level,reservations,rem_minutes,"
+                                "scorable_minutes,"));
     /* rows in id order; RFC 4180 quoting of a group with a comma and quotes;
      * the reservation codes of each night (none, two, unknown for /1) */
-    const char *bad = strstr(csv, "\nbad,case,,failed,,"), *c1 = strstr(csv, "\nc1,case,true,review,,10,9.5,");
-    const char *x1 = strstr(csv, "\nx1,\"other, \"\"quoted\"\"\",true,review,unknown,10,");
-    assert_non_null(strstr(csv, "\nk2,control,false,clear,partial-staging;few-units,10,9.5,"));
+    const char *bad = strstr(csv, "\nbad,case,,,,failed,,"),
+               *c1 = strstr(csv, "\nc1,case,,,true,review,,10,9.5,");
+    const char *x1 = strstr(csv, "\nx1,\"other, \"\"quoted\"\"\",,,true,review,unknown,10,");
+    assert_non_null(strstr(csv, "\nk2,control,,,false,clear,partial-staging;few-units,10,9.5,"));
     assert_non_null(bad);
     assert_non_null(c1);
     assert_non_null(x1);
