@@ -21,7 +21,6 @@
 /* No staging reaches past 31 days; beyond that the start is a typing error
  * (and would ask for an absurd allocation). */
 #define MAX_TIMELINE_S (31.0 * 86400.0)
-#define DEFAULT_EPOCH_S 30.0
 
 rt_status rt_timeline_new(rt_timeline **out, rt_error *err)
 {
@@ -30,7 +29,7 @@ rt_status rt_timeline_new(rt_timeline **out, rt_error *err)
     rt_timeline *tl = *out = rt_calloc(1, sizeof *tl);
     if (!tl)
         return rt_fail(err, RT_ERR_NOMEM, "out of memory for a timeline");
-    tl->epoch_s = DEFAULT_EPOCH_S;
+    tl->epoch_s = RT_EPOCH_S;
     tl->lights_off_s = 0.0;
     tl->lights_on_s = -1.0;
     return RT_OK;

@@ -592,7 +592,7 @@ static rt_status read_root(reader *r, xmlNodePtr root)
     if (!root || !is_element(root, "remtone-scoring"))
         return rt_fail(r->err, RT_ERR_STAGING, "%s: the root element is not <remtone-scoring>",
                        r->name);
-    double epoch_s = 30.0;
+    double epoch_s = RT_EPOCH_S;
     bool given = false;
     rt_status st = attr_number(r, root, "epoch-s", false, &epoch_s, &given);
     if (st != RT_OK)

@@ -85,7 +85,7 @@ static bool in_range(double v, double lo, double hi)
 
 static rt_status check_artifacts(const rt_synth_options *o, rt_error *err)
 {
-    double night_s = floor(o->hours * 3600.0 / 30.0 + 1e-9) * 30.0;
+    double night_s = floor(o->hours * 3600.0 / RT_EPOCH_S + 1e-9) * RT_EPOCH_S;
     if (!(o->mains_hz == 0.0 || o->mains_hz == 50.0 || o->mains_hz == 60.0))
         return rt_fail(err, RT_ERR_USAGE, "synthetic night: mains frequency must be 0, 50 or 60 Hz (got %g)",
                        o->mains_hz);
@@ -181,7 +181,7 @@ static rt_status write_stages(const synth_plan *plan, const char *path, rt_error
         int end = e;
         while (end < plan->n_epochs && plan->stage[end] == plan->stage[e])
             end++;
-        fprintf(out.file, "%d,%d,%s\n", e * SYNTH_EPOCH_S, (end - e) * SYNTH_EPOCH_S,
+        fprintf(out.file, "%d,%d,%s\n", e * RT_EPOCH_WHOLE_S, (end - e) * RT_EPOCH_WHOLE_S,
                 rt_synth_stage_label(plan->stage[e]));
         e = end;
     }

@@ -9,11 +9,11 @@
 #include <stddef.h>
 #include <stdint.h>
 
+#include "internal.h"
 #include "remtone/status.h"
 #include "remtone/synth.h"
 
 enum {
-    SYNTH_EPOCH_S = 30,
     SYNTH_ROLES = 5, /* chin, arm-left, arm-right, leg-left, leg-right */
     SYNTH_EMG_RATE_HZ = 512, /* default EMG rate; the plan holds each role's own */
     SYNTH_EMG_RATE_MAX_HZ = 1000,
