@@ -68,6 +68,11 @@ static const channel_spec channels[N_CHANNELS] = {
     {"Pos", 1, "", 0, 4, 0, 4, "Position sensor", ""},
 };
 
+const char *rt_synth_emg_label(int role)
+{
+    return role >= 0 && role < SYNTH_ROLES ? channels[CH_EMG0 + role].label : "unknown";
+}
+
 /* Rotating phasor: a sinusoid by complex multiplication, cheaper than sin()
  * per sample; renormalised once per second so rounding cannot drift. */
 typedef struct osc {

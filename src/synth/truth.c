@@ -313,7 +313,6 @@ static json_t *artifacts_json(const synth_plan *plan, bool *ok)
 {
     const rt_synth_options *o = &plan->opt;
     json_t *a = json_object();
-    static const char *const emg[SYNTH_ROLES] = {"chin", "arm-left", "arm-right", "leg-left", "leg-right"};
     if (o->mains_hz > 0.0 && o->mains_uv > 0.0) {
         json_t *m = json_object(), *comp = json_array(), *chs = json_array();
         rt_json_set(m, "line_hz", number(o->mains_hz), ok);
@@ -337,7 +336,7 @@ static json_t *artifacts_json(const synth_plan *plan, bool *ok)
         rt_json_set(m, "dropped", dropped, ok);
         rt_json_set(m, "phase", json_string("sine from 0 at the recording start"), ok);
         for (int r = 0; r < SYNTH_ROLES; r++)
-            rt_json_push(chs, json_string(emg[r]), ok);
+            rt_json_push(chs, json_string(rt_synth_role_name(r)), ok);
         rt_json_set(m, "roles", chs, ok);
         rt_json_set(a, "mains", m, ok);
     } else {
@@ -356,7 +355,7 @@ static json_t *artifacts_json(const synth_plan *plan, bool *ok)
     rt_json_set(a, "ecg", ecg, ok);
     if (o->clip_duration_s > 0.0) {
         json_t *c = json_object();
-        rt_json_set(c, "role", json_string("chin"), ok);
+        rt_json_set(c, "role", json_string(rt_synth_role_name(SYNTH_CHIN)), ok);
         rt_json_set(c, "start_s", number(o->clip_start_s), ok);
         rt_json_set(c, "end_s", number(o->clip_start_s + o->clip_duration_s), ok);
         rt_json_set(c, "swing_uv", number(SYNTH_CLIP_SWING_UV), ok);
@@ -368,7 +367,7 @@ static json_t *artifacts_json(const synth_plan *plan, bool *ok)
     }
     if (o->detach_s > 0.0) {
         json_t *d = json_object();
-        rt_json_set(d, "role", json_string("chin"), ok);
+        rt_json_set(d, "role", json_string(rt_synth_role_name(SYNTH_CHIN)), ok);
         rt_json_set(d, "from_s", number(o->detach_s), ok);
         rt_json_set(d, "value_uv", number(0.0), ok);
         rt_json_set(a, "detached", d, ok);
@@ -378,7 +377,7 @@ static json_t *artifacts_json(const synth_plan *plan, bool *ok)
     json_t *pops = json_array();
     for (size_t i = 0; i < plan->n_pops; i++) {
         json_t *p = json_object();
-        rt_json_set(p, "role", json_string("chin"), ok);
+        rt_json_set(p, "role", json_string(rt_synth_role_name(SYNTH_CHIN)), ok);
         rt_json_set(p, "onset_s", number(plan->pops[i].onset_s), ok);
         rt_json_set(p, "amplitude_uv", number(plan->pops[i].amplitude_uv), ok);
         rt_json_set(p, "tau_s", number(plan->pops[i].tau_s), ok);
@@ -436,7 +435,6 @@ static json_t *bursts_json(const synth_plan *plan, bool *ok)
  * either definition (> 50 % or whole), but a measurement can fall either way. */
 static json_t *tonics_json(const synth_plan *plan, bool *ok)
 {
-    static const char *const sources[] = {"profile", "run", "whole-bout"};
     json_t *tonics = json_array();
     for (size_t i = 0; i < plan->n_tonics; i++) {
         const synth_tonic *t = &plan->tonics[i];
@@ -447,7 +445,7 @@ static json_t *tonics_json(const synth_plan *plan, bool *ok)
         rt_json_set(o, "rect_uv", number(t->rect_uv), ok);
         rt_json_set(o, "ratio", number(t->ratio), ok);
         rt_json_set(o, "bout", json_integer(t->bout), ok);
-        rt_json_set(o, "source", json_string(sources[t->source]), ok);
+        rt_json_set(o, "source", json_string(SYNTH_TONIC_SOURCE_NAMES[t->source]), ok);
         rt_json_set(o, "gain_start", number(rt_synth_gain(plan, t->onset_s)), ok);
         rt_json_set(o, "gain_end", number(rt_synth_gain(plan, t->onset_s + t->duration_s)), ok);
         if (t->bout >= 0) {
@@ -536,9 +534,8 @@ static json_t *truth_json(const synth_plan *plan, bool *ok)
     rt_json_set(root, "epoch_s", json_integer(RT_EPOCH_WHOLE_S), ok);
 
     json_t *ch = json_object();
-    static const char *labels[] = {"Chin1-Chin2", "FDS L", "FDS R", "Tib L", "Tib R"};
     for (int r = 0; r < SYNTH_ROLES; r++)
-        rt_json_set(ch, rt_synth_role_name(r), json_string(labels[r]), ok);
+        rt_json_set(ch, rt_synth_role_name(r), json_string(rt_synth_emg_label(r)), ok);
     rt_json_set(ch, "ecg", json_string("ECG"), ok);
     rt_json_set(root, "channels", ch, ok);
 
