@@ -13,7 +13,6 @@
 #include "fft_plans.h"
 #include "internal.h"
 
-static const double RT_PI = 3.14159265358979323846;
 
 /* The margin keeps the impulse response's discarded tails (both sides) below
  * this fraction of its peak, which bounds the error of any output sample by

@@ -13,7 +13,6 @@
 #include "dsp/fft_plans.h"
 #include "internal.h"
 
-#define PI 3.14159265358979323846
 
 enum { MIN_SEGMENTS = 4, LINE_HALF_BINS = 2, MAX_HARMONICS = 16 };
 
@@ -38,7 +37,7 @@ static rt_status welch_psd(const double *x, size_t n, size_t nfft, double rate, 
     }
     double wsum2 = 0.0;
     for (size_t i = 0; i < nfft; i++) {
-        win[i] = 0.5 - 0.5 * cos(2.0 * PI * (double)i / (double)nfft); /* periodic Hann */
+        win[i] = 0.5 - 0.5 * cos(2.0 * RT_PI * (double)i / (double)nfft); /* periodic Hann */
         wsum2 += win[i] * win[i];
     }
     size_t bins = nfft / 2 + 1, hop = nfft / 2, segments = 0;

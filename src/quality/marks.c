@@ -9,6 +9,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "internal.h"
 #include "quality.h"
 
 const char *rt_quality_reason_name(rt_quality_reason reason)
@@ -386,7 +387,7 @@ int rt_prefilter_parse(const char *text, rt_prefilter *out)
             p++;
             if (v <= 0.0)
                 continue;
-            v = 1.0 / (2.0 * 3.14159265358979323846 * v);
+            v = 1.0 / (2.0 * RT_PI * v);
         } else if ((p[0] == 'k' || p[0] == 'K') && (p[1] == 'H' || p[1] == 'h') && (p[2] == 'z' || p[2] == 'Z')) {
             p += 3;
             v *= 1000.0;

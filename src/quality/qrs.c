@@ -25,7 +25,6 @@
 
 #include "internal.h"
 
-#define PI 3.14159265358979323846
 
 typedef struct biquad {
     double b0, b1, b2, a1, a2;
@@ -34,7 +33,7 @@ typedef struct biquad {
 /* RBJ cookbook second-order Butterworth section (Q = 1/sqrt(2)). */
 static biquad design(int highpass, double f0, double rate)
 {
-    double w0 = 2.0 * PI * f0 / rate, cw = cos(w0), alpha = sin(w0) / (2.0 * 0.70710678118654752);
+    double w0 = 2.0 * RT_PI * f0 / rate, cw = cos(w0), alpha = sin(w0) / (2.0 * 0.70710678118654752);
     double a0 = 1.0 + alpha;
     biquad b;
     b.b0 = (highpass ? (1.0 + cw) / 2.0 : (1.0 - cw) / 2.0) / a0;

@@ -109,7 +109,7 @@ static int collect_evidence(const rt_night *night, notes *ns)
     for (size_t k = 0; k < n; k++) {
         char text[48];
         snprintf(text, sizeof text, "remtone evidence %zu", k + 1);
-        if (add_note(ns, night->epochs[order[k]].onset_s, 30.0, text) != 0)
+        if (add_note(ns, night->epochs[order[k]].onset_s, RT_EPOCH_S, text) != 0)
             return -1;
     }
     return 0;

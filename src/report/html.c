@@ -18,7 +18,6 @@
 #include "remtone/version.h"
 #include "svg.h"
 
-#define MINIS_PER_EPOCH 10
 #define EVIDENCE_PLOTS 4
 #define EVIDENCE_ROWS 20
 #define PAGE_W 1060.0
@@ -172,9 +171,9 @@ static bool role_counts(const rt_mini *m, rt_role r, unsigned label)
  * SINBAR phasic on either limb of a pair; minis the scorer left out do not count. */
 static int group_active(const rt_night *night, size_t k, int g, int *scorable)
 {
-    const rt_mini *m = &night->minis3[k * MINIS_PER_EPOCH];
+    const rt_mini *m = &night->minis3[k * RT_MINIS3_PER_EPOCH];
     int n = 0, s = 0;
-    for (int i = 0; i < MINIS_PER_EPOCH; i++) {
+    for (int i = 0; i < RT_MINIS3_PER_EPOCH; i++) {
         if (m[i].labels[RT_ROLE_CHIN] & RT_LABEL_EXCLUDED)
             continue;
         s++;
@@ -472,7 +471,7 @@ static void hypnogram(html_ctx *c, double y0, double row_h)
                       5 * row_h);
     /* REM shading first, under everything */
     for (size_t k = 0; k < n->n_epochs; k++) {
-        double x = time_x(c, n->epochs[k].onset_s), w = time_x(c, n->epochs[k].onset_s + 30) - x;
+        double x = time_x(c, n->epochs[k].onset_s), w = time_x(c, n->epochs[k].onset_s + RT_EPOCH_WHOLE_S) - x;
         rt_svg_rect(p, x, y0, w, 5 * row_h, "#f6dede", NULL);
     }
     for (int r = 0; r < 5; r++)
@@ -507,7 +506,7 @@ static void hypnogram(html_ctx *c, double y0, double row_h)
     }
     /* REM itself drawn as a thick bar on its row */
     for (size_t k = 0; k < n->n_epochs; k++) {
-        double x = time_x(c, n->epochs[k].onset_s), w = time_x(c, n->epochs[k].onset_s + 30) - x;
+        double x = time_x(c, n->epochs[k].onset_s), w = time_x(c, n->epochs[k].onset_s + RT_EPOCH_WHOLE_S) - x;
         rt_svg_rect(p, x, y0 + 1.1 * row_h, w, 0.8 * row_h, "#c0392b", NULL);
     }
 }
@@ -529,7 +528,7 @@ static void activity_strip(html_ctx *c, double y0, double row_h)
             int scorable = 0;
             int active = group_active(n, k, g, &scorable);
             double x = time_x(c, n->epochs[k].onset_s);
-            double w = fmax(time_x(c, n->epochs[k].onset_s + 30) - x, 1.0);
+            double w = fmax(time_x(c, n->epochs[k].onset_s + RT_EPOCH_WHOLE_S) - x, 1.0);
             rt_report_clock(&c->start, n->epochs[k].onset_s, clock, sizeof clock);
             snprintf(tip, sizeof tip, "%s epoch %zu: %s %d of %d scorable 3-s mini-epochs active",
                      clock, n->epochs[k].epoch, GROUP_NAME[g], active, scorable);
@@ -804,7 +803,7 @@ typedef struct trace {
     double *env;        /* envelope of the shown epoch, samples */
     size_t n;
     double rate_hz;
-    double background[30]; /* per second of the epoch */
+    double background[RT_EPOCH_WHOLE_S]; /* per second of the epoch */
 } trace;
 
 /* The envelope and background of one role over the epoch at epoch_t0, from
@@ -813,9 +812,9 @@ typedef struct trace {
 static rt_status recompute(html_ctx *c, rt_night_tracer *tracer, rt_role role, double epoch_t0,
                            trace *tr)
 {
-    rt_status st = rt_night_tracer_envelope(tracer, role, epoch_t0, 30, &tr->env, &tr->n,
+    rt_status st = rt_night_tracer_envelope(tracer, role, epoch_t0, RT_EPOCH_WHOLE_S, &tr->env, &tr->n,
                                             &tr->rate_hz, c->err);
-    for (int j = 0; j < 30 && st == RT_OK; j++)
+    for (int j = 0; j < RT_EPOCH_WHOLE_S && st == RT_OK; j++)
         tr->background[j] = rt_night_background_uv(c->night, role, epoch_t0 + j + 0.5);
     return st;
 }
@@ -829,15 +828,15 @@ static void trace_row(html_ctx *c, const trace *tr, rt_role role, size_t k, doub
     double peak = 5.0;
     for (size_t i = 0; i < tr->n; i++)
         peak = fmax(peak, tr->env[i]);
-    for (int s = 0; s < 30; s++)
+    for (int s = 0; s < RT_EPOCH_WHOLE_S; s++)
         peak = fmax(peak, 2.2 * tr->background[s]);
     peak *= 1.05;
     double base = y0 + row_h;
 #define YV(v) (base - row_h * fmin((v) / peak, 1.0))
     rt_svg_rect(p, px, y0, pw, row_h, "#fbfcfd", NULL);
     /* tonic and excluded 3-s minis shaded behind the trace */
-    const rt_mini *m = &n->minis3[k * MINIS_PER_EPOCH];
-    for (int i = 0; i < MINIS_PER_EPOCH; i++) {
+    const rt_mini *m = &n->minis3[k * RT_MINIS3_PER_EPOCH];
+    for (int i = 0; i < RT_MINIS3_PER_EPOCH; i++) {
         double x = px + pw * i / 10.0;
         if (m[i].labels[role] & RT_LABEL_EXCLUDED)
             rt_svg_rect(p, x, y0, pw / 10.0, row_h, "#d5dbe1", "not scorable (event)");
@@ -848,15 +847,15 @@ static void trace_row(html_ctx *c, const trace *tr, rt_role role, size_t k, doub
     for (size_t b = 0; b < n->n_bursts; b++) {
         const rt_burst *bu = &n->bursts[b];
         if (bu->role != role || bu->onset_s + bu->duration_s <= er->onset_s ||
-            bu->onset_s >= er->onset_s + 30 || (bu->rules & RT_LABEL_MONTREAL_PHASIC))
+            bu->onset_s >= er->onset_s + RT_EPOCH_WHOLE_S || (bu->rules & RT_LABEL_MONTREAL_PHASIC))
             continue;
         double a = fmax(bu->onset_s, er->onset_s) - er->onset_s;
-        double e = fmin(bu->onset_s + bu->duration_s, er->onset_s + 30) - er->onset_s;
+        double e = fmin(bu->onset_s + bu->duration_s, er->onset_s + RT_EPOCH_WHOLE_S) - er->onset_s;
         bool aasm = bu->rules & RT_LABEL_AASM_PHASIC;
         char tip[120];
         snprintf(tip, sizeof tip, "%s burst %.2f s, %.1fx background", aasm ? "AASM" : "SINBAR",
                  bu->duration_s, bu->peak_ratio);
-        rt_svg_rect(p, px + pw * a / 30.0, y0 + (aasm ? 5 : 0), fmax(pw * (e - a) / 30.0, 1.5), 5,
+        rt_svg_rect(p, px + pw * a / RT_EPOCH_S, y0 + (aasm ? 5 : 0), fmax(pw * (e - a) / RT_EPOCH_S, 1.5), 5,
                     aasm ? "#b83b2e" : "#f0a35c", tip);
     }
     /* the envelope: the largest value in each pixel column, so no burst is lost */
@@ -873,8 +872,8 @@ static void trace_row(html_ctx *c, const trace *tr, rt_role role, size_t k, doub
         }
         rt_svg_polyline(p, xs, ys, cols, "#1f3550", 0.9);
         /* background and twice it, second by second */
-        for (int s = 0; s < 30; s++) {
-            double x = px + pw * s / 30.0, w = pw / 30.0;
+        for (int s = 0; s < RT_EPOCH_WHOLE_S; s++) {
+            double x = px + pw * s / RT_EPOCH_S, w = pw / RT_EPOCH_S;
             rt_svg_line(p, x, YV(tr->background[s]), x + w, YV(tr->background[s]), "#2f7350", 1.0,
                         NULL);
             double tk = n->params.tonic_k;
@@ -882,7 +881,7 @@ static void trace_row(html_ctx *c, const trace *tr, rt_role role, size_t k, doub
                         "#2f7350", 0.8, "3,2");
         }
         /* the absolute tonic level as an envelope: peak-to-peak / pi (docs/scoring.md) */
-        double abs_env = n->params.tonic_abs_p2p_uv / 3.14159265358979323846;
+        double abs_env = n->params.tonic_abs_p2p_uv / RT_PI;
         if (abs_env < peak)
             rt_svg_line(p, px, YV(abs_env), px + pw, YV(abs_env), "#6b3fa0", 0.8, "1,3");
     } else if (!(xs && ys)) {
@@ -934,7 +933,7 @@ static void evidence_plot(html_ctx *c, size_t rank, size_t k, const trace *trace
     }
     char t0[16], t1[16];
     rt_report_clock(&c->start, er->onset_s, t0, sizeof t0);
-    rt_report_clock(&c->start, er->onset_s + 30, t1, sizeof t1);
+    rt_report_clock(&c->start, er->onset_s + RT_EPOCH_WHOLE_S, t1, sizeof t1);
     double yb = top + rows * (row_h + gap) + 6;
     rt_svg_text(p, px, yb, "start", "small", t0);
     rt_svg_text(p, px + pw, yb, "end", "small", t1);
@@ -997,7 +996,7 @@ static void evidence_table(html_ctx *c, const size_t *order, size_t count)
         cell(p, buf, false);
         snprintf(buf, sizeof buf, "%.1f", er->activity);
         cell(p, buf, true);
-        recording_notes(c, er->onset_s, er->onset_s + 30.0);
+        recording_notes(c, er->onset_s, er->onset_s + RT_EPOCH_S);
         rt_page_end_html(p);
     }
     rt_page_end_html(p);

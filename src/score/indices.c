@@ -9,8 +9,6 @@
 #include "detect.h"
 #include "night_internal.h"
 
-#define MINI3_PER_EPOCH 10
-#define MINI2_PER_EPOCH 15
 /* Cutoff comparisons forgive rounding of the percentage arithmetic. */
 #define CUTOFF_SLACK 1e-9
 
@@ -66,9 +64,9 @@ static void aggregate_epochs(rt_night *night, bool arms)
 {
     for (size_t e = 0; e < night->n_epochs; e++) {
         rt_epoch_result *er = &night->epochs[e];
-        const rt_mini *m = &night->minis3[e * MINI3_PER_EPOCH];
+        const rt_mini *m = &night->minis3[e * RT_MINIS3_PER_EPOCH];
         int scorable = 0;
-        for (int k = 0; k < MINI3_PER_EPOCH; k++) {
+        for (int k = 0; k < RT_MINIS3_PER_EPOCH; k++) {
             if (!mini_scorable(&m[k]))
                 continue;
             scorable++;
@@ -78,7 +76,7 @@ static void aggregate_epochs(rt_night *night, bool arms)
                                     (arms && arm_phasic(&m[k]));
         }
         /* an epoch touching an excluding event leaves the epoch-level counts */
-        er->excluded = scorable < MINI3_PER_EPOCH;
+        er->excluded = scorable < RT_MINIS3_PER_EPOCH;
         /* evidence ranking: active minis first, tonic epochs weigh as a full epoch */
         er->activity = er->sinbar_any_minis + (er->sinbar_tonic ? 10.0 : 0.0) +
                        0.5 * er->aasm_any_minis;

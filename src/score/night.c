@@ -27,9 +27,7 @@
 #include "quality/quality.h"
 #include "rai.h"
 
-#define MINI3_PER_EPOCH 10
-#define MINI2_PER_EPOCH 15
-#define PI 3.14159265358979323846
+
 
 static bool is_emg(rt_role r) { return r != RT_ROLE_ECG; }
 static bool is_nrem(unsigned char s) { return s == RT_STAGE_N1 || s == RT_STAGE_N2 || s == RT_STAGE_N3; }
@@ -136,7 +134,7 @@ static double abs_tonic_env_uv(const rt_score_params *p)
     /* a sine wave's peak-to-peak amplitude is pi times its rectified mean, so
      * a scorer's "10 uV" read peak-to-peak off the trace is an envelope of
      * 10 / pi = 3.2 uV (docs/scoring.md, "Tonic activity") */
-    return p->tonic_abs_p2p_uv / PI;
+    return p->tonic_abs_p2p_uv / RT_PI;
 }
 
 /* Marks every mini-epoch of a grid that a burst overlaps. */
@@ -213,10 +211,10 @@ static rt_status detect_rules(const pass_ctx *c, worker_ctx *w, item_out *o, rt_
                 continue; /* an ECG complex, not muscle */
             }
             if (label == RT_LABEL_MONTREAL_PHASIC)
-                mark_minis(night->minis2 + bout->mini2_first, bout->n_epochs * MINI2_PER_EPOCH,
+                mark_minis(night->minis2 + bout->mini2_first, bout->n_epochs * RT_MINIS2_PER_EPOCH,
                            2.0, bout->t0, rate, s, bout->t0, role, label);
             else
-                mark_minis(night->minis3 + bout->mini3_first, bout->n_epochs * MINI3_PER_EPOCH,
+                mark_minis(night->minis3 + bout->mini3_first, bout->n_epochs * RT_MINIS3_PER_EPOCH,
                            3.0, bout->t0, rate, s, bout->t0, role, label);
             rt_status stt = add_burst(o, role, bout->t0, rate, s, label, err);
             if (stt != RT_OK)
@@ -255,7 +253,7 @@ static void label_tonic(const pass_ctx *c, worker_ctx *w, item_out *o, rt_role r
     size_t seconds = st->seconds;
     rt_count_tonic_blocks(st->env, w->bg, st->starts, seconds, p->tonic_k, abs_tonic_env_uv(p),
                           w->tonic);
-    for (size_t k = 0; k < bout->n_epochs * MINI3_PER_EPOCH; k++) {
+    for (size_t k = 0; k < bout->n_epochs * RT_MINIS3_PER_EPOCH; k++) {
         rt_mini *m = &night->minis3[bout->mini3_first + k];
         size_t a = st->starts[3 * k], b = st->starts[3 * k + 3];
         size_t tonic = tonic_samples(w, 3 * k, 3 * k + 3);
@@ -274,22 +272,22 @@ static void label_tonic(const pass_ctx *c, worker_ctx *w, item_out *o, rt_role r
         rt_count_tonic_blocks(st->env, w->bg, st->starts, seconds, 0.0, aasm_level, w->above);
     for (size_t e = 0; e < bout->n_epochs; e++) {
         rt_epoch_result *er = &night->epochs[bout->epoch_first + e];
-        size_t a = st->starts[30 * e], b = st->starts[30 * e + 30];
-        size_t tonic = tonic_samples(w, 30 * e, 30 * e + 30);
+        size_t a = st->starts[RT_EPOCH_WHOLE_S * e], b = st->starts[RT_EPOCH_WHOLE_S * e + RT_EPOCH_WHOLE_S];
+        size_t tonic = tonic_samples(w, RT_EPOCH_WHOLE_S * e, RT_EPOCH_WHOLE_S * e + RT_EPOCH_WHOLE_S);
         er->tonic_share = b > a ? (double)tonic / (double)(b - a) : 0.0;
         er->sinbar_tonic = 2 * tonic > b - a;
         if (aasm) {
             /* "greater than the minimum NREM amplitude" for at least 50 % (AASM),
              * "greater" meaning by the margin a scorer sees */
             size_t above = 0;
-            for (size_t j = 30 * e; j < 30 * e + 30; j++)
+            for (size_t j = RT_EPOCH_WHOLE_S * e; j < RT_EPOCH_WHOLE_S * e + RT_EPOCH_WHOLE_S; j++)
                 above += w->above[j];
             er->aasm_tonic = 2 * above >= b - a;
         }
     }
     /* Montreal tonic: 20-s windows tiled from the bout start; the remainder is dropped */
     size_t win = (size_t)llround(p->montreal_epoch_s);
-    size_t base = bout->epoch_first * 30;
+    size_t base = bout->epoch_first * RT_EPOCH_WHOLE_S;
     for (size_t s0 = 0; s0 + win <= seconds; s0 += win) {
         if (rt_exclusions_of(c->ss->masks, RT_ROLE_CHIN, base + s0, win))
             continue; /* a window touching an excluding event leaves the count */
@@ -313,7 +311,7 @@ static rt_status count_rai(const pass_ctx *c, const worker_ctx *w, item_out *o,
     /* the floor is taken over every second of the bout; excluded seconds are
      * then left out of the counts (as for the mini-epoch indices) */
     rt_rai_remove_floor(w->st.rect_mean_uv, seconds, 60, floored);
-    size_t base = bout->epoch_first * 30;
+    size_t base = bout->epoch_first * RT_EPOCH_WHOLE_S;
     for (size_t j = 0; j < seconds; j++)
         skip[j] = rt_exclusions_of(c->ss->masks, RT_ROLE_CHIN, base + j, 1) != 0;
     rt_rai_count(floored, seconds, skip, &o->rai);
@@ -329,7 +327,7 @@ static rt_status apply_marks(const pass_ctx *c, const worker_ctx *w, item_out *o
 {
     rt_night *night = c->night;
     const rt_stretch *st = &w->st;
-    size_t base = bout->epoch_first * 30;
+    size_t base = bout->epoch_first * RT_EPOCH_WHOLE_S;
     for (size_t k = 0; k < st->n_marks; k++) {
         const rt_quality_mark *m = &st->marks[k];
         size_t a = (size_t)floor(m->start_s), b = (size_t)ceil(m->end_s);
@@ -420,7 +418,7 @@ static rt_status collect_levels(const pass_ctx *c, worker_ctx *w, item_out *o, c
 {
     const bout_span *bout = &c->bouts[it->bout];
     const rt_stretch_request req = {RT_STRETCH_LEVELS, NULL, 0};
-    rt_status st = rt_condition_stretch_for(&w->cond[it->role], bout->t0, bout->n_epochs * 30,
+    rt_status st = rt_condition_stretch_for(&w->cond[it->role], bout->t0, bout->n_epochs * RT_EPOCH_WHOLE_S,
                                             &c->beats[it->bout], &req, &w->st, err);
     if (st == RT_OK)
         st = append_levels(&w->st, &o->points, &o->n_points, err);
@@ -442,7 +440,7 @@ static rt_status label_role_bout(const pass_ctx *c, worker_ctx *w, item_out *o, 
     const rt_score_params *p = &c->night->params;
     rt_role role = it->role;
     const bout_span *bout = &c->bouts[it->bout];
-    size_t seconds = bout->n_epochs * 30;
+    size_t seconds = bout->n_epochs * RT_EPOCH_WHOLE_S;
     const rt_stretch_request req = {RT_STRETCH_SUMS, pass1->marks, pass1->n_marks};
     rt_status st = rt_condition_stretch_for(&w->cond[role], bout->t0, seconds, &c->beats[it->bout],
                                             &req, &w->st, err);
@@ -486,7 +484,7 @@ static rt_status nrem_run(const pass_ctx *c, worker_ctx *w, item_out *o, const i
     const rt_stretch_request req = {RT_STRETCH_LEVELS, NULL, 0};
     rt_status s = rt_condition_stretch_for(&w->cond[it->role],
                                            (double)it->first_epoch * c->tl->epoch_s,
-                                           it->epochs * 30, NULL, &req, st, err);
+                                           it->epochs * RT_EPOCH_WHOLE_S, NULL, &req, st, err);
     if (s == RT_OK)
         s = append_levels(st, &o->points, &o->n_points, err);
     if (s != RT_OK || it->role != RT_ROLE_CHIN)
@@ -495,11 +493,11 @@ static rt_status nrem_run(const pass_ctx *c, worker_ctx *w, item_out *o, const i
     if (!o->medians)
         return rt_fail(err, RT_ERR_NOMEM, "out of memory for %zu NREM epochs", it->epochs);
     for (size_t k = 0; k < it->epochs; k++) {
-        double e0 = (double)(k * 30);
-        if (rt_stretch_marked(st, e0, e0 + 30.0))
+        double e0 = (double)(k * RT_EPOCH_WHOLE_S);
+        if (rt_stretch_marked(st, e0, e0 + RT_EPOCH_S))
             continue; /* a loose lead or clipping would bend the reference */
-        o->medians[o->n_medians++] = stretch_median(st, st->starts[k * 30],
-                                                    st->starts[k * 30 + 30], st->scratch);
+        o->medians[o->n_medians++] = stretch_median(st, st->starts[k * RT_EPOCH_WHOLE_S],
+                                                    st->starts[k * RT_EPOCH_WHOLE_S + RT_EPOCH_WHOLE_S], st->scratch);
     }
     return RT_OK;
 }
@@ -515,7 +513,7 @@ static rt_status run_item(void *ctx, unsigned worker, size_t i, rt_error *err)
         return nrem_run(c, w, o, it, err);
     case ITEM_BEATS: {
         const bout_span *b = &c->bouts[it->bout];
-        return rt_condition_beats_with(c->rec, c->roles, b->t0, b->n_epochs * 30, &w->beats,
+        return rt_condition_beats_with(c->rec, c->roles, b->t0, b->n_epochs * RT_EPOCH_WHOLE_S, &w->beats,
                                        &c->beats[it->bout], &c->beats_source[it->bout], err);
     }
     case ITEM_LEVELS:
@@ -614,7 +612,7 @@ static rt_status nrem_items(const pass_ctx *c, item_list *l, rt_error *err)
             if (!c->cond_open[r] || (r != RT_ROLE_CHIN && chunk % NREM_DRIFT_STRIDE != 0))
                 continue;
             item it = {ITEM_NREM, (rt_role)r, 0, e, run};
-            st = add_item(l, it, l->n, (double)run * 30.0, err);
+            st = add_item(l, it, l->n, (double)run * RT_EPOCH_S, err);
         }
         e += run;
         chunk++;
@@ -631,7 +629,7 @@ static rt_status bout_items(const pass_ctx *c, item_list *beats, item_list *leve
     size_t n_bouts = c->night->n_bouts;
     rt_status st = RT_OK;
     for (size_t b = 0; b < n_bouts && st == RT_OK; b++) {
-        double seconds = (double)c->bouts[b].n_epochs * 30.0;
+        double seconds = (double)c->bouts[b].n_epochs * RT_EPOCH_S;
         item it = {ITEM_BEATS, RT_ROLE_ECG, b, 0, c->bouts[b].n_epochs};
         st = add_item(beats, it, rank_levels(n_nrem, b, -1), BEATS_COST * seconds, err);
         for (int r = 0; r < RT_ROLE_COUNT && st == RT_OK; r++) {
@@ -749,16 +747,16 @@ static rt_status lay_out_rem(rt_night *night, const rt_timeline *tl, bout_span *
     night->rem_epochs = rem;
     night->n_bouts = bouts;
     night->epochs = rt_calloc(rem, sizeof *night->epochs);
-    night->minis3 = rt_calloc(rem * MINI3_PER_EPOCH, sizeof *night->minis3);
-    night->minis2 = rt_calloc(rem * MINI2_PER_EPOCH, sizeof *night->minis2);
+    night->minis3 = rt_calloc(rem * RT_MINIS3_PER_EPOCH, sizeof *night->minis3);
+    night->minis2 = rt_calloc(rem * RT_MINIS2_PER_EPOCH, sizeof *night->minis2);
     bout_span *b = rt_calloc(bouts, sizeof *b);
     if (!night->epochs || !night->minis3 || !night->minis2 || !b) {
         free(b);
         return rt_fail(err, RT_ERR_NOMEM, "out of memory for %zu REM epochs", rem);
     }
     night->n_epochs = rem;
-    night->n_minis3 = rem * MINI3_PER_EPOCH;
-    night->n_minis2 = rem * MINI2_PER_EPOCH;
+    night->n_minis3 = rem * RT_MINIS3_PER_EPOCH;
+    night->n_minis2 = rem * RT_MINIS2_PER_EPOCH;
     size_t k = 0, bi = 0;
     for (size_t e = 0; e < tl->n_epochs; e++) {
         if (tl->stages[e] != RT_STAGE_R)
@@ -766,8 +764,8 @@ static rt_status lay_out_rem(rt_night *night, const rt_timeline *tl, bout_span *
         if (e == 0 || tl->stages[e - 1] != RT_STAGE_R) {
             b[bi].t0 = (double)e * tl->epoch_s;
             b[bi].epoch_first = k;
-            b[bi].mini3_first = k * MINI3_PER_EPOCH;
-            b[bi].mini2_first = k * MINI2_PER_EPOCH;
+            b[bi].mini3_first = k * RT_MINIS3_PER_EPOCH;
+            b[bi].mini2_first = k * RT_MINIS2_PER_EPOCH;
             bi++;
         }
         b[bi - 1].n_epochs++;
@@ -775,14 +773,14 @@ static rt_status lay_out_rem(rt_night *night, const rt_timeline *tl, bout_span *
         er->epoch = e;
         er->onset_s = (double)e * tl->epoch_s;
         er->bout = bi - 1;
-        for (int m = 0; m < MINI3_PER_EPOCH; m++) {
-            rt_mini *mi = &night->minis3[k * MINI3_PER_EPOCH + (size_t)m];
+        for (int m = 0; m < RT_MINIS3_PER_EPOCH; m++) {
+            rt_mini *mi = &night->minis3[k * RT_MINIS3_PER_EPOCH + (size_t)m];
             mi->epoch = e;
             mi->index = m;
             mi->onset_s = er->onset_s + 3.0 * m;
         }
-        for (int m = 0; m < MINI2_PER_EPOCH; m++) {
-            rt_mini *mi = &night->minis2[k * MINI2_PER_EPOCH + (size_t)m];
+        for (int m = 0; m < RT_MINIS2_PER_EPOCH; m++) {
+            rt_mini *mi = &night->minis2[k * RT_MINIS2_PER_EPOCH + (size_t)m];
             mi->epoch = e;
             mi->index = m;
             mi->onset_s = er->onset_s + 2.0 * m;
@@ -855,7 +853,7 @@ static rt_status open_channels(pass_ctx *c, rt_error *err)
         cr->rate_hz = src->rate_hz;
         check_prefilter(night, c->rec, src, &cr->quality);
         rt_status st = rt_conditioner_open(c->rec, src, p, first ? first->t0 : 0.0,
-                                           first ? (double)first->n_epochs * 30.0 : 0.0,
+                                           first ? (double)first->n_epochs * RT_EPOCH_S : 0.0,
                                            &c->cond[r], err);
         if (st != RT_OK)
             return st;
@@ -1080,7 +1078,7 @@ rt_status rt_night_score_threads(rt_recording *rec, const rt_role_map *roles,
     if (threads < 0)
         return rt_fail(err, RT_ERR_USAGE, "scoring threads must be 0 (the cores available) or "
                        "more, got %d", threads);
-    if (fabs(tl->epoch_s - 30.0) > 1e-9)
+    if (fabs(tl->epoch_s - RT_EPOCH_S) > 1e-9)
         return rt_fail(err, RT_ERR_STAGING, "scoring needs 30-s epochs; the staging has %g-s epochs",
                        tl->epoch_s);
     rt_night *night = rt_calloc(1, sizeof *night);
@@ -1164,7 +1162,7 @@ double rt_night_background_uv(const rt_night *night, rt_role role, double t_s)
     size_t lo = 0, hi = night->n_epochs;
     while (lo < hi) {
         size_t mid = lo + (hi - lo) / 2;
-        if (night->epochs[mid].onset_s + 30.0 <= t_s)
+        if (night->epochs[mid].onset_s + RT_EPOCH_S <= t_s)
             lo = mid + 1;
         else
             hi = mid;

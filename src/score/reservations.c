@@ -243,14 +243,14 @@ static double unit_seconds(const rt_night *night, int i, char *name, size_t cap)
     case RT_IX_MONTREAL_PHASIC_CHIN: snprintf(name, cap, "2-s mini-epochs"); return 2.0;
     case RT_IX_RAI: snprintf(name, cap, "seconds"); return 1.0;
     case RT_IX_MONTREAL_LM_PER_H: snprintf(name, cap, "REM minutes"); return 60.0;
-    default: snprintf(name, cap, "epochs"); return 30.0;
+    default: snprintf(name, cap, "epochs"); return RT_EPOCH_S;
     }
 }
 
 static void reserve_few_units(rt_night *night)
 {
     const rt_index_rule *rules = rt_index_rules();
-    double need_s = night->params.index_min_epochs * 30.0;
+    double need_s = night->params.index_min_epochs * RT_EPOCH_S;
     char list[560] = "";
     size_t listed = 0, more = 0;
     for (int i = 0; i < RT_IX_COUNT; i++) {

@@ -33,7 +33,7 @@ static bool bout_extent(const rt_night *night, size_t bout, double *t0, size_t *
             continue;
         if (!any)
             first = night->epochs[e].onset_s;
-        last = night->epochs[e].onset_s + 30.0;
+        last = night->epochs[e].onset_s + RT_EPOCH_S;
         any = true;
     }
     *t0 = first;
@@ -118,7 +118,7 @@ rt_status rt_night_tracer_envelope(rt_night_tracer *t, rt_role role, double t0_s
                        (int)role >= 0 && role < RT_ROLE_COUNT ? rt_role_name(role) : "such");
     size_t bout = SIZE_MAX;
     for (size_t e = 0; e < night->n_epochs && bout == SIZE_MAX; e++)
-        if (t0_s >= night->epochs[e].onset_s - 1e-9 && t0_s < night->epochs[e].onset_s + 30.0)
+        if (t0_s >= night->epochs[e].onset_s - 1e-9 && t0_s < night->epochs[e].onset_s + RT_EPOCH_S)
             bout = night->epochs[e].bout;
     double bt0 = 0.0;
     size_t bs = 0;

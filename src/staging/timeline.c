@@ -1,15 +1,15 @@
-/* The timeline object: the checked path by which every loader adds stage runs
- * and events, the merge that makes a load all-or-nothing, the consistency
- * check against a recording, and the loader that tells a staging file's
- * format from its first bytes. Stage runs must arrive in time order without
- * overlap: a scorer's hypnogram is a sequence, and an entry out of order is far
- * more often an export bug than an intention, so it is reported, not sorted. */
-#include <errno.h>
+/* The timeline object: the checked path by which every loader adds stage runs,
+ * events and manual mini-epochs, the merge that makes a load all-or-nothing,
+ * and the consistency check against a recording. It calls no loader: the
+ * loaders (tables.c, annotations.c, xml.c) build through it, and load.c,
+ * which tells a staging file's format, calls the loaders. Stage runs must
+ * arrive in time order without overlap: a scorer's hypnogram is a sequence,
+ * and an entry out of order is far more often an export bug than an
+ * intention, so it is reported, not sorted. */
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
-#include <sys/stat.h>
 
 #include "internal.h"
 #include "remtone/roles.h"
@@ -21,7 +21,6 @@
 /* No staging reaches past 31 days; beyond that the start is a typing error
  * (and would ask for an absurd allocation). */
 #define MAX_TIMELINE_S (31.0 * 86400.0)
-#define DEFAULT_EPOCH_S 30.0
 
 rt_status rt_timeline_new(rt_timeline **out, rt_error *err)
 {
@@ -30,7 +29,7 @@ rt_status rt_timeline_new(rt_timeline **out, rt_error *err)
     rt_timeline *tl = *out = rt_calloc(1, sizeof *tl);
     if (!tl)
         return rt_fail(err, RT_ERR_NOMEM, "out of memory for a timeline");
-    tl->epoch_s = DEFAULT_EPOCH_S;
+    tl->epoch_s = RT_EPOCH_S;
     tl->lights_off_s = 0.0;
     tl->lights_on_s = -1.0;
     return RT_OK;
@@ -308,64 +307,60 @@ rt_status rt_timeline_check(const rt_timeline *tl, double recording_s, rt_error 
     return RT_OK;
 }
 
-/* Format of a staging file as told by its first bytes. */
-typedef enum staging_format { FORMAT_CSV, FORMAT_EDF, FORMAT_XML } staging_format;
-
-static rt_status sniff_format(const char *path, staging_format *format, rt_error *err)
+/* Manual minis are kept ordered by onset (equal within GRID_TOL_S), then role. */
+static int manual_cmp(double a_onset, int a_role, double b_onset, int b_role)
 {
-    struct stat st;
-    if (stat(path, &st) != 0)
-        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
-                       "%s: cannot open: %s", path, strerror(errno));
-    if (S_ISDIR(st.st_mode))
-        return rt_fail(err, RT_ERR_IO, "%s: is a directory, not a staging file", path);
-    FILE *f = fopen(path, "rb");
-    if (!f)
-        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
-                       "%s: cannot open: %s", path, strerror(errno));
-    unsigned char head[256];
-    size_t n = fread(head, 1, sizeof head, f);
-    int read_error = ferror(f);
-    fclose(f);
-    if (read_error)
-        return rt_fail(err, RT_ERR_IO, "%s: cannot read", path);
-    if (n >= 8 && (memcmp(head, "0       ", 8) == 0 || memcmp(head, "\xff" "BIOSEMI", 8) == 0)) {
-        *format = FORMAT_EDF;
-        return RT_OK;
-    }
-    size_t i = 0;
-    if (n >= 3 && memcmp(head, "\xef\xbb\xbf", 3) == 0)
-        i = 3;
-    while (i < n && (head[i] == ' ' || head[i] == '\t' || head[i] == '\r' || head[i] == '\n'))
-        i++;
-    *format = (i < n && head[i] == '<') ? FORMAT_XML : FORMAT_CSV;
-    return RT_OK;
+    if (fabs(a_onset - b_onset) > GRID_TOL_S)
+        return a_onset < b_onset ? -1 : 1;
+    return (a_role > b_role) - (a_role < b_role);
 }
 
-rt_status rt_timeline_load_staging(rt_timeline *tl, const char *path, const rt_labelmap *map,
-                                   rt_error *err)
+rt_status rt_timeline_add_manual(rt_timeline *tl, double onset_s, int role, bool phasic,
+                                 bool tonic, const char *source, long line, rt_error *err)
 {
-    if (!tl || !path)
-        return rt_fail(err, RT_ERR_USAGE, "rt_timeline_load_staging: NULL argument");
-    staging_format format = FORMAT_CSV;
-    rt_status st = sniff_format(path, &format, err);
-    if (st != RT_OK)
-        return st;
-    switch (format) {
-    case FORMAT_EDF: {
-        rt_recording *rec = NULL;
-        if ((st = rt_recording_open(path, &rec, err)) != RT_OK)
-            return st;
-        st = rt_timeline_load_annotations(tl, rec, map, true, true, err);
-        rt_recording_close(rec);
-        return st;
+    char buf[600];
+    const char *at = place(buf, sizeof buf, source, line);
+    if (!tl)
+        return rt_fail(err, RT_ERR_USAGE, "%s: no timeline", at);
+    if (role < 0 || role >= RT_ROLE_COUNT)
+        return rt_fail(err, RT_ERR_STAGING, "%s: manual mini-epoch role %d out of range", at,
+                       role);
+    if (!isfinite(onset_s) || onset_s < 0.0 || onset_s > MAX_TIMELINE_S)
+        return rt_fail(err, RT_ERR_STAGING,
+                       "%s: manual mini-epoch onset %.10g s is not within 0 s .. 31 days", at,
+                       onset_s);
+    const double ep = tl->epoch_s;
+    double epoch = floor((onset_s + GRID_TOL_S) / ep);
+    double offset_s = onset_s - epoch * ep;
+    double k = nearbyint(offset_s / RT_MANUAL_MINI_S);
+    if (fabs(offset_s - k * RT_MANUAL_MINI_S) > GRID_TOL_S ||
+        k * RT_MANUAL_MINI_S + RT_MANUAL_MINI_S > ep + GRID_TOL_S)
+        return rt_fail(err, RT_ERR_STAGING,
+                       "%s: manual mini-epoch onset %.10g s is not on the 3-s grid of its "
+                       "%g-s epoch (minis start 0, 3, 6 ... s into an epoch)",
+                       at, onset_s, ep);
+    double snapped_s = epoch * ep + k * RT_MANUAL_MINI_S;
+    /* Scorings arrive in time order almost always: look from the end. */
+    size_t slot = tl->n_manual;
+    while (slot > 0) {
+        const rt_manual_mini *m = &tl->manual[slot - 1];
+        int c = manual_cmp(m->onset_s, m->role, snapped_s, role);
+        if (c == 0)
+            return rt_fail(err, RT_ERR_STAGING,
+                           "%s: the mini-epoch at %.10g s on %s is scored twice", at, snapped_s,
+                           rt_role_name((rt_role)role));
+        if (c < 0)
+            break;
+        slot--;
     }
-    case FORMAT_XML:
-        /* Only remtone's own scoring schema is read; a label map has nothing
-         * to do there (the schema fixes the stage and event names). */
-        return rt_timeline_load_xml(tl, path, err);
-    case FORMAT_CSV:
-        break;
-    }
-    return rt_timeline_load_stages_csv(tl, path, map, err);
+    if (tl->n_manual >= ((size_t)-1) / sizeof(rt_manual_mini) - 1)
+        return rt_fail(err, RT_ERR_NOMEM, "%s: too many manual mini-epochs", at);
+    rt_manual_mini *grown = realloc(tl->manual, (tl->n_manual + 1) * sizeof *grown);
+    if (!grown)
+        return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory for manual mini-epochs", at);
+    tl->manual = grown;
+    memmove(grown + slot + 1, grown + slot, (tl->n_manual - slot) * sizeof *grown);
+    grown[slot] = (rt_manual_mini){snapped_s, (signed char)role, phasic ? 1 : 0, tonic ? 1 : 0};
+    tl->n_manual++;
+    return RT_OK;
 }

@@ -6,9 +6,8 @@
  * at (no entity is ever expanded, no external file or URL ever opened), all
  * libxml2 diagnostics go to per-call collectors rather than libxml2's global
  * handlers (which would print), and the validated tree is turned into a
- * timeline through the same checked calls every other loader uses. Also
- * here: the role-carrying event and manual-mini additions to a timeline,
- * which only scoring files use so far. */
+ * timeline through the same checked calls every other loader uses
+ * (timeline.c). */
 #include <errno.h>
 #include <math.h>
 #include <pthread.h>
@@ -35,69 +34,6 @@
  * a few MiB; 64 MiB is the stage table's limit too, and stops a wrong path to
  * a recording from being parsed as text. */
 #define MAX_XML_BYTES (64L * 1024 * 1024)
-#define GRID_TOL_S 1e-6
-
-/* ---- Timeline additions used by scoring files ---------------------------- */
-
-static int manual_cmp(double a_onset, int a_role, double b_onset, int b_role)
-{
-    if (fabs(a_onset - b_onset) > GRID_TOL_S)
-        return a_onset < b_onset ? -1 : 1;
-    return (a_role > b_role) - (a_role < b_role);
-}
-
-rt_status rt_timeline_add_manual(rt_timeline *tl, double onset_s, int role, bool phasic,
-                                 bool tonic, const char *source, long line, rt_error *err)
-{
-    char at[600];
-    if (line > 0)
-        snprintf(at, sizeof at, "%s line %ld", source ? source : "staging", line);
-    else
-        snprintf(at, sizeof at, "%s", source ? source : "staging");
-    if (!tl)
-        return rt_fail(err, RT_ERR_USAGE, "%s: no timeline", at);
-    if (role < 0 || role >= RT_ROLE_COUNT)
-        return rt_fail(err, RT_ERR_STAGING, "%s: manual mini-epoch role %d out of range", at,
-                       role);
-    if (!isfinite(onset_s) || onset_s < 0.0 || onset_s > 31.0 * 86400.0)
-        return rt_fail(err, RT_ERR_STAGING,
-                       "%s: manual mini-epoch onset %.10g s is not within 0 s .. 31 days", at,
-                       onset_s);
-    const double ep = tl->epoch_s;
-    double epoch = floor((onset_s + GRID_TOL_S) / ep);
-    double offset_s = onset_s - epoch * ep;
-    double k = nearbyint(offset_s / RT_MANUAL_MINI_S);
-    if (fabs(offset_s - k * RT_MANUAL_MINI_S) > GRID_TOL_S ||
-        k * RT_MANUAL_MINI_S + RT_MANUAL_MINI_S > ep + GRID_TOL_S)
-        return rt_fail(err, RT_ERR_STAGING,
-                       "%s: manual mini-epoch onset %.10g s is not on the 3-s grid of its "
-                       "%g-s epoch (minis start 0, 3, 6 ... s into an epoch)",
-                       at, onset_s, ep);
-    double snapped_s = epoch * ep + k * RT_MANUAL_MINI_S;
-    /* Scorings arrive in time order almost always: look from the end. */
-    size_t slot = tl->n_manual;
-    while (slot > 0) {
-        const rt_manual_mini *m = &tl->manual[slot - 1];
-        int c = manual_cmp(m->onset_s, m->role, snapped_s, role);
-        if (c == 0)
-            return rt_fail(err, RT_ERR_STAGING,
-                           "%s: the mini-epoch at %.10g s on %s is scored twice", at, snapped_s,
-                           rt_role_name((rt_role)role));
-        if (c < 0)
-            break;
-        slot--;
-    }
-    if (tl->n_manual >= ((size_t)-1) / sizeof(rt_manual_mini) - 1)
-        return rt_fail(err, RT_ERR_NOMEM, "%s: too many manual mini-epochs", at);
-    rt_manual_mini *grown = realloc(tl->manual, (tl->n_manual + 1) * sizeof *grown);
-    if (!grown)
-        return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory for manual mini-epochs", at);
-    tl->manual = grown;
-    memmove(grown + slot + 1, grown + slot, (tl->n_manual - slot) * sizeof *grown);
-    grown[slot] = (rt_manual_mini){snapped_s, (signed char)role, phasic ? 1 : 0, tonic ? 1 : 0};
-    tl->n_manual++;
-    return RT_OK;
-}
 
 /* ---- libxml2 plumbing --------------------------------------------------- */
 
@@ -592,7 +528,7 @@ static rt_status read_root(reader *r, xmlNodePtr root)
     if (!root || !is_element(root, "remtone-scoring"))
         return rt_fail(r->err, RT_ERR_STAGING, "%s: the root element is not <remtone-scoring>",
                        r->name);
-    double epoch_s = 30.0;
+    double epoch_s = RT_EPOCH_S;
     bool given = false;
     rt_status st = attr_number(r, root, "epoch-s", false, &epoch_s, &given);
     if (st != RT_OK)

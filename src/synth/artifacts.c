@@ -11,7 +11,6 @@
 
 #include "internal.h"
 
-#define SYNTH_PI 3.14159265358979323846
 
 enum { POP_STREAM = 900 };
 
@@ -42,7 +41,7 @@ double rt_synth_ecg_wave(double t_s)
  * respiratory-like modulation at 0.25 Hz. */
 static long next_beat(long n, double bpm)
 {
-    double rr = 60.0 / bpm * (1.0 + 0.03 * sin(2.0 * SYNTH_PI * 0.25 * (double)n / SYNTH_ECG_RATE_HZ));
+    double rr = 60.0 / bpm * (1.0 + 0.03 * sin(2.0 * RT_PI * 0.25 * (double)n / SYNTH_ECG_RATE_HZ));
     return n + lround(rr * SYNTH_ECG_RATE_HZ);
 }
 
@@ -97,7 +96,7 @@ static rt_status place_pops(synth_plan *plan, rt_error *err)
         } else {
             e = rt_synth_rng_int(&rng, 0, plan->n_epochs - 1);
         }
-        double t = (double)e * SYNTH_EPOCH_S + rt_synth_rng_range(&rng, 2.0, SYNTH_EPOCH_S - 2.0);
+        double t = (double)e * RT_EPOCH_WHOLE_S + rt_synth_rng_range(&rng, 2.0, RT_EPOCH_WHOLE_S - 2.0);
         /* on the chin's sample grid, so the step is one sample wide */
         t = floor(t * plan->emg_rate_hz[SYNTH_CHIN]) / plan->emg_rate_hz[SYNTH_CHIN];
         double amp = rt_synth_rng_range(&rng, 100.0, 250.0) * (rt_synth_rng_uniform(&rng) < 0.5 ? -1 : 1);
@@ -149,7 +148,7 @@ double rt_synth_artifact_uv(const synth_plan *plan, int role, double t_s, size_t
         double a = o->mains_uv;
         for (int h = 1; h <= 1 + o->mains_harmonics; h++, a *= 0.5)
             if (rt_synth_mains_reaches(plan, role, h))
-                v += a * sin(2.0 * SYNTH_PI * o->mains_hz * h * t_s);
+                v += a * sin(2.0 * RT_PI * o->mains_hz * h * t_s);
     }
     double bleed = role == SYNTH_CHIN ? o->ecg_bleed_uv : o->ecg_bleed_limb_uv;
     if (bleed > 0.0 && plan->n_beats > 0) {
@@ -184,6 +183,6 @@ double rt_synth_chin_override(const synth_plan *plan, double t_s, double x_uv)
     if (o->detach_s > 0.0 && t_s >= o->detach_s)
         return 0.0;
     if (o->clip_duration_s > 0.0 && t_s >= o->clip_start_s && t_s < o->clip_start_s + o->clip_duration_s)
-        x_uv += SYNTH_CLIP_SWING_UV * sin(2.0 * SYNTH_PI * SYNTH_CLIP_SWING_HZ * (t_s - o->clip_start_s));
+        x_uv += SYNTH_CLIP_SWING_UV * sin(2.0 * RT_PI * SYNTH_CLIP_SWING_HZ * (t_s - o->clip_start_s));
     return x_uv;
 }

@@ -168,8 +168,8 @@ rt_status rt_synth_place_tonic_runs(synth_plan *plan, rt_error *err)
             plan->tonic_uv[e] = level;
         }
         synth_tonic *t = &plan->tonics[plan->n_tonics++];
-        t->onset_s = (double)e0 * SYNTH_EPOCH_S;
-        t->duration_s = (double)len * SYNTH_EPOCH_S;
+        t->onset_s = (double)e0 * RT_EPOCH_WHOLE_S;
+        t->duration_s = (double)len * RT_EPOCH_WHOLE_S;
         t->rect_uv = level;
         t->ratio = level / bout->chin_bg_uv;
         t->bout = b;
@@ -201,8 +201,8 @@ static int *slot_at(short_ctx *c, int role, long s)
 static int short_fits(short_ctx *c, int role, const synth_bout *bout, double on, double dur)
 {
     const synth_plan *plan = c->plan;
-    double end = on + dur, t0 = (double)bout->first_epoch * SYNTH_EPOCH_S;
-    double t1 = t0 + (double)bout->epochs * SYNTH_EPOCH_S;
+    double end = on + dur, t0 = (double)bout->first_epoch * RT_EPOCH_WHOLE_S;
+    double t1 = t0 + (double)bout->epochs * RT_EPOCH_WHOLE_S;
     const double eps = 1e-9;
     if (on < t0 + 0.5 - eps || end > t1 - 0.5 + eps)
         return 0;
@@ -211,7 +211,8 @@ static int short_fits(short_ctx *c, int role, const synth_bout *bout, double on,
         ((double)b - on < 0.05 - eps || end - (double)b < 0.05 - eps))
         return 0;
     if (role == SYNTH_CHIN) {
-        long ea = (long)floor((on - 0.5) / SYNTH_EPOCH_S), eb = (long)floor((end + 0.5) / SYNTH_EPOCH_S);
+        long ea = (long)floor((on - 0.5) / RT_EPOCH_WHOLE_S);
+        long eb = (long)floor((end + 0.5) / RT_EPOCH_WHOLE_S);
         for (long e = ea; e <= eb; e++)
             if (e >= 0 && e < plan->n_epochs && plan->tonic[e])
                 return 0;
@@ -253,7 +254,7 @@ static rt_status short_add(short_ctx *c, int role, double on, double dur, int ar
     double lo, hi;
     rt_synth_burst_ratio_range(&plan->opt, &lo, &hi);
     double ratio = rt_synth_round3(rt_synth_rng_range(&c->rng, lo, hi));
-    double bg = plan->bg_uv[role][(long)floor(on) / SYNTH_EPOCH_S];
+    double bg = plan->bg_uv[role][(long)floor(on) / RT_EPOCH_WHOLE_S];
     synth_burst b = {role, on, dur, bg * ratio, ratio, arousal_bound};
     rt_status st = rt_synth_push_burst(plan, &b, err);
     if (st != RT_OK)
@@ -308,8 +309,11 @@ static rt_status short_arousals(short_ctx *c, rt_error *err)
         const synth_event *ev = &plan->events[i];
         if (ev->type != SYNTH_RESP_AROUSAL)
             continue;
-        int b = rt_synth_bout_of_epoch(plan, (int)(ev->start_s / SYNTH_EPOCH_S));
-        if (b < 0 || rt_synth_bout_of_epoch(plan, (int)((ev->start_s + ev->duration_s - 1) / SYNTH_EPOCH_S)) != b)
+        int b = rt_synth_bout_of_epoch(plan, (int)(ev->start_s / RT_EPOCH_WHOLE_S));
+        if (b < 0)
+            continue;
+        int last_epoch = (int)((ev->start_s + ev->duration_s - 1) / RT_EPOCH_WHOLE_S);
+        if (rt_synth_bout_of_epoch(plan, last_epoch) != b)
             continue;
         for (int r = 0; r < 3; r++) {
             int want = rt_synth_rng_int(&c->rng, 1, 3), placed = 0;
@@ -369,7 +373,7 @@ rt_status rt_synth_place_short_bursts(synth_plan *plan, const double burst_minis
         for (int b = 0; b < plan->n_bouts; b++)
             for (int e = plan->bouts[b].first_epoch; e < plan->bouts[b].first_epoch + plan->bouts[b].epochs; e++)
                 for (int k = 0; k < 10; k++) {
-                    long m0 = (long)e * SYNTH_EPOCH_S + 3 * k;
+                    long m0 = (long)e * RT_EPOCH_WHOLE_S + 3 * k;
                     if (role == SYNTH_CHIN && plan->tonic[e])
                         continue;
                     base++;
@@ -388,7 +392,7 @@ rt_status rt_synth_place_short_bursts(synth_plan *plan, const double burst_minis
             /* a burst that crossed into this mini earlier already fills it */
             if (short_holds(&c, role, (double)m0, (double)m0 + 3.0))
                 continue;
-            int b = rt_synth_bout_of_epoch(plan, (int)(m0 / SYNTH_EPOCH_S));
+            int b = rt_synth_bout_of_epoch(plan, (int)(m0 / RT_EPOCH_WHOLE_S));
             (void)short_in_mini(&c, role, &plan->bouts[b], m0, &st, err);
         }
     }

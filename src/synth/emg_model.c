@@ -9,7 +9,6 @@
 #include <math.h>
 #include <string.h>
 
-#define SYNTH_PI 3.14159265358979323846
 
 /* Calibration of the spiky model: long enough that the estimated rectified
  * mean is within ~0.2 % (per-second scatter ~5 %, 600 independent seconds),
@@ -20,7 +19,7 @@ static const uint64_t SPIKY_CALIBRATION_SEED = 0x5eedca11b4a7e000ULL;
 /* RBJ audio-EQ-cookbook biquads (bilinear transform with pre-warping). */
 static synth_biquad biquad_design(int highpass, double f0_hz, double rate_hz, double q)
 {
-    double w0 = 2.0 * SYNTH_PI * f0_hz / rate_hz;
+    double w0 = 2.0 * RT_PI * f0_hz / rate_hz;
     double cw = cos(w0), alpha = sin(w0) / (2.0 * q), a0 = 1.0 + alpha;
     synth_biquad b;
     if (highpass) {
@@ -167,7 +166,7 @@ static void spiky_draw(synth_spiky *m, uint64_t seed, int role)
         m->sigma_s[k] = rt_synth_rng_range(&rng, 0.0025, 0.0035);
         m->amp[k] = rt_synth_rng_range(&rng, 0.5, 1.0);
         m->rate_hz[k] = rt_synth_rng_range(&rng, 5.0, 20.0);
-        power += m->rate_hz[k] * m->amp[k] * m->amp[k] * exp(1.0) * m->sigma_s[k] * sqrt(SYNTH_PI) / 2.0;
+        power += m->rate_hz[k] * m->amp[k] * m->amp[k] * exp(1.0) * m->sigma_s[k] * sqrt(RT_PI) / 2.0;
     }
     m->noise_sd = 0.1 * sqrt(power);
     m->scale = 1.0;

@@ -267,12 +267,12 @@ static rt_status place_tonic(synth_plan *plan, const profile_rates *rates, synth
          * wherever the level or the bout pairing changes. */
         synth_tonic *last = plan->n_tonics ? &plan->tonics[plan->n_tonics - 1] : NULL;
         if (last && e > 0 && plan->tonic[e - 1] && plan->tonic_uv[e - 1] == plan->tonic_uv[e] &&
-            last->duration_s < 2 * SYNTH_EPOCH_S) {
-            last->duration_s += SYNTH_EPOCH_S;
+            last->duration_s < 2 * RT_EPOCH_WHOLE_S) {
+            last->duration_s += RT_EPOCH_WHOLE_S;
         } else {
             synth_tonic *t = &plan->tonics[plan->n_tonics++];
-            t->onset_s = (double)e * SYNTH_EPOCH_S;
-            t->duration_s = SYNTH_EPOCH_S;
+            t->onset_s = (double)e * RT_EPOCH_WHOLE_S;
+            t->duration_s = RT_EPOCH_WHOLE_S;
             t->rect_uv = plan->tonic_uv[e];
             t->bout = rt_synth_bout_of_epoch(plan, e);
             t->ratio = t->rect_uv / plan->bg_uv[SYNTH_CHIN][e];
@@ -342,25 +342,25 @@ static rt_status add_burst(synth_plan *plan, int role, long second, double bg_uv
  * ends of its bout, free for that role, and (chin) outside tonic blocks. */
 static int second_allows_burst(const synth_plan *plan, const synth_bout *bout, int role, long s)
 {
-    long t0 = (long)bout->first_epoch * SYNTH_EPOCH_S;
-    long t1 = t0 + (long)bout->epochs * SYNTH_EPOCH_S;
+    long t0 = (long)bout->first_epoch * RT_EPOCH_WHOLE_S;
+    long t1 = t0 + (long)bout->epochs * RT_EPOCH_WHOLE_S;
     if (s < t0 + 2 || s > t1 - 3)
         return 0;
     if (plan->sec_burst[role][s] >= 0)
         return 0;
-    if (role == SYNTH_CHIN && plan->tonic[s / SYNTH_EPOCH_S])
+    if (role == SYNTH_CHIN && plan->tonic[s / RT_EPOCH_WHOLE_S])
         return 0;
     /* With tonic runs, chin bursts keep 0.5 s from the edges of a tonic
      * stretch: the seconds next to one are not used. */
     if (role == SYNTH_CHIN && rt_synth_tonic_runs_on(&plan->opt) &&
-        (plan->tonic[(s - 1) / SYNTH_EPOCH_S] || plan->tonic[(s + 1) / SYNTH_EPOCH_S]))
+        (plan->tonic[(s - 1) / RT_EPOCH_WHOLE_S] || plan->tonic[(s + 1) / RT_EPOCH_WHOLE_S]))
         return 0;
     return 1;
 }
 
 static double burst_background(const synth_plan *plan, int role, long s)
 {
-    return plan->bg_uv[role][s / SYNTH_EPOCH_S];
+    return plan->bg_uv[role][s / RT_EPOCH_WHOLE_S];
 }
 
 /* Arousal-bound bursts: 1-3 each for chin and both legs inside every
@@ -409,14 +409,14 @@ static rt_status place_events_in(synth_plan *plan, long r0, long r1, double rate
         long blocked = -1;
         if (bout)
             for (long s = t + d; s < t + d + a; s++)
-                if (plan->tonic[s / SYNTH_EPOCH_S]) {
-                    blocked = s / SYNTH_EPOCH_S;
+                if (plan->tonic[s / RT_EPOCH_WHOLE_S]) {
+                    blocked = s / RT_EPOCH_WHOLE_S;
                     break;
                 }
         if (blocked >= 0) {
             while (blocked < plan->n_epochs && plan->tonic[blocked])
                 blocked++;
-            t = blocked * SYNTH_EPOCH_S;
+            t = blocked * RT_EPOCH_WHOLE_S;
             continue;
         }
         int type = rt_synth_rng_uniform(rng) < 0.4 ? SYNTH_APNEA : SYNTH_HYPOPNEA;
@@ -451,7 +451,7 @@ static rt_status place_events(synth_plan *plan, synth_rng *rng, rt_error *err)
             e++;
             continue;
         }
-        long r0 = (long)e * SYNTH_EPOCH_S, r1 = (long)end * SYNTH_EPOCH_S;
+        long r0 = (long)e * RT_EPOCH_WHOLE_S, r1 = (long)end * RT_EPOCH_WHOLE_S;
         rt_status s = RT_OK;
         if (st == SYNTH_R)
             s = place_events_in(plan, r0 + 2, r1 - 2, 20.0, &plan->bouts[b++], rng, err);
@@ -513,21 +513,21 @@ static rt_status place_bursts(synth_plan *plan, const profile_rates *rates, synt
     for (int b = 0; b < plan->n_bouts; b++)
         for (int e = 0; e < plan->bouts[b].epochs; e++)
             for (int k = 0; k < 10; k++, m++) {
-                mini_start[m] = (long)(plan->bouts[b].first_epoch + e) * SYNTH_EPOCH_S + 3 * k;
+                mini_start[m] = (long)(plan->bouts[b].first_epoch + e) * RT_EPOCH_WHOLE_S + 3 * k;
                 mini_bout[m] = b;
             }
     rt_status st = RT_OK;
     for (int role = 0; role < SYNTH_ROLES && st == RT_OK; role++) {
         int base = 0, holding = 0, n_cand = 0;
         for (int i = 0; i < n_minis; i++) {
-            if (role == SYNTH_CHIN && plan->tonic[mini_start[i] / SYNTH_EPOCH_S])
+            if (role == SYNTH_CHIN && plan->tonic[mini_start[i] / RT_EPOCH_WHOLE_S])
                 continue;
             base++;
             if (mini_holds(plan, role, mini_start[i], 3)) {
                 holding++;
                 continue;
             }
-            if (!active[mini_start[i] / SYNTH_EPOCH_S])
+            if (!active[mini_start[i] / RT_EPOCH_WHOLE_S])
                 continue;
             for (long s = mini_start[i]; s < mini_start[i] + 3; s++)
                 if (second_allows_burst(plan, &plan->bouts[mini_bout[i]], role, s)) {
@@ -607,8 +607,8 @@ rt_status rt_synth_plan_build(synth_plan *plan, const rt_synth_options *opt, rt_
 {
     memset(plan, 0, sizeof *plan);
     plan->opt = *opt;
-    plan->n_epochs = (int)floor(opt->hours * 3600.0 / SYNTH_EPOCH_S + 1e-9);
-    plan->n_seconds = (long)plan->n_epochs * SYNTH_EPOCH_S;
+    plan->n_epochs = (int)floor(opt->hours * 3600.0 / RT_EPOCH_WHOLE_S + 1e-9);
+    plan->n_seconds = (long)plan->n_epochs * RT_EPOCH_WHOLE_S;
     size_t ne = (size_t)plan->n_epochs, ns = (size_t)plan->n_seconds;
     plan->stage = rt_calloc(ne, 1);
     plan->tonic = rt_calloc(ne, 1);
@@ -707,18 +707,18 @@ void rt_synth_plan_free(synth_plan *plan)
 double rt_synth_plan_background_uv(const synth_plan *plan, int role, double t_s)
 {
     int n = plan->n_epochs;
-    int e = (int)floor(t_s / SYNTH_EPOCH_S);
+    int e = (int)floor(t_s / RT_EPOCH_WHOLE_S);
     if (e < 0)
         e = 0;
     if (e >= n)
         e = n - 1;
-    int boundary = (int)floor(t_s / SYNTH_EPOCH_S + 0.5);
+    int boundary = (int)floor(t_s / RT_EPOCH_WHOLE_S + 0.5);
     if (boundary <= 0 || boundary >= n)
         return plan->bg_uv[role][e];
     int a = boundary - 1, b = boundary;
     if (plan->stage[a] == SYNTH_R && plan->stage[b] == SYNTH_R)
         return plan->bg_uv[role][e];
-    double tb = (double)boundary * SYNTH_EPOCH_S;
+    double tb = (double)boundary * RT_EPOCH_WHOLE_S;
     /* The ramp stays outside REM so every REM level is constant per bout. */
     double r0 = tb - 0.25, r1 = tb + 0.25;
     if (plan->stage[b] == SYNTH_R) {

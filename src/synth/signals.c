@@ -16,7 +16,6 @@
 #include "internal.h"
 #include "io/edf_writer.h"
 
-#define SYNTH_PI 3.14159265358979323846
 
 enum {
     N_CHANNELS = 20,
@@ -69,6 +68,11 @@ static const channel_spec channels[N_CHANNELS] = {
     {"Pos", 1, "", 0, 4, 0, 4, "Position sensor", ""},
 };
 
+const char *rt_synth_emg_label(int role)
+{
+    return role >= 0 && role < SYNTH_ROLES ? channels[CH_EMG0 + role].label : "unknown";
+}
+
 /* Rotating phasor: a sinusoid by complex multiplication, cheaper than sin()
  * per sample; renormalised once per second so rounding cannot drift. */
 typedef struct osc {
@@ -105,7 +109,7 @@ enum { ECG_R_INDEX = 90 };
 
 static void osc_init(osc *o, double f_hz, double rate_hz, double phase)
 {
-    double w = 2.0 * SYNTH_PI * f_hz / rate_hz;
+    double w = 2.0 * RT_PI * f_hz / rate_hz;
     o->c = cos(phase);
     o->s = sin(phase);
     o->cw = cos(w);
@@ -204,7 +208,7 @@ static void writer_free(writer *w)
 
 static int stage_at(const synth_plan *plan, long s)
 {
-    return plan->stage[s / SYNTH_EPOCH_S];
+    return plan->stage[s / RT_EPOCH_WHOLE_S];
 }
 
 static void make_eeg(writer *w, long s)
@@ -227,7 +231,7 @@ static void make_eeg(writer *w, long s)
                        amp[st][2] * alpha_gain * osc_step(&e->alpha) + amp[st][4] * e->ar;
             double sp = osc_step(&e->spindle);
             if (spindle)
-                v += amp[st][3] * sin(SYNTH_PI * i / 128.0) * sp;
+                v += amp[st][3] * sin(RT_PI * i / 128.0) * sp;
             out[i] = v;
         }
         osc_renorm(&e->delta);
@@ -291,8 +295,8 @@ static void make_emg(writer *w, long s)
 {
     const synth_plan *plan = w->plan;
     const double k = 1.2533141373155003; /* sqrt(pi/2): E|x| = sigma * sqrt(2/pi) */
-    long e = s / SYNTH_EPOCH_S;
-    int near_boundary = (s % SYNTH_EPOCH_S == 0) || (s % SYNTH_EPOCH_S == SYNTH_EPOCH_S - 1);
+    long e = s / RT_EPOCH_WHOLE_S;
+    int near_boundary = (s % RT_EPOCH_WHOLE_S == 0) || (s % RT_EPOCH_WHOLE_S == RT_EPOCH_WHOLE_S - 1);
     const rt_synth_options *o = &plan->opt;
     int artifacts = (o->mains_hz > 0.0 && o->mains_uv > 0.0) || o->ecg_bleed_uv > 0.0 ||
                     o->ecg_bleed_limb_uv > 0.0 || o->clip_duration_s > 0.0 || o->detach_s > 0.0 ||
@@ -388,7 +392,7 @@ static double spo2_at(const synth_plan *plan, long s)
             d = depth * (b - s) / (b - m);
         dip = d > dip ? d : dip;
     }
-    return 95.5 + 0.5 * sin(2.0 * SYNTH_PI * (double)s / 600.0) - dip;
+    return 95.5 + 0.5 * sin(2.0 * RT_PI * (double)s / 600.0) - dip;
 }
 
 static void make_resp(writer *w, long s, size_t *cursor)
@@ -410,22 +414,22 @@ static void make_resp(writer *w, long s, size_t *cursor)
     }
     synth_rng *r = &w->rng[CH_FLOW];
     for (int i = 0; i < 32; i++) {
-        double ph = w->breath_phase + 2.0 * SYNTH_PI * f_hz * i / 32.0;
+        double ph = w->breath_phase + 2.0 * RT_PI * f_hz * i / 32.0;
         w->buf[CH_FLOW][i] = 200.0 * flow * sin(ph) + 5.0 * cheap_noise(r);
         w->buf[CH_THOR][i] = 150.0 * belt * sin(ph - 0.3) + 3.0 * cheap_noise(&w->rng[CH_THOR]);
-        w->buf[CH_ABDO][i] = 150.0 * belt * sin(ph - 0.3 + (paradox ? SYNTH_PI : 0.2)) +
+        w->buf[CH_ABDO][i] = 150.0 * belt * sin(ph - 0.3 + (paradox ? RT_PI : 0.2)) +
                              3.0 * cheap_noise(&w->rng[CH_ABDO]);
     }
     /* Snoring rides on inspiration in sleep when the airway is open. */
     int snoring = plan->opt.profile == RT_SYNTH_APNEA && st != SYNTH_W && ev != SYNTH_APNEA + 1;
     for (int i = 0; i < 128; i++) {
-        double ph = w->breath_phase + 2.0 * SYNTH_PI * f_hz * i / 128.0;
+        double ph = w->breath_phase + 2.0 * RT_PI * f_hz * i / 128.0;
         double env = snoring ? 15.0 * fmax(0.0, sin(ph)) : 0.0;
         w->buf[CH_SNORE][i] = (2.0 + env) * cheap_noise(&w->rng[CH_SNORE]);
     }
-    w->breath_phase = fmod(w->breath_phase + 2.0 * SYNTH_PI * f_hz, 2.0 * SYNTH_PI);
+    w->breath_phase = fmod(w->breath_phase + 2.0 * RT_PI * f_hz, 2.0 * RT_PI);
     w->buf[CH_SPO2][0] = spo2_at(plan, s);
-    w->buf[CH_POS][0] = plan->position[s / SYNTH_EPOCH_S];
+    w->buf[CH_POS][0] = plan->position[s / RT_EPOCH_WHOLE_S];
 }
 
 static rt_status begin_file(rt_edf_writer **out, const synth_plan *plan, const char *path, rt_error *err)
@@ -458,7 +462,7 @@ static rt_status write_annotations(rt_edf_writer *w, const synth_plan *plan, rt_
         int end = e;
         while (end < plan->n_epochs && plan->stage[end] == plan->stage[e])
             end++;
-        st = rt_edf_writer_annotation(w, (double)e * SYNTH_EPOCH_S, (double)(end - e) * SYNTH_EPOCH_S,
+        st = rt_edf_writer_annotation(w, (double)e * RT_EPOCH_WHOLE_S, (double)(end - e) * RT_EPOCH_WHOLE_S,
                                       rt_synth_stage_edf_text(plan->stage[e]), err);
         e = end;
     }

@@ -13,20 +13,17 @@
 #include "output.h"
 #include "synth_internal.h"
 
-static const char *const profile_names[RT_SYNTH_PROFILE_COUNT] = {"typical-older", "rbd", "borderline",
-                                                                  "apnea"};
-
 const char *rt_synth_profile_name(rt_synth_profile profile)
 {
     if ((int)profile < 0 || profile >= RT_SYNTH_PROFILE_COUNT)
         return "unknown";
-    return profile_names[profile];
+    return SYNTH_PROFILE_NAMES[profile];
 }
 
 int rt_synth_profile_from_name(const char *name, rt_synth_profile *profile)
 {
     for (int i = 0; name && i < RT_SYNTH_PROFILE_COUNT; i++)
-        if (strcmp(name, profile_names[i]) == 0) {
+        if (strcmp(name, SYNTH_PROFILE_NAMES[i]) == 0) {
             *profile = (rt_synth_profile)i;
             return 0;
         }
@@ -48,34 +45,27 @@ void rt_synth_options_default(rt_synth_options *options)
 
 const char *rt_synth_role_name(int role)
 {
-    static const char *const names[SYNTH_ROLES] = {"chin", "arm-left", "arm-right", "leg-left", "leg-right"};
-    return role >= 0 && role < SYNTH_ROLES ? names[role] : "unknown";
+    return role >= 0 && role < SYNTH_ROLES ? SYNTH_ROLE_NAMES[role] : "unknown";
 }
 
 const char *rt_synth_stage_label(int stage)
 {
-    static const char *const names[] = {"W", "N1", "N2", "N3", "R"};
-    return stage >= 0 && stage <= SYNTH_R ? names[stage] : "?";
+    return stage >= 0 && stage < SYNTH_STAGES ? SYNTH_STAGE_LABELS[stage] : "?";
 }
 
 const char *rt_synth_stage_edf_text(int stage)
 {
-    /* EDF+ standard texts (Kemp & Olivan 2003, EDF+ specification, "Sleep stage ..."). */
-    static const char *const names[] = {"Sleep stage W", "Sleep stage 1", "Sleep stage 2", "Sleep stage 3",
-                                        "Sleep stage R"};
-    return stage >= 0 && stage <= SYNTH_R ? names[stage] : "Sleep stage ?";
+    return stage >= 0 && stage < SYNTH_STAGES ? SYNTH_STAGE_EDF_TEXTS[stage] : "Sleep stage ?";
 }
 
 const char *rt_synth_event_name(int type)
 {
-    static const char *const names[] = {"apnea", "hypopnea", "resp-arousal"};
-    return type >= 0 && type <= SYNTH_RESP_AROUSAL ? names[type] : "artifact";
+    return type >= 0 && type < SYNTH_EVENT_TYPES ? SYNTH_EVENT_NAMES[type] : "artifact";
 }
 
 const char *rt_synth_event_edf_text(int type)
 {
-    static const char *const names[] = {"Obstructive apnea", "Hypopnea", "Respiratory arousal"};
-    return type >= 0 && type <= SYNTH_RESP_AROUSAL ? names[type] : "Artifact";
+    return type >= 0 && type < SYNTH_EVENT_TYPES ? SYNTH_EVENT_EDF_TEXTS[type] : "Artifact";
 }
 
 static bool in_range(double v, double lo, double hi)
@@ -85,7 +75,7 @@ static bool in_range(double v, double lo, double hi)
 
 static rt_status check_artifacts(const rt_synth_options *o, rt_error *err)
 {
-    double night_s = floor(o->hours * 3600.0 / 30.0 + 1e-9) * 30.0;
+    double night_s = floor(o->hours * 3600.0 / RT_EPOCH_S + 1e-9) * RT_EPOCH_S;
     if (!(o->mains_hz == 0.0 || o->mains_hz == 50.0 || o->mains_hz == 60.0))
         return rt_fail(err, RT_ERR_USAGE, "synthetic night: mains frequency must be 0, 50 or 60 Hz (got %g)",
                        o->mains_hz);
@@ -181,7 +171,7 @@ static rt_status write_stages(const synth_plan *plan, const char *path, rt_error
         int end = e;
         while (end < plan->n_epochs && plan->stage[end] == plan->stage[e])
             end++;
-        fprintf(out.file, "%d,%d,%s\n", e * SYNTH_EPOCH_S, (end - e) * SYNTH_EPOCH_S,
+        fprintf(out.file, "%d,%d,%s\n", e * RT_EPOCH_WHOLE_S, (end - e) * RT_EPOCH_WHOLE_S,
                 rt_synth_stage_label(plan->stage[e]));
         e = end;
     }

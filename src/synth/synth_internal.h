@@ -9,11 +9,11 @@
 #include <stddef.h>
 #include <stdint.h>
 
+#include "internal.h"
 #include "remtone/status.h"
 #include "remtone/synth.h"
 
 enum {
-    SYNTH_EPOCH_S = 30,
     SYNTH_ROLES = 5, /* chin, arm-left, arm-right, leg-left, leg-right */
     SYNTH_EMG_RATE_HZ = 512, /* default EMG rate; the plan holds each role's own */
     SYNTH_EMG_RATE_MAX_HZ = 1000,
@@ -33,14 +33,44 @@ typedef enum synth_stage { SYNTH_W = 0, SYNTH_N1, SYNTH_N2, SYNTH_N3, SYNTH_R } 
 
 typedef enum synth_event_type { SYNTH_APNEA = 0, SYNTH_HYPOPNEA, SYNTH_RESP_AROUSAL } synth_event_type;
 
-/* Role names as in truth.json ("chin", "arm-left", ...). */
+enum { SYNTH_STAGES = SYNTH_R + 1, SYNTH_EVENT_TYPES = SYNTH_RESP_AROUSAL + 1 };
+
+/* ---- Name tables: every list of names once, in enum order ---------------
+ * Read them through the accessors below, which check the index. The EMG
+ * channel labels live with the rest of each channel's header in signals.c
+ * (rt_synth_emg_label). Static, so a file that does not read a table pays
+ * nothing for it. */
+/* rt_synth_profile (include/remtone/synth.h): the --profile names. */
+static const char *const SYNTH_PROFILE_NAMES[RT_SYNTH_PROFILE_COUNT] = {
+    "typical-older", "rbd", "borderline", "apnea"};
+/* synth_role: the role names of truth.json. */
+static const char *const SYNTH_ROLE_NAMES[SYNTH_ROLES] = {
+    "chin", "arm-left", "arm-right", "leg-left", "leg-right"};
+/* synth_stage: the AASM labels of the stage table ... */
+static const char *const SYNTH_STAGE_LABELS[SYNTH_STAGES] = {"W", "N1", "N2", "N3", "R"};
+/* ... and the EDF+ annotation texts (Kemp & Olivan 2003, EDF+ specification,
+ * "Sleep stage ..."). */
+static const char *const SYNTH_STAGE_EDF_TEXTS[SYNTH_STAGES] = {
+    "Sleep stage W", "Sleep stage 1", "Sleep stage 2", "Sleep stage 3", "Sleep stage R"};
+/* synth_event_type: the event table's type names ... */
+static const char *const SYNTH_EVENT_NAMES[SYNTH_EVENT_TYPES] = {
+    "apnea", "hypopnea", "resp-arousal"};
+/* ... and the EDF+ annotation texts. */
+static const char *const SYNTH_EVENT_EDF_TEXTS[SYNTH_EVENT_TYPES] = {
+    "Obstructive apnea", "Hypopnea", "Respiratory arousal"};
+
+/* Role names as in truth.json ("chin", "arm-left", ...); "unknown" out of range. */
 const char *rt_synth_role_name(int role);
-/* AASM label ("W", "N1", "N2", "N3", "R") and EDF+ annotation text. */
+/* AASM label ("W", "N1", "N2", "N3", "R"; "?" out of range) and EDF+ annotation
+ * text ("Sleep stage ?" out of range). */
 const char *rt_synth_stage_label(int stage);
 const char *rt_synth_stage_edf_text(int stage);
-/* events.csv type and EDF+ annotation text. */
+/* events.csv type and EDF+ annotation text ("artifact", "Artifact" out of range). */
 const char *rt_synth_event_name(int type);
 const char *rt_synth_event_edf_text(int type);
+/* The EDF label of a role's EMG channel ("Chin1-Chin2", "FDS L", ...;
+ * "unknown" out of range), from the channel table of signals.c. */
+const char *rt_synth_emg_label(int role);
 
 /* xoshiro256** (Blackman & Vigna 2018) seeded through splitmix64; written
  * here so that the output never depends on a platform's rand(). */
@@ -99,7 +129,10 @@ typedef struct synth_burst {
 /* Bit r set when rule r counts the burst (rt_synth_rule). */
 unsigned rt_synth_burst_rules(const synth_burst *b);
 
-enum { SYNTH_TONIC_PROFILE = 0, SYNTH_TONIC_RUN, SYNTH_TONIC_WHOLE_BOUT };
+enum { SYNTH_TONIC_PROFILE = 0, SYNTH_TONIC_RUN, SYNTH_TONIC_WHOLE_BOUT, SYNTH_TONIC_SOURCES };
+/* SYNTH_TONIC_*: why a tonic stretch is there, as truth.json names it. */
+static const char *const SYNTH_TONIC_SOURCE_NAMES[SYNTH_TONIC_SOURCES] = {"profile", "run",
+                                                                        "whole-bout"};
 
 typedef struct synth_tonic {
     double onset_s, duration_s, rect_uv; /* chin only; whole epochs */

@@ -45,7 +45,7 @@ static int span_excluded(const synth_plan *plan, long s0, int len)
 static int span_tonic(const synth_plan *plan, long s0, int len)
 {
     for (long s = s0; s < s0 + len; s++)
-        if (!plan->tonic[s / SYNTH_EPOCH_S])
+        if (!plan->tonic[s / RT_EPOCH_WHOLE_S])
             return 0;
     return 1;
 }
@@ -62,8 +62,8 @@ static double percent(long num, long den)
  * v = base (G - sum f) + sum A f. Returns NULL when out of memory. */
 static double *designed_chin_uv(const synth_plan *plan, const synth_bout *bout)
 {
-    long t0 = (long)bout->first_epoch * SYNTH_EPOCH_S;
-    long len = (long)bout->epochs * SYNTH_EPOCH_S;
+    long t0 = (long)bout->first_epoch * RT_EPOCH_WHOLE_S;
+    long len = (long)bout->epochs * RT_EPOCH_WHOLE_S;
     double *v = malloc((size_t)len * sizeof *v);
     double *fsum = rt_calloc((size_t)len, sizeof *fsum);
     double *asum = rt_calloc((size_t)len, sizeof *asum);
@@ -93,7 +93,8 @@ static double *designed_chin_uv(const synth_plan *plan, const synth_bout *bout)
     }
     for (long j = 0; j < len; j++) {
         long s = t0 + j;
-        double base = plan->tonic[s / SYNTH_EPOCH_S] ? plan->tonic_uv[s / SYNTH_EPOCH_S] : bout->chin_bg_uv;
+        long e = s / RT_EPOCH_WHOLE_S;
+        double base = plan->tonic[e] ? plan->tonic_uv[e] : bout->chin_bg_uv;
         double g = rt_synth_gain_integral(plan, (double)s, (double)s + 1.0);
         v[j] = fsum[j] > 0.0 ? base * (g - fsum[j]) + asum[j] : base * g;
     }
@@ -115,7 +116,7 @@ typedef struct counts {
 static double chin_level_uv(const synth_plan *plan, int e)
 {
     double level = plan->tonic[e] ? plan->tonic_uv[e] : plan->bg_uv[SYNTH_CHIN][e];
-    return level * rt_synth_gain(plan, ((double)e + 0.5) * SYNTH_EPOCH_S);
+    return level * rt_synth_gain(plan, ((double)e + 0.5) * RT_EPOCH_WHOLE_S);
 }
 
 /* The "minimum amplitude in NREM" of the AASM tonic rule (AASM Manual v2,
@@ -132,8 +133,8 @@ static double nrem_chin_min_uv(const synth_plan *plan)
 static void count_epoch(const synth_plan *plan, int e, int exclude, double nrem_min_uv,
                         counts *c)
 {
-    long t = (long)e * SYNTH_EPOCH_S;
-    int ep_excl = exclude && span_excluded(plan, t, SYNTH_EPOCH_S);
+    long t = (long)e * RT_EPOCH_WHOLE_S;
+    int ep_excl = exclude && span_excluded(plan, t, RT_EPOCH_WHOLE_S);
     int tonic = plan->tonic[e];
     /* AASM tonic: the sustained tone must also be greater than the NREM
      * minimum (no NREM at all: nothing to compare it with, not counted) */
@@ -180,8 +181,8 @@ static void count_epoch(const synth_plan *plan, int e, int exclude, double nrem_
 
 static void count_rai(const synth_plan *plan, const synth_bout *bout, int exclude, counts *c)
 {
-    long t0 = (long)bout->first_epoch * SYNTH_EPOCH_S;
-    long len = (long)bout->epochs * SYNTH_EPOCH_S;
+    long t0 = (long)bout->first_epoch * RT_EPOCH_WHOLE_S;
+    long len = (long)bout->epochs * RT_EPOCH_WHOLE_S;
     double *v = designed_chin_uv(plan, bout);
     if (!v) {
         c->secs = -1; /* reported as null rather than a wrong value */
@@ -214,8 +215,8 @@ void rt_synth_indices_compute(const synth_plan *plan, int exclude_events, synth_
         const synth_bout *bout = &plan->bouts[b];
         for (int e = bout->first_epoch; e < bout->first_epoch + bout->epochs; e++)
             count_epoch(plan, e, exclude_events, nrem_min, &c);
-        long t0 = (long)bout->first_epoch * SYNTH_EPOCH_S;
-        long n_win = (long)bout->epochs * SYNTH_EPOCH_S / 20;
+        long t0 = (long)bout->first_epoch * RT_EPOCH_WHOLE_S;
+        long n_win = (long)bout->epochs * RT_EPOCH_WHOLE_S / 20;
         for (long w = 0; w < n_win; w++) {
             if (exclude_events && span_excluded(plan, t0 + 20 * w, 20))
                 continue;
@@ -279,7 +280,7 @@ static json_t *minis_json(const synth_plan *plan, bool *ok)
         const synth_bout *bout = &plan->bouts[b];
         for (int e = bout->first_epoch; e < bout->first_epoch + bout->epochs; e++)
             for (int m = 0; m < 10; m++) {
-                long s0 = (long)e * SYNTH_EPOCH_S + 3 * m;
+                long s0 = (long)e * RT_EPOCH_WHOLE_S + 3 * m;
                 json_t *o = json_object(), *phasic = json_array(), *tonic = json_array();
                 json_t *aasm = json_array(), *sinbar = json_array();
                 for (int r = 0; r < SYNTH_ROLES; r++) {
@@ -312,7 +313,6 @@ static json_t *artifacts_json(const synth_plan *plan, bool *ok)
 {
     const rt_synth_options *o = &plan->opt;
     json_t *a = json_object();
-    static const char *const emg[SYNTH_ROLES] = {"chin", "arm-left", "arm-right", "leg-left", "leg-right"};
     if (o->mains_hz > 0.0 && o->mains_uv > 0.0) {
         json_t *m = json_object(), *comp = json_array(), *chs = json_array();
         rt_json_set(m, "line_hz", number(o->mains_hz), ok);
@@ -336,7 +336,7 @@ static json_t *artifacts_json(const synth_plan *plan, bool *ok)
         rt_json_set(m, "dropped", dropped, ok);
         rt_json_set(m, "phase", json_string("sine from 0 at the recording start"), ok);
         for (int r = 0; r < SYNTH_ROLES; r++)
-            rt_json_push(chs, json_string(emg[r]), ok);
+            rt_json_push(chs, json_string(rt_synth_role_name(r)), ok);
         rt_json_set(m, "roles", chs, ok);
         rt_json_set(a, "mains", m, ok);
     } else {
@@ -355,7 +355,7 @@ static json_t *artifacts_json(const synth_plan *plan, bool *ok)
     rt_json_set(a, "ecg", ecg, ok);
     if (o->clip_duration_s > 0.0) {
         json_t *c = json_object();
-        rt_json_set(c, "role", json_string("chin"), ok);
+        rt_json_set(c, "role", json_string(rt_synth_role_name(SYNTH_CHIN)), ok);
         rt_json_set(c, "start_s", number(o->clip_start_s), ok);
         rt_json_set(c, "end_s", number(o->clip_start_s + o->clip_duration_s), ok);
         rt_json_set(c, "swing_uv", number(SYNTH_CLIP_SWING_UV), ok);
@@ -367,7 +367,7 @@ static json_t *artifacts_json(const synth_plan *plan, bool *ok)
     }
     if (o->detach_s > 0.0) {
         json_t *d = json_object();
-        rt_json_set(d, "role", json_string("chin"), ok);
+        rt_json_set(d, "role", json_string(rt_synth_role_name(SYNTH_CHIN)), ok);
         rt_json_set(d, "from_s", number(o->detach_s), ok);
         rt_json_set(d, "value_uv", number(0.0), ok);
         rt_json_set(a, "detached", d, ok);
@@ -377,7 +377,7 @@ static json_t *artifacts_json(const synth_plan *plan, bool *ok)
     json_t *pops = json_array();
     for (size_t i = 0; i < plan->n_pops; i++) {
         json_t *p = json_object();
-        rt_json_set(p, "role", json_string("chin"), ok);
+        rt_json_set(p, "role", json_string(rt_synth_role_name(SYNTH_CHIN)), ok);
         rt_json_set(p, "onset_s", number(plan->pops[i].onset_s), ok);
         rt_json_set(p, "amplitude_uv", number(plan->pops[i].amplitude_uv), ok);
         rt_json_set(p, "tau_s", number(plan->pops[i].tau_s), ok);
@@ -435,7 +435,6 @@ static json_t *bursts_json(const synth_plan *plan, bool *ok)
  * either definition (> 50 % or whole), but a measurement can fall either way. */
 static json_t *tonics_json(const synth_plan *plan, bool *ok)
 {
-    static const char *const sources[] = {"profile", "run", "whole-bout"};
     json_t *tonics = json_array();
     for (size_t i = 0; i < plan->n_tonics; i++) {
         const synth_tonic *t = &plan->tonics[i];
@@ -446,13 +445,13 @@ static json_t *tonics_json(const synth_plan *plan, bool *ok)
         rt_json_set(o, "rect_uv", number(t->rect_uv), ok);
         rt_json_set(o, "ratio", number(t->ratio), ok);
         rt_json_set(o, "bout", json_integer(t->bout), ok);
-        rt_json_set(o, "source", json_string(sources[t->source]), ok);
+        rt_json_set(o, "source", json_string(SYNTH_TONIC_SOURCE_NAMES[t->source]), ok);
         rt_json_set(o, "gain_start", number(rt_synth_gain(plan, t->onset_s)), ok);
         rt_json_set(o, "gain_end", number(rt_synth_gain(plan, t->onset_s + t->duration_s)), ok);
         if (t->bout >= 0) {
             const synth_bout *bout = &plan->bouts[t->bout];
-            double b0 = (double)bout->first_epoch * SYNTH_EPOCH_S;
-            long n_win = (long)bout->epochs * SYNTH_EPOCH_S / 20;
+            double b0 = (double)bout->first_epoch * RT_EPOCH_WHOLE_S;
+            long n_win = (long)bout->epochs * RT_EPOCH_WHOLE_S / 20;
             for (long w = 0; w < n_win; w++) {
                 double w0 = b0 + 20.0 * (double)w;
                 double cover = fmin(w0 + 20.0, t->onset_s + t->duration_s) - fmax(w0, t->onset_s);
@@ -532,12 +531,11 @@ static json_t *truth_json(const synth_plan *plan, bool *ok)
         rt_json_set(root, "seed", json_string(buf), ok);
     }
     rt_json_set(root, "hours", number(plan->opt.hours), ok);
-    rt_json_set(root, "epoch_s", json_integer(SYNTH_EPOCH_S), ok);
+    rt_json_set(root, "epoch_s", json_integer(RT_EPOCH_WHOLE_S), ok);
 
     json_t *ch = json_object();
-    static const char *labels[] = {"Chin1-Chin2", "FDS L", "FDS R", "Tib L", "Tib R"};
     for (int r = 0; r < SYNTH_ROLES; r++)
-        rt_json_set(ch, rt_synth_role_name(r), json_string(labels[r]), ok);
+        rt_json_set(ch, rt_synth_role_name(r), json_string(rt_synth_emg_label(r)), ok);
     rt_json_set(ch, "ecg", json_string("ECG"), ok);
     rt_json_set(root, "channels", ch, ok);
 
