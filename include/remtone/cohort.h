@@ -3,7 +3,7 @@
  * every index against the cohort's own labels (docs/cohort.md).
  *
  * A run writes, under an output folder, one result per night
- * (nights/ID.json, schema "remtone-night/2"), a key beside it (nights/ID.key:
+ * (nights/ID.json, schema "remtone-night/3"), a key beside it (nights/ID.key:
  * the sizes and XXH3 digests of the night's inputs and a digest of the
  * settings, so a rerun skips nights whose identity is unchanged), or a
  * failure record (nights/ID.error.json). Every file is written to a
@@ -43,6 +43,8 @@ typedef struct rt_manifest_entry {
     char *stages;             /* resolved path; NULL = the recording's own annotations */
     char *events;             /* resolved path; NULL when none */
     char *role_override[RT_ROLE_COUNT]; /* per-row role overrides ("LABEL" or "A-B"); NULL = detect */
+    double age_years;         /* optional `age` column: NaN when not given */
+    char sex;                 /* optional `sex` column: 'F', 'M', or 0 when not given */
     long line;                /* manifest line of the row */
 } rt_manifest_entry;
 
@@ -54,7 +56,8 @@ typedef struct rt_manifest {
 
 /* Reads a manifest: CSV (comma or tab) with header `id,recording,stages,events,group`
  * (events and group may be empty; stages may be empty to use the recording's
- * EDF+ annotations) and optional columns named after roles (`chin`,
+ * EDF+ annotations), optional columns `age` (years) and `sex` (F or M) that
+ * place the night's indices against the norms, and optional columns named after roles (`chin`,
  * `arm-left`, `arm-right`, `leg-left`, `leg-right`, `ecg`) that override
  * detection for that night. Relative paths resolve against the manifest's
  * folder. Errors name the file and line: a missing input file (RT_ERR_IO), a

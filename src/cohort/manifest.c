@@ -7,6 +7,7 @@
 
 #include <errno.h>
 #include <stdio.h>
+#include <math.h>
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
@@ -15,7 +16,7 @@
 #include "internal.h"
 #include "table.h"
 
-enum { COL_ID = 0, COL_RECORDING, COL_STAGES, COL_EVENTS, COL_GROUP, COL_ROLE0 };
+enum { COL_ID = 0, COL_RECORDING, COL_STAGES, COL_EVENTS, COL_GROUP, COL_AGE, COL_SEX, COL_ROLE0 };
 
 typedef struct loader {
     rt_manifest *m;
@@ -152,6 +153,26 @@ static void on_row(rt_table *t, char **v)
     }
     rt_manifest_entry e;
     memset(&e, 0, sizeof e);
+    /* optional age and sex, for the norms (docs/cohort.md) */
+    e.age_years = NAN;
+    char *end = NULL;
+    if (v[COL_AGE][0] && ((e.age_years = strtod(v[COL_AGE], &end)), *end || end == v[COL_AGE] ||
+                          !(e.age_years >= 0 && e.age_years <= 130))) {
+        rt_table_fail(t, rt_fail(&t->error, RT_ERR_STAGING,
+                                 "%s line %ld (night %s): age must be 0 to 130 years", t->path,
+                                 t->row_line, v[COL_ID]));
+        return;
+    }
+    if (v[COL_SEX][0]) {
+        char c = v[COL_SEX][0];
+        if (v[COL_SEX][1] || !strchr("FMfm", c)) {
+            rt_table_fail(t, rt_fail(&t->error, RT_ERR_STAGING,
+                                     "%s line %ld (night %s): sex must be F or M", t->path,
+                                     t->row_line, v[COL_ID]));
+            return;
+        }
+        e.sex = (char)(c == 'f' || c == 'F' ? 'F' : 'M');
+    }
     rt_copy_string(e.id, sizeof e.id, v[COL_ID]);
     rt_copy_string(e.group, sizeof e.group, v[COL_GROUP]);
     e.line = t->row_line;
@@ -208,6 +229,9 @@ rt_status rt_manifest_load(const char *path, rt_manifest **out, rt_error *err)
     t.columns[COL_STAGES] = "stages";
     t.columns[COL_EVENTS] = "events";
     t.columns[COL_GROUP] = "group";
+    t.columns[COL_AGE] = "age";
+    t.columns[COL_SEX] = "sex";
+    t.optional[COL_AGE] = t.optional[COL_SEX] = true;
     for (int r = 0; r < RT_ROLE_COUNT; r++) {
         t.columns[COL_ROLE0 + r] = rt_role_name((rt_role)r);
         t.optional[COL_ROLE0 + r] = true;
