@@ -119,7 +119,7 @@ void rt_night_plain_sentence(const rt_night *night, char *buf, size_t cap)
                 code >= 0 && code < RT_RESERVE_COUNT ? RESERVE_WORDS[code] : "of a reservation");
         }
     }
-    put(buf, cap, &len, ". This describes the EMG; it is not a diagnosis.");
+    put(buf, cap, &len, "; this describes the EMG and is not a diagnosis.");
 }
 
 /* ---- text ------------------------------------------------------------------------ */

@@ -104,7 +104,8 @@ static const char CSS[] =
     /* on paper: the first evidence plot and ten ranked epochs; the chart smaller */
     "#evidence > svg:nth-of-type(n+2),#evidence > h3:nth-of-type(n+2):not(:last-of-type),"
     "#evidence table tr:nth-child(n+12){display:none}"
-    "#evidence > svg{width:55%}#indices > svg{width:62%}#overview > svg{width:80%}"
+    "#evidence > svg{width:55%}#indices > svg{width:60%}#overview > svg{width:72%}"
+    "#bouts > svg{width:60%}"
     ".caution li{margin:1px 0;font-size:8px}footer{font-size:7.5px;padding:0}"
     "#indices table td:nth-child(2),#indices table td:nth-child(7){min-width:34mm}"
     "header.top{background:#fff;color:#000;border-bottom:2px solid #000;padding:2px 0}"
