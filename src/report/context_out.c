@@ -190,16 +190,27 @@ static const rt_index_id PERIOD_SHOWN[] = {RT_IX_SINBAR_CHIN_ANY_3S, RT_IX_SINBA
 static const char *const PERIOD_HEADING[] = {"chin any", "chin+arms", "chin tonic", "AASM RSWA",
                                              "RAI"};
 
+/* Writes a line without its trailing spaces. */
+static void line_out(FILE *out, char *line)
+{
+    size_t n = strlen(line);
+    while (n > 0 && line[n - 1] == ' ')
+        line[--n] = '\0';
+    fprintf(out, "%s\n", line);
+}
+
 static void periods_text(const rt_night *night, FILE *out)
 {
     const rt_index_rule *rules = rt_index_rules();
+    char line[400];
+    size_t len = 0;
     fprintf(out, "REM periods (REM less than %g min apart is one period; every index per "
             "period in the JSON result and --periods):\n", night->params.rem_period_gap_min);
-    fprintf(out, "  %-11s %-8s %-8s %-11s %6s %6s", "period", "start", "end", "epochs", "REM",
-            "scored");
+    put(line, sizeof line, &len, "  %-11s %-8s %-8s %-11s %6s %6s", "period", "start", "end",
+        "epochs", "REM", "scored");
     for (size_t k = 0; k < sizeof PERIOD_SHOWN / sizeof PERIOD_SHOWN[0]; k++)
-        fprintf(out, " %11s ", PERIOD_HEADING[k]);
-    fprintf(out, "\n");
+        put(line, sizeof line, &len, " %11s ", PERIOD_HEADING[k]);
+    line_out(out, line);
     for (size_t i = 0; i < night->n_periods + 2; i++) {
         const rt_rem_period *g = group(night, i);
         char name[24], t0[16] = "-", t1[16] = "-", ep[32] = "-", v[32];
@@ -209,16 +220,17 @@ static void periods_text(const rt_night *night, FILE *out)
             rt_report_clock(&night->start, g->end_s, t1, sizeof t1);
             snprintf(ep, sizeof ep, "%zu-%zu", g->first_epoch + 1, g->last_epoch + 1);
         }
-        fprintf(out, "  %-11s %-8s %-8s %-11s %6.1f %6.1f", name, t0, t1, ep, g->rem_minutes,
-                g->scorable_minutes);
+        len = 0;
+        put(line, sizeof line, &len, "  %-11s %-8s %-8s %-11s %6.1f %6.1f", name, t0, t1, ep,
+            g->rem_minutes, g->scorable_minutes);
         for (size_t k = 0; k < sizeof PERIOD_SHOWN / sizeof PERIOD_SHOWN[0]; k++) {
             const rt_index_value *x = &g->index[PERIOD_SHOWN[k]];
             rt_report_value_text(&rules[PERIOD_SHOWN[k]], x->value, v, sizeof v);
             bool beyond = rules[PERIOD_SHOWN[k]].lower_is_worse ? x->status == RT_STATUS_BELOW
                                                                 : x->status == RT_STATUS_ABOVE;
-            fprintf(out, " %11s%s", v, beyond ? "*" : " ");
+            put(line, sizeof line, &len, " %11s%s", v, beyond ? "*" : " ");
         }
-        fprintf(out, "\n");
+        line_out(out, line);
     }
     fprintf(out, "  (* beyond the cutoff in force; a period's indices do not change the level)\n");
 }

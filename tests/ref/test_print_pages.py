@@ -18,7 +18,8 @@ import subprocess
 import sys
 import tempfile
 
-CHROMIUM = "/usr/bin/chromium"
+from chromium import CHROMIUM
+import chromium
 MOST_PAGES = 3
 PAPER = {"A4": (595, 842), "letter": (612, 792)}
 
@@ -43,12 +44,7 @@ def print_pdf(page, paper, out, profile):
     assert "</head>" in html
     with open(sized, "w", encoding="utf-8") as f:
         f.write(html.replace("</head>", "<style>@page{size:%s}</style></head>" % paper, 1))
-    subprocess.run([CHROMIUM, "--headless", "--no-sandbox", "--disable-gpu", "--disable-quic",
-                    "--no-first-run", "--disable-background-networking",
-                    "--disable-component-update", "--disable-sync",
-                    "--user-data-dir=" + profile, "--no-pdf-header-footer",
-                    "--print-to-pdf=" + out, "file://" + sized],
-                   check=True, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, timeout=180)
+    chromium.run(profile, "--no-pdf-header-footer", "--print-to-pdf=" + out, "file://" + sized)
 
 
 def main():
