@@ -182,14 +182,6 @@ static void sleep_text(const rt_night *night, FILE *out)
     fprintf(out, "; REM periods %zu\n", s->rem_periods);
 }
 
-/* The indices shown per period in the text, with short headings; all are in
- * the JSON and the CSV. */
-static const rt_index_id PERIOD_SHOWN[] = {RT_IX_SINBAR_CHIN_ANY_3S, RT_IX_SINBAR_COMBINED_3S,
-                                           RT_IX_SINBAR_CHIN_TONIC_30S, RT_IX_AASM_RSWA,
-                                           RT_IX_RAI};
-static const char *const PERIOD_HEADING[] = {"chin any", "chin+arms", "chin tonic", "AASM RSWA",
-                                             "RAI"};
-
 /* Writes a line without its trailing spaces. */
 static void line_out(FILE *out, char *line)
 {
@@ -199,21 +191,21 @@ static void line_out(FILE *out, char *line)
     fprintf(out, "%s\n", line);
 }
 
+/* The periods and halves, one line each, then every index (rows) per period
+ * and half (columns). */
 static void periods_text(const rt_night *night, FILE *out)
 {
     const rt_index_rule *rules = rt_index_rules();
-    char line[400];
-    size_t len = 0;
-    fprintf(out, "REM periods (REM less than %g min apart is one period; every index per "
-            "period in the JSON result and --periods):\n", night->params.rem_period_gap_min);
+    char line[2048];
+    size_t len = 0, groups = night->n_periods + 2;
+    fprintf(out, "REM periods (REM less than %g min apart is one period; epochs from 1):\n",
+            night->params.rem_period_gap_min);
     put(line, sizeof line, &len, "  %-11s %-8s %-8s %-11s %6s %6s", "period", "start", "end",
         "epochs", "REM", "scored");
-    for (size_t k = 0; k < sizeof PERIOD_SHOWN / sizeof PERIOD_SHOWN[0]; k++)
-        put(line, sizeof line, &len, " %11s ", PERIOD_HEADING[k]);
     line_out(out, line);
-    for (size_t i = 0; i < night->n_periods + 2; i++) {
+    for (size_t i = 0; i < groups; i++) {
         const rt_rem_period *g = group(night, i);
-        char name[24], t0[16] = "-", t1[16] = "-", ep[32] = "-", v[32];
+        char name[24], t0[16] = "-", t1[16] = "-", ep[32] = "-";
         group_name(night, i, name, sizeof name);
         if (g->n_bouts) {
             rt_report_clock(&night->start, g->onset_s, t0, sizeof t0);
@@ -223,12 +215,29 @@ static void periods_text(const rt_night *night, FILE *out)
         len = 0;
         put(line, sizeof line, &len, "  %-11s %-8s %-8s %-11s %6.1f %6.1f", name, t0, t1, ep,
             g->rem_minutes, g->scorable_minutes);
-        for (size_t k = 0; k < sizeof PERIOD_SHOWN / sizeof PERIOD_SHOWN[0]; k++) {
-            const rt_index_value *x = &g->index[PERIOD_SHOWN[k]];
-            rt_report_value_text(&rules[PERIOD_SHOWN[k]], x->value, v, sizeof v);
-            bool beyond = rules[PERIOD_SHOWN[k]].lower_is_worse ? x->status == RT_STATUS_BELOW
-                                                                : x->status == RT_STATUS_ABOVE;
-            put(line, sizeof line, &len, " %11s%s", v, beyond ? "*" : " ");
+        line_out(out, line);
+    }
+    len = 0;
+    put(line, sizeof line, &len, "  %-32s", "index");
+    for (size_t i = 0; i < groups; i++) {
+        char name[24];
+        if (i < night->n_periods)
+            snprintf(name, sizeof name, "%zu", i + 1);
+        else
+            snprintf(name, sizeof name, "%s half", i == night->n_periods ? "1st" : "2nd");
+        put(line, sizeof line, &len, " %9s ", name);
+    }
+    line_out(out, line);
+    for (int k = 0; k < RT_IX_COUNT; k++) {
+        len = 0;
+        put(line, sizeof line, &len, "  %-32s", rules[k].id);
+        for (size_t i = 0; i < groups; i++) {
+            const rt_index_value *x = &group(night, i)->index[k];
+            char v[32];
+            rt_report_value_text(&rules[k], x->value, v, sizeof v);
+            bool beyond = rules[k].lower_is_worse ? x->status == RT_STATUS_BELOW
+                                                  : x->status == RT_STATUS_ABOVE;
+            put(line, sizeof line, &len, " %9s%s", v, beyond ? "*" : " ");
         }
         line_out(out, line);
     }

@@ -81,7 +81,7 @@ static const char CSS[] =
     ".sentence{font-size:15px;border-left:5px solid #24425e;background:#f3f6fa;"
     "padding:6px 12px;margin:6px 0 10px 0}"
     "table.compact td,table.compact th{padding:2px 8px}"
-    "td.nowrap{white-space:nowrap}td.beyond{font-weight:700;color:#a8322d}"
+    "td.nowrap,td.num{white-space:nowrap}td.beyond{font-weight:700;color:#a8322d}"
     "tr.half td{background:#f7f8fa}"
     /* Print (docs/review-report.md, "Printing"): one night in at most three
      * A4 or Letter pages. Sections run on without forced breaks; a heading

@@ -190,7 +190,8 @@ static void page_is_wellformed_with_plots(void **state)
      * tests/ref/test_print_pages.py's) */
     char *raw = slurp(path);
     assert_non_null(strstr(raw, "nav{display:none}"));
-    assert_non_null(strstr(raw, "break-after:avoid"));
+    assert_non_null(strstr(raw, "h2,h3{break-after:avoid"));
+    assert_non_null(strstr(raw, "tr,li,svg,.keep,.verdict,.sentence,.facts{break-inside:avoid"));
     assert_null(strstr(raw, "page-break-before:always"));
     free(raw);
     /* every caution of SAFETY.md, word for word, and the visual-scoring note */
