@@ -1,4 +1,5 @@
 /* remtone score REC --stages FILE: the night result. */
+#include <math.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -8,7 +9,8 @@
 
 enum {
     KEY_STAGES = 1, KEY_EVENTS, KEY_JSON, KEY_CUTOFFS, KEY_MIN_REM, KEY_QUIET,
-    KEY_HTML, KEY_MINIS, KEY_ANNOTATIONS, KEY_SHOW_IDENTITY, KEY_RECORDING_ID, KEY_THREADS
+    KEY_HTML, KEY_MINIS, KEY_ANNOTATIONS, KEY_SHOW_IDENTITY, KEY_RECORDING_ID, KEY_THREADS,
+    KEY_PERIODS, KEY_AGE, KEY_SEX
 };
 
 static const cli_option OPTIONS[] = {
@@ -22,6 +24,9 @@ static const cli_option OPTIONS[] = {
     {"html", 1, KEY_HTML, "PATH", "write the review report, one self-contained HTML page ('-' for standard output)"},
     {"minis", 1, KEY_MINIS, "PATH", "write the audit table: one CSV row per REM 3-s mini-epoch and channel"},
     {"annotations", 1, KEY_ANNOTATIONS, "PATH", "write the detected activity as an EDF+ annotation file"},
+    {"periods", 1, KEY_PERIODS, "PATH", "write every index per REM period and per half of the night as CSV"},
+    {"age", 1, KEY_AGE, "YEARS", "the person's age: place the indices against published norms (context only)"},
+    {"sex", 1, KEY_SEX, "F|M", "the person's sex, for the norms (context only)"},
     {"show-identity", 0, KEY_SHOW_IDENTITY, NULL, "show the recording header's patient fields and date in the report"},
     {"recording-id", 1, KEY_RECORDING_ID, "ID", "name the recording in the report (default: its file name)"},
     {"threads", 1, KEY_THREADS, "N", "score with N threads, 1 to 256 (default: the processor cores "
@@ -32,8 +37,10 @@ static const cli_option OPTIONS[] = {
 
 typedef struct score_config {
     const char *stages, *events, *json, *cutoffs, *labels;
-    const char *html, *minis, *annotations;
+    const char *html, *minis, *annotations, *periods;
     rt_report_options report;
+    double age;              /* NaN: not given */
+    char sex;                /* 0: not given */
     double min_rem;
     int quiet;
     int threads;             /* 0: the cores available */
@@ -59,6 +66,21 @@ static int on_option(void *ctx, int key, const char *arg)
     case KEY_HTML: c->html = arg; break;
     case KEY_MINIS: c->minis = arg; break;
     case KEY_ANNOTATIONS: c->annotations = arg; break;
+    case KEY_PERIODS: c->periods = arg; break;
+    case KEY_AGE:
+        c->age = strtod(arg, &end);
+        if (end == arg || *end || !(c->age >= 0 && c->age <= 130)) {
+            fprintf(stderr, "remtone score: --age must be 0 to 130 years, got '%s'\n", arg);
+            return EXIT_USAGE;
+        }
+        break;
+    case KEY_SEX:
+        if ((arg[0] != 'F' && arg[0] != 'M' && arg[0] != 'f' && arg[0] != 'm') || arg[1]) {
+            fprintf(stderr, "remtone score: --sex must be F or M, got '%s'\n", arg);
+            return EXIT_USAGE;
+        }
+        c->sex = (char)(arg[0] == 'f' || arg[0] == 'F' ? 'F' : 'M');
+        break;
     case KEY_SHOW_IDENTITY: c->report.show_identity = true; break;
     case KEY_RECORDING_ID: c->report.recording_id = arg; break;
     case KEY_THREADS: {
@@ -120,6 +142,7 @@ static int run(int argc, char **argv)
     score_config c;
     memset(&c, 0, sizeof c);
     c.min_rem = -1;
+    c.age = NAN;
     rt_score_params_default(&c.params);
     char *pos[1];
     int npos = 0;
@@ -129,7 +152,7 @@ static int run(int argc, char **argv)
     const char *inputs[] = {pos[0], c.stages, c.events, c.cutoffs, c.labels};
     size_t n_inputs = sizeof inputs / sizeof inputs[0];
     const cli_output outputs[] = {{"json", c.json}, {"html", c.html}, {"minis", c.minis},
-                                  {"annotations", c.annotations}};
+                                  {"annotations", c.annotations}, {"periods", c.periods}};
     if ((rc = cli_check_outputs("score", outputs, sizeof outputs / sizeof outputs[0], inputs,
                                 n_inputs)) != EXIT_OK)
         return rc;
@@ -146,8 +169,11 @@ static int run(int argc, char **argv)
         st = rt_night_score_threads(l.rec, &l.roles, l.tl, &c.params, &l.cutoffs, c.threads,
                                     &night, &err);
     }
+    if (st == RT_OK && (!isnan(c.age) || c.sex))
+        st = rt_night_place_norms(night, c.age, c.sex, &err);
     if (st == RT_OK && !c.quiet && !(c.json && strcmp(c.json, "-") == 0) &&
-        !(c.html && strcmp(c.html, "-") == 0) && !(c.minis && strcmp(c.minis, "-") == 0))
+        !(c.html && strcmp(c.html, "-") == 0) && !(c.minis && strcmp(c.minis, "-") == 0) &&
+        !(c.periods && strcmp(c.periods, "-") == 0))
         st = rt_night_write_text(night, stdout, &err);
     if (st == RT_OK && c.json) {
         rt_run_inputs in = {pos[0], c.stages, c.events, c.cutoffs, c.labels};
@@ -164,6 +190,10 @@ static int run(int argc, char **argv)
     }
     if (st == RT_OK && c.annotations) {
         st = rt_night_write_annotations(night, l.rec, c.annotations, &err);
+        output_error = 1;
+    }
+    if (st == RT_OK && c.periods) {
+        st = rt_night_write_periods_csv(night, l.rec, c.periods, &err);
         output_error = 1;
     }
     rt_night_free(night);

@@ -3,7 +3,7 @@
  * every index against the cohort's own labels (docs/cohort.md).
  *
  * A run writes, under an output folder, one result per night
- * (nights/ID.json, schema "remtone-night/2"), a key beside it (nights/ID.key:
+ * (nights/ID.json, schema "remtone-night/3"), a key beside it (nights/ID.key:
  * the sizes and XXH3 digests of the night's inputs and a digest of the
  * settings, so a rerun skips nights whose identity is unchanged), or a
  * failure record (nights/ID.error.json). Every file is written to a
@@ -48,6 +48,8 @@ typedef struct rt_manifest_entry {
     char *label_map;          /* resolved path of the row's label map; NULL = the run's */
     char *cutoffs;            /* resolved path of the row's cutoff file; NULL = the run's */
     char *role_override[RT_ROLE_COUNT]; /* per-row role overrides ("LABEL" or "A-B"); NULL = detect */
+    double age_years;         /* optional `age` column: NaN when not given */
+    char sex;                 /* optional `sex` column: 'F', 'M', or 0 when not given */
     long line;                /* manifest line of the row */
 } rt_manifest_entry;
 
@@ -61,7 +63,8 @@ typedef struct rt_manifest {
  * (events and group may be empty; stages may be empty to use the recording's
  * EDF+ annotations), optional columns `subject`, `visit`, `label_map` and
  * `cutoffs` (a row's own label map and cutoff file, for nights of several
- * sites) and optional columns named after roles (`chin`,
+ * sites), `age` (years) and `sex` (F or M) that place the night's indices
+ * against the norms, and optional columns named after roles (`chin`,
  * `arm-left`, `arm-right`, `leg-left`, `leg-right`, `ecg`) that override
  * detection for that night. Relative paths resolve against the manifest's
  * folder. Errors name the file and line: a missing input file (RT_ERR_IO), a

@@ -34,7 +34,7 @@ typedef struct rt_run_inputs {
     const char *label_map;
 } rt_run_inputs;
 
-/* The night result, schema "remtone-night/2" (docs/night-json.md). */
+/* The night result, schema "remtone-night/3" (docs/night-json.md). */
 rt_status rt_night_write_json(const rt_night *night, const rt_run_inputs *inputs,
                               const char *path, rt_error *err);
 /* The short text summary for people. */
@@ -72,6 +72,17 @@ rt_status rt_night_write_minis_csv(const rt_night *night, const rt_recording *re
 rt_status rt_night_write_annotations(const rt_night *night, const rt_recording *rec,
                                      const char *path, rt_error *err);
 
+/* The indices per REM period and per half of the night as CSV, one row per
+ * period (1 .. N, then half-1 and half-2) and index: clock times, first and
+ * last epoch counted from 1, REM and scorable minutes, value, status,
+ * numerator, denominator (docs/review-report.md). rec (may be NULL) gives
+ * the clock. */
+rt_status rt_night_write_periods_csv(const rt_night *night, const rt_recording *rec,
+                                     const char *path, rt_error *err);
+/* One sentence in plain words for the referring physician: what was
+ * measured, how it compares with the cutoff (and the norms when placed), the
+ * reservations; never a diagnosis. The same in the text, JSON and page. */
+void rt_night_plain_sentence(const rt_night *night, char *buf, size_t cap);
 /* The rule table with the cutoffs in force. */
 rt_status rt_rules_write_text(const rt_cutoffs *cutoffs, FILE *out, rt_error *err);
 

@@ -129,6 +129,9 @@ typedef struct rt_score_params {
     double index_min_epochs;     /* an index counted on less scorable REM than this many
                                     30-s epochs hold carries a reservation */
     double excluded_share_max;   /* more than this share of REM left out: a reservation */
+    /* REM periods (docs/scoring.md, "REM periods"): REM epochs separated by
+     * less than this many minutes of other stages belong to one period */
+    double rem_period_gap_min;
     /* Event-aware scoring (docs/exclusions.md): mini-epochs overlapping these
      * events, widened by event_margin_s on each side, leave numerator and
      * denominator. */
@@ -370,6 +373,100 @@ typedef struct rt_exclusion_summary {
     double rem_leg_movements_per_h;      /* limb-movement events in REM per hour; NaN if none */
 } rt_exclusion_summary;
 
+/* ---- REM periods, halves of the night, sleep context, norms ----------- */
+
+/* One REM period (docs/scoring.md, "REM periods"): REM epochs separated by
+ * less than params.rem_period_gap_min of other stages (or unstaged epochs),
+ * with every index of the rule table computed on its own mini-epochs and
+ * epochs by the night's own index code, its statuses against the cutoffs in
+ * force. The same struct holds a half of the night: the periods that start
+ * in it. A period's or a half's indices never change the night's level. */
+typedef struct rt_rem_period {
+    size_t first_epoch;        /* timeline epoch of its first REM epoch, 0-based (reports add 1) */
+    size_t last_epoch;         /* of its last REM epoch */
+    double onset_s;            /* start of the first REM epoch, s from the recording start */
+    double end_s;              /* end of the last REM epoch */
+    size_t rem_epochs;         /* its REM epochs (other stages between bouts not counted) */
+    double rem_minutes;
+    double scorable_minutes;   /* REM minutes with a scorable chin */
+    size_t bout_first;         /* its first REM bout (0-based) */
+    size_t n_bouts;            /* its REM bouts; 0 for a half without REM */
+    size_t result_first;       /* its first epoch in night->epochs */
+    int half;                  /* 0: it starts in the first half of the night, 1: the second */
+    rt_exclusion_summary exclusions; /* REM left out and the REM event rates, of this period */
+    rt_index_value index[RT_IX_COUNT];
+} rt_rem_period;
+
+/* The night as the staging tells it, by the AASM Manual for the Scoring of
+ * Sleep and Associated Events (v2.x, "Parameters to be reported"; docs/
+ * scoring.md, "Sleep context"). Minutes are counted inside the time in bed
+ * (lights-off to lights-on; the recording's start and end when not given),
+ * an epoch by its overlap with it. NaN where a value does not exist (no
+ * sleep, no REM). */
+typedef struct rt_sleep_context {
+    double recording_min;      /* the recording's length */
+    bool lights_off_given, lights_on_given;
+    double in_bed_from_s;      /* lights-off, or 0 */
+    double in_bed_to_s;        /* lights-on, or the recording's end */
+    double in_bed_min;         /* time in bed (the manual's "total recording time") */
+    double stage_min[RT_STAGE_COUNT]; /* minutes of each rt_stage in bed (RT_STAGE_UNSCORED:
+                                         unstaged) */
+    double stage_pct[RT_STAGE_COUNT]; /* N1, N2, N3, R: % of total sleep time; NaN otherwise */
+    double sleep_min;          /* total sleep time: N1 + N2 + N3 + R */
+    double efficiency_pct;     /* total sleep time / time in bed x 100 */
+    double sleep_onset_s;      /* start of the first sleep epoch in bed */
+    double sleep_end_s;        /* end of the last sleep epoch in bed */
+    double sleep_latency_min;  /* lights-off (or the start) to sleep onset */
+    double rem_latency_min;    /* sleep onset to the first R epoch */
+    double waso_min;           /* W in bed after sleep onset */
+    size_t rem_periods;        /* night->n_periods */
+    double half_split_s;       /* the middle of the sleep period: sleep onset to the end of the
+                                  last sleep epoch (NaN without sleep) */
+} rt_sleep_context;
+
+/* Where an index stands against the published values of people without REM
+ * sleep behavior disorder (rt_norm_table; docs/scoring.md, "Norms"). Norms
+ * never decide the level: they are context for the reader. */
+typedef enum rt_norm_band {
+    RT_NORM_NOT_PLACED = 0,    /* no norm for this index, not computed, or age outside the norms */
+    RT_NORM_WITHIN,            /* within the normative limit (95th percentile; RAI: at or above
+                                  the limit) */
+    RT_NORM_BEYOND,            /* beyond the normative limit, short of the RBD cutoff */
+    RT_NORM_BEYOND_RBD_CUTOFF  /* at or beyond the cutoff that separated RBD from controls */
+} rt_norm_band;
+
+/* "not-placed", "within", "beyond-normal-limit", "beyond-rbd-cutoff". */
+const char *rt_norm_band_name(rt_norm_band band);
+
+typedef struct rt_norm_row {
+    rt_index_id index;         /* the remtone index compared */
+    const char *measure;       /* the published measure it is compared with */
+    double limit;              /* the normative limit (95th percentile; RAI: the low limit) */
+    const char *limit_source;
+    bool limit_from_memory;    /* recalled, not read in the published text */
+    double rbd_cutoff;         /* a published cutoff separating RBD from controls; NaN: none */
+    const char *rbd_cutoff_source;
+    bool rbd_cutoff_from_memory;
+    double age_from, age_to;   /* years the norms cover */
+    const char *group;         /* who the norms are from, in words */
+    const char *method;        /* how the published values were scored */
+} rt_norm_row;
+
+/* The norm table, one row per index that has a norm; *count its length. Static. */
+const rt_norm_row *rt_norm_table(size_t *count);
+
+typedef struct rt_norm_place {
+    rt_norm_band band;
+    int row;                   /* the rt_norm_table row; -1 when none */
+    char text[240];            /* "above the 95th percentile of adults aged 21-88 without RBD" */
+} rt_norm_place;
+
+/* The person the night belongs to, as far as given. */
+typedef struct rt_person {
+    double age_years;          /* NaN when not given */
+    char sex;                  /* 'F', 'M', or 0 when not given */
+} rt_person;
+
 typedef struct rt_night {
     char recording_path[4096];
     double recording_s;
@@ -401,6 +498,12 @@ typedef struct rt_night {
     rt_staging_summary staging;
     size_t n_reservations;
     rt_reservation reservations[RT_RESERVE_COUNT]; /* in rt_reservation_code order */
+    rt_sleep_context sleep;              /* the staging's sleep context */
+    size_t n_periods;  rt_rem_period *periods;  /* REM periods, in time order */
+    rt_rem_period halves[2];             /* the periods starting in each half of the night */
+    rt_person person;                    /* rt_night_place_norms; not given by default */
+    bool norms_placed;                   /* rt_night_place_norms was called */
+    rt_norm_place norms[RT_IX_COUNT];    /* each index against its norm */
 } rt_night;
 
 /* Scores one night. cutoffs may be NULL (published); params may be NULL
@@ -467,6 +570,13 @@ double rt_night_background_uv(const rt_night *night, rt_role role, double t_s);
  * (RT_LABEL_EXCLUDED, RT_LABEL_ABSENT), manual minis outside scored REM and
  * the ECG role are skipped. Definitions in docs/agreement.md. */
 void rt_night_agreement(rt_night *night, const rt_timeline *tl);
+
+/* Places every index of the night (not of its periods) against the norm
+ * table for this person: age_years NaN or sex 0 when not known ('F' or 'M'
+ * otherwise). An age outside a row's ages leaves that index not placed, with
+ * the reason in its text. Sets night->person, night->norms_placed and
+ * night->norms. RT_ERR_USAGE for an age outside 0..130 or another sex. */
+rt_status rt_night_place_norms(rt_night *night, double age_years, char sex, rt_error *err);
 
 #ifdef __cplusplus
 }

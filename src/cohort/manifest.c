@@ -9,6 +9,7 @@
 
 #include <errno.h>
 #include <stdio.h>
+#include <math.h>
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
@@ -19,7 +20,7 @@
 
 enum {
     COL_ID = 0, COL_RECORDING, COL_STAGES, COL_EVENTS, COL_GROUP,
-    COL_SUBJECT, COL_VISIT, COL_LABEL_MAP, COL_CUTOFFS, /* optional */
+    COL_SUBJECT, COL_VISIT, COL_LABEL_MAP, COL_CUTOFFS, COL_AGE, COL_SEX, /* optional */
     COL_ROLE0
 };
 
@@ -165,6 +166,26 @@ static void on_row(rt_table *t, char **v)
     }
     rt_manifest_entry e;
     memset(&e, 0, sizeof e);
+    /* optional age and sex, for the norms (docs/cohort.md) */
+    e.age_years = NAN;
+    char *end = NULL;
+    if (v[COL_AGE][0] && ((e.age_years = strtod(v[COL_AGE], &end)), *end || end == v[COL_AGE] ||
+                          !(e.age_years >= 0 && e.age_years <= 130))) {
+        rt_table_fail(t, rt_fail(&t->error, RT_ERR_STAGING,
+                                 "%s line %ld (night %s): age must be 0 to 130 years", t->path,
+                                 t->row_line, v[COL_ID]));
+        return;
+    }
+    if (v[COL_SEX][0]) {
+        char c = v[COL_SEX][0];
+        if (v[COL_SEX][1] || !strchr("FMfm", c)) {
+            rt_table_fail(t, rt_fail(&t->error, RT_ERR_STAGING,
+                                     "%s line %ld (night %s): sex must be F or M", t->path,
+                                     t->row_line, v[COL_ID]));
+            return;
+        }
+        e.sex = (char)(c == 'f' || c == 'F' ? 'F' : 'M');
+    }
     rt_copy_string(e.id, sizeof e.id, v[COL_ID]);
     rt_copy_string(e.group, sizeof e.group, v[COL_GROUP]);
     rt_copy_string(e.subject, sizeof e.subject, v[COL_SUBJECT]);
@@ -227,8 +248,8 @@ rt_status rt_manifest_load(const char *path, rt_manifest **out, rt_error *err)
     t.columns[COL_STAGES] = "stages";
     t.columns[COL_EVENTS] = "events";
     t.columns[COL_GROUP] = "group";
-    static const char *const extra[] = {"subject", "visit", "label_map", "cutoffs"};
-    for (int k = 0; k < 4; k++) {
+    static const char *const extra[] = {"subject", "visit", "label_map", "cutoffs", "age", "sex"};
+    for (int k = 0; k < 6; k++) {
         t.columns[COL_SUBJECT + k] = extra[k];
         t.optional[COL_SUBJECT + k] = true;
     }

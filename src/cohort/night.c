@@ -129,6 +129,9 @@ static json_t *key_json(const rt_manifest_entry *e, json_t *identity)
     rt_json_set(k, "group", rt_json_text(e->group), &ok);
     rt_json_set(k, "subject", rt_json_text(e->subject), &ok);
     rt_json_set(k, "visit", rt_json_text(e->visit), &ok);
+    char sex[2] = {e->sex, '\0'};
+    rt_json_set(k, "age", isnan(e->age_years) ? json_null() : json_real(e->age_years), &ok);
+    rt_json_set(k, "sex", json_string(sex), &ok);
     rt_json_set(k, "identity", json_incref(identity), &ok);
     return rt_json_done(k, ok);
 }
@@ -144,7 +147,14 @@ static bool result_current(const char *json_path, const char *key_path,
     json_t *old = json_load_file(key_path, 0, NULL);
     if (!old)
         return false;
-    bool same = json_equal(json_object_get(old, "identity"), identity) &&
+    /* a changed age or sex changes the norms in the result: score again */
+    json_t *age = json_object_get(old, "age"), *sex = json_object_get(old, "sex");
+    char sex_now[2] = {e->sex, '\0'};
+    bool same_person = (isnan(e->age_years) ? json_is_null(age)
+                                            : json_is_real(age) &&
+                                                  json_real_value(age) == e->age_years) &&
+                       json_is_string(sex) && strcmp(json_string_value(sex), sex_now) == 0;
+    bool same = same_person && json_equal(json_object_get(old, "identity"), identity) &&
                 json_is_string(json_object_get(old, "id")) &&
                 strcmp(json_string_value(json_object_get(old, "id")), e->id) == 0;
     /* the group, subject and visit label a result without changing it */
@@ -202,6 +212,8 @@ static rt_status score_and_write(const cohort_shared *s, const rt_manifest_entry
     if (st == RT_OK)
         st = rt_night_score_threads(rec, &roles, tl, &s->options->params, &cutoffs, s->threads,
                                     &night, err);
+    if (st == RT_OK && (!isnan(e->age_years) || e->sex))
+        st = rt_night_place_norms(night, e->age_years, e->sex, err);
     if (st == RT_OK) {
         rt_run_inputs in = {e->recording, e->stages, e->events, cut_path, map_path};
         st = rt_night_write_json(night, &in, json_path, err);

@@ -16,6 +16,7 @@
 #include "internal.h"
 #include "remtone/report.h"
 #include "remtone/version.h"
+#include "html_context.h"
 #include "svg.h"
 
 #define EVIDENCE_PLOTS 4
@@ -75,12 +76,39 @@ static const char CSS[] =
     "svg text.small{font-size:9px;fill:#5b6875}"
     "svg text.bold{font-weight:700}"
     "footer{color:#5b6875;font-size:12px;padding:0 28px 24px 28px}"
-    "@media print{nav{display:none}body{background:#fff}"
-    "section{border:none;break-before:page;page-break-before:always;margin:0}"
-    "section.first{break-before:auto;page-break-before:auto}"
-    "svg{max-width:100%;height:auto;break-inside:avoid;page-break-inside:avoid}"
-    "header.top{background:#fff;color:#000;border-bottom:2px solid #000}"
-    "header.top p{color:#000}"
+    /* the night in context (html_context.c) */
+    ".sentence{font-size:15px;border-left:5px solid #24425e;background:#f3f6fa;"
+    "padding:6px 12px;margin:6px 0 10px 0}"
+    "table.compact td,table.compact th{padding:2px 8px}"
+    "td.nowrap,td.num{white-space:nowrap}td.beyond{font-weight:700;color:#a8322d}"
+    "tr.half td{background:#f7f8fa}"
+    /* Print (docs/review-report.md, "Printing"): one night in at most three
+     * A4 or Letter pages. Sections run on without forced breaks; a heading
+     * never ends a page, and table rows, list items, plots and small blocks
+     * are never split. The long explanations and the evidence plots past the
+     * first stay on screen. */
+    "@media print{@page{margin:9mm}"
+    "nav{display:none}body{background:#fff;font-size:9px;line-height:1.2}"
+    "main{max-width:none;padding:0}"
+    "section{border:none;margin:0 0 4px 0;padding:2px 0;break-before:auto;"
+    "page-break-before:auto}"
+    "h2{font-size:12.5px;margin:4px 0 2px 0}h3{font-size:10.5px;margin:4px 0 2px 0}"
+    "h2,h3{break-after:avoid;page-break-after:avoid}"
+    "tr,li,svg,.keep,.verdict,.sentence,.facts{break-inside:avoid;page-break-inside:avoid}"
+    "table{font-size:8px;margin:2px 0}th,td{padding:1px 4px}"
+    "td.num,td.nowrap{white-space:nowrap}"
+    ".headline{font-size:16px;margin:2px 0}.sentence{font-size:10.5px;padding:3px 8px}"
+    "svg{max-width:100%;height:auto}"
+    ".muted{font-size:8px}"
+    /* on paper: the first evidence plot and ten ranked epochs; the chart smaller */
+    "#evidence > svg:nth-of-type(n+2),#evidence > h3:nth-of-type(n+2):not(:last-of-type),"
+    "#evidence table tr:nth-child(n+12){display:none}"
+    "#evidence > svg{width:55%}#indices > svg{width:60%}#overview > svg{width:72%}"
+    "#bouts > svg{width:60%}"
+    ".caution li{margin:1px 0;font-size:8px}footer{font-size:7.5px;padding:0}"
+    "#indices table td:nth-child(2),#indices table td:nth-child(7){min-width:34mm}"
+    "header.top{background:#fff;color:#000;border-bottom:2px solid #000;padding:2px 0}"
+    "header.top h1{font-size:14px}header.top p{color:#000}"
     ".level{border:2px solid #000}}";
 
 typedef struct html_ctx {
@@ -233,7 +261,8 @@ static void write_banner(html_ctx *c)
     rt_page_end_html(p);
     static const char *const LINKS[][2] = {
         {"#summary", "Summary"}, {"#overview", "Night"}, {"#indices", "Indices"},
-        {"#bouts", "REM bouts"}, {"#evidence", "Evidence"}, {"#quality", "Quality"},
+        {"#periods", "REM periods"}, {"#bouts", "REM bouts"}, {"#evidence", "Evidence"},
+        {"#quality", "Quality"},
         {"#cautions", "Cautions"}};
     rt_page_start(p, "nav");
     for (size_t i = 0; i < sizeof LINKS / sizeof LINKS[0]; i++) {
@@ -333,6 +362,7 @@ static void write_summary(html_ctx *c)
     rt_page_attr(p, "id", "summary");
     rt_page_attr(p, "class", "first");
     rt_page_element(p, "h2", NULL, "Summary");
+    rt_html_sentence(p, n);
     write_identity(c);
 
     value_text(hr, n->index[n->headline].value, v, sizeof v);
@@ -574,6 +604,7 @@ static void write_overview(html_ctx *c)
     legend_item(p, activity_colour(8), "8-10");
     legend_item(p, "#9aa5b1", "not scorable");
     rt_page_end_html(p);
+    rt_html_sleep(p, c->night);
     rt_page_end_html(p);
 }
 
@@ -701,6 +732,7 @@ static void write_indices(html_ctx *c)
                     "(context only).");
     write_index_chart(c);
     write_index_table(c);
+    rt_html_norms(p, c->night);
     rt_page_end_html(p);
 }
 
@@ -1211,6 +1243,7 @@ static void write_page(html_ctx *c)
     write_summary(c);
     write_overview(c);
     write_indices(c);
+    rt_html_periods(p, c->night);
     write_bouts(c);
     write_evidence(c);
     write_quality(c);

@@ -1,4 +1,4 @@
-/* The night result as JSON (schema "remtone-night/2", docs/night-json.md),
+/* The night result as JSON (schema "remtone-night/3", docs/night-json.md),
  * built with jansson and written atomically. */
 #include <jansson.h>
 #include <math.h>
@@ -283,6 +283,148 @@ static json_t *cautions_json(void)
     return rt_json_done(a, ok);
 }
 
+/* ---- the night in context (docs/night-json.md: sleep, rem_periods, halves,
+ * norms, plain_sentence) ---- */
+
+static json_t *sleep_json(const rt_night *night)
+{
+    const rt_sleep_context *c = &night->sleep;
+    bool ok = true;
+    char clock[16];
+    json_t *o = json_object();
+    rt_json_set(o, "recording_minutes", number(rounded(c->recording_min, 2)), &ok);
+    rt_json_set(o, "lights_off_given", json_boolean(c->lights_off_given), &ok);
+    rt_json_set(o, "lights_on_given", json_boolean(c->lights_on_given), &ok);
+    rt_report_clock(&night->start, c->in_bed_from_s, clock, sizeof clock);
+    rt_json_set(o, "in_bed_from_s", number(c->in_bed_from_s), &ok);
+    rt_json_set(o, "in_bed_from_clock", json_string(clock), &ok);
+    rt_report_clock(&night->start, c->in_bed_to_s, clock, sizeof clock);
+    rt_json_set(o, "in_bed_to_s", number(c->in_bed_to_s), &ok);
+    rt_json_set(o, "in_bed_to_clock", json_string(clock), &ok);
+    rt_json_set(o, "time_in_bed_minutes", number(rounded(c->in_bed_min, 2)), &ok);
+    rt_json_set(o, "total_sleep_minutes", number(rounded(c->sleep_min, 2)), &ok);
+    rt_json_set(o, "sleep_efficiency_pct", number(rounded(c->efficiency_pct, 2)), &ok);
+    rt_json_set(o, "sleep_onset_s", number(c->sleep_onset_s), &ok);
+    rt_json_set(o, "sleep_latency_minutes", number(rounded(c->sleep_latency_min, 2)), &ok);
+    rt_json_set(o, "rem_latency_minutes", number(rounded(c->rem_latency_min, 2)), &ok);
+    rt_json_set(o, "wake_after_sleep_onset_minutes", number(rounded(c->waso_min, 2)), &ok);
+    json_t *st = json_object();
+    static const rt_stage STAGES[] = {RT_STAGE_W, RT_STAGE_N1, RT_STAGE_N2, RT_STAGE_N3,
+                                      RT_STAGE_R, RT_STAGE_MOVEMENT, RT_STAGE_UNSCORED};
+    for (size_t i = 0; i < sizeof STAGES / sizeof STAGES[0]; i++) {
+        json_t *x = json_object();
+        rt_json_set(x, "minutes", number(rounded(c->stage_min[STAGES[i]], 2)), &ok);
+        rt_json_set(x, "pct_of_sleep", number(rounded(c->stage_pct[STAGES[i]], 2)), &ok);
+        rt_json_set(st, STAGES[i] == RT_STAGE_UNSCORED ? "unstaged" : rt_stage_name(STAGES[i]),
+                    rt_json_done(x, ok), &ok);
+    }
+    rt_json_set(o, "stages", rt_json_done(st, ok), &ok);
+    rt_json_set(o, "rem_periods", json_integer((json_int_t)c->rem_periods), &ok);
+    rt_json_set(o, "half_split_s", number(c->half_split_s), &ok);
+    return rt_json_done(o, ok);
+}
+
+/* A period or a half: span, minutes and every index (value, status, counts). */
+static json_t *period_json(const rt_night *night, const rt_rem_period *g, size_t number_1)
+{
+    const rt_index_rule *rules = rt_index_rules();
+    bool ok = true;
+    char clock[16];
+    json_t *o = json_object();
+    if (number_1)
+        rt_json_set(o, "period", json_integer((json_int_t)number_1), &ok);
+    rt_json_set(o, "half", json_string(g->half ? "second" : "first"), &ok);
+    rt_json_set(o, "bouts", json_integer((json_int_t)g->n_bouts), &ok);
+    if (g->n_bouts) {
+        rt_json_set(o, "first_epoch", json_integer((json_int_t)g->first_epoch + 1), &ok);
+        rt_json_set(o, "last_epoch", json_integer((json_int_t)g->last_epoch + 1), &ok);
+        rt_json_set(o, "start_s", number(g->onset_s), &ok);
+        rt_report_clock(&night->start, g->onset_s, clock, sizeof clock);
+        rt_json_set(o, "start_clock", json_string(clock), &ok);
+        rt_json_set(o, "end_s", number(g->end_s), &ok);
+        rt_report_clock(&night->start, g->end_s, clock, sizeof clock);
+        rt_json_set(o, "end_clock", json_string(clock), &ok);
+    }
+    rt_json_set(o, "rem_minutes", number(rounded(g->rem_minutes, 2)), &ok);
+    rt_json_set(o, "scorable_minutes", number(rounded(g->scorable_minutes, 2)), &ok);
+    rt_json_set(o, "excluded_minutes", number(rounded(g->exclusions.total_minutes, 2)), &ok);
+    rt_json_set(o, "rem_ahi_per_h", number(rounded(g->exclusions.rem_ahi, 2)), &ok);
+    json_t *ix = json_object();
+    for (int i = 0; i < RT_IX_COUNT && ok; i++) {
+        const rt_index_value *v = &g->index[i];
+        json_t *x = json_object();
+        rt_json_set(x, "value", number(rounded(v->value, strcmp(rules[i].unit, "%") == 0 ? 2 : 4)),
+                    &ok);
+        rt_json_set(x, "status", json_string(rt_index_status_name(v->status)), &ok);
+        rt_json_set(x, "numerator", json_integer((json_int_t)v->numerator), &ok);
+        rt_json_set(x, "denominator", json_integer((json_int_t)v->denominator), &ok);
+        if (v->reason[0])
+            rt_json_set(x, "reason", rt_json_text(v->reason), &ok);
+        rt_json_set(ix, rules[i].id, rt_json_done(x, ok), &ok);
+    }
+    rt_json_set(o, "indices", rt_json_done(ix, ok), &ok);
+    return rt_json_done(o, ok);
+}
+
+static json_t *periods_json(const rt_night *night)
+{
+    bool ok = true;
+    json_t *a = json_array();
+    for (size_t i = 0; i < night->n_periods && ok; i++)
+        rt_json_push(a, period_json(night, &night->periods[i], i + 1), &ok);
+    return rt_json_done(a, ok);
+}
+
+static json_t *halves_json(const rt_night *night)
+{
+    bool ok = true;
+    json_t *a = json_array();
+    for (int h = 0; h < 2 && ok; h++)
+        rt_json_push(a, period_json(night, &night->halves[h], 0), &ok);
+    return rt_json_done(a, ok);
+}
+
+/* null when no age or sex was given; else the person and each index placed. */
+static json_t *norms_json(const rt_night *night)
+{
+    if (!night->norms_placed)
+        return json_null();
+    size_t n = 0;
+    const rt_norm_row *t = rt_norm_table(&n);
+    const rt_index_rule *rules = rt_index_rules();
+    bool ok = true;
+    json_t *o = json_object();
+    char sex[2] = {night->person.sex, '\0'};
+    rt_json_set(o, "age_years", number(night->person.age_years), &ok);
+    rt_json_set(o, "sex", sex[0] ? json_string(sex) : json_null(), &ok);
+    json_t *ix = json_object();
+    for (int i = 0; i < RT_IX_COUNT && ok; i++) {
+        const rt_norm_place *np = &night->norms[i];
+        if (np->row < 0 || (size_t)np->row >= n)
+            continue;
+        const rt_norm_row *r = &t[np->row];
+        json_t *x = json_object();
+        rt_json_set(x, "value", number(rounded(night->index[i].value,
+                                               strcmp(rules[i].unit, "%") == 0 ? 2 : 4)), &ok);
+        rt_json_set(x, "band", json_string(rt_norm_band_name(np->band)), &ok);
+        rt_json_set(x, "text", json_string(np->text), &ok);
+        rt_json_set(x, "measure", json_string(r->measure), &ok);
+        rt_json_set(x, "normal_limit", number(r->limit), &ok);
+        rt_json_set(x, "normal_limit_source", json_string(r->limit_source), &ok);
+        rt_json_set(x, "normal_limit_from_memory", json_boolean(r->limit_from_memory), &ok);
+        rt_json_set(x, "rbd_cutoff", number(r->rbd_cutoff), &ok);
+        rt_json_set(x, "rbd_cutoff_source", isfinite(r->rbd_cutoff) ? json_string(r->rbd_cutoff_source)
+                                                                    : json_null(), &ok);
+        rt_json_set(x, "ages", json_pack("[f,f]", r->age_from, r->age_to), &ok);
+        rt_json_set(x, "group", json_string(r->group), &ok);
+        rt_json_set(x, "method", json_string(r->method), &ok);
+        rt_json_set(ix, rules[i].id, rt_json_done(x, ok), &ok);
+    }
+    rt_json_set(o, "indices", rt_json_done(ix, ok), &ok);
+    rt_json_set(o, "decides_level", json_false(), &ok);
+    return rt_json_done(o, ok);
+}
+
 rt_status rt_night_write_json(const rt_night *night, const rt_run_inputs *inputs,
                               const char *path, rt_error *err)
 {
@@ -294,12 +436,15 @@ rt_status rt_night_write_json(const rt_night *night, const rt_run_inputs *inputs
         return st;
     bool ok = true;
     json_t *root = json_object();
-    rt_json_set(root, "schema", json_string("remtone-night/2"), &ok);
+    rt_json_set(root, "schema", json_string("remtone-night/3"), &ok);
     rt_json_set(root, "rem", json_pack("{s:I,s:f,s:f,s:I}", "epochs",
                                        (json_int_t)night->rem_epochs, "minutes",
                                        night->rem_minutes, "scorable_minutes",
                                        night->scorable_minutes, "bouts",
                                        (json_int_t)night->n_bouts), &ok);
+    char sentence[1600];
+    rt_night_plain_sentence(night, sentence, sizeof sentence);
+    rt_json_set(root, "plain_sentence", rt_json_text(sentence), &ok);
     rt_json_set(root, "recording_s", number(night->recording_s), &ok);
     rt_json_set(root, "staging", staging_json(night), &ok);
     rt_json_set(root, "channels", channels_json(night), &ok);
@@ -319,6 +464,10 @@ rt_status rt_night_write_json(const rt_night *night, const rt_run_inputs *inputs
     rt_json_set(rev, "statement", json_string(statement), &ok);
     rt_json_set(root, "review", rt_json_done(rev, ok), &ok);
     rt_json_set(root, "reservations", reservations_json(night), &ok);
+    rt_json_set(root, "sleep", sleep_json(night), &ok);
+    rt_json_set(root, "rem_periods", periods_json(night), &ok);
+    rt_json_set(root, "halves", halves_json(night), &ok);
+    rt_json_set(root, "norms", norms_json(night), &ok);
     rt_json_set(root, "exclusions", exclusions_json(night), &ok);
     rt_json_set(root, "agreement", rt_agreement_json(&night->agreement), &ok);
     rt_json_set(root, "evidence", evidence_json(night, 10), &ok);

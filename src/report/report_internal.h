@@ -75,6 +75,12 @@ void rt_report_statement(const rt_night *night, char *buf, size_t cap);
  * gaps are listed separately (night->staging.gaps). */
 void rt_report_staging_text(const rt_night *night, char *buf, size_t cap);
 
+/* An index value in its rule's unit: "12.3 %", "4.0/h", "0.812"; "-" when
+ * not finite. */
+void rt_report_value_text(const rt_index_rule *rule, double v, char *buf, size_t cap);
+/* The sleep context, the REM periods and halves, and the norms (when
+ * placed) as lines of the text summary. */
+void rt_context_write_text(const rt_night *night, FILE *out);
 /* The last component of a path (the path itself when it has no '/'). */
 const char *rt_report_basename(const char *path);
 

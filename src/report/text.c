@@ -8,7 +8,7 @@
 #include "report_internal.h"
 #include "remtone/report.h"
 
-static void value_text(const rt_index_rule *rule, double v, char *buf, size_t cap)
+void rt_report_value_text(const rt_index_rule *rule, double v, char *buf, size_t cap)
 {
     if (!isfinite(v))
         snprintf(buf, cap, "-");
@@ -94,6 +94,9 @@ rt_status rt_night_write_text(const rt_night *night, FILE *out, rt_error *err)
     const rt_index_rule *rules = rt_index_rules();
     char v[32], c[32];
     fprintf(out, "remtone night summary: %s\n\n", night->recording_path);
+    char sentence[1600];
+    rt_night_plain_sentence(night, sentence, sizeof sentence);
+    fprintf(out, "In short: %s\n\n", sentence);
     staging_lines(out, night);
     fprintf(out, "REM: %.1f min in %zu bouts, %.1f min scorable\n", night->rem_minutes,
             night->n_bouts, night->scorable_minutes);
@@ -102,13 +105,13 @@ rt_status rt_night_write_text(const rt_night *night, FILE *out, rt_error *err)
         if (night->channel[r].present)
             fprintf(out, " %s=%s", rt_role_name((rt_role)r), night->channel[r].label);
     fprintf(out, "\n");
-    value_text(&rules[night->headline], night->index[night->headline].value, v, sizeof v);
+    rt_report_value_text(&rules[night->headline], night->index[night->headline].value, v, sizeof v);
     fprintf(out, "REM with preserved muscle activity: %s (%s)\n\n", v, rules[night->headline].id);
     fprintf(out, "%-34s %10s %10s  %s\n", "index", "value", "cutoff", "status");
     for (int i = 0; i < RT_IX_COUNT; i++) {
-        value_text(&rules[i], night->index[i].value, v, sizeof v);
+        rt_report_value_text(&rules[i], night->index[i].value, v, sizeof v);
         if (night->cutoffs.has[i])
-            value_text(&rules[i], night->cutoffs.value[i], c, sizeof c);
+            rt_report_value_text(&rules[i], night->cutoffs.value[i], c, sizeof c);
         else
             snprintf(c, sizeof c, "none");
         fprintf(out, "%-34s %10s %10s  %s", rules[i].id, v, c,
@@ -120,6 +123,7 @@ rt_status rt_night_write_text(const rt_night *night, FILE *out, rt_error *err)
         fprintf(out, "\n");
     }
     fprintf(out, "Cutoffs: %s\n", night->cutoffs.origin);
+    rt_context_write_text(night, out);
     const rt_exclusion_summary *x = &night->exclusions;
     if (x->total_minutes > 0) {
         fprintf(out, "Left out of REM: %.1f min (", x->total_minutes);

@@ -572,13 +572,9 @@ static rt_status channel_levels(rt_night *night, rt_error *err)
     return RT_OK;
 }
 
-rt_status rt_night_summarise(rt_night *night, const scoring_state *ss, rt_error *err)
+rt_status rt_night_indices(rt_night *night, const scoring_state *ss, rt_error *err)
 {
-    rt_status st = channel_levels(night, err);
-    if (st != RT_OK)
-        return st;
     bool arms = night->channel[RT_ROLE_ARM_LEFT].present && night->channel[RT_ROLE_ARM_RIGHT].present;
-    aggregate_epochs(night, arms);
     size_t scorable_minis = 0;
     for (size_t i = 0; i < night->n_minis3; i++)
         scorable_minis += mini_scorable(&night->minis3[i]);
@@ -589,7 +585,8 @@ rt_status rt_night_summarise(rt_night *night, const scoring_state *ss, rt_error 
     compute_epoch_indices(night, arms);
     set_value(&night->index[RT_IX_MONTREAL_TONIC_CHIN], ss->montreal_tonic, ss->montreal_windows,
               100.0);
-    if ((st = summarise_exclusions(night, err)) != RT_OK)
+    rt_status st = summarise_exclusions(night, err);
+    if (st != RT_OK)
         return st;
     rt_index_value *rai = &night->index[RT_IX_RAI];
     rai->numerator = ss->rai.at_most_1;
@@ -600,10 +597,22 @@ rt_status rt_night_summarise(rt_night *night, const scoring_state *ss, rt_error 
         rt_copy_string(rai->reason, sizeof rai->reason, "no scorable REM");
     apply_missing(night, arms);
     decide_status(night);
+    return RT_OK;
+}
+
+rt_status rt_night_summarise(rt_night *night, const scoring_state *ss, rt_error *err)
+{
+    rt_status st = channel_levels(night, err);
+    if (st != RT_OK)
+        return st;
+    bool arms = night->channel[RT_ROLE_ARM_LEFT].present && night->channel[RT_ROLE_ARM_RIGHT].present;
+    aggregate_epochs(night, arms);
+    if ((st = rt_night_indices(night, ss, err)) != RT_OK)
+        return st;
     night->headline = night->index[RT_IX_SINBAR_COMBINED_3S].status != RT_STATUS_NOT_COMPUTED
                           ? RT_IX_SINBAR_COMBINED_3S
                           : RT_IX_SINBAR_CHIN_ANY_3S;
     review(night);
     rt_night_reserve(night);
-    return RT_OK;
+    return rt_night_periods_score(night, ss, err);
 }

@@ -715,6 +715,14 @@ static rt_status gather_labels(pass_ctx *c, const item_list *l, rt_error *err)
         ss->rai.at_most_1 += o->rai.at_most_1;
         ss->rai.from_1_to_2 += o->rai.from_1_to_2;
         ss->rai.total += o->rai.total;
+        if (ss->per_bout) { /* the same counts per bout, for the REM periods */
+            bout_counts *bc = &ss->per_bout[it->bout];
+            bc->montreal_windows += o->montreal_windows;
+            bc->montreal_tonic += o->montreal_tonic;
+            bc->rai.at_most_1 += o->rai.at_most_1;
+            bc->rai.from_1_to_2 += o->rai.from_1_to_2;
+            bc->rai.total += o->rai.total;
+        }
         if (night->n_bursts + o->n_bursts > ss->burst_cap) {
             size_t ncap = ss->burst_cap ? ss->burst_cap : 256;
             while (ncap < night->n_bursts + o->n_bursts)
@@ -1106,6 +1114,7 @@ rt_status rt_night_score_threads(rt_recording *rec, const rt_role_map *roles,
         rt_night_free(night);
         return st;
     }
+    rt_night_sleep_context(night, tl);
 
     scoring_state ss;
     memset(&ss, 0, sizeof ss);
@@ -1121,6 +1130,10 @@ rt_status rt_night_score_threads(rt_recording *rec, const rt_role_map *roles,
     memset(&masks, 0, sizeof masks);
     st = lay_out_rem(night, tl, &c.bouts, err);
     if (st == RT_OK)
+        st = rt_night_periods_lay_out(night, tl, c.bouts, err);
+    if (st == RT_OK && !(ss.per_bout = rt_calloc(night->n_bouts + 1, sizeof *ss.per_bout)))
+        st = rt_fail(err, RT_ERR_NOMEM, "out of memory for %zu REM bouts", night->n_bouts);
+    if (st == RT_OK)
         st = rt_exclusions_build(tl, &night->params, c.bouts, night->n_bouts, night->rem_epochs,
                                  &masks, err);
     if (st == RT_OK) {
@@ -1135,6 +1148,7 @@ rt_status rt_night_score_threads(rt_recording *rec, const rt_role_map *roles,
     free(c.bouts);
     if (st == RT_OK)
         st = rt_night_summarise(night, &ss, err);
+    free(ss.per_bout);
     if (st == RT_OK)
         rt_night_agreement(night, tl);
     if (st != RT_OK) {
@@ -1184,5 +1198,6 @@ void rt_night_free(rt_night *night)
     free(night->bursts);
     free(night->bout_lift);
     free(night->staging.gaps);
+    free(night->periods);
     free(night);
 }

@@ -21,12 +21,20 @@ typedef struct bout_span {
 /* Counts gathered while scanning the bouts that the labels alone do not hold. */
 struct rt_exclusion_masks;
 
+/* The counts of one REM bout that the labels alone do not hold (chin). */
+typedef struct bout_counts {
+    size_t montreal_windows;
+    size_t montreal_tonic;
+    rt_rai_counts rai;
+} bout_counts;
+
 typedef struct scoring_state {
     struct rt_exclusion_masks *masks; /* REM seconds left out, and why */
     size_t montreal_windows;
     size_t montreal_tonic;
     rt_rai_counts rai;
     size_t burst_cap;
+    bout_counts *per_bout;            /* night->n_bouts; NULL in a view of one period */
 } scoring_state;
 
 /* Appends a warning (printf-style) to the night; drops it when full. */
@@ -53,6 +61,28 @@ rt_status rt_night_staging_summarise(rt_night *night, const rt_timeline *tl, rt_
  * denominators and the cutoffs that did not decide the level. Called last by
  * rt_night_summarise. */
 void rt_night_reserve(rt_night *night);
+
+/* The indices of the epochs and mini-epochs `night` holds, with their
+ * statuses against the cutoffs in force: the whole night, or a view of one
+ * REM period (periods.c) whose arrays point into the night's. Sets
+ * rem_minutes, scorable_minutes, the indices and the REM left out
+ * (exclusions.minutes..., accumulated: start from zero); the epoch
+ * aggregates must be in place. ss gives the Montreal tonic and RAI counts of
+ * the same bouts. RT_ERR_NOMEM only. */
+rt_status rt_night_indices(rt_night *night, const scoring_state *ss, rt_error *err);
+
+/* The sleep context of the staging (night->sleep), periods not yet counted. */
+void rt_night_sleep_context(rt_night *night, const rt_timeline *tl);
+
+/* The REM periods and the halves of the night over the REM bouts (after
+ * rt_night_sleep_context): boundaries and each one's REM event rates.
+ * RT_ERR_NOMEM only. */
+rt_status rt_night_periods_lay_out(rt_night *night, const rt_timeline *tl, const bout_span *bouts,
+                                   rt_error *err);
+
+/* Every index of each period and half, by rt_night_indices on a view of
+ * its bouts (after the night's own indices). RT_ERR_NOMEM only. */
+rt_status rt_night_periods_score(rt_night *night, const scoring_state *ss, rt_error *err);
 
 
 #endif

@@ -88,6 +88,9 @@ static const rt_param_desc table[] = {
          "points"),
     REAL(excluded_share_max, 1.0 / 3.0, 0.0, 1.0, "x",
          "our choice: with more than a third of REM left out, the indices describe a selection"),
+    REAL(rem_period_gap_min, 15.0, 0.5, 240.0, "min",
+         "common practice (from memory): REM episodes less than 15 min apart are one REM "
+         "period, as in Feinberg and Floyd 1979 (Psychophysiology 16:283-291)"),
     BOOL(exclude_artifacts, 1, "common practice (docs/exclusions.md)"),
     BOOL(exclude_snoring, 1, "common practice (docs/exclusions.md)"),
     BOOL(exclude_respiratory, 1,

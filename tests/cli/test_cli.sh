@@ -52,7 +52,7 @@ has score-cautions "$work/out" "not a diagnosis"
 has score-visual-note "$work/out" "visual scoring"
 check score-json-shape 0 "$py" -c '
 import json,sys; d=json.load(open(sys.argv[1]))
-assert d["schema"]=="remtone-night/2"
+assert d["schema"]=="remtone-night/3"
 # the synthetic night is staged from start to end: complete, no gaps (docs/night-json.md)
 s=d["staging"]; assert s["complete"] is True and s["staged_hours"]==s["recording_hours"]==1.0 and s["gaps"]==[], s
 assert isinstance(d["reservations"],list) and d["review"]["with_reservations"]==(len(d["reservations"])>0)
@@ -138,6 +138,35 @@ import json,sys; d=json.load(open(sys.argv[1])); s=d["staging"]
 assert [r["code"] for r in d["reservations"]][:1]==["staging-gaps"], d["reservations"]
 assert s["complete"] is False and s["partial"] is False and s["gaps"]==[{"start_s":960.0,"start_clock":"22:46:00","duration_s":510.0}], s
 assert d["review"]["statement"].endswith(", with reservations")' "$work/h.json"
+
+# the night in context (docs/review-report.md): every index per REM period in --periods, whose
+# counts add up to the night's in the JSON result (common practice: a period's mini-epochs and
+# epochs are the night's, split); norms with --age/--sex; the plain sentence in text and JSON
+check score-context 0 "$bin" score "$work/n/night.edf" --stages "$work/n/stages.csv" --json "$work/ctx.json" --periods "$work/periods.csv" --age 67 --sex m --html "$work/ctx.html"
+has context-sentence "$work/out" "In short: "
+has context-sleep "$work/out" "Sleep (from the staging"
+has context-norms "$work/out" "Against norms (age 67, man"
+has context-page-sentence "$work/ctx.html" 'id="plain-sentence"'
+has context-page-periods "$work/ctx.html" 'id="periods"'
+has context-page-norms "$work/ctx.html" 'data-band="'
+check context-json 0 "$py" -c '
+import csv,json,sys; d=json.load(open(sys.argv[1])); rows=list(csv.DictReader(open(sys.argv[2])))
+assert d["schema"]=="remtone-night/3"
+assert d["plain_sentence"]==d["plain_sentence"].strip() and d["plain_sentence"].endswith("is not a diagnosis.")
+assert d["sleep"]["rem_periods"]==len(d["rem_periods"])>=1
+assert abs(d["sleep"]["stages"]["R"]["minutes"]-d["rem"]["minutes"])<1e-6, d["sleep"]
+assert d["norms"]["sex"]=="M" and d["norms"]["age_years"]==67 and d["norms"]["decides_level"] is False
+for ix,v in d["indices"].items():
+    if ix.endswith("per_h") or v["status"]=="not-computed": continue
+    per=[r for r in rows if r["index"]==ix and not r["period"].startswith("half")]
+    assert len(per)==len(d["rem_periods"]), ix
+    assert sum(int(r["numerator"]) for r in per)==v["numerator"], ix
+    assert sum(int(r["denominator"]) for r in per)==v["denominator"], ix
+    assert sum(d["rem_periods"][k]["indices"][ix]["numerator"] for k in range(len(per)))==v["numerator"], ix
+assert rows[0]["first_epoch"]==str(d["rem_periods"][0]["first_epoch"])' "$work/ctx.json" "$work/periods.csv"
+check score-bad-sex 2 "$bin" score "$work/n/night.edf" --stages "$work/n/stages.csv" --sex X
+check score-bad-age 2 "$bin" score "$work/n/night.edf" --stages "$work/n/stages.csv" --age 200
+check score-periods-over-input 2 "$bin" score "$work/n/night.edf" --stages "$work/n/stages.csv" --periods "$work/n/stages.csv"
 
 # exit codes of the README table
 check missing-recording 3 "$bin" score "$work/nope.edf" --stages "$work/n/stages.csv"

@@ -275,5 +275,19 @@ p=json.load(open(sys.argv[1]+"/t6c.json"))["provenance"]["parameters"]
 assert p["exclude_artifacts"] is False and p["event_margin_s"]==2, p' sites/nights
 expect sites-bad-map 5 "$bin" cohort data/sites.csv --out sites --label-map data/t6/stages.csv
 
+# ---- optional age and sex columns: the night's indices placed against the norms (docs/cohort.md);
+# a changed age scores the night again, an unchanged manifest does not
+printf 'id,recording,stages,events,group,age,sex\nr1,r1/night.edf,r1/stages.csv,,case,70,M\n' > data/aged.csv
+expect aged-run 0 "$bin" cohort data/aged.csv --out aged --jobs 1
+expect aged-norms 0 "$py" -c '
+import json,sys; d=json.load(open(sys.argv[1])); n=d["norms"]
+assert n["age_years"]==70 and n["sex"]=="M" and n["decides_level"] is False, n
+assert n["indices"]["sinbar.chin_any_3s"]["band"] in ("within","beyond-normal-limit","beyond-rbd-cutoff")' aged/nights/r1.json
+expect aged-rerun 0 "$bin" cohort data/aged.csv --out aged --jobs 1
+has aged-kept "$work/out" "0 scored"
+sed -i 's/,70,M/,50,M/' data/aged.csv
+expect aged-changed 0 "$bin" cohort data/aged.csv --out aged --jobs 1
+has aged-rescored "$work/out" "1 scored"
+
 echo "$fails failure(s)"
 [ "$fails" = 0 ]

@@ -16,7 +16,8 @@ import sys
 import tempfile
 import zlib
 
-CHROMIUM = "/usr/bin/chromium"
+from chromium import CHROMIUM
+import chromium
 WIDTH, HEIGHT = 1200, 3000
 
 
@@ -82,13 +83,8 @@ def main():
         subprocess.run([binary, "score", os.path.join(tmp, "night.edf"), "--stages",
                         os.path.join(tmp, "stages.csv"), "--html", page, "--quiet"], check=True)
         png = os.path.join(tmp, "report.png")
-        subprocess.run([CHROMIUM, "--headless", "--no-sandbox", "--disable-gpu", "--disable-quic",
-                        "--no-first-run", "--disable-background-networking",
-                        "--disable-component-update", "--disable-sync",
-                        "--user-data-dir=" + profile, "--screenshot=" + png,
-                        "--window-size=%d,%d" % (WIDTH, HEIGHT), "file://" + page],
-                       check=True, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
-                       timeout=180)
+        chromium.run(profile, "--screenshot=" + png, "--window-size=%d,%d" % (WIDTH, HEIGHT),
+                     "file://" + page)
         width, height, bpp, rows = decode_png(png)
         assert (width, height) == (WIDTH, HEIGHT), (width, height)
         colours, counts = set(), {}

@@ -62,8 +62,21 @@ static void test_manifest_reads_rows(void **state)
     assert_non_null(m->entries[1].events);
     assert_string_equal(m->entries[1].group, "");
     assert_int_equal(m->entries[1].line, 3);
+    /* no age or sex columns: not given */
+    assert_true(isnan(m->entries[0].age_years) && m->entries[0].sex == 0);
     rt_manifest_free(m);
     rt_manifest_free(NULL);
+
+    /* optional age and sex columns, for the norms (docs/cohort.md) */
+    m = load_text(dir, "id,recording,stages,events,group,sex,age\n"
+                       "n1,a.edf,,,case,f,67.5\n"
+                       "n2,a.edf,,,case,M,\n"
+                       "n3,a.edf,,,case,,40\n", &err);
+    assert_non_null(m);
+    assert_true(m->entries[0].sex == 'F' && m->entries[0].age_years == 67.5);
+    assert_true(m->entries[1].sex == 'M' && isnan(m->entries[1].age_years));
+    assert_true(m->entries[2].sex == 0 && m->entries[2].age_years == 40.0);
+    rt_manifest_free(m);
 }
 
 static void expect_error(const char *dir, const char *text, rt_status status, const char *needle)
@@ -98,6 +111,12 @@ static void test_manifest_errors_name_the_row(void **state)
     expect_error(dir, "id,recording,stages,group\nn1,a.edf,,case\n", RT_ERR_STAGING,
                  "no column \"events\"");
     expect_error(dir, head, RT_ERR_STAGING, "lists no nights");
+    expect_error(dir, "id,recording,stages,events,group,age\nn1,a.edf,,,case,old\n",
+                 RT_ERR_STAGING, "line 2 (night n1): age must be 0 to 130 years");
+    expect_error(dir, "id,recording,stages,events,group,age\nn1,a.edf,,,case,131\n",
+                 RT_ERR_STAGING, "line 2 (night n1): age must be 0 to 130 years");
+    expect_error(dir, "id,recording,stages,events,group,sex\nn1,a.edf,,,case,X\n",
+                 RT_ERR_STAGING, "line 2 (night n1): sex must be F or M");
 }
 
 static void test_safe_ids(void **state)

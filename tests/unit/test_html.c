@@ -185,9 +185,14 @@ static void page_is_wellformed_with_plots(void **state)
     /* self-contained: no scripts, no external references of any kind */
     assert_int_equal((int)xpath_count(doc, "count(//*[local-name()='script'])"), 0);
     assert_int_equal((int)xpath_count(doc, "count(//@src | //h:link | //@*[local-name()='href' and not(starts-with(., '#'))])"), 0);
-    /* print rules present: navigation hidden, sections on their own pages */
+    /* print rules present: navigation hidden, no forced break per section
+     * (docs/review-report.md, "Printing"; the page count is
+     * tests/ref/test_print_pages.py's) */
     char *raw = slurp(path);
-    assert_non_null(strstr(raw, "@media print{nav{display:none}"));
+    assert_non_null(strstr(raw, "nav{display:none}"));
+    assert_non_null(strstr(raw, "h2,h3{break-after:avoid"));
+    assert_non_null(strstr(raw, "tr,li,svg,.keep,.verdict,.sentence,.facts{break-inside:avoid"));
+    assert_null(strstr(raw, "page-break-before:always"));
     free(raw);
     /* every caution of SAFETY.md, word for word, and the visual-scoring note */
     char *text = document_text(doc);
