@@ -8,7 +8,8 @@
 enum {
     KEY_STAGES = 1, KEY_EVENTS, KEY_JSON, KEY_CUTOFFS, KEY_LABELS, KEY_MIN_REM, KEY_QUIET,
     KEY_KEEP_ARTIFACTS, KEY_KEEP_SNORING, KEY_KEEP_RESPIRATORY, KEY_EVENT_MARGIN,
-    KEY_HTML, KEY_MINIS, KEY_ANNOTATIONS, KEY_SHOW_IDENTITY, KEY_RECORDING_ID, KEY_THREADS
+    KEY_HTML, KEY_MINIS, KEY_ANNOTATIONS, KEY_SHOW_IDENTITY, KEY_RECORDING_ID, KEY_THREADS,
+    KEY_CORRECTIONS
 };
 
 static const cli_option OPTIONS[] = {
@@ -29,6 +30,9 @@ static const cli_option OPTIONS[] = {
     {"annotations", 1, KEY_ANNOTATIONS, "PATH", "write the detected activity as an EDF+ annotation file"},
     {"show-identity", 0, KEY_SHOW_IDENTITY, NULL, "show the recording header's patient fields and date in the report"},
     {"recording-id", 1, KEY_RECORDING_ID, "ID", "name the recording in the report (default: its file name)"},
+    {"corrections", 1, KEY_CORRECTIONS, "FILE", "rescore with a reviewer's decisions: the mini-epoch "
+     "table CSV with its decision columns filled, an EDF+ annotation file or an XML scoring "
+     "file with <corrections> (told by content; docs/corrections.md)"},
     {"threads", 1, KEY_THREADS, "N", "score with N threads, 1 to 256 (default: the processor cores "
                                      "available; the result is the same for any N)"},
     CLI_ROLE_OPTIONS,
@@ -37,7 +41,7 @@ static const cli_option OPTIONS[] = {
 
 typedef struct score_config {
     const char *stages, *events, *json, *cutoffs, *labels;
-    const char *html, *minis, *annotations;
+    const char *html, *minis, *annotations, *corrections;
     rt_report_options report;
     double min_rem;
     int quiet;
@@ -62,6 +66,7 @@ static int on_option(void *ctx, int key, const char *arg)
     case KEY_HTML: c->html = arg; break;
     case KEY_MINIS: c->minis = arg; break;
     case KEY_ANNOTATIONS: c->annotations = arg; break;
+    case KEY_CORRECTIONS: c->corrections = arg; break;
     case KEY_SHOW_IDENTITY: c->report.show_identity = true; break;
     case KEY_RECORDING_ID: c->report.recording_id = arg; break;
     case KEY_KEEP_ARTIFACTS: c->params.exclude_artifacts = false; break;
@@ -101,6 +106,7 @@ typedef struct loaded {
     rt_timeline *tl;
     rt_role_map roles;
     rt_cutoffs cutoffs;
+    rt_corrections *corrections;
 } loaded;
 
 static rt_status load_inputs(const score_config *c, const char *rec_path, loaded *l, rt_error *err)
@@ -124,6 +130,8 @@ static rt_status load_inputs(const score_config *c, const char *rec_path, loaded
         st = rt_timeline_check(l->tl, rt_recording_duration_s(l->rec), err);
     if (st == RT_OK)
         st = rt_roles_resolve(l->rec, &c->roles, &l->roles, err);
+    if (st == RT_OK && c->corrections)
+        st = rt_corrections_load(c->corrections, &l->corrections, err);
     return st;
 }
 
@@ -139,7 +147,7 @@ static int run(int argc, char **argv)
     int rc = cli_parse(&CLI_SCORE, argc, argv, on_option, &c, pos, 1, &npos);
     if (rc != EXIT_OK)
         return rc < 0 ? EXIT_OK : rc;
-    const char *inputs[] = {pos[0], c.stages, c.events, c.cutoffs, c.labels};
+    const char *inputs[] = {pos[0], c.stages, c.events, c.cutoffs, c.labels, c.corrections};
     size_t n_inputs = sizeof inputs / sizeof inputs[0];
     const cli_output outputs[] = {{"json", c.json}, {"html", c.html}, {"minis", c.minis},
                                   {"annotations", c.annotations}};
@@ -159,11 +167,13 @@ static int run(int argc, char **argv)
         st = rt_night_score_threads(l.rec, &l.roles, l.tl, &c.params, &l.cutoffs, c.threads,
                                     &night, &err);
     }
+    if (st == RT_OK && l.corrections)
+        st = rt_night_correct(night, l.tl, l.corrections, &err);
     if (st == RT_OK && !c.quiet && !(c.json && strcmp(c.json, "-") == 0) &&
         !(c.html && strcmp(c.html, "-") == 0) && !(c.minis && strcmp(c.minis, "-") == 0))
         st = rt_night_write_text(night, stdout, &err);
     if (st == RT_OK && c.json) {
-        rt_run_inputs in = {pos[0], c.stages, c.events, c.cutoffs, c.labels};
+        rt_run_inputs in = {pos[0], c.stages, c.events, c.cutoffs, c.labels, c.corrections};
         st = rt_night_write_json(night, &in, c.json, &err);
         output_error = 1;
     }
@@ -180,6 +190,7 @@ static int run(int argc, char **argv)
         output_error = 1;
     }
     rt_night_free(night);
+    rt_corrections_free(l.corrections);
     rt_timeline_free(l.tl);
     rt_labelmap_free(l.labels);
     rt_recording_close(l.rec);

@@ -32,9 +32,10 @@ typedef struct rt_run_inputs {
     const char *events;
     const char *cutoffs;
     const char *label_map;
+    const char *corrections;   /* a reviewer's decisions (docs/corrections.md) */
 } rt_run_inputs;
 
-/* The night result, schema "remtone-night/2" (docs/night-json.md). */
+/* The night result, schema "remtone-night/3" (docs/night-json.md). */
 rt_status rt_night_write_json(const rt_night *night, const rt_run_inputs *inputs,
                               const char *path, rt_error *err);
 /* The short text summary for people. */

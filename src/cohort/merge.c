@@ -96,10 +96,12 @@ static rt_status read_result(const char *dir, const char *id, cohort_row *row, b
     /* remtone-night/1 results (before reservations) are still read; their
      * reservations are unknown, not none */
     bool v1 = schema && strcmp(schema, "remtone-night/1") == 0;
-    if (!schema || (!v1 && strcmp(schema, "remtone-night/2") != 0) || !json_is_object(rem) ||
+    if (!schema ||
+        (!v1 && strcmp(schema, "remtone-night/2") != 0 && strcmp(schema, "remtone-night/3") != 0) ||
+        !json_is_object(rem) ||
         !json_is_object(review) || !json_is_object(indices)) {
         json_decref(root);
-        return rt_fail(err, RT_ERR_STAGING, "%s: not a remtone-night/2 (or /1) result", path);
+        return rt_fail(err, RT_ERR_STAGING, "%s: not a remtone-night/3 (or /2, /1) result", path);
     }
     rt_copy_string(row->id, sizeof row->id, id);
     row->flagged = json_is_true(json_object_get(review, "flagged"));

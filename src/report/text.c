@@ -6,9 +6,10 @@
 #include "internal.h"
 #include "output.h"
 #include "report_internal.h"
+#include "remtone/corrections.h"
 #include "remtone/report.h"
 
-static void value_text(const rt_index_rule *rule, double v, char *buf, size_t cap)
+void rt_report_value_text(const rt_index_rule *rule, double v, char *buf, size_t cap)
 {
     if (!isfinite(v))
         snprintf(buf, cap, "-");
@@ -102,13 +103,13 @@ rt_status rt_night_write_text(const rt_night *night, FILE *out, rt_error *err)
         if (night->channel[r].present)
             fprintf(out, " %s=%s", rt_role_name((rt_role)r), night->channel[r].label);
     fprintf(out, "\n");
-    value_text(&rules[night->headline], night->index[night->headline].value, v, sizeof v);
+    rt_report_value_text(&rules[night->headline], night->index[night->headline].value, v, sizeof v);
     fprintf(out, "REM with preserved muscle activity: %s (%s)\n\n", v, rules[night->headline].id);
     fprintf(out, "%-34s %10s %10s  %s\n", "index", "value", "cutoff", "status");
     for (int i = 0; i < RT_IX_COUNT; i++) {
-        value_text(&rules[i], night->index[i].value, v, sizeof v);
+        rt_report_value_text(&rules[i], night->index[i].value, v, sizeof v);
         if (night->cutoffs.has[i])
-            value_text(&rules[i], night->cutoffs.value[i], c, sizeof c);
+            rt_report_value_text(&rules[i], night->cutoffs.value[i], c, sizeof c);
         else
             snprintf(c, sizeof c, "none");
         fprintf(out, "%-34s %10s %10s  %s", rules[i].id, v, c,
@@ -129,8 +130,12 @@ rt_status rt_night_write_text(const rt_night *night, FILE *out, rt_error *err)
                 fprintf(out, "%s%s %.1f", sep, rt_event_type_name((rt_event_type)t), x->minutes[t]);
                 sep = ", ";
             }
-        if (x->outside_lights_minutes > 0)
+        if (x->outside_lights_minutes > 0) {
             fprintf(out, "%soutside lights %.1f", sep, x->outside_lights_minutes);
+            sep = ", ";
+        }
+        if (x->review_minutes > 0)
+            fprintf(out, "%sby the reviewer %.1f", sep, x->review_minutes);
         fprintf(out, ")\n");
     }
     if (x->have_respiratory)
@@ -156,6 +161,7 @@ rt_status rt_night_write_text(const rt_night *night, FILE *out, rt_error *err)
         fprintf(out, "\n");
         rt_agreement_write_text(&night->agreement, out);
     }
+    rt_corrections_write_text(night, out);
     if (night->n_warnings) {
         fprintf(out, "\nWarnings:\n");
         for (size_t i = 0; i < night->n_warnings; i++)

@@ -1187,5 +1187,6 @@ void rt_night_free(rt_night *night)
     free(night->bursts);
     free(night->bout_lift);
     free(night->staging.gaps);
+    rt_night_corrections_free(night->corrections);
     free(night);
 }

@@ -52,7 +52,7 @@ has score-cautions "$work/out" "not a diagnosis"
 has score-visual-note "$work/out" "visual scoring"
 check score-json-shape 0 "$py" -c '
 import json,sys; d=json.load(open(sys.argv[1]))
-assert d["schema"]=="remtone-night/2"
+assert d["schema"]=="remtone-night/3"
 # the synthetic night is staged from start to end: complete, no gaps (docs/night-json.md)
 s=d["staging"]; assert s["complete"] is True and s["staged_hours"]==s["recording_hours"]==1.0 and s["gaps"]==[], s
 assert isinstance(d["reservations"],list) and d["review"]["with_reservations"]==(len(d["reservations"])>0)
