@@ -552,8 +552,10 @@ static rt_status place_decision(const rt_night *night, const rt_timeline *tl,
                        "(see excluded_by in the mini-epoch table)", kind, m->onset_s, role);
     if (d->kind == RT_DECISION_REJECT && !marked(labels, d->activity))
         return fail_at(err, RT_ERR_STAGING, c, d->place,
-                       "reject at %.10g s on %s: remtone marked no %s activity there", m->onset_s,
-                       role, d->activity == RT_ACTIVITY_ANY ? "" : rt_decision_activity_name(d->activity));
+                       "reject at %.10g s on %s: remtone marked no %sactivity there", m->onset_s,
+                       role, d->activity == RT_ACTIVITY_PHASIC  ? "phasic "
+                             : d->activity == RT_ACTIVITY_TONIC ? "tonic "
+                                                                : "");
     if (d->kind == RT_DECISION_ADD && marked(labels, d->activity))
         return fail_at(err, RT_ERR_STAGING, c, d->place,
                        "add at %.10g s on %s: remtone already marked %s activity there",
