@@ -1212,6 +1212,7 @@ static void write_page(html_ctx *c)
     write_summary(c);
     write_overview(c);
     write_indices(c);
+    rt_corrections_write_html(p, c->night);
     write_bouts(c);
     write_evidence(c);
     write_quality(c);

@@ -89,4 +89,9 @@ void rt_svg_text(rt_page *p, double x, double y, const char *anchor, const char 
 
 /* Times, evidence order and file names: report_internal.h. */
 
+struct rt_night;
+/* The page's "Corrections" section of a corrected night (corrections_html.c);
+ * nothing for a night not corrected. */
+void rt_corrections_write_html(rt_page *p, const struct rt_night *night);
+
 #endif

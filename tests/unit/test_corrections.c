@@ -395,6 +395,19 @@ static void rescoring_is_idempotent(void **state)
     assert_int_equal(a->level, b->level);
     rt_night *c = corrected_from(f, csv);
     assert_memory_equal(a->index, c->index, sizeof a->index);
+    /* the page shows both (its "Corrections" section), and none without */
+    char page[4200];
+    snprintf(page, sizeof page, "%s/page.html", f->dir);
+    rt_report_options ro = {0};
+    assert_int_equal(rt_night_write_html(a, f->rec, f->tl, &ro, page, &err), RT_OK);
+    char *html = rt_test_read_all(page, &l1);
+    assert_non_null(strstr(html, "<section id=\"corrections\"><h2>Corrections</h2>"));
+    assert_non_null(strstr(html, "Reviewed by " REVIEWER));
+    free(html);
+    assert_int_equal(rt_night_write_html(automatic, f->rec, f->tl, &ro, page, &err), RT_OK);
+    html = rt_test_read_all(page, &l1);
+    assert_null(strstr(html, "id=\"corrections\""));
+    free(html);
     assert_memory_equal(a->corrections->labels, c->corrections->labels, a->n_minis3 * RT_ROLE_COUNT);
     /* once only: a second correction is a usage error and changes nothing */
     rt_corrections *again = NULL;
