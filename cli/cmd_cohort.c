@@ -9,7 +9,7 @@
 #include "remtone/cohort.h"
 
 enum { KEY_OUT = 1, KEY_JOBS, KEY_FORCE, KEY_PART, KEY_CUTOFFS, KEY_POSITIVE, KEY_NEGATIVE,
-       KEY_QUIET, KEY_MIN_REM, KEY_THREADS };
+       KEY_QUIET, KEY_MIN_REM, KEY_THREADS, KEY_CALIBRATE_CORRECTED };
 
 static const cli_option OPTIONS[] = {
     {"out", 1, KEY_OUT, "DIR", "output folder (created when missing; required)"},
@@ -22,6 +22,8 @@ static const cli_option OPTIONS[] = {
     {"cutoffs", 1, KEY_CUTOFFS, "FILE", "a lab's own cutoffs (CSV index,cutoff)"},
     {"positive", 1, KEY_POSITIVE, "GROUP", "group of the positive class for calibration (default case)"},
     {"negative", 1, KEY_NEGATIVE, "GROUP", "group of the negative class (default control)"},
+    {"calibrate-corrected", 0, KEY_CALIBRATE_CORRECTED, NULL, "calibrate on the corrected values "
+     "of nights with a corrections file (default: remtone's automatic values)"},
     {"min-rem", 1, KEY_MIN_REM, "MIN", "least scorable REM minutes for an assessable night (default 5)"},
     {"quiet", 0, KEY_QUIET, NULL, "no progress line and no summary"},
     {0},
@@ -31,6 +33,8 @@ static const cli_option MERGE_OPTIONS[] = {
     {"cutoffs", 1, KEY_CUTOFFS, "FILE", "cutoffs the run used (tabulated besides the published ones)"},
     {"positive", 1, KEY_POSITIVE, "GROUP", "group of the positive class (default case)"},
     {"negative", 1, KEY_NEGATIVE, "GROUP", "group of the negative class (default control)"},
+    {"calibrate-corrected", 0, KEY_CALIBRATE_CORRECTED, NULL, "calibrate on the corrected values "
+     "of nights with a corrections file (default: remtone's automatic values)"},
     {"quiet", 0, KEY_QUIET, NULL, "no summary"},
     {0},
 };
@@ -72,6 +76,7 @@ static int on_option(void *ctx, int key, const char *arg)
     case KEY_CUTOFFS: c->o.cutoffs_path = arg; break;
     case KEY_POSITIVE: c->o.positive = arg; break;
     case KEY_NEGATIVE: c->o.negative = arg; break;
+    case KEY_CALIBRATE_CORRECTED: c->o.calibrate_corrected = true; break;
     case KEY_QUIET: c->quiet = 1; break;
     case KEY_PART: return parse_part(c, arg);
     case KEY_JOBS:

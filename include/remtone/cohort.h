@@ -43,6 +43,8 @@ typedef struct rt_manifest_entry {
     char *stages;             /* resolved path; NULL = the recording's own annotations */
     char *events;             /* resolved path; NULL when none */
     char *role_override[RT_ROLE_COUNT]; /* per-row role overrides ("LABEL" or "A-B"); NULL = detect */
+    char *corrections;        /* resolved path of a reviewer's decisions (docs/corrections.md);
+                                 NULL when none */
     long line;                /* manifest line of the row */
 } rt_manifest_entry;
 
@@ -56,7 +58,8 @@ typedef struct rt_manifest {
  * (events and group may be empty; stages may be empty to use the recording's
  * EDF+ annotations) and optional columns named after roles (`chin`,
  * `arm-left`, `arm-right`, `leg-left`, `leg-right`, `ecg`) that override
- * detection for that night. Relative paths resolve against the manifest's
+ * detection for that night, and an optional `corrections` column: a file of
+ * a reviewer's decisions rescoring that night (docs/corrections.md). Relative paths resolve against the manifest's
  * folder. Errors name the file and line: a missing input file (RT_ERR_IO), a
  * duplicate id (compared case-insensitively, as some file systems do), an id
  * that is not a safe file name, a malformed row, an empty manifest
@@ -103,6 +106,8 @@ typedef struct rt_cohort_options {
     rt_score_params params;    /* scoring parameters (rt_score_params_default) */
     const char *positive;      /* calibration: group of the positive class, default "case" */
     const char *negative;      /* calibration: group of the negative class, default "control" */
+    bool calibrate_corrected;  /* calibrate on the corrected values of corrected nights
+                                  (docs/corrections.md); default: remtone's automatic values */
     rt_cohort_progress_fn progress; /* called about every progress_interval_s and at the end */
     void *progress_user;
     double progress_interval_s;     /* default 0.5 */

@@ -15,7 +15,8 @@
 #include "internal.h"
 #include "table.h"
 
-enum { COL_ID = 0, COL_RECORDING, COL_STAGES, COL_EVENTS, COL_GROUP, COL_ROLE0 };
+enum { COL_ID = 0, COL_RECORDING, COL_STAGES, COL_EVENTS, COL_GROUP, COL_ROLE0,
+       COL_CORRECTIONS = COL_ROLE0 + RT_ROLE_COUNT };
 
 typedef struct loader {
     rt_manifest *m;
@@ -92,6 +93,7 @@ static void entry_free(rt_manifest_entry *e)
     free(e->recording);
     free(e->stages);
     free(e->events);
+    free(e->corrections);
     for (int r = 0; r < RT_ROLE_COUNT; r++)
         free(e->role_override[r]);
     memset(e, 0, sizeof *e);
@@ -160,6 +162,8 @@ static void on_row(rt_table *t, char **v)
         ok = resolve(t, l, e.id, "stages", v[COL_STAGES], &e.stages) == RT_OK;
     if (ok && v[COL_EVENTS][0])
         ok = resolve(t, l, e.id, "events", v[COL_EVENTS], &e.events) == RT_OK;
+    if (ok && v[COL_CORRECTIONS][0])
+        ok = resolve(t, l, e.id, "corrections", v[COL_CORRECTIONS], &e.corrections) == RT_OK;
     for (int r = 0; ok && r < RT_ROLE_COUNT; r++) {
         if (v[COL_ROLE0 + r][0] && !(e.role_override[r] = strdup(v[COL_ROLE0 + r]))) {
             rt_table_fail(t, rt_fail(&t->error, RT_ERR_NOMEM, "%s: out of memory", t->path));
@@ -212,7 +216,9 @@ rt_status rt_manifest_load(const char *path, rt_manifest **out, rt_error *err)
         t.columns[COL_ROLE0 + r] = rt_role_name((rt_role)r);
         t.optional[COL_ROLE0 + r] = true;
     }
-    t.n_columns = COL_ROLE0 + RT_ROLE_COUNT;
+    t.columns[COL_CORRECTIONS] = "corrections";
+    t.optional[COL_CORRECTIONS] = true;
+    t.n_columns = COL_CORRECTIONS + 1;
     t.on_row = on_row;
     t.user = &l;
     rt_status st = rt_table_read(&t, err);

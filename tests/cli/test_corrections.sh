@@ -83,6 +83,33 @@ check late-refused 5 "$bin" score "$n/night.edf" --stages "$n/stages.csv" --corr
 has late-place "$work/err" "late.csv line 2: confirm at 99999 s is past the end of the recording"
 check missing 3 "$bin" score "$n/night.edf" --stages "$n/stages.csv" --corrections "$work/none.csv"
 check same-as-output 2 "$bin" score "$n/night.edf" --stages "$n/stages.csv" --corrections "$work/c.csv" --minis "$work/c.csv"
+# cohorts: an optional corrections column; cohort.csv holds both values; the
+# corrections file's identity is part of the resume key
+printf 'id,recording,stages,events,group,corrections\nA,n/night.edf,n/stages.csv,,case,c.csv\nB,n/night.edf,n/stages.csv,,control,\n' >"$work/manifest.csv"
+check cohort 0 "$bin" cohort "$work/manifest.csv" --out "$work/co" --jobs 1
+check cohort-table 0 "$py" -c '
+import csv, json, sys
+rows = {r["id"]: r for r in csv.DictReader(open(sys.argv[1]))}
+b = json.load(open(sys.argv[2]))
+a, n = rows["A"], rows["B"]
+assert a["corrected"] == "true" and n["corrected"] == "false", (a["corrected"], n["corrected"])
+ix = "sinbar.chin_phasic_3s"
+assert float(a[ix]) == b["indices"][ix]["value"] and float(a["automatic:" + ix]) == b["corrections"]["automatic"]["indices"][ix]["value"]
+assert n[ix] == n["automatic:" + ix] == a["automatic:" + ix]' "$work/co/cohort.csv" "$work/b.json"
+check cohort-current 0 "$bin" cohort "$work/manifest.csv" --out "$work/co" --jobs 1
+has cohort-resumed "$work/out" "0 scored, 2 already current"
+sed -i 's/Tech B/Tech C/' "$work/c.csv"
+check cohort-changed 0 "$bin" cohort "$work/manifest.csv" --out "$work/co" --jobs 1
+has cohort-rescored "$work/out" "1 scored, 1 already current"
+# one case, one control: on remtone's values the case's chin phasic index
+# equals the control's (the same night), an AUC of 0.5 (a tie counts one
+# half: Hanley and McNeil 1982); on the corrected values the case is higher
+auc() { "$py" -c '
+import csv, sys
+print([r for r in csv.DictReader(open(sys.argv[1])) if r["index"] == "sinbar.chin_phasic_3s"][0]["auc"])' "$work/co/calibration.csv"; }
+if [ "$(auc)" = "0.5" ]; then echo "ok   calibrate-automatic"; else echo "FAIL calibrate-automatic: auc $(auc)"; fails=$((fails+1)); fi
+check cohort-calibrate-corrected 0 "$bin" cohort-merge "$work/co" --calibrate-corrected
+if [ "$(auc)" = "1" ]; then echo "ok   calibrate-corrected"; else echo "FAIL calibrate-corrected: auc $(auc)"; fails=$((fails+1)); fi
 check help 0 "$bin" score --help
 has help-corrections "$work/out" "--corrections FILE"
 echo "$fails failure(s)"
