@@ -69,6 +69,9 @@ typedef struct rt_decision {
 typedef struct rt_corrections {
     char path[4096];         /* the file read */
     char place_word[16];     /* "line" or "annotation": how `place` counts */
+    bool timed;              /* an EDF+ file: its onsets count from `start`, which must be the
+                                recording's start (rt_night_correct checks it) */
+    rt_clock_time start;
     size_t n;
     rt_decision *decisions;  /* in the file's order */
 } rt_corrections;

@@ -350,11 +350,16 @@ static rt_status review_line(rt_corrections *c, const char *text, long place, re
                              rt_error *err)
 {
     /* "review by NAME" keeps the name's own spacing after "by " */
-    const char *p = text + strlen("review");
+    const char *p = text;
     while (*p == ' ')
         p++;
-    bool by = strncmp(p, "by ", 3) == 0 || strncmp(p, "BY ", 3) == 0;
-    bool at = strncmp(p, "at ", 3) == 0 || strncmp(p, "AT ", 3) == 0;
+    p += strlen("review");
+    while (*p == ' ')
+        p++;
+    char word[3] = {p[0], p[0] ? p[1] : '\0', '\0'};
+    bool spaced = p[0] && p[1] && p[2] == ' ';
+    bool by = spaced && rt_equal_nocase(word, "by");
+    bool at = spaced && rt_equal_nocase(word, "at");
     if (!by && !at)
         return fail_at(err, RT_ERR_STAGING, c, place,
                        "\"%s\": a review annotation is \"review by NAME\" or \"review at TIME\"",
@@ -426,6 +431,8 @@ static rt_status load_edf(rt_corrections *c, rt_error *err)
     if (st != RT_OK)
         return st;
     size_t n = rt_recording_annotation_count(rec);
+    c->timed = true;
+    c->start = rt_recording_start(rec);
     review_header h;
     memset(&h, 0, sizeof h);
     rt_decision *found = rt_calloc(n + 1, sizeof *found);
@@ -441,7 +448,8 @@ static rt_status load_edf(rt_corrections *c, rt_error *err)
         rt_trim(lead);
         if (strncmp(lead, "remtone ", 8) == 0)
             continue; /* remtone's own detections */
-        if (rt_equal_nocase(strtok(lead, " "), "review"))
+        lead[strcspn(lead, " \t")] = '\0';
+        if (rt_equal_nocase(lead, "review"))
             st = review_line(c, a->text, (long)i + 1, &h, err);
         else
             st = annotation_decision(c, a, (long)i + 1, &found[n_found++], err);
@@ -837,6 +845,16 @@ rt_status rt_night_correct(rt_night *night, const rt_timeline *tl, const rt_corr
         return rt_fail(err, RT_ERR_USAGE, "rt_night_correct: NULL argument");
     if (night->corrections)
         return rt_fail(err, RT_ERR_USAGE, "%s: the night is corrected already", c->path);
+    const rt_clock_time *a = &c->start, *b = &night->start;
+    if (c->timed && (a->year != b->year || a->month != b->month || a->day != b->day ||
+                     a->hour != b->hour || a->minute != b->minute || a->second != b->second ||
+                     fabs(a->subsecond - b->subsecond) > 1e-3))
+        return fail_at(err, RT_ERR_STAGING, c, 0,
+                       "starts at %04d-%02d-%02d %02d:%02d:%06.3f, the recording at "
+                       "%04d-%02d-%02d %02d:%02d:%06.3f: its onsets would land on other "
+                       "mini-epochs", a->year, a->month, a->day, a->hour, a->minute,
+                       a->second + a->subsecond, b->year, b->month, b->day, b->hour, b->minute,
+                       b->second + b->subsecond);
     rt_night_corrections *nc = rt_calloc(1, sizeof *nc);
     if (!nc)
         return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", c->path);

@@ -191,13 +191,23 @@ static void write_csv(const fixture *f, const rt_night *night, const char *path)
     assert_int_equal(fclose(out), 0);
 }
 
-static void write_edf(const fixture *f, const char *path)
+/* An annotation-only EDF+ header starting with the recording, or shift_s
+ * seconds later. */
+static rt_edf_writer_header header_of(const fixture *f, int shift_s)
+{
+    rt_clock_time t = rt_recording_start(f->rec);
+    return (rt_edf_writer_header){.year = t.year, .month = t.month, .day = t.day, .hour = t.hour,
+                                  .minute = t.minute, .second = t.second + shift_s,
+                                  .subsecond = t.subsecond};
+}
+
+static void write_edf(const fixture *f, const char *path, int shift_s)
 {
     rt_error err;
-    rt_edf_writer_header h = {.year = 2026, .month = 12, .day = 1, .hour = 22, .minute = 30};
+    rt_edf_writer_header h = header_of(f, shift_s);
     rt_edf_writer *w = NULL;
     assert_int_equal(rt_edf_writer_begin(&w, path, &h, NULL, 0, &err), RT_OK);
-    assert_int_equal(rt_edf_writer_annotation(w, 0, -1, "review by " REVIEWER, &err), RT_OK);
+    assert_int_equal(rt_edf_writer_annotation(w, 0, -1, "Review  BY " REVIEWER, &err), RT_OK);
     assert_int_equal(rt_edf_writer_annotation(w, 0, -1, "review at " WHEN, &err), RT_OK);
     /* remtone's own detection texts are passed over */
     assert_int_equal(rt_edf_writer_annotation(w, 5, 1, "remtone phasic aasm chin", &err), RT_OK);
@@ -313,7 +323,7 @@ static void three_sources_give_the_truth(void **state)
     snprintf(edf, sizeof edf, "%s/decisions.edf", f->dir);
     snprintf(xml, sizeof xml, "%s/scoring.xml", f->dir);
     write_csv(f, automatic, csv);
-    write_edf(f, edf);
+    write_edf(f, edf, 0);
     write_xml(f, xml);
 
     size_t num[4], den;
@@ -523,7 +533,7 @@ static void bad_decisions_are_refused(void **state)
     rt_error err;
     char edf[4200];
     snprintf(edf, sizeof edf, "%s/bad.edf", f->dir);
-    rt_edf_writer_header h = {.year = 2026, .month = 12, .day = 1, .hour = 22, .minute = 30};
+    rt_edf_writer_header h = header_of(f, 0);
     rt_edf_writer *w = NULL;
     assert_int_equal(rt_edf_writer_begin(&w, edf, &h, NULL, 0, &err), RT_OK);
     assert_int_equal(rt_edf_writer_annotation(w, 0, -1, "review by A", &err), RT_OK);
@@ -541,6 +551,18 @@ static void bad_decisions_are_refused(void **state)
     assert_int_equal(rt_edf_writer_finish(w, &err), RT_OK);
     assert_int_equal(rt_corrections_load(edf, &c, &err), RT_ERR_STAGING);
     assert_non_null(strstr(err.message, "is not a decision"));
+    /* a file starting 2 s after the recording: its onsets would land on
+     * other mini-epochs */
+    rt_night *night2 = score(f);
+    make_plan(f, night2);
+    write_edf(f, edf, 2);
+    assert_int_equal(rt_corrections_load(edf, &c, &err), RT_OK);
+    assert_int_equal(rt_night_correct(night2, f->tl, c, &err), RT_ERR_STAGING);
+    assert_non_null(strstr(err.message, "the recording at"));
+    assert_null(night2->corrections);
+    rt_corrections_free(c);
+    c = NULL;
+    rt_night_free(night2);
 
     /* XML: the schema's line */
     char xml[4200];
