@@ -690,6 +690,20 @@ static void kappa_by_hand(void **state)
     json_decref(j);
     rt_corrections_free(c);
     rt_night_free(night);
+
+    /* a channel the night does not have: refused with its line */
+    night = hand_night();
+    path = rt_test_text_file(dir, "absent.csv",
+                             "elapsed_s,role,decision,reason,reviewer,decided_at\n"
+                             "600,chin,confirm,,R,2026-12-01\n"
+                             "603,arm-left,add-phasic,,R,2026-12-01\n");
+    assert_int_equal(rt_corrections_load(path, &c, &err), RT_OK);
+    assert_int_equal(rt_night_correct(night, NULL, c, &err), RT_ERR_STAGING);
+    assert_non_null(strstr(err.message, "absent.csv line 3"));
+    assert_non_null(strstr(err.message, "the night has no arm-left channel"));
+    assert_null(night->corrections);
+    rt_corrections_free(c);
+    rt_night_free(night);
 }
 
 int main(void)
