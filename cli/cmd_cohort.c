@@ -10,7 +10,7 @@
 #include "remtone/cohort.h"
 
 enum { KEY_OUT = 1, KEY_JOBS, KEY_FORCE, KEY_PART, KEY_CUTOFFS, KEY_POSITIVE, KEY_NEGATIVE,
-       KEY_QUIET, KEY_MIN_REM, KEY_THREADS, KEY_PAGES, KEY_PER_SUBJECT };
+       KEY_QUIET, KEY_MIN_REM, KEY_THREADS, KEY_PAGES, KEY_PER_SUBJECT, KEY_CALIBRATE_CORRECTED };
 
 static const cli_option OPTIONS[] = {
     {"out", 1, KEY_OUT, "DIR", "output folder (created when missing; required)"},
@@ -25,6 +25,8 @@ static const cli_option OPTIONS[] = {
     {"cutoffs", 1, KEY_CUTOFFS, "FILE", "a lab's own cutoffs (CSV index,cutoff)"},
     {"positive", 1, KEY_POSITIVE, "GROUP", "group of the positive class for calibration (default case)"},
     {"negative", 1, KEY_NEGATIVE, "GROUP", "group of the negative class (default control)"},
+    {"calibrate-corrected", 0, KEY_CALIBRATE_CORRECTED, NULL, "calibrate on the corrected values "
+     "of nights with a corrections file (default: remtone's automatic values)"},
     {"min-rem", 1, KEY_MIN_REM, "MIN", "least scorable REM minutes for an assessable night (default 5)"},
     {"per-subject", 0, KEY_PER_SUBJECT, NULL, "calibrate on subjects (each one's mean), not nights"},
     CLI_EXCLUSION_OPTIONS,
@@ -37,6 +39,8 @@ static const cli_option MERGE_OPTIONS[] = {
     {"positive", 1, KEY_POSITIVE, "GROUP", "group of the positive class (default case)"},
     {"negative", 1, KEY_NEGATIVE, "GROUP", "group of the negative class (default control)"},
     {"per-subject", 0, KEY_PER_SUBJECT, NULL, "calibrate on subjects (each one's mean), not nights"},
+    {"calibrate-corrected", 0, KEY_CALIBRATE_CORRECTED, NULL, "calibrate on the corrected values "
+     "of nights with a corrections file (default: remtone's automatic values)"},
     {"quiet", 0, KEY_QUIET, NULL, "no summary"},
     {0},
 };
@@ -83,6 +87,7 @@ static int on_option(void *ctx, int key, const char *arg)
     case KEY_CUTOFFS: c->o.cutoffs_path = arg; break;
     case KEY_POSITIVE: c->o.positive = arg; c->o.groups_given = true; break;
     case KEY_NEGATIVE: c->o.negative = arg; c->o.groups_given = true; break;
+    case KEY_CALIBRATE_CORRECTED: c->o.calibrate_corrected = true; break;
     case KEY_QUIET: c->quiet = 1; break;
     case KEY_PART: return parse_part(c, arg);
     case KEY_JOBS:

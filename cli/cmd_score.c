@@ -10,7 +10,7 @@
 enum {
     KEY_STAGES = 1, KEY_EVENTS, KEY_JSON, KEY_CUTOFFS, KEY_MIN_REM, KEY_QUIET,
     KEY_HTML, KEY_MINIS, KEY_ANNOTATIONS, KEY_SHOW_IDENTITY, KEY_RECORDING_ID, KEY_THREADS,
-    KEY_PERIODS, KEY_AGE, KEY_SEX
+    KEY_PERIODS, KEY_AGE, KEY_SEX, KEY_CORRECTIONS
 };
 
 static const cli_option OPTIONS[] = {
@@ -29,6 +29,9 @@ static const cli_option OPTIONS[] = {
     {"sex", 1, KEY_SEX, "F|M", "the person's sex, for the norms (context only)"},
     {"show-identity", 0, KEY_SHOW_IDENTITY, NULL, "show the recording header's patient fields and date in the report"},
     {"recording-id", 1, KEY_RECORDING_ID, "ID", "name the recording in the report (default: its file name)"},
+    {"corrections", 1, KEY_CORRECTIONS, "FILE", "rescore with a reviewer's decisions: the mini-epoch "
+     "table CSV with its decision columns filled, an EDF+ annotation file or an XML scoring "
+     "file with <corrections> (told by content; docs/corrections.md)"},
     {"threads", 1, KEY_THREADS, "N", "score with N threads, 1 to 256 (default: the processor cores "
                                      "available; the result is the same for any N)"},
     CLI_ROLE_OPTIONS,
@@ -37,7 +40,7 @@ static const cli_option OPTIONS[] = {
 
 typedef struct score_config {
     const char *stages, *events, *json, *cutoffs, *labels;
-    const char *html, *minis, *annotations, *periods;
+    const char *html, *minis, *annotations, *periods, *corrections;
     rt_report_options report;
     double age;              /* NaN: not given */
     char sex;                /* 0: not given */
@@ -66,6 +69,7 @@ static int on_option(void *ctx, int key, const char *arg)
     case KEY_HTML: c->html = arg; break;
     case KEY_MINIS: c->minis = arg; break;
     case KEY_ANNOTATIONS: c->annotations = arg; break;
+    case KEY_CORRECTIONS: c->corrections = arg; break;
     case KEY_PERIODS: c->periods = arg; break;
     case KEY_AGE:
         c->age = strtod(arg, &end);
@@ -110,6 +114,7 @@ typedef struct loaded {
     rt_timeline *tl;
     rt_role_map roles;
     rt_cutoffs cutoffs;
+    rt_corrections *corrections;
 } loaded;
 
 static rt_status load_inputs(const score_config *c, const char *rec_path, loaded *l, rt_error *err)
@@ -133,6 +138,8 @@ static rt_status load_inputs(const score_config *c, const char *rec_path, loaded
         st = rt_timeline_check(l->tl, rt_recording_duration_s(l->rec), err);
     if (st == RT_OK)
         st = rt_roles_resolve(l->rec, &c->roles, &l->roles, err);
+    if (st == RT_OK && c->corrections)
+        st = rt_corrections_load(c->corrections, &l->corrections, err);
     return st;
 }
 
@@ -149,7 +156,7 @@ static int run(int argc, char **argv)
     int rc = cli_parse(&CLI_SCORE, argc, argv, on_option, &c, pos, 1, &npos);
     if (rc != EXIT_OK)
         return rc < 0 ? EXIT_OK : rc;
-    const char *inputs[] = {pos[0], c.stages, c.events, c.cutoffs, c.labels};
+    const char *inputs[] = {pos[0], c.stages, c.events, c.cutoffs, c.labels, c.corrections};
     size_t n_inputs = sizeof inputs / sizeof inputs[0];
     const cli_output outputs[] = {{"json", c.json}, {"html", c.html}, {"minis", c.minis},
                                   {"annotations", c.annotations}, {"periods", c.periods}};
@@ -169,6 +176,9 @@ static int run(int argc, char **argv)
         st = rt_night_score_threads(l.rec, &l.roles, l.tl, &c.params, &l.cutoffs, c.threads,
                                     &night, &err);
     }
+    /* the norms place the indices the night ends with: the corrected ones */
+    if (st == RT_OK && l.corrections)
+        st = rt_night_correct(night, l.tl, l.corrections, &err);
     if (st == RT_OK && (!isnan(c.age) || c.sex))
         st = rt_night_place_norms(night, c.age, c.sex, &err);
     if (st == RT_OK && !c.quiet && !(c.json && strcmp(c.json, "-") == 0) &&
@@ -176,7 +186,7 @@ static int run(int argc, char **argv)
         !(c.periods && strcmp(c.periods, "-") == 0))
         st = rt_night_write_text(night, stdout, &err);
     if (st == RT_OK && c.json) {
-        rt_run_inputs in = {pos[0], c.stages, c.events, c.cutoffs, c.labels};
+        rt_run_inputs in = {pos[0], c.stages, c.events, c.cutoffs, c.labels, c.corrections};
         st = rt_night_write_json(night, &in, c.json, &err);
         output_error = 1;
     }
@@ -197,6 +207,7 @@ static int run(int argc, char **argv)
         output_error = 1;
     }
     rt_night_free(night);
+    rt_corrections_free(l.corrections);
     rt_timeline_free(l.tl);
     rt_labelmap_free(l.labels);
     rt_recording_close(l.rec);

@@ -93,6 +93,35 @@ def manifests():
         "Chin1-Chin2,LAT\n")
 
 
+def corrections():
+    """A reviewer's decisions (docs/corrections.md) in the three forms."""
+    put("corrections", "table.csv",
+        "elapsed_s,role,decision,reason,reviewer,decided_at\n"
+        "600,chin,confirm,,Tech A,2026-12-01\n"
+        "603,chin,reject-phasic,artifact,Tech A,2026-12-01T09:30\n"
+        "606,arm-left,add-tonic,,Tech A,2026-12-01 09:30:15\n"
+        "609,chin,exclude,arousal,Tech A,2026-12-01\n"
+        "612,leg-right,exclude,arousal,Tech A,2026-12-01\n")
+    put("corrections", "scoring.xml",
+        '<remtone-scoring version="1">\n'
+        '  <stages><epochs start-epoch="0">W N2 R R</epochs></stages>\n'
+        '  <corrections>\n'
+        '    <decision kind="reject" activity="phasic" role="chin" onset-s="63" reason="artifact" '
+        'reviewer="Tech A" at="2026-12-01T09:30:00"/>\n'
+        '    <decision kind="add" activity="tonic" role="chin" onset-s="66" reviewer="Tech A" '
+        'at="2026-12-01"/>\n'
+        '    <decision kind="exclude" onset-s="70" end-s="80.5" reason="other" reviewer="Tech A" '
+        'at="2026-12-01"/>\n'
+        '  </corrections>\n'
+        '</remtone-scoring>\n')
+    put("corrections", "annotations.edf",
+        ew.edf_bytes([], 3, record_s=30, plus=True,
+                     annotations=[(0, None, "review by Tech A"), (0, None, "review at 2026-12-01T09:30"),
+                                  (61.5, None, "reject phasic chin artifact"),
+                                  (64, None, "add tonic arm-left"), (67, None, "confirm chin"),
+                                  (70, 10.5, "exclude arousal"), (72, 1, "remtone phasic aasm chin")]))
+
+
 if __name__ == "__main__":
     recordings()
     annotations()
@@ -101,3 +130,4 @@ if __name__ == "__main__":
     cutoffs()
     xml()
     manifests()
+    corrections()

@@ -50,6 +50,8 @@ typedef struct rt_manifest_entry {
     char *role_override[RT_ROLE_COUNT]; /* per-row role overrides ("LABEL" or "A-B"); NULL = detect */
     double age_years;         /* optional `age` column: NaN when not given */
     char sex;                 /* optional `sex` column: 'F', 'M', or 0 when not given */
+    char *corrections;        /* resolved path of a reviewer's decisions (docs/corrections.md);
+                                 NULL when none */
     long line;                /* manifest line of the row */
 } rt_manifest_entry;
 
@@ -66,7 +68,8 @@ typedef struct rt_manifest {
  * sites), `age` (years) and `sex` (F or M) that place the night's indices
  * against the norms, and optional columns named after roles (`chin`,
  * `arm-left`, `arm-right`, `leg-left`, `leg-right`, `ecg`) that override
- * detection for that night. Relative paths resolve against the manifest's
+ * detection for that night, and an optional `corrections` column: a file of
+ * a reviewer's decisions rescoring that night (docs/corrections.md). Relative paths resolve against the manifest's
  * folder. Errors name the file and line: a missing input file (RT_ERR_IO), a
  * duplicate id (compared case-insensitively, as some file systems do), an id
  * that is not a safe file name, a malformed row, an empty manifest
@@ -124,6 +127,8 @@ typedef struct rt_cohort_options {
     bool groups_given;         /* the user named the groups: a named group that no night of
                                   the table has is then an error (RT_ERR_STAGING) and nothing
                                   is written; otherwise it only means no calibration */
+    bool calibrate_corrected;  /* calibrate on the corrected values of corrected nights
+                                  (docs/corrections.md); default: remtone's automatic values */
     rt_cohort_progress_fn progress; /* called about every progress_interval_s and at the end */
     void *progress_user;
     double progress_interval_s;     /* default 0.5 */

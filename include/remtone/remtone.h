@@ -10,6 +10,7 @@
 #include "remtone/timeline.h"
 #include "remtone/synth.h"
 #include "remtone/score.h"
+#include "remtone/corrections.h"
 #include "remtone/report.h"
 #include "remtone/cohort.h"
 #include "remtone/quality.h"

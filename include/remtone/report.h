@@ -32,6 +32,7 @@ typedef struct rt_run_inputs {
     const char *events;
     const char *cutoffs;
     const char *label_map;
+    const char *corrections;   /* a reviewer's decisions (docs/corrections.md) */
 } rt_run_inputs;
 
 /* The night result, schema "remtone-night/3" (docs/night-json.md). */

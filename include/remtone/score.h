@@ -218,8 +218,14 @@ typedef struct rt_mini {
     unsigned char labels[RT_ROLE_COUNT];/* RT_LABEL_* per role (ECG unused) */
     float envelope_uv[RT_ROLE_COUNT];   /* median rectified envelope, uV */
     float background_uv[RT_ROLE_COUNT]; /* median background, uV */
-    unsigned excluded_by;               /* bit set of rt_event_type that excluded it */
+    unsigned excluded_by;               /* bit set of rt_event_type that excluded it, and
+                                           RT_EXCLUDED_BY_REVIEW */
 } rt_mini;
+
+/* The bit of rt_mini.excluded_by set by a reviewer's exclusion (corrections.h). */
+#define RT_EXCLUDED_BY_REVIEW (1u << 14)
+
+struct rt_night_corrections;
 
 typedef struct rt_epoch_result {
     size_t epoch;          /* epoch index in the timeline */
@@ -368,6 +374,8 @@ typedef struct rt_exclusion_summary {
                                             (a mini-epoch counts once, for its first cause) */
     double total_minutes;                /* REM minutes left out by any event */
     double outside_lights_minutes;       /* REM minutes outside lights-off .. lights-on */
+    double review_minutes;               /* REM minutes a reviewer's exclusions left out
+                                            (corrections.h); counted in total_minutes */
     bool have_respiratory;               /* respiratory events were given */
     double rem_ahi;                      /* apneas + hypopneas per hour of REM; NaN if none given */
     double rem_leg_movements_per_h;      /* limb-movement events in REM per hour; NaN if none */
@@ -504,6 +512,12 @@ typedef struct rt_night {
     rt_person person;                    /* rt_night_place_norms; not given by default */
     bool norms_placed;                   /* rt_night_place_norms was called */
     rt_norm_place norms[RT_IX_COUNT];    /* each index against its norm */
+    /* NULL, or a reviewer's decisions applied (rt_night_correct,
+     * remtone/corrections.h): then index, level, reasons, reservations,
+     * exclusions and scorable_minutes are the corrected ones, and this holds
+     * the automatic values and what changed. minis3, minis2, epochs and
+     * bursts stay remtone's own detections. */
+    struct rt_night_corrections *corrections;
 } rt_night;
 
 /* Scores one night. cutoffs may be NULL (published); params may be NULL

@@ -52,7 +52,10 @@ typedef struct cohort_row {
                                     remtone-night/1 result, which had none to give) */
     double rem_minutes;          /* NaN for a failed night */
     double scorable_minutes;
-    double value[RT_IX_COUNT];   /* NaN when not computed or failed */
+    double value[RT_IX_COUNT];   /* NaN when not computed or failed; the corrected values of a
+                                    corrected night (its level comes from them) */
+    bool corrected;              /* scored with a reviewer's corrections */
+    double automatic[RT_IX_COUNT]; /* remtone's own values (= value when not corrected) */
     long warnings;               /* -1 for a failed night */
     char *warning_texts;         /* the warnings joined by " | " (NULL: none); owned */
     char error[512];             /* the failure message */

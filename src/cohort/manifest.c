@@ -20,8 +20,8 @@
 
 enum {
     COL_ID = 0, COL_RECORDING, COL_STAGES, COL_EVENTS, COL_GROUP,
-    COL_SUBJECT, COL_VISIT, COL_LABEL_MAP, COL_CUTOFFS, COL_AGE, COL_SEX, /* optional */
-    COL_ROLE0
+    COL_SUBJECT, COL_VISIT, COL_LABEL_MAP, COL_CUTOFFS, COL_AGE, COL_SEX, COL_CORRECTIONS,
+    COL_ROLE0 /* the optional columns from COL_SUBJECT on */
 };
 
 typedef struct loader {
@@ -101,6 +101,7 @@ static void entry_free(rt_manifest_entry *e)
     free(e->events);
     free(e->label_map);
     free(e->cutoffs);
+    free(e->corrections);
     for (int r = 0; r < RT_ROLE_COUNT; r++)
         free(e->role_override[r]);
     memset(e, 0, sizeof *e);
@@ -200,6 +201,8 @@ static void on_row(rt_table *t, char **v)
         ok = resolve(t, l, e.id, "label map", v[COL_LABEL_MAP], &e.label_map) == RT_OK;
     if (ok && v[COL_CUTOFFS][0])
         ok = resolve(t, l, e.id, "cutoffs", v[COL_CUTOFFS], &e.cutoffs) == RT_OK;
+    if (ok && v[COL_CORRECTIONS][0])
+        ok = resolve(t, l, e.id, "corrections", v[COL_CORRECTIONS], &e.corrections) == RT_OK;
     for (int r = 0; ok && r < RT_ROLE_COUNT; r++) {
         if (v[COL_ROLE0 + r][0] && !(e.role_override[r] = strdup(v[COL_ROLE0 + r]))) {
             rt_table_fail(t, rt_fail(&t->error, RT_ERR_NOMEM, "%s: out of memory", t->path));
@@ -248,8 +251,9 @@ rt_status rt_manifest_load(const char *path, rt_manifest **out, rt_error *err)
     t.columns[COL_STAGES] = "stages";
     t.columns[COL_EVENTS] = "events";
     t.columns[COL_GROUP] = "group";
-    static const char *const extra[] = {"subject", "visit", "label_map", "cutoffs", "age", "sex"};
-    for (int k = 0; k < 6; k++) {
+    static const char *const extra[] = {"subject", "visit",  "label_map",  "cutoffs",
+                                        "age",     "sex",    "corrections"};
+    for (int k = 0; k < COL_ROLE0 - COL_SUBJECT; k++) {
         t.columns[COL_SUBJECT + k] = extra[k];
         t.optional[COL_SUBJECT + k] = true;
     }

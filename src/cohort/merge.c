@@ -44,7 +44,7 @@ static cohort_row *new_row(rows *r)
     memset(row, 0, sizeof *row);
     row->rem_minutes = row->scorable_minutes = NAN;
     for (int i = 0; i < RT_IX_COUNT; i++)
-        row->value[i] = NAN;
+        row->value[i] = row->automatic[i] = NAN;
     row->warnings = -1;
     return row;
 }
@@ -148,9 +148,17 @@ static rt_status read_result(const char *dir, const char *id, cohort_row *row, b
                       sizeof row->reservations);
     row->rem_minutes = number_or_nan(json_object_get(rem, "minutes"));
     row->scorable_minutes = number_or_nan(json_object_get(rem, "scorable_minutes"));
-    for (int i = 0; i < RT_IX_COUNT; i++)
-        row->value[i] = number_or_nan(json_object_get(json_object_get(indices, rt_index_rules()[i].id),
-                                                      "value"));
+    /* a corrected night (remtone-night/3) keeps remtone's own values apart */
+    json_t *corr = json_object_get(root, "corrections");
+    row->corrected = json_is_true(json_object_get(corr, "present"));
+    json_t *automatic = json_object_get(json_object_get(corr, "automatic"), "indices");
+    for (int i = 0; i < RT_IX_COUNT; i++) {
+        const char *ix = rt_index_rules()[i].id;
+        row->value[i] = number_or_nan(json_object_get(json_object_get(indices, ix), "value"));
+        row->automatic[i] = row->corrected ? number_or_nan(json_object_get(
+                                                 json_object_get(automatic, ix), "value"))
+                                           : row->value[i];
+    }
     json_t *warnings = json_object_get(root, "warnings");
     row->warnings = json_is_array(warnings) ? (long)json_array_size(warnings) : 0;
     rt_status st = join_texts(warnings, &row->warning_texts, err);
@@ -265,6 +273,9 @@ static rt_status write_table(const char *path, const rows *r, rt_error *err)
     fputs("id,group,subject,visit,flagged,level,reservations,rem_minutes,scorable_minutes", f);
     for (int i = 0; i < RT_IX_COUNT; i++)
         fprintf(f, ",%s", rt_index_rules()[i].id);
+    fputs(",corrected", f);
+    for (int i = 0; i < RT_IX_COUNT; i++)
+        fprintf(f, ",automatic:%s", rt_index_rules()[i].id);
     fputs(",warnings,warning_texts,error\n", f);
     int no_memory = 0; /* text fields go through rt_csv_put_field (src/common/text.h) */
     for (size_t k = 0; k < r->n && !no_memory; k++) {
@@ -285,6 +296,11 @@ static rt_status write_table(const char *path, const rows *r, rt_error *err)
         for (int i = 0; i < RT_IX_COUNT; i++) {
             fputc(',', f);
             cohort_put_number(f, row->value[i]);
+        }
+        fprintf(f, ",%s", row->failed ? "" : row->corrected ? "true" : "false");
+        for (int i = 0; i < RT_IX_COUNT; i++) {
+            fputc(',', f);
+            cohort_put_number(f, row->automatic[i]);
         }
         fputc(',', f);
         if (row->warnings >= 0)
@@ -380,7 +396,7 @@ static rt_status calibrate(const rows *r, const rt_cohort_options *o, cohort_cal
                 s->positives += pos;
                 s->negatives += !pos;
             }
-            values[n] = row->value[i];
+            values[n] = o->calibrate_corrected ? row->value[i] : row->automatic[i];
             positive[n++] = pos;
         }
         st = rt_roc_compute(values, positive, n, rule->lower_is_worse, &cal->roc[i], err);

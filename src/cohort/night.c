@@ -22,6 +22,7 @@
 #include "internal.h"
 #include "report/report_internal.h"
 #include "output.h"
+#include "remtone/corrections.h"
 #include "remtone/report.h"
 #include "remtone/version.h"
 
@@ -86,6 +87,9 @@ static rt_status night_identity(const cohort_shared *s, const rt_manifest_entry 
         st = rt_file_identity_add(id, "cutoffs", night_cutoffs_path(s, e), false, err);
     if (st == RT_OK)
         st = rt_file_identity_add(id, "label_map", night_label_map_path(s, e), false, err);
+    /* a night rescored with other decisions is another result */
+    if (st == RT_OK)
+        st = rt_file_identity_add(id, "corrections", e->corrections, false, err);
     if (st != RT_OK) {
         json_decref(id);
         return st;
@@ -180,6 +184,7 @@ static rt_status score_and_write(const cohort_shared *s, const rt_manifest_entry
     rt_recording *rec = NULL;
     rt_timeline *tl = NULL;
     rt_night *night = NULL;
+    rt_corrections *corrections = NULL;
     rt_role_map roles;
     rt_role_options ro;
     memset(&ro, 0, sizeof ro);
@@ -209,13 +214,19 @@ static rt_status score_and_write(const cohort_shared *s, const rt_manifest_entry
         st = rt_timeline_check(tl, rt_recording_duration_s(rec), err);
     if (st == RT_OK)
         st = rt_roles_resolve(rec, &ro, &roles, err);
+    if (st == RT_OK && e->corrections)
+        st = rt_corrections_load(e->corrections, &corrections, err);
     if (st == RT_OK)
         st = rt_night_score_threads(rec, &roles, tl, &s->options->params, &cutoffs, s->threads,
                                     &night, err);
+    /* the norms place the indices the night ends with: the corrected ones */
+    if (st == RT_OK && corrections)
+        st = rt_night_correct(night, tl, corrections, err);
     if (st == RT_OK && (!isnan(e->age_years) || e->sex))
         st = rt_night_place_norms(night, e->age_years, e->sex, err);
     if (st == RT_OK) {
-        rt_run_inputs in = {e->recording, e->stages, e->events, cut_path, map_path};
+        rt_run_inputs in = {e->recording, e->stages, e->events, cut_path, map_path,
+                            e->corrections};
         st = rt_night_write_json(night, &in, json_path, err);
     }
     if (st == RT_OK && s->options->pages) {
@@ -224,6 +235,7 @@ static rt_status score_and_write(const cohort_shared *s, const rt_manifest_entry
     }
     rt_labelmap_free(map);
     rt_night_free(night);
+    rt_corrections_free(corrections);
     rt_timeline_free(tl);
     rt_recording_close(rec);
     return st;

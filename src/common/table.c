@@ -42,17 +42,26 @@ static long line_of_offset(const unsigned char *s, size_t off)
     return line;
 }
 
+/* stat() of an input, refusing a directory: "PATH: is a directory, not WHAT". */
+static rt_status stat_input(const char *path, const char *what, struct stat *st, rt_error *err)
+{
+    if (stat(path, st) != 0)
+        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
+                       "%s: cannot open: %s", path, strerror(errno));
+    if (S_ISDIR(st->st_mode))
+        return rt_fail(err, RT_ERR_IO, "%s: is a directory, not %s", path, what);
+    return RT_OK;
+}
+
 /* Reads path whole into *out (NUL-terminated, caller frees), after the checks
  * that turn a wrong path into a clear message. */
 static rt_status read_text_file(const char *path, unsigned char **out, size_t *out_len,
                                 rt_error *err)
 {
     struct stat st;
-    if (stat(path, &st) != 0)
-        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
-                       "%s: cannot open: %s", path, strerror(errno));
-    if (S_ISDIR(st.st_mode))
-        return rt_fail(err, RT_ERR_IO, "%s: is a directory, not a table", path);
+    rt_status status = stat_input(path, "a table", &st, err);
+    if (status != RT_OK)
+        return status;
     if (S_ISREG(st.st_mode) && st.st_size > TABLE_MAX_BYTES)
         return rt_fail(err, RT_ERR_STAGING, "%s: %lld bytes is larger than the %ld MiB allowed for a "
                        "table; is this the right file?", path, (long long)st.st_size,
@@ -368,3 +377,33 @@ bool rt_table_number(rt_table *r, const char *value, const char *name, double *o
     return false;
 }
 
+
+rt_status rt_input_sniff(const char *path, const char *what, rt_input_format *format,
+                         rt_error *err)
+{
+    struct stat st;
+    rt_status status = stat_input(path, what, &st, err);
+    if (status != RT_OK)
+        return status;
+    FILE *f = fopen(path, "rb");
+    if (!f)
+        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
+                       "%s: cannot open: %s", path, strerror(errno));
+    unsigned char head[256];
+    size_t n = fread(head, 1, sizeof head, f);
+    int read_error = ferror(f);
+    fclose(f);
+    if (read_error)
+        return rt_fail(err, RT_ERR_IO, "%s: cannot read", path);
+    if (n >= 8 && (memcmp(head, "0       ", 8) == 0 || memcmp(head, "\xff" "BIOSEMI", 8) == 0)) {
+        *format = RT_INPUT_EDF;
+        return RT_OK;
+    }
+    size_t i = 0;
+    if (n >= 3 && memcmp(head, "\xef\xbb\xbf", 3) == 0)
+        i = 3;
+    while (i < n && (head[i] == ' ' || head[i] == '\t' || head[i] == '\r' || head[i] == '\n'))
+        i++;
+    *format = (i < n && head[i] == '<') ? RT_INPUT_XML : RT_INPUT_CSV;
+    return RT_OK;
+}

@@ -56,4 +56,13 @@ bool rt_table_number(rt_table *t, const char *value, const char *name, double *o
 /* Copies src for quoting in a message, cut on a UTF-8 boundary with "...". */
 void rt_table_quote(char *dst, size_t cap, const char *src);
 
+/* The format of an input file told by its first bytes: an EDF/BDF header
+ * ("0       " or "\xffBIOSEMI" in the first 8 bytes), XML (first character
+ * '<' after an optional BOM and white space), or else a CSV table. `what`
+ * names the expected file in the message for a directory ("a staging
+ * file"). RT_ERR_IO (or RT_ERR_NOMEM) when the file cannot be read. */
+typedef enum rt_input_format { RT_INPUT_CSV = 0, RT_INPUT_EDF, RT_INPUT_XML } rt_input_format;
+rt_status rt_input_sniff(const char *path, const char *what, rt_input_format *format,
+                         rt_error *err);
+
 #endif

@@ -67,8 +67,17 @@ void rt_agreement_write_text(const rt_agreement *a, FILE *out)
 {
     if (!a || !a->present || !out)
         return;
-    fprintf(out, "Agreement with the manual scoring%s%s (3-s mini-epochs both scored):\n",
-            a->scorer[0] ? " by " : "", a->scorer);
+    char title[300];
+    snprintf(title, sizeof title, "Agreement with the manual scoring%s%s (3-s mini-epochs both "
+             "scored)", a->scorer[0] ? " by " : "", a->scorer);
+    rt_agreement_write_text_titled(a, title, out);
+}
+
+void rt_agreement_write_text_titled(const rt_agreement *a, const char *title, FILE *out)
+{
+    if (!a || !a->present || !out)
+        return;
+    fprintf(out, "%s:\n", title);
     fprintf(out, "  %-10s %-7s %6s %8s %7s %8s %8s\n", "role", "type", "minis", "agree", "kappa",
             "manual", "remtone");
     int rows = 0;

@@ -1244,6 +1244,7 @@ static void write_page(html_ctx *c)
     write_overview(c);
     write_indices(c);
     rt_html_periods(p, c->night);
+    rt_corrections_write_html(p, c->night);
     write_bouts(c);
     write_evidence(c);
     write_quality(c);

@@ -24,13 +24,13 @@ static double rounded(double v, int decimals)
 }
 
 
-static json_t *indices_json(const rt_night *night)
+json_t *rt_indices_json(const rt_night *night, const rt_index_value *index)
 {
     const rt_index_rule *rules = rt_index_rules();
     bool ok = true;
     json_t *o = json_object();
     for (int i = 0; i < RT_IX_COUNT && ok; i++) {
-        const rt_index_value *v = &night->index[i];
+        const rt_index_value *v = &index[i];
         bool pct = strcmp(rules[i].unit, "%") == 0;
         json_t *x = json_object();
         rt_json_set(x, "value", number(rounded(v->value, pct ? 2 : 4)), &ok);
@@ -175,6 +175,8 @@ static rt_status provenance_json(const rt_night *night, const rt_run_inputs *in,
             st = rt_file_identity_add(inputs, "cutoffs", in->cutoffs, true, err);
         if (st == RT_OK)
             st = rt_file_identity_add(inputs, "label_map", in->label_map, true, err);
+        if (st == RT_OK)
+            st = rt_file_identity_add(inputs, "corrections", in->corrections, true, err);
     }
     if (st != RT_OK) {
         json_decref(inputs);
@@ -210,6 +212,8 @@ static json_t *exclusions_json(const rt_night *night)
                         number(rounded(x->minutes[t], 2)), &ok);
     if (x->outside_lights_minutes > 0)
         rt_json_set(by, "outside-lights", number(rounded(x->outside_lights_minutes, 2)), &ok);
+    if (x->review_minutes > 0)
+        rt_json_set(by, "review", number(rounded(x->review_minutes, 2)), &ok);
     json_t *o = json_object();
     rt_json_set(o, "minutes", number(rounded(x->total_minutes, 2)), &ok);
     rt_json_set(o, "minutes_by_reason", rt_json_done(by, ok), &ok);
@@ -453,7 +457,7 @@ rt_status rt_night_write_json(const rt_night *night, const rt_run_inputs *inputs
     rt_json_set(head, "index", json_string(rt_index_rules()[night->headline].id), &ok);
     rt_json_set(head, "value", number(rounded(night->index[night->headline].value, 2)), &ok);
     rt_json_set(root, "headline", rt_json_done(head, ok), &ok);
-    rt_json_set(root, "indices", indices_json(night), &ok);
+    rt_json_set(root, "indices", rt_indices_json(night, night->index), &ok);
     json_t *rev = json_object();
     rt_json_set(rev, "flagged", json_boolean(night->level == RT_REVIEW_FLAGGED), &ok);
     rt_json_set(rev, "level", json_string(rt_review_level_name(night->level)), &ok);
@@ -470,6 +474,7 @@ rt_status rt_night_write_json(const rt_night *night, const rt_run_inputs *inputs
     rt_json_set(root, "norms", norms_json(night), &ok);
     rt_json_set(root, "exclusions", exclusions_json(night), &ok);
     rt_json_set(root, "agreement", rt_agreement_json(&night->agreement), &ok);
+    rt_json_set(root, "corrections", rt_corrections_json(night), &ok);
     rt_json_set(root, "evidence", evidence_json(night, 10), &ok);
     rt_json_set(root, "warnings", strings_json(night->warnings, night->n_warnings), &ok);
     rt_json_set(root, "cautions", cautions_json(), &ok);

@@ -4,6 +4,11 @@
  * Columns and meanings: docs/review-report.md. Channel labels come from the
  * recording header, which is untrusted: fields go through rt_csv_put_field
  * (src/common/text.h: valid UTF-8, RFC 4180 quoting, formulas defused).
+ * The last four columns (decision, reason, reviewer, decided_at) are a
+ * reviewer's to fill in a spreadsheet and read back with --corrections
+ * (docs/corrections.md): empty for a night not corrected; for a corrected
+ * night they carry the decisions applied, while the label columns stay
+ * remtone's own, so the table read back gives the same corrected night.
  * Written atomically. */
 #include <math.h>
 #include <stdio.h>
@@ -12,6 +17,7 @@
 #include "internal.h"
 #include "output.h"
 #include "text.h"
+#include "remtone/corrections.h"
 #include "remtone/report.h"
 #include "svg.h"
 
@@ -29,6 +35,42 @@ static void excluded_text(const rt_mini *m, rt_role role, char *buf, size_t cap)
                                     rt_event_type_name((rt_event_type)t));
     if (len == 0)
         snprintf(buf, cap, "unscorable");
+}
+
+/* The decision applied to mini-epoch i on role r, or NULL: the channel's
+ * own, else the mini-epoch's exclusion. *cursor walks the applied list
+ * (ordered by mini-epoch, then role) along with the table. */
+static const rt_decision *decision_for(const rt_night_corrections *c, size_t i, int r,
+                                       size_t *cursor)
+{
+    if (!c)
+        return NULL;
+    while (*cursor < c->n_applied && c->applied[*cursor].mini < i)
+        (*cursor)++;
+    const rt_decision *own = NULL, *excluded = NULL;
+    for (size_t k = *cursor; k < c->n_applied && c->applied[k].mini == i; k++) {
+        if (c->applied[k].role == r)
+            own = &c->decisions[c->applied[k].decision];
+        else if (c->applied[k].role < 0)
+            excluded = &c->decisions[c->applied[k].decision];
+    }
+    return excluded ? excluded : own;
+}
+
+static int put_decision(FILE *f, const rt_decision *d)
+{
+    int no_memory = 0;
+    char word[32] = "";
+    if (d && d->activity != RT_ACTIVITY_ANY)
+        snprintf(word, sizeof word, "%s-%s", rt_decision_kind_name(d->kind),
+                 rt_decision_activity_name(d->activity));
+    else if (d)
+        snprintf(word, sizeof word, "%s", rt_decision_kind_name(d->kind));
+    fprintf(f, ",%s,%s,", word, d ? rt_decision_reason_name(d->reason) : "");
+    no_memory |= rt_csv_put_field(f, d ? d->reviewer : "");
+    fputc(',', f);
+    no_memory |= rt_csv_put_field(f, d ? d->decided_at : "");
+    return no_memory;
 }
 
 static int bit(unsigned char labels, unsigned flag) { return (labels & flag) ? 1 : 0; }
@@ -50,7 +92,9 @@ rt_status rt_night_write_minis_csv(const rt_night *night, const rt_recording *re
     int no_memory = 0;
     rt_clock_time start = rt_recording_start(rec);
     fprintf(f, "epoch,mini,clock_time,elapsed_s,stage,role,label,envelope_uv,background_uv,"
-               "aasm_phasic,sinbar_phasic,sinbar_tonic,sinbar_any,excluded_by\n");
+               "aasm_phasic,sinbar_phasic,sinbar_tonic,sinbar_any,excluded_by,"
+               "decision,reason,reviewer,decided_at\n");
+    size_t cursor = 0;
     for (size_t i = 0; i < night->n_minis3 && !ferror(f) && !no_memory; i++) {
         const rt_mini *m = &night->minis3[i];
         char clock[16], excl[160];
@@ -70,6 +114,7 @@ rt_status rt_night_write_minis_csv(const rt_night *night, const rt_recording *re
             fprintf(f, ",%d,%d,%d,%d,", bit(l, RT_LABEL_AASM_PHASIC), bit(l, RT_LABEL_SINBAR_PHASIC),
                     bit(l, RT_LABEL_SINBAR_TONIC), bit(l, RT_LABEL_SINBAR_ANY));
             no_memory |= rt_csv_put_field(f, excl);
+            no_memory |= put_decision(f, decision_for(night->corrections, i, r, &cursor));
             fputc('\n', f);
         }
     }

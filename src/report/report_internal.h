@@ -52,6 +52,24 @@ json_t *rt_agreement_json(const rt_agreement *a);
 /* The same as a short text table; writes nothing when a->present is false. */
 void rt_agreement_write_text(const rt_agreement *a, FILE *out);
 
+/* The "indices" object of the night JSON (docs/night-json.md) for the
+ * index values given: night->index, or the automatic values of a corrected
+ * night. */
+json_t *rt_indices_json(const rt_night *night, const rt_index_value *index);
+
+/* An index value in its unit as the text summary writes it ("12.3 %",
+ * "0.812", "4.0/h", "-" when not finite). */
+void rt_report_value_text(const rt_index_rule *rule, double v, char *buf, size_t cap);
+
+/* A reviewer's corrections (docs/corrections.md) as the "corrections"
+ * object of the night JSON: {"present": false} for a night not corrected. */
+json_t *rt_corrections_json(const rt_night *night);
+/* The same as text for the summary; nothing for a night not corrected. */
+void rt_corrections_write_text(const rt_night *night, FILE *out);
+/* The agreement table under a title of its own (rt_agreement_write_text
+ * writes the manual scoring's). */
+void rt_agreement_write_text_titled(const rt_agreement *a, const char *title, FILE *out);
+
 /* Wall-clock time of onset_s after the recording start, "HH:MM:SS" (wraps at
  * midnight; sub-second start offsets included, the result rounded down). */
 void rt_report_clock(const rt_clock_time *start, double onset_s, char *buf, size_t cap);

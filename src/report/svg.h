@@ -96,4 +96,9 @@ size_t rt_axis_ticks(double lo, double hi, int max_steps, double *ticks, size_t 
 
 /* Times, evidence order and file names: report_internal.h. */
 
+struct rt_night;
+/* The page's "Corrections" section of a corrected night (corrections_html.c);
+ * nothing for a night not corrected. */
+void rt_corrections_write_html(rt_page *p, const struct rt_night *night);
+
 #endif

@@ -6,6 +6,7 @@
 #include "internal.h"
 #include "output.h"
 #include "report_internal.h"
+#include "remtone/corrections.h"
 #include "remtone/report.h"
 
 void rt_report_value_text(const rt_index_rule *rule, double v, char *buf, size_t cap)
@@ -133,8 +134,12 @@ rt_status rt_night_write_text(const rt_night *night, FILE *out, rt_error *err)
                 fprintf(out, "%s%s %.1f", sep, rt_event_type_name((rt_event_type)t), x->minutes[t]);
                 sep = ", ";
             }
-        if (x->outside_lights_minutes > 0)
+        if (x->outside_lights_minutes > 0) {
             fprintf(out, "%soutside lights %.1f", sep, x->outside_lights_minutes);
+            sep = ", ";
+        }
+        if (x->review_minutes > 0)
+            fprintf(out, "%sby the reviewer %.1f", sep, x->review_minutes);
         fprintf(out, ")\n");
     }
     if (x->have_respiratory)
@@ -160,6 +165,7 @@ rt_status rt_night_write_text(const rt_night *night, FILE *out, rt_error *err)
         fprintf(out, "\n");
         rt_agreement_write_text(&night->agreement, out);
     }
+    rt_corrections_write_text(night, out);
     if (night->n_warnings) {
         fprintf(out, "\nWarnings:\n");
         for (size_t i = 0; i < night->n_warnings; i++)

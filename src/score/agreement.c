@@ -76,19 +76,17 @@ static void count(rt_agreement_cell *cell, bool manual, bool automatic)
         cell->neither++;
 }
 
-void rt_night_agreement(rt_night *night, const rt_timeline *tl)
+void rt_agreement_compute(const rt_night *night, const rt_manual_mini *manual, size_t n_manual,
+                          const char *scorer, rt_agreement *ag)
 {
-    if (!night)
-        return;
-    rt_agreement *ag = &night->agreement;
     memset(ag, 0, sizeof *ag);
     static const unsigned auto_label[RT_AGREE_TYPES] = {
         RT_LABEL_SINBAR_PHASIC, RT_LABEL_SINBAR_TONIC, RT_LABEL_SINBAR_ANY};
-    if (tl && tl->n_manual > 0) {
+    if (n_manual > 0) {
         ag->present = true;
-        rt_copy_string(ag->scorer, sizeof ag->scorer, tl->scorer);
-        for (size_t i = 0; i < tl->n_manual; i++) {
-            const rt_manual_mini *m = &tl->manual[i];
+        rt_copy_string(ag->scorer, sizeof ag->scorer, scorer ? scorer : "");
+        for (size_t i = 0; i < n_manual; i++) {
+            const rt_manual_mini *m = &manual[i];
             /* ECG carries no muscle activity to score. */
             if (m->role < 0 || m->role >= RT_ROLE_COUNT || m->role == RT_ROLE_ECG)
                 continue;
@@ -98,13 +96,23 @@ void rt_night_agreement(rt_night *night, const rt_timeline *tl)
             unsigned labels = mini->labels[m->role];
             if (labels & (RT_LABEL_EXCLUDED | RT_LABEL_ABSENT))
                 continue;
-            bool manual[RT_AGREE_TYPES] = {m->phasic != 0, m->tonic != 0,
+            bool marked[RT_AGREE_TYPES] = {m->phasic != 0, m->tonic != 0,
                                            m->phasic != 0 || m->tonic != 0};
             for (int t = 0; t < RT_AGREE_TYPES; t++)
-                count(&ag->cell[m->role][t], manual[t], (labels & auto_label[t]) != 0);
+                count(&ag->cell[m->role][t], marked[t], (labels & auto_label[t]) != 0);
         }
     }
     for (int r = 0; r < RT_ROLE_COUNT; r++)
         for (int t = 0; t < RT_AGREE_TYPES; t++)
             rt_agreement_cell_finish(&ag->cell[r][t]);
+}
+
+void rt_night_agreement(rt_night *night, const rt_timeline *tl)
+{
+    if (!night)
+        return;
+    if (tl)
+        rt_agreement_compute(night, tl->manual, tl->n_manual, tl->scorer, &night->agreement);
+    else
+        rt_agreement_compute(night, NULL, 0, NULL, &night->agreement);
 }

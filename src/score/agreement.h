@@ -19,4 +19,11 @@ double rt_cohen_kappa(size_t both, size_t a_only, size_t b_only, size_t neither)
  * from its counts; NaN where n = 0. */
 void rt_agreement_cell_finish(rt_agreement_cell *cell);
 
+/* The agreement of a list of mini-epoch marks (a manual scoring, or a
+ * reviewer's decisions) with night's labels, into *ag, by the rules of
+ * rt_night_agreement (score.h): matched by onset within 1 ms, minis remtone
+ * left out and the ECG role skipped. present is true when n_manual > 0. */
+void rt_agreement_compute(const rt_night *night, const rt_manual_mini *manual, size_t n_manual,
+                          const char *scorer, rt_agreement *ag);
+
 #endif

@@ -66,6 +66,7 @@ static void aggregate_epochs(rt_night *night, bool arms)
         rt_epoch_result *er = &night->epochs[e];
         const rt_mini *m = &night->minis3[e * RT_MINIS3_PER_EPOCH];
         int scorable = 0;
+        er->aasm_chin_minis = er->aasm_any_minis = er->sinbar_any_minis = 0;
         for (int k = 0; k < RT_MINIS3_PER_EPOCH; k++) {
             if (!mini_scorable(&m[k]))
                 continue;
@@ -105,70 +106,89 @@ static void not_computed(rt_index_value *v, const char *reason)
     rt_copy_string(v->reason, sizeof v->reason, reason);
 }
 
+bool rt_index_mini_counts(int i, const rt_mini *m, bool arms, bool *in_denominator)
+{
+    *in_denominator = false;
+    bool any;
+    switch (i) {
+    case RT_IX_SINBAR_CHIN_ANY_3S: any = has(m, RT_ROLE_CHIN, RT_LABEL_SINBAR_ANY); break;
+    case RT_IX_SINBAR_CHIN_PHASIC_3S: any = has(m, RT_ROLE_CHIN, RT_LABEL_SINBAR_PHASIC); break;
+    case RT_IX_SINBAR_FDS_PHASIC_3S: any = arms && arm_phasic(m); break;
+    case RT_IX_SINBAR_COMBINED_3S:
+        any = arms && (has(m, RT_ROLE_CHIN, RT_LABEL_SINBAR_ANY) || arm_phasic(m));
+        break;
+    case RT_IX_MONTREAL_PHASIC_CHIN: any = has(m, RT_ROLE_CHIN, RT_LABEL_MONTREAL_PHASIC); break;
+    default: return false;
+    }
+    *in_denominator = mini_scorable(m);
+    return *in_denominator && any;
+}
+
+bool rt_index_epoch_counts(int i, const rt_epoch_result *e, bool arms, bool *in_denominator)
+{
+    *in_denominator = false;
+    /* AASM: >= 5 of 10 3-s mini-epochs hold bursts ("excessive transient") */
+    bool pa = e->aasm_any_minis >= 5;
+    bool counts;
+    switch (i) {
+    case RT_IX_AASM_TONIC_CHIN: counts = e->aasm_tonic; break;
+    case RT_IX_AASM_PHASIC_CHIN: counts = e->aasm_chin_minis >= 5; break;
+    case RT_IX_AASM_PHASIC_ANY: counts = pa; break;
+    case RT_IX_AASM_RSWA: counts = e->aasm_tonic || pa; break;
+    case RT_IX_SINBAR_CHIN_TONIC_30S: counts = e->sinbar_tonic; break;
+    /* SINBAR 30-s epochs follow the AASM convention: an epoch counts when
+     * at least 5 of its 10 3-s mini-epochs hold the activity (chin "any" or
+     * phasic arm). Frauscher et al. 2014 (Sleep 37:763-773, abstract) score
+     * "phasic mentalis EMG activity for 30-sec epochs according to AASM
+     * recommendation" against the SINBAR cutoff; counting an epoch for a
+     * single active mini would make the 30-s index at least the 3-s index,
+     * impossible with a 30-s cutoff (27 %) below the 3-s one (32 %, Frauscher
+     * et al. 2012, abstract) on the same nights. docs/scoring.md. */
+    case RT_IX_SINBAR_COMBINED_30S: counts = arms && e->sinbar_any_minis >= 5; break;
+    default: return false;
+    }
+    *in_denominator = !e->excluded;
+    return *in_denominator && counts;
+}
+
+static const int MINI3_INDICES[] = {RT_IX_SINBAR_CHIN_ANY_3S, RT_IX_SINBAR_CHIN_PHASIC_3S,
+                                    RT_IX_SINBAR_FDS_PHASIC_3S, RT_IX_SINBAR_COMBINED_3S};
+static const int EPOCH_INDICES[] = {RT_IX_AASM_TONIC_CHIN, RT_IX_AASM_PHASIC_CHIN,
+                                    RT_IX_AASM_PHASIC_ANY, RT_IX_AASM_RSWA,
+                                    RT_IX_SINBAR_CHIN_TONIC_30S, RT_IX_SINBAR_COMBINED_30S};
+#define COUNT_OF(a) (sizeof(a) / sizeof((a)[0]))
+
 static void compute_mini_indices(rt_night *night, bool arms)
 {
-    size_t scorable = 0, chin_any = 0, chin_phasic = 0, fds = 0, combined = 0;
-    for (size_t i = 0; i < night->n_minis3; i++) {
-        const rt_mini *m = &night->minis3[i];
-        if (!mini_scorable(m))
-            continue;
-        scorable++;
-        bool any = has(m, RT_ROLE_CHIN, RT_LABEL_SINBAR_ANY);
-        chin_any += any;
-        chin_phasic += has(m, RT_ROLE_CHIN, RT_LABEL_SINBAR_PHASIC);
-        if (arms) {
-            fds += arm_phasic(m);
-            combined += any || arm_phasic(m);
+    for (size_t k = 0; k < COUNT_OF(MINI3_INDICES); k++) {
+        size_t num = 0, den = 0;
+        bool in_den;
+        for (size_t i = 0; i < night->n_minis3; i++) {
+            num += rt_index_mini_counts(MINI3_INDICES[k], &night->minis3[i], arms, &in_den);
+            den += in_den;
         }
+        set_value(&night->index[MINI3_INDICES[k]], num, den, 100.0);
     }
-    set_value(&night->index[RT_IX_SINBAR_CHIN_ANY_3S], chin_any, scorable, 100.0);
-    set_value(&night->index[RT_IX_SINBAR_CHIN_PHASIC_3S], chin_phasic, scorable, 100.0);
-    set_value(&night->index[RT_IX_SINBAR_FDS_PHASIC_3S], fds, scorable, 100.0);
-    set_value(&night->index[RT_IX_SINBAR_COMBINED_3S], combined, scorable, 100.0);
-
     size_t s2 = 0, m2 = 0;
+    bool in_den;
     for (size_t i = 0; i < night->n_minis2; i++) {
-        const rt_mini *m = &night->minis2[i];
-        if (!mini_scorable(m))
-            continue;
-        s2++;
-        m2 += has(m, RT_ROLE_CHIN, RT_LABEL_MONTREAL_PHASIC);
+        m2 += rt_index_mini_counts(RT_IX_MONTREAL_PHASIC_CHIN, &night->minis2[i], arms, &in_den);
+        s2 += in_den;
     }
     set_value(&night->index[RT_IX_MONTREAL_PHASIC_CHIN], m2, s2, 100.0);
 }
 
 static void compute_epoch_indices(rt_night *night, bool arms)
 {
-    size_t scorable = 0, tonic = 0, phasic_chin = 0, phasic_any = 0, rswa = 0, sinbar_tonic = 0,
-           combined = 0;
-    for (size_t e = 0; e < night->n_epochs; e++) {
-        const rt_epoch_result *er = &night->epochs[e];
-        if (er->excluded)
-            continue;
-        scorable++;
-        /* AASM: >= 5 of 10 3-s mini-epochs hold bursts ("excessive transient") */
-        bool pa = er->aasm_any_minis >= 5;
-        tonic += er->aasm_tonic;
-        phasic_chin += er->aasm_chin_minis >= 5;
-        phasic_any += pa;
-        rswa += er->aasm_tonic || pa;
-        sinbar_tonic += er->sinbar_tonic;
-        /* SINBAR 30-s epochs follow the AASM convention: an epoch counts when
-         * at least 5 of its 10 3-s mini-epochs hold the activity (chin "any" or
-         * phasic arm). Frauscher et al. 2014 (Sleep 37:763-773, abstract) score
-         * "phasic mentalis EMG activity for 30-sec epochs according to AASM
-         * recommendation" against the SINBAR cutoff; counting an epoch for a
-         * single active mini would make the 30-s index at least the 3-s index,
-         * impossible with a 30-s cutoff (27 %) below the 3-s one (32 %, Frauscher
-         * et al. 2012, abstract) on the same nights. docs/scoring.md. */
-        combined += arms && er->sinbar_any_minis >= 5;
+    for (size_t k = 0; k < COUNT_OF(EPOCH_INDICES); k++) {
+        size_t num = 0, den = 0;
+        bool in_den;
+        for (size_t e = 0; e < night->n_epochs; e++) {
+            num += rt_index_epoch_counts(EPOCH_INDICES[k], &night->epochs[e], arms, &in_den);
+            den += in_den;
+        }
+        set_value(&night->index[EPOCH_INDICES[k]], num, den, 100.0);
     }
-    set_value(&night->index[RT_IX_AASM_TONIC_CHIN], tonic, scorable, 100.0);
-    set_value(&night->index[RT_IX_AASM_PHASIC_CHIN], phasic_chin, scorable, 100.0);
-    set_value(&night->index[RT_IX_AASM_PHASIC_ANY], phasic_any, scorable, 100.0);
-    set_value(&night->index[RT_IX_AASM_RSWA], rswa, scorable, 100.0);
-    set_value(&night->index[RT_IX_SINBAR_CHIN_TONIC_30S], sinbar_tonic, scorable, 100.0);
-    set_value(&night->index[RT_IX_SINBAR_COMBINED_30S], combined, scorable, 100.0);
 }
 
 /* Leg movements from the leg EMG when no limb-movement events were given,
@@ -319,6 +339,10 @@ static rt_status summarise_exclusions(rt_night *night, rt_error *err)
         x->total_minutes += 3.0 / 60.0;
         if (bits & (1u << 15)) {
             x->outside_lights_minutes += 3.0 / 60.0;
+            continue;
+        }
+        if (bits & RT_EXCLUDED_BY_REVIEW) {
+            x->review_minutes += 3.0 / 60.0;
             continue;
         }
         for (int t = 0; t < RT_EVENT_TYPE_COUNT; t++)
@@ -572,6 +596,11 @@ static rt_status channel_levels(rt_night *night, rt_error *err)
     return RT_OK;
 }
 
+/* The indices of a night, or of a view of one REM period (periods.c), from
+ * its mini-epochs and epochs. ss NULL keeps the Montreal tonic index and the
+ * REM Atonia Index as they are: they are counted per second of the signal
+ * while scoring, and a reviewer's decisions (corrections.c) do not reach
+ * them. */
 rt_status rt_night_indices(rt_night *night, const scoring_state *ss, rt_error *err)
 {
     bool arms = night->channel[RT_ROLE_ARM_LEFT].present && night->channel[RT_ROLE_ARM_RIGHT].present;
@@ -583,25 +612,36 @@ rt_status rt_night_indices(rt_night *night, const scoring_state *ss, rt_error *e
                                                                  : 0.0;
     compute_mini_indices(night, arms);
     compute_epoch_indices(night, arms);
-    set_value(&night->index[RT_IX_MONTREAL_TONIC_CHIN], ss->montreal_tonic, ss->montreal_windows,
-              100.0);
+    if (ss)
+        set_value(&night->index[RT_IX_MONTREAL_TONIC_CHIN], ss->montreal_tonic,
+                  ss->montreal_windows, 100.0);
     rt_status st = summarise_exclusions(night, err);
     if (st != RT_OK)
         return st;
     rt_index_value *rai = &night->index[RT_IX_RAI];
-    rai->numerator = ss->rai.at_most_1;
-    rai->denominator = ss->rai.total;
-    rai->value = rt_rai_value(&ss->rai);
-    rai->status = isnan(rai->value) ? RT_STATUS_NOT_COMPUTED : RT_STATUS_NO_CUTOFF;
-    if (isnan(rai->value))
-        rt_copy_string(rai->reason, sizeof rai->reason, "no scorable REM");
+    if (ss) {
+        rai->numerator = ss->rai.at_most_1;
+        rai->denominator = ss->rai.total;
+        rai->value = rt_rai_value(&ss->rai);
+        rai->status = isnan(rai->value) ? RT_STATUS_NOT_COMPUTED : RT_STATUS_NO_CUTOFF;
+        if (isnan(rai->value))
+            rt_copy_string(rai->reason, sizeof rai->reason, "no scorable REM");
+    }
     apply_missing(night, arms);
     decide_status(night);
     return RT_OK;
 }
 
-rt_status rt_night_summarise(rt_night *night, const scoring_state *ss, rt_error *err)
+/* The body of rt_night_summarise and rt_night_resummarise: ss NULL keeps
+ * the Montreal tonic index and the REM Atonia Index as they are, of the
+ * night and of each REM period. */
+static rt_status summarise(rt_night *night, const scoring_state *ss, rt_error *err)
 {
+    night->n_reasons = 0;
+    night->n_reservations = 0;
+    memset(night->exclusions.minutes, 0, sizeof night->exclusions.minutes);
+    night->exclusions.total_minutes = night->exclusions.outside_lights_minutes = 0.0;
+    night->exclusions.review_minutes = 0.0;
     rt_status st = channel_levels(night, err);
     if (st != RT_OK)
         return st;
@@ -615,4 +655,14 @@ rt_status rt_night_summarise(rt_night *night, const scoring_state *ss, rt_error 
     review(night);
     rt_night_reserve(night);
     return rt_night_periods_score(night, ss, err);
+}
+
+rt_status rt_night_summarise(rt_night *night, const scoring_state *ss, rt_error *err)
+{
+    return summarise(night, ss, err);
+}
+
+rt_status rt_night_resummarise(rt_night *night, rt_error *err)
+{
+    return summarise(night, NULL, err);
 }

@@ -1199,5 +1199,6 @@ void rt_night_free(rt_night *night)
     free(night->bout_lift);
     free(night->staging.gaps);
     free(night->periods);
+    rt_night_corrections_free(night->corrections);
     free(night);
 }

@@ -44,6 +44,22 @@ void rt_night_warn(rt_night *night, const char *fmt, ...) RT_PRINTF(2, 3);
  * reservations (rt_night_reserve). */
 rt_status rt_night_summarise(rt_night *night, const scoring_state *ss, rt_error *err);
 
+/* The same with the night's mini-epoch and epoch labels changed (a
+ * reviewer's decisions, corrections.c): every index counted from the labels
+ * is counted again; the Montreal tonic index and the REM Atonia Index, which
+ * the labels do not hold, keep their values; statuses, headline, level,
+ * reasons and reservations are decided again. RT_ERR_NOMEM only. */
+rt_status rt_night_resummarise(rt_night *night, rt_error *err);
+
+/* Whether a unit counts in index i, the one definition the index counts and
+ * the correction summary share: a 3-s mini-epoch for the SINBAR 3-s indices,
+ * a 2-s mini-epoch for the Montreal phasic index (rt_index_mini_counts), a
+ * REM epoch for the 30-s indices (rt_index_epoch_counts). *in_denominator
+ * receives whether the unit is scored for i; both false for an index not
+ * counted on such units. arms: both arm channels present. */
+bool rt_index_mini_counts(int i, const rt_mini *m, bool arms, bool *in_denominator);
+bool rt_index_epoch_counts(int i, const rt_epoch_result *e, bool arms, bool *in_denominator);
+
 /* Index i reaches its cutoff in force (RAI: below it); near it (at or above
  * near_fraction of it; RAI: intermediate). False when not computed or without
  * a cutoff. */
@@ -84,5 +100,8 @@ rt_status rt_night_periods_lay_out(rt_night *night, const rt_timeline *tl, const
  * its bouts (after the night's own indices). RT_ERR_NOMEM only. */
 rt_status rt_night_periods_score(rt_night *night, const scoring_state *ss, rt_error *err);
 
+
+/* Frees what rt_night_correct attached (corrections.c); NULL is accepted. */
+void rt_night_corrections_free(struct rt_night_corrections *c);
 
 #endif

@@ -131,13 +131,17 @@ static rt_status score_group(const rt_night *night, const scoring_state *ss, rt_
     view->bursts = bursts;
     view->n_bursts = nb;
     memset(view->index, 0, sizeof view->index);
+    if (!ss) { /* rescoring with a reviewer's decisions: these two stay (rt_night_indices) */
+        view->index[RT_IX_MONTREAL_TONIC_CHIN] = g->index[RT_IX_MONTREAL_TONIC_CHIN];
+        view->index[RT_IX_RAI] = g->index[RT_IX_RAI];
+    }
     memset(&view->exclusions, 0, sizeof view->exclusions);
     view->exclusions.have_respiratory = g->exclusions.have_respiratory;
     view->exclusions.rem_ahi = g->exclusions.rem_ahi;
     view->exclusions.rem_leg_movements_per_h = g->exclusions.rem_leg_movements_per_h;
     scoring_state sub;
     memset(&sub, 0, sizeof sub);
-    for (size_t b = g->bout_first; ss->per_bout && b < g->bout_first + g->n_bouts; b++) {
+    for (size_t b = g->bout_first; ss && ss->per_bout && b < g->bout_first + g->n_bouts; b++) {
         const bout_counts *bc = &ss->per_bout[b];
         sub.montreal_windows += bc->montreal_windows;
         sub.montreal_tonic += bc->montreal_tonic;
@@ -145,7 +149,7 @@ static rt_status score_group(const rt_night *night, const scoring_state *ss, rt_
         sub.rai.from_1_to_2 += bc->rai.from_1_to_2;
         sub.rai.total += bc->rai.total;
     }
-    rt_status st = rt_night_indices(view, &sub, err);
+    rt_status st = rt_night_indices(view, ss ? &sub : NULL, err);
     if (st == RT_OK) {
         memcpy(g->index, view->index, sizeof g->index);
         g->scorable_minutes = view->scorable_minutes;

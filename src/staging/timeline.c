@@ -14,6 +14,7 @@
 #include "internal.h"
 #include "remtone/roles.h"
 #include "remtone/timeline.h"
+#include "table.h"
 
 /* Times on the epoch grid are compared within this tolerance (seconds): far
  * below any sampling interval, far above the rounding of decimal text. */

@@ -26,6 +26,7 @@
 
 #include "internal.h"
 #include "output.h"
+#include "remtone/corrections.h"
 #include "remtone/roles.h"
 #include "remtone/timeline.h"
 #include "remtone_scoring_xsd.h"
@@ -552,6 +553,8 @@ static rt_status read_root(reader *r, xmlNodePtr root)
             st = read_children(r, c);
         } else if (is_element(c, "events") || is_element(c, "manual-rswa"))
             st = read_children(r, c);
+        else if (is_element(c, "corrections"))
+            continue; /* read by rt_corrections_load_xml, when asked for */
         else
             st = rt_fail(r->err, RT_ERR_STAGING, "%s line %ld: unexpected element <%s>", r->name,
                          xmlGetLineNo(c), (const char *)c->name);
@@ -593,10 +596,12 @@ rt_status rt_timeline_load_xml_memory(rt_timeline *tl, const char *data, size_t 
     return st;
 }
 
-rt_status rt_timeline_load_xml(rt_timeline *tl, const char *path, rt_error *err)
+/* The whole file at path into *buf (the caller frees it), at most
+ * MAX_XML_BYTES. */
+static rt_status read_whole(const char *path, char **buf_out, size_t *len_out, rt_error *err)
 {
-    if (!tl || !path)
-        return rt_fail(err, RT_ERR_USAGE, "rt_timeline_load_xml: NULL argument");
+    *buf_out = NULL;
+    *len_out = 0;
     FILE *f = fopen(path, "rb");
     if (!f)
         return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
@@ -644,9 +649,95 @@ rt_status rt_timeline_load_xml(rt_timeline *tl, const char *path, rt_error *err)
         }
     }
     fclose(f);
+    if (st != RT_OK) {
+        free(buf);
+        return st;
+    }
+    *buf_out = buf;
+    *len_out = len;
+    return RT_OK;
+}
+
+rt_status rt_timeline_load_xml(rt_timeline *tl, const char *path, rt_error *err)
+{
+    if (!tl || !path)
+        return rt_fail(err, RT_ERR_USAGE, "rt_timeline_load_xml: NULL argument");
+    char *buf = NULL;
+    size_t len = 0;
+    rt_status st = read_whole(path, &buf, &len, err);
     if (st == RT_OK)
         st = rt_timeline_load_xml_memory(tl, buf, len, path, err);
     free(buf);
+    return st;
+}
+
+/* ---- Corrections (docs/corrections.md) ----------------------------------- */
+
+static rt_status read_decision(reader *r, rt_corrections *c, xmlNodePtr n)
+{
+    rt_decision d;
+    memset(&d, 0, sizeof d);
+    d.place = xmlGetLineNo(n);
+    char word[32];
+    attr_text(n, "kind", word, sizeof word);
+    d.kind = strcmp(word, "confirm") == 0   ? RT_DECISION_CONFIRM
+             : strcmp(word, "reject") == 0  ? RT_DECISION_REJECT
+             : strcmp(word, "add") == 0     ? RT_DECISION_ADD
+             : strcmp(word, "exclude") == 0 ? RT_DECISION_EXCLUDE
+                                            : RT_DECISION_KINDS;
+    d.activity = RT_ACTIVITY_ANY;
+    if (attr_text(n, "activity", word, sizeof word))
+        d.activity = strcmp(word, "tonic") == 0 ? RT_ACTIVITY_TONIC : RT_ACTIVITY_PHASIC;
+    if (attr_text(n, "reason", word, sizeof word) && !rt_decision_reason_parse(word, &d.reason))
+        return rt_fail(r->err, RT_ERR_STAGING, "%s line %ld: unknown reason \"%s\"", r->name,
+                       d.place, word);
+    bool given = false;
+    rt_status st = attr_role(r, n, "role", false, &d.role);
+    if (st == RT_OK)
+        st = attr_number(r, n, "onset-s", true, &d.start_s, NULL);
+    if (st == RT_OK)
+        st = attr_number(r, n, "end-s", false, &d.end_s, &given);
+    if (st != RT_OK)
+        return st;
+    if (given != (d.kind == RT_DECISION_EXCLUDE))
+        return rt_fail(r->err, RT_ERR_STAGING, "%s line %ld: end-s belongs to exclude, and only "
+                       "to it", r->name, d.place);
+    if (d.kind == RT_DECISION_EXCLUDE && d.role >= 0)
+        return rt_fail(r->err, RT_ERR_STAGING, "%s line %ld: an exclusion covers every channel; "
+                       "it takes no role", r->name, d.place);
+    attr_text(n, "reviewer", d.reviewer, sizeof d.reviewer);
+    attr_text(n, "at", d.decided_at, sizeof d.decided_at);
+    return rt_corrections_add(c, &d, r->err);
+}
+
+rt_status rt_corrections_load_xml(rt_corrections *c, rt_error *err)
+{
+    if (!c)
+        return rt_fail(err, RT_ERR_USAGE, "rt_corrections_load_xml: NULL argument");
+    char *buf = NULL;
+    size_t len = 0;
+    rt_status st = read_whole(c->path, &buf, &len, err);
+    if (st != RT_OK)
+        return st;
+    pthread_once(&libxml_once, libxml_init);
+    xmlDocPtr doc = NULL;
+    if (len == 0)
+        st = rt_fail(err, RT_ERR_STAGING, "%s: empty file", c->path);
+    if (st == RT_OK)
+        st = parse_document(buf, len, c->path, &doc, err);
+    free(buf);
+    if (st == RT_OK)
+        st = validate_document(doc, c->path, err);
+    xmlNodePtr root = st == RT_OK ? xmlDocGetRootElement(doc) : NULL;
+    reader r = {c->path, NULL, err};
+    for (xmlNodePtr e = root ? root->children : NULL; e && st == RT_OK; e = e->next) {
+        if (!is_element(e, "corrections"))
+            continue;
+        for (xmlNodePtr d = e->children; d && st == RT_OK; d = d->next)
+            if (is_element(d, "decision"))
+                st = read_decision(&r, c, d);
+    }
+    xmlFreeDoc(doc);
     return st;
 }
 

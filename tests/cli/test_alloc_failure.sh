@@ -126,6 +126,9 @@ sweep() {
 sweep text 15 ""
 sweep json 0 r.json --quiet --json "$work/json/r.json"
 sweep html 0 r.html --quiet --html "$work/html/r.html"
+# a reviewer's decisions (docs/corrections.md): read, checked, rescored
+printf 'elapsed_s,role,decision,reason,reviewer,decided_at\n2943,chin,confirm,,A,2026-12-01\n2946,arm-left,confirm,,A,2026-12-01\n2952,chin,exclude,artifact,A,2026-12-01\n' >"$work/decisions.csv"
+sweep corrections 0 r.json --quiet --corrections "$work/decisions.csv" --json "$work/corrections/r.json"
 
 echo "$fails failed"
 [ "$fails" = 0 ]

@@ -7,18 +7,7 @@ py=/usr/bin/python3
 work="${REMTONE_TMP:-/tmp}/cli"
 rm -rf "$work" && mkdir -p "$work"
 fails=0
-check() { # check NAME EXPECTED_EXIT CMD...
-  local name=$1 want=$2; shift 2
-  "$@" >"$work/out" 2>"$work/err"; local got=$?
-  if [ "$got" != "$want" ]; then
-    echo "FAIL $name: exit $got, want $want"; sed 's/^/    /' "$work/err" | head -5; fails=$((fails+1))
-  else
-    echo "ok   $name"
-  fi
-}
-has() { # has NAME FILE TEXT
-  if grep -qF -- "$3" "$2"; then echo "ok   $1"; else echo "FAIL $1: '$3' not in $2"; fails=$((fails+1)); fi
-}
+. "${REMTONE_SOURCE:?}/tests/cli/checks.sh"
 
 check version 0 "$bin" --version
 check no-command 2 "$bin"

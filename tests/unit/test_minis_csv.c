@@ -15,10 +15,12 @@
 #include "remtone/remtone.h"
 
 enum { COL_EPOCH, COL_MINI, COL_CLOCK, COL_ELAPSED, COL_STAGE, COL_ROLE, COL_LABEL, COL_ENV,
-       COL_BG, COL_AASM, COL_SPHASIC, COL_STONIC, COL_SANY, COL_EXCL, N_COLS };
+       COL_BG, COL_AASM, COL_SPHASIC, COL_STONIC, COL_SANY, COL_EXCL, COL_DECISION, COL_REASON,
+       COL_REVIEWER, COL_DECIDED_AT, N_COLS };
 static const char *const HEADER[N_COLS] = {
     "epoch", "mini", "clock_time", "elapsed_s", "stage", "role", "label", "envelope_uv",
-    "background_uv", "aasm_phasic", "sinbar_phasic", "sinbar_tonic", "sinbar_any", "excluded_by"};
+    "background_uv", "aasm_phasic", "sinbar_phasic", "sinbar_tonic", "sinbar_any", "excluded_by",
+    "decision", "reason", "reviewer", "decided_at"};
 
 typedef struct row {
     char f[N_COLS][96];
@@ -142,6 +144,11 @@ static void rows_recount_the_indices(void **state)
         assert_string_equal(t.rows[0].f[c], HEADER[c]);
     assert_int_equal(t.n, 1 + n->n_minis3 * (size_t)ch);
     assert_true(n->index[RT_IX_SINBAR_CHIN_ANY_3S].numerator > 0);
+    /* a night without corrections: the decision columns are there, empty,
+     * for a reviewer to fill (docs/corrections.md) */
+    for (size_t i = 1; i < t.n; i++)
+        for (int c = COL_DECISION; c <= COL_DECIDED_AT; c++)
+            assert_string_equal(t.rows[i].f[c], "");
 
     /* slots: chin 0, arm-left 1, arm-right 2, leg-left 3, leg-right 4 */
     size_t scorable = 0, chin_any = 0, chin_phasic = 0, fds = 0, combined = 0;
