@@ -267,7 +267,8 @@ typedef struct rt_burst {
     rt_role role;
     double onset_s;        /* half-height onset, seconds from the recording start */
     double duration_s;     /* half-height duration, s */
-    double peak_ratio;     /* median envelope inside the burst / background, > 0 */
+    double peak_ratio;     /* amplitude / background: the mean envelope between the edges,
+                              corrected for the window's ramps (docs/scoring.md), > 0 */
     unsigned rules;        /* the RT_LABEL_*_PHASIC bits of the rule sets it satisfies */
 } rt_burst;
 
