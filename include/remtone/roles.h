@@ -63,7 +63,9 @@ rt_status rt_roles_resolve(const rt_recording *rec, const rt_role_options *optio
                            rt_role_map *map, rt_error *err);
 
 /* Reads n samples of a role's signal from sample `first`, in microvolts.
- * For a bipolar derivation, scratch must hold n doubles; else it may be NULL. */
+ * For a bipolar derivation, scratch must hold n doubles; else it may be NULL.
+ * RT_ERR_CHANNEL when the role is absent (channel -1), RT_ERR_USAGE when a
+ * derivation has no scratch, otherwise the reader's status (rt_recording_read_uv). */
 rt_status rt_role_read_uv(rt_recording *rec, const rt_role_source *src, long long first,
                           size_t n, double *out, double *scratch, rt_error *err);
 

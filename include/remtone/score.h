@@ -76,8 +76,11 @@ typedef struct rt_cutoffs {
 
 void rt_cutoffs_published(rt_cutoffs *cutoffs);
 /* Loads a cutoff file: CSV with header `index,cutoff` (optional column
- * `normal_from` for the REM Atonia Index); indices not listed keep their
- * published cutoff. Errors name the file and line. */
+ * `normal_from` for the REM Atonia Index); indices not listed keep the value
+ * *cutoffs held. Errors name the file and line: RT_ERR_IO when the file
+ * cannot be read, RT_ERR_STAGING when its content is wrong (unknown or
+ * repeated index, bad number, no row), RT_ERR_NOMEM; *cutoffs is unchanged
+ * on failure. */
 rt_status rt_cutoffs_load(rt_cutoffs *cutoffs, const char *path, rt_error *err);
 
 /* ---- Parameters -------------------------------------------------------- */
@@ -180,10 +183,12 @@ typedef enum rt_index_status {
 const char *rt_index_status_name(rt_index_status status);
 
 typedef struct rt_index_value {
-    double value;             /* % (0..100) or ratio (0..1); NaN when not computed */
+    double value;             /* in the rule's unit: % (0..100), ratio (0..1) or per hour
+                                 (>= 0); NaN when not computed */
     rt_index_status status;
-    size_t numerator;         /* units counted (mini-epochs, epochs or seconds) */
-    size_t denominator;       /* units scored */
+    size_t numerator;         /* units counted: epochs, mini-epochs, 20-s windows, seconds
+                                 (REM Atonia Index) or leg movements (per-hour index) */
+    size_t denominator;       /* units scored (for the per-hour index: scorable 3-s minis) */
     char reason[200];         /* why not computed, or a note; empty otherwise */
 } rt_index_value;
 
@@ -200,7 +205,10 @@ typedef enum rt_review_level {
 /* "clear", "near-cutoff", "review", "not-assessable". */
 const char *rt_review_level_name(rt_review_level level);
 
-/* Activity labels of one mini-epoch on one channel (bit flags). */
+/* Activity labels of one mini-epoch on one channel (bit flags). The figures
+ * are the defaults; the parameters in force are night->params (burst_min_s,
+ * burst_max_s, montreal_burst_max_s, aasm_burst_k, sinbar_burst_k,
+ * montreal_burst_k, tonic_k, tonic_abs_p2p_uv; docs/scoring.md). */
 enum {
     RT_LABEL_AASM_PHASIC = 1u << 0,    /* burst 0.1-5 s at >= 4x background */
     RT_LABEL_SINBAR_PHASIC = 1u << 1,  /* burst 0.1-5 s at >= 2x background */
@@ -208,49 +216,68 @@ enum {
     RT_LABEL_SINBAR_ANY = 1u << 3,     /* phasic or tonic (SINBAR "any") */
     RT_LABEL_MONTREAL_PHASIC = 1u << 4,/* 2-s grid: burst 0.1-10 s at >= 4x background */
     RT_LABEL_ABSENT = 1u << 6,         /* the channel is not in the recording */
-    RT_LABEL_EXCLUDED = 1u << 7        /* not scorable (event, artifact); see excluded_by */
+    RT_LABEL_EXCLUDED = 1u << 7        /* not scorable (event, quality mark, outside lights) */
 };
 
+/* Kinds of signal quality marks (docs/quality.md); the index of
+ * rt_channel_quality.unscorable_min; names from rt_quality_kind_name. */
+typedef enum rt_quality_kind {
+    RT_QUALITY_KIND_CLIPPING = 0, /* at or near the amplifier's limits */
+    RT_QUALITY_KIND_FLAT,         /* constant or near-zero activity: a detached lead */
+    RT_QUALITY_KIND_POP,          /* electrode pop: a step or spike far above the activity */
+    RT_QUALITY_KINDS
+} rt_quality_kind;
+
+/* The bits of rt_mini.excluded_by: why the chin was left out of a mini-epoch.
+ * Several may be set; no bit is set when the chin was scored there. */
+#define RT_EXCLUDED_BY_EVENT(type) (1u << (type))          /* an rt_event_type, bits 0-6 */
+#define RT_EXCLUDED_BY_QUALITY(kind) (1u << (8 + (kind)))  /* an rt_quality_kind, bits 8-10 */
+#define RT_EXCLUDED_BY_REVIEW (1u << 14)                   /* a reviewer's exclusion (corrections.h) */
+#define RT_EXCLUDED_BY_LIGHTS (1u << 15)                   /* outside lights-off .. lights-on */
+
+/* One mini-epoch of REM: 3 s (night->minis3, SINBAR) or 2 s (night->minis2,
+ * Montreal), on a grid starting at its epoch's onset. */
 typedef struct rt_mini {
     size_t epoch;                       /* epoch index in the timeline */
-    int index;                          /* position in the epoch, 0-based */
+    int index;                          /* position in the epoch, 0-based: 0..9 (3 s), 0..14 (2 s) */
     double onset_s;                     /* seconds from the recording start */
-    unsigned char labels[RT_ROLE_COUNT];/* RT_LABEL_* per role (ECG unused) */
-    float envelope_uv[RT_ROLE_COUNT];   /* median rectified envelope, uV */
-    float background_uv[RT_ROLE_COUNT]; /* median background, uV */
-    unsigned excluded_by;               /* bit set of rt_event_type that excluded it, and
-                                           RT_EXCLUDED_BY_REVIEW */
+    unsigned char labels[RT_ROLE_COUNT];/* RT_LABEL_* per role (the ECG role is always 0) */
+    /* Levels of 3-s minis, per EMG role (0 for an absent role, and in minis2): */
+    float envelope_uv[RT_ROLE_COUNT];   /* median of the rectified envelope over the mini, uV */
+    float background_uv[RT_ROLE_COUNT]; /* atonic background at the mini's middle second, uV */
+    unsigned excluded_by;               /* RT_EXCLUDED_BY_* bits for the chin (quality bits in
+                                           minis3 only) */
 } rt_mini;
-
-/* The bit of rt_mini.excluded_by set by a reviewer's exclusion (corrections.h). */
-#define RT_EXCLUDED_BY_REVIEW (1u << 14)
 
 struct rt_night_corrections;
 
 typedef struct rt_epoch_result {
     size_t epoch;          /* epoch index in the timeline */
-    double onset_s;
+    double onset_s;        /* seconds from the recording start */
     size_t bout;           /* REM bout number, 0-based */
-    bool aasm_tonic;       /* chin above the NREM reference >= 50 % of the epoch */
+    bool aasm_tonic;       /* chin above aasm_nrem_margin x the NREM reference for >= 50 % of
+                              the epoch (false when there is no NREM reference) */
     int aasm_chin_minis;   /* 3-s minis with an AASM chin burst (0..10) */
-    int aasm_any_minis;    /* with an AASM burst on any EMG channel */
+    int aasm_any_minis;    /* with an AASM burst on any EMG channel (0..10) */
     bool sinbar_tonic;     /* chin at tonic level > 50 % of the epoch */
     int sinbar_any_minis;  /* chin "any" or FDS phasic 3-s minis (0..10) */
     double tonic_share;    /* share of the epoch at the SINBAR tonic level, 0..1 */
-    double activity;       /* ranking score for the evidence list */
-    bool excluded;         /* wholly not scorable */
+    double activity;       /* ranking score for the evidence list, >= 0: sinbar_any_minis
+                              + 10 when sinbar_tonic + aasm_any_minis / 2 */
+    bool excluded;         /* at least one of its 3-s minis is left out on the chin; the
+                              epoch then leaves the 30-s (epoch-level) counts */
 } rt_epoch_result;
 
 typedef struct rt_burst {
     rt_role role;
     double onset_s;        /* half-height onset, seconds from the recording start */
-    double duration_s;     /* half-height duration */
-    double peak_ratio;     /* median envelope inside the burst / background */
-    unsigned rules;        /* RT_LABEL_AASM_PHASIC | SINBAR | MONTREAL it satisfies */
+    double duration_s;     /* half-height duration, s */
+    double peak_ratio;     /* amplitude / background: the mean envelope between the edges,
+                              corrected for the window's ramps (docs/scoring.md), > 0 */
+    unsigned rules;        /* the RT_LABEL_*_PHASIC bits of the rule sets it satisfies */
 } rt_burst;
 
 /* Signal quality of one EMG channel over the night's REM (docs/quality.md). */
-enum { RT_QUALITY_KINDS = 3 };          /* clipping, flat (detached lead), electrode pop */
 typedef struct rt_channel_quality {
     double line_hz;            /* mains line found: 50 or 60; 0 when none */
     double line_db;            /* its power over the rest of the EMG band, dB (-99: none) */
@@ -260,7 +287,7 @@ typedef struct rt_channel_quality {
     bool ecg_found;            /* ECG-locked activity found in this channel */
     bool ecg_removed;          /* and removed by template subtraction */
     size_t bursts_vetoed;      /* bursts refused because they coincide with QRS complexes */
-    double unscorable_min[RT_QUALITY_KINDS]; /* REM minutes marked, by kind */
+    double unscorable_min[RT_QUALITY_KINDS]; /* REM minutes marked, by rt_quality_kind */
     double unscorable_total_min;
     bool hp_above_band;        /* header prefilter: high-pass above the scoring band */
     bool lp_below_band;        /* header prefilter: low-pass below the scoring band */
@@ -270,16 +297,17 @@ typedef struct rt_channel_quality {
     bool spectrum_narrow;      /* either edge below -30 dB: band-limited when recorded */
 } rt_channel_quality;
 
-/* "clipping", "flat", "pop". */
+/* "clipping", "flat", "pop" for an rt_quality_kind; "unknown" out of range. */
 const char *rt_quality_kind_name(int kind);
 
+/* One role's channel; every field but present is 0 for an absent role. */
 typedef struct rt_channel_result {
     bool present;
-    char label[40];
-    double rate_hz;
+    char label[40];            /* as rt_role_source.label: the channel label or "A-B" */
+    double rate_hz;            /* sampling rate, Hz */
     bool low_rate;             /* below params.min_rate_hz: scored with a warning */
-    double band_high_hz;       /* low-pass corner actually used */
-    double rem_median_uv;      /* median rectified envelope over REM */
+    double band_high_hz;       /* low-pass corner actually used, Hz */
+    double rem_median_uv;      /* median rectified envelope over REM, uV */
     /* The atonic REM background (docs/scoring.md, "Background"), a rectified
      * envelope level in uV: in REM bout b at time t,
      * atonic_floor_uv * night->bout_lift[b][role] * exp(atonic_drift_per_h * (t - atonic_ref_s) / 3600);
@@ -475,13 +503,19 @@ typedef struct rt_person {
     char sex;                  /* 'F', 'M', or 0 when not given */
 } rt_person;
 
+
+/* The result of one night. Made only by rt_night_score (never declare one:
+ * it is a large struct, about 26 kB on x86_64, mostly fixed text arrays) and freed with
+ * rt_night_free; the arrays it points to belong to it, so a struct copy
+ * shares them and must not outlive it. Its layout is public for the reports
+ * and may grow between versions. Texts are NUL-terminated UTF-8. */
 typedef struct rt_night {
-    char recording_path[4096];
-    double recording_s;
-    size_t rem_epochs;
-    double rem_minutes;
-    double scorable_minutes;
-    size_t n_bouts;
+    char recording_path[4096];           /* as given to the scorer */
+    double recording_s;                  /* recording length, s */
+    size_t rem_epochs;                   /* 30-s epochs staged R */
+    double rem_minutes;                  /* rem_epochs / 2 */
+    double scorable_minutes;             /* REM minutes with a scorable chin */
+    size_t n_bouts;                      /* REM bouts (runs of R epochs) */
     double nrem_reference_uv;            /* AASM chin reference; NaN when no NREM */
     rt_role_map roles;                   /* the channels each role was read from */
     rt_channel_result channel[RT_ROLE_COUNT];
@@ -489,14 +523,15 @@ typedef struct rt_night {
     rt_cutoffs cutoffs;
     rt_score_params params;
     rt_review_level level;
-    size_t n_reasons;
+    size_t n_reasons;                    /* at most RT_IX_COUNT + 4; more are dropped */
     char reasons[RT_IX_COUNT + 4][240];  /* plain-words reasons for the level */
-    size_t n_warnings;
-    char warnings[16][240];
+    size_t n_warnings;                   /* at most 16; more are dropped */
+    char warnings[16][240];              /* about channels and filters, in plain words */
     rt_index_id headline;                /* the "REM with preserved muscle activity" index */
-    size_t n_epochs;  rt_epoch_result *epochs;  /* REM epochs, in time order */
-    size_t n_minis3;  rt_mini *minis3;          /* 3-s REM mini-epochs */
-    size_t n_minis2;  rt_mini *minis2;          /* 2-s REM mini-epochs (Montreal) */
+    size_t n_epochs;  rt_epoch_result *epochs;  /* REM epochs, in time order (= rem_epochs) */
+    size_t n_minis3;  rt_mini *minis3;          /* 3-s REM mini-epochs, 10 per epoch:
+                                                   minis3[10 e + k] is mini k of epochs[e] */
+    size_t n_minis2;  rt_mini *minis2;          /* 2-s REM mini-epochs (Montreal), 15 per epoch */
     size_t n_bursts;  rt_burst *bursts;         /* AASM/SINBAR/Montreal bursts in REM */
     double *bout_lift;   /* n_bouts x RT_ROLE_COUNT: each bout's atonic level over the floor
                             line (rt_night_background_uv); NaN for an absent role */
@@ -520,14 +555,18 @@ typedef struct rt_night {
     struct rt_night_corrections *corrections;
 } rt_night;
 
-/* Scores one night. cutoffs may be NULL (published); params may be NULL
- * (defaults). Besides the indices and the review level it fills what the
- * staging covers (night->staging: staged time, unstaged ends, gaps) and the
- * reservations that limit the level (night->reservations). Fails with RT_ERR_STAGING when the staging does not use 30-s
- * epochs, RT_ERR_USAGE on a parameter out of range, RT_ERR_NOMEM, and with
- * the reader's status on a recording that cannot be read. A night without REM
- * or without a chin channel is a result, not a failure: its level is "not
- * assessable" with the reason. */
+/* Scores one night. rec, roles, tl and out are required; cutoffs may be NULL
+ * (published); params may be NULL (defaults). Besides the indices and the
+ * review level it fills what the staging covers (night->staging: staged
+ * time, unstaged ends, gaps) and the reservations that limit the level
+ * (night->reservations). Fails with RT_ERR_USAGE on a NULL argument or a
+ * parameter out of range (rt_score_params_check), RT_ERR_STAGING when the
+ * staging does not use 30-s epochs, RT_ERR_NOMEM, and with the reader's status
+ * (RT_ERR_IO, RT_ERR_RECORDING) on a recording that cannot be read. A night
+ * without REM, with too little scorable REM (params.min_scorable_min) or
+ * without a chin channel is a result, not a failure: RT_OK, its level
+ * RT_REVIEW_NOT_ASSESSABLE with the reason in night->reasons. The staging is
+ * not checked against the recording's length here: call rt_timeline_check. */
 rt_status rt_night_score(rt_recording *rec, const rt_role_map *roles, const rt_timeline *tl,
                          const rt_score_params *params, const rt_cutoffs *cutoffs,
                          rt_night **out, rt_error *err);

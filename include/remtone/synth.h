@@ -92,8 +92,13 @@ typedef struct rt_synth_options {
  * no artifacts, no difficulty switch (drift_end 1, every other switch 0). */
 void rt_synth_options_default(rt_synth_options *options);
 
-/* Writes dir/night.edf, dir/stages.csv, dir/events.csv and dir/truth.json;
- * dir must exist. Each file is written to a temporary name and renamed. */
+/* Writes dir/stages.csv, dir/events.csv, dir/truth.json and then
+ * dir/night.edf; dir must exist. Each file is written to a temporary name and
+ * renamed. options may be NULL (the defaults); a negative start_hour means
+ * the default start. RT_ERR_USAGE when an option is outside its range (the
+ * message names it, or the folder's path is too long), RT_ERR_IO when dir is
+ * not a folder or a file cannot be written (the files written before it
+ * stay), RT_ERR_NOMEM. */
 rt_status rt_synth_write(const rt_synth_options *options, const char *dir, rt_error *err);
 
 #ifdef __cplusplus

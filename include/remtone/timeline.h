@@ -8,7 +8,10 @@
  * Epochs nobody scored stay RT_STAGE_UNSCORED: they are never guessed.
  *
  * Ownership: rt_timeline_new() makes an object (*out) freed by rt_timeline_free();
- * the stages and events arrays belong to it. Fields are read-only for callers. */
+ * the stages, events and manual arrays belong to it. A timeline is made only
+ * by rt_timeline_new (never declare or copy one: the library keeps the order
+ * check's bookkeeping beside the public fields) and changed only through the
+ * functions below; its fields are public for reading. */
 #ifndef REMTONE_TIMELINE_H
 #define REMTONE_TIMELINE_H
 
@@ -62,23 +65,19 @@ typedef struct rt_manual_mini {
 } rt_manual_mini;
 
 typedef struct rt_timeline {
-    double epoch_s;          /* epoch length in seconds (30 unless a scoring file says otherwise) */
+    double epoch_s;          /* epoch length in seconds, > 0 (30 unless a scoring file says
+                                otherwise; rt_night_score needs 30) */
     size_t n_epochs;         /* epochs from the recording start to the last scored epoch */
-    unsigned char *stages;   /* n_epochs values of rt_stage; epoch i covers [i*epoch_s, (i+1)*epoch_s) */
+    unsigned char *stages;   /* n_epochs values of rt_stage; epoch i covers [i*epoch_s, (i+1)*epoch_s);
+                                NULL when n_epochs is 0 */
     size_t n_events;
-    rt_event *events;        /* ordered by onset */
-    double lights_off_s;     /* analysis starts here; 0 when not given */
-    double lights_on_s;      /* analysis ends here; negative when not given */
+    rt_event *events;        /* n_events, ordered by onset (NULL when none) */
+    double lights_off_s;     /* analysis starts here, s from the recording start; 0 when not given */
+    double lights_on_s;      /* analysis ends here, s; negative when not given */
     size_t n_manual;         /* manual RSWA scoring, when the scoring file holds one */
-    rt_manual_mini *manual;  /* ordered by onset, then role */
+    rt_manual_mini *manual;  /* n_manual, ordered by onset, then role (NULL when none) */
     char scorer[128];        /* who scored the night ("" when unknown) */
-    char scored_on[32];      /* when, as written in the scoring file */
-    /* Bookkeeping of rt_timeline_add_stage_run (not for callers): start and
-     * end in seconds of the latest stage run added, and its line (0 = none),
-     * so that an out-of-order or overlapping entry can name both places. */
-    double last_run_start_s;
-    double last_run_end_s;
-    long last_run_line;
+    char scored_on[32];      /* when, as written in the scoring file ("" when unknown) */
 } rt_timeline;
 
 /* Short stage name: "?", "W", "N1", "N2", "N3", "R", "MT". */
@@ -143,14 +142,19 @@ void rt_timeline_free(rt_timeline *tl);
  * order check, so n_epochs ends at the last epoch with a real stage. Runs may
  * not reach past 31 days. Messages start with `source` (a file name, or a
  * place such as "night.edf: annotation 7") and, when line > 0, "line N".
- * Returns RT_ERR_STAGING or RT_ERR_NOMEM on failure, leaving tl unchanged. */
+ * Returns RT_ERR_STAGING or RT_ERR_NOMEM on failure, leaving tl unchanged
+ * (RT_ERR_USAGE when tl is NULL, RT_ERR_INTERNAL when stage is not an
+ * rt_stage). */
 rt_status rt_timeline_add_stage_run(rt_timeline *tl, double start_s, double duration_s,
                                     rt_stage stage, const char *source, long line,
                                     rt_error *err);
 
 /* Adds an event, keeping events ordered by onset (events of equal onset keep
  * the order they were added in). onset_s >= 0 and duration_s >= 0, both
- * finite; source and line as for rt_timeline_add_stage_run. */
+ * finite, ending within 31 days; source and line as for
+ * rt_timeline_add_stage_run. RT_ERR_STAGING or RT_ERR_NOMEM on failure,
+ * leaving tl unchanged (RT_ERR_USAGE when tl is NULL, RT_ERR_INTERNAL when
+ * type is not an rt_event_type). */
 rt_status rt_timeline_add_event(rt_timeline *tl, double onset_s, double duration_s,
                                 rt_event_type type, const char *source, long line,
                                 rt_error *err);

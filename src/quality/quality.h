@@ -24,11 +24,16 @@
 
 /* ---- marks of stretches that cannot be scored --------------------------- */
 
+/* The public rt_quality_kind (include/remtone/score.h) under the detectors'
+ * names: one list, so a mark's reason indexes unscorable_min directly. */
 typedef enum rt_quality_reason {
-    RT_QUALITY_CLIPPING = 0, /* samples at or within 0.1 % of range of the physical limits */
-    RT_QUALITY_FLAT,         /* constant samples, or near-zero activity: detached lead */
-    RT_QUALITY_POP,          /* electrode pop: a step or spike far above the local activity */
-    RT_QUALITY_REASON_COUNT
+    RT_QUALITY_CLIPPING = RT_QUALITY_KIND_CLIPPING, /* samples at or within 0.1 % of range of
+                                                       the physical limits */
+    RT_QUALITY_FLAT = RT_QUALITY_KIND_FLAT, /* constant samples, or near-zero activity:
+                                               detached lead */
+    RT_QUALITY_POP = RT_QUALITY_KIND_POP,   /* electrode pop: a step or spike far above the
+                                               local activity */
+    RT_QUALITY_REASON_COUNT = RT_QUALITY_KINDS
 } rt_quality_reason;
 
 /* "clipping", "flat", "pop"; "unknown" out of range. */

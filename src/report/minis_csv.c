@@ -30,7 +30,7 @@ static void excluded_text(const rt_mini *m, rt_role role, char *buf, size_t cap)
         return;
     size_t len = 0;
     for (int t = 0; t < RT_EVENT_TYPE_COUNT; t++)
-        if (m->excluded_by & (1u << t))
+        if (m->excluded_by & RT_EXCLUDED_BY_EVENT(t))
             len += (size_t)snprintf(buf + len, len < cap ? cap - len : 0, "%s%s", len ? "+" : "",
                                     rt_event_type_name((rt_event_type)t));
     if (len == 0)

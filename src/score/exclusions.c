@@ -84,7 +84,7 @@ rt_status rt_exclusions_build(const rt_timeline *tl, const rt_score_params *p,
         }
         double a = e->onset_s - p->event_margin_s;
         double b = e->onset_s + e->duration_s + p->event_margin_s;
-        mark_interval(mask, bouts, n_bouts, tl->epoch_s, a, b, 1u << e->type);
+        mark_interval(mask, bouts, n_bouts, tl->epoch_s, a, b, RT_EXCLUDED_BY_EVENT(e->type));
     }
     if (tl->lights_off_s > 0.0)
         mark_interval(m->global, bouts, n_bouts, tl->epoch_s, -1.0, tl->lights_off_s,

@@ -1,6 +1,6 @@
 /* Event-aware scoring: which REM seconds leave the count, and why
  * (docs/exclusions.md). Reasons are bit sets of rt_event_type, plus one bit
- * for time outside lights-off .. lights-on. */
+ * for time outside lights-off .. lights-on and one per quality mark kind. */
 #ifndef REMTONE_EXCLUSIONS_H
 #define REMTONE_EXCLUSIONS_H
 
@@ -8,9 +8,11 @@
 
 #include "night_internal.h"
 
-#define RT_EXCLUDED_BY_LIGHTS (1u << 15)
-/* Signal quality marks (clipping, flat, pop) use bits 8, 9 and 10. */
-#define RT_EXCLUDED_BY_QUALITY(kind) (1u << (8 + (kind)))
+/* The reason bits are RT_EXCLUDED_BY_* (include/remtone/score.h): events,
+ * quality marks and lights, as rt_mini.excluded_by reports them. They must
+ * stay apart and fit the 16-bit masks below. */
+_Static_assert(RT_EVENT_TYPE_COUNT <= 8 && 8 + RT_QUALITY_KINDS <= 15,
+               "RT_EXCLUDED_BY_* bits overlap or do not fit unsigned short");
 
 typedef struct rt_exclusion_masks {
     size_t n_seconds;                      /* REM seconds of the night, bouts in order */

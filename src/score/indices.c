@@ -337,7 +337,7 @@ static rt_status summarise_exclusions(rt_night *night, rt_error *err)
         if (!bits)
             continue;
         x->total_minutes += 3.0 / 60.0;
-        if (bits & (1u << 15)) {
+        if (bits & RT_EXCLUDED_BY_LIGHTS) {
             x->outside_lights_minutes += 3.0 / 60.0;
             continue;
         }
@@ -346,7 +346,7 @@ static rt_status summarise_exclusions(rt_night *night, rt_error *err)
             continue;
         }
         for (int t = 0; t < RT_EVENT_TYPE_COUNT; t++)
-            if (bits & (1u << t)) {
+            if (bits & RT_EXCLUDED_BY_EVENT(t)) {
                 x->minutes[t] += 3.0 / 60.0;
                 break;
             }

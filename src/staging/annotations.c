@@ -16,6 +16,7 @@
 
 #include "internal.h"
 #include "remtone/timeline.h"
+#include "staging_internal.h"
 
 /* Largest distance of a stage onset or duration from the epoch grid (seconds). */
 #define ANNOTATION_GRID_TOL_S 1e-3
@@ -170,7 +171,7 @@ rt_status rt_timeline_load_annotations(rt_timeline *tl, const rt_recording *rec,
     const char *path = rt_recording_path(rec);
     if (!path)
         path = "recording";
-    if (want_stages && (tl->n_epochs > 0 || tl->last_run_end_s > 0.0))
+    if (want_stages && rt_timeline_has_stage_runs(tl))
         return rt_fail(err, RT_ERR_STAGING, "%s: stages are already loaded from another source",
                        path);
     if (!want_stages && !want_events)

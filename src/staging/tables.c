@@ -20,6 +20,7 @@
 #include "internal.h"
 #include "table.h"
 #include "remtone/timeline.h"
+#include "staging_internal.h"
 
 enum {
     UNKNOWN_LISTED_MAX = 12, /* labels spelled out in the message; the rest are counted */
@@ -185,7 +186,7 @@ rt_status rt_timeline_load_stages_csv(rt_timeline *tl, const char *path, const r
 {
     if (!tl || !path)
         return rt_fail(err, RT_ERR_USAGE, "rt_timeline_load_stages_csv: NULL argument");
-    if (tl->n_epochs > 0 || tl->last_run_end_s > 0.0)
+    if (rt_timeline_has_stage_runs(tl))
         return rt_fail(err, RT_ERR_STAGING, "%s: stages are already loaded from another source",
                        path);
     return load_table(tl, path, map, true, err);

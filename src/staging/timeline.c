@@ -15,6 +15,7 @@
 #include "remtone/roles.h"
 #include "remtone/timeline.h"
 #include "table.h"
+#include "staging_internal.h"
 
 /* Times on the epoch grid are compared within this tolerance (seconds): far
  * below any sampling interval, far above the rounding of decimal text. */
@@ -27,14 +28,18 @@ rt_status rt_timeline_new(rt_timeline **out, rt_error *err)
 {
     if (!out)
         return rt_fail(err, RT_ERR_USAGE, "rt_timeline_new: no place for the result");
-    rt_timeline *tl = *out = rt_calloc(1, sizeof *tl);
-    if (!tl)
+    *out = NULL;
+    rt_timeline_state *state = rt_calloc(1, sizeof *state);
+    if (!state)
         return rt_fail(err, RT_ERR_NOMEM, "out of memory for a timeline");
+    rt_timeline *tl = *out = &state->pub;
     tl->epoch_s = RT_EPOCH_S;
     tl->lights_off_s = 0.0;
     tl->lights_on_s = -1.0;
     return RT_OK;
 }
+
+static rt_timeline_state *state_of(rt_timeline *tl) { return (rt_timeline_state *)tl; }
 
 void rt_timeline_free(rt_timeline *tl)
 {
@@ -43,7 +48,7 @@ void rt_timeline_free(rt_timeline *tl)
     free(tl->stages);
     free(tl->events);
     free(tl->manual);
-    free(tl);
+    free(state_of(tl));
 }
 
 /* "file line 7" or just "file" (when line <= 0) into buf. */
@@ -58,9 +63,9 @@ static const char *place(char *buf, size_t cap, const char *source, long line)
     return buf;
 }
 
-static bool has_stage_runs(const rt_timeline *tl)
+bool rt_timeline_has_stage_runs(const rt_timeline *tl)
 {
-    return tl->n_epochs > 0 || tl->last_run_end_s > 0.0;
+    return tl->n_epochs > 0 || ((const rt_timeline_state *)tl)->last_run_end_s > 0.0;
 }
 
 rt_status rt_timeline_add_stage_run(rt_timeline *tl, double start_s, double duration_s,
@@ -96,21 +101,22 @@ rt_status rt_timeline_add_stage_run(rt_timeline *tl, double start_s, double dura
         return rt_fail(err, RT_ERR_STAGING,
                        "%s: duration %.10g s is not a whole number of %g-s epochs", at,
                        duration_s, ep);
-    if (has_stage_runs(tl)) {
+    rt_timeline_state *run = state_of(tl);
+    if (rt_timeline_has_stage_runs(tl)) {
         char prev[64];
-        if (tl->last_run_line > 0)
-            snprintf(prev, sizeof prev, "line %ld", tl->last_run_line);
+        if (run->last_run_line > 0)
+            snprintf(prev, sizeof prev, "line %ld", run->last_run_line);
         else
             snprintf(prev, sizeof prev, "the previous entry");
-        if (start_s < tl->last_run_start_s - GRID_TOL_S)
+        if (start_s < run->last_run_start_s - GRID_TOL_S)
             return rt_fail(err, RT_ERR_STAGING,
                            "%s: entries are not in time order: this one starts at %.10g s, "
                            "before %s (which starts at %.10g s)",
-                           at, start_s, prev, tl->last_run_start_s);
-        if (start_s < tl->last_run_end_s - GRID_TOL_S)
+                           at, start_s, prev, run->last_run_start_s);
+        if (start_s < run->last_run_end_s - GRID_TOL_S)
             return rt_fail(err, RT_ERR_STAGING,
                            "%s: entry at %.10g-%.10g s overlaps %s (%.10g-%.10g s)", at, start_s,
-                           start_s + duration_s, prev, tl->last_run_start_s, tl->last_run_end_s);
+                           start_s + duration_s, prev, run->last_run_start_s, run->last_run_end_s);
     }
     size_t first = (size_t)k_start;
     size_t end = first + (size_t)k_dur;
@@ -126,9 +132,9 @@ rt_status rt_timeline_add_stage_run(rt_timeline *tl, double start_s, double dura
         }
         memset(tl->stages + first, (int)stage, end - first);
     }
-    tl->last_run_start_s = k_start * ep;
-    tl->last_run_end_s = (k_start + k_dur) * ep;
-    tl->last_run_line = line > 0 ? line : 0;
+    run->last_run_start_s = k_start * ep;
+    run->last_run_end_s = (k_start + k_dur) * ep;
+    run->last_run_line = line > 0 ? line : 0;
     return RT_OK;
 }
 
@@ -194,9 +200,9 @@ rt_status rt_timeline_merge(rt_timeline *tl, rt_timeline *src, rt_error *err)
 {
     if (!tl || !src)
         return rt_fail(err, RT_ERR_USAGE, "rt_timeline_merge: NULL timeline");
-    bool take_stages = has_stage_runs(src);
+    bool take_stages = rt_timeline_has_stage_runs(src);
     bool take_manual = src->n_manual > 0;
-    if (take_stages && has_stage_runs(tl))
+    if (take_stages && rt_timeline_has_stage_runs(tl))
         return rt_fail(err, RT_ERR_STAGING,
                        "stages are already loaded: a timeline takes its stages from one source");
     if (take_manual && tl->n_manual > 0)
@@ -204,7 +210,7 @@ rt_status rt_timeline_merge(rt_timeline *tl, rt_timeline *src, rt_error *err)
                        "a manual RSWA scoring is already loaded: a timeline holds one");
     /* The epoch length belongs to whoever brings the grid (stages or manual
      * minis, both laid on it); a timeline with neither takes src's. */
-    bool tl_has_grid = has_stage_runs(tl) || tl->n_manual > 0;
+    bool tl_has_grid = rt_timeline_has_stage_runs(tl) || tl->n_manual > 0;
     if ((take_stages || take_manual) && tl_has_grid && tl->epoch_s != src->epoch_s)
         return rt_fail(err, RT_ERR_STAGING, "epoch lengths differ (%g s and %g s)", tl->epoch_s,
                        src->epoch_s);
@@ -248,13 +254,14 @@ rt_status rt_timeline_merge(rt_timeline *tl, rt_timeline *src, rt_error *err)
         free(tl->stages);
         tl->stages = src->stages;
         tl->n_epochs = src->n_epochs;
-        tl->last_run_start_s = src->last_run_start_s;
-        tl->last_run_end_s = src->last_run_end_s;
-        tl->last_run_line = src->last_run_line;
+        rt_timeline_state *to = state_of(tl), *from = state_of(src);
+        to->last_run_start_s = from->last_run_start_s;
+        to->last_run_end_s = from->last_run_end_s;
+        to->last_run_line = from->last_run_line;
         src->stages = NULL;
         src->n_epochs = 0;
-        src->last_run_start_s = src->last_run_end_s = 0.0;
-        src->last_run_line = 0;
+        from->last_run_start_s = from->last_run_end_s = 0.0;
+        from->last_run_line = 0;
     }
     if (src->lights_off_s > 0.0)
         tl->lights_off_s = src->lights_off_s;

@@ -345,7 +345,7 @@ rt_status rt_synth_place_short_bursts(synth_plan *plan, const double burst_minis
     size_t n_slots = (size_t)SYNTH_ROLES * (size_t)plan->n_seconds * 2;
     c.slot = malloc(n_slots * sizeof *c.slot);
     int *rem_list = rt_calloc((size_t)rem_epochs + 1, sizeof *rem_list);
-    int *cand = rt_calloc((size_t)rem_epochs * 10 + 1, sizeof *cand);
+    int *cand = rt_calloc((size_t)rem_epochs * RT_MINIS3_PER_EPOCH + 1, sizeof *cand);
     unsigned char *active = rt_calloc((size_t)plan->n_epochs + 1, 1);
     if (!c.slot || !rem_list || !cand || !active) {
         free(c.slot);
@@ -372,7 +372,7 @@ rt_status rt_synth_place_short_bursts(synth_plan *plan, const double burst_minis
         int base = 0, holding = 0, n_cand = 0;
         for (int b = 0; b < plan->n_bouts; b++)
             for (int e = plan->bouts[b].first_epoch; e < plan->bouts[b].first_epoch + plan->bouts[b].epochs; e++)
-                for (int k = 0; k < 10; k++) {
+                for (int k = 0; k < RT_MINIS3_PER_EPOCH; k++) {
                     long m0 = (long)e * RT_EPOCH_WHOLE_S + 3 * k;
                     if (role == SYNTH_CHIN && plan->tonic[e])
                         continue;

@@ -480,7 +480,7 @@ static rt_status place_bursts(synth_plan *plan, const profile_rates *rates, synt
     int rem_epochs = 0;
     for (int b = 0; b < plan->n_bouts; b++)
         rem_epochs += plan->bouts[b].epochs;
-    int n_minis = rem_epochs * 10;
+    int n_minis = rem_epochs * RT_MINIS3_PER_EPOCH;
     long *mini_start = rt_calloc((size_t)n_minis + 1, sizeof *mini_start);
     int *mini_bout = rt_calloc((size_t)n_minis + 1, sizeof *mini_bout);
     int *cand = rt_calloc((size_t)n_minis + 1, sizeof *cand);
@@ -512,7 +512,7 @@ static rt_status place_bursts(synth_plan *plan, const profile_rates *rates, synt
     int m = 0;
     for (int b = 0; b < plan->n_bouts; b++)
         for (int e = 0; e < plan->bouts[b].epochs; e++)
-            for (int k = 0; k < 10; k++, m++) {
+            for (int k = 0; k < RT_MINIS3_PER_EPOCH; k++, m++) {
                 mini_start[m] = (long)(plan->bouts[b].first_epoch + e) * RT_EPOCH_WHOLE_S + 3 * k;
                 mini_bout[m] = b;
             }

@@ -141,7 +141,7 @@ static void count_epoch(const synth_plan *plan, int e, int exclude, double nrem_
     double to_nrem = tonic ? chin_level_uv(plan, e) / nrem_min_uv : 0.0;
     int aasm_tonic = tonic && to_nrem > 1.0;
     int n_chin = 0, n_any = 0, combo = 0;
-    for (int m = 0; m < 10; m++) {
+    for (int m = 0; m < RT_MINIS3_PER_EPOCH; m++) {
         long s0 = t + 3 * m;
         /* AASM counts its own bursts; SINBAR its own */
         n_chin += span_holds(plan, SYNTH_CHIN, s0, 3, SYNTH_HOLD_AASM);
@@ -158,7 +158,7 @@ static void count_epoch(const synth_plan *plan, int e, int exclude, double nrem_
         c->m3_fds += arm;
         c->m3_combo += chin || tonic || arm;
     }
-    for (int m = 0; m < 15; m++) {
+    for (int m = 0; m < RT_MINIS2_PER_EPOCH; m++) {
         long s0 = t + 2 * m;
         if (exclude && span_excluded(plan, s0, 2))
             continue;
@@ -279,7 +279,7 @@ static json_t *minis_json(const synth_plan *plan, bool *ok)
     for (int b = 0; b < plan->n_bouts; b++) {
         const synth_bout *bout = &plan->bouts[b];
         for (int e = bout->first_epoch; e < bout->first_epoch + bout->epochs; e++)
-            for (int m = 0; m < 10; m++) {
+            for (int m = 0; m < RT_MINIS3_PER_EPOCH; m++) {
                 long s0 = (long)e * RT_EPOCH_WHOLE_S + 3 * m;
                 json_t *o = json_object(), *phasic = json_array(), *tonic = json_array();
                 json_t *aasm = json_array(), *sinbar = json_array();
