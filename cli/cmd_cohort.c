@@ -19,7 +19,7 @@ static const cli_option OPTIONS[] = {
     {"force", 0, KEY_FORCE, NULL, "rescore nights whose result is current"},
     {"part", 1, KEY_PART, "K/N", "score only slice K of N (1-based, by a hash of the id); "
                                  "run cohort-merge after all parts"},
-    {"cutoffs", 1, KEY_CUTOFFS, "FILE", "a lab's own cutoffs (CSV index,cutoff)"},
+    {"cutoffs", 1, KEY_CUTOFFS, "FILE", "a lab's own cutoffs (CSV index,cutoff,unit)"},
     {"positive", 1, KEY_POSITIVE, "GROUP", "group of the positive class for calibration (default case)"},
     {"negative", 1, KEY_NEGATIVE, "GROUP", "group of the negative class (default control)"},
     {"min-rem", 1, KEY_MIN_REM, "MIN", "least scorable REM minutes for an assessable night (default 5)"},

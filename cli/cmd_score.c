@@ -15,7 +15,7 @@ static const cli_option OPTIONS[] = {
     {"stages", 1, KEY_STAGES, "FILE", "staging: stage table CSV or EDF+ (default: the recording's own annotations)"},
     {"events", 1, KEY_EVENTS, "FILE", "event table CSV (arousals, respiratory events, ...)"},
     {"json", 1, KEY_JSON, "PATH", "write the night result as JSON ('-' for standard output)"},
-    {"cutoffs", 1, KEY_CUTOFFS, "FILE", "a lab's own cutoffs (CSV index,cutoff) instead of the published ones"},
+    {"cutoffs", 1, KEY_CUTOFFS, "FILE", "a lab's own cutoffs (CSV index,cutoff,unit) instead of the published ones"},
     {"label-map", 1, KEY_LABELS, "FILE", "map local stage or event labels (CSV label,meaning)"},
     {"min-rem", 1, KEY_MIN_REM, "MIN", "least scorable REM minutes for an assessable night (default 5)"},
     {"quiet", 0, KEY_QUIET, NULL, "do not print the text summary"},

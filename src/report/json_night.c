@@ -1,4 +1,4 @@
-/* The night result as JSON (schema "remtone-night/2", docs/night-json.md),
+/* The night result as JSON (schema "remtone-night/3", docs/night-json.md),
  * built with jansson and written atomically. */
 #include <jansson.h>
 #include <math.h>
@@ -40,9 +40,23 @@ static json_t *indices_json(const rt_night *night)
         if (rules[i].lower_is_worse && night->cutoffs.has[i])
             rt_json_set(x, "normal_from", number(night->cutoffs.normal_from[i]), &ok);
         rt_json_set(x, "status", json_string(rt_index_status_name(v->status)), &ok);
-        rt_json_set(x, "source", json_string(rules[i].source), &ok);
+        int reached = rt_report_cutoff_reached(night, i);
+        rt_json_set(x, "cutoff_reached", reached < 0 ? json_null() : json_boolean(reached), &ok);
+        char words[96], src[600], counted[160];
+        rt_report_status_words(night, i, words, sizeof words);
+        rt_json_set(x, "cutoff_words", json_string(words), &ok);
+        rt_cutoff_source(&night->cutoffs, i, src, sizeof src);
+        rt_json_set(x, "source", rt_json_text(src), &ok);
+        rt_json_set(x, "cutoff_origin",
+                    json_string(!night->cutoffs.has[i] ? "none"
+                                : rt_cutoff_is_lab(&night->cutoffs, i) ? "lab" : "published"), &ok);
+        rt_json_set(x, "definition_source", json_string(rules[i].source), &ok);
         rt_json_set(x, "numerator", json_integer((json_int_t)v->numerator), &ok);
         rt_json_set(x, "denominator", json_integer((json_int_t)v->denominator), &ok);
+        rt_json_set(x, "numerator_unit", json_string(rt_report_numerator_unit(i)), &ok);
+        rt_json_set(x, "denominator_unit", json_string(rt_report_denominator_unit(i)), &ok);
+        rt_report_counted(night, i, counted, sizeof counted);
+        rt_json_set(x, "counted", json_string(counted), &ok);
         if (v->reason[0])
             rt_json_set(x, "reason", rt_json_text(v->reason), &ok);
         rt_json_set(o, rules[i].id, rt_json_done(x, ok), &ok);
@@ -294,7 +308,7 @@ rt_status rt_night_write_json(const rt_night *night, const rt_run_inputs *inputs
         return st;
     bool ok = true;
     json_t *root = json_object();
-    rt_json_set(root, "schema", json_string("remtone-night/2"), &ok);
+    rt_json_set(root, "schema", json_string("remtone-night/3"), &ok);
     rt_json_set(root, "rem", json_pack("{s:I,s:f,s:f,s:I}", "epochs",
                                        (json_int_t)night->rem_epochs, "minutes",
                                        night->rem_minutes, "scorable_minutes",
@@ -307,6 +321,13 @@ rt_status rt_night_write_json(const rt_night *night, const rt_run_inputs *inputs
     json_t *head = json_object();
     rt_json_set(head, "index", json_string(rt_index_rules()[night->headline].id), &ok);
     rt_json_set(head, "value", number(rounded(night->index[night->headline].value, 2)), &ok);
+    rt_json_set(head, "preferred", json_string(rt_index_rules()[RT_IX_SINBAR_COMBINED_3S].id), &ok);
+    int head_reached = rt_report_cutoff_reached(night, (int)night->headline);
+    rt_json_set(head, "cutoff_reached", head_reached < 0 ? json_null() : json_boolean(head_reached),
+                &ok);
+    char head_text[1600];
+    rt_report_headline(night, head_text, sizeof head_text);
+    rt_json_set(head, "text", rt_json_text(head_text), &ok);
     rt_json_set(root, "headline", rt_json_done(head, ok), &ok);
     rt_json_set(root, "indices", indices_json(night), &ok);
     json_t *rev = json_object();
@@ -314,9 +335,9 @@ rt_status rt_night_write_json(const rt_night *night, const rt_run_inputs *inputs
     rt_json_set(rev, "level", json_string(rt_review_level_name(night->level)), &ok);
     rt_json_set(rev, "reasons", strings_json(night->reasons, night->n_reasons), &ok);
     rt_json_set(rev, "with_reservations", json_boolean(night->n_reservations > 0), &ok);
-    char statement[64];
+    char statement[700];
     rt_report_statement(night, statement, sizeof statement);
-    rt_json_set(rev, "statement", json_string(statement), &ok);
+    rt_json_set(rev, "statement", rt_json_text(statement), &ok);
     rt_json_set(root, "review", rt_json_done(rev, ok), &ok);
     rt_json_set(root, "reservations", reservations_json(night), &ok);
     rt_json_set(root, "exclusions", exclusions_json(night), &ok);

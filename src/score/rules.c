@@ -86,7 +86,7 @@ static const rt_index_rule RULES[RT_IX_COUNT] = {
     [RT_IX_RAI] = {"rai", "REM Atonia Index (1 = full atonia)", "ratio", true, true, 0.8, 0.9,
         SRC_RAI, false, 0.85, SRC_NORMS},
     [RT_IX_MONTREAL_LM_PER_H] = {"montreal.rem_leg_movements_per_h",
-        "leg movements in REM per hour (limb-movement events, else the leg EMG by the AASM rules)",
+        "leg movements in REM per hour",
         "/h", false, true, 24.0,
         NONE, SRC_MONTREAL, false, NONE, NULL},
 };

@@ -224,9 +224,10 @@ static void unverified_cutoff_is_context(void **state)
                                                     "at or above 27.0 %: cutoffs recalled"));
     rt_night_free(n);
 
-    /* a lab's own 30-s cutoff (a value other than the published one) decides */
+    /* a lab's own 30-s cutoff (a row of its cutoff file) decides */
     n = arm_night(6, 5);
     n->cutoffs.value[RT_IX_SINBAR_COMBINED_30S] = 28.0;
+    n->cutoffs.line[RT_IX_SINBAR_COMBINED_30S] = 2;
     summarise(n);
     assert_int_equal(n->level, RT_REVIEW_FLAGGED);
     assert_int_equal(n->n_reservations, 0);
@@ -374,19 +375,21 @@ static void ecg_wording(void **state)
     rt_night *n = one_epoch(0, true);
     summarise(n);
     char *t = summary_text(n);
-    assert_non_null(strstr(t, "ECG artifact in this EMG: not found"));
+    /* "none", not "not found": a reader took "ECG not found" on every EMG
+     * channel for a missing ECG lead (common practice: say what was looked for) */
+    assert_non_null(strstr(t, "ECG artifact in this channel: none"));
     assert_null(strstr(t, "ECG found"));
     free(t);
     rt_channel_quality *q = &n->channel[RT_ROLE_CHIN].quality;
     q->ecg_found = true;
     q->ecg_source = 2;
     t = summary_text(n);
-    assert_non_null(strstr(t, "ECG artifact in this EMG: found (beats from the chin itself)"));
+    assert_non_null(strstr(t, "ECG artifact in this channel: found (beats from the chin itself)"));
     free(t);
     q->ecg_removed = true;
     q->ecg_source = 1;
     t = summary_text(n);
-    assert_non_null(strstr(t, "ECG artifact in this EMG: found and removed (beats from the ECG channel)"));
+    assert_non_null(strstr(t, "ECG artifact in this channel: found and removed (beats from the ECG channel)"));
     free(t);
     rt_night_free(n);
 }

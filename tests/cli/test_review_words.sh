@@ -1,0 +1,162 @@
+#!/usr/bin/env bash
+# What the reports say, read back from the outputs themselves: the source of
+# each cutoff (published or a lab's file and line) and its unit; the headline
+# and the words "reached" / "not reached" in the text, the page and the JSON;
+# bars whose abnormal side is always to the right; the leg-movement row; the
+# 1-based epoch numbers with clock, seconds and video time in every output;
+# the evidence list; the wording of messages. Uses 1-hour synthetic nights.
+set -u
+bin=${REMTONE_BIN:?}
+py=/usr/bin/python3
+work="${REMTONE_TMP:-/tmp}/review_words"
+rm -rf "$work" && mkdir -p "$work"
+fails=0
+check() { # check NAME EXPECTED_EXIT CMD...
+  local name=$1 want=$2; shift 2
+  "$@" >"$work/out" 2>"$work/err"; local got=$?
+  if [ "$got" != "$want" ]; then
+    echo "FAIL $name: exit $got, want $want"; sed 's/^/    /' "$work/err" "$work/out" | head -12
+    fails=$((fails+1))
+  else
+    echo "ok   $name"
+  fi
+}
+has() { # has NAME FILE TEXT
+  if grep -qF -- "$3" "$2"; then echo "ok   $1"; else echo "FAIL $1: '$3' not in $2"; fails=$((fails+1)); fi
+}
+hasnt() { # hasnt NAME FILE TEXT
+  if grep -qF -- "$3" "$2"; then echo "FAIL $1: '$3' in $2"; fails=$((fails+1)); else echo "ok   $1"; fi
+}
+
+check synth 0 "$bin" synth --profile rbd --hours 1 --seed 12 --out "$work/n"
+n=$work/n
+
+# ---- 3. every cutoff carries its own source and unit -----------------------
+printf 'index,cutoff,unit\nsinbar.chin_any_3s,60,%%\nrai,0.5,ratio\nsinbar.chin_tonic_30s,20,%%\n' > "$work/lab.csv"
+check rules-lab 0 "$bin" rules --cutoffs "$work/lab.csv"
+cp "$work/out" "$work/rules.txt"
+# a lab's value is sourced to its file and line, the published value beside it
+has rules-lab-line "$work/rules.txt" "the lab's own: $work/lab.csv line 2"
+# 18.2 %: Frauscher et al. 2012, Sleep 35:835-847 (src/score/rules.c)
+has rules-lab-published "$work/rules.txt" "published: 18.2 %, Frauscher et al. 2012"
+check rules-lab-not-paper 0 "$py" - "$work/rules.txt" <<'PY'
+import sys
+rows = open(sys.argv[1]).read().split("\n")
+line = [r for r in rows if r.startswith("sinbar.chin_any_3s ")][0]
+assert ">=60" in line and "Frauscher" not in line, line          # the lab value never with the paper
+# 31.9 %: Frauscher et al. 2012, Sleep 35:835-847, results table
+line = [r for r in rows if r.startswith("sinbar.chin_any_fds_phasic_3s ")][0]
+assert ">=31.9" in line and "Frauscher et al. 2012" in line, line  # a published one keeps its paper
+PY
+# a share written where a percentage is meant is refused, naming file and line
+printf 'index,cutoff,unit\nsinbar.chin_any_3s,18.2,%%\nsinbar.chin_tonic_30s,0.3,ratio\n' > "$work/share.csv"
+check cutoff-share-refused 5 "$bin" rules --cutoffs "$work/share.csv"
+has cutoff-share-line "$work/err" "share.csv line 3: unit \"ratio\" does not fit sinbar.chin_tonic_30s"
+printf 'index,cutoff,unit\nrai,80,%%\n' > "$work/rai.csv"
+check cutoff-rai-percent-refused 5 "$bin" score "$n/night.edf" --stages "$n/stages.csv" --cutoffs "$work/rai.csv"
+has cutoff-rai-line "$work/err" "rai.csv line 2"
+# the format before the unit column: a clear refusal saying what to add
+printf 'index,cutoff\nsinbar.chin_any_3s,20\n' > "$work/old.csv"
+check cutoff-old-format 5 "$bin" score "$n/night.edf" --stages "$n/stages.csv" --cutoffs "$work/old.csv"
+has cutoff-old-says "$work/err" "old.csv line 1: the cutoff file has no \"unit\" column"
+
+check score-lab 0 "$bin" score "$n/night.edf" --stages "$n/stages.csv" --cutoffs "$work/lab.csv" --json "$work/lab.json" --html "$work/lab.html"
+cp "$work/out" "$work/lab.txt"
+# the level says which kind of cutoff was reached; a reason never quotes a
+# published value with the lab's file as its source or the reverse
+check lab-sources 0 "$py" - "$work/lab.json" "$work/lab.txt" "$work/lab.csv" <<'PY'
+import json, sys
+d = json.load(open(sys.argv[1])); text = open(sys.argv[2]).read(); lab = sys.argv[3]
+ix = d["indices"]
+assert ix["sinbar.chin_tonic_30s"]["source"] == lab + " line 4", ix["sinbar.chin_tonic_30s"]
+assert ix["sinbar.chin_tonic_30s"]["cutoff_origin"] == "lab"
+assert ix["montreal.tonic_chin"]["cutoff_origin"] == "published"
+assert ix["montreal.tonic_chin"]["source"].startswith("Montplaisir et al. 2010")
+for r in d["review"]["reasons"]:
+    if "the lab's cutoff" in r: assert "(" + lab + " line " in r, r
+    if "the published cutoff" in r: assert lab not in r, r
+st = d["review"]["statement"]
+assert d["review"]["level"] == "review"
+assert "published cutoffs and the lab's own (lab.csv) are reached" in st, st
+assert "REVIEW: published cutoffs and the lab's own (lab.csv) are reached" in text
+PY
+
+# ---- 4. the headline and the words "reached" / "not reached" ---------------
+printf 'index,cutoff,unit\nsinbar.chin_any_fds_phasic_3s,95,%%\n' > "$work/high.csv"
+check score-high 0 "$bin" score "$n/night.edf" --stages "$n/stages.csv" --cutoffs "$work/high.csv" --json "$work/high.json" --html "$work/high.html"
+cp "$work/out" "$work/high.txt"
+check score-plain 0 "$bin" score "$n/night.edf" --stages "$n/stages.csv" --json "$work/plain.json" --html "$work/plain.html"
+cp "$work/out" "$work/plain.txt"
+check synth-detached 0 "$bin" synth --profile rbd --hours 1 --seed 12 --detach 60 --out "$work/det"
+check score-detached 0 "$bin" score "$work/det/night.edf" --stages "$work/det/stages.csv" --json "$work/det.json" --html "$work/det.html"
+cp "$work/out" "$work/det.txt"
+check headline-words 0 "$py" - "$work" <<'PY'
+import json, sys, xml.etree.ElementTree as ET
+w = sys.argv[1]
+H = "{http://www.w3.org/1999/xhtml}"
+def page(name):
+    return ET.parse(w + "/" + name + ".html").getroot()
+def text_of(root, id_):
+    for e in root.iter():
+        if e.get("id") == id_: return "".join(e.itertext())
+    raise AssertionError("no #" + id_)
+for name in ("plain", "high", "det"):
+    d = json.load(open(w + "/" + name + ".json")); t = open(w + "/" + name + ".txt").read()
+    h = d["headline"]; root = page(name)
+    # one sentence, the same in the text summary, the page and the JSON
+    assert h["text"] in t, (name, h["text"])
+    assert text_of(root, "headline-cutoff") == h["text"], name
+    assert "not computed of REM" not in t and "not computed of REM" not in text_of(root, "headline")
+    # the level's statement carries "reached" in all three
+    st = d["review"]["statement"]
+    assert "reached" in st, st
+    assert text_of(root, "level").lower() == st.lower(), (text_of(root, "level"), st)
+# 31.9 %: Frauscher et al. 2012, Sleep 35:835-847 (the combined 3-s cutoff)
+plain = json.load(open(w + "/plain.json"))["headline"]
+assert plain["cutoff_reached"] is True and "the published cutoff 31.9 % is reached." in plain["text"]
+# a headline below its cutoff over a review level says why
+high = json.load(open(w + "/high.json"))
+assert high["headline"]["cutoff_reached"] is False and high["review"]["level"] == "review"
+assert "is not reached. The review level rests on other indices" in high["headline"]["text"], high["headline"]["text"]
+assert "; the lab's cutoff 95.0 % (" in high["headline"]["text"]
+# a detached chin: a sentence with the reason, no index switched silently
+det = json.load(open(w + "/det.json"))
+assert det["headline"]["cutoff_reached"] is None
+assert det["headline"]["text"].startswith("REM with preserved muscle activity cannot be computed: no scorable REM (chin EMG unusable"), det["headline"]["text"]
+assert text_of(page("det"), "headline") == "REM with preserved muscle activity: not computed"
+# the status words of every index, in the table and the JSON
+for name in ("plain", "high"):
+    d = json.load(open(w + "/" + name + ".json")); root = page(name)
+    rows = {tr.get("data-index"): [ "".join(td.itertext()) for td in tr.findall(H + "td")]
+            for tr in root.iter(H + "tr") if tr.get("data-index")}
+    for k, v in d["indices"].items():
+        words = v["cutoff_words"]
+        assert rows[k][5].startswith(words), (k, rows[k][5], words)
+        assert words.startswith({True: "reached", False: "not reached", None: "no"}[v["cutoff_reached"]]) \
+            or v["status"] == "not-computed", (k, words)
+PY
+# every bar: a reached cutoff is a bar past its tick, whichever the index's direction
+check bars-one-direction 0 "$py" - "$work" <<'PY'
+import json, sys, xml.etree.ElementTree as ET
+w = sys.argv[1]; S = "{http://www.w3.org/2000/svg}"
+for name in ("plain", "high"):
+    d = json.load(open(w + "/" + name + ".json"))
+    svg = [s for s in ET.parse(w + "/" + name + ".html").getroot().iter(S + "svg")
+           if s.get("aria-label") == "Each index against its cutoff"][0]
+    bar = None; seen = 0
+    for e in svg:
+        t = e.find(S + "title")
+        if e.tag == S + "rect" and t is not None:
+            bar = (t.text.split(":")[0], float(e.get("x")) + float(e.get("width")), e.get("fill"))
+        elif e.tag == S + "line" and e.get("stroke") == "#1b2430" and bar:
+            k, end, fill = bar; tick = float(e.get("x1")); v = d["indices"][k]
+            if v["cutoff_reached"] is not None:
+                assert (end >= tick - 0.01) == v["cutoff_reached"], (name, k, end, tick, v)
+                seen += 1
+            bar = None
+    assert seen >= 8, seen     # every index with a cutoff, the REM Atonia Index among them
+print("bars checked")
+PY
+
+echo "$fails failure(s)"
+[ "$fails" = 0 ]
