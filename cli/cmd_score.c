@@ -1,4 +1,6 @@
 /* remtone score REC --stages FILE: the night result. */
+#include <math.h>
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -8,7 +10,8 @@
 enum {
     KEY_STAGES = 1, KEY_EVENTS, KEY_JSON, KEY_CUTOFFS, KEY_LABELS, KEY_MIN_REM, KEY_QUIET,
     KEY_KEEP_ARTIFACTS, KEY_KEEP_SNORING, KEY_KEEP_RESPIRATORY, KEY_EVENT_MARGIN,
-    KEY_HTML, KEY_MINIS, KEY_ANNOTATIONS, KEY_SHOW_IDENTITY, KEY_RECORDING_ID, KEY_THREADS
+    KEY_HTML, KEY_MINIS, KEY_ANNOTATIONS, KEY_SHOW_IDENTITY, KEY_RECORDING_ID, KEY_THREADS,
+    KEY_EVIDENCE, KEY_VIDEO_OFFSET, KEY_VIDEO_START
 };
 
 static const cli_option OPTIONS[] = {
@@ -27,6 +30,9 @@ static const cli_option OPTIONS[] = {
     {"html", 1, KEY_HTML, "PATH", "write the review report, one self-contained HTML page ('-' for standard output)"},
     {"minis", 1, KEY_MINIS, "PATH", "write the audit table: one CSV row per REM 3-s mini-epoch and channel"},
     {"annotations", 1, KEY_ANNOTATIONS, "PATH", "write the detected activity as an EDF+ annotation file"},
+    {"evidence", 1, KEY_EVIDENCE, "PATH", "write every flagged REM epoch in time order as CSV ('-' for standard output)"},
+    {"video-offset", 1, KEY_VIDEO_OFFSET, "S", "the video started S seconds after the recording (negative: before); adds a video time to every evidence row"},
+    {"video-start", 1, KEY_VIDEO_START, "HH:MM:SS", "the clock time the video started; adds a video time to every evidence row"},
     {"show-identity", 0, KEY_SHOW_IDENTITY, NULL, "show the recording header's patient fields and date in the report"},
     {"recording-id", 1, KEY_RECORDING_ID, "ID", "name the recording in the report (default: its file name)"},
     {"threads", 1, KEY_THREADS, "N", "score with N threads, 1 to 256 (default: the processor cores "
@@ -37,7 +43,8 @@ static const cli_option OPTIONS[] = {
 
 typedef struct score_config {
     const char *stages, *events, *json, *cutoffs, *labels;
-    const char *html, *minis, *annotations;
+    const char *html, *minis, *annotations, *evidence;
+    const char *video_start;     /* HH:MM:SS, turned into an offset once the recording is open */
     rt_report_options report;
     double min_rem;
     int quiet;
@@ -62,6 +69,30 @@ static int on_option(void *ctx, int key, const char *arg)
     case KEY_HTML: c->html = arg; break;
     case KEY_MINIS: c->minis = arg; break;
     case KEY_ANNOTATIONS: c->annotations = arg; break;
+    case KEY_EVIDENCE: c->evidence = arg; break;
+    case KEY_VIDEO_START: {
+        int h, m, s, used = 0;
+        if (c->report.video_given ||
+            sscanf(arg, "%2d:%2d:%2d%n", &h, &m, &s, &used) != 3 || arg[used] || h < 0 ||
+            h > 23 || m < 0 || m > 59 || s < 0 || s > 59) {
+            fprintf(stderr, "remtone score: --video-start must be a clock time HH:MM:SS, given "
+                            "once and not with --video-offset, got '%s'\n", arg);
+            return EXIT_USAGE;
+        }
+        c->video_start = arg;
+        c->report.video_given = true;
+        break;
+    }
+    case KEY_VIDEO_OFFSET:
+        c->report.video_offset_s = strtod(arg, &end);
+        if (end == arg || *end || c->report.video_given ||
+            !(fabs(c->report.video_offset_s) <= 86400.0)) {
+            fprintf(stderr, "remtone score: --video-offset must be seconds within one day, given "
+                            "once and not with --video-start, got '%s'\n", arg);
+            return EXIT_USAGE;
+        }
+        c->report.video_given = true;
+        break;
     case KEY_SHOW_IDENTITY: c->report.show_identity = true; break;
     case KEY_RECORDING_ID: c->report.recording_id = arg; break;
     case KEY_KEEP_ARTIFACTS: c->params.exclude_artifacts = false; break;
@@ -142,7 +173,7 @@ static int run(int argc, char **argv)
     const char *inputs[] = {pos[0], c.stages, c.events, c.cutoffs, c.labels};
     size_t n_inputs = sizeof inputs / sizeof inputs[0];
     const cli_output outputs[] = {{"json", c.json}, {"html", c.html}, {"minis", c.minis},
-                                  {"annotations", c.annotations}};
+                                  {"annotations", c.annotations}, {"evidence", c.evidence}};
     if ((rc = cli_check_outputs("score", outputs, sizeof outputs / sizeof outputs[0], inputs,
                                 n_inputs)) != EXIT_OK)
         return rc;
@@ -153,6 +184,11 @@ static int run(int argc, char **argv)
     rt_night *night = NULL;
     int output_error = 0;
     rt_status st = load_inputs(&c, pos[0], &l, &err);
+    if (st == RT_OK && c.video_start) {
+        int h = 0, m = 0, s = 0;
+        sscanf(c.video_start, "%d:%d:%d", &h, &m, &s); /* checked in on_option */
+        c.report.video_offset_s = rt_video_offset_from_clock(l.rec, h, m, s);
+    }
     if (st == RT_OK) {
         if (c.min_rem >= 0)
             c.params.min_scorable_min = c.min_rem;
@@ -160,10 +196,11 @@ static int run(int argc, char **argv)
                                     &night, &err);
     }
     if (st == RT_OK && !c.quiet && !(c.json && strcmp(c.json, "-") == 0) &&
-        !(c.html && strcmp(c.html, "-") == 0) && !(c.minis && strcmp(c.minis, "-") == 0))
+        !(c.html && strcmp(c.html, "-") == 0) && !(c.minis && strcmp(c.minis, "-") == 0) &&
+        !(c.evidence && strcmp(c.evidence, "-") == 0))
         st = rt_night_write_text(night, stdout, &err);
     if (st == RT_OK && c.json) {
-        rt_run_inputs in = {pos[0], c.stages, c.events, c.cutoffs, c.labels};
+        rt_run_inputs in = {pos[0], c.stages, c.events, c.cutoffs, c.labels, &c.report};
         st = rt_night_write_json(night, &in, c.json, &err);
         output_error = 1;
     }
@@ -172,7 +209,11 @@ static int run(int argc, char **argv)
         output_error = 1;
     }
     if (st == RT_OK && c.minis) {
-        st = rt_night_write_minis_csv(night, l.rec, c.minis, &err);
+        st = rt_night_write_minis_csv(night, l.rec, &c.report, c.minis, &err);
+        output_error = 1;
+    }
+    if (st == RT_OK && c.evidence) {
+        st = rt_night_write_evidence_csv(night, l.rec, &c.report, c.evidence, &err);
         output_error = 1;
     }
     if (st == RT_OK && c.annotations) {

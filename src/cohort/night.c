@@ -170,7 +170,8 @@ static rt_status score_and_write(const cohort_shared *s, const rt_manifest_entry
         st = rt_night_score_threads(rec, &roles, tl, &s->options->params, &s->cutoffs,
                                     s->threads, &night, err);
     if (st == RT_OK) {
-        rt_run_inputs in = {e->recording, e->stages, e->events, s->options->cutoffs_path, NULL};
+        rt_run_inputs in = {e->recording, e->stages, e->events, s->options->cutoffs_path, NULL,
+                            NULL};
         st = rt_night_write_json(night, &in, json_path, err);
     }
     rt_night_free(night);

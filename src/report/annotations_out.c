@@ -108,7 +108,9 @@ static int collect_evidence(const rt_night *night, notes *ns)
     size_t n = rt_report_rank_evidence(night, order, EVIDENCE_LIMIT);
     for (size_t k = 0; k < n; k++) {
         char text[48];
-        snprintf(text, sizeof text, "remtone evidence %zu", k + 1);
+        /* the rank, and the epoch counted from 1 as in every other output */
+        snprintf(text, sizeof text, "remtone evidence %zu epoch %zu", k + 1,
+                 night->epochs[order[k]].epoch + 1);
         if (add_note(ns, night->epochs[order[k]].onset_s, 30.0, text) != 0)
             return -1;
     }

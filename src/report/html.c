@@ -546,7 +546,7 @@ static void activity_strip(html_ctx *c, double y0, double row_h)
             double w = fmax(time_x(c, n->epochs[k].onset_s + 30) - x, 1.0);
             rt_report_clock(&c->start, n->epochs[k].onset_s, clock, sizeof clock);
             snprintf(tip, sizeof tip, "%s epoch %zu: %s %d of %d scorable 3-s mini-epochs active",
-                     clock, n->epochs[k].epoch, GROUP_NAME[g], active, scorable);
+                     clock, n->epochs[k].epoch + 1, GROUP_NAME[g], active, scorable);
             rt_svg_rect(p, x, y, w, row_h, scorable ? activity_colour(active) : "#9aa5b1", tip);
         }
     }
@@ -952,13 +952,16 @@ static void evidence_plot(html_ctx *c, size_t rank, size_t k, const trace *trace
     rt_page *p = &c->p;
     const rt_night *n = c->night;
     const rt_epoch_result *er = &n->epochs[k];
-    char clock[16], elapsed[24];
+    char clock[16];
     rt_report_clock(&c->start, er->onset_s, clock, sizeof clock);
-    rt_report_elapsed(er->onset_s, elapsed, sizeof elapsed);
     rt_page_start(p, "h3");
-    rt_page_textf(p, "#%zu at %s (%s into the recording), epoch %zu, REM bout %zu: %d of 10 "
-                     "mini-epochs active%s", rank + 1, clock, elapsed, er->epoch, er->bout + 1,
+    char video[32];
+    bool has_video = rt_report_video_time(c->opt, er->onset_s, video, sizeof video);
+    rt_page_textf(p, "#%zu: epoch %zu at %s (%.0f s into the recording%s%s), REM bout %zu: %d of "
+                     "10 mini-epochs active%s", rank + 1, er->epoch + 1, clock, er->onset_s,
+                  has_video ? "; video " : "", video, er->bout + 1,
                   er->sinbar_any_minis, er->sinbar_tonic ? ", tonic chin" : "");
+
     rt_page_end_html(p);
     int rows = 0;
     for (int r = 0; r < RT_ROLE_COUNT; r++)
@@ -1012,17 +1015,36 @@ static void recording_notes(html_ctx *c, double t0, double t1)
     rt_page_end_html(p);
 }
 
+/* Where an epoch is, as every evidence row gives it: its number from 1, clock
+ * time, seconds from the recording start and, when given, the video time. */
+static void epoch_place_cells(html_ctx *c, const rt_epoch_result *er)
+{
+    char buf[32];
+    snprintf(buf, sizeof buf, "%zu", er->epoch + 1);
+    cell(&c->p, buf, true);
+    rt_report_clock(&c->start, er->onset_s, buf, sizeof buf);
+    cell(&c->p, buf, false);
+    snprintf(buf, sizeof buf, "%.0f", er->onset_s);
+    cell(&c->p, buf, true);
+    if (rt_report_video_time(c->opt, er->onset_s, buf, sizeof buf))
+        cell(&c->p, buf, false);
+}
+
 static void evidence_table(html_ctx *c, const size_t *order, size_t count)
 {
     rt_page *p = &c->p;
     const rt_night *n = c->night;
-    static const char *const HEAD[] = {"rank", "clock time", "elapsed", "epoch", "bout",
-                                       "active 3-s minis", "AASM-phasic minis", "tonic chin",
-                                       "score", "notes in the recording"};
+    static const char *const HEAD[] = {"rank", "epoch", "clock time", "seconds from start",
+                                       "video time", "bout", "active 3-s minis",
+                                       "AASM-phasic minis", "tonic chin", "strength",
+                                       "notes in the recording"};
+    bool video = c->opt && c->opt->video_given;
     rt_page_start(p, "table");
+    rt_page_attr(p, "id", "evidence-ranked");
     rt_page_start(p, "tr");
     for (size_t h = 0; h < sizeof HEAD / sizeof HEAD[0]; h++)
-        rt_page_element(p, "th", NULL, HEAD[h]);
+        if (h != 4 || video)
+            rt_page_element(p, "th", NULL, HEAD[h]);
     rt_page_end_html(p);
     char buf[64];
     for (size_t i = 0; i < count; i++) {
@@ -1030,12 +1052,7 @@ static void evidence_table(html_ctx *c, const size_t *order, size_t count)
         rt_page_start(p, "tr");
         snprintf(buf, sizeof buf, "%zu", i + 1);
         cell(p, buf, true);
-        rt_report_clock(&c->start, er->onset_s, buf, sizeof buf);
-        cell(p, buf, false);
-        rt_report_elapsed(er->onset_s, buf, sizeof buf);
-        cell(p, buf, false);
-        snprintf(buf, sizeof buf, "%zu", er->epoch);
-        cell(p, buf, true);
+        epoch_place_cells(c, er);
         snprintf(buf, sizeof buf, "%zu", er->bout + 1);
         cell(p, buf, true);
         snprintf(buf, sizeof buf, "%d / 10", er->sinbar_any_minis);
@@ -1081,6 +1098,45 @@ static rt_status compute_traces(html_ctx *c, const size_t *order, size_t plots,
     return st;
 }
 
+/* Every flagged epoch in time order, compact: the rows of `--evidence`
+ * (evidence.c, rt_report_evidence_words), so the page and the CSV agree. */
+static void evidence_list(html_ctx *c)
+{
+    rt_page *p = &c->p;
+    const rt_night *n = c->night;
+    bool video = c->opt && c->opt->video_given;
+    size_t flagged = 0;
+    for (size_t k = 0; k < n->n_epochs; k++)
+        flagged += n->epochs[k].activity > 0;
+    char buf[96], channels[96], rules[96];
+    snprintf(buf, sizeof buf, "All %zu flagged epoch%s, in time order", flagged,
+             rt_report_plural(flagged));
+    rt_page_element(p, "h3", NULL, buf);
+    static const char *const HEAD[] = {"epoch", "clock time", "seconds from start", "video time",
+                                       "channels", "rule sets", "strength"};
+    rt_page_start(p, "table");
+    rt_page_attr(p, "id", "evidence-list");
+    rt_page_attr(p, "style", "font-size:11px");
+    rt_page_start(p, "tr");
+    for (size_t h = 0; h < sizeof HEAD / sizeof HEAD[0]; h++)
+        if (h != 3 || video)
+            rt_page_element(p, "th", NULL, HEAD[h]);
+    rt_page_end_html(p);
+    for (size_t k = 0; k < n->n_epochs && p->status == RT_OK; k++) {
+        if (!rt_report_evidence_words(n, k, channels, sizeof channels, rules, sizeof rules))
+            continue;
+        const rt_epoch_result *er = &n->epochs[k];
+        rt_page_start(p, "tr");
+        epoch_place_cells(c, er);
+        cell(p, channels, false);
+        cell(p, rules, false);
+        snprintf(buf, sizeof buf, "%.1f", er->activity);
+        cell(p, buf, true);
+        rt_page_end_html(p);
+    }
+    rt_page_end_html(p);
+}
+
 static void write_evidence(html_ctx *c)
 {
     rt_page *p = &c->p;
@@ -1100,8 +1156,9 @@ static void write_evidence(html_ctx *c)
                     "background (green dashes), the absolute tonic level (purple dots). Bands on "
                     "top: bursts at twice background (SINBAR, light) and four times (AASM, dark). "
                     "Shaded columns: tonic 3-s mini-epochs (violet) and mini-epochs left out "
-                    "(grey). Numbers above: the 3-s mini-epochs. Epochs count from 0 at the "
-                    "recording start, as in the JSON and CSV files.");
+                    "(grey). Numbers above: the 3-s mini-epochs, 1 to 10. Epochs count from 1 "
+                    "at the recording start (epoch 1 starts at 0 s), as in the JSON, CSV and "
+                    "annotation files.");
     trace traces[EVIDENCE_PLOTS][RT_ROLE_COUNT];
     memset(traces, 0, sizeof traces);
     size_t plots = count < EVIDENCE_PLOTS ? count : EVIDENCE_PLOTS;
@@ -1112,7 +1169,12 @@ static void write_evidence(html_ctx *c)
         for (int r = 0; r < RT_ROLE_COUNT; r++)
             free(traces[i][r].env);
     rt_page_element(p, "h3", NULL, "Ranked list");
+    rt_page_element(p, "p", "muted",
+                    "Strength: the epoch's active 3-s mini-epochs (0-10), plus 10 when its chin is "
+                    "tonic, plus half its mini-epochs with an AASM-phasic burst; it orders this "
+                    "list.");
     evidence_table(c, order, count);
+    evidence_list(c);
     rt_page_end_html(p);
 }
 

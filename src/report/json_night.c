@@ -131,7 +131,7 @@ static json_t *strings_json(const char (*items)[240], size_t n)
     return rt_json_done(a, ok);
 }
 
-static json_t *evidence_json(const rt_night *night, size_t limit)
+static json_t *evidence_json(const rt_night *night, const rt_report_options *opt, size_t limit)
 {
     size_t *order = rt_calloc(limit, sizeof *order);
     if (!order)
@@ -143,8 +143,13 @@ static json_t *evidence_json(const rt_night *night, size_t limit)
         const rt_epoch_result *er = &night->epochs[order[rank]];
         json_t *x = json_object();
         rt_json_set(x, "rank", json_integer((json_int_t)rank + 1), &ok);
-        rt_json_set(x, "epoch", json_integer((json_int_t)er->epoch), &ok);
+        char clock[16], video[32];
+        rt_report_clock(&night->start, er->onset_s, clock, sizeof clock);
+        rt_json_set(x, "epoch", json_integer((json_int_t)er->epoch + 1), &ok);
+        rt_json_set(x, "clock_time", json_string(clock), &ok);
         rt_json_set(x, "onset_s", number(er->onset_s), &ok);
+        if (rt_report_video_time(opt, er->onset_s, video, sizeof video))
+            rt_json_set(x, "video_time", json_string(video), &ok);
         rt_json_set(x, "sinbar_active_minis", json_integer(er->sinbar_any_minis), &ok);
         rt_json_set(x, "aasm_phasic_minis", json_integer(er->aasm_any_minis), &ok);
         rt_json_set(x, "tonic", json_boolean(er->sinbar_tonic), &ok);
@@ -342,7 +347,7 @@ rt_status rt_night_write_json(const rt_night *night, const rt_run_inputs *inputs
     rt_json_set(root, "reservations", reservations_json(night), &ok);
     rt_json_set(root, "exclusions", exclusions_json(night), &ok);
     rt_json_set(root, "agreement", rt_agreement_json(&night->agreement), &ok);
-    rt_json_set(root, "evidence", evidence_json(night, 10), &ok);
+    rt_json_set(root, "evidence", evidence_json(night, inputs ? inputs->report : NULL, 10), &ok);
     rt_json_set(root, "warnings", strings_json(night->warnings, night->n_warnings), &ok);
     rt_json_set(root, "cautions", cautions_json(), &ok);
     rt_json_set(root, "provenance", prov, &ok);

@@ -100,6 +100,19 @@ const char *rt_report_plural(size_t n);
  * gaps are listed separately (night->staging.gaps). */
 void rt_report_staging_text(const rt_night *night, char *buf, size_t cap);
 
+/* The video time of t_s (seconds from the recording start) as "H:MM:SS",
+ * "-H:MM:SS" before the video started; false (and "") when options give no
+ * video offset (options may be NULL). */
+struct rt_report_options;
+bool rt_report_video_time(const struct rt_report_options *options, double t_s, char *buf,
+                          size_t cap);
+/* Whether REM epoch k (index into night->epochs) is flagged (has detected
+ * activity) and, if so, the roles with activity ("chin leg-left") and the
+ * rule sets that fired ("aasm-phasic sinbar-phasic sinbar-tonic"), space
+ * separated. */
+bool rt_report_evidence_words(const rt_night *night, size_t k, char *channels, size_t ch_cap,
+                              char *rules, size_t rules_cap);
+
 /* The last component of a path (the path itself when it has no '/'). */
 const char *rt_report_basename(const char *path);
 

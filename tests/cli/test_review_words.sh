@@ -158,5 +158,123 @@ for name in ("plain", "high"):
 print("bars checked")
 PY
 
+# ---- 5. the leg-movement row: units, its true source, a scale --------------
+check leg-row 0 "$py" - "$work" <<'PY'
+import json, sys, xml.etree.ElementTree as ET
+w = sys.argv[1]; H = "{http://www.w3.org/1999/xhtml}"; S = "{http://www.w3.org/2000/svg}"
+d = json.load(open(w + "/plain.json")); root = ET.parse(w + "/plain.html").getroot()
+lm = d["indices"]["montreal.rem_leg_movements_per_h"]
+row = [tr for tr in root.iter(H + "tr") if tr.get("data-index") == "montreal.rem_leg_movements_per_h"][0]
+cells = ["".join(td.itertext()) for td in row.findall(H + "td")]
+# numerator and denominator with their units, equal to the JSON's
+assert lm["numerator_unit"] == "leg movements" and lm["denominator_unit"] == "3-s REM mini-epochs"
+minutes = lm["denominator"] * 3 / 60
+assert cells[3] == "%d leg movements in %.1f min of REM" % (lm["numerator"], minutes), cells[3]
+assert cells[3] == lm["counted"]
+assert cells[2] == "%.1f /h" % lm["value"], cells[2]
+# the rate is the count over the time: numerator / hours (no events given: the leg EMG)
+assert abs(lm["value"] - lm["numerator"] / (minutes / 60)) < 0.05 + 1e-9, lm
+assert "counted from the leg EMG" in lm["reason"] and "limb-movement events" not in cells[1]
+# the bar's scale is written beside it
+svg = [s for s in root.iter(S + "svg") if s.get("aria-label") == "Each index against its cutoff"][0]
+labels = ["".join(t.itertext()) for t in svg.iter(S + "text")]
+assert any(l.startswith("%.1f /h" % lm["value"]) and "scale 0 to" in l for l in labels), labels
+assert any("scale 1 at the left to 0 at the right" in l for l in labels), labels
+PY
+# limb-movement events given: the row says so
+{ echo "start_s,duration_s,type"; for t in 2925 2955 2985 3015 3045 3075; do echo "$t,2,limb-movement"; done; } > "$work/lm.csv"
+check score-lm-events 0 "$bin" score "$n/night.edf" --stages "$n/stages.csv" --events "$work/lm.csv" --json "$work/lm.json" --quiet
+check leg-row-events 0 "$py" - "$work/lm.json" <<'PY'
+import json, sys
+d = json.load(open(sys.argv[1])); lm = d["indices"]["montreal.rem_leg_movements_per_h"]
+assert lm["reason"] == "counted from the limb-movement events given, per hour of REM", lm
+# six events in REM over the night's REM minutes
+assert lm["numerator"] == 6 and abs(lm["value"] - 6 / (d["rem"]["minutes"] / 60)) < 1e-6, lm
+PY
+
+# ---- 6, 7. 1-based numbers, clock, seconds and video time in every output --
+check score-all 0 "$bin" score "$n/night.edf" --stages "$n/stages.csv" --json "$work/all.json" --html "$work/all.html" --minis "$work/all-minis.csv" --evidence "$work/all-ev.csv" --annotations "$work/all.edf" --video-offset -12.5 --quiet
+check numbering 0 "$py" - "$work" -12.5 <<'PY'
+import csv, json, re, sys, xml.etree.ElementTree as ET
+w = sys.argv[1]; off = float(sys.argv[2]); H = "{http://www.w3.org/1999/xhtml}"
+def hms(t):
+    s = int(abs(t) + 1e-6) if t >= 0 else int(-t - 1e-6) + (0 if float(-t).is_integer() else 1)
+    return ("-" if t < 0 else "") + "%d:%02d:%02d" % (s // 3600, s // 60 % 60, s % 60)
+minis = list(csv.DictReader(open(w + "/all-minis.csv")))
+ev = list(csv.DictReader(open(w + "/all-ev.csv")))
+d = json.load(open(w + "/all.json"))
+assert ev and minis
+# the minis: mini-epochs 1-10, epoch e starts at (e - 1) x 30 s (epochs counted from 1)
+by_epoch = {}
+for r in minis:
+    e, m = int(r["epoch"]), int(r["mini"])
+    assert 1 <= m <= 10 and abs(float(r["elapsed_s"]) - ((e - 1) * 30 + (m - 1) * 3)) < 1e-6, r
+    assert r["video_time"] == hms(float(r["elapsed_s"]) - off), (r["video_time"], r["elapsed_s"])
+    by_epoch.setdefault(e, []).append(r)
+# the evidence list: every flagged epoch, in time order, the same clock and seconds as the minis
+epochs = [int(r["epoch"]) for r in ev]
+assert epochs == sorted(epochs) and len(set(epochs)) == len(epochs)
+for r in ev:
+    first = [m for m in by_epoch[int(r["epoch"])] if m["mini"] == "1"][0]
+    assert (r["clock_time"], r["elapsed_s"], r["video_time"]) == \
+           (first["clock_time"], first["elapsed_s"], first["video_time"]), (r, first)
+    # a channel named in the list has activity in the minis, or a Montreal 2-s burst
+    for role in r["channels"].split():
+        rows = [m for m in by_epoch[int(r["epoch"])] if m["role"] == role]
+        assert rows, (r, role)
+    marked = {m["role"] for m in by_epoch[int(r["epoch"])] if not m["excluded_by"] and
+              (m["aasm_phasic"] == "1" or m["sinbar_phasic"] == "1" or m["sinbar_tonic"] == "1")}
+    assert marked <= set(r["channels"].split()), (r, marked)
+# an epoch whose minis hold any phasic or tonic label is in the list (flagged)
+labelled = {e for e, rows in by_epoch.items() if any(
+    not m["excluded_by"] and (m["aasm_phasic"] == "1" or m["sinbar_any"] == "1") for m in rows)}
+assert labelled <= set(epochs), sorted(labelled - set(epochs))[:5]
+# the JSON's ranked evidence: epochs from the list, with the same clock and video time
+evmap = {int(r["epoch"]): r for r in ev}
+for x in d["evidence"]:
+    r = evmap[x["epoch"]]
+    assert x["clock_time"] == r["clock_time"] and abs(x["onset_s"] - float(r["elapsed_s"])) < 1e-6
+    assert x["video_time"] == r["video_time"]
+# the page: the compact list is the CSV, row for row; the ranked table agrees
+root = ET.parse(w + "/all.html").getroot()
+tab = [t for t in root.iter(H + "table") if t.get("id") == "evidence-list"][0]
+rows = [["".join(td.itertext()) for td in tr.findall(H + "td")] for tr in tab.findall(H + "tr")][1:]
+assert len(rows) == len(ev)
+for cells, r in zip(rows, ev):
+    assert cells == [r["epoch"], r["clock_time"], "%.0f" % float(r["elapsed_s"]), r["video_time"],
+                     r["channels"], r["rule_sets"], r["strength"]], (cells, r)
+tab = [t for t in root.iter(H + "table") if t.get("id") == "evidence-ranked"][0]
+ranked = [["".join(td.itertext()) for td in tr.findall(H + "td")] for tr in tab.findall(H + "tr")][1:]
+for cells, x in zip(ranked, d["evidence"]):
+    assert int(cells[1]) == x["epoch"] and cells[2] == x["clock_time"] and cells[4] == x["video_time"], (cells, x)
+# the annotation file: "remtone evidence RANK epoch E" at the epoch's onset
+raw = open(w + "/all.edf", "rb").read()
+found = re.findall(rb"\+(\d+(?:\.\d+)?)\x15[\d.]*\x14remtone evidence (\d+) epoch (\d+)\x14", raw)
+assert len(found) == min(10, len(d["evidence"])), found
+for onset, rank, epoch in found:
+    x = d["evidence"][int(rank) - 1]
+    assert int(epoch) == x["epoch"] and abs(float(onset) - x["onset_s"]) < 1e-3, (onset, rank, epoch, x)
+print("numbering consistent over", len(ev), "flagged epochs")
+PY
+check video-start 0 "$bin" score "$n/night.edf" --stages "$n/stages.csv" --evidence "$work/vs.csv" --video-start 22:30:00 --quiet
+check video-start-time 0 "$py" - "$work/vs.csv" "$n/night.edf" <<'PY'
+import csv, sys
+# the recording's start time: EDF header bytes 176-183, "hh.mm.ss" (EDF specification, Kemp 1992)
+h, m, s = (int(x) for x in open(sys.argv[2], "rb").read()[176:184].decode().split("."))
+off = 22 * 3600 + 30 * 60 - (h * 3600 + m * 60 + s)
+off = (off + 43200) % 86400 - 43200
+for r in csv.DictReader(open(sys.argv[1])):
+    v = float(r["elapsed_s"]) - off
+    want = ("-" if v < 0 else "") + "%d:%02d:%02d" % (abs(v) // 3600, abs(v) // 60 % 60, abs(v) % 60)
+    assert r["video_time"] == want, (r, want)
+PY
+check video-both 2 "$bin" score "$n/night.edf" --stages "$n/stages.csv" --video-start 22:30:00 --video-offset 5
+check video-bad 2 "$bin" score "$n/night.edf" --stages "$n/stages.csv" --video-start 25:00:00
+check evidence-over-minis 2 "$bin" score "$n/night.edf" --stages "$n/stages.csv" --minis "$work/same.csv" --evidence "$work/same.csv"
+check evidence-over-input 2 "$bin" score "$n/night.edf" --stages "$n/stages.csv" --evidence "$n/stages.csv"
+check evidence-stdout 0 "$bin" score "$n/night.edf" --stages "$n/stages.csv" --evidence -
+has evidence-stdout-header "$work/out" "epoch,clock_time,elapsed_s,channels,rule_sets,active_minis,strength"
+hasnt evidence-stdout-no-summary "$work/out" "remtone night summary"
+
 echo "$fails failure(s)"
 [ "$fails" = 0 ]

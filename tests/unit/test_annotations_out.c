@@ -147,8 +147,10 @@ static void every_onset_is_in_the_file(void **state)
     for (size_t i = 0; i < json_array_size(ev); i++) {
         json_t *x = json_array_get(ev, i);
         char text[64];
-        snprintf(text, sizeof text, "remtone evidence %lld",
-                 (long long)json_integer_value(json_object_get(x, "rank")));
+        /* the rank and the epoch counted from 1, both as the JSON result gives them */
+        snprintf(text, sizeof text, "remtone evidence %lld epoch %lld",
+                 (long long)json_integer_value(json_object_get(x, "rank")),
+                 (long long)json_integer_value(json_object_get(x, "epoch")));
         double onset = json_real_value(json_object_get(x, "onset_s"));
         if (find(a, onset, 30.0, text) < 0)
             fail_msg("%s at %.1f s missing", text, onset);
