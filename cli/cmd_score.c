@@ -11,12 +11,12 @@ enum {
     KEY_STAGES = 1, KEY_EVENTS, KEY_JSON, KEY_CUTOFFS, KEY_LABELS, KEY_MIN_REM, KEY_QUIET,
     KEY_KEEP_ARTIFACTS, KEY_KEEP_SNORING, KEY_KEEP_RESPIRATORY, KEY_EVENT_MARGIN,
     KEY_HTML, KEY_MINIS, KEY_ANNOTATIONS, KEY_SHOW_IDENTITY, KEY_RECORDING_ID, KEY_THREADS,
-    KEY_EVIDENCE, KEY_VIDEO_OFFSET, KEY_VIDEO_START
+    KEY_EVIDENCE, KEY_VIDEO_OFFSET, KEY_VIDEO_START, KEY_ANNOTATE_BURSTS
 };
 
 static const cli_option OPTIONS[] = {
-    {"stages", 1, KEY_STAGES, "FILE", "staging: stage table CSV or EDF+ (default: the recording's own annotations)"},
-    {"events", 1, KEY_EVENTS, "FILE", "event table CSV (arousals, respiratory events, ...)"},
+    {"stages", 1, KEY_STAGES, "FILE", "staging: stage table CSV (start_s,duration_s,stage), an EDF+ file with stage annotations (and its events), or remtone's XML scoring file (staging, events, manual RSWA scoring); told by content (default: the recording's own EDF+ annotations, stages and events)"},
+    {"events", 1, KEY_EVENTS, "FILE", "event table CSV (start_s,duration_s,type: arousals, respiratory events, limb movements, ...); events in an EDF+ or XML staging file are read with it"},
     {"json", 1, KEY_JSON, "PATH", "write the night result as JSON ('-' for standard output)"},
     {"cutoffs", 1, KEY_CUTOFFS, "FILE", "a lab's own cutoffs (CSV index,cutoff,unit) instead of the published ones"},
     {"label-map", 1, KEY_LABELS, "FILE", "map local stage or event labels (CSV label,meaning)"},
@@ -30,6 +30,7 @@ static const cli_option OPTIONS[] = {
     {"html", 1, KEY_HTML, "PATH", "write the review report, one self-contained HTML page ('-' for standard output)"},
     {"minis", 1, KEY_MINIS, "PATH", "write the audit table: one CSV row per REM 3-s mini-epoch and channel"},
     {"annotations", 1, KEY_ANNOTATIONS, "PATH", "write the detected activity as an EDF+ annotation file"},
+    {"annotate-bursts", 1, KEY_ANNOTATE_BURSTS, "RULES", "bursts in the --annotations file: sinbar (default), aasm, montreal, or several joined by commas"},
     {"evidence", 1, KEY_EVIDENCE, "PATH", "write every flagged REM epoch in time order as CSV ('-' for standard output)"},
     {"video-offset", 1, KEY_VIDEO_OFFSET, "S", "the video started S seconds after the recording (negative: before); adds a video time to every evidence row"},
     {"video-start", 1, KEY_VIDEO_START, "HH:MM:SS", "the clock time the video started; adds a video time to every evidence row"},
@@ -70,6 +71,29 @@ static int on_option(void *ctx, int key, const char *arg)
     case KEY_MINIS: c->minis = arg; break;
     case KEY_ANNOTATIONS: c->annotations = arg; break;
     case KEY_EVIDENCE: c->evidence = arg; break;
+    case KEY_ANNOTATE_BURSTS: {
+        static const struct { const char *name; unsigned label; } RULES[] = {
+            {"sinbar", RT_LABEL_SINBAR_PHASIC}, {"aasm", RT_LABEL_AASM_PHASIC},
+            {"montreal", RT_LABEL_MONTREAL_PHASIC}};
+        c->report.annotate_rules = 0;
+        for (const char *p = arg; *p;) {
+            size_t len = strcspn(p, ","), k = 0;
+            while (k < 3 && !(strlen(RULES[k].name) == len && strncmp(p, RULES[k].name, len) == 0))
+                k++;
+            if (k == 3) {
+                fprintf(stderr, "remtone score: --annotate-bursts takes sinbar, aasm, montreal or "
+                                "several joined by commas, got '%s'\n", arg);
+                return EXIT_USAGE;
+            }
+            c->report.annotate_rules |= RULES[k].label;
+            p += len + (p[len] == ',');
+        }
+        if (!c->report.annotate_rules) {
+            fprintf(stderr, "remtone score: --annotate-bursts needs a rule set, got '%s'\n", arg);
+            return EXIT_USAGE;
+        }
+        break;
+    }
     case KEY_VIDEO_START: {
         int h, m, s, used = 0;
         if (c->report.video_given ||
@@ -144,6 +168,14 @@ static rt_status load_inputs(const score_config *c, const char *rec_path, loaded
         st = rt_labelmap_load(c->labels, &l->labels, err);
     if (st == RT_OK)
         st = rt_recording_open(rec_path, &l->rec, err);
+    /* an annotation-only EDF+ (a hypnogram or activity file) is valid, but
+     * holds no EMG: it belongs after --stages, not in the recording's place */
+    if (st == RT_OK && rt_recording_channel_count(l->rec) == 0) {
+        st = err->status = RT_ERR_RECORDING;
+        snprintf(err->message, sizeof err->message,
+                 "%s: an EDF+ file with annotations only (no signals), so no EMG to score; give "
+                 "the recording first and this file as --stages", rec_path);
+    }
     if (st == RT_OK)
         st = rt_timeline_new(&l->tl, err);
     if (st == RT_OK)
@@ -217,7 +249,7 @@ static int run(int argc, char **argv)
         output_error = 1;
     }
     if (st == RT_OK && c.annotations) {
-        st = rt_night_write_annotations(night, l.rec, c.annotations, &err);
+        st = rt_night_write_annotations(night, l.rec, &c.report, c.annotations, &err);
         output_error = 1;
     }
     rt_night_free(night);

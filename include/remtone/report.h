@@ -60,6 +60,9 @@ typedef struct rt_report_options {
     bool video_given;          /* give a video time beside every evidence row */
     double video_offset_s;     /* the video started this many seconds after the recording
                                   (negative: before); video time = recording time - this */
+    unsigned annotate_rules;   /* bursts in the annotation file: RT_LABEL_AASM_PHASIC,
+                                  RT_LABEL_SINBAR_PHASIC, RT_LABEL_MONTREAL_PHASIC or several
+                                  ORed; 0 = SINBAR alone */
 } rt_report_options;
 
 /* The video offset from the clock time the video started (hour 0-23,
@@ -91,10 +94,14 @@ rt_status rt_night_write_evidence_csv(const rt_night *night, const rt_recording 
                                       const rt_report_options *options, const char *path,
                                       rt_error *err);
 
-/* The detected activity and the evidence epochs as an EDF+ annotation file
- * (EDFlib's writer), timed against the recording. */
+/* The detected activity and the evidence epochs as an EDF+ file (EDFlib's
+ * writer) as long as the recording and timed against it: the bursts of the
+ * rule sets of options->annotate_rules (SINBAR alone by default or with
+ * options NULL), tonic runs, evidence epochs, and one 1-Hz signal marking
+ * scored REM. */
 rt_status rt_night_write_annotations(const rt_night *night, const rt_recording *rec,
-                                     const char *path, rt_error *err);
+                                     const rt_report_options *options, const char *path,
+                                     rt_error *err);
 
 /* The rule table with the cutoffs in force. */
 rt_status rt_rules_write_text(const rt_cutoffs *cutoffs, FILE *out, rt_error *err);

@@ -276,5 +276,63 @@ check evidence-stdout 0 "$bin" score "$n/night.edf" --stages "$n/stages.csv" --e
 has evidence-stdout-header "$work/out" "epoch,clock_time,elapsed_s,channels,rule_sets,active_minis,strength"
 hasnt evidence-stdout-no-summary "$work/out" "remtone night summary"
 
+# ---- 8. wording ------------------------------------------------------------
+has ecg-none "$work/plain.txt" "ECG artifact in this channel: none"
+hasnt ecg-not-found "$work/plain.txt" "ECG not found"
+hasnt ecg-not-found-page "$work/plain.html" "not found"
+has left-out-no-brackets "$work/det.txt" "Left out of REM: 9.0 min
+"
+hasnt empty-brackets "$work/det.txt" "()"
+has one-bout "$work/plain.txt" "REM: 9.0 min in 1 bout, "
+hasnt one-bouts "$work/plain.html" "in 1 bouts"
+check terms-defined 0 "$py" - "$work/plain.html" <<'PY'
+import sys, xml.etree.ElementTree as ET
+H = "{http://www.w3.org/1999/xhtml}"
+root = ET.parse(sys.argv[1]).getroot()
+text = " ".join("".join(e.itertext()) for e in root.iter(H + "p"))
+assert "REM level: the median of the channel's rectified" in text       # defined on the page
+assert "Strength: the epoch's active 3-s mini-epochs" in text
+# the navigation links carry the section titles word for word
+links = {a.get("href")[1:]: "".join(a.itertext()) for a in root.iter(H + "a") if a.get("href", "").startswith("#")}
+titles = {s.get("id"): "".join(s.find(H + "h2").itertext()) for s in root.iter(H + "section")}
+assert links == titles, (links, titles)
+PY
+check score-help 0 "$bin" score --help
+has help-xml "$work/out" "remtone's XML scoring file"
+has help-edf-events "$work/out" "an EDF+ file with stage annotations (and its events)"
+check csv-as-recording 4 "$bin" score "$n/stages.csv" --stages "$n/night.edf"
+has csv-as-recording-says "$work/err" "this is a text table, not an EDF/BDF recording; did you swap the recording and --stages?"
+check activity-file 0 "$bin" score "$n/night.edf" --stages "$n/stages.csv" --annotations "$work/activity.edf" --quiet
+# a hypnogram-style EDF+ with annotations only (tests/malformed/edf_writer.py, EDF+ by Kemp & Olivan 2003)
+check make-hypnogram 0 "$py" -c '
+import sys; sys.path.insert(0, sys.argv[1] + "/tests/malformed")
+import edf_writer
+open(sys.argv[2], "wb").write(edf_writer.edf_bytes([], 120, record_s=30.0, plus=True,
+    annotations=[(0.0, 30.0, "Sleep stage W")]))' "${REMTONE_SOURCE:?}" "$work/hypnogram.edf"
+check annotations-as-recording 4 "$bin" score "$work/hypnogram.edf" --stages "$n/stages.csv"
+has annotations-as-recording-says "$work/err" "hypnogram.edf: an EDF+ file with annotations only (no signals)"
+check activity-duration 0 "$py" - "$work/activity.edf" "$n/night.edf" "$work/activity-all.edf" <<'PY'
+import re, sys
+def duration(p):   # EDF header: record count at bytes 236-243, record duration at 244-251 (Kemp 1992)
+    h = open(p, "rb").read(256)
+    return int(h[236:244]) * float(h[244:252])
+assert duration(sys.argv[1]) == duration(sys.argv[2]), (duration(sys.argv[1]), duration(sys.argv[2]))
+raw = open(sys.argv[1], "rb").read()
+rules = set(re.findall(rb"remtone phasic (\w+) ", raw))
+assert rules == {b"sinbar"}, rules          # one rule set by default: each burst once
+PY
+check activity-all-rules 0 "$bin" score "$n/night.edf" --stages "$n/stages.csv" --annotations "$work/activity-all.edf" --annotate-bursts aasm,sinbar,montreal --quiet
+check activity-rules-chosen 0 "$py" -c '
+import re, sys
+raw = open(sys.argv[1], "rb").read()
+assert set(re.findall(rb"remtone phasic (\w+) ", raw)) == {b"aasm", b"sinbar", b"montreal"}' "$work/activity-all.edf"
+check annotate-bursts-bad 2 "$bin" score "$n/night.edf" --stages "$n/stages.csv" --annotate-bursts stream
+check ecg-as-chin 0 "$bin" score "$n/night.edf" --stages "$n/stages.csv" --chin ECG
+has ecg-as-chin-warns "$work/out" "chin was given channel ECG, whose label reads as an ECG lead"
+check ambiguous-prefix 2 "$bin" score "$n/night.edf" --keep
+has ambiguous-names "$work/err" "--keep is ambiguous; it could be --keep-artifacts, --keep-snoring, --keep-respiratory"
+check merge-missing-dir 3 "$bin" cohort-merge "$work/no-such-dir"
+has merge-missing-says "$work/err" "no-such-dir"
+
 echo "$fails failure(s)"
 [ "$fails" = 0 ]
