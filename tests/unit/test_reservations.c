@@ -611,7 +611,7 @@ static void unverified_cutoff_reached_on_a_clear_night(void **state)
     said_everywhere(&s, "cutoff-not-verified");
     const char *t = json_reservation(&s, "cutoff-not-verified");
     assert_non_null(strstr(t, "sinbar.fds_phasic_3s is "));
-    assert_non_null(strstr(t, "at or above 16.8 %"));
+    assert_non_null(strstr(t, "16.8 % reached"));
     assert_non_null(strstr(t, "recalled but not verified"));
     free_scored(&s);
     rt_test_dir("reserve_unverified");
