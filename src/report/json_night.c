@@ -45,6 +45,9 @@ static json_t *indices_json(const rt_night *night)
         char words[96], src[600], counted[160];
         rt_report_status_words(night, i, words, sizeof words);
         rt_json_set(x, "cutoff_words", json_string(words), &ok);
+        rt_json_set(x, "cutoff_verified",
+                    night->cutoffs.has[i] ? json_boolean(rt_night_cutoff_verified(night, i))
+                                          : json_null(), &ok);
         rt_cutoff_source(&night->cutoffs, i, src, sizeof src);
         rt_json_set(x, "source", rt_json_text(src), &ok);
         rt_json_set(x, "cutoff_origin",
