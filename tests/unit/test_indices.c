@@ -395,10 +395,34 @@ static void ecg_wording(void **state)
     rt_night_free(n);
 }
 
+/* Without both arm channels the combined SINBAR index cannot be computed: the
+ * headline says so with the reason and names the index shown instead, and
+ * says whether that index reaches its cutoff (18.2 %, Frauscher et al. 2012,
+ * Sleep 35:835-847). */
+static void headline_names_its_substitute(void **state)
+{
+    (void)state;
+    rt_night *n = one_epoch(4, false);
+    for (int k = 0; k < 4; k++) /* 4 of 10 minis with SINBAR chin activity: 40 % */
+        n->minis3[k].labels[RT_ROLE_CHIN] |= RT_LABEL_SINBAR_PHASIC | RT_LABEL_SINBAR_ANY;
+    summarise(n);
+    assert_int_equal(n->headline, RT_IX_SINBAR_CHIN_ANY_3S);
+    char *t = summary_text(n);
+    print_message("# %.*s\n", (int)strcspn(strstr(t, "sinbar.chin_any_fds"), "\n"),
+                  strstr(t, "sinbar.chin_any_fds"));
+    assert_non_null(strstr(t, "\nsinbar.chin_any_fds_phasic_3s cannot be computed (no arm (FDS) "
+                              "channels); shown instead: sinbar.chin_any_3s. REM with preserved "
+                              "muscle activity: 40.0 % (sinbar.chin_any_3s); the published cutoff "
+                              "18.2 % is reached."));
+    free(t);
+    rt_night_free(n);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(aasm_five_of_ten),
+        cmocka_unit_test(headline_names_its_substitute),
         cmocka_unit_test(missing_arms_not_computed),
         cmocka_unit_test(statuses_at_the_cutoff),
         cmocka_unit_test(sinbar_30s_five_of_ten),
