@@ -1,8 +1,10 @@
 /* remtone cohort MANIFEST --out DIR: score a cohort in parallel, resumably,
  * and gather its table and calibration; remtone cohort-merge DIR: gather
  * only (after the parts of a Slurm array). docs/cohort.md. */
+#include <errno.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
 #include <unistd.h>
 
 #include "cli.h"
@@ -22,7 +24,7 @@ static const cli_option OPTIONS[] = {
                                  "from DIR/cohort.html"},
     {"part", 1, KEY_PART, "K/N", "score only slice K of N (1-based, by a hash of the id); "
                                  "run cohort-merge after all parts"},
-    {"cutoffs", 1, KEY_CUTOFFS, "FILE", "a lab's own cutoffs (CSV index,cutoff)"},
+    {"cutoffs", 1, KEY_CUTOFFS, "FILE", "a lab's own cutoffs (CSV index,cutoff,unit)"},
     {"positive", 1, KEY_POSITIVE, "GROUP", "group of the positive class for calibration (default case)"},
     {"negative", 1, KEY_NEGATIVE, "GROUP", "group of the negative class (default control)"},
     {"calibrate-corrected", 0, KEY_CALIBRATE_CORRECTED, NULL, "calibrate on the corrected values "
@@ -251,6 +253,21 @@ static int run_merge(int argc, char **argv)
     if (rc != EXIT_OK)
         return rc < 0 ? EXIT_OK : rc;
     c.o.out_dir = pos[0];
+    /* DIR is the merge's input before it is an output: a missing folder is an
+     * input that cannot be read (exit 3), not an output that cannot be written */
+    char nights[4200];
+    snprintf(nights, sizeof nights, "%s/nights", pos[0]);
+    struct stat st;
+    if (stat(pos[0], &st) != 0 || !S_ISDIR(st.st_mode) || stat(nights, &st) != 0 ||
+        !S_ISDIR(st.st_mode)) {
+        int e = errno;
+        fprintf(stderr, "remtone cohort-merge: %s: %s\n", pos[0],
+                stat(pos[0], &st) != 0 ? strerror(e)
+                : !S_ISDIR(st.st_mode) ? "not a folder"
+                                       : "no nights/ folder here: not the output folder of a "
+                                         "remtone cohort run");
+        return EXIT_INPUT_IO;
+    }
     if ((rc = check_outputs(&c, NULL, NULL)) != EXIT_OK)
         return rc;
     return merge_and_report(&c);

@@ -6,7 +6,7 @@
 enum { KEY_CUTOFFS = 1, KEY_PARAMS };
 
 static const cli_option OPTIONS[] = {
-    {"cutoffs", 1, KEY_CUTOFFS, "FILE", "show the cutoffs of a lab's cutoff file instead"},
+    {"cutoffs", 1, KEY_CUTOFFS, "FILE", "show the cutoffs of a lab's cutoff file (CSV index,cutoff,unit), each with its line"},
     {"params", 0, KEY_PARAMS, NULL, "print the scoring parameters (Markdown) instead"},
     {0},
 };

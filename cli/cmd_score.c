@@ -1,5 +1,6 @@
 /* remtone score REC --stages FILE: the night result. */
 #include <math.h>
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -10,14 +11,15 @@
 enum {
     KEY_STAGES = 1, KEY_EVENTS, KEY_JSON, KEY_CUTOFFS, KEY_MIN_REM, KEY_QUIET,
     KEY_HTML, KEY_MINIS, KEY_ANNOTATIONS, KEY_SHOW_IDENTITY, KEY_RECORDING_ID, KEY_THREADS,
-    KEY_PERIODS, KEY_AGE, KEY_SEX, KEY_CORRECTIONS
+    KEY_PERIODS, KEY_AGE, KEY_SEX, KEY_CORRECTIONS,
+    KEY_EVIDENCE, KEY_VIDEO_OFFSET, KEY_VIDEO_START, KEY_ANNOTATE_BURSTS
 };
 
 static const cli_option OPTIONS[] = {
-    {"stages", 1, KEY_STAGES, "FILE", "staging: stage table CSV or EDF+ (default: the recording's own annotations)"},
-    {"events", 1, KEY_EVENTS, "FILE", "event table CSV (arousals, respiratory events, ...)"},
+    {"stages", 1, KEY_STAGES, "FILE", "staging: stage table CSV (start_s,duration_s,stage), an EDF+ file with stage annotations (and its events), or remtone's XML scoring file (staging, events, manual RSWA scoring); told by content (default: the recording's own EDF+ annotations, stages and events)"},
+    {"events", 1, KEY_EVENTS, "FILE", "event table CSV (start_s,duration_s,type: arousals, respiratory events, limb movements, ...); events in an EDF+ or XML staging file are read with it"},
     {"json", 1, KEY_JSON, "PATH", "write the night result as JSON ('-' for standard output)"},
-    {"cutoffs", 1, KEY_CUTOFFS, "FILE", "a lab's own cutoffs (CSV index,cutoff) instead of the published ones"},
+    {"cutoffs", 1, KEY_CUTOFFS, "FILE", "a lab's own cutoffs (CSV index,cutoff,unit) instead of the published ones"},
     {"min-rem", 1, KEY_MIN_REM, "MIN", "least scorable REM minutes for an assessable night (default 5)"},
     {"quiet", 0, KEY_QUIET, NULL, "do not print the text summary"},
     CLI_EXCLUSION_OPTIONS,
@@ -27,6 +29,10 @@ static const cli_option OPTIONS[] = {
     {"periods", 1, KEY_PERIODS, "PATH", "write every index per REM period and per half of the night as CSV"},
     {"age", 1, KEY_AGE, "YEARS", "the person's age: place the indices against published norms (context only)"},
     {"sex", 1, KEY_SEX, "F|M", "the person's sex, for the norms (context only)"},
+    {"annotate-bursts", 1, KEY_ANNOTATE_BURSTS, "RULES", "bursts in the --annotations file: sinbar (default), aasm, montreal, or several joined by commas"},
+    {"evidence", 1, KEY_EVIDENCE, "PATH", "write every flagged REM epoch in time order as CSV ('-' for standard output)"},
+    {"video-offset", 1, KEY_VIDEO_OFFSET, "S", "the video started S seconds after the recording (negative: before); adds a video time to every evidence row"},
+    {"video-start", 1, KEY_VIDEO_START, "HH:MM:SS", "the clock time the video started; adds a video time to every evidence row"},
     {"show-identity", 0, KEY_SHOW_IDENTITY, NULL, "show the recording header's patient fields and date in the report"},
     {"recording-id", 1, KEY_RECORDING_ID, "ID", "name the recording in the report (default: its file name)"},
     {"corrections", 1, KEY_CORRECTIONS, "FILE", "rescore with a reviewer's decisions: the mini-epoch "
@@ -40,7 +46,8 @@ static const cli_option OPTIONS[] = {
 
 typedef struct score_config {
     const char *stages, *events, *json, *cutoffs, *labels;
-    const char *html, *minis, *annotations, *periods, *corrections;
+    const char *html, *minis, *annotations, *periods, *corrections, *evidence;
+    const char *video_start;     /* HH:MM:SS, turned into an offset once the recording is open */
     rt_report_options report;
     double age;              /* NaN: not given */
     char sex;                /* 0: not given */
@@ -69,6 +76,53 @@ static int on_option(void *ctx, int key, const char *arg)
     case KEY_HTML: c->html = arg; break;
     case KEY_MINIS: c->minis = arg; break;
     case KEY_ANNOTATIONS: c->annotations = arg; break;
+    case KEY_EVIDENCE: c->evidence = arg; break;
+    case KEY_ANNOTATE_BURSTS: {
+        static const struct { const char *name; unsigned label; } RULES[] = {
+            {"sinbar", RT_LABEL_SINBAR_PHASIC}, {"aasm", RT_LABEL_AASM_PHASIC},
+            {"montreal", RT_LABEL_MONTREAL_PHASIC}};
+        c->report.annotate_rules = 0;
+        for (const char *p = arg; *p;) {
+            size_t len = strcspn(p, ","), k = 0;
+            while (k < 3 && !(strlen(RULES[k].name) == len && strncmp(p, RULES[k].name, len) == 0))
+                k++;
+            if (k == 3) {
+                fprintf(stderr, "remtone score: --annotate-bursts takes sinbar, aasm, montreal or "
+                                "several joined by commas, got '%s'\n", arg);
+                return EXIT_USAGE;
+            }
+            c->report.annotate_rules |= RULES[k].label;
+            p += len + (p[len] == ',');
+        }
+        if (!c->report.annotate_rules) {
+            fprintf(stderr, "remtone score: --annotate-bursts needs a rule set, got '%s'\n", arg);
+            return EXIT_USAGE;
+        }
+        break;
+    }
+    case KEY_VIDEO_START: {
+        int h, m, s, used = 0;
+        if (c->report.video_given ||
+            sscanf(arg, "%2d:%2d:%2d%n", &h, &m, &s, &used) != 3 || arg[used] || h < 0 ||
+            h > 23 || m < 0 || m > 59 || s < 0 || s > 59) {
+            fprintf(stderr, "remtone score: --video-start must be a clock time HH:MM:SS, given "
+                            "once and not with --video-offset, got '%s'\n", arg);
+            return EXIT_USAGE;
+        }
+        c->video_start = arg;
+        c->report.video_given = true;
+        break;
+    }
+    case KEY_VIDEO_OFFSET:
+        c->report.video_offset_s = strtod(arg, &end);
+        if (end == arg || *end || c->report.video_given ||
+            !(fabs(c->report.video_offset_s) <= 86400.0)) {
+            fprintf(stderr, "remtone score: --video-offset must be seconds within one day, given "
+                            "once and not with --video-start, got '%s'\n", arg);
+            return EXIT_USAGE;
+        }
+        c->report.video_given = true;
+        break;
     case KEY_CORRECTIONS: c->corrections = arg; break;
     case KEY_PERIODS: c->periods = arg; break;
     case KEY_AGE:
@@ -127,6 +181,14 @@ static rt_status load_inputs(const score_config *c, const char *rec_path, loaded
         st = rt_labelmap_load(c->labels, &l->labels, err);
     if (st == RT_OK)
         st = rt_recording_open(rec_path, &l->rec, err);
+    /* an annotation-only EDF+ (a hypnogram or activity file) is valid, but
+     * holds no EMG: it belongs after --stages, not in the recording's place */
+    if (st == RT_OK && rt_recording_channel_count(l->rec) == 0) {
+        st = err->status = RT_ERR_RECORDING;
+        snprintf(err->message, sizeof err->message,
+                 "%s: an EDF+ file with annotations only (no signals), so no EMG to score; give "
+                 "the recording first and this file as --stages", rec_path);
+    }
     if (st == RT_OK)
         st = rt_timeline_new(&l->tl, err);
     if (st == RT_OK)
@@ -159,7 +221,8 @@ static int run(int argc, char **argv)
     const char *inputs[] = {pos[0], c.stages, c.events, c.cutoffs, c.labels, c.corrections};
     size_t n_inputs = sizeof inputs / sizeof inputs[0];
     const cli_output outputs[] = {{"json", c.json}, {"html", c.html}, {"minis", c.minis},
-                                  {"annotations", c.annotations}, {"periods", c.periods}};
+                                  {"annotations", c.annotations}, {"periods", c.periods},
+                                  {"evidence", c.evidence}};
     if ((rc = cli_check_outputs("score", outputs, sizeof outputs / sizeof outputs[0], inputs,
                                 n_inputs)) != EXIT_OK)
         return rc;
@@ -170,6 +233,11 @@ static int run(int argc, char **argv)
     rt_night *night = NULL;
     int output_error = 0;
     rt_status st = load_inputs(&c, pos[0], &l, &err);
+    if (st == RT_OK && c.video_start) {
+        int h = 0, m = 0, s = 0;
+        sscanf(c.video_start, "%d:%d:%d", &h, &m, &s); /* checked in on_option */
+        c.report.video_offset_s = rt_video_offset_from_clock(l.rec, h, m, s);
+    }
     if (st == RT_OK) {
         if (c.min_rem >= 0)
             c.params.min_scorable_min = c.min_rem;
@@ -183,10 +251,11 @@ static int run(int argc, char **argv)
         st = rt_night_place_norms(night, c.age, c.sex, &err);
     if (st == RT_OK && !c.quiet && !(c.json && strcmp(c.json, "-") == 0) &&
         !(c.html && strcmp(c.html, "-") == 0) && !(c.minis && strcmp(c.minis, "-") == 0) &&
-        !(c.periods && strcmp(c.periods, "-") == 0))
+        !(c.periods && strcmp(c.periods, "-") == 0) && !(c.evidence && strcmp(c.evidence, "-") == 0))
         st = rt_night_write_text(night, stdout, &err);
     if (st == RT_OK && c.json) {
-        rt_run_inputs in = {pos[0], c.stages, c.events, c.cutoffs, c.labels, c.corrections};
+        rt_run_inputs in = {pos[0], c.stages, c.events, c.cutoffs, c.labels, c.corrections,
+                            &c.report};
         st = rt_night_write_json(night, &in, c.json, &err);
         output_error = 1;
     }
@@ -195,11 +264,15 @@ static int run(int argc, char **argv)
         output_error = 1;
     }
     if (st == RT_OK && c.minis) {
-        st = rt_night_write_minis_csv(night, l.rec, c.minis, &err);
+        st = rt_night_write_minis_csv(night, l.rec, &c.report, c.minis, &err);
+        output_error = 1;
+    }
+    if (st == RT_OK && c.evidence) {
+        st = rt_night_write_evidence_csv(night, l.rec, &c.report, c.evidence, &err);
         output_error = 1;
     }
     if (st == RT_OK && c.annotations) {
-        st = rt_night_write_annotations(night, l.rec, c.annotations, &err);
+        st = rt_night_write_annotations(night, l.rec, &c.report, c.annotations, &err);
         output_error = 1;
     }
     if (st == RT_OK && c.periods) {

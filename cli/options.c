@@ -21,6 +21,29 @@ void cli_print_help(FILE *out, const cli_command *cmd)
     fprintf(out, "  %-28s %s\n", "--help", "show this help");
 }
 
+/* getopt_long takes a unique prefix of a long option; a prefix of several is
+ * refused. Names the candidates then, so the user sees what to type; returns
+ * whether arg was such a prefix. */
+static bool ambiguous(const cli_command *cmd, const char *arg)
+{
+    if (strncmp(arg, "--", 2) != 0)
+        return false;
+    const char *name = arg + 2;
+    size_t len = strcspn(name, "=");
+    int found = 0;
+    for (const cli_option *o = cmd->options; o && o->name; o++)
+        found += len > 0 && strncmp(o->name, name, len) == 0 && strlen(o->name) != len;
+    if (found < 2)
+        return false;
+    fprintf(stderr, "remtone %s: --%.*s is ambiguous; it could be", cmd->name, (int)len, name);
+    int k = 0;
+    for (const cli_option *o = cmd->options; o && o->name; o++)
+        if (strncmp(o->name, name, len) == 0)
+            fprintf(stderr, "%s --%s", k++ ? "," : "", o->name);
+    fprintf(stderr, "\n");
+    return true;
+}
+
 int cli_parse(const cli_command *cmd, int argc, char **argv,
               int (*on_option)(void *ctx, int key, const char *arg), void *ctx,
               char **positional, int max_positional, int *n_positional)
@@ -48,8 +71,9 @@ int cli_parse(const cli_command *cmd, int argc, char **argv,
             cli_print_help(stdout, cmd);
             return -1;
         } else if (c == '?' || c == ':') {
-            fprintf(stderr, "remtone %s: unknown option or missing value: %s\n", cmd->name,
-                    argv[optind - 1]);
+            if (!ambiguous(cmd, argv[optind - 1]))
+                fprintf(stderr, "remtone %s: unknown option or missing value: %s\n", cmd->name,
+                        argv[optind - 1]);
             fprintf(stderr, "run 'remtone %s --help' for the options\n", cmd->name);
             return EXIT_USAGE;
         } else {

@@ -73,8 +73,8 @@ def labelmaps():
 
 
 def cutoffs():
-    put("cutoffs", "basic", "index,cutoff\nsinbar.chin_any_3s,20\naasm.rswa_epochs,12.5\n")
-    put("cutoffs", "rai", "index,cutoff,normal_from\nrai,0.8,0.9\nmontreal.tonic_chin,30,\n")
+    put("cutoffs", "basic", "index,cutoff,unit\nsinbar.chin_any_3s,20,%\naasm.rswa_epochs,12.5,%\n")
+    put("cutoffs", "rai", "index,cutoff,unit,normal_from\nrai,0.8,ratio,0.9\nmontreal.tonic_chin,30,%,\n")
 
 
 def xml():

@@ -24,8 +24,11 @@ const char *rt_caution(size_t index);
 /* "Published cutoffs come from visual scoring ..." */
 const char *rt_visual_scoring_note(void);
 
+struct rt_report_options;
+
 /* Where a night's inputs came from, for the provenance block. Paths may be
- * NULL when an input was not given. */
+ * NULL when an input was not given. report (may be NULL) gives the video
+ * offset of the evidence rows. */
 typedef struct rt_run_inputs {
     const char *recording;
     const char *stages;
@@ -33,6 +36,7 @@ typedef struct rt_run_inputs {
     const char *cutoffs;
     const char *label_map;
     const char *corrections;   /* a reviewer's decisions (docs/corrections.md) */
+    const struct rt_report_options *report;
 } rt_run_inputs;
 
 /* The night result, schema "remtone-night/3" (docs/night-json.md). */
@@ -54,7 +58,18 @@ typedef struct rt_report_options {
     bool show_identity;        /* print patient name, birth date and free-text identity from the
                                   EDF header; false by default (privacy) */
     const char *recording_id;  /* shown instead of identity; NULL = the recording's file name */
+    bool video_given;          /* give a video time beside every evidence row */
+    double video_offset_s;     /* the video started this many seconds after the recording
+                                  (negative: before); video time = recording time - this */
+    unsigned annotate_rules;   /* bursts in the annotation file: RT_LABEL_AASM_PHASIC,
+                                  RT_LABEL_SINBAR_PHASIC, RT_LABEL_MONTREAL_PHASIC or several
+                                  ORed; 0 = SINBAR alone */
 } rt_report_options;
+
+/* The video offset from the clock time the video started (hour 0-23,
+ * minute, second 0-59): the difference to the recording's start time taken
+ * within -12 h .. +12 h, since a night's video starts near its recording. */
+double rt_video_offset_from_clock(const rt_recording *rec, int hour, int minute, double second);
 
 /* One self-contained HTML page (inline SVG and CSS, no scripts) for a
  * physician: identity (de-identified unless asked), REM minutes, headline,
@@ -64,14 +79,30 @@ typedef struct rt_report_options {
 rt_status rt_night_write_html(const rt_night *night, rt_recording *rec, const rt_timeline *tl,
                               const rt_report_options *options, const char *path, rt_error *err);
 
-/* The audit table: one CSV row per REM 3-s mini-epoch and channel. */
+/* The audit table: one CSV row per REM 3-s mini-epoch and channel; epochs
+ * and mini-epochs counted from 1, with clock time, seconds from the
+ * recording start and, when options give one, the video time. options may
+ * be NULL. */
 rt_status rt_night_write_minis_csv(const rt_night *night, const rt_recording *rec,
-                                   const char *path, rt_error *err);
+                                   const rt_report_options *options, const char *path,
+                                   rt_error *err);
 
-/* The detected activity and the evidence epochs as an EDF+ annotation file
- * (EDFlib's writer), timed against the recording. */
+/* The evidence list: every flagged REM epoch (one with detected activity), in
+ * time order, one CSV row each: epoch (from 1), clock time, seconds from the
+ * recording start, video time (when options give one), channels with
+ * activity, rule sets that fired, strength (docs/review-report.md). */
+rt_status rt_night_write_evidence_csv(const rt_night *night, const rt_recording *rec,
+                                      const rt_report_options *options, const char *path,
+                                      rt_error *err);
+
+/* The detected activity and the evidence epochs as an EDF+ file (EDFlib's
+ * writer) as long as the recording and timed against it: the bursts of the
+ * rule sets of options->annotate_rules (SINBAR alone by default or with
+ * options NULL), tonic runs, evidence epochs, and one 1-Hz signal marking
+ * scored REM. */
 rt_status rt_night_write_annotations(const rt_night *night, const rt_recording *rec,
-                                     const char *path, rt_error *err);
+                                     const rt_report_options *options, const char *path,
+                                     rt_error *err);
 
 /* The indices per REM period and per half of the night as CSV, one row per
  * period (1 .. N, then half-1 and half-2) and index: clock times, first and

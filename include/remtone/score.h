@@ -66,22 +66,32 @@ const rt_index_rule *rt_index_rules(void);
 /* The rule with this id, or NULL; *out_id receives its rt_index_id when not NULL. */
 const rt_index_rule *rt_index_rule_find(const char *id, rt_index_id *out_id);
 
-/* Cutoffs in force: the published ones, or a lab's own loaded from a file. */
+/* Cutoffs in force: the published ones, or a lab's own loaded from a file.
+ * Each cutoff carries its own source: line[i] is 0 for a published cutoff
+ * (its source is the rule's) and the line of the cutoff file that set it
+ * otherwise (its source is origin, line line[i]). */
 typedef struct rt_cutoffs {
     bool has[RT_IX_COUNT];
     double value[RT_IX_COUNT];
     double normal_from[RT_IX_COUNT]; /* lower_is_worse indices */
-    char origin[512];                /* "published" or the file they came from */
+    long line[RT_IX_COUNT];          /* 0: published; else the cutoff file's line */
+    char origin[512];                /* "published", or the cutoff file when any line[i] > 0 */
 } rt_cutoffs;
 
 void rt_cutoffs_published(rt_cutoffs *cutoffs);
-/* Loads a cutoff file: CSV with header `index,cutoff` (optional column
- * `normal_from` for the REM Atonia Index); indices not listed keep the value
- * *cutoffs held. Errors name the file and line: RT_ERR_IO when the file
- * cannot be read, RT_ERR_STAGING when its content is wrong (unknown or
- * repeated index, bad number, no row), RT_ERR_NOMEM; *cutoffs is unchanged
- * on failure. */
+/* Loads a cutoff file: CSV with header `index,cutoff,unit` (optional column
+ * `normal_from` for the REM Atonia Index); each row states its unit, which
+ * must be the index's own ("%", "ratio" or "/h": a share of 0.3 given for a
+ * percentage is refused, not read as 0.3 %). A file without the unit column
+ * (the format before it) is refused with a message saying what to add.
+ * Indices not listed keep their published cutoff. Errors name the file and
+ * line (RT_ERR_STAGING). */
 rt_status rt_cutoffs_load(rt_cutoffs *cutoffs, const char *path, rt_error *err);
+/* Whether index i's cutoff in force came from a lab's cutoff file. */
+bool rt_cutoff_is_lab(const rt_cutoffs *cutoffs, int i);
+/* The source of index i's cutoff in force: the published citation of the
+ * rule, or "FILE line N" for a lab's own. i in 0..RT_IX_COUNT-1. */
+void rt_cutoff_source(const rt_cutoffs *cutoffs, int i, char *buf, size_t cap);
 
 /* ---- Parameters -------------------------------------------------------- */
 

@@ -132,11 +132,11 @@ static rt_status read_result(const char *dir, const char *id, cohort_row *row, b
     /* remtone-night/1 results (before reservations) are still read; their
      * reservations are unknown, not none */
     bool v1 = schema && strcmp(schema, "remtone-night/1") == 0;
-    /* /3 adds the night in context (docs/night-json.md): the fields read here are alike */
+    /* /3 adds fields to /2 and renames none of those read here */
     bool v23 = schema && (strcmp(schema, "remtone-night/2") == 0 ||
                           strcmp(schema, "remtone-night/3") == 0);
-    if (!schema || (!v1 && !v23) || !json_is_object(rem) ||
-        !json_is_object(review) || !json_is_object(indices)) {
+    if (!schema || (!v1 && !v23) || !json_is_object(rem) || !json_is_object(review) ||
+        !json_is_object(indices)) {
         json_decref(root);
         return rt_fail(err, RT_ERR_STAGING, "%s: not a remtone-night/3 (or /2, /1) result", path);
     }
@@ -453,10 +453,11 @@ static rt_status write_calibrated_cutoffs(const char *path, const cohort_calibra
     rt_status st = rt_output_begin(&o, path, 1, err);
     if (st != RT_OK)
         return st;
-    fputs("index,cutoff\n", o.file);
+    fputs("index,cutoff,unit\n", o.file);
     for (int i = 0; i < RT_IX_COUNT; i++)
         if (isfinite(cal->roc[i].youden_cutoff))
-            fprintf(o.file, "%s,%.10g\n", rt_index_rules()[i].id, cal->roc[i].youden_cutoff);
+            fprintf(o.file, "%s,%.10g,%s\n", rt_index_rules()[i].id, cal->roc[i].youden_cutoff,
+                    rt_index_rules()[i].unit);
     return rt_output_commit(&o, err);
 }
 

@@ -226,11 +226,12 @@ static rt_status score_and_write(const cohort_shared *s, const rt_manifest_entry
         st = rt_night_place_norms(night, e->age_years, e->sex, err);
     if (st == RT_OK) {
         rt_run_inputs in = {e->recording, e->stages, e->events, cut_path, map_path,
-                            e->corrections};
+                            e->corrections, NULL};
         st = rt_night_write_json(night, &in, json_path, err);
     }
     if (st == RT_OK && s->options->pages) {
-        rt_report_options ro_page = {false, e->id}; /* de-identified, named by the id */
+        rt_report_options ro_page = {.show_identity = false, .recording_id = e->id};
+        /* de-identified, named by the id */
         st = rt_night_write_html(night, rec, tl, &ro_page, page_path, err);
     }
     rt_labelmap_free(map);

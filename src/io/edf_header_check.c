@@ -513,9 +513,43 @@ static rt_status open_regular(const char *path, FILE **out, long long *size, rt_
     return RT_OK;
 }
 
+/* A text file given where the recording belongs is most often the staging or
+ * event table (or the XML scoring file) given in its place: say so rather than
+ * report its first bytes as a bad EDF version field. Looks only at files that
+ * are not EDF or BDF by their first 8 bytes; n bytes at c->bytes. */
+static rt_status refuse_text_file(const header_ctx *c, long long n)
+{
+    if (n >= 8 && (memcmp(c->bytes, "0       ", 8) == 0 || memcmp(c->bytes, "\xff" "BIOSEMI", 8) == 0))
+        return RT_OK;
+    const char *b = (const char *)c->bytes;
+    long long line = 0;
+    bool delimited = false;
+    while (line < n && b[line] != '\n') {
+        unsigned char ch = (unsigned char)b[line];
+        if (ch < 0x20 && ch != '\t' && ch != '\r')
+            return RT_OK; /* binary: the ordinary checks say what is wrong */
+        delimited |= ch == ',' || ch == '\t' || ch == ';';
+        line++;
+    }
+    if (n >= 5 && memcmp(b, "<?xml", 5) == 0)
+        return rt_fail(c->err, RT_ERR_RECORDING,
+                       "%s: this is an XML file, not an EDF/BDF recording; did you swap the "
+                       "recording and --stages?", c->path);
+    if (!delimited || (line == n && n >= MAIN_BYTES))
+        return RT_OK;
+    return rt_fail(c->err, RT_ERR_RECORDING,
+                   "%s: this is a text table, not an EDF/BDF recording; did you swap the "
+                   "recording and --stages?", c->path);
+}
+
 static rt_status check_open_file(header_ctx *c, FILE *f, rt_edf_layout *layout)
 {
     rt_status s;
+    long long head = c->file_bytes < MAIN_BYTES ? c->file_bytes : MAIN_BYTES;
+    if (!c->allow_no_records &&
+        ((s = read_exact(c, f, 0, head)) != RT_OK || (s = refuse_text_file(c, head)) != RT_OK))
+        return s;
+    rewind(f); /* the checks below read the header from its start */
     if (c->file_bytes < MAIN_BYTES)
         return fail_truncated_header(c, MAIN_BYTES, "the main header");
     if ((s = read_exact(c, f, 0, MAIN_BYTES)) != RT_OK || (s = check_main_header(c, layout)) != RT_OK)

@@ -64,6 +64,8 @@ static const char *set_header(int h, const rt_edf_writer_header *m)
         return "equipment";
     if (m->recording_additional && edf_set_recording_additional(h, m->recording_additional) != 0)
         return "recording additional";
+    if (m->annotation_signals > 1 && edf_set_number_of_annotation_signals(h, m->annotation_signals) != 0)
+        return "number of annotation signals";
     return NULL;
 }
 

@@ -38,6 +38,9 @@ typedef struct rt_edf_writer_header {
     const char *patient_name;
     const char *equipment;
     const char *recording_additional;
+    int annotation_signals;        /* 0 or 1: EDFlib's one; up to 64 when a file has more
+                                      annotations than data records (each signal holds one
+                                      annotation per record) */
 } rt_edf_writer_header;
 
 /* Begins an EDF+ file for path with n_signals signals (0: annotations only).

@@ -87,7 +87,11 @@ static const char CSS[] =
      * never ends a page, and table rows, list items, plots and small blocks
      * are never split. The long explanations and the evidence plots past the
      * first stay on screen. */
+    ".print-only{display:none}"
     "@media print{@page{margin:9mm}"
+    ".print-only{display:block}"
+    /* on paper the first 10 flagged epochs in time order; the screen and --evidence list all */
+    "#evidence-list{font-size:7.5px !important}#evidence-list tr:nth-child(n+12){display:none}"
     "nav{display:none}body{background:#fff;font-size:9px;line-height:1.2}"
     "main{max-width:none;padding:0}"
     "section{border:none;margin:0 0 4px 0;padding:2px 0;break-before:auto;"
@@ -103,8 +107,8 @@ static const char CSS[] =
     /* on paper: the first evidence plot and ten ranked epochs; the chart smaller */
     "#evidence > svg:nth-of-type(n+2),#evidence > h3:nth-of-type(n+2):not(:last-of-type),"
     "#evidence table tr:nth-child(n+12){display:none}"
-    "#evidence > svg{width:55%}#indices > svg{width:60%}#overview > svg{width:72%}"
-    "#bouts > svg{width:60%}"
+    "#evidence > svg{width:45%}#indices > svg{width:55%}#overview > svg{width:62%}"
+    "#bouts > svg{width:50%}#indices table,#periods table{font-size:7px}"
     ".caution li{margin:1px 0;font-size:8px}footer{font-size:7.5px;padding:0}"
     "#indices table td:nth-child(2),#indices table td:nth-child(7){min-width:34mm}"
     "header.top{background:#fff;color:#000;border-bottom:2px solid #000;padding:2px 0}"
@@ -137,17 +141,6 @@ static void value_text(const rt_index_rule *rule, double v, char *buf, size_t ca
         snprintf(buf, cap, "%.3f", v);
     else
         snprintf(buf, cap, "%.1f %s", v, rule->unit);
-}
-
-static const char *level_means(rt_review_level level)
-{
-    switch (level) {
-    case RT_REVIEW_FLAGGED: return "a published cutoff is reached";
-    case RT_REVIEW_NEAR: return "none reached, one is close";
-    case RT_REVIEW_CLEAR: return "no index reaches or nears a verified cutoff";
-    case RT_REVIEW_NOT_ASSESSABLE: return "too little usable REM or no chin channel";
-    }
-    return "";
 }
 
 /* abnormal 2, near 1, within 0, no judgement -1 (also for a cutoff recalled
@@ -246,6 +239,20 @@ static const char *display_id(const html_ctx *c)
     return rt_report_basename(rt_recording_path(c->rec));
 }
 
+/* The page's sections, id and title: the navigation links and the section
+ * headings both come from here, so a link's name is its section's title. */
+static const char *const SECTIONS[][2] = {
+    {"summary", "Summary"}, {"overview", "The night"}, {"indices", "Indices and cutoffs"},
+    {"periods", RT_HTML_PERIODS_TITLE}, {"bouts", "Activity in each REM bout"}, {"evidence", "Evidence: flagged REM epochs"},
+    {"quality", "Channels, exclusions and warnings"}, {"cautions", "Cautions"}};
+
+static void section_title(rt_page *p, const char *id)
+{
+    for (size_t i = 0; i < sizeof SECTIONS / sizeof SECTIONS[0]; i++)
+        if (strcmp(SECTIONS[i][0], id) == 0)
+            rt_page_element(p, "h2", NULL, SECTIONS[i][1]);
+}
+
 static void write_banner(html_ctx *c)
 {
     rt_page *p = &c->p;
@@ -259,16 +266,11 @@ static void write_banner(html_ctx *c)
                   c->night->recording_s / 3600.0);
     rt_page_end_html(p);
     rt_page_end_html(p);
-    static const char *const LINKS[][2] = {
-        {"#summary", "Summary"}, {"#overview", "Night"}, {"#indices", "Indices"},
-        {"#periods", "REM periods"}, {"#bouts", "REM bouts"}, {"#evidence", "Evidence"},
-        {"#quality", "Quality"},
-        {"#cautions", "Cautions"}};
     rt_page_start(p, "nav");
-    for (size_t i = 0; i < sizeof LINKS / sizeof LINKS[0]; i++) {
+    for (size_t i = 0; i < sizeof SECTIONS / sizeof SECTIONS[0]; i++) {
         rt_page_start(p, "a");
-        rt_page_attr(p, "href", LINKS[i][0]);
-        rt_page_text(p, LINKS[i][1]);
+        rt_page_attrf(p, "href", "#%s", SECTIONS[i][0]);
+        rt_page_text(p, SECTIONS[i][1]);
         rt_page_end_html(p);
     }
     rt_page_end_html(p);
@@ -351,48 +353,63 @@ static void write_staging(html_ctx *c)
     }
 }
 
+/* The headline: the value large, and beside it the one sentence every report
+ * gives (rt_report_headline): whether its cutoff is reached, or why it cannot
+ * be computed and what is shown instead. */
+static void write_headline(html_ctx *c)
+{
+    rt_page *p = &c->p;
+    const rt_night *n = c->night;
+    const rt_index_rule *hr = &rt_index_rules()[n->headline];
+    char v[48], sentence[1600];
+    value_text(hr, n->index[n->headline].value, v, sizeof v);
+    rt_page_start(p, "p");
+    rt_page_attr(p, "class", "headline");
+    rt_page_attr(p, "id", "headline");
+    if (n->index[n->headline].status == RT_STATUS_NOT_COMPUTED) {
+        rt_page_text(p, "REM with preserved muscle activity: not computed");
+    } else {
+        rt_page_textf(p, "%s of REM with preserved muscle activity ", v);
+        rt_page_start(p, "span");
+        rt_page_attr(p, "class", "unit");
+        rt_page_textf(p, "(%s)", hr->id);
+        rt_page_end_html(p);
+    }
+    rt_page_end_html(p);
+    rt_report_headline(n, sentence, sizeof sentence);
+    rt_page_start(p, "p");
+    rt_page_attr(p, "id", "headline-cutoff");
+    rt_page_text(p, sentence);
+    rt_page_end_html(p);
+}
+
 static void write_summary(html_ctx *c)
 {
     rt_page *p = &c->p;
     const rt_night *n = c->night;
-    const rt_index_rule *rules = rt_index_rules();
-    const rt_index_rule *hr = &rules[n->headline];
-    char v[48], cut[48];
+    const rt_index_rule *hr = &rt_index_rules()[n->headline];
     rt_page_start(p, "section");
     rt_page_attr(p, "id", "summary");
     rt_page_attr(p, "class", "first");
-    rt_page_element(p, "h2", NULL, "Summary");
+    section_title(p, "summary");
     rt_html_sentence(p, n);
     write_identity(c);
 
-    value_text(hr, n->index[n->headline].value, v, sizeof v);
-    rt_page_start(p, "p");
-    rt_page_attr(p, "class", "headline");
-    rt_page_textf(p, "%s of REM with preserved muscle activity ", v);
-    rt_page_start(p, "span");
-    rt_page_attr(p, "class", "unit");
-    if (n->cutoffs.has[n->headline]) {
-        value_text(hr, n->cutoffs.value[n->headline], cut, sizeof cut);
-        rt_page_textf(p, "(%s; published cutoff %s)", hr->id, cut);
-    } else {
-        rt_page_textf(p, "(%s)", hr->id);
-    }
-    rt_page_end_html(p);
-    rt_page_end_html(p);
+    write_headline(c);
     rt_page_element(p, "p", "muted", hr->title);
 
     write_staging(c);
     rt_page_start(p, "p");
     rt_page_attr(p, "id", "rem-minutes");
-    rt_page_textf(p, "REM sleep: %.1f min in %zu bouts; %.1f min scorable", n->rem_minutes,
-                  n->n_bouts, n->scorable_minutes);
+    rt_page_textf(p, "REM sleep: %.1f min in %zu bout%s; %.1f min scorable", n->rem_minutes,
+                  n->n_bouts, rt_report_plural(n->n_bouts), n->scorable_minutes);
     if (n->exclusions.total_minutes > 0)
         rt_page_textf(p, " (%.1f min left out, see Quality)", n->exclusions.total_minutes);
     rt_page_text(p, ".");
     rt_page_end_html(p);
 
     /* the level and, beside it, what limits it */
-    char statement[64];
+    char statement[700];
     rt_report_statement(n, statement, sizeof statement);
     rt_page_start(p, "div");
     rt_page_attr(p, "class", "verdict");
@@ -401,7 +418,7 @@ static void write_summary(html_ctx *c)
     rt_page_attrf(p, "class", "level level-%s%s", rt_review_level_name(n->level),
                   n->n_reservations ? "-with-reservations" : "");
     statement[0] = (char)toupper((unsigned char)statement[0]);
-    rt_page_textf(p, "%s: %s", statement, level_means(n->level));
+    rt_page_text(p, statement);
     rt_page_end_html(p);
     if (n->n_reservations) {
         rt_page_start(p, "div");
@@ -561,7 +578,7 @@ static void activity_strip(html_ctx *c, double y0, double row_h)
             double w = fmax(time_x(c, n->epochs[k].onset_s + RT_EPOCH_WHOLE_S) - x, 1.0);
             rt_report_clock(&c->start, n->epochs[k].onset_s, clock, sizeof clock);
             snprintf(tip, sizeof tip, "%s epoch %zu: %s %d of %d scorable 3-s mini-epochs active",
-                     clock, n->epochs[k].epoch, GROUP_NAME[g], active, scorable);
+                     clock, n->epochs[k].epoch + 1, GROUP_NAME[g], active, scorable);
             rt_svg_rect(p, x, y, w, row_h, scorable ? activity_colour(active) : "#9aa5b1", tip);
         }
     }
@@ -583,7 +600,7 @@ static void write_overview(html_ctx *c)
     double hyp_y = 8, strip_y = hyp_y + 5 * row_h + 14, axis_y = strip_y + 3 * (strip_h + 3) + 4;
     rt_page_start(p, "section");
     rt_page_attr(p, "id", "overview");
-    rt_page_element(p, "h2", NULL, "The night");
+    section_title(p, "overview");
     rt_page_element(p, "p", "muted",
                     "Top: the staging given to remtone, REM shaded; grey bands: time nobody "
                     "staged, never scored. Below: each REM epoch coloured by how many of its ten "
@@ -621,17 +638,42 @@ static double index_scale(const rt_night *n, int i)
     return isfinite(m) && m > 0 ? 1.25 * m : 1.0;
 }
 
+/* Where value v of index i falls along its bar, 0..1, with the abnormal side
+ * to the right for every index: the REM Atonia Index (lower is worse) runs
+ * from 1 at the left to 0 at the right, so its bar too grows past its tick
+ * when the cutoff is reached. */
+static double bar_at(const rt_night *n, int i, double v)
+{
+    double scale = index_scale(n, i), f = v / scale;
+    if (rt_index_rules()[i].lower_is_worse)
+        f = 1.0 - f;
+    return fmin(fmax(f, 0.0), 1.0);
+}
+
+/* The bar's scale in words, for the rows not on 0-100 %. */
+static void scale_words(const rt_night *n, int i, char *buf, size_t cap)
+{
+    const rt_index_rule *rule = &rt_index_rules()[i];
+    double scale = index_scale(n, i);
+    if (is_pct(rule))
+        buf[0] = '\0';
+    else if (rule->lower_is_worse)
+        snprintf(buf, cap, "; scale %g at the left to 0 at the right", scale);
+    else
+        snprintf(buf, cap, "; scale 0 to %.1f %s", scale, rule->unit);
+}
+
 static void write_index_chart(html_ctx *c)
 {
     rt_page *p = &c->p;
     const rt_night *n = c->night;
     const rt_index_rule *rules = rt_index_rules();
     const double label_w = 250, bar_x = label_w + 10, bar_w = 560, row_h = 26;
-    char v[48], buf[160];
+    char v[48], buf[320];
     rt_svg_begin(p, PAGE_W, RT_IX_COUNT * row_h + 24, "Each index against its cutoff");
     for (int i = 0; i < RT_IX_COUNT; i++) {
         const rt_index_value *x = &n->index[i];
-        double y = 6 + i * row_h, scale = index_scale(n, i);
+        double y = 6 + i * row_h;
         rt_svg_text(p, label_w, y + 14, "end", i == (int)n->headline ? "bold" : NULL, rules[i].id);
         rt_svg_rect(p, bar_x, y + 3, bar_w, row_h - 8, "#f0f3f6", NULL);
         if (x->status == RT_STATUS_NOT_COMPUTED) {
@@ -640,26 +682,29 @@ static void write_index_chart(html_ctx *c)
             rt_svg_text(p, bar_x + 6, y + 14, "start", "small", note);
             continue;
         }
-        double w = bar_w * fmin(fmax(x->value / scale, 0), 1);
+        double w = bar_w * bar_at(n, i, x->value);
         value_text(&rules[i], x->value, v, sizeof v);
-        snprintf(buf, sizeof buf, "%s: %s (%zu of %zu)", rules[i].id, v, x->numerator,
-                 x->denominator);
+        char counted[160];
+        rt_report_counted(n, i, counted, sizeof counted);
+        snprintf(buf, sizeof buf, "%s: %s (%s)", rules[i].id, v, counted);
         rt_svg_rect(p, bar_x, y + 5, w, row_h - 12, severity_colour(severity(n, i)), buf);
         if (isfinite(rules[i].context_value)) {
-            double cx = bar_x + bar_w * fmin(rules[i].context_value / scale, 1);
+            double cx = bar_x + bar_w * bar_at(n, i, rules[i].context_value);
             rt_svg_line(p, cx, y + 3, cx, y + row_h - 5, "#2f7350", 1.5, "2,2");
         }
         if (n->cutoffs.has[i]) {
-            double cx = bar_x + bar_w * fmin(n->cutoffs.value[i] / scale, 1);
+            double cx = bar_x + bar_w * bar_at(n, i, n->cutoffs.value[i]);
             rt_svg_line(p, cx, y + 1, cx, y + row_h - 3, "#1b2430", 2.0, NULL);
         }
+        char sc[80];
+        scale_words(n, i, sc, sizeof sc);
         if (n->cutoffs.has[i]) {
             char cv[48];
             value_text(&rules[i], n->cutoffs.value[i], cv, sizeof cv);
-            snprintf(buf, sizeof buf, "%s  (cutoff %s%s)", v, rules[i].lower_is_worse ? "below " : "",
-                     cv);
+            snprintf(buf, sizeof buf, "%s  (cutoff %s%s%s)", v, rules[i].lower_is_worse ? "below " : "",
+                     cv, sc);
         } else {
-            snprintf(buf, sizeof buf, "%s  (no published cutoff)", v);
+            snprintf(buf, sizeof buf, "%s  (no published cutoff%s)", v, sc);
         }
         rt_svg_text(p, bar_x + bar_w + 8, y + 14, "start", severity(n, i) == 2 ? "bold" : NULL, buf);
     }
@@ -676,22 +721,24 @@ static void write_index_table(html_ctx *c)
     rt_page *p = &c->p;
     const rt_night *n = c->night;
     const rt_index_rule *rules = rt_index_rules();
-    char v[48], counted[48];
+    char v[48], counted[160], src[600];
     rt_page_start(p, "table");
+    rt_page_attr(p, "id", "index-table");
     rt_page_start(p, "tr");
     static const char *const HEAD[] = {"index", "what it counts", "value", "counted", "cutoff",
-                                       "status", "source"};
+                                       "cutoff reached?", "source of the cutoff"};
     for (size_t h = 0; h < sizeof HEAD / sizeof HEAD[0]; h++)
         rt_page_element(p, "th", NULL, HEAD[h]);
     rt_page_end_html(p);
     for (int i = 0; i < RT_IX_COUNT; i++) {
         const rt_index_value *x = &n->index[i];
         rt_page_start(p, "tr");
+        rt_page_attr(p, "data-index", rules[i].id);
         cell(p, rules[i].id, false);
         cell(p, rules[i].title, false);
         value_text(&rules[i], x->value, v, sizeof v);
         cell(p, v, true);
-        snprintf(counted, sizeof counted, "%zu / %zu", x->numerator, x->denominator);
+        rt_report_counted(n, i, counted, sizeof counted);
         cell(p, counted, true);
         if (n->cutoffs.has[i])
             value_text(&rules[i], n->cutoffs.value[i], v, sizeof v);
@@ -699,13 +746,16 @@ static void write_index_table(html_ctx *c)
             snprintf(v, sizeof v, "none");
         cell(p, v, true);
         /* The reason and the source are written whole, with no buffer of our own to cut them. */
+        char words[96];
+        rt_report_status_words(n, i, words, sizeof words);
         rt_page_start(p, "td");
-        rt_page_textf(p, "%s%s%s", rt_index_status_name(x->status), x->reason[0] ? ": " : "",
-                      x->reason);
+        rt_page_textf(p, "%s%s%s", words, x->reason[0] ? ": " : "", x->reason);
         rt_page_end_html(p);
         rt_page_start(p, "td");
-        rt_page_text(p, rules[i].source);
-        if (rules[i].from_memory)
+        bool lab = rt_cutoff_is_lab(&n->cutoffs, i);
+        rt_cutoff_source(&n->cutoffs, i, src, sizeof src);
+        rt_page_textf(p, "%s%s", lab ? "the lab's own: " : "", src);
+        if (rules[i].from_memory && !lab)
             rt_page_text(p, " (value from memory, not verified: context only, never a reason for "
                             "review)");
         rt_page_end_html(p);
@@ -724,12 +774,15 @@ static void write_indices(html_ctx *c)
     rt_page *p = &c->p;
     rt_page_start(p, "section");
     rt_page_attr(p, "id", "indices");
-    rt_page_element(p, "h2", NULL, "Indices and cutoffs");
+    section_title(p, "indices");
     rt_page_element(p, "p", "muted",
-                    "Bars: percentages on a 0-100 % scale, the REM Atonia Index on 0-1 (lower "
-                    "means less atonia). Red: a cutoff is reached; amber: near it; blue: below; "
-                    "grey: no published cutoff, or one not verified against the published text "
-                    "(context only).");
+                    "Bars: percentages on a 0-100 % scale, rates on the scale written beside "
+                    "them, the REM Atonia Index reversed, from 1 at the left to 0 at the right "
+                    "(lower means less atonia), so that on every row a longer bar is further "
+                    "toward abnormal and a bar past its black tick has reached its cutoff. Red: "
+                    "cutoff reached; amber: not reached, but near; blue: not reached; grey: no "
+                    "published cutoff, or one not verified against the published text (context "
+                    "only).");
     write_index_chart(c);
     write_index_table(c);
     rt_html_norms(p, c->night);
@@ -766,7 +819,7 @@ static void write_bouts(html_ctx *c)
     static const char *const COLOUR[GROUP_COUNT] = {"#6b3fa0", "#2a78b5", "#3a9a4a"};
     rt_page_start(p, "section");
     rt_page_attr(p, "id", "bouts");
-    rt_page_element(p, "h2", NULL, "Activity in each REM bout");
+    section_title(p, "bouts");
     rt_page_element(p, "p", "muted",
                     "Share of each bout's scorable 3-s mini-epochs with activity (chin: any SINBAR "
                     "activity; arms, legs: SINBAR phasic). The dashed line is the cutoff of "
@@ -933,13 +986,16 @@ static void evidence_plot(html_ctx *c, size_t rank, size_t k, const trace *trace
     rt_page *p = &c->p;
     const rt_night *n = c->night;
     const rt_epoch_result *er = &n->epochs[k];
-    char clock[16], elapsed[24];
+    char clock[16];
     rt_report_clock(&c->start, er->onset_s, clock, sizeof clock);
-    rt_report_elapsed(er->onset_s, elapsed, sizeof elapsed);
     rt_page_start(p, "h3");
-    rt_page_textf(p, "#%zu at %s (%s into the recording), epoch %zu, REM bout %zu: %d of 10 "
-                     "mini-epochs active%s", rank + 1, clock, elapsed, er->epoch, er->bout + 1,
+    char video[32];
+    bool has_video = rt_report_video_time(c->opt, er->onset_s, video, sizeof video);
+    rt_page_textf(p, "#%zu: epoch %zu at %s (%.0f s into the recording%s%s), REM bout %zu: %d of "
+                     "10 mini-epochs active%s", rank + 1, er->epoch + 1, clock, er->onset_s,
+                  has_video ? "; video " : "", video, er->bout + 1,
                   er->sinbar_any_minis, er->sinbar_tonic ? ", tonic chin" : "");
+
     rt_page_end_html(p);
     int rows = 0;
     for (int r = 0; r < RT_ROLE_COUNT; r++)
@@ -993,17 +1049,36 @@ static void recording_notes(html_ctx *c, double t0, double t1)
     rt_page_end_html(p);
 }
 
+/* Where an epoch is, as every evidence row gives it: its number from 1, clock
+ * time, seconds from the recording start and, when given, the video time. */
+static void epoch_place_cells(html_ctx *c, const rt_epoch_result *er)
+{
+    char buf[32];
+    snprintf(buf, sizeof buf, "%zu", er->epoch + 1);
+    cell(&c->p, buf, true);
+    rt_report_clock(&c->start, er->onset_s, buf, sizeof buf);
+    cell(&c->p, buf, false);
+    snprintf(buf, sizeof buf, "%.0f", er->onset_s);
+    cell(&c->p, buf, true);
+    if (rt_report_video_time(c->opt, er->onset_s, buf, sizeof buf))
+        cell(&c->p, buf, false);
+}
+
 static void evidence_table(html_ctx *c, const size_t *order, size_t count)
 {
     rt_page *p = &c->p;
     const rt_night *n = c->night;
-    static const char *const HEAD[] = {"rank", "clock time", "elapsed", "epoch", "bout",
-                                       "active 3-s minis", "AASM-phasic minis", "tonic chin",
-                                       "score", "notes in the recording"};
+    static const char *const HEAD[] = {"rank", "epoch", "clock time", "seconds from start",
+                                       "video time", "bout", "active 3-s minis",
+                                       "AASM-phasic minis", "tonic chin", "strength",
+                                       "notes in the recording"};
+    bool video = c->opt && c->opt->video_given;
     rt_page_start(p, "table");
+    rt_page_attr(p, "id", "evidence-ranked");
     rt_page_start(p, "tr");
     for (size_t h = 0; h < sizeof HEAD / sizeof HEAD[0]; h++)
-        rt_page_element(p, "th", NULL, HEAD[h]);
+        if (h != 4 || video)
+            rt_page_element(p, "th", NULL, HEAD[h]);
     rt_page_end_html(p);
     char buf[64];
     for (size_t i = 0; i < count; i++) {
@@ -1011,12 +1086,7 @@ static void evidence_table(html_ctx *c, const size_t *order, size_t count)
         rt_page_start(p, "tr");
         snprintf(buf, sizeof buf, "%zu", i + 1);
         cell(p, buf, true);
-        rt_report_clock(&c->start, er->onset_s, buf, sizeof buf);
-        cell(p, buf, false);
-        rt_report_elapsed(er->onset_s, buf, sizeof buf);
-        cell(p, buf, false);
-        snprintf(buf, sizeof buf, "%zu", er->epoch);
-        cell(p, buf, true);
+        epoch_place_cells(c, er);
         snprintf(buf, sizeof buf, "%zu", er->bout + 1);
         cell(p, buf, true);
         snprintf(buf, sizeof buf, "%d / 10", er->sinbar_any_minis);
@@ -1062,6 +1132,51 @@ static rt_status compute_traces(html_ctx *c, const size_t *order, size_t plots,
     return st;
 }
 
+/* Every flagged epoch in time order, compact: the rows of `--evidence`
+ * (evidence.c, rt_report_evidence_words), so the page and the CSV agree. */
+static void evidence_list(html_ctx *c)
+{
+    rt_page *p = &c->p;
+    const rt_night *n = c->night;
+    bool video = c->opt && c->opt->video_given;
+    size_t flagged = 0;
+    for (size_t k = 0; k < n->n_epochs; k++)
+        flagged += n->epochs[k].activity > 0;
+    char buf[96], channels[96], rules[96];
+    snprintf(buf, sizeof buf, "All %zu flagged epoch%s, in time order", flagged,
+             rt_report_plural(flagged));
+    rt_page_element(p, "h3", NULL, buf);
+    static const char *const HEAD[] = {"epoch", "clock time", "seconds from start", "video time",
+                                       "channels", "rule sets", "strength"};
+    rt_page_start(p, "table");
+    rt_page_attr(p, "id", "evidence-list");
+    rt_page_attr(p, "style", "font-size:11px");
+    rt_page_start(p, "tr");
+    for (size_t h = 0; h < sizeof HEAD / sizeof HEAD[0]; h++)
+        if (h != 3 || video)
+            rt_page_element(p, "th", NULL, HEAD[h]);
+    rt_page_end_html(p);
+    for (size_t k = 0; k < n->n_epochs && p->status == RT_OK; k++) {
+        if (!rt_report_evidence_words(n, k, channels, sizeof channels, rules, sizeof rules))
+            continue;
+        const rt_epoch_result *er = &n->epochs[k];
+        rt_page_start(p, "tr");
+        epoch_place_cells(c, er);
+        cell(p, channels, false);
+        cell(p, rules, false);
+        snprintf(buf, sizeof buf, "%.1f", er->activity);
+        cell(p, buf, true);
+        rt_page_end_html(p);
+    }
+    rt_page_end_html(p);
+    if (flagged > 10) {
+        char note[160];
+        snprintf(note, sizeof note, "On paper the first 10 of the %zu flagged epochs; the page on "
+                                  "screen and the --evidence file list them all.", flagged);
+        rt_page_element(p, "p", "print-only muted", note);
+    }
+}
+
 static void write_evidence(html_ctx *c)
 {
     rt_page *p = &c->p;
@@ -1069,7 +1184,7 @@ static void write_evidence(html_ctx *c)
     size_t count = rt_report_rank_evidence(c->night, order, EVIDENCE_ROWS);
     rt_page_start(p, "section");
     rt_page_attr(p, "id", "evidence");
-    rt_page_element(p, "h2", NULL, "Evidence: the most active REM epochs");
+    section_title(p, "evidence");
     if (count == 0) {
         rt_page_element(p, "p", NULL, "No REM epoch holds detected activity.");
         rt_page_end_html(p);
@@ -1081,8 +1196,9 @@ static void write_evidence(html_ctx *c)
                     "background (green dashes), the absolute tonic level (purple dots). Bands on "
                     "top: bursts at twice background (SINBAR, light) and four times (AASM, dark). "
                     "Shaded columns: tonic 3-s mini-epochs (violet) and mini-epochs left out "
-                    "(grey). Numbers above: the 3-s mini-epochs. Epochs count from 0 at the "
-                    "recording start, as in the JSON and CSV files.");
+                    "(grey). Numbers above: the 3-s mini-epochs, 1 to 10. Epochs count from 1 "
+                    "at the recording start (epoch 1 starts at 0 s), as in the JSON, CSV and "
+                    "annotation files.");
     trace traces[EVIDENCE_PLOTS][RT_ROLE_COUNT];
     memset(traces, 0, sizeof traces);
     size_t plots = count < EVIDENCE_PLOTS ? count : EVIDENCE_PLOTS;
@@ -1093,7 +1209,12 @@ static void write_evidence(html_ctx *c)
         for (int r = 0; r < RT_ROLE_COUNT; r++)
             free(traces[i][r].env);
     rt_page_element(p, "h3", NULL, "Ranked list");
+    rt_page_element(p, "p", "muted",
+                    "Strength: the epoch's active 3-s mini-epochs (0-10), plus 10 when its chin is "
+                    "tonic, plus half its mini-epochs with an AASM-phasic burst; it orders this "
+                    "list.");
     evidence_table(c, order, count);
+    evidence_list(c);
     rt_page_end_html(p);
 }
 
@@ -1107,7 +1228,7 @@ static void write_quality(html_ctx *c)
     char buf[160];
     rt_page_start(p, "section");
     rt_page_attr(p, "id", "quality");
-    rt_page_element(p, "h2", NULL, "Channels, exclusions and warnings");
+    section_title(p, "quality");
     rt_page_start(p, "table");
     rt_page_start(p, "tr");
     static const char *const HEAD[] = {"role", "channel", "rate", "band used", "REM level",
@@ -1140,14 +1261,17 @@ static void write_quality(html_ctx *c)
                 snprintf(buf, sizeof buf, "-");
             cell(p, buf, true);
             const rt_channel_quality *q = &cr->quality;
-            snprintf(buf, sizeof buf, "%s%sECG artifact in this EMG: %s",
+            snprintf(buf, sizeof buf, "%s%sECG artifact in this channel: %s",
                      cr->low_rate ? "sampled below the AASM minimum" : "", cr->low_rate ? "; " : "",
-                     q->ecg_removed ? "found and removed" : q->ecg_found ? "found" : "not found");
+                     q->ecg_removed ? "found and removed" : q->ecg_found ? "found" : "none");
             cell(p, buf, false);
         }
         rt_page_end_html(p);
     }
     rt_page_end_html(p);
+    rt_page_element(p, "p", "muted",
+                    "REM level: the median of the channel's rectified, band-passed EMG envelope "
+                    "over its scorable 3-s REM mini-epochs, in uV (the band is in the column before).");
 
     rt_page_element(p, "h3", NULL, "REM left out of the indices");
     rt_page_start(p, "ul");
@@ -1178,7 +1302,7 @@ static void write_quality(html_ctx *c)
                                        "apnea cannot be judged from this report.");
     }
     if (isfinite(ex->rem_leg_movements_per_h)) {
-        snprintf(buf, sizeof buf, "Limb movements in REM: %.1f per hour",
+        snprintf(buf, sizeof buf, "Limb-movement events given, in REM: %.1f per hour",
                  ex->rem_leg_movements_per_h);
         rt_page_element(p, "li", NULL, buf);
     }
@@ -1200,7 +1324,7 @@ static void write_cautions(html_ctx *c)
     rt_page_start(p, "section");
     rt_page_attr(p, "id", "cautions");
     rt_page_attr(p, "class", "caution");
-    rt_page_element(p, "h2", NULL, "Cautions");
+    section_title(p, "cautions");
     rt_page_start(p, "ol");
     for (size_t i = 0; i < rt_caution_count(); i++)
         rt_page_element(p, "li", NULL, rt_caution(i));

@@ -128,7 +128,7 @@ void rt_html_periods(rt_page *p, const rt_night *n)
     rt_page_attr(p, "id", "periods");
     rt_page_start(p, "div");
     rt_page_attr(p, "class", "keep");
-    rt_page_element(p, "h2", NULL, "REM periods and halves of the night");
+    rt_page_element(p, "h2", NULL, RT_HTML_PERIODS_TITLE);
     rt_page_start(p, "p");
     rt_page_attr(p, "class", "muted");
     rt_page_textf(p, "A REM period: REM less than %g min apart. A half holds the periods that "

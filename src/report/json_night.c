@@ -24,8 +24,19 @@ static double rounded(double v, int decimals)
 }
 
 
-json_t *rt_indices_json(const rt_night *night, const rt_index_value *index)
+json_t *rt_indices_json(const rt_night *night_in, const rt_index_value *index)
 {
+    /* the words and counts below read the night's own index array: for other
+     * values (a corrected night's automatic ones) they read a copy holding them */
+    rt_night *copy = NULL;
+    const rt_night *night = night_in;
+    if (index != night_in->index) {
+        if (!(copy = rt_calloc(1, sizeof *copy)))
+            return NULL;
+        *copy = *night_in;
+        memcpy(copy->index, index, sizeof copy->index);
+        night = copy;
+    }
     const rt_index_rule *rules = rt_index_rules();
     bool ok = true;
     json_t *o = json_object();
@@ -40,13 +51,31 @@ json_t *rt_indices_json(const rt_night *night, const rt_index_value *index)
         if (rules[i].lower_is_worse && night->cutoffs.has[i])
             rt_json_set(x, "normal_from", number(night->cutoffs.normal_from[i]), &ok);
         rt_json_set(x, "status", json_string(rt_index_status_name(v->status)), &ok);
-        rt_json_set(x, "source", json_string(rules[i].source), &ok);
+        int reached = rt_report_cutoff_reached(night, i);
+        rt_json_set(x, "cutoff_reached", reached < 0 ? json_null() : json_boolean(reached), &ok);
+        char words[96], src[600], counted[160];
+        rt_report_status_words(night, i, words, sizeof words);
+        rt_json_set(x, "cutoff_words", json_string(words), &ok);
+        rt_json_set(x, "cutoff_verified",
+                    night->cutoffs.has[i] ? json_boolean(rt_night_cutoff_verified(night, i))
+                                          : json_null(), &ok);
+        rt_cutoff_source(&night->cutoffs, i, src, sizeof src);
+        rt_json_set(x, "source", rt_json_text(src), &ok);
+        rt_json_set(x, "cutoff_origin",
+                    json_string(!night->cutoffs.has[i] ? "none"
+                                : rt_cutoff_is_lab(&night->cutoffs, i) ? "lab" : "published"), &ok);
+        rt_json_set(x, "definition_source", json_string(rules[i].source), &ok);
         rt_json_set(x, "numerator", json_integer((json_int_t)v->numerator), &ok);
         rt_json_set(x, "denominator", json_integer((json_int_t)v->denominator), &ok);
+        rt_json_set(x, "numerator_unit", json_string(rt_report_numerator_unit(i)), &ok);
+        rt_json_set(x, "denominator_unit", json_string(rt_report_denominator_unit(i)), &ok);
+        rt_report_counted(night, i, counted, sizeof counted);
+        rt_json_set(x, "counted", json_string(counted), &ok);
         if (v->reason[0])
             rt_json_set(x, "reason", rt_json_text(v->reason), &ok);
         rt_json_set(o, rules[i].id, rt_json_done(x, ok), &ok);
     }
+    free(copy);
     return rt_json_done(o, ok);
 }
 
@@ -117,7 +146,7 @@ static json_t *strings_json(const char (*items)[240], size_t n)
     return rt_json_done(a, ok);
 }
 
-static json_t *evidence_json(const rt_night *night, size_t limit)
+static json_t *evidence_json(const rt_night *night, const rt_report_options *opt, size_t limit)
 {
     size_t *order = rt_calloc(limit, sizeof *order);
     if (!order)
@@ -129,8 +158,13 @@ static json_t *evidence_json(const rt_night *night, size_t limit)
         const rt_epoch_result *er = &night->epochs[order[rank]];
         json_t *x = json_object();
         rt_json_set(x, "rank", json_integer((json_int_t)rank + 1), &ok);
-        rt_json_set(x, "epoch", json_integer((json_int_t)er->epoch), &ok);
+        char clock[16], video[32];
+        rt_report_clock(&night->start, er->onset_s, clock, sizeof clock);
+        rt_json_set(x, "epoch", json_integer((json_int_t)er->epoch + 1), &ok);
+        rt_json_set(x, "clock_time", json_string(clock), &ok);
         rt_json_set(x, "onset_s", number(er->onset_s), &ok);
+        if (rt_report_video_time(opt, er->onset_s, video, sizeof video))
+            rt_json_set(x, "video_time", json_string(video), &ok);
         rt_json_set(x, "sinbar_active_minis", json_integer(er->sinbar_any_minis), &ok);
         rt_json_set(x, "aasm_phasic_minis", json_integer(er->aasm_any_minis), &ok);
         rt_json_set(x, "tonic", json_boolean(er->sinbar_tonic), &ok);
@@ -456,6 +490,13 @@ rt_status rt_night_write_json(const rt_night *night, const rt_run_inputs *inputs
     json_t *head = json_object();
     rt_json_set(head, "index", json_string(rt_index_rules()[night->headline].id), &ok);
     rt_json_set(head, "value", number(rounded(night->index[night->headline].value, 2)), &ok);
+    rt_json_set(head, "preferred", json_string(rt_index_rules()[RT_IX_SINBAR_COMBINED_3S].id), &ok);
+    int head_reached = rt_report_cutoff_reached(night, (int)night->headline);
+    rt_json_set(head, "cutoff_reached", head_reached < 0 ? json_null() : json_boolean(head_reached),
+                &ok);
+    char head_text[1600];
+    rt_report_headline(night, head_text, sizeof head_text);
+    rt_json_set(head, "text", rt_json_text(head_text), &ok);
     rt_json_set(root, "headline", rt_json_done(head, ok), &ok);
     rt_json_set(root, "indices", rt_indices_json(night, night->index), &ok);
     json_t *rev = json_object();
@@ -463,9 +504,9 @@ rt_status rt_night_write_json(const rt_night *night, const rt_run_inputs *inputs
     rt_json_set(rev, "level", json_string(rt_review_level_name(night->level)), &ok);
     rt_json_set(rev, "reasons", strings_json(night->reasons, night->n_reasons), &ok);
     rt_json_set(rev, "with_reservations", json_boolean(night->n_reservations > 0), &ok);
-    char statement[64];
+    char statement[700];
     rt_report_statement(night, statement, sizeof statement);
-    rt_json_set(rev, "statement", json_string(statement), &ok);
+    rt_json_set(rev, "statement", rt_json_text(statement), &ok);
     rt_json_set(root, "review", rt_json_done(rev, ok), &ok);
     rt_json_set(root, "reservations", reservations_json(night), &ok);
     rt_json_set(root, "sleep", sleep_json(night), &ok);
@@ -475,7 +516,7 @@ rt_status rt_night_write_json(const rt_night *night, const rt_run_inputs *inputs
     rt_json_set(root, "exclusions", exclusions_json(night), &ok);
     rt_json_set(root, "agreement", rt_agreement_json(&night->agreement), &ok);
     rt_json_set(root, "corrections", rt_corrections_json(night), &ok);
-    rt_json_set(root, "evidence", evidence_json(night, 10), &ok);
+    rt_json_set(root, "evidence", evidence_json(night, inputs ? inputs->report : NULL, 10), &ok);
     rt_json_set(root, "warnings", strings_json(night->warnings, night->n_warnings), &ok);
     rt_json_set(root, "cautions", cautions_json(), &ok);
     rt_json_set(root, "provenance", prov, &ok);

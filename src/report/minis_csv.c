@@ -16,6 +16,7 @@
 
 #include "internal.h"
 #include "output.h"
+#include "report_internal.h"
 #include "text.h"
 #include "remtone/corrections.h"
 #include "remtone/report.h"
@@ -82,7 +83,8 @@ static void put_level(FILE *f, float v)
 }
 
 rt_status rt_night_write_minis_csv(const rt_night *night, const rt_recording *rec,
-                                   const char *path, rt_error *err)
+                                   const rt_report_options *options, const char *path,
+                                   rt_error *err)
 {
     rt_output out;
     rt_status st = rt_output_begin(&out, path, 1, err);
@@ -91,20 +93,24 @@ rt_status rt_night_write_minis_csv(const rt_night *night, const rt_recording *re
     FILE *f = out.file;
     int no_memory = 0;
     rt_clock_time start = rt_recording_start(rec);
-    fprintf(f, "epoch,mini,clock_time,elapsed_s,stage,role,label,envelope_uv,background_uv,"
+    bool video = options && options->video_given;
+    fprintf(f, "epoch,mini,clock_time,elapsed_s,%sstage,role,label,envelope_uv,background_uv,"
                "aasm_phasic,sinbar_phasic,sinbar_tonic,sinbar_any,excluded_by,"
-               "decision,reason,reviewer,decided_at\n");
+               "decision,reason,reviewer,decided_at\n",
+            video ? "video_time," : "");
     size_t cursor = 0;
     for (size_t i = 0; i < night->n_minis3 && !ferror(f) && !no_memory; i++) {
         const rt_mini *m = &night->minis3[i];
-        char clock[16], excl[160];
+        char clock[16], excl[160], vt[32];
         rt_report_clock(&start, m->onset_s, clock, sizeof clock);
+        rt_report_video_time(options, m->onset_s, vt, sizeof vt);
         for (int r = 0; r < RT_ROLE_COUNT; r++) {
             if (r == RT_ROLE_ECG || !night->channel[r].present)
                 continue;
             unsigned char l = m->labels[r];
-            fprintf(f, "%zu,%d,%s,%.3f,R,%s,", m->epoch, m->index, clock, m->onset_s,
-                    rt_role_name((rt_role)r));
+            /* epochs and mini-epochs counted from 1, as users count them */
+            fprintf(f, "%zu,%d,%s,%.3f,%s%sR,%s,", m->epoch + 1, m->index + 1, clock, m->onset_s,
+                    vt, video ? "," : "", rt_role_name((rt_role)r));
             no_memory |= rt_csv_put_field(f, night->channel[r].label);
             fputc(',', f);
             put_level(f, m->envelope_uv[r]);

@@ -85,9 +85,34 @@ size_t rt_report_rank_evidence(const rt_night *night, size_t *order, size_t limi
 /* The review level in plain words: "review advised", "near a cutoff",
  * "clear", "not assessable". */
 const char *rt_report_level_plain(rt_review_level level);
-/* The level as the reports state it: "clear", or "clear, with reservations"
+/* The level as the reports state it, with what it rests on: "clear: no
+ * verified cutoff is reached or near", or "clear, with reservations: ..."
  * when the night has any (and so for every level). */
 void rt_report_statement(const rt_night *night, char *buf, size_t cap);
+/* What the level rests on, with the words "reached" / "not reached" and the
+ * kind of cutoff: "a published cutoff is reached", "a lab's own cutoff is
+ * reached (lab.csv)", "no verified cutoff is reached or near", ... */
+void rt_report_level_means(const rt_night *night, char *buf, size_t cap);
+/* Index i against its cutoff in force: "reached", "not reached",
+ * "not reached; intermediate (0.800 to 0.900)", "no cutoff", "not computed". */
+void rt_report_status_words(const rt_night *night, int i, char *buf, size_t cap);
+/* Whether index i's cutoff in force is reached: 1, 0, or -1 when it has no
+ * cutoff or was not computed. */
+int rt_report_cutoff_reached(const rt_night *night, int i);
+/* The headline as one sentence: the value of "REM with preserved muscle
+ * activity", whether its cutoff (published or the lab's) is reached, and,
+ * when the preferred index cannot be computed, why and which index is shown
+ * instead, or that none can be. */
+void rt_report_headline(const rt_night *night, char *buf, size_t cap);
+/* What index i counted, with units: "38 of 180 3-s mini-epochs",
+ * "29 leg movements in 9.0 min of REM". */
+void rt_report_counted(const rt_night *night, int i, char *buf, size_t cap);
+/* The units of rt_report_counted: numerator and denominator nouns. */
+const char *rt_report_numerator_unit(int i);
+const char *rt_report_denominator_unit(int i);
+/* "s" when n is not 1: "1 bout", "2 bouts". */
+const char *rt_report_plural(size_t n);
+
 /* What the staging covers, one line: "4.0 h staged of the 7.5-h recording;
  * partial, unstaged 3.5 h at the end (more than the 30.0 min allowed)". The
  * gaps are listed separately (night->staging.gaps). */
@@ -99,6 +124,19 @@ void rt_report_value_text(const rt_index_rule *rule, double v, char *buf, size_t
 /* The sleep context, the REM periods and halves, and the norms (when
  * placed) as lines of the text summary. */
 void rt_context_write_text(const rt_night *night, FILE *out);
+/* The video time of t_s (seconds from the recording start) as "H:MM:SS",
+ * "-H:MM:SS" before the video started; false (and "") when options give no
+ * video offset (options may be NULL). */
+struct rt_report_options;
+bool rt_report_video_time(const struct rt_report_options *options, double t_s, char *buf,
+                          size_t cap);
+/* Whether REM epoch k (index into night->epochs) is flagged (has detected
+ * activity) and, if so, the roles with activity ("chin leg-left") and the
+ * rule sets that fired ("aasm-phasic sinbar-phasic sinbar-tonic"), space
+ * separated. */
+bool rt_report_evidence_words(const rt_night *night, size_t k, char *channels, size_t ch_cap,
+                              char *rules, size_t rules_cap);
+
 /* The last component of a path (the path itself when it has no '/'). */
 const char *rt_report_basename(const char *path);
 

@@ -22,20 +22,18 @@ void rt_report_value_text(const rt_index_rule *rule, double v, char *buf, size_t
 }
 
 /* The level line: its name in capitals, ", WITH RESERVATIONS" when the night
- * has any, and what it means. */
+ * has any, and what it rests on (rt_report_level_means, as every report says it). */
 static void level_line(FILE *out, const rt_night *night)
 {
     static const char *const NAME[] = {"CLEAR", "NEAR CUTOFF", "REVIEW", "NOT ASSESSABLE"};
-    static const char *const MEANS[] = {
-        "no index reaches or nears a verified cutoff",
-        "no cutoff reached, but one is close",
-        "a published cutoff is reached; physician review advised",
-        "the night cannot be scored reliably"};
     int l = (int)night->level;
     if (l < 0 || l > RT_REVIEW_NOT_ASSESSABLE)
         return;
-    fprintf(out, "%s%s: %s%s\n", NAME[l], night->n_reservations ? ", WITH RESERVATIONS" : "",
-            MEANS[l], night->n_reservations ? "; the reservations below limit what this says" : "");
+    char means[600];
+    rt_report_level_means(night, means, sizeof means);
+    fprintf(out, "%s%s: %s%s%s\n", NAME[l], night->n_reservations ? ", WITH RESERVATIONS" : "",
+            means, l == RT_REVIEW_FLAGGED ? "; physician review advised" : "",
+            night->n_reservations ? "; the reservations below limit what this says" : "");
 }
 
 /* Gaps listed in the text; the JSON result lists them all. */
@@ -73,8 +71,8 @@ static void quality_line(FILE *out, const char *name, const rt_channel_quality *
      * chin without cardiac signal; the beats' source says what the evidence rests on */
     static const char *const FROM[] = {"", " (beats from the ECG channel)",
                                        " (beats from the chin itself)"};
-    fprintf(out, "; ECG artifact in this EMG: %s%s",
-            q->ecg_removed ? "found and removed" : q->ecg_found ? "found" : "not found",
+    fprintf(out, "; ECG artifact in this channel: %s%s",
+            q->ecg_removed ? "found and removed" : q->ecg_found ? "found" : "none",
             q->ecg_found && q->ecg_source >= 1 && q->ecg_source <= 2 ? FROM[q->ecg_source] : "");
     if (q->bursts_vetoed)
         fprintf(out, ", %zu bursts refused at QRS", q->bursts_vetoed);
@@ -99,24 +97,31 @@ rt_status rt_night_write_text(const rt_night *night, FILE *out, rt_error *err)
     rt_night_plain_sentence(night, sentence, sizeof sentence);
     fprintf(out, "In short: %s\n\n", sentence);
     staging_lines(out, night);
-    fprintf(out, "REM: %.1f min in %zu bouts, %.1f min scorable\n", night->rem_minutes,
-            night->n_bouts, night->scorable_minutes);
+    fprintf(out, "REM: %.1f min in %zu bout%s, %.1f min scorable\n", night->rem_minutes,
+            night->n_bouts, rt_report_plural(night->n_bouts), night->scorable_minutes);
     fprintf(out, "Channels:");
     for (int r = 0; r < RT_ROLE_COUNT; r++)
         if (night->channel[r].present)
             fprintf(out, " %s=%s", rt_role_name((rt_role)r), night->channel[r].label);
     fprintf(out, "\n");
-    rt_report_value_text(&rules[night->headline], night->index[night->headline].value, v, sizeof v);
-    fprintf(out, "REM with preserved muscle activity: %s (%s)\n\n", v, rules[night->headline].id);
-    fprintf(out, "%-34s %10s %10s  %s\n", "index", "value", "cutoff", "status");
+    char head[1600], status[96];
+    rt_report_headline(night, head, sizeof head);
+    fprintf(out, "%s\n\n", head);
+    fprintf(out, "%-34s %10s %10s  %s\n", "index", "value", "cutoff", "cutoff reached?");
     for (int i = 0; i < RT_IX_COUNT; i++) {
         rt_report_value_text(&rules[i], night->index[i].value, v, sizeof v);
-        if (night->cutoffs.has[i])
+        if (night->cutoffs.has[i] && rules[i].lower_is_worse) {
+            rt_report_value_text(&rules[i], night->cutoffs.value[i], c + 1, sizeof c - 1);
+            c[0] = '<'; /* the REM Atonia Index reaches its cutoff from above */
+        } else if (night->cutoffs.has[i]) {
             rt_report_value_text(&rules[i], night->cutoffs.value[i], c, sizeof c);
-        else
+        } else {
             snprintf(c, sizeof c, "none");
-        fprintf(out, "%-34s %10s %10s  %s", rules[i].id, v, c,
-                rt_index_status_name(night->index[i].status));
+        }
+        rt_report_status_words(night, i, status, sizeof status);
+        fprintf(out, "%-34s %10s %10s  %s", rules[i].id, v, c, status);
+        if (rt_cutoff_is_lab(&night->cutoffs, i))
+            fprintf(out, " [lab's cutoff, line %ld]", night->cutoffs.line[i]);
         if (night->cutoffs.has[i] && !rt_night_cutoff_verified(night, i))
             fprintf(out, " [cutoff not verified: context only]");
         if (night->index[i].reason[0])
@@ -127,8 +132,10 @@ rt_status rt_night_write_text(const rt_night *night, FILE *out, rt_error *err)
     rt_context_write_text(night, out);
     const rt_exclusion_summary *x = &night->exclusions;
     if (x->total_minutes > 0) {
-        fprintf(out, "Left out of REM: %.1f min (", x->total_minutes);
-        const char *sep = "";
+        /* the causes in brackets only when there are any: a channel's quality
+         * marks leave minutes out without an event */
+        fprintf(out, "Left out of REM: %.1f min", x->total_minutes);
+        const char *sep = " (";
         for (int t = 0; t < RT_EVENT_TYPE_COUNT; t++)
             if (x->minutes[t] > 0) {
                 fprintf(out, "%s%s %.1f", sep, rt_event_type_name((rt_event_type)t), x->minutes[t]);
@@ -138,9 +145,11 @@ rt_status rt_night_write_text(const rt_night *night, FILE *out, rt_error *err)
             fprintf(out, "%soutside lights %.1f", sep, x->outside_lights_minutes);
             sep = ", ";
         }
-        if (x->review_minutes > 0)
+        if (x->review_minutes > 0) {
             fprintf(out, "%sby the reviewer %.1f", sep, x->review_minutes);
-        fprintf(out, ")\n");
+            sep = ", ";
+        }
+        fprintf(out, "%s\n", sep[0] == ',' ? ")" : "");
     }
     if (x->have_respiratory)
         fprintf(out, "REM apnea-hypopnea index: %.1f/h\n", x->rem_ahi);
@@ -266,7 +275,8 @@ rt_status rt_rules_write_text(const rt_cutoffs *cutoffs, FILE *out, rt_error *er
 {
     const rt_index_rule *rules = rt_index_rules();
     char c[32];
-    fprintf(out, "%-34s %-8s %-12s %s\n", "index", "unit", "cutoff", "source");
+    char src[600];
+    fprintf(out, "%-34s %-8s %-12s %s\n", "index", "unit", "cutoff", "source of the cutoff");
     for (int i = 0; i < RT_IX_COUNT; i++) {
         if (cutoffs->has[i] && rules[i].lower_is_worse)
             snprintf(c, sizeof c, "<%g (<=%g)", cutoffs->value[i], cutoffs->normal_from[i]);
@@ -274,10 +284,16 @@ rt_status rt_rules_write_text(const rt_cutoffs *cutoffs, FILE *out, rt_error *er
             snprintf(c, sizeof c, ">=%g", cutoffs->value[i]);
         else
             snprintf(c, sizeof c, "none");
-        fprintf(out, "%-34s %-8s %-12s %s%s\n", rules[i].id, rules[i].unit, c, rules[i].source,
-                rules[i].from_memory ? " [value from memory, not verified: context only, never a "
-                                       "reason for review]"
-                                     : "");
+        bool lab = rt_cutoff_is_lab(cutoffs, i);
+        rt_cutoff_source(cutoffs, i, src, sizeof src);
+        fprintf(out, "%-34s %-8s %-12s %s%s%s\n", rules[i].id, rules[i].unit, c,
+                lab ? "the lab's own: " : "", src,
+                !lab && rules[i].from_memory ? " [value from memory, not verified: context only, "
+                                               "never a reason for review]"
+                                             : "");
+        if (lab && rules[i].has_cutoff)
+            fprintf(out, "%-34s published: %g%s, %s\n", "", rules[i].cutoff,
+                    strcmp(rules[i].unit, "%") == 0 ? " %" : "", rules[i].source);
         fprintf(out, "%-34s %s\n", "", rules[i].title);
     }
     fprintf(out, "\nCutoffs in force: %s\n%s\n", cutoffs->origin, rt_visual_scoring_note());

@@ -1,5 +1,8 @@
-/* A lab's own cutoffs: CSV `index,cutoff[,normal_from]`, read with the shared
- * table reader; indices the file does not list keep their published cutoff. */
+/* A lab's own cutoffs: CSV `index,cutoff,unit[,normal_from]`, read with the
+ * shared table reader; indices the file does not list keep their published
+ * cutoff. Every row states its unit so that a share (0.3) cannot pass for a
+ * percentage (30 %); each loaded cutoff remembers its line, which is its
+ * source in every report (docs/scoring.md, "A lab's own cutoffs"). */
 #include <math.h>
 #include <stdio.h>
 #include <string.h>
@@ -32,6 +35,25 @@ static void on_cutoff_row(rt_table *t, char **v)
         return;
     }
     rows->seen[id] = true;
+    if (t->column_index[3] < 0) {
+        rt_table_fail(t, rt_fail(&t->error, RT_ERR_STAGING,
+                                 "%s line %ld: the cutoff file has no \"unit\" column; each row "
+                                 "must state its unit (%% for percentages, ratio for the REM "
+                                 "Atonia Index, /h for rates): add it, for example "
+                                 "\"index,cutoff,unit\" and \"sinbar.chin_any_3s,18.2,%%\"",
+                                 t->path, t->header_line));
+        return;
+    }
+    if (strcmp(v[3], rule->unit) != 0) {
+        char q[RT_TABLE_QUOTE_MAX];
+        rt_table_quote(q, sizeof q, v[3]);
+        rt_table_fail(t, rt_fail(&t->error, RT_ERR_STAGING,
+                                 "%s line %ld: unit \"%s\" does not fit %s, which is counted in "
+                                 "\"%s\"%s", t->path, t->row_line, q, v[0], rule->unit,
+                                 strcmp(rule->unit, "%") == 0
+                                     ? " (a share of 0.3 is written 30 with unit %)" : ""));
+        return;
+    }
     double cutoff;
     if (!rt_table_number(t, v[1], "cutoff", &cutoff))
         return;
@@ -44,6 +66,7 @@ static void on_cutoff_row(rt_table *t, char **v)
     }
     rows->next.has[id] = true;
     rows->next.value[id] = cutoff;
+    rows->next.line[id] = t->row_line;
     if (v[2][0] != '\0') {
         double normal;
         if (!rt_table_number(t, v[2], "normal_from", &normal))
@@ -74,7 +97,9 @@ rt_status rt_cutoffs_load(rt_cutoffs *cutoffs, const char *path, rt_error *err)
     t.columns[1] = "cutoff";
     t.columns[2] = "normal_from";
     t.optional[2] = true;
-    t.n_columns = 3;
+    t.columns[3] = "unit";
+    t.optional[3] = true; /* absent: refused with its own message (on_cutoff_row) */
+    t.n_columns = 4;
     t.on_row = on_cutoff_row;
     t.user = &rows;
     rt_status st = rt_table_read(&t, err);
@@ -85,4 +110,19 @@ rt_status rt_cutoffs_load(rt_cutoffs *cutoffs, const char *path, rt_error *err)
     snprintf(rows.next.origin, sizeof rows.next.origin, "%s", path);
     *cutoffs = rows.next;
     return RT_OK;
+}
+
+bool rt_cutoff_is_lab(const rt_cutoffs *cutoffs, int i)
+{
+    return i >= 0 && i < RT_IX_COUNT && cutoffs->line[i] > 0;
+}
+
+void rt_cutoff_source(const rt_cutoffs *cutoffs, int i, char *buf, size_t cap)
+{
+    if (rt_cutoff_is_lab(cutoffs, i))
+        snprintf(buf, cap, "%s line %ld", cutoffs->origin, cutoffs->line[i]);
+    else if (i >= 0 && i < RT_IX_COUNT)
+        snprintf(buf, cap, "%s", rt_index_rules()[i].source);
+    else
+        snprintf(buf, cap, "unknown");
 }

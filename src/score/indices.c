@@ -371,6 +371,11 @@ static rt_status summarise_exclusions(rt_night *night, rt_error *err)
         } else {
             lm->value = x->rem_leg_movements_per_h;
             lm->status = RT_STATUS_NO_CUTOFF;
+            /* the events' count back from their rate, over every REM mini-epoch */
+            lm->numerator = (size_t)llround(lm->value * night->rem_minutes / 60.0);
+            lm->denominator = night->n_minis3;
+            rt_copy_string(lm->reason, sizeof lm->reason,
+                           "counted from the limb-movement events given, per hour of REM");
         }
     } else if (!legs) {
         not_computed(lm, "no limb-movement events were given and no leg EMG channel");
@@ -471,9 +476,8 @@ bool rt_night_cutoff_verified(const rt_night *night, int i)
     const rt_index_rule *r = &rt_index_rules()[i];
     if (!r->has_cutoff || !r->from_memory)
         return true;
-    /* a lab's own value (cutoff file) is the lab's responsibility */
-    return night->cutoffs.value[i] != r->cutoff ||
-           (r->lower_is_worse && night->cutoffs.normal_from[i] != r->normal_from);
+    /* a lab's own value (a row of its cutoff file) is the lab's responsibility */
+    return rt_cutoff_is_lab(&night->cutoffs, i);
 }
 
 bool rt_night_index_near(const rt_night *night, int i)
@@ -532,15 +536,15 @@ static void review(rt_night *night)
      * the review flag on its own (docs/scoring.md, "Review level"). */
     bool flagged = false, nearing = false;
     for (int i = 0; i < RT_IX_COUNT; i++) {
-        char val[32], cut[32];
+        char val[32], cut[32], src[600];
         if (rt_night_index_abnormal(night, i) && rt_night_cutoff_verified(night, i)) {
             flagged = true;
             rt_night_value_text(night, i, night->index[i].value, val, sizeof val);
             rt_night_value_text(night, i, night->cutoffs.value[i], cut, sizeof cut);
-            add_reason(night, "%s is %s, %s the cutoff %s (%s)", rules[i].id, val,
-                       rules[i].lower_is_worse ? "below" : "at or above", cut,
-                       strcmp(night->cutoffs.origin, "published") == 0 ? rules[i].source
-                                                                       : night->cutoffs.origin);
+            rt_cutoff_source(&night->cutoffs, i, src, sizeof src);
+            add_reason(night, "%s is %s: the %s cutoff %s%s is reached (%s)", rules[i].id, val,
+                       rt_cutoff_is_lab(&night->cutoffs, i) ? "lab's" : "published",
+                       rules[i].lower_is_worse ? "below " : "", cut, src);
         }
     }
     if (!flagged) {
@@ -551,21 +555,22 @@ static void review(rt_night *night)
             nearing = true;
             rt_night_value_text(night, i, night->index[i].value, val, sizeof val);
             rt_night_value_text(night, i, night->cutoffs.value[i], cut, sizeof cut);
-            add_reason(night, "%s is %s, near the cutoff %s", rules[i].id, val, cut);
+            add_reason(night, "%s is %s: the %s cutoff %s is not reached, but near", rules[i].id,
+                       val, rt_cutoff_is_lab(&night->cutoffs, i) ? "lab's" : "published", cut);
         }
     }
     night->level = flagged ? RT_REVIEW_FLAGGED : nearing ? RT_REVIEW_NEAR : RT_REVIEW_CLEAR;
     if (night->level == RT_REVIEW_CLEAR)
-        add_reason(night, "no index reaches or nears a verified cutoff");
+        add_reason(night, "no verified cutoff is reached or near");
     for (int i = 0; i < RT_IX_COUNT; i++) {
         if (!rt_night_index_abnormal(night, i) || rt_night_cutoff_verified(night, i))
             continue;
         char val[32], cut[32];
         rt_night_value_text(night, i, night->index[i].value, val, sizeof val);
         rt_night_value_text(night, i, night->cutoffs.value[i], cut, sizeof cut);
-        add_reason(night, "context only: %s is %s, %s %s, a cutoff recalled but not verified "
-                          "against the published text: not a reason for review",
-                   rules[i].id, val, rules[i].lower_is_worse ? "below" : "at or above", cut);
+        add_reason(night, "context only: %s is %s: %s%s is reached, a cutoff recalled but not "
+                          "verified against the published text: not a reason for review",
+                   rules[i].id, val, rules[i].lower_is_worse ? "below " : "", cut);
     }
 }
 

@@ -845,6 +845,28 @@ static void check_prefilter(rt_night *night, const rt_recording *rec, const rt_r
                       night->params.band_low_hz, night->params.band_high_hz);
 }
 
+/* An EMG role given on the command line (--chin ECG) whose channel reads as
+ * an ECG lead: scored as asked, with a warning, since ECG scored as chin EMG
+ * would count every heartbeat as a burst. */
+static void check_ecg_label(rt_night *night, const rt_recording *rec, rt_role role,
+                            const rt_role_source *src)
+{
+    if (src->detected)
+        return;
+    const int sides[2] = {src->channel, src->reference};
+    for (int k = 0; k < 2; k++) {
+        if (sides[k] < 0)
+            continue;
+        const rt_channel_info *ch = rt_recording_channel(rec, sides[k]);
+        if (rt_role_detect(ch->label, ch->transducer) == RT_ROLE_ECG) {
+            rt_night_warn(night, "%s was given channel %s, whose label reads as an ECG lead: "
+                          "scored as asked; check the --%s option", rt_role_name(role), ch->label,
+                          rt_role_name(role));
+            return;
+        }
+    }
+}
+
 /* The conditioners of the EMG roles, with the mains probe on the first REM bout. */
 static rt_status open_channels(pass_ctx *c, rt_error *err)
 {
@@ -860,6 +882,7 @@ static rt_status open_channels(pass_ctx *c, rt_error *err)
         rt_copy_string(cr->label, sizeof cr->label, src->label);
         cr->rate_hz = src->rate_hz;
         check_prefilter(night, c->rec, src, &cr->quality);
+        check_ecg_label(night, c->rec, (rt_role)r, src);
         rt_status st = rt_conditioner_open(c->rec, src, p, first ? first->t0 : 0.0,
                                            first ? (double)first->n_epochs * RT_EPOCH_S : 0.0,
                                            &c->cond[r], err);

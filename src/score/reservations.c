@@ -299,8 +299,10 @@ static void reserve_unverified(rt_night *night)
         char val[32], cut[32];
         rt_night_value_text(night, i, night->index[i].value, val, sizeof val);
         rt_night_value_text(night, i, night->cutoffs.value[i], cut, sizeof cut);
-        append(list, sizeof list, "%s%s is %s, %s %s", list[0] ? "; " : "", rules[i].id, val,
-               reached ? (rules[i].lower_is_worse ? "below" : "at or above") : "near", cut);
+        /* "reached" / "not reached", the words of every report (src/report/words.c) */
+        append(list, sizeof list, "%s%s is %s: %s%s %s", list[0] ? "; " : "", rules[i].id, val,
+               rules[i].lower_is_worse ? "below " : "", cut,
+               reached ? "reached" : "not reached, but near");
         count++;
     }
     if (count)

@@ -156,7 +156,7 @@ static const rt_index_rule RULES[RT_IX_COUNT] = {
     },
     [RT_IX_MONTREAL_LM_PER_H] = {
         .id = "montreal.rem_leg_movements_per_h",
-        .title = "leg movements in REM per hour (limb-movement events, else the leg EMG by the AASM rules)",
+        .title = "leg movements in REM per hour",
         .unit = "/h", .lower_is_worse = false,
         .has_cutoff = true, .cutoff = 24.0, .normal_from = NONE,
         .source = SRC_MONTREAL, .from_memory = false,

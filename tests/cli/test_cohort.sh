@@ -250,7 +250,7 @@ has subject-two-groups-named "$work/err" 'subject "S1" has nights in more than o
 mkdir -p data/site2
 sed -e 's/,R$/,Paradoxical/' -e 's/,W$/,Awake/' data/t6/stages.csv > data/site2/stages.csv
 printf 'label,meaning\nParadoxical,R\nAwake,W\n' > data/site2/labels.csv
-printf 'index,cutoff\nsinbar.chin_any_fds_phasic_3s,12\n' > data/site2/cutoffs.csv
+printf 'index,cutoff,unit\nsinbar.chin_any_fds_phasic_3s,12,%%\n' > data/site2/cutoffs.csv
 {
   echo "id,recording,stages,events,group,label_map,cutoffs"
   echo "t6,t6/night.edf,t6/stages.csv,,control,,"

@@ -86,13 +86,21 @@ static void every_onset_is_in_the_file(void **state)
     char path[4200];
     snprintf(path, sizeof path, "%s/activity.edf", f->dir);
     rt_error err;
-    if (rt_night_write_annotations(n, f->rec, path, &err) != RT_OK)
+    /* every rule set's bursts asked for, so every burst of the night is in */
+    rt_report_options all = {.annotate_rules = RT_LABEL_AASM_PHASIC | RT_LABEL_SINBAR_PHASIC |
+                                               RT_LABEL_MONTREAL_PHASIC};
+    if (rt_night_write_annotations(n, f->rec, &all, path, &err) != RT_OK)
         fail_msg("%s", err.message);
     rt_recording *a = NULL;
     if (rt_recording_open(path, &a, &err) != RT_OK)
         fail_msg("%s", err.message);
     assert_int_equal(rt_recording_kind(a), RT_FILE_EDFPLUS);
-    assert_int_equal(rt_recording_channel_count(a), 0);
+    /* one 1-Hz signal marking REM, so the file lasts as long as the recording */
+    assert_int_equal(rt_recording_channel_count(a), 1);
+    assert_string_equal(rt_recording_channel(a, 0)->label, "remtone REM");
+    print_message("# durations: recording %.3f s, activity file %.3f s\n",
+                  rt_recording_duration_s(f->rec), rt_recording_duration_s(a));
+    assert_true(fabs(rt_recording_duration_s(a) - rt_recording_duration_s(f->rec)) < 1e-9);
     /* the same start date and time as the recording */
     rt_clock_time s0 = rt_recording_start(f->rec), s1 = rt_recording_start(a);
     assert_int_equal(s1.year, s0.year);
@@ -147,8 +155,10 @@ static void every_onset_is_in_the_file(void **state)
     for (size_t i = 0; i < json_array_size(ev); i++) {
         json_t *x = json_array_get(ev, i);
         char text[64];
-        snprintf(text, sizeof text, "remtone evidence %lld",
-                 (long long)json_integer_value(json_object_get(x, "rank")));
+        /* the rank and the epoch counted from 1, both as the JSON result gives them */
+        snprintf(text, sizeof text, "remtone evidence %lld epoch %lld",
+                 (long long)json_integer_value(json_object_get(x, "rank")),
+                 (long long)json_integer_value(json_object_get(x, "epoch")));
         double onset = json_real_value(json_object_get(x, "onset_s"));
         if (find(a, onset, 30.0, text) < 0)
             fail_msg("%s at %.1f s missing", text, onset);
@@ -160,17 +170,50 @@ static void every_onset_is_in_the_file(void **state)
     rt_recording_close(a);
 }
 
+/* By default each burst is written once, under one rule set (SINBAR): the
+ * AASM and Montreal copies of the same burst stay out of a viewer. */
+static void bursts_once_by_default(void **state)
+{
+    fixture *f = *state;
+    const rt_night *n = f->night;
+    char path[4200];
+    snprintf(path, sizeof path, "%s/activity-default.edf", f->dir);
+    rt_error err;
+    if (rt_night_write_annotations(n, f->rec, NULL, path, &err) != RT_OK)
+        fail_msg("%s", err.message);
+    rt_recording *a = NULL;
+    if (rt_recording_open(path, &a, &err) != RT_OK)
+        fail_msg("%s", err.message);
+    size_t sinbar = 0, other = 0, written = 0;
+    for (size_t i = 0; i < n->n_bursts; i++) {
+        sinbar += (n->bursts[i].rules & RT_LABEL_SINBAR_PHASIC) != 0;
+        other += (n->bursts[i].rules & RT_LABEL_SINBAR_PHASIC) == 0;
+    }
+    for (size_t i = 0; i < rt_recording_annotation_count(a); i++) {
+        const char *t = rt_recording_annotation(a, i)->text;
+        assert_null(strstr(t, "remtone phasic aasm"));
+        assert_null(strstr(t, "remtone phasic montreal"));
+        written += strncmp(t, "remtone phasic sinbar ", 22) == 0;
+    }
+    print_message("# bursts: %zu SINBAR, %zu of other rule sets; %zu written\n", sinbar, other,
+                  written);
+    assert_true(sinbar > 0 && other > 0);
+    assert_int_equal(written, sinbar);
+    rt_recording_close(a);
+}
+
 static void standard_output_is_refused(void **state)
 {
     fixture *f = *state;
     rt_error err;
-    assert_int_equal(rt_night_write_annotations(f->night, f->rec, "-", &err), RT_ERR_USAGE);
+    assert_int_equal(rt_night_write_annotations(f->night, f->rec, NULL, "-", &err), RT_ERR_USAGE);
 }
 
 int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(every_onset_is_in_the_file),
+        cmocka_unit_test(bursts_once_by_default),
         cmocka_unit_test(standard_output_is_refused),
     };
     return cmocka_run_group_tests(tests, setup, teardown);

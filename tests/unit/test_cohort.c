@@ -261,8 +261,8 @@ static void test_merge_table_and_calibration(void **state)
     assert_true(fabs(auc - 0.75) < 1e-9);
     snprintf(path, sizeof path, "%s/calibrated-cutoffs.csv", dir);
     csv = slurp(path);
-    assert_non_null(strstr(csv, "index,cutoff\n"));
-    assert_non_null(strstr(csv, "sinbar.chin_any_fds_phasic_3s,35\n"));
+    assert_non_null(strstr(csv, "index,cutoff,unit\n"));
+    assert_non_null(strstr(csv, "sinbar.chin_any_fds_phasic_3s,35,%\n"));
     rt_cutoffs cut;
     rt_cutoffs_published(&cut);
     assert_int_equal(rt_cutoffs_load(&cut, path, &err), RT_OK);

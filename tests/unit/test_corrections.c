@@ -394,9 +394,9 @@ static void rescoring_is_idempotent(void **state)
     write_csv(f, automatic, csv);
     rt_error err;
     rt_night *a = corrected_from(f, csv);
-    assert_int_equal(rt_night_write_minis_csv(a, f->rec, m1, &err), RT_OK);
+    assert_int_equal(rt_night_write_minis_csv(a, f->rec, NULL, m1, &err), RT_OK);
     rt_night *b = corrected_from(f, m1);
-    assert_int_equal(rt_night_write_minis_csv(b, f->rec, m2, &err), RT_OK);
+    assert_int_equal(rt_night_write_minis_csv(b, f->rec, NULL, m2, &err), RT_OK);
     size_t l1, l2;
     char *t1 = rt_test_read_all(m1, &l1), *t2 = rt_test_read_all(m2, &l2);
     assert_int_equal(l1, l2);

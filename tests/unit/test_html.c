@@ -217,7 +217,7 @@ static void identity_hidden_by_default(void **state)
     assert_non_null(strstr(raw, "hostile.edf"));
     free(raw);
 
-    rt_report_options o = {false, "study-0042"};
+    rt_report_options o = {.show_identity = false, .recording_id = "study-0042"};
     path = write_page(f, "named.html", &o);
     raw = slurp(path);
     assert_non_null(strstr(raw, "study-0042"));
@@ -229,7 +229,7 @@ static void identity_hidden_by_default(void **state)
 static void hostile_text_stays_text(void **state)
 {
     fixture *f = *state;
-    rt_report_options o = {true, NULL};
+    rt_report_options o = {.show_identity = true, .recording_id = NULL};
     const char *path = write_page(f, "identity.html", &o);
     xmlDocPtr doc = xmlReadFile(path, NULL, XML_PARSE_NONET | XML_PARSE_NOERROR);
     assert_non_null(doc);

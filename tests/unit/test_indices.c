@@ -219,14 +219,16 @@ static void unverified_cutoff_is_context(void **state)
     assert_string_equal(rt_reservation_code_name(n->reservations[0].code), "cutoff-not-verified");
     print_message("# reservation: %s\n", n->reservations[0].text);
     /* FDS 3-s 15 % is at or above 0.8 x its recalled 16.8 % (near_fraction) */
-    assert_non_null(strstr(n->reservations[0].text, "sinbar.fds_phasic_3s is 15.0 %, near 16.8 %; "
-                                                    "sinbar.chin_any_fds_phasic_30s is 30.0 %, "
-                                                    "at or above 27.0 %: cutoffs recalled"));
+    assert_non_null(strstr(n->reservations[0].text, "sinbar.fds_phasic_3s is 15.0 %: 16.8 % not "
+                                                    "reached, but near; "
+                                                    "sinbar.chin_any_fds_phasic_30s is 30.0 %: "
+                                                    "27.0 % reached: cutoffs recalled"));
     rt_night_free(n);
 
-    /* a lab's own 30-s cutoff (a value other than the published one) decides */
+    /* a lab's own 30-s cutoff (a row of its cutoff file) decides */
     n = arm_night(6, 5);
     n->cutoffs.value[RT_IX_SINBAR_COMBINED_30S] = 28.0;
+    n->cutoffs.line[RT_IX_SINBAR_COMBINED_30S] = 2;
     summarise(n);
     assert_int_equal(n->level, RT_REVIEW_FLAGGED);
     assert_int_equal(n->n_reservations, 0);
@@ -374,19 +376,44 @@ static void ecg_wording(void **state)
     rt_night *n = one_epoch(0, true);
     summarise(n);
     char *t = summary_text(n);
-    assert_non_null(strstr(t, "ECG artifact in this EMG: not found"));
+    /* "none", not "not found": a reader took "ECG not found" on every EMG
+     * channel for a missing ECG lead (common practice: say what was looked for) */
+    assert_non_null(strstr(t, "ECG artifact in this channel: none"));
     assert_null(strstr(t, "ECG found"));
     free(t);
     rt_channel_quality *q = &n->channel[RT_ROLE_CHIN].quality;
     q->ecg_found = true;
     q->ecg_source = 2;
     t = summary_text(n);
-    assert_non_null(strstr(t, "ECG artifact in this EMG: found (beats from the chin itself)"));
+    assert_non_null(strstr(t, "ECG artifact in this channel: found (beats from the chin itself)"));
     free(t);
     q->ecg_removed = true;
     q->ecg_source = 1;
     t = summary_text(n);
-    assert_non_null(strstr(t, "ECG artifact in this EMG: found and removed (beats from the ECG channel)"));
+    assert_non_null(strstr(t, "ECG artifact in this channel: found and removed (beats from the ECG channel)"));
+    free(t);
+    rt_night_free(n);
+}
+
+/* Without both arm channels the combined SINBAR index cannot be computed: the
+ * headline says so with the reason and names the index shown instead, and
+ * says whether that index reaches its cutoff (18.2 %, Frauscher et al. 2012,
+ * Sleep 35:835-847). */
+static void headline_names_its_substitute(void **state)
+{
+    (void)state;
+    rt_night *n = one_epoch(4, false);
+    for (int k = 0; k < 4; k++) /* 4 of 10 minis with SINBAR chin activity: 40 % */
+        n->minis3[k].labels[RT_ROLE_CHIN] |= RT_LABEL_SINBAR_PHASIC | RT_LABEL_SINBAR_ANY;
+    summarise(n);
+    assert_int_equal(n->headline, RT_IX_SINBAR_CHIN_ANY_3S);
+    char *t = summary_text(n);
+    print_message("# %.*s\n", (int)strcspn(strstr(t, "sinbar.chin_any_fds"), "\n"),
+                  strstr(t, "sinbar.chin_any_fds"));
+    assert_non_null(strstr(t, "\nsinbar.chin_any_fds_phasic_3s cannot be computed (no arm (FDS) "
+                              "channels); shown instead: sinbar.chin_any_3s. REM with preserved "
+                              "muscle activity: 40.0 % (sinbar.chin_any_3s); the published cutoff "
+                              "18.2 % is reached."));
     free(t);
     rt_night_free(n);
 }
@@ -395,6 +422,7 @@ int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(aasm_five_of_ten),
+        cmocka_unit_test(headline_names_its_substitute),
         cmocka_unit_test(missing_arms_not_computed),
         cmocka_unit_test(statuses_at_the_cutoff),
         cmocka_unit_test(sinbar_30s_five_of_ten),

@@ -323,7 +323,7 @@ static void whole_night_is_plain(void **state)
     assert_int_equal(json_array_size(json_object_get(s.json, "reservations")), 0);
     assert_int_equal(s.night->level, RT_REVIEW_CLEAR);
     assert_non_null(strstr(s.text, "Staging: 7.5 h staged of the 7.5-h recording; complete\n"));
-    assert_non_null(strstr(s.text, "\nCLEAR: no index reaches"));
+    assert_non_null(strstr(s.text, "\nCLEAR: no verified cutoff is reached or near"));
     /* the page: the plain clear label, and no reservation card */
     char *cls = xpath_string(&s, "string(//h:span[@id='level']/@class)");
     assert_string_equal(cls, "level level-clear");
@@ -345,7 +345,7 @@ static void staging_cut_at_4h_is_not_a_plain_clear(void **state)
     assert_int_equal(s.night->level, RT_REVIEW_CLEAR);
     assert_string_equal(json_string_value(json_object_get(json_object_get(s.json, "review"),
                                                           "statement")),
-                        "clear, with reservations");
+                        "clear, with reservations: no verified cutoff is reached or near");
     /* staged hours of recording hours, the unstaged end, REM and scorable REM */
     assert_true(json_number(s.json, "staging", "staged_hours") == 4.0);
     assert_true(json_number(s.json, "staging", "recording_hours") == 7.5);
@@ -597,21 +597,21 @@ static void unverified_cutoff_reached_on_a_clear_night(void **state)
     assert_null(json_reservation(&s, "cutoff-not-verified")); /* could not raise review */
     free_scored(&s);
     const char *cut = rt_test_text_file(dir, "lab.csv",
-                                        "index,cutoff,normal_from\n"
-                                        "sinbar.chin_any_3s,99,\n"
-                                        "sinbar.chin_tonic_30s,99,\n"
-                                        "sinbar.chin_any_fds_phasic_3s,99,\n"
-                                        "montreal.tonic_chin,99,\n"
-                                        "montreal.phasic_chin,99,\n"
-                                        "rai,0.01,0.02\n"
-                                        "montreal.rem_leg_movements_per_h,9999,\n");
+                                        "index,cutoff,unit,normal_from\n"
+                                        "sinbar.chin_any_3s,99,%,\n"
+                                        "sinbar.chin_tonic_30s,99,%,\n"
+                                        "sinbar.chin_any_fds_phasic_3s,99,%,\n"
+                                        "montreal.tonic_chin,99,%,\n"
+                                        "montreal.phasic_chin,99,%,\n"
+                                        "rai,0.01,ratio,0.02\n"
+                                        "montreal.rem_leg_movements_per_h,9999,/h,\n");
     s = score(dir, stages, NULL, cut, NULL);
     print_reservations(&s, "RBD night, verified cutoffs out of reach");
     assert_int_equal(s.night->level, RT_REVIEW_CLEAR);
     said_everywhere(&s, "cutoff-not-verified");
     const char *t = json_reservation(&s, "cutoff-not-verified");
     assert_non_null(strstr(t, "sinbar.fds_phasic_3s is "));
-    assert_non_null(strstr(t, "at or above 16.8 %"));
+    assert_non_null(strstr(t, "16.8 % reached"));
     assert_non_null(strstr(t, "recalled but not verified"));
     free_scored(&s);
     rt_test_dir("reserve_unverified");
