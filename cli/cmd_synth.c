@@ -34,7 +34,7 @@ static const cli_option OPTIONS[] = {
     {"short-bursts", 0, KEY_SHORT_BURSTS, NULL, "bursts of 0.1-0.3 s starting anywhere, some across mini-epochs"},
     {"burst-ratio", 1, KEY_BURST_RATIO, "LO:HI", "burst level = LO..HI x background, 0.5-20 (default 8:15)"},
     {"single-epoch-bouts", 1, KEY_SINGLE_EPOCH_BOUTS, "N", "add N REM bouts of one 30-s epoch inside N2, 1-20"},
-    {"emg-rate", 1, KEY_EMG_RATE, "HZ", "EMG sampling rate: 200, 256, 500, 512 or 1000 (default 512)"},
+    {"emg-rate", 1, KEY_EMG_RATE, "HZ", "EMG sampling rate: 200, 256, 500, 512, 1000, 2000 or 4096 (default 512)"},
     {"mixed-rates", 0, KEY_MIXED_RATES, NULL, "chin, arms and legs at three different EMG rates"},
     {"spiky", 0, KEY_SPIKY, NULL, "EMG as motor-unit spike trains instead of Gaussian noise"},
     {0},

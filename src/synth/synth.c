@@ -114,7 +114,7 @@ static rt_status check_artifacts(const rt_synth_options *o, rt_error *err)
 
 static bool is_emg_rate(int hz)
 {
-    return hz == 200 || hz == 256 || hz == 500 || hz == 512 || hz == 1000;
+    return hz == 200 || hz == 256 || hz == 500 || hz == 512 || hz == 1000 || hz == 2000 || hz == 4096;
 }
 
 static rt_status check_difficulty(const rt_synth_options *o, rt_error *err)
@@ -145,7 +145,7 @@ static rt_status check_difficulty(const rt_synth_options *o, rt_error *err)
                        o->single_epoch_bouts);
     /* 1-s data records hold a whole number of samples at every one of these */
     if (!(o->emg_rate_hz == 0 || is_emg_rate(o->emg_rate_hz)))
-        return rt_fail(err, RT_ERR_USAGE, "synthetic night: EMG rate must be 200, 256, 500, 512 or 1000 Hz (got %d)",
+        return rt_fail(err, RT_ERR_USAGE, "synthetic night: EMG rate must be 200, 256, 500, 512, 1000, 2000 or 4096 Hz (got %d)",
                        o->emg_rate_hz);
     return RT_OK;
 }
