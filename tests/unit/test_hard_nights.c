@@ -27,23 +27,7 @@ typedef struct scored {
 /* Scores dir's night with its own stages.csv or with `stages` (a path). */
 static rt_night *score_dir(const char *dir, const char *stages)
 {
-    rt_error err;
-    char path[4200];
-    snprintf(path, sizeof path, "%s/night.edf", dir);
-    rt_recording *rec = NULL;
-    if (rt_recording_open(path, &rec, &err) != RT_OK)
-        fail_msg("%s", err.message);
-    rt_role_map roles;
-    assert_int_equal(rt_roles_resolve(rec, NULL, &roles, &err), RT_OK);
-    rt_timeline *tl = rt_test_timeline();
-    snprintf(path, sizeof path, "%s/stages.csv", dir);
-    assert_int_equal(rt_timeline_load_stages_csv(tl, stages ? stages : path, NULL, &err), RT_OK);
-    rt_night *night = NULL;
-    if (rt_night_score(rec, &roles, tl, NULL, NULL, &night, &err) != RT_OK)
-        fail_msg("%s", err.message);
-    rt_timeline_free(tl);
-    rt_recording_close(rec);
-    return night;
+    return rt_test_score_dir(dir, stages, 1, 0.0);
 }
 
 /* Writes the synthetic night o into a fresh folder `name`; its path in d. */
