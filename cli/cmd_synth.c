@@ -15,7 +15,7 @@ enum {
 
 static const cli_option OPTIONS[] = {
     {"profile", 1, KEY_PROFILE, "NAME", "typical-older, rbd, borderline or apnea"},
-    {"hours", 1, KEY_HOURS, "H", "recording length in hours, 1 to 12 (default 8)"},
+    {"hours", 1, KEY_HOURS, "H", "recording length in hours, 1 to 24 (default 8)"},
     {"seed", 1, KEY_SEED, "N", "random seed; equal seeds give equal files (default 1)"},
     {"out", 1, KEY_OUT, "DIR", "output folder, created when missing (required)"},
     {"patient", 1, KEY_PATIENT, "TEXT", "fictional EDF+ patient name"},
@@ -60,8 +60,8 @@ static int on_option(void *ctx, int key, const char *arg)
         break;
     case KEY_HOURS:
         c->o.hours = strtod(arg, &end);
-        if (*end || !(c->o.hours >= 1.0 && c->o.hours <= 12.0)) {
-            fprintf(stderr, "remtone synth: --hours must be 1 to 12, got '%s'\n", arg);
+        if (*end || !(c->o.hours >= 1.0 && c->o.hours <= 24.0)) {
+            fprintf(stderr, "remtone synth: --hours must be 1 to 24, got '%s'\n", arg);
             return EXIT_USAGE;
         }
         break;

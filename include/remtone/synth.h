@@ -35,7 +35,7 @@ int rt_synth_profile_from_name(const char *name, rt_synth_profile *profile);
 
 typedef struct rt_synth_options {
     rt_synth_profile profile;
-    double hours;            /* recording length, 1 .. 12 */
+    double hours;            /* recording length, 1 .. 24 */
     uint64_t seed;           /* any value; equal seeds give equal files */
     const char *patient;     /* EDF+ patient name subfield (fictional); NULL = "X" */
     const char *recording;   /* EDF+ recording free text; NULL = profile name */

@@ -145,6 +145,7 @@ typedef struct pass_ctx {
     piece *pieces;
     size_t n_pieces;
     double block_s;          /* a piece's core at most, seconds; 0: the default */
+    size_t nrem_run_epochs;  /* NREM runs: at most this many epochs (a piece's view at most) */
     rt_qrs_beats *beats;     /* per piece, over its view */
     int *beats_source;       /* per piece */
     worker_ctx *workers;
@@ -662,7 +663,7 @@ static rt_status nrem_items(const pass_ctx *c, item_list *l, rt_error *err)
             continue;
         }
         size_t run = 0;
-        while (e + run < tl->n_epochs && is_nrem(tl->stages[e + run]) && run < NREM_RUN_EPOCHS)
+        while (e + run < tl->n_epochs && is_nrem(tl->stages[e + run]) && run < c->nrem_run_epochs)
             run++;
         for (int r = 0; r < RT_ROLE_COUNT && st == RT_OK; r++) {
             if (!c->cond_open[r] || (r != RT_ROLE_CHIN && chunk % NREM_DRIFT_STRIDE != 0))
@@ -1088,6 +1089,10 @@ static rt_status plan_pieces(pass_ctx *c, rt_error *err)
     size_t core = core_s < 1e9 ? (size_t)(core_s / 60.0) * 60 : (size_t)1e9;
     if (core < 60)
         core = 60;
+    /* an NREM run is read whole: no longer than a piece's view */
+    c->nrem_run_epochs = (core + 2 * PIECE_CONTEXT_S) / 30;
+    if (c->nrem_run_epochs > NREM_RUN_EPOCHS)
+        c->nrem_run_epochs = NREM_RUN_EPOCHS;
     size_t n = 0;
     for (size_t b = 0; b < night->n_bouts; b++) {
         size_t len = c->bouts[b].n_epochs * 30;

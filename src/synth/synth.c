@@ -154,8 +154,8 @@ static rt_status check_options(const rt_synth_options *o, const char *dir, rt_er
 {
     if ((int)o->profile < 0 || o->profile >= RT_SYNTH_PROFILE_COUNT)
         return rt_fail(err, RT_ERR_USAGE, "synthetic night: unknown profile %d", (int)o->profile);
-    if (!isfinite(o->hours) || o->hours < 1.0 || o->hours > 12.0)
-        return rt_fail(err, RT_ERR_USAGE, "synthetic night: hours must be 1..12 (got %g)", o->hours);
+    if (!isfinite(o->hours) || o->hours < 1.0 || o->hours > 24.0)
+        return rt_fail(err, RT_ERR_USAGE, "synthetic night: hours must be 1..24 (got %g)", o->hours);
     if (o->start_hour > 23 || o->start_minute < 0 || o->start_minute > 59)
         return rt_fail(err, RT_ERR_USAGE, "synthetic night: start time %d:%d is not a clock time",
                        o->start_hour, o->start_minute);
