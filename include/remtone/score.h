@@ -377,6 +377,8 @@ typedef struct rt_night {
     double rem_minutes;
     double scorable_minutes;
     size_t n_bouts;
+    size_t block_s;             /* REM bouts longer than block_s + 120 s were conditioned in
+                                   blocks of block_s seconds (docs/scoring.md, "Long bouts") */
     double nrem_reference_uv;            /* AASM chin reference; NaN when no NREM */
     rt_role_map roles;                   /* the channels each role was read from */
     rt_channel_result channel[RT_ROLE_COUNT];
@@ -446,7 +448,7 @@ rt_status rt_night_score_blocks(rt_recording *rec, const rt_role_map *roles,
 void rt_night_free(rt_night *night);
 
 /* The conditioned envelope a reviewer is shown, exactly as the scorer
- * labelled it: a tracer conditions whole REM bouts on the scorer's path (same
+ * labelled it: a tracer conditions REM bouts (or the scorer's blocks of a long bout) on the scorer's path (same
  * padding, notches, beats and ECG removal) and keeps the last bout of each
  * role, so several epochs of one bout cost one conditioning. rec and night
  * are borrowed and must outlive the tracer; close it with

@@ -1075,6 +1075,18 @@ static void pass_ctx_free(pass_ctx *c)
     free(c->pieces);
 }
 
+size_t rt_bout_piece(size_t len_s, size_t core_s, size_t j, size_t view[2], size_t own[2])
+{
+    size_t k = len_s <= core_s + 2 * PIECE_CONTEXT_S ? 1 : (len_s + core_s - 1) / core_s;
+    size_t a = k == 1 ? 0 : j * core_s, e = j + 1 >= k ? len_s : a + core_s;
+    own[0] = a;
+    own[1] = e;
+    /* a and e are whole minutes (or the bout's end): so is the view */
+    view[0] = a > PIECE_CONTEXT_S ? a - PIECE_CONTEXT_S : 0;
+    view[1] = e + PIECE_CONTEXT_S < len_s ? e + PIECE_CONTEXT_S : len_s;
+    return k;
+}
+
 /* The pieces of every bout: bouts no longer than a core and two contexts
  * whole, longer ones in cores of whole minutes. */
 static rt_status plan_pieces(pass_ctx *c, rt_error *err)
@@ -1093,11 +1105,10 @@ static rt_status plan_pieces(pass_ctx *c, rt_error *err)
     c->nrem_run_epochs = (core + 2 * PIECE_CONTEXT_S) / 30;
     if (c->nrem_run_epochs > NREM_RUN_EPOCHS)
         c->nrem_run_epochs = NREM_RUN_EPOCHS;
-    size_t n = 0;
-    for (size_t b = 0; b < night->n_bouts; b++) {
-        size_t len = c->bouts[b].n_epochs * 30;
-        n += len <= core + 2 * PIECE_CONTEXT_S ? 1 : (len + core - 1) / core;
-    }
+    night->block_s = core;
+    size_t n = 0, view[2], own[2];
+    for (size_t b = 0; b < night->n_bouts; b++)
+        n += rt_bout_piece(c->bouts[b].n_epochs * 30, core, 0, view, own);
     c->pieces = rt_calloc(n + 1, sizeof *c->pieces);
     if (!c->pieces)
         return rt_fail(err, RT_ERR_NOMEM, "out of memory for %zu REM blocks", n);
@@ -1106,18 +1117,16 @@ static rt_status plan_pieces(pass_ctx *c, rt_error *err)
     for (size_t b = 0; b < night->n_bouts; b++) {
         const bout_span *bout = &c->bouts[b];
         size_t len = bout->n_epochs * 30;
-        size_t k = len <= core + 2 * PIECE_CONTEXT_S ? 1 : (len + core - 1) / core;
+        size_t k = rt_bout_piece(len, core, 0, view, own);
         for (size_t j = 0; j < k; j++, pc++) {
-            size_t a = k == 1 ? 0 : j * core, e = j + 1 == k ? len : a + core;
-            size_t va = a > PIECE_CONTEXT_S ? a - PIECE_CONTEXT_S : 0;
-            size_t ve = e + PIECE_CONTEXT_S < len ? e + PIECE_CONTEXT_S : len;
-            /* a and e are whole minutes (or the bout's end): va is too */
+            rt_bout_piece(len, core, j, view, own);
+            size_t va = view[0], ve = view[1];
             pc->bout = b;
             pc->view = (bout_span){bout->t0 + (double)va, (ve - va) / 30,
                                    bout->epoch_first + va / 30, bout->mini3_first + va / 3,
                                    bout->mini2_first + va / 2};
-            pc->core_a = a - va;
-            pc->core_b = e - va;
+            pc->core_a = own[0] - va;
+            pc->core_b = own[1] - va;
             pc->first = j == 0;
             pc->last = j + 1 == k;
         }
