@@ -7,9 +7,9 @@
  * times bench/straightforward.py, the same steps written plainly in numpy
  * and scipy, on the 8-hour night.
  *
- * Usage: bench_score [HOURS,...] [DIR] [THREADS,...] [RUNS]
- *   defaults: 1,8,24  bench-night  1,2  5
- * DIR keeps the nights between runs (DIR/8h/night.edf ...). THREADS as
+ * Usage: bench_score [HOURS,...] [DIR] [THREADS,...] [RUNS] [EMG_HZ]
+ *   defaults: 1,8,24  bench-night  1,2  5  512
+ * DIR keeps the nights between runs (DIR/8h/night.edf, DIR/8h-1000hz/ ...). THREADS as
  * `remtone score --threads` (0: the cores available). Timings are the best
  * of RUNS. Timings are never asserted by tests: this program only prints. */
 #define _POSIX_C_SOURCE 200809L
@@ -161,10 +161,19 @@ static size_t read_emg(rt_recording *rec, const rt_role_map *roles, const rt_tim
     return total;
 }
 
-/* Writes DIR/Hh/ unless it holds a night already; the night's folder in dir_out. */
-static int ensure_night(const char *dir, double hours, char *night_dir, size_t size)
+/* DIR/Hh (DIR/Hh-RATEhz for EMG not at 512 Hz): a night's folder. */
+static void night_folder(char *dst, size_t size, const char *dir, double hours, int emg_hz)
 {
-    snprintf(night_dir, size, "%s/%gh", dir, hours);
+    if (emg_hz == 512)
+        snprintf(dst, size, "%s/%gh", dir, hours);
+    else
+        snprintf(dst, size, "%s/%gh-%dhz", dir, hours, emg_hz);
+}
+
+/* Writes the night's folder unless it holds a night already. */
+static int ensure_night(const char *dir, double hours, int emg_hz, char *night_dir, size_t size)
+{
+    night_folder(night_dir, size, dir, hours, emg_hz);
     char path[4300];
     snprintf(path, sizeof path, "%s/night.edf", night_dir);
     struct stat st;
@@ -177,6 +186,7 @@ static int ensure_night(const char *dir, double hours, char *night_dir, size_t s
     o.profile = RT_SYNTH_RBD;
     o.hours = hours;
     o.seed = 2026;
+    o.emg_rate_hz = emg_hz;
     rt_error err;
     double t = now_s();
     if (rt_synth_write(&o, night_dir, &err) != RT_OK) {
@@ -257,20 +267,21 @@ int main(int argc, char **argv)
     const char *dir = argc > 2 ? argv[2] : "bench-night";
     int n_threads = parse_list(argc > 3 ? argv[3] : "1,2", threads);
     int runs = argc > 4 ? atoi(argv[4]) : 5;
-    if (n_hours == 0 || n_threads == 0 || runs < 1) {
-        fprintf(stderr, "usage: bench_score [HOURS,...] [DIR] [THREADS,...] [RUNS]\n");
+    int emg_hz = argc > 5 ? atoi(argv[5]) : 512;
+    if (n_hours == 0 || n_threads == 0 || runs < 1 || emg_hz < 1) {
+        fprintf(stderr, "usage: bench_score [HOURS,...] [DIR] [THREADS,...] [RUNS] [EMG_HZ]\n");
         return 2;
     }
     machine();
     char night_dir[4200];
     for (int h = 0; h < n_hours; h++)
-        ensure_night(dir, hours[h], night_dir, sizeof night_dir);
+        ensure_night(dir, hours[h], emg_hz, night_dir, sizeof night_dir);
     printf("\nbest of %d runs; file = the whole recording read from the page cache; emg = only "
            "the EMG samples the scorer reads\n", runs);
     printf("%6s %7s %7s %9s %8s %8s %8s %9s %8s %8s\n", "hours", "threads", "MiB", "file s",
            "emg s", "score s", "cpu s", "/file", "/emg", "peak MiB");
     for (int h = 0; h < n_hours; h++) {
-        snprintf(night_dir, sizeof night_dir, "%s/%gh", dir, hours[h]);
+        night_folder(night_dir, sizeof night_dir, dir, hours[h], emg_hz);
         char probe[4300];
         snprintf(probe, sizeof probe, "%s/night.edf", night_dir);
         if (access(probe, R_OK) != 0)
@@ -292,7 +303,7 @@ int main(int argc, char **argv)
     for (int h = 0; h < n_hours; h++) {
         if (hours[h] != 8.0)
             continue;
-        snprintf(night_dir, sizeof night_dir, "%s/%gh", dir, hours[h]);
+        night_folder(night_dir, sizeof night_dir, dir, hours[h], emg_hz);
         double s = script_s(night_dir);
         if (s < 0)
             printf("\nstraightforward.py: skipped (python3 with numpy and scipy not found)\n");

@@ -12,7 +12,7 @@ enum {
     KEY_STAGES = 1, KEY_EVENTS, KEY_JSON, KEY_CUTOFFS, KEY_MIN_REM, KEY_QUIET,
     KEY_HTML, KEY_MINIS, KEY_ANNOTATIONS, KEY_SHOW_IDENTITY, KEY_RECORDING_ID, KEY_THREADS,
     KEY_PERIODS, KEY_AGE, KEY_SEX, KEY_CORRECTIONS,
-    KEY_EVIDENCE, KEY_VIDEO_OFFSET, KEY_VIDEO_START, KEY_ANNOTATE_BURSTS
+    KEY_EVIDENCE, KEY_VIDEO_OFFSET, KEY_VIDEO_START, KEY_ANNOTATE_BURSTS, KEY_BLOCK_S
 };
 
 static const cli_option OPTIONS[] = {
@@ -40,6 +40,9 @@ static const cli_option OPTIONS[] = {
      "file with <corrections> (told by content; docs/corrections.md)"},
     {"threads", 1, KEY_THREADS, "N", "score with N threads, 1 to 256 (default: the processor cores "
                                      "available; the result is the same for any N)"},
+    {"block-s", 1, KEY_BLOCK_S, "S", "condition REM bouts longer than S seconds (whole minutes, at "
+                                     "least 60) in blocks, for memory (default: 262144 samples of the "
+                                     "fastest channel; docs/scoring.md, \"Long bouts\")"},
     CLI_ROLE_OPTIONS,
     {0},
 };
@@ -54,6 +57,7 @@ typedef struct score_config {
     double min_rem;
     int quiet;
     int threads;             /* 0: the cores available */
+    double block_s;          /* 0: the default block */
     rt_role_options roles;
     rt_score_params params;
 } score_config;
@@ -150,6 +154,13 @@ static int on_option(void *ctx, int key, const char *arg)
         c->threads = (int)n;
         break;
     }
+    case KEY_BLOCK_S:
+        c->block_s = strtod(arg, &end);
+        if (end == arg || *end || !(c->block_s >= 60 && c->block_s <= 1e7)) {
+            fprintf(stderr, "remtone score: --block-s must be 60 to 10000000 seconds, got '%s'\n", arg);
+            return EXIT_USAGE;
+        }
+        break;
     case KEY_MIN_REM:
         c->min_rem = strtod(arg, &end);
         if (*end || !(c->min_rem >= 0 && c->min_rem <= 600)) {
@@ -241,8 +252,8 @@ static int run(int argc, char **argv)
     if (st == RT_OK) {
         if (c.min_rem >= 0)
             c.params.min_scorable_min = c.min_rem;
-        st = rt_night_score_threads(l.rec, &l.roles, l.tl, &c.params, &l.cutoffs, c.threads,
-                                    &night, &err);
+        st = rt_night_score_blocks(l.rec, &l.roles, l.tl, &c.params, &l.cutoffs, c.threads,
+                                   c.block_s, &night, &err);
     }
     /* the norms place the indices the night ends with: the corrected ones */
     if (st == RT_OK && l.corrections)

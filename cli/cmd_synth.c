@@ -15,7 +15,7 @@ enum {
 
 static const cli_option OPTIONS[] = {
     {"profile", 1, KEY_PROFILE, "NAME", "typical-older, rbd, borderline or apnea"},
-    {"hours", 1, KEY_HOURS, "H", "recording length in hours, 1 to 12 (default 8)"},
+    {"hours", 1, KEY_HOURS, "H", "recording length in hours, 1 to 24 (default 8)"},
     {"seed", 1, KEY_SEED, "N", "random seed; equal seeds give equal files (default 1)"},
     {"out", 1, KEY_OUT, "DIR", "output folder, created when missing (required)"},
     {"patient", 1, KEY_PATIENT, "TEXT", "fictional EDF+ patient name"},
@@ -34,7 +34,7 @@ static const cli_option OPTIONS[] = {
     {"short-bursts", 0, KEY_SHORT_BURSTS, NULL, "bursts of 0.1-0.3 s starting anywhere, some across mini-epochs"},
     {"burst-ratio", 1, KEY_BURST_RATIO, "LO:HI", "burst level = LO..HI x background, 0.5-20 (default 8:15)"},
     {"single-epoch-bouts", 1, KEY_SINGLE_EPOCH_BOUTS, "N", "add N REM bouts of one 30-s epoch inside N2, 1-20"},
-    {"emg-rate", 1, KEY_EMG_RATE, "HZ", "EMG sampling rate: 200, 256, 500, 512 or 1000 (default 512)"},
+    {"emg-rate", 1, KEY_EMG_RATE, "HZ", "EMG sampling rate: 200, 256, 500, 512, 1000, 2000 or 4096 (default 512)"},
     {"mixed-rates", 0, KEY_MIXED_RATES, NULL, "chin, arms and legs at three different EMG rates"},
     {"spiky", 0, KEY_SPIKY, NULL, "EMG as motor-unit spike trains instead of Gaussian noise"},
     {0},
@@ -60,8 +60,8 @@ static int on_option(void *ctx, int key, const char *arg)
         break;
     case KEY_HOURS:
         c->o.hours = strtod(arg, &end);
-        if (*end || !(c->o.hours >= 1.0 && c->o.hours <= 12.0)) {
-            fprintf(stderr, "remtone synth: --hours must be 1 to 12, got '%s'\n", arg);
+        if (*end || !(c->o.hours >= 1.0 && c->o.hours <= 24.0)) {
+            fprintf(stderr, "remtone synth: --hours must be 1 to 24, got '%s'\n", arg);
             return EXIT_USAGE;
         }
         break;

@@ -526,6 +526,9 @@ typedef struct rt_night {
     double rem_minutes;                  /* rem_epochs / 2 */
     double scorable_minutes;             /* REM minutes with a scorable chin */
     size_t n_bouts;                      /* REM bouts (runs of R epochs) */
+    size_t block_s;                      /* REM bouts longer than block_s + 120 s were
+                                            conditioned in blocks of block_s seconds
+                                            (docs/scoring.md, "Long bouts") */
     double nrem_reference_uv;            /* AASM chin reference; NaN when no NREM */
     rt_role_map roles;                   /* the channels each role was read from */
     rt_channel_result channel[RT_ROLE_COUNT];
@@ -583,17 +586,36 @@ rt_status rt_night_score(rt_recording *rec, const rt_role_map *roles, const rt_t
 /* As rt_night_score (which scores on the calling thread alone), with the EMG
  * roles' stretches shared among up to `threads` threads: 0 = the processor
  * cores available to the process, 1 = the calling thread alone. The result is
- * the same, byte for byte, for every thread count. Memory grows by one
- * conditioned REM bout (about 16 bytes per sample of the longest bout) per
- * extra thread. RT_ERR_USAGE when threads < 0. */
+ * the same, byte for byte, for every thread count. A REM bout longer than a
+ * block is conditioned in blocks of whole minutes, each with a minute of the
+ * bout on either side, so memory does not grow with bout length: each thread
+ * holds one block of about 24 bytes per sample (RT_NIGHT_BLOCK_SAMPLES
+ * samples of the fastest EMG or ECG channel by default, docs/scoring.md,
+ * "Long bouts"). RT_ERR_USAGE when threads < 0. */
 rt_status rt_night_score_threads(rt_recording *rec, const rt_role_map *roles,
                                  const rt_timeline *tl, const rt_score_params *params,
                                  const rt_cutoffs *cutoffs, int threads, rt_night **out,
                                  rt_error *err);
+
+/* Samples of the fastest channel in one block of a long REM bout, by default
+ * (512 s at 512 Hz, rounded down to whole minutes). */
+#define RT_NIGHT_BLOCK_SAMPLES 262144
+
+/* rt_night_score_threads with the block length chosen: block_s seconds
+ * (rounded down to whole minutes, at least 60), or 0 for the default. A bout
+ * no longer than a block and two minutes is conditioned whole. The result
+ * does not depend on the blocks beyond the rounding of the band-pass (about
+ * 1e-9 of the signal's peak) and an ECG template averaged over a block's
+ * beats instead of the bout's (docs/scoring.md, "Long bouts"). RT_ERR_USAGE
+ * when threads < 0 or block_s is negative or not finite. */
+rt_status rt_night_score_blocks(rt_recording *rec, const rt_role_map *roles,
+                                const rt_timeline *tl, const rt_score_params *params,
+                                const rt_cutoffs *cutoffs, int threads, double block_s,
+                                rt_night **out, rt_error *err);
 void rt_night_free(rt_night *night);
 
 /* The conditioned envelope a reviewer is shown, exactly as the scorer
- * labelled it: a tracer conditions whole REM bouts on the scorer's path (same
+ * labelled it: a tracer conditions REM bouts (or the scorer's blocks of a long bout) on the scorer's path (same
  * padding, notches, beats and ECG removal) and keeps the last bout of each
  * role, so several epochs of one bout cost one conditioning. rec and night
  * are borrowed and must outlive the tracer; close it with

@@ -35,7 +35,7 @@ int rt_synth_profile_from_name(const char *name, rt_synth_profile *profile);
 
 typedef struct rt_synth_options {
     rt_synth_profile profile;
-    double hours;            /* recording length, 1 .. 12 */
+    double hours;            /* recording length, 1 .. 24 */
     uint64_t seed;           /* any value; equal seeds give equal files */
     const char *patient;     /* EDF+ patient name subfield (fictional); NULL = "X" */
     const char *recording;   /* EDF+ recording free text; NULL = profile name */
@@ -81,7 +81,8 @@ typedef struct rt_synth_options {
     double burst_ratio_hi;    /* drawn in [lo, hi], 0.5..20, lo <= hi; both 0 = 8..15 */
     int single_epoch_bouts;   /* 0 = off; 1..20: that many extra REM bouts of one 30-s epoch,
                                  each inside N2 */
-    int emg_rate_hz;          /* 0 = 512; 200, 256, 500, 512 or 1000 Hz for the EMG channels */
+    int emg_rate_hz;          /* 0 = 512; 200, 256, 500, 512, 1000, 2000 or 4096 Hz
+                                 for the EMG channels */
     int mixed_rates;          /* 0 = off; 1: chin at emg_rate_hz, arms and legs at two other
                                  rates of that list */
     int spiky;                /* 0 = off (band-limited Gaussian EMG); 1: motor-unit action

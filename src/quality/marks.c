@@ -185,23 +185,49 @@ static void find_flat(const double *x, size_t n, double rate, mark_sink *k)
         sink_add(k, (double)run_start / rate, (double)n / rate);
 }
 
-/* Whether the step into x[i] is an electrode's, not a muscle's: the level
- * moves (the mean over RT_QUALITY_POP_SHIFT_S after the step differs from the
- * mean before it by RT_QUALITY_POP_SHIFT_SHARE of the peak-to-peak range of
- * both stretches: a pop is a step with a slow decay; the test does not
- * depend on the sampling rate), or a single sample stands alone (its two neighbours on
- * each side within a quarter of the step of each other). A motor-unit potential is biphasic
- * and lasts a few milliseconds: it does neither. */
-static bool electrode_step(const double *x, size_t n, size_t i, double rate, double d)
+/* The pop detector looks at the signal through boxes of h samples, h =
+ * RT_QUALITY_POP_BOX_S x rate rounded (at least 1): box_mean(x, j, h) is the
+ * mean of x[j .. j+h). A step is the difference of the box after a sample
+ * boundary and the box before it, a derivative of fixed bandwidth: a pop's
+ * step counts fully at any rate, while muscle activity, whose per-sample
+ * change shrinks as the rate grows and whose broadband noise grows with the
+ * recorder's band, is seen in the same band at every rate. Below 1.5 / box
+ * (about 380 Hz) the box is one sample and the steps are the samples'. */
+static double box_mean(const double *x, size_t j, size_t h)
+{
+    double s = 0.0;
+    for (size_t q = 0; q < h; q++)
+        s += x[j + q];
+    return s / (double)h;
+}
+
+/* |step| into boundary j: |box after - box before|; needs h <= j <= n - h. */
+static double box_step(const double *x, size_t j, size_t h)
+{
+    return h == 1 ? fabs(x[j] - x[j - 1]) : fabs(box_mean(x, j, h) - box_mean(x, j - h, h));
+}
+
+/* Whether the step d into boundary i is an electrode's, not a muscle's: the
+ * level moves (the mean over RT_QUALITY_POP_SHIFT_S after the step differs
+ * from the mean before it by RT_QUALITY_POP_SHIFT_SHARE of the peak-to-peak
+ * range of both stretches: a pop is a step with a slow decay), or a single
+ * box stands alone (the two boxes on each side of it within a quarter of the
+ * step of each other). Both tests are in time units, so they do not depend
+ * on the sampling rate. A motor-unit potential is biphasic and lasts a few
+ * milliseconds: it does neither. */
+static bool electrode_step(const double *x, size_t n, size_t i, size_t h, double rate, double d)
 {
     size_t w = (size_t)llround(RT_QUALITY_POP_SHIFT_S * rate);
     if (w < 2)
         w = 2;
-    /* a lone sample: flat on both sides of it, not the sampled crest of a
+    /* a lone box: flat on both sides of it, not the sampled crest of a
      * smooth wave (whose neighbours still climb towards it) */
-    if (i >= 2 && i + 2 < n && fabs(x[i + 1] - x[i - 1]) < 0.25 * d &&
-        fabs(x[i - 1] - x[i - 2]) < 0.25 * d && fabs(x[i + 2] - x[i + 1]) < 0.25 * d)
-        return true;
+    if (i >= 2 * h && i + 3 * h <= n) {
+        double m_2 = box_mean(x, i - 2 * h, h), m_1 = box_mean(x, i - h, h);
+        double m1 = box_mean(x, i + h, h), m2 = box_mean(x, i + 2 * h, h);
+        if (fabs(m1 - m_1) < 0.25 * d && fabs(m_1 - m_2) < 0.25 * d && fabs(m2 - m1) < 0.25 * d)
+            return true;
+    }
     if (i < w + 1 || i + w > n)
         return false;
     double before = 0.0, after = 0.0, lo = x[i], hi = x[i];
@@ -214,38 +240,40 @@ static bool electrode_step(const double *x, size_t n, size_t i, double rate, dou
     return fabs(after - before) / (double)w >= RT_QUALITY_POP_SHIFT_SHARE * (hi - lo);
 }
 
-/* Electrode pop: one sample-to-sample step d[i] far above the mean |d| on
- * each side of it (the larger of the two one-sided means over
- * RT_QUALITY_POP_SIDE_S, leaving out 4 samples next to i so the pop's own
- * decay does not hide it), that electrode_step() calls an electrode's.
- * Taking the larger side keeps the onset of a real burst, loud on one side,
- * from being called a pop. */
+/* Electrode pop: one box step d[i] far above the mean step on each side of
+ * it (the larger of the two one-sided means over RT_QUALITY_POP_SIDE_S,
+ * leaving out 4 boxes next to i so the pop's own decay does not hide it),
+ * that electrode_step() calls an electrode's. Taking the larger side keeps
+ * the onset of a real burst, loud on one side, from being called a pop. */
 static void find_pops(const double *x, size_t n, double rate, mark_sink *k)
 {
-    enum { GAP = 4 };
+    size_t h = (size_t)llround(RT_QUALITY_POP_BOX_S * rate);
+    if (h < 1)
+        h = 1;
+    size_t gap = 4 * h;
     size_t side = (size_t)llround(RT_QUALITY_POP_SIDE_S * rate);
-    if (n < 2 * (side + GAP) + 2 || side == 0)
+    if (side == 0 || n < 2 * (side + gap + h) + 2)
         return;
-    /* d[i] = |x[i] - x[i-1]| for i >= 1; left window d[i-GAP-side .. i-GAP),
-     * right window d(i+GAP .. i+GAP+side]. */
+    /* d[j] = box_step(x, j, h); left window d[i-gap-side .. i-gap),
+     * right window d(i+gap .. i+gap+side]. */
     double left = 0.0, right = 0.0;
-    size_t first = side + GAP + 1, last = n - side - GAP - 1; /* inclusive range of i */
-#define DIFF(j) fabs(x[(j)] - x[(j) - 1])
-    for (size_t j = first - GAP - side; j < first - GAP; j++)
+    size_t first = side + gap + h, last = n - side - gap - h; /* inclusive range of i */
+#define DIFF(j) box_step(x, (j), h)
+    for (size_t j = first - gap - side; j < first - gap; j++)
         left += DIFF(j);
-    for (size_t j = first + GAP + 1; j <= first + GAP + side; j++)
+    for (size_t j = first + gap + 1; j <= first + gap + side; j++)
         right += DIFF(j);
     for (size_t i = first; i <= last; i++) {
         double d = DIFF(i);
         double ref = fmax(left, right) / (double)side;
         if (isfinite(d) && d >= RT_QUALITY_POP_MIN_UV && d > RT_QUALITY_POP_RATIO * ref &&
-            electrode_step(x, n, i, rate, d)) {
+            electrode_step(x, n, i, h, rate, d)) {
             double t = (double)i / rate;
             sink_add(k, t - RT_QUALITY_POP_BEFORE_S, t + RT_QUALITY_POP_AFTER_S);
         }
         if (i < last) {
-            left += DIFF(i - GAP) - DIFF(i - GAP - side);
-            right += DIFF(i + 1 + GAP + side) - DIFF(i + 1 + GAP);
+            left += DIFF(i - gap) - DIFF(i - gap - side);
+            right += DIFF(i + 1 + gap + side) - DIFF(i + 1 + gap);
         }
     }
 #undef DIFF

@@ -52,9 +52,11 @@ typedef struct rt_quality_mark {
 #define RT_QUALITY_FLAT_BLOCK_S 0.5    /* block of the near-zero test */
 #define RT_QUALITY_FLAT_UV 0.05        /* mean |x - block mean| below this ... */
 #define RT_QUALITY_FLAT_MIN_S 3.0      /* ... in consecutive blocks covering at least this */
+#define RT_QUALITY_POP_BOX_S (1.0 / 256.0) /* steps between boxes of this length (at
+                                            least one sample): fixed bandwidth */
 #define RT_QUALITY_POP_RATIO 10.0      /* |step| over the larger one-sided mean |step| */
 #define RT_QUALITY_POP_SIDE_S 0.25     /* length of each one-sided neighbourhood */
-#define RT_QUALITY_POP_MIN_UV 10.0     /* smallest step called a pop, uV per sample */
+#define RT_QUALITY_POP_MIN_UV 10.0     /* smallest step called a pop, uV per box */
 #define RT_QUALITY_POP_SHIFT_S 0.05      /* level before and after a step, each over this */
 #define RT_QUALITY_POP_SHIFT_SHARE 0.5   /* ... must differ by this share of their range */
 #define RT_QUALITY_POP_BEFORE_S 0.25   /* pop mark: from this before the step ... */

@@ -11,7 +11,10 @@
 #include "pages.h"
 
 /* The mains estimate needs a few seconds; 5 minutes of the first REM bout
- * give a stable spectrum at little cost (docs/quality.md). */
+ * give a stable spectrum at little cost (docs/quality.md), and at a high rate
+ * no more than RT_NIGHT_BLOCK_SAMPLES samples are read for it (64 s at
+ * 4096 Hz: still 64 averaged segments), so the probe is never the largest
+ * stretch in memory. */
 #define MAINS_PROBE_MAX_S 300.0
 
 static size_t samples_of(double seconds, double rate_hz)
@@ -95,7 +98,8 @@ rt_status rt_conditioner_open(rt_recording *rec, const rt_role_source *src,
     spec.high_hz = p->band_high_hz;
     spec.order = p->band_order;
     if (probe_s > 0) {
-        double seconds = probe_s < MAINS_PROBE_MAX_S ? probe_s : MAINS_PROBE_MAX_S;
+        double most = fmin(MAINS_PROBE_MAX_S, floor(RT_NIGHT_BLOCK_SAMPLES / src->rate_hz));
+        double seconds = probe_s < most ? probe_s : most;
         long long first = llround(probe_t0_s * src->rate_hz);
         size_t n = (size_t)(llround((probe_t0_s + seconds) * src->rate_hz) - first);
         double *x = NULL, *scratch = NULL;

@@ -88,7 +88,7 @@ typedef enum item_kind {
 typedef struct item {
     item_kind kind;
     rt_role role;
-    size_t bout;             /* REM items: the bout */
+    size_t piece;            /* REM items: the piece of a bout */
     size_t first_epoch;      /* ITEM_NREM: the run */
     size_t epochs;
 } item;
@@ -103,7 +103,32 @@ typedef struct item_list {
     size_t n, cap;
 } item_list;
 
-/* What both passes share: the conditioners, the beats of each bout, the
+/* A REM bout is conditioned in pieces of whole minutes so that memory does
+ * not grow with its length: each piece conditions its core with up to
+ * PIECE_CONTEXT_S of the bout on either side (and the conditioning's own
+ * padding beyond), and keeps only what lies in its core. Every label of a
+ * mini-epoch, epoch or second depends on the conditioned signal within
+ * montreal_burst_max_s + merge gap (bursts), 30 s (the REM Atonia Index
+ * floor) or one Montreal window of it, all inside the context, so a piece
+ * labels its core as the whole bout would (docs/scoring.md, "Long bouts").
+ * A bout short enough is one piece whose core is the whole bout. */
+#define PIECE_CONTEXT_S 60
+
+typedef struct piece {
+    size_t bout;
+    bout_span view;          /* the stretch conditioned: core and context, inside the bout */
+    size_t core_a, core_b;   /* the seconds of the view this piece labels */
+    bool first, last;        /* the bout's first and last piece */
+} piece;
+
+/* Whether a time t_s (seconds from the view's start) is the piece's to
+ * report: in its core, or before (after) it for the bout's first (last) piece. */
+static bool piece_owns(const piece *pc, double t_s)
+{
+    return (pc->first || t_s >= (double)pc->core_a) && (pc->last || t_s < (double)pc->core_b);
+}
+
+/* What both passes share: the conditioners, the beats of each piece, the
  * workers and the per-second levels gathered for the background fit. */
 typedef struct pass_ctx {
     rt_recording *rec;
@@ -114,8 +139,12 @@ typedef struct pass_ctx {
     bout_span *bouts;
     rt_conditioner cond[RT_ROLE_COUNT];
     bool cond_open[RT_ROLE_COUNT];
-    rt_qrs_beats *beats;     /* per bout */
-    int *beats_source;       /* per bout */
+    piece *pieces;
+    size_t n_pieces;
+    double block_s;          /* a piece's core at most, seconds; 0: the default */
+    size_t nrem_run_epochs;  /* NREM runs: at most this many epochs (a piece's view at most) */
+    rt_qrs_beats *beats;     /* per piece, over its view */
+    int *beats_source;       /* per piece */
     worker_ctx *workers;
     unsigned n_workers;
     const item_list *job;    /* the job the pool is running */
@@ -188,10 +217,12 @@ static rt_status add_burst(item_out *o, rt_role role, double t0, double rate, co
 /* Each rule's bursts on the conditioned bout (rules sharing an amplitude
  * share one scan), marked on the grids the rule applies to, rule by rule. */
 static rt_status detect_rules(const pass_ctx *c, worker_ctx *w, item_out *o, rt_role role,
-                              const bout_span *bout, const rt_burst_rule *rules,
+                              const piece *pc, const rt_burst_rule *rules,
                               const unsigned *labels, rt_error *err)
 {
     rt_night *night = c->night;
+    const bout_span *bout = &pc->view;
+    size_t ca = pc->core_a, cb = pc->core_b;
     const rt_stretch *st = &w->st;
     double rate = st->rate_hz;
     size_t merge = (size_t)llround(night->params.burst_merge_gap_s * rate);
@@ -206,16 +237,21 @@ static rt_status detect_rules(const pass_ctx *c, worker_ctx *w, item_out *o, rt_
             double a = s->start / rate, b = s->end / rate;
             if (rt_stretch_marked(st, a, b))
                 continue; /* not scorable there: the mini-epochs are left out anyway */
+            bool own = piece_owns(pc, a);
             if (st->n_qrs && rt_qrs_overlap(st->qrs, st->n_qrs, a, b) >= 0.5) {
-                o->vetoed += label == RT_LABEL_SINBAR_PHASIC;
+                o->vetoed += own && label == RT_LABEL_SINBAR_PHASIC;
                 continue; /* an ECG complex, not muscle */
             }
+            /* the core's mini-epochs, by every burst seen (one of a
+             * neighbouring core may reach into this one) */
             if (label == RT_LABEL_MONTREAL_PHASIC)
-                mark_minis(night->minis2 + bout->mini2_first, bout->n_epochs * RT_MINIS2_PER_EPOCH,
-                           2.0, bout->t0, rate, s, bout->t0, role, label);
+                mark_minis(night->minis2 + bout->mini2_first + ca / 2, (cb - ca) / 2, 2.0,
+                           bout->t0 + (double)ca, rate, s, bout->t0, role, label);
             else
-                mark_minis(night->minis3 + bout->mini3_first, bout->n_epochs * RT_MINIS3_PER_EPOCH,
-                           3.0, bout->t0, rate, s, bout->t0, role, label);
+                mark_minis(night->minis3 + bout->mini3_first + ca / 3, (cb - ca) / 3, 3.0,
+                           bout->t0 + (double)ca, rate, s, bout->t0, role, label);
+            if (!own)
+                continue; /* listed by the piece whose core holds its onset */
             rt_status stt = add_burst(o, role, bout->t0, rate, s, label, err);
             if (stt != RT_OK)
                 return stt;
@@ -245,15 +281,16 @@ static double stretch_median(const rt_stretch *st, size_t a, size_t b, double *s
 
 /* Tonic shares and audit levels on the 3-s grid and the epochs of a bout. */
 static void label_tonic(const pass_ctx *c, worker_ctx *w, item_out *o, rt_role role,
-                        const bout_span *bout)
+                        const piece *pc)
 {
     rt_night *night = c->night;
     const rt_score_params *p = &night->params;
     const rt_stretch *st = &w->st;
+    const bout_span *bout = &pc->view;
     size_t seconds = st->seconds;
     rt_count_tonic_blocks(st->env, w->bg, st->starts, seconds, p->tonic_k, abs_tonic_env_uv(p),
                           w->tonic);
-    for (size_t k = 0; k < bout->n_epochs * RT_MINIS3_PER_EPOCH; k++) {
+    for (size_t k = pc->core_a / 3; k < pc->core_b / 3; k++) {
         rt_mini *m = &night->minis3[bout->mini3_first + k];
         size_t a = st->starts[3 * k], b = st->starts[3 * k + 3];
         size_t tonic = tonic_samples(w, 3 * k, 3 * k + 3);
@@ -270,7 +307,7 @@ static void label_tonic(const pass_ctx *c, worker_ctx *w, item_out *o, rt_role r
     bool aasm = isfinite(night->nrem_reference_uv);
     if (aasm)
         rt_count_tonic_blocks(st->env, w->bg, st->starts, seconds, 0.0, aasm_level, w->above);
-    for (size_t e = 0; e < bout->n_epochs; e++) {
+    for (size_t e = pc->core_a / 30; e < pc->core_b / 30; e++) {
         rt_epoch_result *er = &night->epochs[bout->epoch_first + e];
         size_t a = st->starts[RT_EPOCH_WHOLE_S * e], b = st->starts[RT_EPOCH_WHOLE_S * e + RT_EPOCH_WHOLE_S];
         size_t tonic = tonic_samples(w, RT_EPOCH_WHOLE_S * e, RT_EPOCH_WHOLE_S * e + RT_EPOCH_WHOLE_S);
@@ -285,11 +322,21 @@ static void label_tonic(const pass_ctx *c, worker_ctx *w, item_out *o, rt_role r
             er->aasm_tonic = 2 * above >= b - a;
         }
     }
-    /* Montreal tonic: 20-s windows tiled from the bout start; the remainder is dropped */
+    /* Montreal tonic: 20-s windows tiled from the bout start; the remainder is
+     * dropped. A window is counted by the piece whose core holds its start;
+     * it is left out when it touches an excluding event or a quality mark of
+     * the chin (the marks of this stretch: the neighbouring core's seconds
+     * may be marked in the masks by another thread at any time). */
     size_t win = (size_t)llround(p->montreal_epoch_s);
     size_t base = bout->epoch_first * RT_EPOCH_WHOLE_S;
-    for (size_t s0 = 0; s0 + win <= seconds; s0 += win) {
-        if (rt_exclusions_of(c->ss->masks, RT_ROLE_CHIN, base + s0, win))
+    size_t off = (size_t)llround(bout->t0 - c->bouts[pc->bout].t0); /* view from bout start */
+    size_t s0 = (pc->core_a + off + win - 1) / win * win - off;
+    const unsigned quality = RT_EXCLUDED_BY_QUALITY(RT_QUALITY_CLIPPING) |
+                             RT_EXCLUDED_BY_QUALITY(RT_QUALITY_FLAT) |
+                             RT_EXCLUDED_BY_QUALITY(RT_QUALITY_POP);
+    for (; s0 < pc->core_b && s0 + win <= seconds; s0 += win) {
+        if ((rt_exclusions_of(c->ss->masks, RT_ROLE_CHIN, base + s0, win) & ~quality) ||
+            rt_stretch_marked(st, (double)s0, (double)(s0 + win)))
             continue; /* a window touching an excluding event leaves the count */
         size_t a = st->starts[s0], b = st->starts[s0 + win];
         o->montreal_windows++;
@@ -298,8 +345,9 @@ static void label_tonic(const pass_ctx *c, worker_ctx *w, item_out *o, rt_role r
 }
 
 static rt_status count_rai(const pass_ctx *c, const worker_ctx *w, item_out *o,
-                           const bout_span *bout, rt_error *err)
+                           const piece *pc, rt_error *err)
 {
+    const bout_span *bout = &pc->view;
     size_t seconds = w->st.seconds;
     double *floored = rt_calloc(seconds ? seconds : 1, sizeof *floored);
     bool *skip = rt_calloc(seconds ? seconds : 1, sizeof *skip);
@@ -312,9 +360,9 @@ static rt_status count_rai(const pass_ctx *c, const worker_ctx *w, item_out *o,
      * then left out of the counts (as for the mini-epoch indices) */
     rt_rai_remove_floor(w->st.rect_mean_uv, seconds, 60, floored);
     size_t base = bout->epoch_first * RT_EPOCH_WHOLE_S;
-    for (size_t j = 0; j < seconds; j++)
+    for (size_t j = pc->core_a; j < pc->core_b; j++)
         skip[j] = rt_exclusions_of(c->ss->masks, RT_ROLE_CHIN, base + j, 1) != 0;
-    rt_rai_count(floored, seconds, skip, &o->rai);
+    rt_rai_count(floored + pc->core_a, pc->core_b - pc->core_a, skip + pc->core_a, &o->rai);
     free(floored);
     free(skip);
     return RT_OK;
@@ -323,16 +371,19 @@ static rt_status count_rai(const pass_ctx *c, const worker_ctx *w, item_out *o,
 /* Leaves out the mini-epochs, seconds and minutes a quality mark covers, for
  * this role. */
 static rt_status apply_marks(const pass_ctx *c, const worker_ctx *w, item_out *o, rt_role role,
-                             const bout_span *bout, rt_error *err)
+                             const piece *pc, rt_error *err)
 {
     rt_night *night = c->night;
     const rt_stretch *st = &w->st;
+    const bout_span *bout = &pc->view;
     size_t base = bout->epoch_first * RT_EPOCH_WHOLE_S;
     for (size_t k = 0; k < st->n_marks; k++) {
         const rt_quality_mark *m = &st->marks[k];
         size_t a = (size_t)floor(m->start_s), b = (size_t)ceil(m->end_s);
-        if (b > st->seconds)
-            b = st->seconds;
+        if (b > pc->core_b)
+            b = pc->core_b;
+        if (a < pc->core_a)
+            a = pc->core_a;
         if (a >= b)
             continue;
         unsigned bit = RT_EXCLUDED_BY_QUALITY(m->reason);
@@ -342,7 +393,8 @@ static rt_status apply_marks(const pass_ctx *c, const worker_ctx *w, item_out *o
                              err);
         if (s != RT_OK)
             return s;
-        o->marked[o->n_marked++] = (marked_minutes){m->reason, (m->end_s - m->start_s) / 60.0};
+        double from = fmax(m->start_s, (double)pc->core_a), to = fmin(m->end_s, (double)pc->core_b);
+        o->marked[o->n_marked++] = (marked_minutes){m->reason, (to - from) / 60.0};
         for (size_t i = a / 3; i * 3 < b; i++) {
             rt_mini *mi = &night->minis3[bout->mini3_first + i];
             mi->labels[role] |= RT_LABEL_EXCLUDED;
@@ -392,16 +444,16 @@ static rt_status bout_background(const pass_ctx *c, worker_ctx *w, rt_role role,
     return RT_OK;
 }
 
-/* Appends the level of every unmarked second of the conditioned stretch to
- * *pts (growing it). */
-static rt_status append_levels(const rt_stretch *st, rt_level_point **pts, size_t *n,
-                               rt_error *err)
+/* Appends the level of every unmarked second [from, to) of the conditioned
+ * stretch to *pts (growing it). */
+static rt_status append_levels(const rt_stretch *st, size_t from, size_t to, rt_level_point **pts,
+                               size_t *n, rt_error *err)
 {
-    rt_level_point *p = realloc(*pts, (*n + st->seconds + 1) * sizeof *p);
+    rt_level_point *p = realloc(*pts, (*n + (to - from) + 1) * sizeof *p);
     if (!p)
         return rt_fail(err, RT_ERR_NOMEM, "out of memory for the per-second levels");
     *pts = p;
-    for (size_t j = 0; j < st->seconds; j++) {
+    for (size_t j = from; j < to; j++) {
         if (rt_stretch_marked(st, (double)j, (double)j + 1.0))
             continue; /* a loose lead or clipping is not the muscle's level */
         p[*n].t_s = st->t0_s + (double)j + 0.5;
@@ -416,12 +468,13 @@ static rt_status append_levels(const rt_stretch *st, rt_level_point **pts, size_
 static rt_status collect_levels(const pass_ctx *c, worker_ctx *w, item_out *o, const item *it,
                                 rt_error *err)
 {
-    const bout_span *bout = &c->bouts[it->bout];
+    const piece *pc = &c->pieces[it->piece];
     const rt_stretch_request req = {RT_STRETCH_LEVELS, NULL, 0};
-    rt_status st = rt_condition_stretch_for(&w->cond[it->role], bout->t0, bout->n_epochs * RT_EPOCH_WHOLE_S,
-                                            &c->beats[it->bout], &req, &w->st, err);
+    rt_status st = rt_condition_stretch_for(&w->cond[it->role], pc->view.t0,
+                                            pc->view.n_epochs * RT_EPOCH_WHOLE_S, &c->beats[it->piece], &req,
+                                            &w->st, err);
     if (st == RT_OK)
-        st = append_levels(&w->st, &o->points, &o->n_points, err);
+        st = append_levels(&w->st, pc->core_a, pc->core_b, &o->points, &o->n_points, err);
     if (st != RT_OK)
         return st;
     o->marks = rt_calloc(w->st.n_marks + 1, sizeof *o->marks);
@@ -439,13 +492,14 @@ static rt_status label_role_bout(const pass_ctx *c, worker_ctx *w, item_out *o, 
 {
     const rt_score_params *p = &c->night->params;
     rt_role role = it->role;
-    const bout_span *bout = &c->bouts[it->bout];
+    const piece *pc = &c->pieces[it->piece];
+    const bout_span *bout = &pc->view;
     size_t seconds = bout->n_epochs * RT_EPOCH_WHOLE_S;
     const rt_stretch_request req = {RT_STRETCH_SUMS, pass1->marks, pass1->n_marks};
-    rt_status st = rt_condition_stretch_for(&w->cond[role], bout->t0, seconds, &c->beats[it->bout],
-                                            &req, &w->st, err);
+    rt_status st = rt_condition_stretch_for(&w->cond[role], bout->t0, seconds,
+                                            &c->beats[it->piece], &req, &w->st, err);
     if (st == RT_OK)
-        st = apply_marks(c, w, o, role, bout, err);
+        st = apply_marks(c, w, o, role, pc, err);
     if (st == RT_OK)
         st = bout_background(c, w, role, bout, err);
     if (st != RT_OK)
@@ -460,11 +514,11 @@ static rt_status label_role_bout(const pass_ctx *c, worker_ctx *w, item_out *o, 
         {p->montreal_burst_k, p->burst_min_s, p->montreal_burst_max_s, tol, win}};
     static const unsigned labels[BURST_RULES] = {RT_LABEL_AASM_PHASIC, RT_LABEL_SINBAR_PHASIC,
                                                  RT_LABEL_MONTREAL_PHASIC};
-    st = detect_rules(c, w, o, role, bout, rules, labels, err);
+    st = detect_rules(c, w, o, role, pc, rules, labels, err);
     if (st != RT_OK)
         return st;
-    label_tonic(c, w, o, role, bout);
-    return role == RT_ROLE_CHIN ? count_rai(c, w, o, bout, err) : RT_OK;
+    label_tonic(c, w, o, role, pc);
+    return role == RT_ROLE_CHIN ? count_rai(c, w, o, pc, err) : RT_OK;
 }
 
 /* Limb NREM runs read for the drift: one run in NREM_DRIFT_STRIDE (10 minutes
@@ -486,7 +540,7 @@ static rt_status nrem_run(const pass_ctx *c, worker_ctx *w, item_out *o, const i
                                            (double)it->first_epoch * c->tl->epoch_s,
                                            it->epochs * RT_EPOCH_WHOLE_S, NULL, &req, st, err);
     if (s == RT_OK)
-        s = append_levels(st, &o->points, &o->n_points, err);
+        s = append_levels(st, 0, st->seconds, &o->points, &o->n_points, err);
     if (s != RT_OK || it->role != RT_ROLE_CHIN)
         return s;
     o->medians = rt_calloc(it->epochs, sizeof *o->medians);
@@ -512,9 +566,9 @@ static rt_status run_item(void *ctx, unsigned worker, size_t i, rt_error *err)
     case ITEM_NREM:
         return nrem_run(c, w, o, it, err);
     case ITEM_BEATS: {
-        const bout_span *b = &c->bouts[it->bout];
+        const bout_span *b = &c->pieces[it->piece].view;
         return rt_condition_beats_with(c->rec, c->roles, b->t0, b->n_epochs * RT_EPOCH_WHOLE_S, &w->beats,
-                                       &c->beats[it->bout], &c->beats_source[it->bout], err);
+                                       &c->beats[it->piece], &c->beats_source[it->piece], err);
     }
     case ITEM_LEVELS:
         return collect_levels(c, w, o, it, err);
@@ -581,16 +635,16 @@ static rt_status run_job(pass_ctx *c, item_list *l, rt_parallel_failure *f)
 }
 
 /* The place of each item in the sequential loop: the NREM runs (run, then
- * role), then bout by bout its beats and each role's pass 1, then bout by
- * bout each role's pass 2. Only the order of ranks matters. */
-static size_t rank_levels(size_t n_nrem, size_t bout, int role)
+ * role), then piece by piece its beats and each role's pass 1, then piece by
+ * piece each role's pass 2. Only the order of ranks matters. */
+static size_t rank_levels(size_t n_nrem, size_t pi, int role)
 {
-    return n_nrem + bout * (RT_ROLE_COUNT + 1) + (role < 0 ? 0 : 1 + (size_t)role);
+    return n_nrem + pi * (RT_ROLE_COUNT + 1) + (role < 0 ? 0 : 1 + (size_t)role);
 }
 
-static size_t rank_labels(size_t n_nrem, size_t n_bouts, size_t bout, int role)
+static size_t rank_labels(size_t n_nrem, size_t n_pieces, size_t pi, int role)
 {
-    return rank_levels(n_nrem, n_bouts, -1) + bout * RT_ROLE_COUNT + (size_t)role;
+    return rank_levels(n_nrem, n_pieces, -1) + pi * RT_ROLE_COUNT + (size_t)role;
 }
 
 /* The NREM runs (at most NREM_RUN_EPOCHS epochs each) of every open role: the
@@ -606,7 +660,7 @@ static rt_status nrem_items(const pass_ctx *c, item_list *l, rt_error *err)
             continue;
         }
         size_t run = 0;
-        while (e + run < tl->n_epochs && is_nrem(tl->stages[e + run]) && run < NREM_RUN_EPOCHS)
+        while (e + run < tl->n_epochs && is_nrem(tl->stages[e + run]) && run < c->nrem_run_epochs)
             run++;
         for (int r = 0; r < RT_ROLE_COUNT && st == RT_OK; r++) {
             if (!c->cond_open[r] || (r != RT_ROLE_CHIN && chunk % NREM_DRIFT_STRIDE != 0))
@@ -626,11 +680,11 @@ static rt_status nrem_items(const pass_ctx *c, item_list *l, rt_error *err)
 static rt_status bout_items(const pass_ctx *c, item_list *beats, item_list *levels,
                             item_list *labels, size_t n_nrem, rt_error *err)
 {
-    size_t n_bouts = c->night->n_bouts;
+    size_t n_pieces = c->n_pieces;
     rt_status st = RT_OK;
-    for (size_t b = 0; b < n_bouts && st == RT_OK; b++) {
-        double seconds = (double)c->bouts[b].n_epochs * RT_EPOCH_S;
-        item it = {ITEM_BEATS, RT_ROLE_ECG, b, 0, c->bouts[b].n_epochs};
+    for (size_t b = 0; b < n_pieces && st == RT_OK; b++) {
+        double seconds = (double)c->pieces[b].view.n_epochs * RT_EPOCH_S;
+        item it = {ITEM_BEATS, RT_ROLE_ECG, b, 0, c->pieces[b].view.n_epochs};
         st = add_item(beats, it, rank_levels(n_nrem, b, -1), BEATS_COST * seconds, err);
         for (int r = 0; r < RT_ROLE_COUNT && st == RT_OK; r++) {
             if (!c->cond_open[r])
@@ -640,22 +694,24 @@ static rt_status bout_items(const pass_ctx *c, item_list *beats, item_list *leve
             st = add_item(levels, it, rank_levels(n_nrem, b, r), seconds, err);
             it.kind = ITEM_LABELS;
             if (st == RT_OK)
-                st = add_item(labels, it, rank_labels(n_nrem, n_bouts, b, r), seconds, err);
+                st = add_item(labels, it, rank_labels(n_nrem, n_pieces, b, r), seconds, err);
         }
     }
     return st;
 }
 
-/* Appends the items' levels to each role's list, in item order. */
-static rt_status gather_levels(const item_list *l, rt_level_point **pts, size_t *n,
-                               size_t **first_point, rt_error *err)
+/* Appends the items' levels to each role's list, in item order; with
+ * pieces, each bout's first and end entry. */
+static rt_status gather_levels(const item_list *l, const piece *pieces, rt_level_point **pts,
+                               size_t *n, size_t **first_point, rt_error *err)
 {
     for (size_t i = 0; i < l->n; i++) {
         const item *it = &l->items[i];
         item_out *o = &l->outs[i];
         rt_role r = it->role;
-        if (first_point)
-            first_point[r][it->bout] = n[r];
+        const piece *pc = first_point ? &pieces[it->piece] : NULL;
+        if (pc && pc->first)
+            first_point[r][pc->bout] = n[r];
         rt_level_point *p = realloc(pts[r], (n[r] + o->n_points + 1) * sizeof *p);
         if (!p)
             return rt_fail(err, RT_ERR_NOMEM, "out of memory for the per-second levels");
@@ -663,8 +719,8 @@ static rt_status gather_levels(const item_list *l, rt_level_point **pts, size_t 
         if (o->n_points)
             memcpy(p + n[r], o->points, o->n_points * sizeof *p);
         n[r] += o->n_points;
-        if (first_point)
-            first_point[r][it->bout + 1] = n[r];
+        if (pc)
+            first_point[r][pc->bout + 1] = n[r];
         free(o->points);
         o->points = NULL;
     }
@@ -693,20 +749,48 @@ static rt_status nrem_reference(const pass_ctx *c, const item_list *l, double *r
     return RT_OK;
 }
 
-/* Adds pass 2's counts, marks and bursts to the night, bout by bout, role by
+/* The beats of a piece that lie in what it owns (all of them when the bout
+ * is one piece). */
+static size_t owned_beats(const piece *pc, const rt_qrs_beats *beats)
+{
+    size_t n = 0;
+    for (size_t i = 0; i < beats->n; i++)
+        n += piece_owns(pc, beats->r_s[i] - pc->view.t0);
+    return n;
+}
+
+/* The order of a bout's bursts: role, then rule (their label bits rise in
+ * the order the rules are run), then onset. */
+static int cmp_burst(const void *pa, const void *pb)
+{
+    const rt_burst *a = pa, *b = pb;
+    if (a->role != b->role)
+        return a->role < b->role ? -1 : 1;
+    if (a->rules != b->rules)
+        return a->rules < b->rules ? -1 : 1;
+    return (a->onset_s > b->onset_s) - (a->onset_s < b->onset_s);
+}
+
+/* Adds pass 2's counts, marks and bursts to the night, piece by piece, role by
  * role, rule by rule: the order of the sequential loop. */
 static rt_status gather_labels(pass_ctx *c, const item_list *l, rt_error *err)
 {
     rt_night *night = c->night;
     scoring_state *ss = c->ss;
+    size_t bout_begin = night->n_bursts;
+    int last_role = -1; /* the last role of each piece's items */
+    for (int r = 0; r < RT_ROLE_COUNT; r++)
+        if (c->cond_open[r])
+            last_role = r;
     for (size_t i = 0; i < l->n; i++) {
         const item *it = &l->items[i];
         const item_out *o = &l->outs[i];
         rt_channel_quality *q = &night->channel[it->role].quality;
         for (size_t k = 0; k < o->n_marked; k++)
             q->unscorable_min[o->marked[k].reason] += o->marked[k].minutes;
-        q->ecg_source = c->beats_source[it->bout] ? c->beats_source[it->bout] : q->ecg_source;
-        q->beats += it->role == RT_ROLE_CHIN ? c->beats[it->bout].n : 0;
+        q->ecg_source = c->beats_source[it->piece] ? c->beats_source[it->piece] : q->ecg_source;
+        if (it->role == RT_ROLE_CHIN)
+            q->beats += owned_beats(&c->pieces[it->piece], &c->beats[it->piece]);
         q->ecg_found |= o->ecg_found;
         q->ecg_removed |= o->ecg_removed;
         q->bursts_vetoed += o->vetoed;
@@ -736,6 +820,15 @@ static rt_status gather_labels(pass_ctx *c, const item_list *l, rt_error *err)
         if (o->n_bursts)
             memcpy(night->bursts + night->n_bursts, o->bursts, o->n_bursts * sizeof *o->bursts);
         night->n_bursts += o->n_bursts;
+        /* a bout's pieces come one after another: when the last is in, its
+         * bursts take the order of a bout scored whole */
+        const piece *pc = &c->pieces[it->piece];
+        if (pc->last && it->role == last_role) {
+            if (!pc->first)
+                qsort(night->bursts + bout_begin, night->n_bursts - bout_begin,
+                      sizeof *night->bursts, cmp_burst);
+            bout_begin = night->n_bursts;
+        }
     }
     return RT_OK;
 }
@@ -1003,10 +1096,70 @@ static void pass_ctx_free(pass_ctx *c)
         free(c->bout_first_point[r]);
     }
     if (c->beats)
-        for (size_t b = 0; b < c->night->n_bouts; b++)
+        for (size_t b = 0; b < c->n_pieces; b++)
             rt_qrs_beats_free(&c->beats[b]);
     free(c->beats);
     free(c->beats_source);
+    free(c->pieces);
+}
+
+size_t rt_bout_piece(size_t len_s, size_t core_s, size_t j, size_t view[2], size_t own[2])
+{
+    size_t k = len_s <= core_s + 2 * PIECE_CONTEXT_S ? 1 : (len_s + core_s - 1) / core_s;
+    size_t a = k == 1 ? 0 : j * core_s, e = j + 1 >= k ? len_s : a + core_s;
+    own[0] = a;
+    own[1] = e;
+    /* a and e are whole minutes (or the bout's end): so is the view */
+    view[0] = a > PIECE_CONTEXT_S ? a - PIECE_CONTEXT_S : 0;
+    view[1] = e + PIECE_CONTEXT_S < len_s ? e + PIECE_CONTEXT_S : len_s;
+    return k;
+}
+
+/* The pieces of every bout: bouts no longer than a core and two contexts
+ * whole, longer ones in cores of whole minutes. */
+static rt_status plan_pieces(pass_ctx *c, rt_error *err)
+{
+    rt_night *night = c->night;
+    double fastest = 0.0;
+    for (int r = 0; r < RT_ROLE_COUNT; r++)
+        if (c->roles->role[r].channel >= 0 && (c->cond_open[r] || r == RT_ROLE_ECG))
+            fastest = fmax(fastest, c->roles->role[r].rate_hz);
+    double core_s = c->block_s > 0.0 ? c->block_s
+                                     : fastest > 0.0 ? RT_NIGHT_BLOCK_SAMPLES / fastest : 0.0;
+    size_t core = core_s < 1e9 ? (size_t)(core_s / 60.0) * 60 : (size_t)1e9;
+    if (core < 60)
+        core = 60;
+    /* an NREM run is read whole: no longer than a piece's view */
+    c->nrem_run_epochs = (core + 2 * PIECE_CONTEXT_S) / 30;
+    if (c->nrem_run_epochs > NREM_RUN_EPOCHS)
+        c->nrem_run_epochs = NREM_RUN_EPOCHS;
+    night->block_s = core;
+    size_t n = 0, view[2], own[2];
+    for (size_t b = 0; b < night->n_bouts; b++)
+        n += rt_bout_piece(c->bouts[b].n_epochs * RT_EPOCH_WHOLE_S, core, 0, view, own);
+    c->pieces = rt_calloc(n + 1, sizeof *c->pieces);
+    if (!c->pieces)
+        return rt_fail(err, RT_ERR_NOMEM, "out of memory for %zu REM blocks", n);
+    c->n_pieces = n;
+    piece *pc = c->pieces;
+    for (size_t b = 0; b < night->n_bouts; b++) {
+        const bout_span *bout = &c->bouts[b];
+        size_t len = bout->n_epochs * RT_EPOCH_WHOLE_S;
+        size_t k = rt_bout_piece(len, core, 0, view, own);
+        for (size_t j = 0; j < k; j++, pc++) {
+            rt_bout_piece(len, core, j, view, own);
+            size_t va = view[0], ve = view[1];
+            pc->bout = b;
+            pc->view = (bout_span){bout->t0 + (double)va, (ve - va) / 30,
+                                   bout->epoch_first + va / 30, bout->mini3_first + va / 3,
+                                   bout->mini2_first + va / 2};
+            pc->core_a = own[0] - va;
+            pc->core_b = own[1] - va;
+            pc->first = j == 0;
+            pc->last = j + 1 == k;
+        }
+    }
+    return RT_OK;
 }
 
 /* Room for what the passes gather over the night. */
@@ -1015,8 +1168,8 @@ static rt_status reserve_night(pass_ctx *c, rt_error *err)
     rt_night *night = c->night;
     size_t n_bouts = night->n_bouts;
     night->bout_lift = rt_calloc(n_bouts * RT_ROLE_COUNT + 1, sizeof *night->bout_lift);
-    c->beats = rt_calloc(n_bouts + 1, sizeof *c->beats);
-    c->beats_source = rt_calloc(n_bouts + 1, sizeof *c->beats_source);
+    c->beats = rt_calloc(c->n_pieces + 1, sizeof *c->beats);
+    c->beats_source = rt_calloc(c->n_pieces + 1, sizeof *c->beats_source);
     bool ok = night->bout_lift && c->beats && c->beats_source;
     for (int r = 0; r < RT_ROLE_COUNT; r++) {
         c->bout_first_point[r] = rt_calloc(n_bouts + 1, sizeof *c->bout_first_point[r]);
@@ -1049,6 +1202,8 @@ static rt_status score_passes(pass_ctx *c, unsigned threads, rt_error *err)
     memset(&levels, 0, sizeof levels);
     memset(&labels, 0, sizeof labels);
     if (st == RT_OK)
+        st = plan_pieces(c, err);
+    if (st == RT_OK)
         st = reserve_night(c, err);
     if (st == RT_OK)
         st = nrem_items(c, &nrem_beats, err);
@@ -1073,11 +1228,11 @@ static rt_status score_passes(pass_ctx *c, unsigned threads, rt_error *err)
     item_list nrem = nrem_beats;
     nrem.n = n_nrem; /* the NREM items come first */
     if (st == RT_OK)
-        st = gather_levels(&nrem, c->nrem_points, c->n_nrem_points, NULL, err);
+        st = gather_levels(&nrem, NULL, c->nrem_points, c->n_nrem_points, NULL, err);
     if (st == RT_OK)
         st = nrem_reference(c, &nrem, &night->nrem_reference_uv, err);
     if (st == RT_OK)
-        st = gather_levels(&levels, c->points, c->n_points, c->bout_first_point, err);
+        st = gather_levels(&levels, c->pieces, c->points, c->n_points, c->bout_first_point, err);
     item_list_free(&nrem_beats);
     if (st == RT_OK)
         st = fit_backgrounds(c, err);
@@ -1100,9 +1255,20 @@ rt_status rt_night_score_threads(rt_recording *rec, const rt_role_map *roles,
                                  const rt_cutoffs *cutoffs, int threads, rt_night **out,
                                  rt_error *err)
 {
+    return rt_night_score_blocks(rec, roles, tl, params, cutoffs, threads, 0.0, out, err);
+}
+
+rt_status rt_night_score_blocks(rt_recording *rec, const rt_role_map *roles,
+                                const rt_timeline *tl, const rt_score_params *params,
+                                const rt_cutoffs *cutoffs, int threads, double block_s,
+                                rt_night **out, rt_error *err)
+{
     if (!out)
         return rt_fail(err, RT_ERR_USAGE, "rt_night_score: no place for the result");
     *out = NULL;
+    if (!(block_s >= 0.0) || !isfinite(block_s))
+        return rt_fail(err, RT_ERR_USAGE, "rt_night_score: block length %g s must be 0 (the "
+                       "default) or more", block_s);
     if (!rec || !roles || !tl)
         return rt_fail(err, RT_ERR_USAGE, "rt_night_score: a recording, roles and a timeline are "
                                           "needed");
@@ -1149,6 +1315,7 @@ rt_status rt_night_score_threads(rt_recording *rec, const rt_role_map *roles,
     c.tl = tl;
     c.night = night;
     c.ss = &ss;
+    c.block_s = block_s;
     rt_exclusion_masks masks;
     memset(&masks, 0, sizeof masks);
     st = lay_out_rem(night, tl, &c.bouts, err);

@@ -18,6 +18,12 @@ typedef struct bout_span {
     size_t mini2_first;   /* index into night->minis2 */
 } bout_span;
 
+/* How a REM bout of len_s seconds is cut into blocks of core_s seconds
+ * (docs/scoring.md, "Long bouts"): returns the number of pieces; piece j
+ * (below that number) conditions view[0] .. view[1] and labels own[0] ..
+ * own[1], seconds from the bout's start. */
+size_t rt_bout_piece(size_t len_s, size_t core_s, size_t j, size_t view[2], size_t own[2]);
+
 /* Counts gathered while scanning the bouts that the labels alone do not hold. */
 struct rt_exclusion_masks;
 

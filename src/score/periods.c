@@ -24,8 +24,6 @@
 #include "exclusions.h"
 #include "night_internal.h"
 
-#define MINI3_PER_EPOCH 10
-#define MINI2_PER_EPOCH 15
 
 /* A group of consecutive bouts [b0, b0 + nb) as a period (or a half). */
 static void set_span(rt_rem_period *g, const rt_night *night, const bout_span *bouts, size_t b0,
@@ -124,10 +122,10 @@ static rt_status score_group(const rt_night *night, const scoring_state *ss, rt_
     memcpy(view, night, sizeof *view);
     view->epochs = night->epochs + g->result_first;
     view->n_epochs = g->rem_epochs;
-    view->minis3 = night->minis3 + g->result_first * MINI3_PER_EPOCH;
-    view->n_minis3 = g->rem_epochs * MINI3_PER_EPOCH;
-    view->minis2 = night->minis2 + g->result_first * MINI2_PER_EPOCH;
-    view->n_minis2 = g->rem_epochs * MINI2_PER_EPOCH;
+    view->minis3 = night->minis3 + g->result_first * RT_MINIS3_PER_EPOCH;
+    view->n_minis3 = g->rem_epochs * RT_MINIS3_PER_EPOCH;
+    view->minis2 = night->minis2 + g->result_first * RT_MINIS2_PER_EPOCH;
+    view->n_minis2 = g->rem_epochs * RT_MINIS2_PER_EPOCH;
     view->bursts = bursts;
     view->n_bursts = nb;
     memset(view->index, 0, sizeof view->index);

@@ -1,7 +1,9 @@
 /* The envelope a reviewer is shown: stretches of REM bouts conditioned on the
  * scorer's own path (condition.c), so the trace on the review page is the one
- * the labels came from. A tracer keeps, per role, the last bout it
- * conditioned: asking for several epochs of one bout conditions it once. */
+ * the labels came from. A long bout is conditioned in the scorer's blocks
+ * (night.c, rt_bout_piece), each with its own beats, so memory does not grow
+ * with the bout here either. A tracer keeps, per role, the last block it
+ * conditioned: asking for several epochs of one block conditions it once. */
 #include <math.h>
 #include <stdint.h>
 #include <stdlib.h>
@@ -9,6 +11,7 @@
 
 #include "condition.h"
 #include "internal.h"
+#include "night_internal.h"
 
 struct rt_night_tracer {
     rt_recording *rec;
@@ -18,9 +21,9 @@ struct rt_night_tracer {
     rt_conditioner cond[RT_ROLE_COUNT];
     bool open[RT_ROLE_COUNT];
     rt_stretch st[RT_ROLE_COUNT];
-    size_t bout[RT_ROLE_COUNT];       /* bout held in st, SIZE_MAX: none */
-    rt_qrs_beats beats;               /* beats of beats_bout */
-    size_t beats_bout;
+    double held_t0[RT_ROLE_COUNT];    /* start of the block held in st, NAN: none */
+    rt_qrs_beats beats;               /* beats of the block starting at beats_t0 */
+    double beats_t0;
 };
 
 /* Onset and length of a REM bout from the epochs list; false when none. */
@@ -54,9 +57,9 @@ rt_status rt_night_tracer_open(rt_recording *rec, const rt_night *night, rt_nigh
         return rt_fail(err, RT_ERR_NOMEM, "out of memory for the review traces");
     t->rec = rec;
     t->night = night;
-    t->beats_bout = SIZE_MAX;
+    t->beats_t0 = NAN;
     for (int r = 0; r < RT_ROLE_COUNT; r++)
-        t->bout[r] = SIZE_MAX;
+        t->held_t0[r] = NAN;
     if (night->n_epochs)
         bout_extent(night, night->epochs[0].bout, &t->first_t0, &t->first_s);
     *out = t;
@@ -75,8 +78,10 @@ void rt_night_tracer_close(rt_night_tracer *t)
     free(t);
 }
 
-/* Conditions the whole bout for a role exactly as the scorer's second pass did. */
-static rt_status condition_bout(rt_night_tracer *t, rt_role role, size_t bout, rt_error *err)
+/* Conditions the block [bt0, bt0 + bs) for a role exactly as the scorer's
+ * second pass did. */
+static rt_status condition_block(rt_night_tracer *t, rt_role role, double bt0, size_t bs,
+                                 rt_error *err)
 {
     const rt_night *night = t->night;
     rt_status st = RT_OK;
@@ -87,22 +92,19 @@ static rt_status condition_bout(rt_night_tracer *t, rt_role role, size_t bout, r
             return st;
         t->open[role] = true;
     }
-    double bt0 = 0.0;
-    size_t bs = 0;
-    bout_extent(night, bout, &bt0, &bs);
-    if (t->beats_bout != bout) {
+    if (!(t->beats_t0 == bt0)) {
         int source = 0;
         rt_qrs_beats_free(&t->beats);
-        t->beats_bout = SIZE_MAX;
+        t->beats_t0 = NAN;
         st = rt_condition_beats(t->rec, &night->roles, bt0, bs, &t->beats, &source, err);
         if (st != RT_OK)
             return st;
-        t->beats_bout = bout;
+        t->beats_t0 = bt0;
     }
-    t->bout[role] = SIZE_MAX;
+    t->held_t0[role] = NAN;
     st = rt_condition_stretch(&t->cond[role], bt0, bs, &t->beats, &t->st[role], err);
     if (st == RT_OK)
-        t->bout[role] = bout;
+        t->held_t0[role] = bt0;
     return st;
 }
 
@@ -125,11 +127,28 @@ rt_status rt_night_tracer_envelope(rt_night_tracer *t, rt_role role, double t0_s
     if (bout == SIZE_MAX || !bout_extent(night, bout, &bt0, &bs) ||
         t0_s + (double)seconds > bt0 + (double)bs + 1e-9)
         return rt_fail(err, RT_ERR_USAGE, "%g s + %zu s is not inside one REM bout", t0_s, seconds);
-    rt_status st = t->bout[role] == bout ? RT_OK : condition_bout(t, role, bout, err);
+    /* the scorer's block whose own seconds hold t0_s; a request reaching
+     * past its view (longer than a minute beyond) is conditioned on its own */
+    size_t rel = (size_t)llround(t0_s - bt0), view[2] = {0, bs}, own[2] = {0, bs};
+    size_t core = night->block_s ? night->block_s : bs + 1;
+    size_t k = rt_bout_piece(bs, core, 0, view, own);
+    for (size_t j = 0; j < k; j++) {
+        rt_bout_piece(bs, core, j, view, own);
+        if (rel < own[1])
+            break;
+    }
+    if (rel + seconds > view[1]) {
+        view[0] = rel;
+        view[1] = rel + seconds;
+    }
+    double vt0 = bt0 + (double)view[0];
+    rt_status st = t->held_t0[role] == vt0 && t->st[role].seconds == view[1] - view[0]
+                       ? RT_OK
+                       : condition_block(t, role, vt0, view[1] - view[0], err);
     if (st != RT_OK)
         return st;
     const rt_stretch *s = &t->st[role];
-    size_t first = (size_t)llround(t0_s - bt0);
+    size_t first = rel - view[0];
     size_t a = s->starts[first], b = s->starts[first + seconds];
     *env_out = rt_calloc(b > a ? b - a : 1, sizeof **env_out);
     if (!*env_out)

@@ -104,7 +104,7 @@ static rt_status check_artifacts(const rt_synth_options *o, rt_error *err)
 
 static bool is_emg_rate(int hz)
 {
-    return hz == 200 || hz == 256 || hz == 500 || hz == 512 || hz == 1000;
+    return hz == 200 || hz == 256 || hz == 500 || hz == 512 || hz == 1000 || hz == 2000 || hz == 4096;
 }
 
 static rt_status check_difficulty(const rt_synth_options *o, rt_error *err)
@@ -135,7 +135,7 @@ static rt_status check_difficulty(const rt_synth_options *o, rt_error *err)
                        o->single_epoch_bouts);
     /* 1-s data records hold a whole number of samples at every one of these */
     if (!(o->emg_rate_hz == 0 || is_emg_rate(o->emg_rate_hz)))
-        return rt_fail(err, RT_ERR_USAGE, "synthetic night: EMG rate must be 200, 256, 500, 512 or 1000 Hz (got %d)",
+        return rt_fail(err, RT_ERR_USAGE, "synthetic night: EMG rate must be 200, 256, 500, 512, 1000, 2000 or 4096 Hz (got %d)",
                        o->emg_rate_hz);
     return RT_OK;
 }
@@ -144,8 +144,8 @@ static rt_status check_options(const rt_synth_options *o, const char *dir, rt_er
 {
     if ((int)o->profile < 0 || o->profile >= RT_SYNTH_PROFILE_COUNT)
         return rt_fail(err, RT_ERR_USAGE, "synthetic night: unknown profile %d", (int)o->profile);
-    if (!isfinite(o->hours) || o->hours < 1.0 || o->hours > 12.0)
-        return rt_fail(err, RT_ERR_USAGE, "synthetic night: hours must be 1..12 (got %g)", o->hours);
+    if (!isfinite(o->hours) || o->hours < 1.0 || o->hours > 24.0)
+        return rt_fail(err, RT_ERR_USAGE, "synthetic night: hours must be 1..24 (got %g)", o->hours);
     if (o->start_hour > 23 || o->start_minute < 0 || o->start_minute > 59)
         return rt_fail(err, RT_ERR_USAGE, "synthetic night: start time %d:%d is not a clock time",
                        o->start_hour, o->start_minute);

@@ -223,6 +223,27 @@ void rt_test_score_synthetic(const rt_synth_options *o, const char *dir, bool wi
     rt_timeline_free(tl);
 }
 
+rt_night *rt_test_score_dir(const char *dir, const char *stages, int threads, double block_s)
+{
+    rt_error err;
+    char path[4200];
+    snprintf(path, sizeof path, "%s/night.edf", dir);
+    rt_recording *rec = NULL;
+    if (rt_recording_open(path, &rec, &err) != RT_OK)
+        fail_msg("%s", err.message);
+    rt_role_map roles;
+    assert_int_equal(rt_roles_resolve(rec, NULL, &roles, &err), RT_OK);
+    rt_timeline *tl = rt_test_timeline();
+    snprintf(path, sizeof path, "%s/stages.csv", dir);
+    assert_int_equal(rt_timeline_load_stages_csv(tl, stages ? stages : path, NULL, &err), RT_OK);
+    rt_night *night = NULL;
+    if (rt_night_score_blocks(rec, &roles, tl, NULL, NULL, threads, block_s, &night, &err) != RT_OK)
+        fail_msg("%s", err.message);
+    rt_timeline_free(tl);
+    rt_recording_close(rec);
+    return night;
+}
+
 /* ---- synthetic nights --------------------------------------------------- */
 
 const char *const rt_test_role_names[5] = {"chin", "arm-left", "arm-right", "leg-left", "leg-right"};

@@ -92,6 +92,11 @@ json_t *rt_test_load_truth(const char *dir);
 /* Writes the synthetic night o into dir, opens it, resolves its roles, loads
  * stages.csv (and events.csv when with_events) and scores it with default
  * parameters; fails the test on any error. Caller closes and frees. */
+/* Scores dir/night.edf with the stage table `stages` (NULL: dir/stages.csv),
+ * `threads` threads and blocks of block_s seconds (rt_night_score_blocks; 0:
+ * the default); fails the test on any error. The caller frees the night. */
+rt_night *rt_test_score_dir(const char *dir, const char *stages, int threads, double block_s);
+
 void rt_test_score_synthetic(const rt_synth_options *o, const char *dir, bool with_events,
                              rt_recording **rec, rt_night **night);
 
