@@ -166,6 +166,9 @@ static int merge_and_report(cohort_config *c)
                c->o.out_dir, s.nights, s.scored, s.failed,
                s.incomplete ? ", some incomplete results ignored" : "", s.positives, c->o.positive,
                s.negatives, c->o.negative);
+    if (!c->quiet && s.calibrated == 0)
+        printf("%s: no calibrated-cutoffs.csv: no index could be calibrated (that needs scored nights of both groups)\n",
+               c->o.out_dir);
     return EXIT_OK;
 }
 

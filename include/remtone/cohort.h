@@ -131,11 +131,16 @@ typedef struct rt_cohort_merge_summary {
     size_t incomplete;    /* results without a key (a run stopped between the two): ignored */
     size_t positives;     /* scored nights of the positive group */
     size_t negatives;     /* scored nights of the negative group */
+    size_t calibrated;    /* indices with a calibrated (Youden) cutoff; 0: no
+                             calibrated-cutoffs.csv was written */
 } rt_cohort_merge_summary;
 
 /* Rebuilds OUT/cohort.csv, OUT/calibration.csv, OUT/calibrated-cutoffs.csv and
  * OUT/cohort.html from OUT/nights/ (rows in id order, so the files depend
  * only on the results, not on the order or the parts that produced them).
+ * calibrated-cutoffs.csv is written only when some index has a calibrated
+ * cutoff (both groups present); otherwise an earlier one is removed, since a
+ * cutoff file listing no index is one `--cutoffs` refuses.
  * Uses options->out_dir, positive, negative and cutoffs_path (the cutoffs the
  * sensitivity and specificity are tabulated at besides the published ones).
  * summary may be NULL. */

@@ -8,11 +8,13 @@
 #include "cohort_internal.h"
 
 #include <dirent.h>
+#include <errno.h>
 #include <jansson.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <unistd.h>
 
 #include "internal.h"
 #include "output.h"
@@ -325,10 +327,21 @@ static rt_status write_calibration(const char *path, const cohort_calibration *c
 }
 
 /* The format rt_cutoffs_load reads; indices without a Youden cutoff are left
- * out and so keep their published cutoff. */
+ * out and so keep their published cutoff. Without any (one group, too few
+ * nights) there is no file -- rt_cutoffs_load refuses one listing no index,
+ * and every file remtone writes must be one it reads -- and an earlier
+ * merge's file, calibrated on other results, is removed. */
 static rt_status write_calibrated_cutoffs(const char *path, const cohort_calibration *cal,
-                                          rt_error *err)
+                                          rt_cohort_merge_summary *s, rt_error *err)
 {
+    for (int i = 0; i < RT_IX_COUNT; i++)
+        s->calibrated += isfinite(cal->roc[i].youden_cutoff) != 0;
+    if (s->calibrated == 0) {
+        if (unlink(path) != 0 && errno != ENOENT)
+            return rt_fail(err, RT_ERR_IO, "%s: cannot remove the previous calibration: %s", path,
+                           strerror(errno));
+        return RT_OK;
+    }
     rt_output o;
     rt_status st = rt_output_begin(&o, path, 1, err);
     if (st != RT_OK)
@@ -374,7 +387,7 @@ rt_status rt_cohort_merge(const rt_cohort_options *o, rt_cohort_merge_summary *s
     }
     if (st == RT_OK) {
         snprintf(path, sizeof path, "%s/calibrated-cutoffs.csv", o->out_dir);
-        st = write_calibrated_cutoffs(path, cal, err);
+        st = write_calibrated_cutoffs(path, cal, &s, err);
     }
     if (st == RT_OK) {
         snprintf(path, sizeof path, "%s/cohort.html", o->out_dir);

@@ -79,7 +79,6 @@ typedef struct header_ctx {
     long long file_bytes;
     int ns;
     bool is_bdf;
-    bool allow_no_records; /* a file just written: 0 data records are allowed */
     rt_error *err;
 } header_ctx;
 
@@ -332,7 +331,7 @@ static rt_status check_record_count(const header_ctx *c, rt_edf_layout *layout)
         return fail_main(c, F_RECORDS, EDF_INTEGER_FORM);
     if (layout->n_records == -1)
         return fail_main(c, F_RECORDS, "record count unknown (-1: the recording was not closed properly)");
-    if (layout->n_records < (c->allow_no_records ? 0 : 1))
+    if (layout->n_records < 1)
         return fail_main(c, F_RECORDS, "the file must hold at least one data record");
     return RT_OK;
 }
@@ -561,10 +560,9 @@ static rt_status check_open_file(header_ctx *c, FILE *f, rt_edf_layout *layout)
     return check_file_size(c, layout);
 }
 
-static rt_status header_check(header_ctx c, rt_edf_layout *layout)
+rt_status rt_edf_header_check(const char *path, rt_edf_layout *layout, rt_error *err)
 {
-    const char *path = c.path;
-    rt_error *err = c.err;
+    header_ctx c = {.path = path, .err = err};
     FILE *f = NULL;
     rt_status s = open_regular(path, &f, &c.file_bytes, err);
     if (s != RT_OK)
@@ -579,14 +577,4 @@ static rt_status header_check(header_ctx c, rt_edf_layout *layout)
     free(c.bytes);
     fclose(f);
     return s;
-}
-
-rt_status rt_edf_header_check(const char *path, rt_edf_layout *layout, rt_error *err)
-{
-    return header_check((header_ctx){.path = path, .err = err}, layout);
-}
-
-rt_status rt_edf_header_check_written(const char *path, rt_edf_layout *layout, rt_error *err)
-{
-    return header_check((header_ctx){.path = path, .err = err, .allow_no_records = true}, layout);
 }

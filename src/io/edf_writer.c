@@ -172,14 +172,16 @@ rt_status rt_edf_writer_record(rt_edf_writer *w, const double *const *samples, r
 }
 
 /* EDFlib ignores failed writes and a failed close, so the file is read back:
- * it must pass the header checks with exactly the size its header gives. */
+ * it must pass the header checks remtone makes on every recording it reads
+ * (so every file written is one remtone can open: at least one data record)
+ * with exactly the size its header gives. */
 static rt_status check_written(const rt_edf_writer *w, rt_error *err)
 {
     rt_edf_layout *layout = rt_calloc(1, sizeof *layout);
     if (!layout)
         return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", w->out.path);
     rt_error inner;
-    rt_status s = rt_edf_header_check_written(w->edf_path, layout, &inner);
+    rt_status s = rt_edf_header_check(w->edf_path, layout, &inner);
     long long end = layout->header_bytes + layout->n_records * layout->record_bytes;
     if (s != RT_OK)
         s = rt_fail(err, RT_ERR_IO, "%s: cannot write output: the file EDFlib wrote is incomplete (%s)",
