@@ -4,42 +4,7 @@
 # outputs over inputs and over each other; channel labels that differ only in
 # case or repeat; implausible physical ranges; indices over empty
 # denominators. Recordings are written here with tests/malformed/edf_writer.py.
-set -u
-bin=${REMTONE_BIN:?}
-src=${REMTONE_SOURCE:?}
-py=/usr/bin/python3
-work="${REMTONE_TMP:-/tmp}/hostile"
-rm -rf "$work" && mkdir -p "$work"
-cd "$work" || exit 1
-fails=0
-ok() { echo "ok   $1"; }
-bad() { echo "FAIL $1"; fails=$((fails+1)); }
-expect() { # expect NAME EXIT CMD... (stdout in $work/out, stderr in $work/err)
-  local name=$1 want=$2; shift 2
-  "$@" >"$work/out" 2>"$work/err"; local got=$?
-  if [ "$got" = "$want" ]; then ok "$name"; else bad "$name: exit $got, want $want"; sed 's/^/    /' "$work/err" | head -5; fi
-}
-has() { if grep -qF -- "$3" "$2"; then ok "$1"; else bad "$1: '$3' not in $2"; sed 's/^/    /' "$2" | head -3; fi; }
-hasnt() { if grep -qF -- "$3" "$2"; then bad "$1: '$3' in $2"; else ok "$1"; fi; }
-
-# edf NAME CHANNELS [ANNOTATIONS]: a 5-minute EDF+ of 1-s records; CHANNELS is a
-# Python list of (label, kind, physical range) with kind "live" (noise) or
-# "flat"; ANNOTATIONS a Python list of (onset_s, duration_s, bytes)
-edf() {
-  "$py" - "$src/tests/malformed" "$@" <<'PY'
-import random, sys
-sys.path.insert(0, sys.argv[1])
-import edf_writer as ew
-name, chans = sys.argv[2], eval(sys.argv[3])
-ann = eval(sys.argv[4]) if len(sys.argv) > 4 else [(0, None, b"Lights off")]
-rng = random.Random(7)
-noise = [rng.randint(-300, 300) for _ in range(4096)]
-def sig(label, kind, phys):
-    v = (lambda r, i: noise[(r * 256 + i) % 4096]) if kind == "live" else (lambda r, i: 0)
-    return ew.Signal(label, 256, phys=phys, value=v)
-open(name, "wb").write(ew.edf_bytes([sig(*c) for c in chans], 300, plus=True, annotations=ann))
-PY
-}
+. "${REMTONE_SOURCE:?}/tests/cli/checks.sh" hostile
 stages=$src/tests/malformed/good-stages.csv
 live='[("Chin1-Chin2", "live", (-500.0, 500.0))]'
 
@@ -114,5 +79,4 @@ assert chin["label"] == "Chin" and chin["rem_median_uv"] > 0, chin' dup.json
 expect chin-help 0 "$bin" score --help
 has chin-help-number "$work/out" "'#N'"
 
-echo "$fails failed"
-[ "$fails" = 0 ]
+finish

@@ -3,37 +3,14 @@
 # read back (docs/hardening.md, "Classes of hostile input"): the night JSON,
 # the mini-epoch audit table, the EDF+ annotation file, cohort.csv and the
 # calibrated cutoffs, each also in its empty case -- a night without REM, a
-# cohort of one group. Recordings are written with tests/malformed/edf_writer.py.
-set -u
-bin=${REMTONE_BIN:?}
-src=${REMTONE_SOURCE:?}
+# cohort of one group.
+. "${REMTONE_SOURCE:?}/tests/cli/checks.sh" roundtrip
 tools=${REMTONE_TOOLS:?}
-py=/usr/bin/python3
-work="${REMTONE_TMP:-/tmp}/roundtrip"
-rm -rf "$work" && mkdir -p "$work"
-cd "$work" || exit 1
-fails=0
-ok() { echo "ok   $1"; }
-bad() { echo "FAIL $1"; fails=$((fails+1)); }
-expect() { # expect NAME EXIT CMD... (stdout in $work/out, stderr in $work/err)
-  local name=$1 want=$2; shift 2
-  "$@" >"$work/out" 2>"$work/err"; local got=$?
-  if [ "$got" = "$want" ]; then ok "$name"; else bad "$name: exit $got, want $want"; sed 's/^/    /' "$work/err" | head -5; fi
-}
 
-# two 5-minute EDF+ nights, one chin channel of noise: a quiet one and one ten
+# two 5-minute nights, one chin channel of noise: a quiet one and one ten
 # times louder, so that a cohort of both has something to calibrate on
-"$py" - "$src/tests/malformed" <<'PY' || bad "write recordings"
-import random, sys
-sys.path.insert(0, sys.argv[1])
-import edf_writer as ew
-for name, seed, amp in (("quiet.edf", 7, 300), ("loud.edf", 8, 3000)):
-    rng = random.Random(seed)
-    noise = [rng.randint(-amp, amp) for _ in range(4096)]
-    chin = ew.Signal("Chin1-Chin2", 256, phys=(-500.0, 500.0),
-                     value=lambda r, i: noise[(r * 256 + i) % 4096])
-    open(name, "wb").write(ew.edf_bytes([chin], 300, plus=True, annotations=[(0, None, "Lights off")]))
-PY
+edf quiet.edf '[("Chin1-Chin2", "live", (-500.0, 500.0))]' || bad "write quiet.edf"
+edf loud.edf '[("Chin1-Chin2", "loud", (-500.0, 500.0))]' || bad "write loud.edf"
 stages=$src/tests/malformed/good-stages.csv
 printf 'start_s,duration_s,stage\n0,60,W\n60,240,N2\n' > stages-norem.csv
 
@@ -108,5 +85,4 @@ rows = list(csv.DictReader(open(sys.argv[1], encoding="utf-8", newline="")))
 assert [r["level"] for r in rows] == ["failed"], rows' none/cohort.csv
 [ -e none/calibrated-cutoffs.csv ] && bad "cohort-none-no-cutoffs" || ok cohort-none-no-cutoffs
 
-echo "$fails failed"
-[ "$fails" = 0 ]
+finish
