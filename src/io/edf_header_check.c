@@ -16,6 +16,7 @@
 #include <string.h>
 #include <sys/stat.h>
 
+#include "input.h"
 #include "internal.h"
 
 enum {
@@ -518,29 +519,6 @@ static rt_status read_exact(const header_ctx *c, FILE *f, long long offset, long
     return RT_OK;
 }
 
-static rt_status open_regular(const char *path, FILE **out, long long *size, rt_error *err)
-{
-    /* EDFlib seeks, so only a regular file will do; asking first also keeps
-     * a FIFO with no writer from blocking the open forever */
-    struct stat before;
-    if (stat(path, &before) == 0 && !S_ISREG(before.st_mode) && !S_ISDIR(before.st_mode))
-        return rt_fail(err, RT_ERR_IO, "%s: cannot open: not a regular file (a recording must be a "
-                       "file EDFlib can seek in)", path);
-    FILE *f = fopen(path, "rb");
-    if (!f)
-        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
-                       "%s: cannot open: %s", path, strerror(errno));
-    struct stat st;
-    if (fstat(fileno(f), &st) != 0 || S_ISDIR(st.st_mode)) {
-        int code = S_ISDIR(st.st_mode) ? EISDIR : errno;
-        fclose(f);
-        return rt_fail(err, RT_ERR_IO, "%s: cannot open: %s", path, strerror(code));
-    }
-    *out = f;
-    *size = (long long)st.st_size;
-    return RT_OK;
-}
-
 static rt_status check_open_file(header_ctx *c, FILE *f, rt_edf_layout *layout)
 {
     rt_status s;
@@ -564,7 +542,8 @@ rt_status rt_edf_header_check(const char *path, rt_edf_layout *layout, rt_error 
 {
     header_ctx c = {.path = path, .err = err};
     FILE *f = NULL;
-    rt_status s = open_regular(path, &f, &c.file_bytes, err);
+    /* EDFlib seeks, so only a regular file will do (src/common/input.h) */
+    rt_status s = rt_input_open(path, "recording", &f, &c.file_bytes, err);
     if (s != RT_OK)
         return s;
     c.bytes = rt_calloc((size_t)SIGNAL_BYTES * (MAX_SIGNALS + 1), 1);

@@ -9,8 +9,8 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
-#include <sys/stat.h>
 
+#include "input.h"
 #include "internal.h"
 #include "remtone/roles.h"
 #include "remtone/timeline.h"
@@ -313,22 +313,21 @@ typedef enum staging_format { FORMAT_CSV, FORMAT_EDF, FORMAT_XML } staging_forma
 
 static rt_status sniff_format(const char *path, staging_format *format, rt_error *err)
 {
-    struct stat st;
-    if (stat(path, &st) != 0)
-        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
-                       "%s: cannot open: %s", path, strerror(errno));
-    if (S_ISDIR(st.st_mode))
-        return rt_fail(err, RT_ERR_IO, "%s: is a directory, not a staging file", path);
-    FILE *f = fopen(path, "rb");
-    if (!f)
-        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
-                       "%s: cannot open: %s", path, strerror(errno));
+    FILE *f = NULL;
+    long long size = 0;
+    rt_status st = rt_input_open(path, "staging file", &f, &size, err);
+    if (st != RT_OK)
+        return st;
     unsigned char head[256];
     size_t n = fread(head, 1, sizeof head, f);
-    int read_error = ferror(f);
+    int read_error = ferror(f), code = errno;
     fclose(f);
     if (read_error)
-        return rt_fail(err, RT_ERR_IO, "%s: cannot read", path);
+        return rt_fail(err, rt_errno_status(code, RT_ERR_IO), "%s: cannot read: %s", path,
+                       strerror(code));
+    const char *foreign = rt_input_foreign_encoding(head, n);
+    if (foreign)
+        return rt_fail(err, RT_ERR_STAGING, RT_INPUT_FOREIGN_MESSAGE, path, foreign);
     if (n >= 8 && (memcmp(head, "0       ", 8) == 0 || memcmp(head, "\xff" "BIOSEMI", 8) == 0)) {
         *format = FORMAT_EDF;
         return RT_OK;

@@ -3,7 +3,7 @@
 # hostile input"): text that is not UTF-8 on its way to JSON, CSV and HTML;
 # outputs over inputs and over each other; channel labels that differ only in
 # case or repeat; implausible physical ranges; indices over empty
-# denominators. Recordings are written here with tests/malformed/edf_writer.py.
+# denominators; inputs that are pipes. Recordings are written here with tests/malformed/edf_writer.py.
 . "${REMTONE_SOURCE:?}/tests/cli/checks.sh" hostile
 stages=$src/tests/malformed/good-stages.csv
 live='[("Chin1-Chin2", "live", (-500.0, 500.0))]'
@@ -78,5 +78,25 @@ chin = [x for x in c if x["role"] == "chin"][0]
 assert chin["label"] == "Chin" and chin["rem_median_uv"] > 0, chin' dup.json
 expect chin-help 0 "$bin" score --help
 has chin-help-number "$work/out" "'#N'"
+
+# ---- 5. an input that is not a regular file (a pipe: bash process substitution)
+# is refused, never read as empty, and never digested as something nobody read
+expect pipe-stages 3 "$bin" score good.edf --stages <(cat "$stages") --quiet
+has pipe-stages-says "$work/err" "not a regular file (a pipe, process substitution or device)"
+has pipe-stages-advice "$work/err" "save it to a file first"
+hasnt pipe-stages-not-empty "$work/err" "empty"
+printf 'start_s,duration_s,type\n200,10,arousal\n' > events.csv
+expect pipe-events 3 "$bin" score good.edf --stages "$stages" --events <(cat events.csv) --quiet --json pipe.json
+has pipe-events-says "$work/err" "not a regular file"
+[ -e pipe.json ] && bad "pipe-events: pipe.json written" || ok pipe-events-nothing-written
+expect pipe-cutoffs 3 "$bin" score good.edf --stages "$stages" --cutoffs <(printf 'index,cutoff\nrai,0.8\n') --quiet
+expect pipe-manifest 3 "$bin" cohort <(cat c/manifest.csv) --out pipe-out --jobs 1
+# the same inputs as files: the provenance describes exactly the bytes given
+expect file-events 0 "$bin" score good.edf --stages "$stages" --events events.csv --quiet --json file.json
+expect file-provenance 0 "$py" -c '
+import json, os, sys
+p = json.load(open(sys.argv[1]))["provenance"]["inputs"]
+for key, path in (("stages", sys.argv[2]), ("events", sys.argv[3])):
+    assert p[key]["bytes"] == os.path.getsize(path) > 0, (key, p[key])' file.json "$stages" events.csv
 
 finish

@@ -79,6 +79,15 @@ def main(out):
         "broken-tals.edf": broken_tals(g, ns, record_bytes),
         "bdf-digital-range.edf": ew.edf_bytes([ew.Signal("Chin", 4, dig=(-9000000, 8388607))], 2, bdf=True),
     }
+    # text in UTF-16 or UTF-32, as some editors save it: refused by name
+    # (byte-order marks: The Unicode Standard, section 23.8)
+    stages = open(os.path.join(HERE, "good-stages.csv"), encoding="utf-8").read()
+    xml = open(os.path.join(HERE, "xml-good.xml"), encoding="utf-8").read()
+    files["staging-utf16.csv"] = stages.encode("utf-16")          # BOM, then UTF-16LE
+    files["staging-utf16be.csv"] = b"\xfe\xff" + stages.encode("utf-16-be")
+    files["staging-utf16-no-bom.csv"] = stages.encode("utf-16-le")
+    files["staging-utf16.xml"] = xml.replace('encoding="UTF-8"', 'encoding="UTF-16"').encode("utf-16")
+    files["events-utf32.csv"] = "start_s,duration_s,type\n".encode("utf-32")
     for name, data in files.items():
         with open(os.path.join(out, name), "wb") as f:
             f.write(data)
