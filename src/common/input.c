@@ -2,6 +2,7 @@
 #include "input.h"
 
 #include <errno.h>
+#include <stdbool.h>
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
@@ -47,12 +48,22 @@ const char *rt_input_foreign_encoding(const unsigned char *s, size_t n)
         return "UTF-32";
     if (n >= 2 && ((s[0] == 0xFF && s[1] == 0xFE) || (s[0] == 0xFE && s[1] == 0xFF)))
         return "UTF-16";
-    /* no mark: ASCII text in UTF-32 or UTF-16 has NUL bytes beside each letter */
-    if (n >= 4 && s[0] && !s[1] && !s[2] && !s[3])
+    /* no mark: ASCII text in UTF-16 or UTF-32 has NUL bytes beside each
+     * letter; two letters of each (8 bytes) tell it from a file that merely
+     * holds NUL bytes */
+    if (n < 8)
+        return NULL;
+    bool le32 = true, be32 = true, le16 = true, be16 = true;
+    for (size_t i = 0; i < 8; i++) {
+        bool letter = s[i] != 0;
+        le32 &= letter == (i % 4 == 0);
+        be32 &= letter == (i % 4 == 3);
+        le16 &= letter == (i % 2 == 0);
+        be16 &= letter == (i % 2 == 1);
+    }
+    if (le32 || be32)
         return "UTF-32";
-    if (n >= 4 && !s[0] && !s[1] && !s[2] && s[3])
-        return "UTF-32";
-    if (n >= 4 && ((s[0] && !s[1] && s[2] && !s[3]) || (!s[0] && s[1] && !s[2] && s[3])))
+    if (le16 || be16)
         return "UTF-16";
     return NULL;
 }
