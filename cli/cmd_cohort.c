@@ -1,8 +1,11 @@
 /* remtone cohort MANIFEST --out DIR: score a cohort in parallel, resumably,
  * and gather its table and calibration; remtone cohort-merge DIR: gather
  * only (after the parts of a Slurm array). docs/cohort.md. */
+#include <errno.h>
+#include <stdbool.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
 #include <unistd.h>
 
 #include "cli.h"
@@ -138,7 +141,7 @@ static int check_outputs(const cohort_config *c, const char *manifest_path, cons
     const char **inputs = calloc(n_inputs, sizeof *inputs);
     if (!inputs) {
         fprintf(stderr, "remtone %s: out of memory\n", c->cmd);
-        return EXIT_INTERNAL;
+        return EXIT_NOMEM;
     }
     inputs[0] = manifest_path;
     inputs[1] = c->o.cutoffs_path;
@@ -150,6 +153,36 @@ static int check_outputs(const cohort_config *c, const char *manifest_path, cons
     int rc = cli_check_outputs(c->cmd, outputs, N, inputs, n_inputs);
     free(inputs);
     return rc;
+}
+
+/* The inputs a run or a merge reads besides the manifest -- the cutoffs, and
+ * for a merge the results folder -- are read before anything is written, so
+ * that their failures carry the input exit codes (README.md, "Exit codes")
+ * and the library's remaining I/O failures are those of the output folder. */
+static int check_inputs(const cohort_config *c, bool merge)
+{
+    if (c->o.cutoffs_path) {
+        rt_error err;
+        rt_error_clear(&err);
+        rt_cutoffs cut;
+        rt_cutoffs_published(&cut);
+        rt_status st = rt_cutoffs_load(&cut, c->o.cutoffs_path, &err);
+        if (st != RT_OK)
+            return cli_report(st, &err, 0);
+    }
+    if (merge) {
+        char nights[4200];
+        snprintf(nights, sizeof nights, "%s/nights", c->o.out_dir);
+        struct stat sb;
+        int missing = stat(nights, &sb) != 0;
+        if (missing || !S_ISDIR(sb.st_mode)) {
+            int code = missing ? errno : ENOTDIR;
+            fprintf(stderr, "remtone %s: %s: cannot open: %s (no cohort results here)\n", c->cmd,
+                    nights, strerror(code));
+            return code == ENOMEM ? EXIT_NOMEM : EXIT_INPUT_IO;
+        }
+    }
+    return EXIT_OK;
 }
 
 static int merge_and_report(cohort_config *c)
@@ -197,7 +230,7 @@ static int run(int argc, char **argv)
     rt_status st = rt_manifest_load(pos[0], &m, &err);
     if (st != RT_OK)
         return cli_report(st, &err, 0);
-    if ((rc = check_outputs(&c, pos[0], m)) != EXIT_OK) {
+    if ((rc = check_outputs(&c, pos[0], m)) != EXIT_OK || (rc = check_inputs(&c, false)) != EXIT_OK) {
         rt_manifest_free(m);
         return rc;
     }
@@ -232,7 +265,7 @@ static int run_merge(int argc, char **argv)
     if (rc != EXIT_OK)
         return rc < 0 ? EXIT_OK : rc;
     c.o.out_dir = pos[0];
-    if ((rc = check_outputs(&c, NULL, NULL)) != EXIT_OK)
+    if ((rc = check_outputs(&c, NULL, NULL)) != EXIT_OK || (rc = check_inputs(&c, true)) != EXIT_OK)
         return rc;
     return merge_and_report(&c);
 }

@@ -75,6 +75,16 @@ static void reservation_codes(json_t *list, char *dst, size_t cap)
     }
 }
 
+bool cohort_result_usable(json_t *root)
+{
+    const char *schema = json_string_value(json_object_get(root, "schema"));
+    return schema && (strcmp(schema, "remtone-night/1") == 0 ||
+                      strcmp(schema, "remtone-night/2") == 0) &&
+           json_is_object(json_object_get(root, "rem")) &&
+           json_is_object(json_object_get(root, "review")) &&
+           json_is_object(json_object_get(root, "indices"));
+}
+
 static rt_status read_result(const char *dir, const char *id, cohort_row *row, bool *complete,
                              rt_error *err)
 {
@@ -98,8 +108,7 @@ static rt_status read_result(const char *dir, const char *id, cohort_row *row, b
     /* remtone-night/1 results (before reservations) are still read; their
      * reservations are unknown, not none */
     bool v1 = schema && strcmp(schema, "remtone-night/1") == 0;
-    if (!schema || (!v1 && strcmp(schema, "remtone-night/2") != 0) || !json_is_object(rem) ||
-        !json_is_object(review) || !json_is_object(indices)) {
+    if (!cohort_result_usable(root)) {
         json_decref(root);
         return rt_fail(err, RT_ERR_STAGING, "%s: not a remtone-night/2 (or /1) result", path);
     }
@@ -148,7 +157,8 @@ static rt_status read_nights(const char *dir, rows *r, rt_cohort_merge_summary *
 {
     DIR *d = opendir(dir);
     if (!d)
-        return rt_fail(err, RT_ERR_IO, "%s: cannot open: no cohort results here", dir);
+        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO), "%s: cannot open: %s (no cohort "
+                       "results here)", dir, strerror(errno));
     struct dirent *de;
     rt_status st = RT_OK;
     while (st == RT_OK && (de = readdir(d)) != NULL) {
@@ -173,9 +183,7 @@ static rt_status read_nights(const char *dir, rows *r, rt_cohort_merge_summary *
             /* a result written after the failure supersedes it */
             char other[COHORT_PATH_MAX];
             cohort_night_path(other, sizeof other, dir, id, ".key");
-            FILE *f = fopen(other, "rb");
-            if (f) {
-                fclose(f);
+            if (access(other, F_OK) == 0) {
                 r->n--;
                 continue;
             }
@@ -361,7 +369,9 @@ rt_status rt_cohort_merge(const rt_cohort_options *o, rt_cohort_merge_summary *s
     if (!o->out_dir || !o->out_dir[0])
         return rt_fail(err, RT_ERR_USAGE, "cohort merge: no output folder given");
     if (strlen(o->out_dir) > COHORT_PATH_MAX - RT_COHORT_ID_MAX - 64)
-        return rt_fail(err, RT_ERR_USAGE, "%s: output folder path too long", o->out_dir);
+        return rt_fail(err, RT_ERR_IO, "%.80s...: cannot write output: the folder's path is too "
+                       "long (%zu bytes, at most %d)", o->out_dir, strlen(o->out_dir),
+                       COHORT_PATH_MAX - RT_COHORT_ID_MAX - 64);
     const char *positive = o->positive ? o->positive : "case";
     const char *negative = o->negative ? o->negative : "control";
     if (strcmp(positive, negative) == 0)

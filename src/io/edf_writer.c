@@ -76,7 +76,8 @@ static rt_status private_temp(rt_edf_writer *w, rt_error *err)
     int fd = mkstemp(w->edf_path);
     if (fd < 0) {
         w->edf_path[0] = '\0';
-        return rt_fail(err, RT_ERR_IO, "%s: cannot create a temporary file for EDFlib: %s", w->out.path,
+        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
+                       "%s: cannot create a temporary file for EDFlib: %s", w->out.path,
                        strerror(errno));
     }
     close(fd);
@@ -202,7 +203,8 @@ static rt_status sync_file(const char *file, const char *path, rt_error *err)
         int code = errno;
         if (f)
             fclose(f);
-        return rt_fail(err, RT_ERR_IO, "%s: cannot write output: %s", path, strerror(code));
+        return rt_fail(err, rt_errno_status(code, RT_ERR_IO), "%s: cannot write output: %s", path,
+                       strerror(code));
     }
     fclose(f);
     return RT_OK;
@@ -230,7 +232,8 @@ static rt_status copy_to_destination(const rt_edf_writer *w, rt_error *err)
     if (in)
         fclose(in);
     if (failed)
-        return rt_fail(err, RT_ERR_IO, "%s: cannot write output: %s", w->out.path, strerror(code ? code : EIO));
+        return rt_fail(err, rt_errno_status(code, RT_ERR_IO), "%s: cannot write output: %s",
+                       w->out.path, strerror(code ? code : EIO));
     return RT_OK;
 }
 

@@ -99,4 +99,33 @@ p = json.load(open(sys.argv[1]))["provenance"]["inputs"]
 for key, path in (("stages", sys.argv[2]), ("events", sys.argv[3])):
     assert p[key]["bytes"] == os.path.getsize(path) > 0, (key, p[key])' file.json "$stages" events.csv
 
+# ---- 6. exit classes (README.md, "Exit codes"): output problems are 7, not usage (2)
+mkdir -p busy
+printf 'id,recording,stages,events,group\ngood,../good.edf,%s,,control\n' "$stages" > busy/m.csv
+if command -v flock >/dev/null; then
+  mkdir -p busy/out && : > busy/out/.run.lock
+  # another run holds the folder (flock(1), util-linux, takes the same lock)
+  expect cohort-folder-busy 7 flock busy/out/.run.lock "$bin" cohort busy/m.csv --out busy/out --jobs 1
+  has cohort-folder-busy-says "$work/err" "another cohort run is writing this folder"
+else
+  echo "skip cohort-folder-busy: no flock(1) here"
+fi
+long=$(printf 'x%.0s' $(seq 1 4100))
+expect output-path-too-long 7 "$bin" score good.edf --stages "$stages" --quiet --json "$long.json"
+has output-path-too-long-says "$work/err" "the path is too long"
+expect cohort-out-too-long 7 "$bin" cohort busy/m.csv --out "busy/${long:0:4000}" --jobs 1
+has cohort-out-too-long-says "$work/err" "the folder's path is too long"
+expect merge-no-results 3 "$bin" cohort-merge busy/none
+has merge-no-results-says "$work/err" "no cohort results here"
+expect cohort-cutoffs-missing 3 "$bin" cohort busy/m.csv --out busy/o2 --cutoffs busy/none.csv --jobs 1
+[ -e busy/o2 ] && bad "cohort-cutoffs-missing: busy/o2 made" || ok cohort-cutoffs-missing-nothing-made
+# a damaged result is rescored on the next run, never taken as current
+expect cohort-first 0 "$bin" cohort busy/m.csv --out busy/r --jobs 1
+head -c 200 busy/r/nights/good.json > cut && mv cut busy/r/nights/good.json
+expect cohort-damaged-rescored 0 "$bin" cohort busy/m.csv --out busy/r --jobs 1
+has cohort-damaged-rescored-counts "$work/out" "1 nights: 1 scored, 0 already current, 0 failed"
+expect cohort-damaged-result-whole 0 "$py" -c '
+import json, sys
+assert json.load(open(sys.argv[1]))["schema"] == "remtone-night/2"' busy/r/nights/good.json
+
 finish
