@@ -288,11 +288,15 @@ static rt_status run_workers(runner *r, int n_workers, rt_error *err)
     int started = 0;
     const rt_cohort_options *o = r->shared.options;
     double t0 = now_s();
+    int code = 0;
     for (; started < n_workers; started++)
-        if (pthread_create(&threads[started], NULL, worker, r) != 0)
+        if ((code = pthread_create(&threads[started], NULL, worker, r)) != 0)
             break;
+    /* EAGAIN: the system lacks the memory (a stack) or the threads for one */
     if (started == 0)
-        return rt_fail(err, RT_ERR_INTERNAL, "cohort: cannot start a worker thread");
+        return rt_fail(err, code == EAGAIN || code == ENOMEM ? RT_ERR_NOMEM : RT_ERR_INTERNAL,
+                       "%s: cannot start a worker thread: %s%s", o->out_dir, strerror(code),
+                       code == EAGAIN ? " (out of memory or threads)" : "");
     double interval = o->progress_interval_s > 0.01 ? o->progress_interval_s : 0.5;
     pthread_mutex_lock(&r->lock);
     while (r->progress.done < r->n_jobs) {

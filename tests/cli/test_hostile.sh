@@ -128,4 +128,33 @@ expect cohort-damaged-result-whole 0 "$py" -c '
 import json, sys
 assert json.load(open(sys.argv[1]))["schema"] == "remtone-night/2"' busy/r/nights/good.json
 
+# ---- 7. a cohort short of address space ends as out of memory (exit 8 with a
+# message, nothing but the lock file left) or records the night as failed with
+# exit code 8; never an abort (FFTW's allocator asserted: exit 134) or exit 9.
+# The limits sweep the places memory runs out: loading, threads, FFTW, scoring.
+# AddressSanitizer reserves terabytes of address space at start, so the sweep
+# runs in the ordinary build only.
+limits="40000 45000 50000 55000 60000 65000 70000 80000 100000"
+if ldd "$bin" 2>/dev/null | grep -q libasan; then
+  echo "skip cohort-ulimit-*: AddressSanitizer cannot start under a low ulimit -v"; limits=
+else
+  expect synth-low-memory 0 "$bin" synth --profile rbd --hours 1 --seed 5 --out lowmem
+  printf 'id,recording,stages,events,group\nn,night.edf,stages.csv,,case\n' > lowmem/m.csv
+fi
+for limit in $limits; do
+  rm -rf lowmem/out
+  (ulimit -v $limit; exec "$bin" cohort lowmem/m.csv --out lowmem/out --jobs 2 --threads 2) \
+    >"$work/out" 2>"$work/err"
+  rc=$?
+  name="cohort-ulimit-$limit"
+  case $rc in
+    0) if [ -e lowmem/out/nights/n.json ] || grep -q '"exit_code": 8' lowmem/out/nights/n.error.json 2>/dev/null
+       then ok "$name (exit 0)"; else bad "$name: exit 0 without a result or an exit-8 error record"; fi ;;
+    8) if grep -q "out of memory" "$work/err" && [ -z "$(find lowmem/out -type f ! -name .run.lock 2>/dev/null)" ]
+       then ok "$name (exit 8)"; else bad "$name: exit 8 without the message, or files left"; fi ;;
+    127) echo "skip $name: the program cannot even load within $limit KiB" ;;
+    *) bad "$name: exit $rc"; sed 's/^/    /' "$work/err" | head -3 ;;
+  esac
+done
+
 finish
