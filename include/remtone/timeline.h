@@ -50,6 +50,8 @@ typedef struct rt_event {
     rt_event_type type;
     signed char role;    /* rt_role of the one channel the event concerns (roles.h),
                             -1 = the whole recording (the default) */
+    char place[96];      /* where it was read ("events.csv line 3"), for messages; a
+                            longer place keeps its end, after "..." */
 } rt_event;
 
 /* One mini-epoch of a manual RSWA scoring (from an XML scoring file), used
@@ -79,6 +81,8 @@ typedef struct rt_timeline {
     double last_run_start_s;
     double last_run_end_s;
     long last_run_line;
+    char last_run_place[256]; /* the latest run's place ("stages.csv line 9"), as
+                                 rt_event.place: messages about the staging name it */
 } rt_timeline;
 
 /* Short stage name: "?", "W", "N1", "N2", "N3", "R", "MT". */
