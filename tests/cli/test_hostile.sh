@@ -159,4 +159,43 @@ for limit in $limits; do
   esac
 done
 
+# ---- 8. EMG sampled outside the rates remtone scores (200 to 65536 Hz) is
+# refused naming the file, the channel and the range, never met by a
+# band-pass message the user cannot act on; both ends are scored
+"$py" - "$src/tests/malformed" <<'PY' || bad "write rate recordings"
+import random, sys
+sys.path.insert(0, sys.argv[1])
+import edf_writer as ew
+rng = random.Random(7)
+noise = [rng.randint(-300, 300) for _ in range(4096)]
+for rate in (199, 200, 65536, 65537):   # samples in each 1-s record
+    chin = ew.Signal("Chin1-Chin2", rate, phys=(-500.0, 500.0), value=lambda r, i: noise[(r * 7 + i) % 4096])
+    open("rate-%d.edf" % rate, "wb").write(ew.edf_bytes([chin], 60, plus=True, annotations=[(0, None, "Lights off")]))
+PY
+printf 'start_s,duration_s,stage\n0,30,W\n30,30,R\n' > stages-60s.csv
+for rate in 199 65537; do
+  expect "rate-$rate-refused" 6 "$bin" score "rate-$rate.edf" --stages stages-60s.csv --quiet
+  has "rate-$rate-says" "$work/err" "rate-$rate.edf: channel \"Chin1-Chin2\" (chin, signal 1) is sampled at $rate Hz; remtone scores EMG sampled at 200 to 65536 Hz"
+done
+for rate in 200 65536; do
+  expect "rate-$rate-scored" 0 "$bin" score "rate-$rate.edf" --stages stages-60s.csv --quiet
+done
+rm -f rate-*.edf
+# scan reads in chunks of at most 2^21 samples, so 5.5 minutes at 65536 Hz
+# scan within 200 MB of address space (5-minute chunks had needed 620 MB:
+# exit 8); the ordinary build only, as in section 7
+if [ -n "$limits" ]; then
+  "$py" - "$src/tests/malformed" <<'PY' || bad "write scan-65536.edf"
+import random, sys
+sys.path.insert(0, sys.argv[1])
+import edf_writer as ew
+rng = random.Random(7)
+noise = [rng.randint(-300, 300) for _ in range(4096)]
+chin = ew.Signal("Chin1-Chin2", 65536, phys=(-500.0, 500.0), value=lambda r, i: noise[(r * 7 + i) % 4096])
+open("scan-65536.edf", "wb").write(ew.edf_bytes([chin], 330, plus=True, annotations=[(0, None, "Lights off")]))
+PY
+  expect scan-memory-bounded 0 bash -c 'ulimit -v 200000; exec "$0" scan scan-65536.edf' "$bin"
+  rm -f scan-65536.edf
+fi
+
 finish
