@@ -2,6 +2,7 @@
  * and gather its table and calibration; remtone cohort-merge DIR: gather
  * only (after the parts of a Slurm array). docs/cohort.md. */
 #include <errno.h>
+#include <stdbool.h>
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
@@ -172,6 +173,36 @@ static int check_outputs(const cohort_config *c, const char *manifest_path, cons
     return rc;
 }
 
+/* The inputs a run or a merge reads besides the manifest -- the cutoffs, and
+ * for a merge the results folder -- are read before anything is written, so
+ * that their failures carry the input exit codes (README.md, "Exit codes")
+ * and the library's remaining I/O failures are those of the output folder. */
+static int check_inputs(const cohort_config *c, bool merge)
+{
+    if (c->o.cutoffs_path) {
+        rt_error err;
+        rt_error_clear(&err);
+        rt_cutoffs cut;
+        rt_cutoffs_published(&cut);
+        rt_status st = rt_cutoffs_load(&cut, c->o.cutoffs_path, &err);
+        if (st != RT_OK)
+            return cli_report(st, &err, 0);
+    }
+    if (merge) {
+        char nights[4200];
+        snprintf(nights, sizeof nights, "%s/nights", c->o.out_dir);
+        struct stat sb;
+        int missing = stat(nights, &sb) != 0;
+        if (missing || !S_ISDIR(sb.st_mode)) {
+            int code = missing ? errno : ENOTDIR;
+            fprintf(stderr, "remtone %s: %s: cannot open: %s (no cohort results here)\n", c->cmd,
+                    nights, strerror(code));
+            return code == ENOMEM ? EXIT_NOMEM : EXIT_INPUT_IO;
+        }
+    }
+    return EXIT_OK;
+}
+
 static int merge_and_report(cohort_config *c)
 {
     rt_error err;
@@ -190,6 +221,8 @@ static int merge_and_report(cohort_config *c)
     else
         printf("no calibration: it needs nights in both groups \"%s\" and \"%s\" "
                "(--positive, --negative)\n", c->o.positive, c->o.negative);
+    if (s.calibrated && s.calibrated_indices == 0)
+        printf("%s: no calibrated-cutoffs.csv: no index could be calibrated\n", c->o.out_dir);
     return EXIT_OK;
 }
 
@@ -218,7 +251,7 @@ static int run(int argc, char **argv)
     rt_status st = rt_manifest_load(pos[0], &m, &err);
     if (st != RT_OK)
         return cli_report(st, &err, 0);
-    if ((rc = check_outputs(&c, pos[0], m)) != EXIT_OK) {
+    if ((rc = check_outputs(&c, pos[0], m)) != EXIT_OK || (rc = check_inputs(&c, false)) != EXIT_OK) {
         rt_manifest_free(m);
         return rc;
     }
@@ -253,22 +286,7 @@ static int run_merge(int argc, char **argv)
     if (rc != EXIT_OK)
         return rc < 0 ? EXIT_OK : rc;
     c.o.out_dir = pos[0];
-    /* DIR is the merge's input before it is an output: a missing folder is an
-     * input that cannot be read (exit 3), not an output that cannot be written */
-    char nights[4200];
-    snprintf(nights, sizeof nights, "%s/nights", pos[0]);
-    struct stat st;
-    if (stat(pos[0], &st) != 0 || !S_ISDIR(st.st_mode) || stat(nights, &st) != 0 ||
-        !S_ISDIR(st.st_mode)) {
-        int e = errno;
-        fprintf(stderr, "remtone cohort-merge: %s: %s\n", pos[0],
-                stat(pos[0], &st) != 0 ? strerror(e)
-                : !S_ISDIR(st.st_mode) ? "not a folder"
-                                       : "no nights/ folder here: not the output folder of a "
-                                         "remtone cohort run");
-        return EXIT_INPUT_IO;
-    }
-    if ((rc = check_outputs(&c, NULL, NULL)) != EXIT_OK)
+    if ((rc = check_outputs(&c, NULL, NULL)) != EXIT_OK || (rc = check_inputs(&c, true)) != EXIT_OK)
         return rc;
     return merge_and_report(&c);
 }

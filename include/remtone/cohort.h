@@ -160,6 +160,9 @@ typedef struct rt_cohort_merge_summary {
     size_t subjects;      /* subjects named in the manifest (subjects.csv rows) */
     bool calibrated;      /* false when a group had no scored night: calibration.csv and
                              calibrated-cutoffs.csv were then left as they were */
+    size_t calibrated_indices; /* indices with a calibrated (Youden) cutoff; 0: no
+                                  calibrated-cutoffs.csv (an earlier one is removed, since
+                                  a cutoff file listing no index is one --cutoffs refuses) */
 } rt_cohort_merge_summary;
 
 /* Rebuilds OUT/cohort.csv, OUT/calibration.csv, OUT/calibrated-cutoffs.csv and

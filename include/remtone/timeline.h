@@ -53,6 +53,8 @@ typedef struct rt_event {
     rt_event_type type;
     signed char role;    /* rt_role of the one channel the event concerns (roles.h),
                             -1 = the whole recording (the default) */
+    char place[96];      /* where it was read ("events.csv line 3"), for messages; a
+                            longer place keeps its end, after "..." */
 } rt_event;
 
 /* One mini-epoch of a manual RSWA scoring (from an XML scoring file), used
@@ -260,6 +262,10 @@ rt_status rt_timeline_write_xml(const rt_timeline *tl, const char *path, rt_erro
  * end), must not be empty, and events must lie inside the recording (within
  * 1e-6 s). Returns RT_ERR_STAGING, or RT_ERR_USAGE for a bad recording_s. */
 rt_status rt_timeline_check(const rt_timeline *tl, double recording_s, rt_error *err);
+
+/* Where the latest stage run came from ("stages.csv line 9", a scoring file's
+ * line), for messages about the staging; "" when no run was added. */
+const char *rt_timeline_staging_place(const rt_timeline *tl);
 
 #ifdef __cplusplus
 }

@@ -3,6 +3,8 @@
 #ifndef REMTONE_COHORT_INTERNAL_H
 #define REMTONE_COHORT_INTERNAL_H
 
+#include <jansson.h>
+#include <stdbool.h>
 #include <stddef.h>
 #include <stdio.h>
 
@@ -38,6 +40,12 @@ int cohort_night_path(char *dst, size_t cap, const char *nights_dir, const char 
 
 
 /* ---- merge ---- */
+
+/* True when root is a night result the merge can read: schema
+ * remtone-night/2 (or /1) with the objects "rem", "review" and "indices".
+ * A run rescores a night whose stored result is not one (a file cut short or
+ * damaged), whatever its key says. */
+bool cohort_result_usable(json_t *root);
 
 /* One row of cohort.csv, read back from a night's files. */
 typedef struct cohort_row {

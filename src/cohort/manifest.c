@@ -77,14 +77,16 @@ static rt_status resolve(rt_table *t, loader *l, const char *id, const char *wha
         snprintf(path, need, "%s/%s", l->dir, value);
     struct stat sb;
     const char *why = NULL;
+    int code = 0; /* errno of a failed stat: ENOMEM is out of memory, not a missing file */
     if (stat(path, &sb) != 0)
-        why = strerror(errno);
+        why = strerror(code = errno);
     else if (!S_ISREG(sb.st_mode))
         why = "not a regular file";
     if (why) {
         char q[RT_TABLE_QUOTE_MAX + 8];
         rt_table_quote(q, sizeof q, value);
-        rt_status st = rt_fail(&t->error, RT_ERR_IO, "%s line %ld (night %s): %s '%s' (%s): %s",
+        rt_status st = rt_fail(&t->error, rt_errno_status(code, RT_ERR_IO),
+                               "%s line %ld (night %s): %s '%s' (%s): %s",
                                t->path, t->row_line, id, what, q, path, why);
         rt_table_fail(t, st);
         free(path);

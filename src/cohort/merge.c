@@ -8,12 +8,14 @@
 #include "cohort_internal.h"
 
 #include <dirent.h>
+#include <errno.h>
 #include <jansson.h>
 #include <unistd.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <unistd.h>
 
 #include "internal.h"
 #include "output.h"
@@ -110,6 +112,17 @@ static void copy_label(cohort_row *row, json_t *from)
     rt_copy_string(row->visit, sizeof row->visit, v ? v : "");
 }
 
+bool cohort_result_usable(json_t *root)
+{
+    const char *schema = json_string_value(json_object_get(root, "schema"));
+    return schema && (strcmp(schema, "remtone-night/1") == 0 ||
+                      strcmp(schema, "remtone-night/2") == 0 ||
+                      strcmp(schema, "remtone-night/3") == 0) &&
+           json_is_object(json_object_get(root, "rem")) &&
+           json_is_object(json_object_get(root, "review")) &&
+           json_is_object(json_object_get(root, "indices"));
+}
+
 static rt_status read_result(const char *dir, const char *id, cohort_row *row, bool *complete,
                              rt_error *err)
 {
@@ -132,11 +145,7 @@ static rt_status read_result(const char *dir, const char *id, cohort_row *row, b
     /* remtone-night/1 results (before reservations) are still read; their
      * reservations are unknown, not none */
     bool v1 = schema && strcmp(schema, "remtone-night/1") == 0;
-    /* /3 adds fields to /2 and renames none of those read here */
-    bool v23 = schema && (strcmp(schema, "remtone-night/2") == 0 ||
-                          strcmp(schema, "remtone-night/3") == 0);
-    if (!schema || (!v1 && !v23) || !json_is_object(rem) || !json_is_object(review) ||
-        !json_is_object(indices)) {
+    if (!cohort_result_usable(root)) {
         json_decref(root);
         return rt_fail(err, RT_ERR_STAGING, "%s: not a remtone-night/3 (or /2, /1) result", path);
     }
@@ -195,7 +204,8 @@ static rt_status read_nights(const char *dir, rows *r, rt_cohort_merge_summary *
 {
     DIR *d = opendir(dir);
     if (!d)
-        return rt_fail(err, RT_ERR_IO, "%s: cannot open: no cohort results here", dir);
+        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO), "%s: cannot open: %s (no cohort "
+                       "results here)", dir, strerror(errno));
     struct dirent *de;
     rt_status st = RT_OK;
     while (st == RT_OK && (de = readdir(d)) != NULL) {
@@ -220,9 +230,7 @@ static rt_status read_nights(const char *dir, rows *r, rt_cohort_merge_summary *
             /* a result written after the failure supersedes it */
             char other[COHORT_PATH_MAX];
             cohort_night_path(other, sizeof other, dir, id, ".key");
-            FILE *f = fopen(other, "rb");
-            if (f) {
-                fclose(f);
+            if (access(other, F_OK) == 0) {
                 r->n--;
                 continue;
             }
@@ -445,10 +453,21 @@ static rt_status write_calibration(const char *path, const cohort_calibration *c
 }
 
 /* The format rt_cutoffs_load reads; indices without a Youden cutoff are left
- * out and so keep their published cutoff. */
+ * out and so keep their published cutoff. Without any (one group, too few
+ * nights) there is no file -- rt_cutoffs_load refuses one listing no index,
+ * and every file remtone writes must be one it reads -- and an earlier
+ * merge's file, calibrated on other results, is removed. */
 static rt_status write_calibrated_cutoffs(const char *path, const cohort_calibration *cal,
-                                          rt_error *err)
+                                          rt_cohort_merge_summary *s, rt_error *err)
 {
+    for (int i = 0; i < RT_IX_COUNT; i++)
+        s->calibrated_indices += isfinite(cal->roc[i].youden_cutoff) != 0;
+    if (s->calibrated_indices == 0) {
+        if (unlink(path) != 0 && errno != ENOENT)
+            return rt_fail(err, RT_ERR_IO, "%s: cannot remove the previous calibration: %s", path,
+                           strerror(errno));
+        return RT_OK;
+    }
     rt_output o;
     rt_status st = rt_output_begin(&o, path, 1, err);
     if (st != RT_OK)
@@ -469,7 +488,9 @@ rt_status rt_cohort_merge(const rt_cohort_options *o, rt_cohort_merge_summary *s
     if (!o->out_dir || !o->out_dir[0])
         return rt_fail(err, RT_ERR_USAGE, "cohort merge: no output folder given");
     if (strlen(o->out_dir) > COHORT_PATH_MAX - RT_COHORT_ID_MAX - 64)
-        return rt_fail(err, RT_ERR_USAGE, "%s: output folder path too long", o->out_dir);
+        return rt_fail(err, RT_ERR_IO, "%.80s...: cannot write output: the folder's path is too "
+                       "long (%zu bytes, at most %d)", o->out_dir, strlen(o->out_dir),
+                       COHORT_PATH_MAX - RT_COHORT_ID_MAX - 64);
     const char *positive = o->positive ? o->positive : "case";
     const char *negative = o->negative ? o->negative : "control";
     if (strcmp(positive, negative) == 0)
@@ -510,7 +531,7 @@ rt_status rt_cohort_merge(const rt_cohort_options *o, rt_cohort_merge_summary *s
     }
     if (st == RT_OK && cal->computed) {
         snprintf(path, sizeof path, "%s/calibrated-cutoffs.csv", o->out_dir);
-        st = write_calibrated_cutoffs(path, cal, err);
+        st = write_calibrated_cutoffs(path, cal, &s, err);
     }
     if (st == RT_OK) {
         snprintf(path, sizeof path, "%s/cohort.html", o->out_dir);

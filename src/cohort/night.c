@@ -140,13 +140,17 @@ static json_t *key_json(const rt_manifest_entry *e, json_t *identity)
     return rt_json_done(k, ok);
 }
 
-/* A current result: its key exists, names this night and holds the same
- * identity. A changed group, subject or visit alone rewrites the key without
- * rescoring. */
+/* A current result: it parses as a night result (cohort_result_usable: a
+ * file cut short or damaged is rescored, never merged), its key exists, names
+ * this night and holds the same identity. A changed group, subject or visit
+ * alone rewrites the key without rescoring. */
 static bool result_current(const char *json_path, const char *key_path,
                            const rt_manifest_entry *e, json_t *identity)
 {
-    if (access(json_path, F_OK) != 0)
+    json_t *result = json_load_file(json_path, 0, NULL);
+    bool usable = result && cohort_result_usable(result);
+    json_decref(result);
+    if (!usable)
         return false;
     json_t *old = json_load_file(key_path, 0, NULL);
     if (!old)

@@ -207,8 +207,9 @@ static rt_status take_locks(const rt_cohort_options *o, int fds[2], rt_error *er
         return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
                        "%s: cannot create: %s", path, strerror(errno));
     if (flock(fds[0], (sliced ? LOCK_SH : LOCK_EX) | LOCK_NB) != 0)
-        return rt_fail(err, RT_ERR_USAGE, "%s: another cohort run is writing this folder%s",
-                       o->out_dir, sliced ? " (a whole run)" : "");
+        return rt_fail(err, RT_ERR_IO, "%s: cannot write output: another cohort run is writing "
+                       "this folder%s (%s is locked)", o->out_dir, sliced ? " (a whole run)" : "",
+                       path);
     if (!sliced)
         return RT_OK;
     snprintf(path, sizeof path, "%s/.part-%u-of-%u.lock", o->out_dir, o->part, o->part_count);
@@ -217,8 +218,8 @@ static rt_status take_locks(const rt_cohort_options *o, int fds[2], rt_error *er
         return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
                        "%s: cannot create: %s", path, strerror(errno));
     if (flock(fds[1], LOCK_EX | LOCK_NB) != 0)
-        return rt_fail(err, RT_ERR_USAGE, "%s: part %u of %u is already running", o->out_dir,
-                       o->part, o->part_count);
+        return rt_fail(err, RT_ERR_IO, "%s: cannot write output: part %u of %u is already "
+                       "running (%s is locked)", o->out_dir, o->part, o->part_count, path);
     return RT_OK;
 }
 
@@ -227,7 +228,9 @@ static rt_status check_options(const rt_cohort_options *o, rt_error *err)
     if (!o->out_dir || !o->out_dir[0])
         return rt_fail(err, RT_ERR_USAGE, "cohort: no output folder given");
     if (strlen(o->out_dir) > COHORT_PATH_MAX - RT_COHORT_ID_MAX - 64)
-        return rt_fail(err, RT_ERR_USAGE, "%s: output folder path too long", o->out_dir);
+        return rt_fail(err, RT_ERR_IO, "%.80s...: cannot write output: the folder's path is too "
+                       "long (%zu bytes, at most %d)", o->out_dir, strlen(o->out_dir),
+                       COHORT_PATH_MAX - RT_COHORT_ID_MAX - 64);
     if (o->jobs < 0 || o->jobs > MAX_JOBS)
         return rt_fail(err, RT_ERR_USAGE, "cohort: jobs must be 0 to %d, got %d", MAX_JOBS, o->jobs);
     if (o->threads < 0 || o->threads > MAX_JOBS)
@@ -293,11 +296,15 @@ static rt_status run_workers(runner *r, int n_workers, rt_error *err)
     int started = 0;
     const rt_cohort_options *o = r->shared.options;
     double t0 = now_s();
+    int code = 0;
     for (; started < n_workers; started++)
-        if (pthread_create(&threads[started], NULL, worker, r) != 0)
+        if ((code = pthread_create(&threads[started], NULL, worker, r)) != 0)
             break;
+    /* EAGAIN: the system lacks the memory (a stack) or the threads for one */
     if (started == 0)
-        return rt_fail(err, RT_ERR_INTERNAL, "cohort: cannot start a worker thread");
+        return rt_fail(err, code == EAGAIN || code == ENOMEM ? RT_ERR_NOMEM : RT_ERR_INTERNAL,
+                       "%s: cannot start a worker thread: %s%s", o->out_dir, strerror(code),
+                       code == EAGAIN ? " (out of memory or threads)" : "");
     double interval = o->progress_interval_s > 0.01 ? o->progress_interval_s : 0.5;
     pthread_mutex_lock(&r->lock);
     while (r->progress.done < r->n_jobs) {

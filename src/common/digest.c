@@ -7,14 +7,18 @@
 #include <string.h>
 #include <xxhash.h>
 
+#include "input.h"
 #include "internal.h"
 
 rt_status rt_file_digest(const char *path, long long *size_bytes, char hex[17], rt_error *err)
 {
-    FILE *f = fopen(path, "rb");
-    if (!f)
-        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
-                       "%s: cannot open: %s", path, strerror(errno));
+    /* a regular file only, as every reader opens it (input.h): the digest of a
+     * pipe would describe bytes nobody read */
+    FILE *f = NULL;
+    long long size = 0;
+    rt_status st = rt_input_open(path, "input", &f, &size, err);
+    if (st != RT_OK)
+        return st;
     XXH3_state_t *state = XXH3_createState();
     enum { CHUNK = 1 << 20 };
     unsigned char *buf = malloc(CHUNK);

@@ -35,7 +35,8 @@ rt_status rt_output_begin(rt_output *out, const char *path, int open_stream, rt_
         return RT_OK;
     }
     if (strlen(path) >= sizeof out->path)
-        return rt_fail(err, RT_ERR_USAGE, "%s: output path too long", path);
+        return rt_fail(err, RT_ERR_IO, "%.80s...: cannot write output: the path is too long (%zu "
+                       "bytes, at most %zu)", path, strlen(path), sizeof out->path - 1);
     rt_copy_string(out->path, sizeof out->path, path);
     struct stat st;
     if (stat(path, &st) == 0) {
@@ -101,8 +102,8 @@ rt_status rt_output_commit(rt_output *out, rt_error *err)
     }
     if (failed) {
         rt_output_abort(out);
-        return rt_fail(err, RT_ERR_IO, "%s: cannot write output: %s", out->path,
-                       strerror(saved ? saved : EIO));
+        return rt_fail(err, rt_errno_status(saved, RT_ERR_IO), "%s: cannot write output: %s",
+                       out->path, strerror(saved ? saved : EIO));
     }
     out->temp_path[0] = '\0';
     return RT_OK;
@@ -119,8 +120,8 @@ rt_status rt_output_write_all(const char *path, const char *bytes, size_t len, i
         (add_newline && fputc('\n', out.file) == EOF)) {
         int saved = errno;
         rt_output_abort(&out);
-        return rt_fail(err, RT_ERR_IO, "%s: cannot write %s: %s", path, what,
-                       strerror(saved ? saved : EIO));
+        return rt_fail(err, rt_errno_status(saved, RT_ERR_IO), "%s: cannot write %s: %s", path,
+                       what, strerror(saved ? saved : EIO));
     }
     return rt_output_commit(&out, err);
 }

@@ -1,6 +1,6 @@
 /* The CSV table reader behind every small table remtone reads (table.h).
- * It takes the whole file into memory (bounded at 64 MiB, so a wrong path to a
- * recording fails fast), insists on UTF-8 text, finds the delimiter from the
+ * It takes the whole file into memory (src/common/input.h: a regular file of at
+ * most 64 MiB, so a wrong path to a recording fails fast), insists on UTF-8 text, finds the delimiter from the
  * header line, and feeds libcsv one physical line at a time so every row
  * knows the line it started on. */
 #include "table.h"
@@ -12,10 +12,10 @@
 #include <string.h>
 #include <sys/stat.h>
 
+#include "input.h"
 #include "internal.h"
 #include "text.h"
 
-#define TABLE_MAX_BYTES (64L * 1024 * 1024)
 enum { FIELD_MAX_BYTES = 4096 }; /* no stage, time, path or label needs more */
 
 /* ---- reading the file ---- */
@@ -42,90 +42,26 @@ static long line_of_offset(const unsigned char *s, size_t off)
     return line;
 }
 
-/* stat() of an input, refusing a directory: "PATH: is a directory, not WHAT". */
-static rt_status stat_input(const char *path, const char *what, struct stat *st, rt_error *err)
+/* Reads path whole into *out (NUL-terminated, caller frees): a regular file
+ * of at most 64 MiB, not empty, not UTF-16 or UTF-32 (src/common/input.h),
+ * and valid UTF-8 without NUL bytes. */
+static rt_status read_text_file(const char *path, const char *what, unsigned char **out,
+                                size_t *out_len, rt_error *err)
 {
-    if (stat(path, st) != 0)
-        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
-                       "%s: cannot open: %s", path, strerror(errno));
-    if (S_ISDIR(st->st_mode))
-        return rt_fail(err, RT_ERR_IO, "%s: is a directory, not %s", path, what);
-    return RT_OK;
-}
-
-/* Reads path whole into *out (NUL-terminated, caller frees), after the checks
- * that turn a wrong path into a clear message. */
-static rt_status read_text_file(const char *path, unsigned char **out, size_t *out_len,
-                                rt_error *err)
-{
-    struct stat st;
-    rt_status status = stat_input(path, "a table", &st, err);
-    if (status != RT_OK)
-        return status;
-    if (S_ISREG(st.st_mode) && st.st_size > TABLE_MAX_BYTES)
-        return rt_fail(err, RT_ERR_STAGING, "%s: %lld bytes is larger than the %ld MiB allowed for a "
-                       "table; is this the right file?", path, (long long)st.st_size,
-                       TABLE_MAX_BYTES / (1024 * 1024));
-    FILE *f = fopen(path, "rb");
-    if (!f)
-        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
-                       "%s: cannot open: %s", path, strerror(errno));
-    size_t cap = S_ISREG(st.st_mode) ? (size_t)st.st_size + 1 : 65536;
-    unsigned char *buf = malloc(cap);
-    if (!buf) {
-        fclose(f);
-        return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", path);
-    }
+    unsigned char *buf = NULL;
     size_t len = 0;
-    for (;;) {
-        if (len + 1 >= cap) {
-            if (cap > (size_t)TABLE_MAX_BYTES / 2) {
-                free(buf);
-                fclose(f);
-                return rt_fail(err, RT_ERR_STAGING, "%s: larger than the %ld MiB allowed for a "
-                               "table; is this the right file?", path,
-                               TABLE_MAX_BYTES / (1024 * 1024));
-            }
-            unsigned char *grown = realloc(buf, cap * 2);
-            if (!grown) {
-                free(buf);
-                fclose(f);
-                return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", path);
-            }
-            buf = grown;
-            cap *= 2;
-        }
-        size_t got = fread(buf + len, 1, cap - 1 - len, f);
-        len += got;
-        if (got == 0)
-            break;
-    }
-    int read_error = ferror(f);
-    int saved_errno = errno;
-    fclose(f);
-    if (read_error) {
-        free(buf);
-        return rt_fail(err, RT_ERR_IO, "%s: cannot read: %s", path, strerror(saved_errno));
-    }
-    if (len > (size_t)TABLE_MAX_BYTES) {
-        free(buf);
-        return rt_fail(err, RT_ERR_STAGING, "%s: larger than the %ld MiB allowed for a table; is "
-                       "this the right file?", path, TABLE_MAX_BYTES / (1024 * 1024));
-    }
-    if (len == 0) {
-        free(buf);
-        return rt_fail(err, RT_ERR_STAGING, "%s: the file is empty", path);
-    }
+    rt_status st = rt_input_read_text(path, what, &buf, &len, err);
+    if (st != RT_OK)
+        return st;
     size_t bad = utf8_invalid_at(buf, len);
     if (bad < len) {
         long line = line_of_offset(buf, bad);
         unsigned int byte = buf[bad];
         free(buf);
         return rt_fail(err, RT_ERR_STAGING,
-                       "%s line %ld: not UTF-8 text (byte 0x%02x at offset %zu); a table must be "
-                       "plain text", path, line, byte, bad);
+                       "%s line %ld: not UTF-8 text (byte 0x%02x at offset %zu); a %s must be "
+                       "plain text", path, line, byte, bad, what);
     }
-    buf[len] = '\0';
     *out = buf;
     *out_len = len;
     return RT_OK;
@@ -301,7 +237,7 @@ rt_status rt_table_read(rt_table *r, rt_error *err)
 {
     unsigned char *buf = NULL;
     size_t len = 0;
-    rt_status st = read_text_file(r->path, &buf, &len, err);
+    rt_status st = read_text_file(r->path, r->what ? r->what : "table", &buf, &len, err);
     if (st != RT_OK)
         return st;
     size_t pos = 0;
@@ -381,20 +317,21 @@ bool rt_table_number(rt_table *r, const char *value, const char *name, double *o
 rt_status rt_input_sniff(const char *path, const char *what, rt_input_format *format,
                          rt_error *err)
 {
-    struct stat st;
-    rt_status status = stat_input(path, what, &st, err);
-    if (status != RT_OK)
-        return status;
-    FILE *f = fopen(path, "rb");
-    if (!f)
-        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
-                       "%s: cannot open: %s", path, strerror(errno));
+    FILE *f = NULL;
+    long long size = 0;
+    rt_status st = rt_input_open(path, what, &f, &size, err);
+    if (st != RT_OK)
+        return st;
     unsigned char head[256];
     size_t n = fread(head, 1, sizeof head, f);
-    int read_error = ferror(f);
+    int read_error = ferror(f), code = errno;
     fclose(f);
     if (read_error)
-        return rt_fail(err, RT_ERR_IO, "%s: cannot read", path);
+        return rt_fail(err, rt_errno_status(code, RT_ERR_IO), "%s: cannot read: %s", path,
+                       strerror(code));
+    const char *foreign = rt_input_foreign_encoding(head, n);
+    if (foreign)
+        return rt_fail(err, RT_ERR_STAGING, RT_INPUT_FOREIGN_MESSAGE, path, foreign);
     if (n >= 8 && (memcmp(head, "0       ", 8) == 0 || memcmp(head, "\xff" "BIOSEMI", 8) == 0)) {
         *format = RT_INPUT_EDF;
         return RT_OK;

@@ -59,8 +59,7 @@ void rt_table_quote(char *dst, size_t cap, const char *src);
 /* The format of an input file told by its first bytes: an EDF/BDF header
  * ("0       " or "\xffBIOSEMI" in the first 8 bytes), XML (first character
  * '<' after an optional BOM and white space), or else a CSV table. `what`
- * names the expected file in the message for a directory ("a staging
- * file"). RT_ERR_IO (or RT_ERR_NOMEM) when the file cannot be read. */
+ * names the expected file in messages ("staging file"), as rt_input_open. RT_ERR_IO (or RT_ERR_NOMEM) when the file cannot be read. */
 typedef enum rt_input_format { RT_INPUT_CSV = 0, RT_INPUT_EDF, RT_INPUT_XML } rt_input_format;
 rt_status rt_input_sniff(const char *path, const char *what, rt_input_format *format,
                          rt_error *err);

@@ -16,6 +16,7 @@
 #include <string.h>
 #include <sys/stat.h>
 
+#include "input.h"
 #include "internal.h"
 
 enum {
@@ -79,7 +80,6 @@ typedef struct header_ctx {
     long long file_bytes;
     int ns;
     bool is_bdf;
-    bool allow_no_records; /* a file just written: 0 data records are allowed */
     rt_error *err;
 } header_ctx;
 
@@ -134,7 +134,8 @@ static rt_status fail_signal(const header_ctx *c, int f, int k, const char *why)
                    c->path, k + 1, c->ns, label, SIGNAL_FIELDS[f].name, offset, shown, why);
 }
 
-/* A whole decimal integer, optional sign, nothing else. */
+/* A whole decimal integer, optional sign, nothing else ("0x10" and "1e3"
+ * stop strtoll base 10 early and so are refused). */
 static int parse_integer(const char *s, long long *out)
 {
     const char *p = s;
@@ -165,11 +166,39 @@ static int signal_integer(const header_ctx *c, int f, int k, long long *out)
     return parse_integer(text, out);
 }
 
+/* A number as the EDF specification writes it (Kemp et al. 1992: numbers are
+ * plain ASCII; EDF+, Kemp & Olivan 2003, section 2.1.3: digits with an
+ * optional sign and decimal point): [+-]digits[.digits] or [+-].digits,
+ * nothing else. strtod alone would also take "1e-9", "0x10", "0x1p0", "inf"
+ * and "nan", which EDFlib refuses with a generic error -- or worse, reads
+ * otherwise. */
+static int parse_edf_number(const char *s, double *out)
+{
+    const char *p = s;
+    if (*p == '+' || *p == '-')
+        p++;
+    size_t digits = 0;
+    while (isdigit((unsigned char)*p))
+        p++, digits++;
+    if (*p == '.')
+        for (p++; isdigit((unsigned char)*p); p++)
+            digits++;
+    if (digits == 0 || *p != '\0')
+        return -1;
+    return rt_parse_double(s, out);
+}
+
+/* What a number field must look like, for messages. */
+#define EDF_NUMBER_FORM "not a plain decimal number (EDF allows digits with an optional sign and " \
+                        "decimal point only: Kemp et al. 1992; Kemp & Olivan 2003)"
+#define EDF_INTEGER_FORM "not a plain whole number (EDF allows digits with an optional sign only: " \
+                         "Kemp et al. 1992)"
+
 static int signal_number(const header_ctx *c, int f, int k, double *out)
 {
     char text[FIELD_TEXT_MAX];
     field_text(c, signal_field_offset(c->ns, f, k), SIGNAL_FIELDS[f].width, text);
-    return rt_parse_double(text, out);
+    return parse_edf_number(text, out);
 }
 
 /* Name of the field holding byte `offset` of the header, for non-ASCII reports. */
@@ -267,7 +296,7 @@ static rt_status check_signal_count(header_ctx *c)
 {
     long long ns;
     if (main_integer(c, F_SIGNALS, &ns) != 0)
-        return fail_main(c, F_SIGNALS, "not a whole number");
+        return fail_main(c, F_SIGNALS, EDF_INTEGER_FORM);
     if (ns < 1 || ns > MAX_SIGNALS)
         return fail_main(c, F_SIGNALS, "must be 1 to 640 (EDFlib's limit)");
     c->ns = (int)ns;
@@ -278,7 +307,7 @@ static rt_status check_header_bytes(const header_ctx *c, rt_edf_layout *layout)
 {
     long long bytes;
     if (main_integer(c, F_HEADER_BYTES, &bytes) != 0)
-        return fail_main(c, F_HEADER_BYTES, "not a whole number");
+        return fail_main(c, F_HEADER_BYTES, EDF_INTEGER_FORM);
     layout->header_bytes = (long long)SIGNAL_BYTES * (c->ns + 1);
     if (bytes != layout->header_bytes) {
         char why[128];
@@ -300,10 +329,10 @@ static rt_status check_reserved(const header_ctx *c)
 static rt_status check_record_count(const header_ctx *c, rt_edf_layout *layout)
 {
     if (main_integer(c, F_RECORDS, &layout->n_records) != 0)
-        return fail_main(c, F_RECORDS, "not a whole number");
+        return fail_main(c, F_RECORDS, EDF_INTEGER_FORM);
     if (layout->n_records == -1)
         return fail_main(c, F_RECORDS, "record count unknown (-1: the recording was not closed properly)");
-    if (layout->n_records < (c->allow_no_records ? 0 : 1))
+    if (layout->n_records < 1)
         return fail_main(c, F_RECORDS, "the file must hold at least one data record");
     return RT_OK;
 }
@@ -312,8 +341,8 @@ static rt_status check_record_duration(const header_ctx *c, rt_edf_layout *layou
 {
     char text[FIELD_TEXT_MAX];
     field_text(c, MAIN_FIELDS[F_DURATION].offset, MAIN_FIELDS[F_DURATION].width, text);
-    if (rt_parse_double(text, &layout->record_s) != 0)
-        return fail_main(c, F_DURATION, "not a number");
+    if (parse_edf_number(text, &layout->record_s) != 0)
+        return fail_main(c, F_DURATION, EDF_NUMBER_FORM);
     if (!(layout->record_s > 0))
         return fail_main(c, F_DURATION, "must be greater than 0 seconds");
     return RT_OK;
@@ -338,9 +367,9 @@ static rt_status check_physical_range(const header_ctx *c, int k)
 {
     double lo, hi;
     if (signal_number(c, S_PHYS_MIN, k, &lo) != 0)
-        return fail_signal(c, S_PHYS_MIN, k, "not a number");
+        return fail_signal(c, S_PHYS_MIN, k, EDF_NUMBER_FORM);
     if (signal_number(c, S_PHYS_MAX, k, &hi) != 0)
-        return fail_signal(c, S_PHYS_MAX, k, "not a number");
+        return fail_signal(c, S_PHYS_MAX, k, EDF_NUMBER_FORM);
     if (lo == hi)
         return fail_signal(c, S_PHYS_MAX, k, "equals the physical minimum, so no sample can be scaled");
     return RT_OK;
@@ -353,9 +382,9 @@ static rt_status check_digital_range(const header_ctx *c, int k)
     long long limit_hi = c->is_bdf ? 8388607 : 32767;
     const char *range = c->is_bdf ? "BDF samples are -8388608..8388607" : "EDF samples are -32768..32767";
     if (signal_integer(c, S_DIG_MIN, k, &lo) != 0)
-        return fail_signal(c, S_DIG_MIN, k, "not a whole number");
+        return fail_signal(c, S_DIG_MIN, k, EDF_INTEGER_FORM);
     if (signal_integer(c, S_DIG_MAX, k, &hi) != 0)
-        return fail_signal(c, S_DIG_MAX, k, "not a whole number");
+        return fail_signal(c, S_DIG_MAX, k, EDF_INTEGER_FORM);
     if (lo < limit_lo || lo > limit_hi)
         return fail_signal(c, S_DIG_MIN, k, range);
     if (hi < limit_lo || hi > limit_hi)
@@ -368,7 +397,7 @@ static rt_status check_digital_range(const header_ctx *c, int k)
 static rt_status check_samples(const header_ctx *c, int k, long long *samples)
 {
     if (signal_integer(c, S_SAMPLES, k, samples) != 0)
-        return fail_signal(c, S_SAMPLES, k, "not a whole number");
+        return fail_signal(c, S_SAMPLES, k, EDF_INTEGER_FORM);
     if (*samples < 1)
         return fail_signal(c, S_SAMPLES, k, "must be at least 1");
     if (*samples > 100000000)
@@ -490,29 +519,6 @@ static rt_status read_exact(const header_ctx *c, FILE *f, long long offset, long
     return RT_OK;
 }
 
-static rt_status open_regular(const char *path, FILE **out, long long *size, rt_error *err)
-{
-    /* EDFlib seeks, so only a regular file will do; asking first also keeps
-     * a FIFO with no writer from blocking the open forever */
-    struct stat before;
-    if (stat(path, &before) == 0 && !S_ISREG(before.st_mode) && !S_ISDIR(before.st_mode))
-        return rt_fail(err, RT_ERR_IO, "%s: cannot open: not a regular file (a recording must be a "
-                       "file EDFlib can seek in)", path);
-    FILE *f = fopen(path, "rb");
-    if (!f)
-        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
-                       "%s: cannot open: %s", path, strerror(errno));
-    struct stat st;
-    if (fstat(fileno(f), &st) != 0 || S_ISDIR(st.st_mode)) {
-        int code = S_ISDIR(st.st_mode) ? EISDIR : errno;
-        fclose(f);
-        return rt_fail(err, RT_ERR_IO, "%s: cannot open: %s", path, strerror(code));
-    }
-    *out = f;
-    *size = (long long)st.st_size;
-    return RT_OK;
-}
-
 /* A text file given where the recording belongs is most often the staging or
  * event table (or the XML scoring file) given in its place: say so rather than
  * report its first bytes as a bad EDF version field. Looks only at files that
@@ -566,12 +572,12 @@ static rt_status check_open_file(header_ctx *c, FILE *f, rt_edf_layout *layout)
     return check_file_size(c, layout);
 }
 
-static rt_status header_check(header_ctx c, rt_edf_layout *layout)
+rt_status rt_edf_header_check(const char *path, rt_edf_layout *layout, rt_error *err)
 {
-    const char *path = c.path;
-    rt_error *err = c.err;
+    header_ctx c = {.path = path, .err = err};
     FILE *f = NULL;
-    rt_status s = open_regular(path, &f, &c.file_bytes, err);
+    /* EDFlib seeks, so only a regular file will do (src/common/input.h) */
+    rt_status s = rt_input_open(path, "recording", &f, &c.file_bytes, err);
     if (s != RT_OK)
         return s;
     c.bytes = rt_calloc((size_t)SIGNAL_BYTES * (MAX_SIGNALS + 1), 1);
@@ -584,14 +590,4 @@ static rt_status header_check(header_ctx c, rt_edf_layout *layout)
     free(c.bytes);
     fclose(f);
     return s;
-}
-
-rt_status rt_edf_header_check(const char *path, rt_edf_layout *layout, rt_error *err)
-{
-    return header_check((header_ctx){.path = path, .err = err}, layout);
-}
-
-rt_status rt_edf_header_check_written(const char *path, rt_edf_layout *layout, rt_error *err)
-{
-    return header_check((header_ctx){.path = path, .err = err, .allow_no_records = true}, layout);
 }

@@ -35,10 +35,4 @@ typedef struct rt_edf_layout {
  * byte offset). Refuses EDF+D/BDF+D. */
 rt_status rt_edf_header_check(const char *path, rt_edf_layout *layout, rt_error *err);
 
-/* The same checks for a file remtone has just written through EDFlib, which
- * ignores failed writes: a file cut short is refused as above. Zero data
- * records are allowed (EDFlib writes an annotation-only file without
- * annotations so). */
-rt_status rt_edf_header_check_written(const char *path, rt_edf_layout *layout, rt_error *err);
-
 #endif

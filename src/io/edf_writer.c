@@ -78,7 +78,8 @@ static rt_status private_temp(rt_edf_writer *w, rt_error *err)
     int fd = mkstemp(w->edf_path);
     if (fd < 0) {
         w->edf_path[0] = '\0';
-        return rt_fail(err, RT_ERR_IO, "%s: cannot create a temporary file for EDFlib: %s", w->out.path,
+        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
+                       "%s: cannot create a temporary file for EDFlib: %s", w->out.path,
                        strerror(errno));
     }
     close(fd);
@@ -174,14 +175,16 @@ rt_status rt_edf_writer_record(rt_edf_writer *w, const double *const *samples, r
 }
 
 /* EDFlib ignores failed writes and a failed close, so the file is read back:
- * it must pass the header checks with exactly the size its header gives. */
+ * it must pass the header checks remtone makes on every recording it reads
+ * (so every file written is one remtone can open: at least one data record)
+ * with exactly the size its header gives. */
 static rt_status check_written(const rt_edf_writer *w, rt_error *err)
 {
     rt_edf_layout *layout = rt_calloc(1, sizeof *layout);
     if (!layout)
         return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", w->out.path);
     rt_error inner;
-    rt_status s = rt_edf_header_check_written(w->edf_path, layout, &inner);
+    rt_status s = rt_edf_header_check(w->edf_path, layout, &inner);
     long long end = layout->header_bytes + layout->n_records * layout->record_bytes;
     if (s != RT_OK)
         s = rt_fail(err, RT_ERR_IO, "%s: cannot write output: the file EDFlib wrote is incomplete (%s)",
@@ -202,7 +205,8 @@ static rt_status sync_file(const char *file, const char *path, rt_error *err)
         int code = errno;
         if (f)
             fclose(f);
-        return rt_fail(err, RT_ERR_IO, "%s: cannot write output: %s", path, strerror(code));
+        return rt_fail(err, rt_errno_status(code, RT_ERR_IO), "%s: cannot write output: %s", path,
+                       strerror(code));
     }
     fclose(f);
     return RT_OK;
@@ -230,7 +234,8 @@ static rt_status copy_to_destination(const rt_edf_writer *w, rt_error *err)
     if (in)
         fclose(in);
     if (failed)
-        return rt_fail(err, RT_ERR_IO, "%s: cannot write output: %s", w->out.path, strerror(code ? code : EIO));
+        return rt_fail(err, rt_errno_status(code, RT_ERR_IO), "%s: cannot write output: %s",
+                       w->out.path, strerror(code ? code : EIO));
     return RT_OK;
 }
 

@@ -423,7 +423,8 @@ static rt_status plan_direct_reads(rt_recording *rec, const rt_edf_layout *l, co
     rec->sample_bytes = l->is_bdf ? 3 : 2;
     int fd = open(rec->path, O_RDONLY | O_CLOEXEC);
     if (fd < 0)
-        return rt_fail(err, RT_ERR_IO, "%s: cannot open: %s", rec->path, strerror(errno));
+        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO), "%s: cannot open: %s", rec->path,
+                       strerror(errno));
     struct stat st;
     if (fstat(fd, &st) != 0 || !S_ISREG(st.st_mode) || (long long)st.st_size != l->file_bytes) {
         close(fd);
@@ -615,7 +616,8 @@ static rt_status read_bytes_at(const rt_recording *rec, int channel, unsigned ch
         if (got < 0 && errno == EINTR)
             continue;
         if (got <= 0)
-            return rt_fail(err, RT_ERR_IO, "%s: channel \"%s\": cannot read %zu bytes at byte offset %lld: %s",
+            return rt_fail(err, got < 0 ? rt_errno_status(errno, RT_ERR_IO) : RT_ERR_IO,
+                           "%s: channel \"%s\": cannot read %zu bytes at byte offset %lld: %s",
                            rec->path, rec->channels[channel].label, len - done, offset + (long long)done,
                            got < 0 ? strerror(errno) : "the file ends early (cut after it was opened?)");
         done += (size_t)got;

@@ -9,7 +9,15 @@
 #include "remtone/quality.h"
 #include "dsp/bandpass.h"
 
-enum { CHUNK_S = 300 };
+/* Channels are read in chunks of 5 minutes, and of at most 2^21 samples, so
+ * the memory scan needs is bounded whatever the rate (two buffers of doubles:
+ * 32 MiB): at 1 MHz, 5-minute chunks had taken 3.7 GB. */
+enum { CHUNK_S = 300, CHUNK_MAX_SAMPLES = 1 << 21 };
+
+static double chunk_s(double rate_hz)
+{
+    return fmin((double)CHUNK_S, floor((double)CHUNK_MAX_SAMPLES / rate_hz));
+}
 
 static rt_status read_chunk(rt_recording *rec, const rt_role_source *src, double t0, double dur,
                             double **buf, double **scratch, size_t *cap, size_t *n, rt_error *err)
@@ -35,8 +43,9 @@ static rt_status channel_marks(rt_recording *rec, const rt_role_source *src, dou
 {
     const rt_channel_info *info = rt_recording_channel(rec, src->channel);
     rt_quality_mark marks[256];
-    for (double t0 = 0.0; t0 < total_s && t0 + 1.0 <= total_s; t0 += CHUNK_S) {
-        double dur = fmin((double)CHUNK_S, total_s - t0);
+    double step = chunk_s(src->rate_hz);
+    for (double t0 = 0.0; t0 < total_s && t0 + 1.0 <= total_s; t0 += step) {
+        double dur = fmin(step, total_s - t0);
         size_t n = 0;
         rt_status st = read_chunk(rec, src, t0, dur, buf, scratch, cap, &n, err);
         if (st != RT_OK)
@@ -57,7 +66,7 @@ rt_status rt_recording_quality(rt_recording *rec, const rt_role_map *roles,
 {
     memset(out, 0, RT_ROLE_COUNT * sizeof *out);
     double total = rt_recording_duration_s(rec);
-    double head = fmin((double)CHUNK_S, total);
+    double head = fmin((double)CHUNK_S, total); /* each channel's own: chunk_s(rate) at most */
     double *buf = NULL, *scratch = NULL;
     size_t cap = 0;
     rt_qrs_beats beats;
@@ -69,7 +78,8 @@ rt_status rt_recording_quality(rt_recording *rec, const rt_role_map *roles,
     if (ecg->channel >= 0 || chin->channel >= 0) {
         const rt_role_source *from = ecg->channel >= 0 ? ecg : chin;
         size_t n = 0;
-        st = read_chunk(rec, from, 0.0, head, &buf, &scratch, &cap, &n, err);
+        st = read_chunk(rec, from, 0.0, fmin(head, chunk_s(from->rate_hz)), &buf, &scratch, &cap,
+                        &n, err);
         if (st == RT_OK)
             st = rt_qrs_detect(buf, n, from->rate_hz, from == chin, &beats, err);
         source = from == ecg ? 1 : 2;
@@ -83,7 +93,8 @@ rt_status rt_recording_quality(rt_recording *rec, const rt_role_map *roles,
         st = channel_marks(rec, src, total, &buf, &scratch, &cap, q, err);
         size_t n = 0;
         if (st == RT_OK)
-            st = read_chunk(rec, src, 0.0, head, &buf, &scratch, &cap, &n, err);
+            st = read_chunk(rec, src, 0.0, fmin(head, chunk_s(src->rate_hz)), &buf, &scratch,
+                            &cap, &n, err);
         rt_bandpass_spec spec = rt_bandpass_spec_defaults(src->rate_hz);
         rt_mains mains;
         if (st == RT_OK)

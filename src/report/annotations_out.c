@@ -179,9 +179,15 @@ rt_status rt_night_write_annotations(const rt_night *night, const rt_recording *
         free(ns.v);
         return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory for annotations", path);
     }
+    /* A night without REM (or without activity) still gets a file remtone
+     * and EDFlib can read back: an annotation-only EDF+ needs at least one
+     * data record, and EDFlib writes records only to hold annotations. */
+    if (ns.n == 0 && add_note(&ns, 0.0, -1.0, "remtone no activity detected") != 0)
+        return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory for annotations", path);
     /* a stable sort is not needed: equal onsets carry different texts and any
      * order of them is valid EDF+ */
-    qsort(ns.v, ns.n, sizeof *ns.v, by_onset);
+    if (ns.n > 1)
+        qsort(ns.v, ns.n, sizeof *ns.v, by_onset);
     rt_status st = write_file(path, night, rec, &ns, err);
     free(ns.v);
     return st;

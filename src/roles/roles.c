@@ -414,12 +414,39 @@ static rt_status check_range(const rt_recording *rec, rt_role role, int channel,
                    ch->unit, rt_role_name(role));
 }
 
+/* EMG sampling rates remtone scores. Below 200 Hz, the AASM Manual's minimum
+ * for EMG (desirable 500 Hz; from memory), the 10-100 Hz band the scorer
+ * keeps reaches the Nyquist frequency. Above 65536 Hz the zero-phase
+ * band-pass's response (10-Hz corner, narrow mains notches) no longer fits
+ * its largest FFT block (src/dsp/bandpass.c; 65536 Hz is the highest power of
+ * two tested to score), and surface EMG holds nothing of interest there. */
+#define EMG_RATE_MIN_HZ 200.0
+#define EMG_RATE_MAX_HZ 65536.0
+
+static rt_status check_rate(const rt_recording *rec, rt_role role, int channel, rt_error *err)
+{
+    const rt_channel_info *ch = rt_recording_channel(rec, channel);
+    if (ch->rate_hz >= EMG_RATE_MIN_HZ && ch->rate_hz <= EMG_RATE_MAX_HZ)
+        return RT_OK;
+    return rt_fail(err, RT_ERR_CHANNEL,
+                   "%s: channel \"%s\" (%s, signal %d) is sampled at %g Hz; remtone scores EMG "
+                   "sampled at %g to %g Hz (below, the 10-100 Hz EMG band reaches the Nyquist "
+                   "frequency; above, the band-pass cannot be applied): resample it, or choose "
+                   "another channel with --%s",
+                   rt_recording_path(rec), ch->label, rt_role_name(role), channel + 1, ch->rate_hz,
+                   EMG_RATE_MIN_HZ, EMG_RATE_MAX_HZ, rt_role_name(role));
+}
+
 static rt_status check_role_unit(const rt_recording *rec, rt_role role, const rt_role_source *src,
                                  bool allow_any_unit, rt_error *err)
 {
     if (role == RT_ROLE_ECG || src->channel < 0)
         return RT_OK;
-    rt_status s = check_range(rec, role, src->channel, err);
+    rt_status s = check_rate(rec, role, src->channel, err);
+    if (s == RT_OK && src->reference >= 0)
+        s = check_rate(rec, role, src->reference, err);
+    if (s == RT_OK)
+        s = check_range(rec, role, src->channel, err);
     if (s == RT_OK && src->reference >= 0)
         s = check_range(rec, role, src->reference, err);
     if (s != RT_OK || allow_any_unit)

@@ -474,7 +474,7 @@ rt_status rt_corrections_load(const char *path, rt_corrections **out, rt_error *
         return rt_fail(err, RT_ERR_USAGE, "rt_corrections_load: NULL argument");
     *out = NULL;
     rt_input_format format = RT_INPUT_CSV;
-    rt_status st = rt_input_sniff(path, "a corrections file", &format, err);
+    rt_status st = rt_input_sniff(path, "corrections file", &format, err);
     if (st != RT_OK)
         return st;
     rt_corrections *c = NULL;

@@ -1250,10 +1250,10 @@ static rt_status score_passes(pass_ctx *c, unsigned threads, rt_error *err)
     return st;
 }
 
-rt_status rt_night_score_threads(rt_recording *rec, const rt_role_map *roles,
-                                 const rt_timeline *tl, const rt_score_params *params,
-                                 const rt_cutoffs *cutoffs, int threads, rt_night **out,
-                                 rt_error *err)
+static rt_status score_night(rt_recording *rec, const rt_role_map *roles,
+                             const rt_timeline *tl, const rt_score_params *params,
+                             const rt_cutoffs *cutoffs, int threads, rt_night **out,
+                             rt_error *err)
 {
     return rt_night_score_blocks(rec, roles, tl, params, cutoffs, threads, 0.0, out, err);
 }
@@ -1275,9 +1275,11 @@ rt_status rt_night_score_blocks(rt_recording *rec, const rt_role_map *roles,
     if (threads < 0)
         return rt_fail(err, RT_ERR_USAGE, "scoring threads must be 0 (the cores available) or "
                        "more, got %d", threads);
-    if (fabs(tl->epoch_s - RT_EPOCH_S) > 1e-9)
-        return rt_fail(err, RT_ERR_STAGING, "scoring needs 30-s epochs; the staging has %g-s epochs",
-                       tl->epoch_s);
+    if (fabs(tl->epoch_s - RT_EPOCH_S) > 1e-9) {
+        const char *at = rt_timeline_staging_place(tl);
+        return rt_fail(err, RT_ERR_STAGING, "%s: the staging has %g-s epochs; scoring needs 30-s "
+                       "epochs (AASM Manual)", at[0] ? at : "staging", tl->epoch_s);
+    }
     rt_night *night = rt_calloc(1, sizeof *night);
     if (!night)
         return rt_fail(err, RT_ERR_NOMEM, "out of memory");
@@ -1347,6 +1349,25 @@ rt_status rt_night_score_blocks(rt_recording *rec, const rt_role_map *roles,
     }
     *out = night;
     return RT_OK;
+}
+
+/* Every message names a file (README.md: messages name the file and the
+ * place): a failure deep in the scorer ("out of memory for 317441 samples")
+ * gets the recording's path in front; staging messages name their own file. */
+rt_status rt_night_score_threads(rt_recording *rec, const rt_role_map *roles,
+                                 const rt_timeline *tl, const rt_score_params *params,
+                                 const rt_cutoffs *cutoffs, int threads, rt_night **out,
+                                 rt_error *err)
+{
+    rt_status st = score_night(rec, roles, tl, params, cutoffs, threads, out, err);
+    const char *path = rec ? rt_recording_path(rec) : NULL;
+    if (st != RT_OK && st != RT_ERR_STAGING && err && path &&
+        strncmp(err->message, path, strlen(path)) != 0) {
+        char inner[sizeof err->message];
+        memcpy(inner, err->message, sizeof inner);
+        rt_fail(err, st, "%s: %s", path, inner);
+    }
+    return st;
 }
 
 rt_status rt_night_score(rt_recording *rec, const rt_role_map *roles, const rt_timeline *tl,

@@ -13,7 +13,7 @@ rt_status rt_timeline_load_staging(rt_timeline *tl, const char *path, const rt_l
     if (!tl || !path)
         return rt_fail(err, RT_ERR_USAGE, "rt_timeline_load_staging: NULL argument");
     rt_input_format format = RT_INPUT_CSV;
-    rt_status st = rt_input_sniff(path, "a staging file", &format, err);
+    rt_status st = rt_input_sniff(path, "staging file", &format, err);
     if (st != RT_OK)
         return st;
     switch (format) {

@@ -19,6 +19,8 @@ typedef struct rt_timeline_state {
     double last_run_start_s;
     double last_run_end_s;
     long last_run_line;
+    char last_run_place[256]; /* the latest run's place ("stages.csv line 9"), as
+                                 rt_event.place: messages about the staging name it */
 } rt_timeline_state;
 
 /* True once a stage run was added, even a run of unscored epochs only (it

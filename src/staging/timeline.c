@@ -11,6 +11,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "input.h"
 #include "internal.h"
 #include "remtone/roles.h"
 #include "remtone/timeline.h"
@@ -61,6 +62,26 @@ static const char *place(char *buf, size_t cap, const char *source, long line)
     else
         snprintf(buf, cap, "%s", source);
     return buf;
+}
+
+/* A place for a message kept in cap bytes: its end (the file name and line)
+ * matters most, so a longer one keeps that, after "...". */
+static void keep_place(char *dst, size_t cap, const char *at)
+{
+    size_t n = strlen(at);
+    if (n < cap) {
+        memcpy(dst, at, n + 1);
+        return;
+    }
+    const char *tail = at + n - (cap - 4);
+    while ((*tail & 0xC0) == 0x80) /* not inside a UTF-8 sequence */
+        tail++;
+    snprintf(dst, cap, "...%s", tail);
+}
+
+const char *rt_timeline_staging_place(const rt_timeline *tl)
+{
+    return tl ? ((const rt_timeline_state *)tl)->last_run_place : "";
 }
 
 bool rt_timeline_has_stage_runs(const rt_timeline *tl)
@@ -135,6 +156,7 @@ rt_status rt_timeline_add_stage_run(rt_timeline *tl, double start_s, double dura
     run->last_run_start_s = k_start * ep;
     run->last_run_end_s = (k_start + k_dur) * ep;
     run->last_run_line = line > 0 ? line : 0;
+    keep_place(run->last_run_place, sizeof run->last_run_place, at);
     return RT_OK;
 }
 
@@ -191,7 +213,8 @@ rt_status rt_timeline_add_event_role(rt_timeline *tl, double onset_s, double dur
     tl->events = grown;
     size_t slot = event_slot(tl, onset_s);
     memmove(tl->events + slot + 1, tl->events + slot, (tl->n_events - slot) * sizeof *grown);
-    tl->events[slot] = (rt_event){onset_s, duration_s, type, (signed char)role};
+    tl->events[slot] = (rt_event){onset_s, duration_s, type, (signed char)role, ""};
+    keep_place(tl->events[slot].place, sizeof tl->events[slot].place, at);
     tl->n_events++;
     return RT_OK;
 }
@@ -258,6 +281,7 @@ rt_status rt_timeline_merge(rt_timeline *tl, rt_timeline *src, rt_error *err)
         to->last_run_start_s = from->last_run_start_s;
         to->last_run_end_s = from->last_run_end_s;
         to->last_run_line = from->last_run_line;
+        memcpy(to->last_run_place, from->last_run_place, sizeof to->last_run_place);
         src->stages = NULL;
         src->n_epochs = 0;
         from->last_run_start_s = from->last_run_end_s = 0.0;
@@ -281,7 +305,8 @@ rt_status rt_timeline_check(const rt_timeline *tl, double recording_s, rt_error 
     for (size_t i = 0; i < tl->n_epochs; i++)
         scored += tl->stages[i] != RT_STAGE_UNSCORED;
     if (scored == 0)
-        return rt_fail(err, RT_ERR_STAGING, "staging is empty: no epoch has a stage");
+        return rt_fail(err, RT_ERR_STAGING, "%s: staging is empty: no epoch has a stage",
+                       tl->last_run_place[0] ? tl->last_run_place : "staging");
     double staged_end_s = (double)tl->n_epochs * ep;
     if (staged_end_s > recording_s + GRID_TOL_S) {
         /* Epochs that fit the recording whole; a partial last one is past the end,
@@ -290,26 +315,27 @@ rt_status rt_timeline_check(const rt_timeline *tl, double recording_s, rt_error 
         size_t past = tl->n_epochs - inside;
         double over_s = staged_end_s - recording_s;
         double partial_s = recording_s - (double)inside * ep;
+        const char *at = tl->last_run_place[0] ? tl->last_run_place : "staging";
         if (partial_s > GRID_TOL_S)
             return rt_fail(err, RT_ERR_STAGING,
-                           "staging runs %.6g s (%zu epoch%s of %g s) past the end of the "
+                           "%s: staging runs %.6g s (%zu epoch%s of %g s) past the end of the "
                            "recording (%.6g s): the epoch at %.6g-%.6g s is covered by the "
                            "recording for only %.6g s, and a partial epoch counts as past the end",
-                           over_s, past, past == 1 ? "" : "s", ep, recording_s,
+                           at, over_s, past, past == 1 ? "" : "s", ep, recording_s,
                            (double)inside * ep, (double)(inside + 1) * ep, partial_s);
         return rt_fail(err, RT_ERR_STAGING,
-                       "staging runs %.6g s (%zu epoch%s of %g s) past the end of the recording "
-                       "(%.6g s)",
-                       over_s, past, past == 1 ? "" : "s", ep, recording_s);
+                       "%s: staging runs %.6g s (%zu epoch%s of %g s) past the end of the "
+                       "recording (%.6g s)",
+                       at, over_s, past, past == 1 ? "" : "s", ep, recording_s);
     }
     for (size_t i = 0; i < tl->n_events; i++) {
         const rt_event *e = &tl->events[i];
         double end_s = e->onset_s + e->duration_s;
         if (e->onset_s >= recording_s || end_s > recording_s + GRID_TOL_S)
             return rt_fail(err, RT_ERR_STAGING,
-                           "event %zu (%s at %.6g s, %.6g s long) ends %.6g s past the end of the "
-                           "recording (%.6g s)",
-                           i + 1, rt_event_type_name(e->type), e->onset_s, e->duration_s,
+                           "%s: event %zu (%s at %.6g s, %.6g s long) ends %.6g s past the end "
+                           "of the recording (%.6g s)",
+                           e->place[0] ? e->place : "events", i + 1, rt_event_type_name(e->type), e->onset_s, e->duration_s,
                            end_s - recording_s, recording_s);
     }
     return RT_OK;

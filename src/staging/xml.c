@@ -24,6 +24,7 @@
 #include <libxml/xmlschemas.h>
 #include <libxml/xmlwriter.h>
 
+#include "input.h"
 #include "internal.h"
 #include "output.h"
 #include "remtone/corrections.h"
@@ -34,7 +35,7 @@
 /* A scoring file of a long night with every mini-epoch scored on six roles is
  * a few MiB; 64 MiB is the stage table's limit too, and stops a wrong path to
  * a recording from being parsed as text. */
-#define MAX_XML_BYTES (64L * 1024 * 1024)
+#define MAX_XML_BYTES RT_INPUT_TEXT_MAX_BYTES
 
 /* ---- libxml2 plumbing --------------------------------------------------- */
 
@@ -137,7 +138,7 @@ static rt_status parse_document(const char *data, size_t len, const char *name, 
 {
     *out = NULL;
     if (len > (size_t)MAX_XML_BYTES)
-        return rt_fail(err, RT_ERR_STAGING, "%s: larger than %ld MiB, not a scoring file", name,
+        return rt_fail(err, RT_ERR_STAGING, "%s: larger than %lld MiB, not a scoring file", name,
                        MAX_XML_BYTES / (1024 * 1024));
     xmlParserCtxtPtr ctxt = xmlNewParserCtxt();
     if (!ctxt)
@@ -600,62 +601,12 @@ rt_status rt_timeline_load_xml_memory(rt_timeline *tl, const char *data, size_t 
  * MAX_XML_BYTES. */
 static rt_status read_whole(const char *path, char **buf_out, size_t *len_out, rt_error *err)
 {
-    *buf_out = NULL;
-    *len_out = 0;
-    FILE *f = fopen(path, "rb");
-    if (!f)
-        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
-                       "%s: cannot open: %s", path, strerror(errno));
-    struct stat sb;
-    if (fstat(fileno(f), &sb) == 0 && S_ISDIR(sb.st_mode)) {
-        fclose(f);
-        return rt_fail(err, RT_ERR_IO, "%s: is a directory, not a scoring file", path);
-    }
-    if (fstat(fileno(f), &sb) == 0 && S_ISREG(sb.st_mode) && sb.st_size > MAX_XML_BYTES) {
-        fclose(f);
-        return rt_fail(err, RT_ERR_STAGING, "%s: larger than %ld MiB, not a scoring file", path,
-                       MAX_XML_BYTES / (1024 * 1024));
-    }
-    /* Read in growing chunks up to one byte past the limit, so a file that is
-     * not regular (a pipe) or grows while read is bounded all the same. */
-    size_t cap = 0, len = 0;
-    char *buf = NULL;
-    rt_status st = RT_OK;
-    for (;;) {
-        if (len == cap) {
-            size_t next = cap ? cap * 2 : 65536;
-            if (next > (size_t)MAX_XML_BYTES + 1)
-                next = (size_t)MAX_XML_BYTES + 1;
-            if (next == cap) {
-                st = rt_fail(err, RT_ERR_STAGING, "%s: larger than %ld MiB, not a scoring file",
-                             path, MAX_XML_BYTES / (1024 * 1024));
-                break;
-            }
-            char *grown = realloc(buf, next);
-            if (!grown) {
-                st = rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", path);
-                break;
-            }
-            buf = grown;
-            cap = next;
-        }
-        size_t got = fread(buf + len, 1, cap - len, f);
-        len += got;
-        if (got == 0) {
-            if (ferror(f))
-                st = rt_fail(err, rt_errno_status(errno, RT_ERR_IO),
-                             "%s: cannot read: %s", path, strerror(errno));
-            break;
-        }
-    }
-    fclose(f);
-    if (st != RT_OK) {
-        free(buf);
-        return st;
-    }
-    *buf_out = buf;
-    *len_out = len;
-    return RT_OK;
+    /* read whole by the one reader of text inputs: a regular file of at most
+     * MAX_XML_BYTES, not empty, not UTF-16 or UTF-32 */
+    unsigned char *buf = NULL;
+    rt_status st = rt_input_read_text(path, "scoring file", &buf, len_out, err);
+    *buf_out = (char *)buf;
+    return st;
 }
 
 rt_status rt_timeline_load_xml(rt_timeline *tl, const char *path, rt_error *err)

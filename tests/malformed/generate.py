@@ -63,13 +63,31 @@ def main(out):
         "phys-min-equals-max.edf": patch(patch(g, sig_offset(ns, 3, 0), "100", 8), sig_offset(ns, 4, 0), "100", 8),
         "digital-range-edf.edf": patch(g, sig_offset(ns, 6, 0), "40000", 8),
         "unit-not-voltage.edf": good(unit="degC"),
-        "absurd-range.edf": good(phys=(-1e100, 1e100)),
+        # +-9999999 uV (about 10 V): the widest plain decimal an 8-byte field holds
+        "absurd-range.edf": good(phys=(-9999999, 9999999)),
+        # number forms strtod takes but EDF does not: the header allows plain
+        # decimals only (Kemp et al. 1992; EDF+, Kemp & Olivan 2003, 2.1.3)
+        "phys-min-hex-float.edf": patch(g, sig_offset(ns, 3, 0), "0x1p0", 8),
+        "phys-max-exponent.edf": patch(g, sig_offset(ns, 4, 0), "1e-9", 8),
+        "record-duration-exponent.edf": patch(g, 244, "1e0", 8),
+        "record-duration-infinite.edf": patch(g, 244, "inf", 8),
+        "digital-max-hex.edf": patch(g, sig_offset(ns, 6, 0), "0x10", 8),
+        "samples-exponent.edf": patch(g, sig_offset(ns, 8, 0), "2.56e2", 8),
         "non-ascii-header.edf": patch(g, 8, b"Jos\xe9 X X X", 80),
         "discontinuous.edf": patch(g, 192, "EDF+D", 44),
         "trailing-bytes.edf": g + b"\x00" * 17,
         "broken-tals.edf": broken_tals(g, ns, record_bytes),
         "bdf-digital-range.edf": ew.edf_bytes([ew.Signal("Chin", 4, dig=(-9000000, 8388607))], 2, bdf=True),
     }
+    # text in UTF-16 or UTF-32, as some editors save it: refused by name
+    # (byte-order marks: The Unicode Standard, section 23.8)
+    stages = open(os.path.join(HERE, "good-stages.csv"), encoding="utf-8").read()
+    xml = open(os.path.join(HERE, "xml-good.xml"), encoding="utf-8").read()
+    files["staging-utf16.csv"] = stages.encode("utf-16")          # BOM, then UTF-16LE
+    files["staging-utf16be.csv"] = b"\xfe\xff" + stages.encode("utf-16-be")
+    files["staging-utf16-no-bom.csv"] = stages.encode("utf-16-le")
+    files["staging-utf16.xml"] = xml.replace('encoding="UTF-8"', 'encoding="UTF-16"').encode("utf-16")
+    files["events-utf32.csv"] = "start_s,duration_s,type\n".encode("utf-32")
     for name, data in files.items():
         with open(os.path.join(out, name), "wb") as f:
             f.write(data)

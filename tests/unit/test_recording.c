@@ -400,7 +400,7 @@ static void main_header_faults(void **state)
     patch(&b, 244, 8, "-2");
     expect_refusal("bad_duration_neg", &b, b.n, RT_ERR_RECORDING, "\"data record duration\"", "greater than 0");
     patch(&b, 244, 8, "two");
-    expect_refusal("bad_duration_text", &b, b.n, RT_ERR_RECORDING, "\"data record duration\"", "not a number");
+    expect_refusal("bad_duration_text", &b, b.n, RT_ERR_RECORDING, "\"data record duration\"", "not a plain decimal number");
     patch(&b, 244, 8, "2");
     patch(&b, 0, 8, "1");
     expect_refusal("bad_version", &b, b.n, RT_ERR_RECORDING, "\"version\" (byte offset 0)", NULL);

@@ -319,7 +319,7 @@ static void size_limit(void **state)
     double t0 = now_s();
     assert_int_equal(rt_timeline_load_staging(tl, path, NULL, &err), RT_ERR_STAGING);
     assert_true(now_s() - t0 < 1.0);
-    assert_non_null(strstr(err.message, "larger than 64 MiB"));
+    assert_non_null(strstr(err.message, "larger than the 64 MiB"));
     /* Exactly at the limit is not refused for its size: it fails later, for
      * its content (NUL bytes are not XML). */
     fd = open(path, O_WRONLY);
