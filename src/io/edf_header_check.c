@@ -552,8 +552,7 @@ static rt_status check_open_file(header_ctx *c, FILE *f, rt_edf_layout *layout)
 {
     rt_status s;
     long long head = c->file_bytes < MAIN_BYTES ? c->file_bytes : MAIN_BYTES;
-    if (!c->allow_no_records &&
-        ((s = read_exact(c, f, 0, head)) != RT_OK || (s = refuse_text_file(c, head)) != RT_OK))
+    if ((s = read_exact(c, f, 0, head)) != RT_OK || (s = refuse_text_file(c, head)) != RT_OK)
         return s;
     rewind(f); /* the checks below read the header from its start */
     if (c->file_bytes < MAIN_BYTES)

@@ -800,7 +800,7 @@ static rt_status gather_labels(pass_ctx *c, const item_list *l, rt_error *err)
         ss->rai.from_1_to_2 += o->rai.from_1_to_2;
         ss->rai.total += o->rai.total;
         if (ss->per_bout) { /* the same counts per bout, for the REM periods */
-            bout_counts *bc = &ss->per_bout[it->bout];
+            bout_counts *bc = &ss->per_bout[c->pieces[it->piece].bout];
             bc->montreal_windows += o->montreal_windows;
             bc->montreal_tonic += o->montreal_tonic;
             bc->rai.at_most_1 += o->rai.at_most_1;

@@ -306,7 +306,7 @@ rt_status rt_timeline_check(const rt_timeline *tl, double recording_s, rt_error 
         scored += tl->stages[i] != RT_STAGE_UNSCORED;
     if (scored == 0)
         return rt_fail(err, RT_ERR_STAGING, "%s: staging is empty: no epoch has a stage",
-                       tl->last_run_place[0] ? tl->last_run_place : "staging");
+                       rt_timeline_staging_place(tl)[0] ? rt_timeline_staging_place(tl) : "staging");
     double staged_end_s = (double)tl->n_epochs * ep;
     if (staged_end_s > recording_s + GRID_TOL_S) {
         /* Epochs that fit the recording whole; a partial last one is past the end,
@@ -315,7 +315,7 @@ rt_status rt_timeline_check(const rt_timeline *tl, double recording_s, rt_error 
         size_t past = tl->n_epochs - inside;
         double over_s = staged_end_s - recording_s;
         double partial_s = recording_s - (double)inside * ep;
-        const char *at = tl->last_run_place[0] ? tl->last_run_place : "staging";
+        const char *at = rt_timeline_staging_place(tl)[0] ? rt_timeline_staging_place(tl) : "staging";
         if (partial_s > GRID_TOL_S)
             return rt_fail(err, RT_ERR_STAGING,
                            "%s: staging runs %.6g s (%zu epoch%s of %g s) past the end of the "
