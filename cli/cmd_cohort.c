@@ -220,7 +220,8 @@ static int merge_and_report(cohort_config *c)
                s.negatives, c->o.negative, c->o.per_subject ? "subjects" : "nights");
     else
         printf("no calibration: it needs nights in both groups \"%s\" and \"%s\" "
-               "(--positive, --negative)\n", c->o.positive, c->o.negative);
+               "(--positive, --negative); no calibrated-cutoffs.csv or calibration.csv\n",
+               c->o.positive, c->o.negative);
     if (s.calibrated && s.calibrated_indices == 0)
         printf("%s: no calibrated-cutoffs.csv: no index could be calibrated\n", c->o.out_dir);
     return EXIT_OK;

@@ -159,7 +159,8 @@ typedef struct rt_cohort_merge_summary {
     size_t negatives;     /* scored nights (subjects, with per_subject) of the negative group */
     size_t subjects;      /* subjects named in the manifest (subjects.csv rows) */
     bool calibrated;      /* false when a group had no scored night: calibration.csv and
-                             calibrated-cutoffs.csv were then left as they were */
+                             calibrated-cutoffs.csv were then not written (earlier ones
+                             removed: they would describe other results) */
     size_t calibrated_indices; /* indices with a calibrated (Youden) cutoff; 0: no
                                   calibrated-cutoffs.csv (an earlier one is removed, since
                                   a cutoff file listing no index is one --cutoffs refuses) */

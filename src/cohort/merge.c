@@ -529,6 +529,14 @@ rt_status rt_cohort_merge(const rt_cohort_options *o, rt_cohort_merge_summary *s
         snprintf(path, sizeof path, "%s/calibration.csv", o->out_dir);
         st = write_calibration(path, cal, err);
     }
+    /* without a calibration now, an earlier one would describe other results */
+    static const char *const CALIBRATION_FILES[] = {"calibration.csv", "calibrated-cutoffs.csv"};
+    for (size_t k = 0; st == RT_OK && !cal->computed && k < 2; k++) {
+        snprintf(path, sizeof path, "%s/%s", o->out_dir, CALIBRATION_FILES[k]);
+        if (unlink(path) != 0 && errno != ENOENT)
+            st = rt_fail(err, RT_ERR_IO, "%s: cannot remove the previous calibration: %s", path,
+                         strerror(errno));
+    }
     if (st == RT_OK && cal->computed) {
         snprintf(path, sizeof path, "%s/calibrated-cutoffs.csv", o->out_dir);
         st = write_calibrated_cutoffs(path, cal, &s, err);
