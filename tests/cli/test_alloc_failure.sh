@@ -97,7 +97,12 @@ sweep() {
       >"$work/stdout" 2>"$work/stderr" </dev/null
     rc=$?
     left=$(find "$out" -mindepth 1 | head -3)
-    if grep -qE 'Sanitizer|runtime error' "$work/stderr"; then
+    if grep -q 'CHECK failed: sanitizer_linux_libcdep.cpp.*pthread_getattr_np' "$work/stderr"; then
+      # AddressSanitizer's own set-up of a new thread calls pthread_getattr_np,
+      # which allocates through the failing allocator; the sanitizer then stops
+      # the process by design. Not remtone's allocation: counted, not judged.
+      zero=$((zero + 1))
+    elif grep -qE 'Sanitizer|runtime error' "$work/stderr"; then
       bad "$name N=$n: sanitizer report: $(grep -m1 -E 'Sanitizer|runtime error' "$work/stderr")"
     elif [ "$rc" = 0 ]; then
       zero=$((zero + 1))
