@@ -83,9 +83,6 @@ typedef struct cohort_calibration {
 
 /* A number in a cohort CSV (%.10g; nothing when not finite). */
 void cohort_put_number(FILE *f, double v);
-/* Commits a CSV written through o, or aborts it when a field ran out of
- * memory (RT_ERR_NOMEM naming the file). */
-rt_status cohort_csv_commit(rt_output *o, int no_memory, rt_error *err);
 
 /* One subject of the cohort (rows with the same `subject`). */
 typedef struct cohort_subject {

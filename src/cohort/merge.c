@@ -262,15 +262,6 @@ void cohort_put_number(FILE *f, double v)
         fprintf(f, "%.10g", v);
 }
 
-rt_status cohort_csv_commit(rt_output *o, int no_memory, rt_error *err)
-{
-    if (no_memory) {
-        rt_output_abort(o);
-        return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", o->path);
-    }
-    return rt_output_commit(o, err);
-}
-
 static rt_status write_table(const char *path, const rows *r, rt_error *err)
 {
     rt_output o;
@@ -319,7 +310,7 @@ static rt_status write_table(const char *path, const rows *r, rt_error *err)
         no_memory |= rt_csv_put_field(f, row->error);
         fputc('\n', f);
     }
-    return cohort_csv_commit(&o, no_memory, err);
+    return rt_output_finish(&o, no_memory, "the cohort table", err);
 }
 
 /* The nights of a group: the scored ones, or all with failed ones. */

@@ -133,7 +133,7 @@ rt_status cohort_write_subjects(const char *path, const cohort_subjects *subject
         }
         fputc('\n', f);
     }
-    return cohort_csv_commit(&o, no_memory, err);
+    return rt_output_finish(&o, no_memory, "the subjects table", err);
 }
 
 rt_status cohort_subject_rows(const cohort_row *rows, size_t n_rows,

@@ -145,3 +145,13 @@ void rt_output_abort(rt_output *out)
         out->temp_path[0] = '\0';
     }
 }
+
+rt_status rt_output_finish(rt_output *out, int no_memory, const char *what, rt_error *err)
+{
+    if (no_memory || (out->file && ferror(out->file))) {
+        rt_output_abort(out);
+        return no_memory ? rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", out->path)
+                         : rt_fail(err, RT_ERR_IO, "%s: cannot write %s", out->path, what);
+    }
+    return rt_output_commit(out, err);
+}

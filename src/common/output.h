@@ -35,6 +35,11 @@ rt_status rt_output_commit(rt_output *out, rt_error *err);
 /* Removes the temporary file; safe to call after a failed commit or twice. */
 void rt_output_abort(rt_output *out);
 
+/* Ends an output written through out->file: aborts it when a writer ran out
+ * of memory (no_memory, RT_ERR_NOMEM) or the stream holds a write error
+ * (RT_ERR_IO, naming what was written: "the evidence list"), else commits it. */
+rt_status rt_output_finish(rt_output *out, int no_memory, const char *what, rt_error *err);
+
 /* The whole of an output composed in memory: len bytes (and a newline when
  * add_newline) written to path as above, begin to commit. A write error is
  * RT_ERR_IO naming what was written ("JSON", "the page"). */

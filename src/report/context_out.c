@@ -323,10 +323,5 @@ rt_status rt_night_write_periods_csv(const rt_night *night, const rt_recording *
             fputc('\n', f);
         }
     }
-    if (ferror(f) || no_memory) {
-        rt_output_abort(&out);
-        return no_memory ? rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", path)
-                         : rt_fail(err, RT_ERR_IO, "%s: cannot write the periods table", path);
-    }
-    return rt_output_commit(&out, err);
+    return rt_output_finish(&out, no_memory, "the periods table", err);
 }

@@ -123,10 +123,5 @@ rt_status rt_night_write_evidence_csv(const rt_night *night, const rt_recording 
         no_memory |= rt_csv_put_field(f, rules);
         fprintf(f, ",%d,%.1f\n", er->sinbar_any_minis, er->activity);
     }
-    if (ferror(f) || no_memory) {
-        rt_output_abort(&out);
-        return no_memory ? rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", path)
-                         : rt_fail(err, RT_ERR_IO, "%s: cannot write the evidence list", path);
-    }
-    return rt_output_commit(&out, err);
+    return rt_output_finish(&out, no_memory, "the evidence list", err);
 }

@@ -124,10 +124,5 @@ rt_status rt_night_write_minis_csv(const rt_night *night, const rt_recording *re
             fputc('\n', f);
         }
     }
-    if (ferror(f) || no_memory) {
-        rt_output_abort(&out);
-        return no_memory ? rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", path)
-                         : rt_fail(err, RT_ERR_IO, "%s: cannot write the mini-epoch table", path);
-    }
-    return rt_output_commit(&out, err);
+    return rt_output_finish(&out, no_memory, "the mini-epoch table", err);
 }
