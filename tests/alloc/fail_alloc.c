@@ -1,5 +1,7 @@
 /* Allocation failure injection for tests, linked only into remtone_failalloc
- * (a test build of the command-line program, tests/CMakeLists.txt). It
+ * (not a test itself: its checks -- exit 8, the message, no file left, no
+ * sanitizer report -- are made by tests/cli/test_alloc_failure.sh)
+ * a test build of the command-line program (tests/CMakeLists.txt). It
  * defines the C allocator's entry points, so the dynamic linker binds every
  * allocation of the process to them -- remtone's own, the C library's
  * (fopen, strdup, stdio buffers) and the dependencies' (FFTW, libxml2,
