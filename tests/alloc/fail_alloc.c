@@ -1,6 +1,6 @@
 /* Allocation failure injection for tests, linked only into remtone_failalloc
  * (not a test itself: its checks -- exit 8, the message, no file left, no
- * sanitizer report -- are made by tests/cli/test_alloc_failure.sh)
+ * sanitizer report -- are made by tests/cli/test_alloc_failure.sh),
  * a test build of the command-line program (tests/CMakeLists.txt). It
  * defines the C allocator's entry points, so the dynamic linker binds every
  * allocation of the process to them -- remtone's own, the C library's
