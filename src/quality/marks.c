@@ -201,10 +201,17 @@ static double box_mean(const double *x, size_t j, size_t h)
     return s / (double)h;
 }
 
-/* |step| into boundary j: |box after - box before|; needs h <= j <= n - h. */
-static double box_step(const double *x, size_t j, size_t h)
+/* The box steps of the whole signal, once: d[j] = |box_mean(x, j, h) -
+ * box_mean(x, j - h, h)|, the step into boundary j, for h <= j <= n - h
+ * (other entries are left as they are). The box means go into d first and
+ * are turned into steps from the top down, so each mean is still there when
+ * the step above it needs it. */
+static void box_steps(const double *x, size_t n, size_t h, double *d)
 {
-    return h == 1 ? fabs(x[j] - x[j - 1]) : fabs(box_mean(x, j, h) - box_mean(x, j - h, h));
+    for (size_t j = 0; j + h <= n; j++)
+        d[j] = box_mean(x, j, h);
+    for (size_t j = n - h; j >= h; j--)
+        d[j] = fabs(d[j] - d[j - h]);
 }
 
 /* Whether the step d into boundary i is an electrode's, not a muscle's: the
@@ -245,7 +252,7 @@ static bool electrode_step(const double *x, size_t n, size_t i, size_t h, double
  * leaving out 4 boxes next to i so the pop's own decay does not hide it),
  * that electrode_step() calls an electrode's. Taking the larger side keeps
  * the onset of a real burst, loud on one side, from being called a pop. */
-static void find_pops(const double *x, size_t n, double rate, mark_sink *k)
+static void find_pops(const double *x, size_t n, double rate, double *d, mark_sink *k)
 {
     size_t h = (size_t)llround(RT_QUALITY_POP_BOX_S * rate);
     if (h < 1)
@@ -254,33 +261,31 @@ static void find_pops(const double *x, size_t n, double rate, mark_sink *k)
     size_t side = (size_t)llround(RT_QUALITY_POP_SIDE_S * rate);
     if (side == 0 || n < 2 * (side + gap + h) + 2)
         return;
-    /* d[j] = box_step(x, j, h); left window d[i-gap-side .. i-gap),
-     * right window d(i+gap .. i+gap+side]. */
+    /* left window d[i-gap-side .. i-gap), right window d(i+gap .. i+gap+side] */
+    box_steps(x, n, h, d);
     double left = 0.0, right = 0.0;
     size_t first = side + gap + h, last = n - side - gap - h; /* inclusive range of i */
-#define DIFF(j) box_step(x, (j), h)
     for (size_t j = first - gap - side; j < first - gap; j++)
-        left += DIFF(j);
+        left += d[j];
     for (size_t j = first + gap + 1; j <= first + gap + side; j++)
-        right += DIFF(j);
+        right += d[j];
     for (size_t i = first; i <= last; i++) {
-        double d = DIFF(i);
+        double step = d[i];
         double ref = fmax(left, right) / (double)side;
-        if (isfinite(d) && d >= RT_QUALITY_POP_MIN_UV && d > RT_QUALITY_POP_RATIO * ref &&
-            electrode_step(x, n, i, h, rate, d)) {
+        if (isfinite(step) && step >= RT_QUALITY_POP_MIN_UV && step > RT_QUALITY_POP_RATIO * ref &&
+            electrode_step(x, n, i, h, rate, step)) {
             double t = (double)i / rate;
             sink_add(k, t - RT_QUALITY_POP_BEFORE_S, t + RT_QUALITY_POP_AFTER_S);
         }
         if (i < last) {
-            left += DIFF(i - gap) - DIFF(i - gap - side);
-            right += DIFF(i + 1 + gap + side) - DIFF(i + 1 + gap);
+            left += d[i - gap] - d[i - gap - side];
+            right += d[i + 1 + gap + side] - d[i + 1 + gap];
         }
     }
-#undef DIFF
 }
 
 size_t rt_quality_marks(const double *raw_uv, size_t n, double rate_hz, const rt_channel_info *ch,
-                        rt_quality_mark *marks, size_t cap)
+                        double *work, rt_quality_mark *marks, size_t cap)
 {
     if (!raw_uv || n == 0 || !(rate_hz > 0.0) || !isfinite(rate_hz))
         return 0;
@@ -292,7 +297,7 @@ size_t rt_quality_marks(const double *raw_uv, size_t n, double rate_hz, const rt
     sink_begin(&k, RT_QUALITY_FLAT);
     find_flat(raw_uv, n, rate_hz, &k);
     sink_begin(&k, RT_QUALITY_POP);
-    find_pops(raw_uv, n, rate_hz, &k);
+    find_pops(raw_uv, n, rate_hz, work, &k);
     return k.count;
 }
 

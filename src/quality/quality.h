@@ -70,9 +70,10 @@ typedef struct rt_quality_mark {
  * reason, then start; marks of one reason never overlap, marks of different
  * reasons may. Writes at most cap marks (marks may be NULL when cap is 0);
  * returns how many were found (may exceed cap: call again with more room).
+ * work is room for n doubles, overwritten (the pop detector's box steps).
  * Allocates nothing; never fails; non-finite samples count as clipped. */
 size_t rt_quality_marks(const double *raw_uv, size_t n, double rate_hz, const rt_channel_info *ch,
-                        rt_quality_mark *marks, size_t cap);
+                        double *work, rt_quality_mark *marks, size_t cap);
 
 /* Seconds covered by the union of the marks with the given reason
  * (reason = RT_QUALITY_REASON_COUNT: of every reason), clipped to

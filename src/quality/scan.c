@@ -50,7 +50,7 @@ static rt_status channel_marks(rt_recording *rec, const rt_role_source *src, dou
         rt_status st = read_chunk(rec, src, t0, dur, buf, scratch, cap, &n, err);
         if (st != RT_OK)
             return st;
-        size_t found = rt_quality_marks(*buf, n, src->rate_hz, info, marks, 256);
+        size_t found = rt_quality_marks(*buf, n, src->rate_hz, info, *scratch, marks, 256);
         if (found > 256)
             found = 256; /* beyond 256 marks in 5 minutes the count is a floor */
         for (size_t k = 0; k < found; k++)

@@ -203,12 +203,14 @@ rt_status rt_condition_beats_with(rt_recording *rec, const rt_role_map *roles, d
 static rt_status stretch_marks(const rt_conditioner *c, rt_stretch *s, size_t n_padded,
                                double offset_s, rt_error *err)
 {
-    size_t found = rt_quality_marks(s->buf, n_padded, s->rate_hz, c->info, s->marks, s->marks_cap);
+    size_t found = rt_quality_marks(s->buf, n_padded, s->rate_hz, c->info, s->scratch, s->marks,
+                                    s->marks_cap);
     if (found > s->marks_cap) {
         rt_status st = grow((void **)&s->marks, &s->marks_cap, found + 16, sizeof *s->marks, err);
         if (st != RT_OK)
             return st;
-        found = rt_quality_marks(s->buf, n_padded, s->rate_hz, c->info, s->marks, s->marks_cap);
+        found = rt_quality_marks(s->buf, n_padded, s->rate_hz, c->info, s->scratch, s->marks,
+                                    s->marks_cap);
     }
     size_t kept = 0;
     for (size_t k = 0; k < found; k++) {

@@ -19,6 +19,20 @@
 static const double PI = 3.14159265358979323846;
 static const double RATE = 512.0;
 
+/* Room for the marks' work array of n doubles (kept between calls; freed at exit). */
+static double *work_buf;
+static double *work_for(size_t n)
+{
+    static size_t cap;
+    if (n > cap) {
+        free(work_buf);
+        work_buf = malloc(n * sizeof *work_buf);
+        assert_non_null(work_buf);
+        cap = n;
+    }
+    return work_buf;
+}
+
 static double power(const double *x, size_t n)
 {
     double s = 0.0;
@@ -55,6 +69,7 @@ static int cleanup(void **state)
 {
     (void)state;
     rt_fft_plans_cleanup();
+    free(work_buf);
     return 0;
 }
 
@@ -194,7 +209,7 @@ static void test_marks_none_on_clean(void **state)
     double *x = clean_with_bursts(n, RATE);
     rt_channel_info ch = chin_info(RATE);
     rt_quality_mark marks[8];
-    size_t k = rt_quality_marks(x, n, RATE, &ch, marks, 8);
+    size_t k = rt_quality_marks(x, n, RATE, &ch, work_for(n), marks, 8);
     for (size_t i = 0; i < k && i < 8; i++)
         print_message("# unexpected %s %.2f-%.2f\n", rt_quality_reason_name(marks[i].reason),
                       marks[i].start_s, marks[i].end_s);
@@ -226,7 +241,7 @@ static void test_marks_clipping(void **state)
     }
     rt_channel_info ch = chin_info(RATE);
     rt_quality_mark marks[16];
-    size_t k = rt_quality_marks(x, n, RATE, &ch, marks, 16), f = 0;
+    size_t k = rt_quality_marks(x, n, RATE, &ch, work_for(n), marks, 16), f = 0;
     assert_int_equal(marks_of(marks, k, RT_QUALITY_CLIPPING, &f), 1);
     /* the swing first reaches 500 at asin(1/3)/(2 pi) = 0.054 s; marks widen by 0.25 s */
     assert_true(fabs(marks[f].start_s - (20.054 - RT_QUALITY_CLIP_PAD_S)) < 0.02);
@@ -239,10 +254,10 @@ static void test_marks_clipping(void **state)
     ch.uv_per_unit = 1000.0;
     for (size_t i = 0; i < n; i++)
         x[i] *= 1000.0;
-    k = rt_quality_marks(x, n, RATE, &ch, marks, 16);
+    k = rt_quality_marks(x, n, RATE, &ch, work_for(n), marks, 16);
     assert_int_equal(marks_of(marks, k, RT_QUALITY_CLIPPING, &f), 1);
     /* no header limits: no clipping looked for */
-    k = rt_quality_marks(x, n, RATE, NULL, marks, 16);
+    k = rt_quality_marks(x, n, RATE, NULL, work_for(n), marks, 16);
     assert_int_equal(marks_of(marks, k, RT_QUALITY_CLIPPING, &f), 0);
     free(x);
 }
@@ -263,7 +278,7 @@ static void test_marks_flat(void **state)
         x[i] = 0.01 * rt_test_gauss();
     rt_channel_info ch = chin_info(RATE);
     rt_quality_mark marks[16];
-    size_t k = rt_quality_marks(x, n, RATE, &ch, marks, 16), f = 0;
+    size_t k = rt_quality_marks(x, n, RATE, &ch, work_for(n), marks, 16), f = 0;
     assert_int_equal(marks_of(marks, k, RT_QUALITY_FLAT, &f), 2);
     /* block-aligned detection: within one 0.5-s block of the true edges */
     assert_true(fabs(marks[f].start_s - 10.0) <= 0.5 && fabs(marks[f].end_s - 15.0) <= 0.5);
@@ -272,7 +287,7 @@ static void test_marks_flat(void **state)
     assert_true(fabs(rt_quality_marked_s(marks, k, RT_QUALITY_FLAT, 60.0) -
                      (marks[f].end_s - marks[f].start_s + 20.0)) < 0.02);
     /* the count is returned even when it exceeds cap */
-    assert_int_equal(rt_quality_marks(x, n, RATE, &ch, NULL, 0), k);
+    assert_int_equal(rt_quality_marks(x, n, RATE, &ch, work_for(n), NULL, 0), k);
     free(x);
 }
 
@@ -318,7 +333,7 @@ static void test_marks_at_their_limits(void **state)
     assert_true(expect > 0 && expect < n_groups); /* the limit falls between the groups */
     rt_channel_info ch = chin_info(RATE);
     rt_quality_mark marks[64];
-    size_t k = rt_quality_marks(x, n, RATE, NULL, marks, 64), f = 0;
+    size_t k = rt_quality_marks(x, n, RATE, NULL, work_for(n), marks, 64), f = 0;
     assert_int_equal(marks_of(marks, k, RT_QUALITY_FLAT, &f), expect);
     for (size_t g = 0, m = 0; g < n_groups; g++) {
         if (!quiet[g])
@@ -341,7 +356,7 @@ static void test_marks_at_their_limits(void **state)
         clips += !isfinite(probes[p]) || probes[p] >= ch.phys_max - tol ||
                  probes[p] <= ch.phys_min + tol;
     }
-    k = rt_quality_marks(y, n, RATE, &ch, marks, 64);
+    k = rt_quality_marks(y, n, RATE, &ch, work_for(n), marks, 64);
     assert_int_equal(marks_of(marks, k, RT_QUALITY_CLIPPING, &f), clips);
     free(x);
     free(y);
@@ -361,7 +376,7 @@ static void test_marks_pops(void **state)
     x[(size_t)(29.0 * RATE)] += 60.0;
     rt_channel_info ch = chin_info(RATE);
     rt_quality_mark marks[16];
-    size_t k = rt_quality_marks(x, n, RATE, &ch, marks, 16), f = 0;
+    size_t k = rt_quality_marks(x, n, RATE, &ch, work_for(n), marks, 16), f = 0;
     for (size_t i = 0; i < k && i < 16; i++)
         print_message("# %s %.3f-%.3f\n", rt_quality_reason_name(marks[i].reason), marks[i].start_s,
                       marks[i].end_s);
@@ -401,13 +416,13 @@ static void test_marks_spikes_are_not_pops(void **state)
         }
         rt_channel_info ch = chin_info(rate);
         rt_quality_mark marks[64];
-        size_t f = 0, k = rt_quality_marks(x, n, rate, &ch, marks, 64);
+        size_t f = 0, k = rt_quality_marks(x, n, rate, &ch, work_for(n), marks, 64);
         print_message("# %g Hz: %zu pop marks on motor-unit spikes\n", rate,
                       marks_of(marks, k, RT_QUALITY_POP, &f));
         assert_int_equal(marks_of(marks, k, RT_QUALITY_POP, &f), 0);
         for (size_t i = (size_t)(10.06 * rate); i < n; i++)
             x[i] += 100.0 * exp(-((double)i / rate - 10.06) / 0.1);
-        k = rt_quality_marks(x, n, rate, &ch, marks, 64);
+        k = rt_quality_marks(x, n, rate, &ch, work_for(n), marks, 64);
         assert_int_equal(marks_of(marks, k, RT_QUALITY_POP, &f), 1);
         assert_true(marks[f].start_s <= 10.06 && marks[f].end_s > 10.06);
         free(x);
@@ -420,15 +435,15 @@ static void test_marks_edges(void **state)
     rt_channel_info ch = chin_info(RATE);
     rt_quality_mark marks[8];
     double one = 1.0;
-    assert_int_equal(rt_quality_marks(&one, 0, RATE, &ch, marks, 8), 0);
-    assert_int_equal(rt_quality_marks(&one, 1, RATE, &ch, marks, 8), 0);
-    assert_int_equal(rt_quality_marks(&one, 1, 0.0, &ch, marks, 8), 0);
-    assert_int_equal(rt_quality_marks(NULL, 10, RATE, &ch, marks, 8), 0);
+    assert_int_equal(rt_quality_marks(&one, 0, RATE, &ch, work_for(1), marks, 8), 0);
+    assert_int_equal(rt_quality_marks(&one, 1, RATE, &ch, work_for(1), marks, 8), 0);
+    assert_int_equal(rt_quality_marks(&one, 1, 0.0, &ch, work_for(1), marks, 8), 0);
+    assert_int_equal(rt_quality_marks(NULL, 10, RATE, &ch, work_for(10), marks, 8), 0);
     double x[40];
     for (int i = 0; i < 40; i++)
         x[i] = sin(i);
     x[20] = NAN;
-    size_t k = rt_quality_marks(x, 40, 1.0, &ch, marks, 8), f = 0;
+    size_t k = rt_quality_marks(x, 40, 1.0, &ch, work_for(40), marks, 8), f = 0;
     assert_int_equal(marks_of(marks, k, RT_QUALITY_CLIPPING, &f), 1);
     assert_true(marks[f].start_s <= 20.0 && marks[f].end_s >= 21.0);
     assert_true(rt_quality_marked_s(marks, 0, RT_QUALITY_POP, 10.0) == 0.0);

@@ -244,7 +244,9 @@ static void test_marks_in_signal(void **state)
     rt_channel_info ci;
     double *x = rt_test_read_channel(dir_art, "Chin1-Chin2", 0.0, -1, &n, &ci);
     rt_quality_mark marks[64];
-    size_t k = rt_quality_marks(x, n, ci.rate_hz, &ci, marks, 64);
+    double *work = malloc(n * sizeof *work);
+    assert_non_null(work);
+    size_t k = rt_quality_marks(x, n, ci.rate_hz, &ci, work, marks, 64);
     assert_true(k <= 64);
     json_t *t = rt_test_load_truth(dir_art), *pops = json_object_get(json_object_get(t, "artifacts"), "pops");
     size_t n_clip = 0, n_flat = 0, n_pop = 0, pops_outside = 0;
@@ -276,11 +278,15 @@ static void test_marks_in_signal(void **state)
     assert_int_equal(n_flat, 1);
     assert_int_equal(n_pop, pops_outside);
     json_decref(t);
+    free(work);
     free(x);
     /* the clean night: no marks at all on any EMG channel */
     for (int c = 0; c < 5; c++) {
         x = rt_test_read_channel(dir_clean, rt_test_role_labels[c], 0.0, -1, &n, &ci);
-        assert_int_equal(rt_quality_marks(x, n, ci.rate_hz, &ci, marks, 64), 0);
+        double *w = malloc(n * sizeof *w);
+        assert_non_null(w);
+        assert_int_equal(rt_quality_marks(x, n, ci.rate_hz, &ci, w, marks, 64), 0);
+        free(w);
         free(x);
     }
 }
