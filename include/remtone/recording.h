@@ -117,6 +117,21 @@ const rt_annotation *rt_recording_annotation(const rt_recording *rec, size_t ind
 rt_status rt_recording_read_uv(rt_recording *rec, int channel, long long first, size_t n,
                                double *out, rt_error *err);
 
+/* The data records of the last span read, kept for the next read of another
+ * channel over the same span: a night's channels are conditioned one after
+ * the other over the same minutes, and each reading whole data records would
+ * copy every record from the file once per channel. One keep serves one
+ * thread at a time; it holds at most RT_RECORD_KEEP_MAX_BYTES (longer spans
+ * are read directly). The samples are the same with or without it. */
+#define RT_RECORD_KEEP_MAX_BYTES (8u << 20)
+typedef struct rt_record_keep rt_record_keep;
+rt_status rt_record_keep_new(rt_record_keep **out, rt_error *err);
+void rt_record_keep_free(rt_record_keep *keep);
+
+/* rt_recording_read_uv through keep (NULL: read directly). */
+rt_status rt_recording_read_uv_kept(rt_recording *rec, rt_record_keep *keep, int channel,
+                                    long long first, size_t n, double *out, rt_error *err);
+
 /* Recognises a physical dimension as a voltage: "V", "mV", "uV" (also "UV",
  * "uv", "\xb5V" in Latin-1, "\xc2\xb5V" and "\xce\xbcV" in UTF-8) and "nV";
  * the volt letter may be "V" or "v", surrounding spaces are ignored. The

@@ -69,6 +69,11 @@ rt_status rt_roles_resolve(const rt_recording *rec, const rt_role_options *optio
 rt_status rt_role_read_uv(rt_recording *rec, const rt_role_source *src, long long first,
                           size_t n, double *out, double *scratch, rt_error *err);
 
+/* rt_role_read_uv through a keep of data records (rt_recording_read_uv_kept; NULL: none). */
+rt_status rt_role_read_uv_kept(rt_recording *rec, rt_record_keep *keep, const rt_role_source *src,
+                               long long first, size_t n, double *out, double *scratch,
+                               rt_error *err);
+
 #ifdef __cplusplus
 }
 #endif

@@ -691,13 +691,106 @@ static rt_status read_direct(const rt_recording *rec, int channel, long long fir
     return s;
 }
 
+/* ---- kept records ---------------------------------------------------------- */
+
+struct rt_record_keep {
+    const rt_recording *rec; /* whose records are kept (NULL: none yet) */
+    long long r0, r1;        /* records [r0, r1) */
+    unsigned char *bytes;
+    size_t cap;
+};
+
+rt_status rt_record_keep_new(rt_record_keep **out, rt_error *err)
+{
+    *out = rt_calloc(1, sizeof **out);
+    return *out ? RT_OK : rt_fail(err, RT_ERR_NOMEM, "out of memory for the record keep");
+}
+
+void rt_record_keep_free(rt_record_keep *keep)
+{
+    if (!keep)
+        return;
+    free(keep->bytes);
+    free(keep);
+}
+
+/* Records [r0, r1) into the keep, one record more on each side (within the
+ * file) so the channels' own roundings of one time span still fall inside. */
+static rt_status keep_records(const rt_recording *rec, rt_record_keep *keep, int channel,
+                              long long r0, long long r1, rt_error *err)
+{
+    const long long records = rec->channels[channel].n_samples / rec->slots[channel].spr;
+    r0 = r0 > 0 ? r0 - 1 : 0;
+    r1 = r1 < records ? r1 + 1 : records;
+    size_t len = (size_t)((r1 - r0) * rec->record_bytes);
+    if (len > keep->cap) {
+        unsigned char *b = realloc(keep->bytes, len);
+        if (!b)
+            return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory reading channel \"%s\"", rec->path,
+                           rec->channels[channel].label);
+        keep->bytes = b;
+        keep->cap = len;
+    }
+    keep->rec = NULL; /* until the read succeeds */
+    rt_status s = read_bytes_at(rec, channel, keep->bytes, len,
+                                rec->header_bytes + r0 * rec->record_bytes, err);
+    if (s == RT_OK) {
+        keep->rec = rec;
+        keep->r0 = r0;
+        keep->r1 = r1;
+    }
+    return s;
+}
+
+/* Samples [first, first + n) of channel from the kept records, read into the
+ * keep first when they are not there; false when the span is longer than a
+ * keep holds (the caller reads directly). */
+static rt_status read_kept(const rt_recording *rec, rt_record_keep *keep, int channel,
+                           long long first, size_t n, double *out, bool *done, rt_error *err)
+{
+    const record_slot *slot = &rec->slots[channel];
+    const long long spr = slot->spr, rb = rec->record_bytes, width = rec->sample_bytes;
+    const long long end = first + (long long)n;
+    long long r0 = first / spr, r1 = (end - 1) / spr + 1;
+    *done = false;
+    if (keep->rec != rec || r0 < keep->r0 || r1 > keep->r1) {
+        if ((r1 - r0 + 2) * rb > (long long)RT_RECORD_KEEP_MAX_BYTES)
+            return RT_OK;
+        rt_status s = keep_records(rec, keep, channel, r0, r1, err);
+        if (s != RT_OK)
+            return s;
+    }
+    const double factor = rec->channels[channel].uv_per_unit;
+    for (long long cur = first; cur < end;) {
+        long long r = cur / spr, k = cur % spr;
+        long long count = min_ll(end, (r + 1) * spr) - cur;
+        convert(keep->bytes + (r - keep->r0) * rb + slot->offset + k * width, (size_t)count,
+                (int)width, slot, factor, out + (cur - first));
+        cur += count;
+    }
+    *done = true;
+    return RT_OK;
+}
+
 rt_status rt_recording_read_uv(rt_recording *rec, int channel, long long first, size_t n, double *out,
                                rt_error *err)
+{
+    return rt_recording_read_uv_kept(rec, NULL, channel, first, n, out, err);
+}
+
+rt_status rt_recording_read_uv_kept(rt_recording *rec, rt_record_keep *keep, int channel,
+                                    long long first, size_t n, double *out, rt_error *err)
 {
     rt_status s = check_read_range(rec, channel, first, n, err);
     if (s != RT_OK || n == 0)
         return s;
     if (rec->fd < 0)
         return read_through_edflib(rec, channel, first, n, out, err);
+    if (keep) {
+        bool done = false;
+        s = read_kept(rec, keep, channel, first, n, out, &done, err);
+        if (s != RT_OK || done)
+            return s;
+    }
     return read_direct(rec, channel, first, n, out, err);
 }

@@ -482,15 +482,22 @@ rt_status rt_roles_resolve(const rt_recording *rec, const rt_role_options *optio
 rt_status rt_role_read_uv(rt_recording *rec, const rt_role_source *src, long long first, size_t n,
                           double *out, double *scratch, rt_error *err)
 {
+    return rt_role_read_uv_kept(rec, NULL, src, first, n, out, scratch, err);
+}
+
+rt_status rt_role_read_uv_kept(rt_recording *rec, rt_record_keep *keep, const rt_role_source *src,
+                               long long first, size_t n, double *out, double *scratch,
+                               rt_error *err)
+{
     if (src->channel < 0)
         return rt_fail(err, RT_ERR_CHANNEL, "%s: the role has no channel", rt_recording_path(rec));
     if (src->reference >= 0 && !scratch)
         return rt_fail(err, RT_ERR_USAGE, "%s: reading %s needs a scratch buffer", rt_recording_path(rec),
                        src->label);
-    rt_status s = rt_recording_read_uv(rec, src->channel, first, n, out, err);
+    rt_status s = rt_recording_read_uv_kept(rec, keep, src->channel, first, n, out, err);
     if (s != RT_OK || src->reference < 0)
         return s;
-    s = rt_recording_read_uv(rec, src->reference, first, n, scratch, err);
+    s = rt_recording_read_uv_kept(rec, keep, src->reference, first, n, scratch, err);
     for (size_t i = 0; s == RT_OK && i < n; i++)
         out[i] -= scratch[i];
     return s;

@@ -53,16 +53,16 @@ static rt_status grow_pair(double **a, double **b, size_t *cap, size_t need, rt_
 }
 
 /* Reads [first, first + n) of a role into *buf (with *scratch for a bipolar
- * derivation; both grown as pages.h arrays), or fails with the reader's
- * message. */
-static rt_status read_raw(rt_recording *rec, const rt_role_source *src, long long first, size_t n,
-                          double **buf, size_t *buf_cap, double **scratch, size_t *scratch_cap,
-                          rt_error *err)
+ * derivation; both grown as pages.h arrays) through keep (may be NULL), or
+ * fails with the reader's message. */
+static rt_status read_raw(rt_recording *rec, rt_record_keep *keep, const rt_role_source *src,
+                          long long first, size_t n, double **buf, size_t *buf_cap,
+                          double **scratch, size_t *scratch_cap, rt_error *err)
 {
     rt_status st = rt_pages_reserve(buf, buf_cap, n + 1, err);
     if (st == RT_OK)
         st = rt_pages_reserve(scratch, scratch_cap, n + 1, err);
-    return st == RT_OK ? rt_role_read_uv(rec, src, first, n, *buf, *scratch, err) : st;
+    return st == RT_OK ? rt_role_read_uv_kept(rec, keep, src, first, n, *buf, *scratch, err) : st;
 }
 
 /* The per-second arrays of a stretch, grown together. */
@@ -104,7 +104,7 @@ rt_status rt_conditioner_open(rt_recording *rec, const rt_role_source *src,
         size_t n = (size_t)(llround((probe_t0_s + seconds) * src->rate_hz) - first);
         double *x = NULL, *scratch = NULL;
         size_t x_cap = 0, scratch_cap = 0;
-        rt_status st = read_raw(rec, src, first, n, &x, &x_cap, &scratch, &scratch_cap, err);
+        rt_status st = read_raw(rec, NULL, src, first, n, &x, &x_cap, &scratch, &scratch_cap, err);
         if (st == RT_OK)
             st = rt_mains_estimate(x, n, src->rate_hz, spec.low_hz, spec.high_hz, &c->mains, err);
         rt_pages_free(x, x_cap);
@@ -181,7 +181,8 @@ rt_status rt_condition_beats_with(rt_recording *rec, const rt_role_map *roles, d
     long long pf, pl;
     padded(first, last, rate, rt_recording_channel(rec, src->channel)->n_samples, &pf, &pl);
     size_t n = (size_t)(pl - pf);
-    rt_status st = read_raw(rec, src, pf, n, &w->x, &w->x_cap, &w->scratch, &w->scratch_cap, err);
+    rt_status st = read_raw(rec, w->keep, src, pf, n, &w->x, &w->x_cap, &w->scratch,
+                            &w->scratch_cap, err);
     if (st == RT_OK)
         st = rt_pages_reserve(&w->detector, &w->detector_cap, 3 * n, err);
     /* without an ECG channel the beats come from the raw chin, before the
@@ -304,7 +305,7 @@ rt_status rt_condition_stretch_for(const rt_conditioner *c, double t0_s, size_t 
     s->seconds = seconds;
     s->rate_hz = rate;
     s->n = (size_t)(last - first);
-    rt_status st = read_raw(c->rec, &c->src, pf, n_padded, &s->buf, &s->cap, &s->scratch,
+    rt_status st = read_raw(c->rec, s->keep, &c->src, pf, n_padded, &s->buf, &s->cap, &s->scratch,
                             &s->scratch_cap, err);
     if (st == RT_OK)
         st = reserve_seconds(s, seconds, err);

@@ -73,6 +73,7 @@ typedef struct rt_beats_work {
     double *x, *scratch;     /* the padded stretch read, and the reader's scratch */
     double *detector;        /* the QRS detector's arrays: 3 per sample */
     size_t x_cap, scratch_cap, detector_cap;
+    rt_record_keep *keep;    /* the caller's data records kept between reads, or NULL */
 } rt_beats_work;
 
 /* rt_condition_beats with the caller's buffers. */
@@ -99,6 +100,7 @@ typedef struct rt_stretch {
     rt_time_span *qrs;        /* QRS windows relative to t0 (only when ECG was found) */
     size_t n_qrs;
     rt_ecg_removal ecg;       /* what the template subtraction found */
+    rt_record_keep *keep;     /* the caller's data records kept between reads, or NULL */
     /* private: buf, scratch and rect_cum are pages.h arrays */
     double *buf, *scratch;
     size_t cap, scratch_cap, sec_cap, marks_cap, qrs_cap, cum_cap;

@@ -43,6 +43,7 @@ typedef struct worker_ctx {
     bool copied[RT_ROLE_COUNT]; /* cond[r] is this worker's copy, closed with it */
     rt_stretch st;
     rt_beats_work beats;     /* the beats' read and detector buffers */
+    rt_record_keep *keep;    /* data records kept between this worker's reads */
     double *bg;              /* background per second of the current bout */
     size_t *tonic;           /* samples at the tonic level, per second of the bout */
     size_t *above;           /* samples above the AASM chin level, per second */
@@ -1025,6 +1026,10 @@ static rt_status open_workers(pass_ctx *c, unsigned threads, size_t most_items, 
     c->n_workers = threads;
     for (unsigned w = 0; w < threads; w++) {
         worker_ctx *wk = &c->workers[w];
+        rt_status made = rt_record_keep_new(&wk->keep, err);
+        if (made != RT_OK)
+            return made;
+        wk->st.keep = wk->beats.keep = wk->keep;
         for (int r = 0; r < RT_ROLE_COUNT; r++) {
             if (!c->cond_open[r])
                 continue;
@@ -1082,6 +1087,7 @@ static void pass_ctx_free(pass_ctx *c)
                 rt_conditioner_close(&wk->cond[r]);
         rt_stretch_free(&wk->st);
         rt_beats_work_free(&wk->beats);
+        rt_record_keep_free(wk->keep);
         free(wk->bg);
         free(wk->tonic);
         free(wk->above);

@@ -8,7 +8,9 @@
  * records of several durations, records larger than one read, and random
  * digital values with many at, and beyond, the digital minimum and maximum
  * (EDFlib clamps those). Stretches are random in offset and length, plus the
- * whole channel, single samples and the last samples of the file.
+ * whole channel, single samples and the last samples of the file. Each
+ * stretch is also read through a keep of data records
+ * (rt_recording_read_uv_kept), which must give the same values.
  *
  * EDFlib is opened on the same file while remtone has it open: EDFlib refuses
  * a file open twice in a process, so this also proves remtone's recording
@@ -149,19 +151,32 @@ static void edflib_read(int handle, int channel, long long first, size_t n, doub
             out[i] *= factor;
 }
 
-static void compare_stretch(rt_recording *rec, int handle, int channel, long long first, size_t n)
+static void compare_values(const rt_recording *rec, const rt_channel_info *ch, const char *how,
+                           long long first, size_t n, const double *got, const double *want)
+{
+    for (size_t i = 0; i < n; i++)
+        if (memcmp(&got[i], &want[i], sizeof got[i]) != 0)
+            fail_msg("%s \"%s\" sample %lld (stretch %lld+%zu, %s): remtone %.17g, EDFlib %.17g",
+                     rt_recording_path(rec), ch->label, first + (long long)i, first, n, how, got[i],
+                     want[i]);
+}
+
+/* The stretch read directly and through keep (whose records are those of the
+ * previous reads, of any channel: hits and misses both) against EDFlib. */
+static void compare_stretch(rt_recording *rec, rt_record_keep *keep, int handle, int channel,
+                            long long first, size_t n)
 {
     const rt_channel_info *ch = rt_recording_channel(rec, channel);
     double *got = malloc((n ? n : 1) * sizeof *got), *want = malloc((n ? n : 1) * sizeof *want);
     assert_true(got && want);
     rt_error err;
+    edflib_read(handle, channel, first, n, ch->uv_per_unit, want);
     if (rt_recording_read_uv(rec, channel, first, n, got, &err) != RT_OK)
         fail_msg("%s", err.message);
-    edflib_read(handle, channel, first, n, ch->uv_per_unit, want);
-    for (size_t i = 0; i < n; i++)
-        if (memcmp(&got[i], &want[i], sizeof got[i]) != 0)
-            fail_msg("%s \"%s\" sample %lld (stretch %lld+%zu): remtone %.17g, EDFlib %.17g",
-                     rt_recording_path(rec), ch->label, first + (long long)i, first, n, got[i], want[i]);
+    compare_values(rec, ch, "direct", first, n, got, want);
+    if (rt_recording_read_uv_kept(rec, keep, channel, first, n, got, &err) != RT_OK)
+        fail_msg("%s", err.message);
+    compare_values(rec, ch, "kept records", first, n, got, want);
     free(got);
     free(want);
 }
@@ -181,24 +196,27 @@ static void compare_file(const file_spec *f)
         fail_msg("%s: EDFlib cannot open it beside remtone (error %d): remtone keeps EDFlib's handle",
                  path, h.filetype);
     assert_int_equal(h.edfsignals, rt_recording_channel_count(rec));
+    rt_record_keep *keep = NULL;
+    assert_int_equal(rt_record_keep_new(&keep, &err), RT_OK);
     for (int c = 0; c < h.edfsignals; c++) {
         long long total = rt_recording_channel(rec, c)->n_samples, spr = h.signalparam[c].smp_in_datarecord;
-        compare_stretch(rec, h.handle, c, 0, (size_t)total);
-        compare_stretch(rec, h.handle, c, 0, 1);
-        compare_stretch(rec, h.handle, c, total - 1, 1);
-        compare_stretch(rec, h.handle, c, total - (total > 3 * spr / 2 ? 3 * spr / 2 : total),
+        compare_stretch(rec, keep, h.handle, c, 0, (size_t)total);
+        compare_stretch(rec, keep, h.handle, c, 0, 1);
+        compare_stretch(rec, keep, h.handle, c, total - 1, 1);
+        compare_stretch(rec, keep, h.handle, c, total - (total > 3 * spr / 2 ? 3 * spr / 2 : total),
                         (size_t)(total > 3 * spr / 2 ? 3 * spr / 2 : total));
         if (total > spr + 1)
-            compare_stretch(rec, h.handle, c, spr - 1, (size_t)spr + 2);
+            compare_stretch(rec, keep, h.handle, c, spr - 1, (size_t)spr + 2);
         for (int i = 0; i < RANDOM_READS; i++) {
             long long first = (long long)(rt_test_uniform() * (double)total);
             long long room = total - first;
             /* short stretches most of the time, some up to the end */
             long long n = rt_test_uniform() < 0.7 ? 1 + (long long)(rt_test_uniform() * (double)(3 * spr))
                                                   : 1 + (long long)(rt_test_uniform() * (double)room);
-            compare_stretch(rec, h.handle, c, first, (size_t)(n < room ? n : room));
+            compare_stretch(rec, keep, h.handle, c, first, (size_t)(n < room ? n : room));
         }
     }
+    rt_record_keep_free(keep);
     edfclose_file(h.handle);
     rt_recording_close(rec);
 }
