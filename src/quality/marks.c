@@ -208,8 +208,12 @@ static double box_mean(const double *x, size_t j, size_t h)
  * the step above it needs it. */
 static void box_steps(const double *x, size_t n, size_t h, double *d)
 {
-    for (size_t j = 0; j + h <= n; j++)
-        d[j] = box_mean(x, j, h);
+    if (h == 2) /* 385-640 Hz, the common rates: s / 2 and s * 0.5 are the same number */
+        for (size_t j = 0; j + 2 <= n; j++)
+            d[j] = (x[j] + x[j + 1]) * 0.5;
+    else
+        for (size_t j = 0; j + h <= n; j++)
+            d[j] = box_mean(x, j, h);
     for (size_t j = n - h; j >= h; j--)
         d[j] = fabs(d[j] - d[j - h]);
 }
@@ -271,8 +275,8 @@ static void find_pops(const double *x, size_t n, double rate, double *d, mark_si
         right += d[j];
     for (size_t i = first; i <= last; i++) {
         double step = d[i];
-        double ref = fmax(left, right) / (double)side;
-        if (isfinite(step) && step >= RT_QUALITY_POP_MIN_UV && step > RT_QUALITY_POP_RATIO * ref &&
+        if (isfinite(step) && step >= RT_QUALITY_POP_MIN_UV &&
+            step > RT_QUALITY_POP_RATIO * (fmax(left, right) / (double)side) &&
             electrode_step(x, n, i, h, rate, step)) {
             double t = (double)i / rate;
             sink_add(k, t - RT_QUALITY_POP_BEFORE_S, t + RT_QUALITY_POP_AFTER_S);
