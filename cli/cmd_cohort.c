@@ -283,6 +283,10 @@ static int merge_and_report(cohort_config *c)
             printf(", left out (no %s given)\n", t->by);
         else if (t->cutoffs_file[0])
             printf(", cutoffs in %s\n", t->cutoffs_file);
+        else if (t->positives == 0 || t->negatives == 0)
+            printf(", no cutoff: no \"%s\" %s in it\n",
+                   t->positives == 0 ? c->o.positive : c->o.negative,
+                   c->o.per_subject ? "subject" : "night");
         else
             printf(", no cutoff (calibration-strata.csv says why)\n");
     }

@@ -305,7 +305,7 @@ has aged-rescored "$work/out" "1 scored"
   echo "t6,t6/night.edf,t6/stages.csv,,control,,F"
 } > data/strata.csv
 expect strata-run 0 "$bin" cohort data/strata.csv --out strata --jobs 2 --by-sex --age-bands 50,65
-has strata-summary-empty "$work/out" 'age 50-64: 0 "case" and 0 "control" nights, no cutoff'
+has strata-summary-empty "$work/out" 'age 50-64: 0 "case" and 0 "control" nights, no cutoff: no "case" night in it'
 has strata-summary-unknown "$work/out" 'sex unknown: 1 "case" and 0 "control" nights, left out (no sex given)'
 expect strata-table 0 "$py" -c '
 import csv, sys
