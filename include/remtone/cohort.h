@@ -9,7 +9,8 @@
  * failure record (nights/ID.error.json). Every file is written to a
  * temporary name and renamed, so a killed run leaves no partial file. The
  * merge step reads those files back and writes cohort.csv, calibration.csv,
- * calibrated-cutoffs.csv and cohort.html.
+ * calibrated-cutoffs.csv and cohort.html (with strata by sex or age band,
+ * also calibration-strata.csv and calibrated-cutoffs-TAG.csv).
  *
  * Ownership: rt_manifest_load() makes a manifest (*out) freed by rt_manifest_free();
  * rt_roc_compute() fills an rt_roc whose arrays rt_roc_free() releases.
