@@ -209,9 +209,11 @@ static void strata_tables(rt_page *p, const cohort_strata *strata, const rt_coho
     rt_page_start(p, "p");
     rt_page_textf(p, "Each stratum is calibrated on its own %s as the whole cohort is; a stratum "
                      "without a scored \"%s\" or \"%s\" %s gets no cutoff. %s without the "
-                     "manifest's column are counted as unknown and left out. Small strata give "
-                     "wide intervals and unstable cutoffs.", unit, o->positive, o->negative,
-                  o->per_subject ? "subject" : "night", o->per_subject ? "Subjects" : "Nights");
+                     "manifest's column are counted as unknown and left out.%s Small strata "
+                     "give wide intervals and unstable cutoffs.", unit, o->positive, o->negative,
+                  o->per_subject ? "subject" : "night", o->per_subject ? "Subjects" : "Nights",
+                  o->per_subject ? " A subject is placed by the age and the sex of its first "
+                                   "visit that gives them." : "");
     rt_page_end_html(p);
     for (size_t first = 0; first < strata->n;) {
         size_t end = first;
