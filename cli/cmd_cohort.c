@@ -1,6 +1,7 @@
 /* remtone cohort MANIFEST --out DIR: score a cohort in parallel, resumably,
  * and gather its table and calibration; remtone cohort-merge DIR: gather
  * only (after the parts of a Slurm array). docs/cohort.md. */
+#include <dirent.h>
 #include <errno.h>
 #include <stdbool.h>
 #include <stdlib.h>
@@ -13,7 +14,14 @@
 #include "remtone/cohort.h"
 
 enum { KEY_OUT = 1, KEY_JOBS, KEY_FORCE, KEY_PART, KEY_CUTOFFS, KEY_POSITIVE, KEY_NEGATIVE,
-       KEY_QUIET, KEY_MIN_REM, KEY_THREADS, KEY_PAGES, KEY_PER_SUBJECT, KEY_CALIBRATE_CORRECTED };
+       KEY_QUIET, KEY_MIN_REM, KEY_THREADS, KEY_PAGES, KEY_PER_SUBJECT, KEY_CALIBRATE_CORRECTED,
+       KEY_BY_SEX, KEY_AGE_BANDS };
+
+/* The stratification options, the same for a run and a merge. */
+#define COHORT_STRATA_OPTIONS                                                                     \
+    {"by-sex", 0, KEY_BY_SEX, NULL, "also calibrate each sex (the manifest's sex column) apart"}, \
+    {"age-bands", 1, KEY_AGE_BANDS, "EDGES", "also calibrate each age band apart: ascending "     \
+     "whole years, e.g. 50,65 for <50, 50-64 and >=65 (the manifest's age column)"}
 
 static const cli_option OPTIONS[] = {
     {"out", 1, KEY_OUT, "DIR", "output folder (created when missing; required)"},
@@ -32,6 +40,7 @@ static const cli_option OPTIONS[] = {
      "of nights with a corrections file (default: remtone's automatic values)"},
     {"min-rem", 1, KEY_MIN_REM, "MIN", "least scorable REM minutes for an assessable night (default 5)"},
     {"per-subject", 0, KEY_PER_SUBJECT, NULL, "calibrate on subjects (each one's mean), not nights"},
+    COHORT_STRATA_OPTIONS,
     CLI_EXCLUSION_OPTIONS,
     {"quiet", 0, KEY_QUIET, NULL, "no progress line and no summary"},
     {0},
@@ -44,6 +53,7 @@ static const cli_option MERGE_OPTIONS[] = {
     {"per-subject", 0, KEY_PER_SUBJECT, NULL, "calibrate on subjects (each one's mean), not nights"},
     {"calibrate-corrected", 0, KEY_CALIBRATE_CORRECTED, NULL, "calibrate on the corrected values "
      "of nights with a corrections file (default: remtone's automatic values)"},
+    COHORT_STRATA_OPTIONS,
     {"quiet", 0, KEY_QUIET, NULL, "no summary"},
     {0},
 };
@@ -75,6 +85,31 @@ static int parse_part(cohort_config *c, const char *arg)
     return EXIT_OK;
 }
 
+/* --age-bands EDGES: 1 to RT_COHORT_AGE_EDGES_MAX whole years, comma-separated,
+ * strictly ascending, each 1..130. */
+static int parse_age_bands(cohort_config *c, const char *arg)
+{
+    const char *at = arg;
+    size_t n = 0;
+    for (;;) {
+        char *end = NULL;
+        long e = *at >= '0' && *at <= '9' ? strtol(at, &end, 10) : -1;
+        if (e < 1 || e > 130 || (*end != ',' && *end != '\0') || n == RT_COHORT_AGE_EDGES_MAX ||
+            (n > 0 && e <= c->o.age_edges[n - 1])) {
+            fprintf(stderr, "remtone %s: --age-bands must be 1 to %d ascending whole years "
+                            "between 1 and 130, comma-separated (e.g. 50,65), got '%s'\n",
+                    c->cmd, RT_COHORT_AGE_EDGES_MAX, arg);
+            return EXIT_USAGE;
+        }
+        c->o.age_edges[n++] = (int)e;
+        if (*end == '\0')
+            break;
+        at = end + 1;
+    }
+    c->o.n_age_edges = n;
+    return EXIT_OK;
+}
+
 static int on_option(void *ctx, int key, const char *arg)
 {
     cohort_config *c = ctx;
@@ -91,6 +126,8 @@ static int on_option(void *ctx, int key, const char *arg)
     case KEY_POSITIVE: c->o.positive = arg; c->o.groups_given = true; break;
     case KEY_NEGATIVE: c->o.negative = arg; c->o.groups_given = true; break;
     case KEY_CALIBRATE_CORRECTED: c->o.calibrate_corrected = true; break;
+    case KEY_BY_SEX: c->o.by_sex = true; break;
+    case KEY_AGE_BANDS: return parse_age_bands(c, arg);
     case KEY_QUIET: c->quiet = 1; break;
     case KEY_PART: return parse_part(c, arg);
     case KEY_JOBS:
@@ -140,20 +177,33 @@ static void show_progress(const rt_cohort_progress *p, void *user)
 }
 
 /* The files a run or a merge writes in the output folder (docs/cohort.md,
- * "Files"); none may be an input, however spelled (cli_check_outputs). The
- * inputs are the manifest, the cutoffs and every file the manifest names. */
+ * "Files"), with every calibrated-cutoffs-*.csv there (a merge writes or
+ * removes those of the strata); none may be an input, however spelled
+ * (cli_check_outputs). The inputs are the manifest, the cutoffs and every
+ * file the manifest names. */
 static int check_outputs(const cohort_config *c, const char *manifest_path, const rt_manifest *m)
 {
     static const char *const NAMES[] = {"cohort.csv", "calibration.csv", "calibrated-cutoffs.csv",
-                                        "cohort.html", "cohort.log", "subjects.csv"};
-    enum { N = sizeof NAMES / sizeof NAMES[0] };
-    char paths[N][4096];
-    cli_output outputs[N];
-    for (size_t i = 0; i < N; i++) {
-        snprintf(paths[i], sizeof paths[i], "%s/%s", c->o.out_dir, NAMES[i]);
-        outputs[i] = (cli_output){"out", paths[i]};
+                                        "cohort.html", "cohort.log", "subjects.csv",
+                                        "calibration-strata.csv"};
+    enum { N = sizeof NAMES / sizeof NAMES[0], MAX_OUT = N + 64 };
+    static char paths[MAX_OUT][4200];
+    cli_output outputs[MAX_OUT];
+    size_t n_out = 0;
+    for (; n_out < N; n_out++)
+        snprintf(paths[n_out], sizeof paths[n_out], "%s/%s", c->o.out_dir, NAMES[n_out]);
+    DIR *d = opendir(c->o.out_dir);
+    for (struct dirent *de; d && n_out < MAX_OUT && (de = readdir(d)) != NULL;) {
+        size_t len = strlen(de->d_name);
+        if (strncmp(de->d_name, "calibrated-cutoffs-", 19) == 0 && len > 23 &&
+            strcmp(de->d_name + len - 4, ".csv") == 0)
+            snprintf(paths[n_out++], sizeof paths[0], "%s/%s", c->o.out_dir, de->d_name);
     }
-    enum { PER_ROW = 5 };
+    if (d)
+        closedir(d);
+    for (size_t i = 0; i < n_out; i++)
+        outputs[i] = (cli_output){"out", paths[i]};
+    enum { PER_ROW = 6 };
     size_t n_inputs = 3 + (m ? PER_ROW * m->n_entries : 0);
     const char **inputs = calloc(n_inputs, sizeof *inputs);
     if (!inputs) {
@@ -165,10 +215,11 @@ static int check_outputs(const cohort_config *c, const char *manifest_path, cons
     inputs[2] = c->o.label_map_path;
     for (size_t i = 0; m && i < m->n_entries; i++) {
         const rt_manifest_entry *e = &m->entries[i];
-        const char *row[PER_ROW] = {e->recording, e->stages, e->events, e->label_map, e->cutoffs};
+        const char *row[PER_ROW] = {e->recording, e->stages,  e->events,
+                                    e->label_map, e->cutoffs, e->corrections};
         memcpy(&inputs[3 + PER_ROW * i], row, sizeof row);
     }
-    int rc = cli_check_outputs(c->cmd, outputs, N, inputs, n_inputs);
+    int rc = cli_check_outputs(c->cmd, outputs, n_out, inputs, n_inputs);
     free(inputs);
     return rc;
 }
@@ -224,6 +275,21 @@ static int merge_and_report(cohort_config *c)
                c->o.positive, c->o.negative);
     if (s.calibrated && s.calibrated_indices == 0)
         printf("%s: no calibrated-cutoffs.csv: no index could be calibrated\n", c->o.out_dir);
+    for (size_t k = 0; k < s.n_strata; k++) {
+        const rt_cohort_stratum_summary *t = &s.strata[k];
+        printf("  %s %s: %zu \"%s\" and %zu \"%s\" %s", t->by, t->name, t->positives,
+               c->o.positive, t->negatives, c->o.negative, c->o.per_subject ? "subjects" : "nights");
+        if (t->unknown)
+            printf(", left out (no %s given)\n", t->by);
+        else if (t->cutoffs_file[0])
+            printf(", cutoffs in %s\n", t->cutoffs_file);
+        else if (t->positives == 0 || t->negatives == 0)
+            printf(", no cutoff: no \"%s\" %s in it\n",
+                   t->positives == 0 ? c->o.positive : c->o.negative,
+                   c->o.per_subject ? "subject" : "night");
+        else
+            printf(", no cutoff (calibration-strata.csv says why)\n");
+    }
     return EXIT_OK;
 }
 
@@ -298,6 +364,7 @@ const cli_command CLI_COHORT = {
     OPTIONS, run, "a manifest"};
 
 const cli_command CLI_COHORT_MERGE = {
-    "cohort-merge", "DIR [--positive GROUP] [--negative GROUP] [--cutoffs FILE]",
+    "cohort-merge", "DIR [--positive GROUP] [--negative GROUP] [--cutoffs FILE] [--by-sex] "
+    "[--age-bands EDGES]",
     "Rebuild cohort.csv, calibration and cohort.html from DIR/nights (after --part runs).",
     MERGE_OPTIONS, run_merge, "the output folder of a cohort run"};

@@ -9,7 +9,8 @@
  * failure record (nights/ID.error.json). Every file is written to a
  * temporary name and renamed, so a killed run leaves no partial file. The
  * merge step reads those files back and writes cohort.csv, calibration.csv,
- * calibrated-cutoffs.csv and cohort.html.
+ * calibrated-cutoffs.csv and cohort.html (with strata by sex or age band,
+ * also calibration-strata.csv and calibrated-cutoffs-TAG.csv).
  *
  * Ownership: rt_manifest_load() makes a manifest (*out) freed by rt_manifest_free();
  * rt_roc_compute() fills an rt_roc whose arrays rt_roc_free() releases.
@@ -33,7 +34,9 @@ extern "C" {
 
 enum {
     RT_COHORT_ID_MAX = 100,   /* bytes of a night id, without the NUL */
-    RT_COHORT_GROUP_MAX = 63  /* bytes of a group name, without the NUL */
+    RT_COHORT_GROUP_MAX = 63, /* bytes of a group name, without the NUL */
+    RT_COHORT_AGE_EDGES_MAX = 8, /* edges of --age-bands (so at most 9 bands) */
+    RT_COHORT_STRATA_MAX = 16    /* strata of one merge, "unknown" ones included */
 };
 
 typedef struct rt_manifest_entry {
@@ -129,6 +132,11 @@ typedef struct rt_cohort_options {
                                   is written; otherwise it only means no calibration */
     bool calibrate_corrected;  /* calibrate on the corrected values of corrected nights
                                   (docs/corrections.md); default: remtone's automatic values */
+    bool by_sex;               /* also calibrate each sex apart (the manifest's `sex`) */
+    size_t n_age_edges;        /* also calibrate each age band apart: 0 = no; the bands are
+                                  below age_edges[0], [age_edges[k], age_edges[k+1]), and
+                                  at or above the last edge (the manifest's `age`) */
+    int age_edges[RT_COHORT_AGE_EDGES_MAX]; /* whole years, strictly ascending, 1..130 */
     rt_cohort_progress_fn progress; /* called about every progress_interval_s and at the end */
     void *progress_user;
     double progress_interval_s;     /* default 0.5 */
@@ -150,6 +158,18 @@ void rt_cohort_options_default(rt_cohort_options *options);
 rt_status rt_cohort_run(const rt_manifest *manifest, const rt_cohort_options *options,
                         rt_cohort_progress *summary, rt_error *err);
 
+/* One stratum of a stratified calibration (options by_sex, n_age_edges). */
+typedef struct rt_cohort_stratum_summary {
+    char by[8];              /* "sex" or "age" */
+    char name[24];           /* "F", "M", "<50", "50-64", ">=65", or "unknown" */
+    bool unknown;            /* the nights (subjects) without that column: left out */
+    size_t positives;        /* scored nights (subjects) of the positive group in it */
+    size_t negatives;        /* ... and of the negative group */
+    size_t calibrated_indices; /* indices with a Youden cutoff in this stratum */
+    char cutoffs_file[64];   /* its cutoff file in OUT ("calibrated-cutoffs-sex-F.csv"),
+                                "" when it has none */
+} rt_cohort_stratum_summary;
+
 typedef struct rt_cohort_merge_summary {
     size_t nights;        /* rows in cohort.csv */
     size_t scored;        /* nights with a result */
@@ -164,6 +184,9 @@ typedef struct rt_cohort_merge_summary {
     size_t calibrated_indices; /* indices with a calibrated (Youden) cutoff; 0: no
                                   calibrated-cutoffs.csv (an earlier one is removed, since
                                   a cutoff file listing no index is one --cutoffs refuses) */
+    size_t n_strata;      /* strata of by_sex and the age bands (0 when neither was asked,
+                             or without a calibration), each stratification in order */
+    rt_cohort_stratum_summary strata[RT_COHORT_STRATA_MAX];
 } rt_cohort_merge_summary;
 
 /* Rebuilds OUT/cohort.csv, OUT/calibration.csv, OUT/calibrated-cutoffs.csv and
@@ -174,6 +197,10 @@ typedef struct rt_cohort_merge_summary {
  * first file is replaced, so a failed merge leaves the earlier files.
  * Uses options->out_dir, positive, negative and cutoffs_path (the cutoffs the
  * sensitivity and specificity are tabulated at besides the published ones).
+ * With by_sex or age bands, every stratum is calibrated as well: the table
+ * OUT/calibration-strata.csv and a cutoff file OUT/calibrated-cutoffs-TAG.csv
+ * per stratum with a cutoff; files of that name left by an earlier merge and
+ * not written now are removed. Bad age edges: RT_ERR_USAGE.
  * summary may be NULL. */
 rt_status rt_cohort_merge(const rt_cohort_options *options, rt_cohort_merge_summary *summary,
                           rt_error *err);
@@ -186,7 +213,8 @@ typedef struct rt_roc {
     double auc_var;            /* DeLong et al. 1988 variance; NaN with fewer than 2 per class */
     double auc_low, auc_high;  /* 95 % confidence interval auc -/+ 1.959964 sqrt(var), clipped to [0, 1] */
     double youden_cutoff;      /* cutoff maximising sensitivity + specificity - 1 (a midpoint
-                                  between adjacent observed values), NaN when undefined */
+                                  between adjacent observed values), NaN when undefined or
+                                  when no threshold is better than chance (J <= 0) */
     double youden_j;           /* that maximum, -1..1 */
     double youden_sens, youden_spec;
     size_t n_points;           /* ROC points from (0,0) to (1,1) */

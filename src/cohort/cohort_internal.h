@@ -53,6 +53,8 @@ typedef struct cohort_row {
     char group[RT_COHORT_GROUP_MAX + 1];
     char subject[RT_COHORT_GROUP_MAX + 1]; /* "" when the manifest gave none */
     char visit[RT_COHORT_GROUP_MAX + 1];
+    double age;                  /* the manifest's age (its key or error record), NaN: none */
+    char sex;                    /* 'F', 'M', 0: none */
     bool failed;
     bool flagged;
     char level[32];              /* review level, or "failed" */
@@ -74,6 +76,7 @@ typedef struct cohort_row {
 typedef struct cohort_calibration {
     bool computed;                   /* false when a group has no scored night: then no
                                         calibration file is written and roc[] is empty */
+    size_t positives, negatives;     /* scored rows of each group used */
     rt_roc roc[RT_IX_COUNT];
     double published[RT_IX_COUNT];   /* NaN when none */
     double sens_published[RT_IX_COUNT], spec_published[RT_IX_COUNT];
@@ -84,6 +87,52 @@ typedef struct cohort_calibration {
 /* A number in a cohort CSV (%.10g; nothing when not finite). */
 void cohort_put_number(FILE *f, double v);
 
+/* ---- strata: calibration per sex or age band ---- */
+
+/* One stratum: the rows of one sex, or of one age band [age_lo, age_hi), or
+ * those without the column ("unknown": counted, left out). */
+typedef struct cohort_stratum {
+    rt_cohort_stratum_summary sum;
+    char tag[32];                 /* "sex-F", "age-50-64": the cutoff file's name part */
+    char sex;
+    double age_lo, age_hi;
+    cohort_calibration cal;
+} cohort_stratum;
+
+typedef struct cohort_strata {
+    cohort_stratum *v;
+    size_t n;
+} cohort_strata;
+
+/* Whether a row belongs to a stratum. */
+bool cohort_in_stratum(const cohort_stratum *s, const cohort_row *row);
+
+/* Calibrates rows (only those of the stratum `only`, NULL = all) into cal,
+ * whose published and in-force cutoffs are already set and whose computed
+ * flag says whether both groups have a scored night in the whole table. */
+rt_status cohort_calibrate(const cohort_row *rows, size_t n_rows, const rt_cohort_options *o,
+                           const cohort_stratum *only, cohort_calibration *cal, rt_error *err);
+
+/* Checks the options' age edges (RT_ERR_USAGE naming the bad one). */
+rt_status cohort_check_age_edges(const rt_cohort_options *o, rt_error *err);
+
+/* The strata the options ask for (none: out->n = 0), each calibrated on the
+ * rows like `overall` (its cutoffs, its computed flag). Free with
+ * cohort_strata_free. */
+rt_status cohort_stratify(const cohort_row *rows, size_t n_rows, const rt_cohort_options *o,
+                          const cohort_calibration *overall, cohort_strata *out, rt_error *err);
+void cohort_strata_free(cohort_strata *s);
+
+/* What a stratum's index row says beside its numbers: "" when it has a
+ * cutoff, else why not (written to dst). */
+void cohort_stratum_note(const cohort_stratum *s, int ix, const rt_cohort_options *o, char *dst,
+                         size_t cap);
+
+/* calibration-strata.csv (docs/cohort.md): overall first, then every stratum. */
+rt_status cohort_write_strata(const char *path, const cohort_calibration *overall,
+                              const cohort_strata *strata, const rt_cohort_options *o,
+                              rt_error *err);
+
 /* One subject of the cohort (rows with the same `subject`). */
 typedef struct cohort_subject {
     char name[RT_COHORT_GROUP_MAX + 1];
@@ -92,6 +141,8 @@ typedef struct cohort_subject {
     size_t first, n;                     /* its nights: order[first .. first + n) */
     size_t scored, flagged;              /* nights scored, and flagged among them */
     double mean[RT_IX_COUNT], min[RT_IX_COUNT], max[RT_IX_COUNT];
+    double mean_automatic[RT_IX_COUNT];  /* the mean of remtone's own values (= mean unless
+                                            a night is corrected) */
     double change[RT_IX_COUNT];          /* largest |difference| between a night and the
                                             subject's next night with a value (visit order);
                                             NaN with fewer than two values */
@@ -122,5 +173,6 @@ rt_status cohort_subject_rows(const cohort_row *rows, size_t n_rows,
 
 rt_status cohort_write_html(const char *path, const cohort_row *rows, size_t n_rows,
                             const cohort_subjects *subjects, const cohort_calibration *cal,
-                            const rt_cohort_options *options, rt_error *err);
+                            const cohort_strata *strata, const rt_cohort_options *options,
+                            rt_error *err);
 #endif

@@ -196,6 +196,79 @@ static void summary_table(rt_page *p, const cohort_calibration *cal)
     rt_page_end_html(p);
 }
 
+/* Per stratification (sex, age band): a table of every index against each
+ * stratum, its counts in the header, each cell the AUC and the Youden
+ * cutoff or why there is none; then the rows left out as unknown and the
+ * stratum cutoff files. */
+static void strata_tables(rt_page *p, const cohort_strata *strata, const rt_cohort_options *o)
+{
+    if (strata->n == 0)
+        return;
+    const char *unit = o->per_subject ? "subjects" : "nights";
+    rt_page_element(p, "h2", NULL, "Calibration by stratum");
+    rt_page_start(p, "p");
+    rt_page_textf(p, "Each stratum is calibrated on its own %s as the whole cohort is; a stratum "
+                     "without a scored \"%s\" or \"%s\" %s gets no cutoff. %s without the "
+                     "manifest's column are counted as unknown and left out.%s Small strata "
+                     "give wide intervals and unstable cutoffs.", unit, o->positive, o->negative,
+                  o->per_subject ? "subject" : "night", o->per_subject ? "Subjects" : "Nights",
+                  o->per_subject ? " A subject is placed by the age and the sex of its first "
+                                   "visit that gives them." : "");
+    rt_page_end_html(p);
+    for (size_t first = 0; first < strata->n;) {
+        size_t end = first;
+        while (end < strata->n && strcmp(strata->v[end].sum.by, strata->v[first].sum.by) == 0)
+            end++;
+        const cohort_stratum *unknown = &strata->v[end - 1]; /* each stratification ends so */
+        bool sex = strcmp(strata->v[first].sum.by, "sex") == 0;
+        rt_page_element(p, "h3", NULL, sex ? "By sex" : "By age band (years)");
+        rt_page_start(p, "table");
+        rt_page_start(p, "tr");
+        rt_page_element(p, "th", NULL, "index: AUC, Youden cutoff");
+        for (size_t k = first; k + 1 < end; k++) {
+            const cohort_stratum *t = &strata->v[k];
+            rt_page_start(p, "th");
+            rt_page_textf(p, "%s (%zu \"%s\", %zu \"%s\")", t->sum.name, t->sum.positives,
+                          o->positive, t->sum.negatives, o->negative);
+            rt_page_end_html(p);
+        }
+        rt_page_end_html(p);
+        for (int i = 0; i < RT_IX_COUNT; i++) {
+            rt_page_start(p, "tr");
+            rt_page_element(p, "td", NULL, rt_index_rules()[i].id);
+            for (size_t k = first; k + 1 < end; k++) {
+                const cohort_stratum *t = &strata->v[k];
+                const rt_roc *c = &t->cal.roc[i];
+                char cell[240], note[200];
+                cohort_stratum_note(t, i, o, note, sizeof note);
+                if (isfinite(c->auc) && !note[0])
+                    snprintf(cell, sizeof cell, "%.3f, %.4g", c->auc, c->youden_cutoff);
+                else if (isfinite(c->auc))
+                    snprintf(cell, sizeof cell, "%.3f, %s", c->auc, note);
+                else
+                    rt_copy_string(cell, sizeof cell, note);
+                rt_page_element(p, "td", NULL, cell);
+            }
+            rt_page_end_html(p);
+        }
+        rt_page_end_html(p);
+        rt_page_start(p, "p");
+        rt_page_textf(p, "Unknown %s (left out): %zu \"%s\", %zu \"%s\" %s.", sex ? "sex" : "age",
+                      unknown->sum.positives, o->positive, unknown->sum.negatives, o->negative,
+                      unit);
+        bool any = false;
+        for (size_t k = first; k + 1 < end; k++)
+            if (strata->v[k].sum.cutoffs_file[0]) {
+                rt_page_textf(p, "%s%s", any ? ", " : " Cutoff files: ",
+                              strata->v[k].sum.cutoffs_file);
+                any = true;
+            }
+        rt_page_text(p, any ? "." : " No stratum has a cutoff file.");
+        rt_page_end_html(p);
+        first = end;
+    }
+}
+
 /* Every night in id order: its level (a level with reservations says so),
  * the reservation codes, REM minutes, warnings, and a link to its own page
  * when the run wrote one (cohort --html). */
@@ -286,7 +359,8 @@ static void subjects_list(rt_page *p, const cohort_row *rows, const cohort_subje
 }
 
 static void page(rt_page *p, const cohort_row *rows, size_t n, const cohort_subjects *subjects,
-                 const cohort_calibration *cal, const rt_cohort_options *o)
+                 const cohort_calibration *cal, const cohort_strata *strata,
+                 const rt_cohort_options *o)
 {
     const char *groups[64];
     size_t n_groups = list_groups(rows, n, o, groups, 64);
@@ -331,6 +405,7 @@ static void page(rt_page *p, const cohort_row *rows, size_t n, const cohort_subj
         rt_page_element(p, "p", NULL, "A cutoff fitted to one cohort (Youden) is optimistic for "
                                       "that cohort; check it on other nights before relying on it.");
         summary_table(p, cal);
+        strata_tables(p, strata, o);
     }
     for (int i = 0; i < RT_IX_COUNT; i++) {
         const rt_index_rule *rule = &rt_index_rules()[i];
@@ -357,12 +432,13 @@ static void page(rt_page *p, const cohort_row *rows, size_t n, const cohort_subj
 
 rt_status cohort_write_html(const char *path, const cohort_row *rows, size_t n_rows,
                             const cohort_subjects *subjects, const cohort_calibration *cal,
-                            const rt_cohort_options *o, rt_error *err)
+                            const cohort_strata *strata, const rt_cohort_options *o,
+                            rt_error *err)
 {
     rt_page p;
     rt_status st = rt_page_open(&p, err);
     if (st != RT_OK)
         return st;
-    page(&p, rows, n_rows, subjects, cal, o);
+    page(&p, rows, n_rows, subjects, cal, strata, o);
     return rt_page_save(&p, path, false, err);
 }

@@ -15,6 +15,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
 #include <unistd.h>
 
 #include "internal.h"
@@ -44,14 +45,12 @@ static cohort_row *new_row(rows *r)
     }
     cohort_row *row = &r->v[r->n++];
     memset(row, 0, sizeof *row);
-    row->rem_minutes = row->scorable_minutes = NAN;
+    row->rem_minutes = row->scorable_minutes = row->age = NAN;
     for (int i = 0; i < RT_IX_COUNT; i++)
         row->value[i] = row->automatic[i] = NAN;
     row->warnings = -1;
     return row;
 }
-
-static double number_or_nan(json_t *v) { return json_is_number(v) ? json_number_value(v) : NAN; }
 
 /* The codes of a result's reservations joined by ';', "unknown" when the
  * result carries no list (remtone-night/1). */
@@ -101,15 +100,21 @@ static rt_status join_texts(json_t *list, char **out, rt_error *err)
     return RT_OK;
 }
 
-/* The group, subject and visit a key or an error record gives ("" when not). */
+static double number_or_nan(json_t *v) { return json_is_number(v) ? json_number_value(v) : NAN; }
+
+/* The group, subject, visit, age and sex a key or an error record gives
+ * ("", NaN, 0 when not: a record of an older remtone may lack them). */
 static void copy_label(cohort_row *row, json_t *from)
 {
     const char *g = json_string_value(json_object_get(from, "group"));
     const char *s = json_string_value(json_object_get(from, "subject"));
     const char *v = json_string_value(json_object_get(from, "visit"));
+    const char *sex = json_string_value(json_object_get(from, "sex"));
     rt_copy_string(row->group, sizeof row->group, g ? g : "");
     rt_copy_string(row->subject, sizeof row->subject, s ? s : "");
     rt_copy_string(row->visit, sizeof row->visit, v ? v : "");
+    row->age = number_or_nan(json_object_get(from, "age"));
+    row->sex = sex && (strcmp(sex, "F") == 0 || strcmp(sex, "M") == 0) ? sex[0] : 0;
 }
 
 bool cohort_result_usable(json_t *root)
@@ -358,42 +363,54 @@ static rt_status check_groups(const rows *r, const rt_cohort_options *o, bool *b
     return RT_OK;
 }
 
-static rt_status calibrate(const rows *r, const rt_cohort_options *o, cohort_calibration *cal,
-                           rt_cohort_merge_summary *s, rt_error *err)
+/* The published cutoffs and those in force (the run's --cutoffs) beside
+ * which the calibration tabulates sensitivity and specificity. */
+static rt_status calibration_cutoffs(const rt_cohort_options *o, cohort_calibration *cal,
+                                     rt_error *err)
 {
     rt_cutoffs published, in_force;
     rt_cutoffs_published(&published);
     in_force = published;
     rt_status st = o->cutoffs_path ? rt_cutoffs_load(&in_force, o->cutoffs_path, err) : RT_OK;
-    if (st != RT_OK)
-        return st;
     for (int i = 0; i < RT_IX_COUNT; i++) {
         cal->published[i] = published.has[i] ? published.value[i] : NAN;
         cal->in_force[i] = in_force.has[i] ? in_force.value[i] : NAN;
+    }
+    return st;
+}
+
+rt_status cohort_calibrate(const cohort_row *table, size_t n_rows, const rt_cohort_options *o,
+                           const cohort_stratum *only, cohort_calibration *cal, rt_error *err)
+{
+    for (int i = 0; i < RT_IX_COUNT; i++) {
         cal->sens_published[i] = cal->spec_published[i] = NAN;
         cal->sens_in_force[i] = cal->spec_in_force[i] = NAN;
         cal->roc[i].auc = cal->roc[i].auc_var = cal->roc[i].youden_cutoff = NAN;
     }
+    cal->positives = cal->negatives = 0;
     if (!cal->computed)
         return RT_OK;
-    double *values = rt_calloc(r->n + 1, sizeof *values);
-    bool *positive = rt_calloc(r->n + 1, sizeof *positive);
+    double *values = rt_calloc(n_rows + 1, sizeof *values);
+    bool *positive = rt_calloc(n_rows + 1, sizeof *positive);
     if (!values || !positive) {
         free(values);
         free(positive);
         return rt_fail(err, RT_ERR_NOMEM, "out of memory");
     }
+    rt_status st = RT_OK;
     for (int i = 0; i < RT_IX_COUNT && st == RT_OK; i++) {
         const rt_index_rule *rule = &rt_index_rules()[i];
         size_t n = 0;
-        for (size_t k = 0; k < r->n; k++) {
-            const cohort_row *row = &r->v[k];
+        for (size_t k = 0; k < n_rows; k++) {
+            const cohort_row *row = &table[k];
             bool pos = strcmp(row->group, o->positive) == 0;
             if (row->failed || (!pos && strcmp(row->group, o->negative) != 0))
                 continue; /* other groups are tabulated, not used to calibrate */
+            if (only && !cohort_in_stratum(only, row))
+                continue;
             if (i == 0) {
-                s->positives += pos;
-                s->negatives += !pos;
+                cal->positives += pos;
+                cal->negatives += !pos;
             }
             values[n] = o->calibrate_corrected ? row->value[i] : row->automatic[i];
             positive[n++] = pos;
@@ -449,11 +466,12 @@ static rt_status write_calibration(const char *path, const cohort_calibration *c
  * and every file remtone writes must be one it reads -- and an earlier
  * merge's file, calibrated on other results, is removed. */
 static rt_status write_calibrated_cutoffs(const char *path, const cohort_calibration *cal,
-                                          rt_cohort_merge_summary *s, rt_error *err)
+                                          size_t *calibrated_indices, rt_error *err)
 {
+    *calibrated_indices = 0;
     for (int i = 0; i < RT_IX_COUNT; i++)
-        s->calibrated_indices += isfinite(cal->roc[i].youden_cutoff) != 0;
-    if (s->calibrated_indices == 0) {
+        *calibrated_indices += isfinite(cal->roc[i].youden_cutoff) != 0;
+    if (*calibrated_indices == 0) {
         if (unlink(path) != 0 && errno != ENOENT)
             return rt_fail(err, RT_ERR_IO, "%s: cannot remove the previous calibration: %s", path,
                            strerror(errno));
@@ -469,6 +487,65 @@ static rt_status write_calibrated_cutoffs(const char *path, const cohort_calibra
             fprintf(o.file, "%s,%.10g,%s\n", rt_index_rules()[i].id, cal->roc[i].youden_cutoff,
                     rt_index_rules()[i].unit);
     return rt_output_commit(&o, err);
+}
+
+/* Whether path names the same file as other (NULL: no). */
+static bool same_file(const char *path, const char *other)
+{
+    struct stat a, b;
+    return other && stat(path, &a) == 0 && stat(other, &b) == 0 && a.st_dev == b.st_dev &&
+           a.st_ino == b.st_ino;
+}
+
+/* Each stratum's cutoff file (calibrated-cutoffs-TAG.csv; none when no index
+ * of it has a Youden cutoff) and calibration-strata.csv; then every
+ * calibrated-cutoffs-*.csv of the folder not written now is removed: an
+ * earlier merge's stratum (other edges, a stratum that lost a group) would
+ * describe other results. The run's own --cutoffs file is never removed. */
+static rt_status write_strata_files(const char *out_dir, const cohort_calibration *overall,
+                                    cohort_strata *strata, const rt_cohort_options *o,
+                                    rt_cohort_merge_summary *s, rt_error *err)
+{
+    char path[COHORT_PATH_MAX];
+    rt_status st = RT_OK;
+    for (size_t k = 0; k < strata->n && st == RT_OK; k++) {
+        cohort_stratum *t = &strata->v[k];
+        if (t->sum.unknown)
+            continue;
+        snprintf(path, sizeof path, "%s/calibrated-cutoffs-%s.csv", out_dir, t->tag);
+        st = write_calibrated_cutoffs(path, &t->cal, &t->sum.calibrated_indices, err);
+        if (t->sum.calibrated_indices > 0)
+            snprintf(t->sum.cutoffs_file, sizeof t->sum.cutoffs_file,
+                     "calibrated-cutoffs-%s.csv", t->tag);
+    }
+    snprintf(path, sizeof path, "%s/calibration-strata.csv", out_dir);
+    if (st == RT_OK && strata->n > 0)
+        st = cohort_write_strata(path, overall, strata, o, err);
+    else if (st == RT_OK && unlink(path) != 0 && errno != ENOENT)
+        st = rt_fail(err, RT_ERR_IO, "%s: cannot remove the previous calibration: %s", path,
+                     strerror(errno));
+    DIR *d = st == RT_OK ? opendir(out_dir) : NULL;
+    if (st == RT_OK && !d)
+        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO), "%s: cannot open: %s", out_dir,
+                       strerror(errno));
+    struct dirent *de;
+    while (st == RT_OK && (de = readdir(d)) != NULL) {
+        const char *name = de->d_name;
+        if (strncmp(name, "calibrated-cutoffs-", 19) != 0 || !ends_with(name, ".csv"))
+            continue;
+        bool current = false;
+        for (size_t k = 0; k < strata->n && !current; k++)
+            current = strcmp(strata->v[k].sum.cutoffs_file, name) == 0;
+        snprintf(path, sizeof path, "%s/%s", out_dir, name);
+        if (!current && !same_file(path, o->cutoffs_path) && unlink(path) != 0 && errno != ENOENT)
+            st = rt_fail(err, RT_ERR_IO, "%s: cannot remove the previous calibration: %s", path,
+                         strerror(errno));
+    }
+    if (d)
+        closedir(d);
+    for (size_t k = 0; k < strata->n && k < RT_COHORT_STRATA_MAX; k++)
+        s->strata[s->n_strata++] = strata->v[k].sum;
+    return st;
 }
 
 rt_status rt_cohort_merge(const rt_cohort_options *o, rt_cohort_merge_summary *summary,
@@ -487,6 +564,9 @@ rt_status rt_cohort_merge(const rt_cohort_options *o, rt_cohort_merge_summary *s
     if (strcmp(positive, negative) == 0)
         return rt_fail(err, RT_ERR_USAGE, "cohort: the positive and negative groups are both '%s'",
                        positive);
+    rt_status st = cohort_check_age_edges(o, err);
+    if (st != RT_OK)
+        return st;
     rt_cohort_options opts = *o;
     opts.positive = positive;
     opts.negative = negative;
@@ -495,8 +575,9 @@ rt_status rt_cohort_merge(const rt_cohort_options *o, rt_cohort_merge_summary *s
     rows r = {NULL, 0, 0}, by_subject = {NULL, 0, 0};
     cohort_subjects subjects;
     memset(&subjects, 0, sizeof subjects);
+    cohort_strata strata = {NULL, 0};
     cohort_calibration *cal = rt_calloc(1, sizeof *cal);
-    rt_status st = cal ? read_nights(dir, &r, &s, err) : rt_fail(err, RT_ERR_NOMEM, "out of memory");
+    st = cal ? read_nights(dir, &r, &s, err) : rt_fail(err, RT_ERR_NOMEM, "out of memory");
     /* everything that can fail on the inputs runs before the first file is
      * replaced: the groups, the subjects, the cutoff file, the calibration */
     if (st == RT_OK)
@@ -506,8 +587,17 @@ rt_status rt_cohort_merge(const rt_cohort_options *o, rt_cohort_merge_summary *s
     if (st == RT_OK && o->per_subject)
         st = cohort_subject_rows(r.v, r.n, &subjects, o->out_dir, &by_subject.v, &by_subject.n,
                                  err);
+    const rows *used = o->per_subject ? &by_subject : &r;
     if (st == RT_OK)
-        st = calibrate(o->per_subject ? &by_subject : &r, &opts, cal, &s, err);
+        st = calibration_cutoffs(&opts, cal, err);
+    if (st == RT_OK)
+        st = cohort_calibrate(used->v, used->n, &opts, NULL, cal, err);
+    if (st == RT_OK)
+        st = cohort_stratify(used->v, used->n, &opts, cal, &strata, err);
+    if (cal) {
+        s.positives = cal->positives;
+        s.negatives = cal->negatives;
+    }
     if (st == RT_OK) {
         snprintf(path, sizeof path, "%s/cohort.csv", o->out_dir);
         st = write_table(path, &r, err);
@@ -530,11 +620,13 @@ rt_status rt_cohort_merge(const rt_cohort_options *o, rt_cohort_merge_summary *s
     }
     if (st == RT_OK && cal->computed) {
         snprintf(path, sizeof path, "%s/calibrated-cutoffs.csv", o->out_dir);
-        st = write_calibrated_cutoffs(path, cal, &s, err);
+        st = write_calibrated_cutoffs(path, cal, &s.calibrated_indices, err);
     }
+    if (st == RT_OK)
+        st = write_strata_files(o->out_dir, cal, &strata, &opts, &s, err);
     if (st == RT_OK) {
         snprintf(path, sizeof path, "%s/cohort.html", o->out_dir);
-        st = cohort_write_html(path, r.v, r.n, &subjects, cal, &opts, err);
+        st = cohort_write_html(path, r.v, r.n, &subjects, cal, &strata, &opts, err);
     }
     s.calibrated = cal && cal->computed;
     s.subjects = subjects.n;
@@ -542,6 +634,7 @@ rt_status rt_cohort_merge(const rt_cohort_options *o, rt_cohort_merge_summary *s
         for (int i = 0; i < RT_IX_COUNT; i++)
             rt_roc_free(&cal->roc[i]);
     free(cal);
+    cohort_strata_free(&strata);
     cohort_subjects_free(&subjects);
     free(by_subject.v);
     for (size_t k = 0; k < r.n; k++)

@@ -123,19 +123,27 @@ static rt_status write_json_atomic(json_t *root, const char *path, rt_error *err
     return rt_json_write(root, path, JSON_INDENT(2) | JSON_SORT_KEYS, err);
 }
 
+/* What the manifest says of the night's person, in its key and in its
+ * error record alike: the merge reads them from either (its table, the
+ * subjects, the strata by sex and age). */
+static void set_person(json_t *k, const rt_manifest_entry *e, bool *ok)
+{
+    rt_json_set(k, "id", rt_json_text(e->id), ok);
+    rt_json_set(k, "group", rt_json_text(e->group), ok);
+    rt_json_set(k, "subject", rt_json_text(e->subject), ok);
+    rt_json_set(k, "visit", rt_json_text(e->visit), ok);
+    char sex[2] = {e->sex, '\0'};
+    rt_json_set(k, "age", isnan(e->age_years) ? json_null() : json_real(e->age_years), ok);
+    rt_json_set(k, "sex", json_string(sex), ok);
+}
+
 /* The key file's content (NULL when out of memory); identity is not taken. */
 static json_t *key_json(const rt_manifest_entry *e, json_t *identity)
 {
     bool ok = true;
     json_t *k = json_object();
     rt_json_set(k, "schema", json_string("remtone-cohort-key/1"), &ok);
-    rt_json_set(k, "id", rt_json_text(e->id), &ok);
-    rt_json_set(k, "group", rt_json_text(e->group), &ok);
-    rt_json_set(k, "subject", rt_json_text(e->subject), &ok);
-    rt_json_set(k, "visit", rt_json_text(e->visit), &ok);
-    char sex[2] = {e->sex, '\0'};
-    rt_json_set(k, "age", isnan(e->age_years) ? json_null() : json_real(e->age_years), &ok);
-    rt_json_set(k, "sex", json_string(sex), &ok);
+    set_person(k, e, &ok);
     rt_json_set(k, "identity", json_incref(identity), &ok);
     return rt_json_done(k, ok);
 }
@@ -278,10 +286,7 @@ static void write_error(const cohort_shared *s, const rt_manifest_entry *e, cons
     rt_json_set(root, "schema", json_string("remtone-cohort-error/1"), &ok);
     /* every text through rt_json_text: a message quoting bytes of a broken file
      * must not cost the night its failure record, and so its row in cohort.csv */
-    rt_json_set(root, "id", rt_json_text(e->id), &ok);
-    rt_json_set(root, "group", rt_json_text(e->group), &ok);
-    rt_json_set(root, "subject", rt_json_text(e->subject), &ok);
-    rt_json_set(root, "visit", rt_json_text(e->visit), &ok);
+    set_person(root, e, &ok);
     rt_json_set(root, "status", json_string(rt_status_name(why->status)), &ok);
     rt_json_set(root, "exit_code", json_integer(exit_code_of(why->status)), &ok);
     rt_json_set(root, "message",

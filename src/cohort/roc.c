@@ -144,6 +144,10 @@ rt_status rt_roc_compute(const double *values, const bool *positive, size_t n,
     }
     if (!isfinite(out->youden_j))
         out->youden_j = NAN;
+    /* a threshold no better than chance (J <= 0: the groups overlap, or the
+     * positives score lower) is no cutoff to offer; J itself is kept */
+    if (!(out->youden_j > 1e-12))
+        out->youden_cutoff = out->youden_sens = out->youden_spec = NAN;
     free(v);
     if (st != RT_OK)
         rt_roc_free(out);

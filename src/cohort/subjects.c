@@ -32,8 +32,8 @@ static void summarise(cohort_subject *s, const cohort_row *rows, const size_t *o
     rt_copy_string(s->name, sizeof s->name, first->subject);
     rt_copy_string(s->group, sizeof s->group, first->group);
     for (int i = 0; i < RT_IX_COUNT; i++) {
-        double sum = 0, prev = NAN;
-        size_t n = 0;
+        double sum = 0, prev = NAN, sum_automatic = 0;
+        size_t n = 0, n_automatic = 0;
         s->min[i] = s->max[i] = s->mean[i] = s->change[i] = NAN;
         for (size_t k = 0; k < s->n; k++) {
             const cohort_row *r = &rows[order[s->first + k]];
@@ -41,6 +41,11 @@ static void summarise(cohort_subject *s, const cohort_row *rows, const size_t *o
                 s->mixed_group |= strcmp(r->group, s->group) != 0;
                 s->scored += !r->failed;
                 s->flagged += !r->failed && r->flagged;
+            }
+            double a = r->failed ? NAN : r->automatic[i];
+            if (isfinite(a)) {
+                sum_automatic += a;
+                n_automatic++;
             }
             double v = r->failed ? NAN : r->value[i];
             if (!isfinite(v))
@@ -55,6 +60,7 @@ static void summarise(cohort_subject *s, const cohort_row *rows, const size_t *o
             prev = v;
         }
         s->mean[i] = n ? sum / (double)n : NAN;
+        s->mean_automatic[i] = n_automatic ? sum_automatic / (double)n_automatic : NAN;
     }
 }
 
@@ -161,8 +167,20 @@ rt_status cohort_subject_rows(const cohort_row *rows, size_t n_rows,
         rt_copy_string(r->subject, sizeof r->subject, s->name);
         r->failed = s->scored == 0;
         r->warnings = -1;
-        for (int i = 0; i < RT_IX_COUNT; i++)
+        for (int i = 0; i < RT_IX_COUNT; i++) {
             r->value[i] = s->mean[i];
+            r->automatic[i] = s->mean_automatic[i];
+        }
+        /* strata: the age and the sex of the subject's first visit (in visit
+         * order) that gives them, whatever later visits say */
+        r->age = NAN;
+        for (size_t k = 0; k < s->n; k++) {
+            const cohort_row *night = &rows[subjects->order[s->first + k]];
+            if (isnan(r->age) && isfinite(night->age))
+                r->age = night->age;
+            if (!r->sex && night->sex)
+                r->sex = night->sex;
+        }
     }
     /* a night without a subject is a person of its own */
     for (size_t i = 0; i < n_rows; i++)

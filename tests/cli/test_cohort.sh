@@ -239,7 +239,9 @@ has per-subject-counts "$work/out" 'calibration on 2 "case" and 1 "control" subj
 expect per-subject-calibration 0 "$py" -c '
 import csv,sys
 c={r["index"]:r for r in csv.DictReader(open(sys.argv[1]))}
-assert int(c["rai"]["n_positive"])==2 and int(c["rai"]["n_negative"])==1, c["rai"]' ref/calibration.csv
+assert int(c["rai"]["n_positive"])==2 and int(c["rai"]["n_negative"])==1, c["rai"]
+# the subjects enter with the means of their automatic values (they separate, as the nights do)
+assert float(c["rai"]["auc"])>=0.95 and c["rai"]["youden_cutoff"]!="", c["rai"]' ref/calibration.csv
 sed 's/^t6,\(.*\),control,S4,/t6,\1,control,S1,/' data/subjects.csv > data/subjects-mixed.csv
 expect subject-two-groups 5 "$bin" cohort data/subjects-mixed.csv --out ref --per-subject
 has subject-two-groups-named "$work/err" 'subject "S1" has nights in more than one group'
@@ -288,6 +290,88 @@ has aged-kept "$work/out" "0 scored"
 sed -i 's/,70,M/,50,M/' data/aged.csv
 expect aged-changed 0 "$bin" cohort data/aged.csv --out aged --jobs 1
 has aged-rescored "$work/out" "1 scored"
+
+# ---- calibration per sex and per age band (--by-sex, --age-bands): each stratum
+# calibrated on its own nights, rows without the column counted as unknown and
+# left out, a stratum lacking a group without cutoff; each stratum's AUC against
+# sklearn.metrics.roc_auc_score (Debian python3-sklearn), or, without it, scipy's
+# Mann-Whitney U / (n1 n2), which is the same area (Hanley & McNeil 1982,
+# Radiology 143:29-36)
+{
+  echo "id,recording,stages,events,group,age,sex"
+  echo "r1,r1/night.edf,r1/stages.csv,r1/events.csv,case,45,F"
+  echo "r2,r2/night.edf,r2/stages.csv,r2/events.csv,case,70,M"
+  echo "r3,r3/night.edf,r3/stages.csv,r3/events.csv,case,72,"
+  echo "t4,t4/night.edf,t4/stages.csv,,control,48,F"
+  echo "t5,t5/night.edf,t5/stages.csv,,control,68.5,M"
+  echo "t6,t6/night.edf,t6/stages.csv,,control,,F"
+} > data/strata.csv
+expect strata-run 0 "$bin" cohort data/strata.csv --out strata --jobs 2 --by-sex --age-bands 50,65
+has strata-summary-empty "$work/out" 'age 50-64: 0 "case" and 0 "control" nights, no cutoff: no "case" night in it'
+has strata-summary-unknown "$work/out" 'sex unknown: 1 "case" and 0 "control" nights, left out (no sex given)'
+expect strata-table 0 "$py" -c '
+import csv, sys
+d = sys.argv[1]
+try:
+    from sklearn.metrics import roc_auc_score
+    def auc(x, y): return roc_auc_score([1]*len(x) + [0]*len(y), x + y)
+except ImportError:
+    from scipy.stats import mannwhitneyu
+    def auc(x, y): return mannwhitneyu(x, y).statistic / (len(x) * len(y))
+nights = {r["id"]: r for r in csv.DictReader(open(d + "/cohort.csv"))}
+person = {r["id"]: r for r in csv.DictReader(open(sys.argv[2]))}
+rows = list(csv.DictReader(open(d + "/calibration-strata.csv")))
+assert rows[0]["by"] == "all" and rows[0]["stratum"] == "all", rows[0]
+def members(by, name):
+    out = []
+    for i, p in person.items():
+        if by == "sex": ok = p["sex"] == name if name != "unknown" else p["sex"] == ""
+        elif name == "unknown": ok = p["age"] == ""
+        elif p["age"] == "": ok = False
+        else:
+            a = float(p["age"])
+            ok = {"<50": a < 50, "50-64": 50 <= a < 65, ">=65": a >= 65}[name]
+        if ok: out.append(i)
+    return out
+want = {("sex","F"): (1,2), ("sex","M"): (1,1), ("sex","unknown"): (1,0), ("age","<50"): (1,1),
+        ("age","50-64"): (0,0), ("age",">=65"): (2,1), ("age","unknown"): (0,1)}
+seen = set()
+for r in rows:
+    if r["by"] == "all" or r["index"] not in ("rai", "sinbar.chin_any_fds_phasic_3s"):
+        continue
+    key = (r["by"], r["stratum"]); seen.add(key)
+    ids = members(*key)
+    pos = [i for i in ids if person[i]["group"] == "case"]
+    neg = [i for i in ids if person[i]["group"] == "control"]
+    assert (int(r["n_positive"]), int(r["n_negative"])) == want[key] == (len(pos), len(neg)), (key, r)
+    sign = -1 if r["index"] == "rai" else 1   # the REM Atonia Index: abnormal below (Ferri et al. 2010)
+    if key[1] == "unknown":
+        assert r["auc"] == "" and r["cutoff_file"] == "" and r["note"] == "left out: no %s given" % key[0], r
+    elif pos and neg:
+        ref = auc([sign * float(nights[i][r["index"]]) for i in pos], [sign * float(nights[i][r["index"]]) for i in neg])
+        assert abs(float(r["auc"]) - ref) < 1e-9, (key, r["auc"], ref)
+    else:
+        assert r["auc"] == "" and r["youden_cutoff"] == "" and r["cutoff_file"] == "", r
+        assert r["note"].startswith("no cutoff: no "), r
+assert seen == set(want), seen
+files = {r["cutoff_file"] for r in rows if r["cutoff_file"] and r["by"] != "all"}
+assert files <= {"calibrated-cutoffs-sex-F.csv", "calibrated-cutoffs-sex-M.csv",
+                 "calibrated-cutoffs-age-under-50.csv", "calibrated-cutoffs-age-65-plus.csv"}, files
+print("\n".join(sorted(files)))' strata data/strata.csv
+cp "$work/out" "$work/strata-files"
+[ -s "$work/strata-files" ] && ok strata-some-cutoffs || bad "strata-some-cutoffs: no stratum has a cutoff file"
+# every stratum cutoff file is one `--cutoffs` reads; none for the empty band
+for f in $(cat "$work/strata-files"); do expect "strata-loads-$f" 0 "$bin" rules --cutoffs "strata/$f"; done
+[ ! -e strata/calibrated-cutoffs-age-50-64.csv ] && ok strata-empty-band-no-file || bad strata-empty-band-no-file
+has strata-page strata/cohort.html "Calibration by stratum"
+has strata-page-unknown strata/cohort.html 'Unknown age (left out): 0 &quot;case&quot;, 1 &quot;control&quot; nights.'
+# a merge without strata removes the stratum files of the earlier one
+expect strata-off 0 "$bin" cohort-merge strata
+if ls strata | grep -q 'calibrated-cutoffs-\|calibration-strata'; then bad "strata-off-removes: $(ls strata)"; else ok strata-off-removes; fi
+[ -s strata/calibrated-cutoffs.csv ] && ok strata-off-keeps-overall || bad strata-off-keeps-overall
+expect strata-bad-order 2 "$bin" cohort-merge strata --age-bands 65,50
+expect strata-bad-edge 2 "$bin" cohort-merge strata --age-bands 50,x
+expect strata-bad-range 2 "$bin" cohort-merge strata --age-bands 0
 
 echo "$fails failure(s)"
 [ "$fails" = 0 ]

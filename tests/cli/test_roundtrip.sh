@@ -58,6 +58,21 @@ assert sorted(r["id"] for r in rows) == ["l", "q"], rows' two/cohort.csv
 expect cohort-two-cutoffs-load 0 "$bin" score quiet.edf --stages "$stages" --quiet \
   --cutoffs two/calibrated-cutoffs.csv
 expect cohort-two-cutoffs-rules 0 "$bin" rules --cutoffs two/calibrated-cutoffs.csv
+# the same two nights calibrated per sex and age band: the strata table parses,
+# and every stratum cutoff file is one `--cutoffs` reads
+printf 'id,recording,stages,events,group,age,sex\nq,quiet.edf,%s,,control,60,F\nl,loud.edf,%s,,case,62,F\n' \
+  "$stages" "$stages" > two-strata.csv
+expect cohort-strata 0 "$bin" cohort two-strata.csv --out two-strata --jobs 1 --min-rem 0 \
+  --by-sex --age-bands 50
+expect cohort-strata-table 0 "$py" -c '
+import csv, sys
+rows = list(csv.reader(open(sys.argv[1], encoding="utf-8", newline="")))
+assert rows[0][:3] == ["by", "stratum", "index"] and len(rows) > 1, rows[:1]
+assert all(len(r) == len(rows[0]) for r in rows), "ragged rows"' two-strata/calibration-strata.csv
+[ -s two-strata/calibrated-cutoffs-sex-F.csv ] && ok cohort-strata-file || bad cohort-strata-file
+for f in two-strata/calibrated-cutoffs-*.csv; do
+  expect "cohort-strata-loads-${f##*/}" 0 "$bin" score quiet.edf --stages "$stages" --quiet --cutoffs "$f"
+done
 
 # a cohort of one group: nothing to calibrate, so no cutoff file -- and the one
 # an earlier merge of this folder wrote is gone, not left to describe other nights
