@@ -13,7 +13,8 @@
 #include "remtone/cohort.h"
 
 enum { KEY_OUT = 1, KEY_JOBS, KEY_FORCE, KEY_PART, KEY_CUTOFFS, KEY_POSITIVE, KEY_NEGATIVE,
-       KEY_QUIET, KEY_MIN_REM, KEY_THREADS, KEY_PAGES, KEY_PER_SUBJECT, KEY_CALIBRATE_CORRECTED };
+       KEY_QUIET, KEY_MIN_REM, KEY_THREADS, KEY_PAGES, KEY_PER_SUBJECT, KEY_CALIBRATE_CORRECTED,
+       KEY_NORMS };
 
 static const cli_option OPTIONS[] = {
     {"out", 1, KEY_OUT, "DIR", "output folder (created when missing; required)"},
@@ -26,6 +27,9 @@ static const cli_option OPTIONS[] = {
     {"part", 1, KEY_PART, "K/N", "score only slice K of N (1-based, by a hash of the id); "
                                  "run cohort-merge after all parts"},
     {"cutoffs", 1, KEY_CUTOFFS, "FILE", "a lab's own cutoffs (CSV index,cutoff,unit)"},
+    {"norms", 1, KEY_NORMS, "FILE", "a lab's normative values by sex and age band (as score "
+                                    "--norms), for the nights with an age or sex; a row's own "
+                                    "`norms` column replaces it"},
     {"positive", 1, KEY_POSITIVE, "GROUP", "group of the positive class for calibration (default case)"},
     {"negative", 1, KEY_NEGATIVE, "GROUP", "group of the negative class (default control)"},
     {"calibrate-corrected", 0, KEY_CALIBRATE_CORRECTED, NULL, "calibrate on the corrected values "
@@ -88,6 +92,7 @@ static int on_option(void *ctx, int key, const char *arg)
     case KEY_PAGES: c->o.pages = true; break;
     case KEY_PER_SUBJECT: c->o.per_subject = true; break;
     case KEY_CUTOFFS: c->o.cutoffs_path = arg; break;
+    case KEY_NORMS: c->o.norms_path = arg; break;
     case KEY_POSITIVE: c->o.positive = arg; c->o.groups_given = true; break;
     case KEY_NEGATIVE: c->o.negative = arg; c->o.groups_given = true; break;
     case KEY_CALIBRATE_CORRECTED: c->o.calibrate_corrected = true; break;
@@ -141,7 +146,7 @@ static void show_progress(const rt_cohort_progress *p, void *user)
 
 /* The files a run or a merge writes in the output folder (docs/cohort.md,
  * "Files"); none may be an input, however spelled (cli_check_outputs). The
- * inputs are the manifest, the cutoffs and every file the manifest names. */
+ * inputs are the manifest, the cutoffs, the norms and every file the manifest names. */
 static int check_outputs(const cohort_config *c, const char *manifest_path, const rt_manifest *m)
 {
     static const char *const NAMES[] = {"cohort.csv", "calibration.csv", "calibrated-cutoffs.csv",
@@ -153,8 +158,8 @@ static int check_outputs(const cohort_config *c, const char *manifest_path, cons
         snprintf(paths[i], sizeof paths[i], "%s/%s", c->o.out_dir, NAMES[i]);
         outputs[i] = (cli_output){"out", paths[i]};
     }
-    enum { PER_ROW = 5 };
-    size_t n_inputs = 3 + (m ? PER_ROW * m->n_entries : 0);
+    enum { RUN = 4, PER_ROW = 7 };
+    size_t n_inputs = RUN + (m ? PER_ROW * m->n_entries : 0);
     const char **inputs = calloc(n_inputs, sizeof *inputs);
     if (!inputs) {
         fprintf(stderr, "remtone %s: out of memory\n", c->cmd);
@@ -163,10 +168,12 @@ static int check_outputs(const cohort_config *c, const char *manifest_path, cons
     inputs[0] = manifest_path;
     inputs[1] = c->o.cutoffs_path;
     inputs[2] = c->o.label_map_path;
+    inputs[3] = c->o.norms_path;
     for (size_t i = 0; m && i < m->n_entries; i++) {
         const rt_manifest_entry *e = &m->entries[i];
-        const char *row[PER_ROW] = {e->recording, e->stages, e->events, e->label_map, e->cutoffs};
-        memcpy(&inputs[3 + PER_ROW * i], row, sizeof row);
+        const char *row[PER_ROW] = {e->recording, e->stages,  e->events,     e->label_map,
+                                    e->cutoffs,   e->norms,   e->corrections};
+        memcpy(&inputs[RUN + PER_ROW * i], row, sizeof row);
     }
     int rc = cli_check_outputs(c->cmd, outputs, N, inputs, n_inputs);
     free(inputs);
@@ -175,6 +182,7 @@ static int check_outputs(const cohort_config *c, const char *manifest_path, cons
 
 /* The inputs a run or a merge reads besides the manifest -- the cutoffs, and
  * for a merge the results folder -- are read before anything is written, so
+ * (and the norms file) are read before anything is written, so
  * that their failures carry the input exit codes (README.md, "Exit codes")
  * and the library's remaining I/O failures are those of the output folder. */
 static int check_inputs(const cohort_config *c, bool merge)
@@ -185,6 +193,15 @@ static int check_inputs(const cohort_config *c, bool merge)
         rt_cutoffs cut;
         rt_cutoffs_published(&cut);
         rt_status st = rt_cutoffs_load(&cut, c->o.cutoffs_path, &err);
+        if (st != RT_OK)
+            return cli_report(st, &err, 0);
+    }
+    if (c->o.norms_path) {
+        rt_error err;
+        rt_error_clear(&err);
+        rt_norms *norms = NULL;
+        rt_status st = rt_norms_load(c->o.norms_path, &norms, &err);
+        rt_norms_free(norms);
         if (st != RT_OK)
             return cli_report(st, &err, 0);
     }
