@@ -72,8 +72,8 @@ static void norms_words(const rt_night *night, char *buf, size_t cap, size_t *le
     const rt_norm_place *lab = NULL;
     const char *why = NULL, *prefix = "not placed: ";
     bool one_group = true;
-    char lines[96] = "";
-    size_t used = 0;
+    char lines[96] = "", strata[480] = ""; /* "3, 6"; "women aged 60-69, line 3; ..." */
+    size_t used = 0, s_used = 0;
     for (int i = 0; i < RT_IX_COUNT; i++) {
         const rt_norm_place *np = &night->norms[i];
         if (np->lab && !np->applied && !why && strncmp(np->text, prefix, strlen(prefix)) == 0)
@@ -90,6 +90,9 @@ static void norms_words(const rt_night *night, char *buf, size_t cap, size_t *le
         int w = snprintf(lines + used, sizeof lines - used, "%s%ld", used ? ", " : "",
                          np->stratum.line);
         used = w > 0 && (size_t)w < sizeof lines - used ? used + (size_t)w : used;
+        w = snprintf(strata + s_used, sizeof strata - s_used, "%s%s, line %ld",
+                     s_used ? "; " : "", np->stratum.who, np->stratum.line);
+        s_used = w > 0 && (size_t)w < sizeof strata - s_used ? s_used + (size_t)w : s_used;
     }
     if (placed[0])
         put(buf, cap, len, "; against adults without RBD, %d of %d compared chin measures lie "
@@ -99,10 +102,13 @@ static void norms_words(const rt_night *night, char *buf, size_t cap, size_t *le
     if (placed[1] == 1)
         put(buf, cap, len, "; against the %s, the compared measure lies %s", lab->stratum.label,
             beyond[1] ? "beyond it" : "within it");
-    else if (placed[1])
+    else if (placed[1] && one_group)
         put(buf, cap, len, "; against the lab's norms for %s (lab file %s lines %s), %d of %d "
-            "compared measures lie beyond the normal limit",
-            one_group ? lab->stratum.who : "this age and sex", file, lines, beyond[1], placed[1]);
+            "compared measures lie beyond the normal limit", lab->stratum.who, file, lines,
+            beyond[1], placed[1]);
+    else if (placed[1])
+        put(buf, cap, len, "; against the lab's norms (lab file %s: %s), %d of %d compared "
+            "measures lie beyond the normal limit", file, strata, beyond[1], placed[1]);
     else if (why)
         put(buf, cap, len, "; the lab's norms (%s) were not applied: %s", file, why);
 }
