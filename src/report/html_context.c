@@ -187,7 +187,8 @@ void rt_html_periods(rt_page *p, const rt_night *n)
 
 /* A band from 0 to twice the larger of the limit and the value: the normal
  * range green, beyond it amber (red from the RBD cutoff), the value a mark;
- * under it the stratum it was placed against, and its source beside. */
+ * under it the stratum it was placed against (who, ages, the lab file's
+ * line), and its full label and source as the drawing's title. */
 static void norm_band(rt_page *p, const rt_norm_place *np, const rt_norm_row *r, double v,
                       bool lower_worse)
 {
@@ -198,9 +199,12 @@ static void norm_band(rt_page *p, const rt_norm_place *np, const rt_norm_row *r,
     if (!lower_worse && isfinite(rbd))
         top = fmax(top, 1.25 * rbd);
     double lx = w * fmin(s->value / top, 1.0);
-    char label[300];
-    snprintf(label, sizeof label, "the value against the %s", s->label);
+    char label[520];
+    snprintf(label, sizeof label, "the value against the %s; source: %s", s->label, s->source);
     rt_svg_begin(p, w, h + 18, label);
+    rt_page_start(p, "title");
+    rt_page_text(p, label);
+    rt_page_end_svg(p);
     if (lower_worse) {
         rt_svg_rect(p, 0, 2, lx, h, "#f3d9b0", "below the normative limit");
         rt_svg_rect(p, lx, 2, w - lx, h, "#cfe8d6", "within the normative range");
@@ -215,15 +219,11 @@ static void norm_band(rt_page *p, const rt_norm_place *np, const rt_norm_row *r,
     rt_svg_rect(p, fmax(0.0, fmin(vx - 1.5, w - 3.0)), 0, 3, h + 4, "#1b2430", "this night");
     char who[96];
     if (np->lab)
-        snprintf(who, sizeof who, "%s (line %ld)", s->who, s->line);
+        snprintf(who, sizeof who, "%s, line %ld", s->who, s->line);
     else
-        snprintf(who, sizeof who, "%s", s->who);
+        snprintf(who, sizeof who, "women and men aged %g-%g, published", s->age_from, s->age_to);
     rt_svg_text(p, 0, h + 15, "start", "small", who);
     rt_svg_end(p);
-    rt_page_start(p, "div");
-    rt_page_attr(p, "class", "muted");
-    rt_page_textf(p, "%s%s; source: %s", np->lab ? "lab-supplied: " : "", s->label, s->source);
-    rt_page_end_html(p);
 }
 
 void rt_html_norms(rt_page *p, const rt_night *n)
