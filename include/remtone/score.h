@@ -474,7 +474,8 @@ typedef struct rt_sleep_context {
  * sleep behavior disorder (rt_norm_table; docs/scoring.md, "Norms"). Norms
  * never decide the level: they are context for the reader. */
 typedef enum rt_norm_band {
-    RT_NORM_NOT_PLACED = 0,    /* no norm for this index, not computed, or age outside the norms */
+    RT_NORM_NOT_PLACED = 0,    /* no norm for this index, not computed, age outside the norms,
+                                  or no row of a lab's norms file applies */
     RT_NORM_WITHIN,            /* within the normative limit (95th percentile; RAI: at or above
                                   the limit) */
     RT_NORM_BEYOND,            /* beyond the normative limit, short of the RBD cutoff */
