@@ -567,7 +567,7 @@ typedef struct rt_person {
 
 
 /* The result of one night. Made only by rt_night_score (never declare one:
- * it is a large struct, about 40 kB on x86_64, mostly fixed text arrays) and freed with
+ * it is a large struct, about 48 kB on x86_64, mostly fixed text arrays) and freed with
  * rt_night_free; the arrays it points to belong to it, so a struct copy
  * shares them and must not outlive it. Its layout is public for the reports
  * and may grow between versions. Texts are NUL-terminated UTF-8. */
