@@ -195,20 +195,14 @@ static void chooses_the_stratum(void **state)
 
 static rt_night *night_with(double chin_any, double chin_phasic)
 {
-    rt_night *n = calloc(1, sizeof *n);
-    assert_non_null(n);
-    rt_score_params_default(&n->params);
-    rt_cutoffs_published(&n->cutoffs);
-    for (int i = 0; i < RT_IX_COUNT; i++) {
-        n->index[i].value = NAN;
-        n->index[i].status = RT_STATUS_NOT_COMPUTED;
+    rt_night *n = rt_test_blank_night();
+    const struct { rt_index_id ix; double value; } SET[] = {
+        {RT_IX_SINBAR_CHIN_ANY_3S, chin_any}, {RT_IX_SINBAR_CHIN_PHASIC_3S, chin_phasic},
+        {RT_IX_SINBAR_CHIN_TONIC_30S, 0.5}};
+    for (size_t k = 0; k < sizeof SET / sizeof SET[0]; k++) {
+        n->index[SET[k].ix].value = SET[k].value;
+        n->index[SET[k].ix].status = RT_STATUS_BELOW; /* no published cutoff reached */
     }
-    n->index[RT_IX_SINBAR_CHIN_ANY_3S].value = chin_any;
-    n->index[RT_IX_SINBAR_CHIN_ANY_3S].status = RT_STATUS_BELOW;
-    n->index[RT_IX_SINBAR_CHIN_PHASIC_3S].value = chin_phasic;
-    n->index[RT_IX_SINBAR_CHIN_PHASIC_3S].status = RT_STATUS_BELOW;
-    n->index[RT_IX_SINBAR_CHIN_TONIC_30S].value = 0.5;
-    n->index[RT_IX_SINBAR_CHIN_TONIC_30S].status = RT_STATUS_BELOW;
     return n;
 }
 
