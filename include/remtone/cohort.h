@@ -148,7 +148,7 @@ void rt_cohort_options_default(rt_cohort_options *options);
  * a recording file are never scored at the same time (EDFlib refuses to open
  * one file twice in a process). Returns RT_OK when the run completed, even
  * with failed nights (count in summary->failed); an error only when the run
- * could not proceed (bad options, output folder, cutoff file). A line per
+ * could not proceed (bad options, output folder, cutoff or norms file). A line per
  * night scored is appended to OUT/cohort.log ("scored ID"). summary may be
  * NULL. */
 rt_status rt_cohort_run(const rt_manifest *manifest, const rt_cohort_options *options,
