@@ -13,7 +13,7 @@ enum {
     EXIT_USAGE = 2,      /* bad command line */
     EXIT_INPUT_IO = 3,   /* an input file cannot be opened or read */
     EXIT_RECORDING = 4,  /* the recording is malformed or unsupported */
-    EXIT_STAGING = 5,    /* staging, events, label map or cutoff file malformed */
+    EXIT_STAGING = 5,    /* staging, events, label map, cutoff or norms file malformed */
     EXIT_CHANNEL = 6,    /* a channel role is missing, ambiguous or has a wrong unit */
     EXIT_OUTPUT = 7,     /* an output file cannot be written */
     EXIT_NOMEM = 8,      /* out of memory */

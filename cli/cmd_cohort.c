@@ -15,7 +15,7 @@
 
 enum { KEY_OUT = 1, KEY_JOBS, KEY_FORCE, KEY_PART, KEY_CUTOFFS, KEY_POSITIVE, KEY_NEGATIVE,
        KEY_QUIET, KEY_MIN_REM, KEY_THREADS, KEY_PAGES, KEY_PER_SUBJECT, KEY_CALIBRATE_CORRECTED,
-       KEY_BY_SEX, KEY_AGE_BANDS };
+       KEY_BY_SEX, KEY_AGE_BANDS, KEY_NORMS };
 
 /* The stratification options, the same for a run and a merge. */
 #define COHORT_STRATA_OPTIONS                                                                     \
@@ -34,6 +34,9 @@ static const cli_option OPTIONS[] = {
     {"part", 1, KEY_PART, "K/N", "score only slice K of N (1-based, by a hash of the id); "
                                  "run cohort-merge after all parts"},
     {"cutoffs", 1, KEY_CUTOFFS, "FILE", "a lab's own cutoffs (CSV index,cutoff,unit)"},
+    {"norms", 1, KEY_NORMS, "FILE", "a lab's normative values by sex and age band (as score "
+                                    "--norms), for the nights with an age or sex; a row's own "
+                                    "`norms` column replaces it"},
     {"positive", 1, KEY_POSITIVE, "GROUP", "group of the positive class for calibration (default case)"},
     {"negative", 1, KEY_NEGATIVE, "GROUP", "group of the negative class (default control)"},
     {"calibrate-corrected", 0, KEY_CALIBRATE_CORRECTED, NULL, "calibrate on the corrected values "
@@ -123,6 +126,7 @@ static int on_option(void *ctx, int key, const char *arg)
     case KEY_PAGES: c->o.pages = true; break;
     case KEY_PER_SUBJECT: c->o.per_subject = true; break;
     case KEY_CUTOFFS: c->o.cutoffs_path = arg; break;
+    case KEY_NORMS: c->o.norms_path = arg; break;
     case KEY_POSITIVE: c->o.positive = arg; c->o.groups_given = true; break;
     case KEY_NEGATIVE: c->o.negative = arg; c->o.groups_given = true; break;
     case KEY_CALIBRATE_CORRECTED: c->o.calibrate_corrected = true; break;
@@ -179,8 +183,8 @@ static void show_progress(const rt_cohort_progress *p, void *user)
 /* The files a run or a merge writes in the output folder (docs/cohort.md,
  * "Files"), with every calibrated-cutoffs-*.csv there (a merge writes or
  * removes those of the strata); none may be an input, however spelled
- * (cli_check_outputs). The inputs are the manifest, the cutoffs and every
- * file the manifest names. */
+ * (cli_check_outputs). The inputs are the manifest, the cutoffs, the label
+ * map, the norms and every file the manifest names. */
 static int check_outputs(const cohort_config *c, const char *manifest_path, const rt_manifest *m)
 {
     static const char *const NAMES[] = {"cohort.csv", "calibration.csv", "calibrated-cutoffs.csv",
@@ -203,8 +207,8 @@ static int check_outputs(const cohort_config *c, const char *manifest_path, cons
         closedir(d);
     for (size_t i = 0; i < n_out; i++)
         outputs[i] = (cli_output){"out", paths[i]};
-    enum { PER_ROW = 6 };
-    size_t n_inputs = 3 + (m ? PER_ROW * m->n_entries : 0);
+    enum { RUN = 4, PER_ROW = 7 };
+    size_t n_inputs = RUN + (m ? PER_ROW * m->n_entries : 0);
     const char **inputs = calloc(n_inputs, sizeof *inputs);
     if (!inputs) {
         fprintf(stderr, "remtone %s: out of memory\n", c->cmd);
@@ -213,20 +217,21 @@ static int check_outputs(const cohort_config *c, const char *manifest_path, cons
     inputs[0] = manifest_path;
     inputs[1] = c->o.cutoffs_path;
     inputs[2] = c->o.label_map_path;
+    inputs[3] = c->o.norms_path;
     for (size_t i = 0; m && i < m->n_entries; i++) {
         const rt_manifest_entry *e = &m->entries[i];
-        const char *row[PER_ROW] = {e->recording, e->stages,  e->events,
-                                    e->label_map, e->cutoffs, e->corrections};
-        memcpy(&inputs[3 + PER_ROW * i], row, sizeof row);
+        const char *row[PER_ROW] = {e->recording, e->stages,  e->events,     e->label_map,
+                                    e->cutoffs,   e->norms,   e->corrections};
+        memcpy(&inputs[RUN + PER_ROW * i], row, sizeof row);
     }
     int rc = cli_check_outputs(c->cmd, outputs, n_out, inputs, n_inputs);
     free(inputs);
     return rc;
 }
 
-/* The inputs a run or a merge reads besides the manifest -- the cutoffs, and
- * for a merge the results folder -- are read before anything is written, so
- * that their failures carry the input exit codes (README.md, "Exit codes")
+/* The inputs a run or a merge reads besides the manifest -- the cutoffs, the
+ * norms, and for a merge the results folder -- are read before anything is
+ * written, so that their failures carry the input exit codes (README.md, "Exit codes")
  * and the library's remaining I/O failures are those of the output folder. */
 static int check_inputs(const cohort_config *c, bool merge)
 {
@@ -236,6 +241,15 @@ static int check_inputs(const cohort_config *c, bool merge)
         rt_cutoffs cut;
         rt_cutoffs_published(&cut);
         rt_status st = rt_cutoffs_load(&cut, c->o.cutoffs_path, &err);
+        if (st != RT_OK)
+            return cli_report(st, &err, 0);
+    }
+    if (c->o.norms_path) {
+        rt_error err;
+        rt_error_clear(&err);
+        rt_norms *norms = NULL;
+        rt_status st = rt_norms_load(c->o.norms_path, &norms, &err);
+        rt_norms_free(norms);
         if (st != RT_OK)
             return cli_report(st, &err, 0);
     }

@@ -12,7 +12,7 @@ enum {
     KEY_STAGES = 1, KEY_EVENTS, KEY_JSON, KEY_CUTOFFS, KEY_MIN_REM, KEY_QUIET,
     KEY_HTML, KEY_MINIS, KEY_ANNOTATIONS, KEY_SHOW_IDENTITY, KEY_RECORDING_ID, KEY_THREADS,
     KEY_PERIODS, KEY_AGE, KEY_SEX, KEY_CORRECTIONS,
-    KEY_EVIDENCE, KEY_VIDEO_OFFSET, KEY_VIDEO_START, KEY_ANNOTATE_BURSTS, KEY_BLOCK_S
+    KEY_EVIDENCE, KEY_VIDEO_OFFSET, KEY_VIDEO_START, KEY_ANNOTATE_BURSTS, KEY_BLOCK_S, KEY_NORMS
 };
 
 static const cli_option OPTIONS[] = {
@@ -29,6 +29,7 @@ static const cli_option OPTIONS[] = {
     {"periods", 1, KEY_PERIODS, "PATH", "write every index per REM period and per half of the night as CSV"},
     {"age", 1, KEY_AGE, "YEARS", "the person's age: place the indices against published norms (context only)"},
     {"sex", 1, KEY_SEX, "F|M", "the person's sex, for the norms (context only)"},
+    {"norms", 1, KEY_NORMS, "FILE", "a lab's normative values by sex and age band (CSV index,sex,age_from,age_to,percentile,value,unit,source[,method]; docs/scoring.md, \"Norms\"): the indices it lists are placed against its row for --age and --sex instead of the built-in overall values (context only)"},
     {"annotate-bursts", 1, KEY_ANNOTATE_BURSTS, "RULES", "bursts in the --annotations file: sinbar (default), aasm, montreal, or several joined by commas"},
     {"evidence", 1, KEY_EVIDENCE, "PATH", "write every flagged REM epoch in time order as CSV ('-' for standard output)"},
     {"video-offset", 1, KEY_VIDEO_OFFSET, "S", "the video started S seconds after the recording (negative: before); adds a video time to every evidence row"},
@@ -48,7 +49,7 @@ static const cli_option OPTIONS[] = {
 };
 
 typedef struct score_config {
-    const char *stages, *events, *json, *cutoffs, *labels;
+    const char *stages, *events, *json, *cutoffs, *labels, *norms;
     const char *html, *minis, *annotations, *periods, *corrections, *evidence;
     const char *video_start;     /* HH:MM:SS, turned into an offset once the recording is open */
     rt_report_options report;
@@ -76,6 +77,7 @@ static int on_option(void *ctx, int key, const char *arg)
     case KEY_EVENTS: c->events = arg; break;
     case KEY_JSON: c->json = arg; break;
     case KEY_CUTOFFS: c->cutoffs = arg; break;
+    case KEY_NORMS: c->norms = arg; break;
     case KEY_QUIET: c->quiet = 1; break;
     case KEY_HTML: c->html = arg; break;
     case KEY_MINIS: c->minis = arg; break;
@@ -180,6 +182,7 @@ typedef struct loaded {
     rt_role_map roles;
     rt_cutoffs cutoffs;
     rt_corrections *corrections;
+    rt_norms *norms;
 } loaded;
 
 static rt_status load_inputs(const score_config *c, const char *rec_path, loaded *l, rt_error *err)
@@ -188,6 +191,8 @@ static rt_status load_inputs(const score_config *c, const char *rec_path, loaded
     rt_status st = RT_OK;
     if (c->cutoffs)
         st = rt_cutoffs_load(&l->cutoffs, c->cutoffs, err);
+    if (st == RT_OK && c->norms)
+        st = rt_norms_load(c->norms, &l->norms, err);
     if (st == RT_OK && c->labels)
         st = rt_labelmap_load(c->labels, &l->labels, err);
     if (st == RT_OK)
@@ -229,7 +234,8 @@ static int run(int argc, char **argv)
     int rc = cli_parse(&CLI_SCORE, argc, argv, on_option, &c, pos, 1, &npos);
     if (rc != EXIT_OK)
         return rc < 0 ? EXIT_OK : rc;
-    const char *inputs[] = {pos[0], c.stages, c.events, c.cutoffs, c.labels, c.corrections};
+    const char *inputs[] = {pos[0], c.stages, c.events, c.cutoffs, c.labels, c.corrections,
+                            c.norms};
     size_t n_inputs = sizeof inputs / sizeof inputs[0];
     const cli_output outputs[] = {{"json", c.json}, {"html", c.html}, {"minis", c.minis},
                                   {"annotations", c.annotations}, {"periods", c.periods},
@@ -258,8 +264,8 @@ static int run(int argc, char **argv)
     /* the norms place the indices the night ends with: the corrected ones */
     if (st == RT_OK && l.corrections)
         st = rt_night_correct(night, l.tl, l.corrections, &err);
-    if (st == RT_OK && (!isnan(c.age) || c.sex))
-        st = rt_night_place_norms(night, c.age, c.sex, &err);
+    if (st == RT_OK && (!isnan(c.age) || c.sex || l.norms))
+        st = rt_night_place_norms_from(night, l.norms, c.age, c.sex, &err);
     if (st == RT_OK && !c.quiet && !(c.json && strcmp(c.json, "-") == 0) &&
         !(c.html && strcmp(c.html, "-") == 0) && !(c.minis && strcmp(c.minis, "-") == 0) &&
         !(c.periods && strcmp(c.periods, "-") == 0) && !(c.evidence && strcmp(c.evidence, "-") == 0))
@@ -292,6 +298,7 @@ static int run(int argc, char **argv)
     }
     rt_night_free(night);
     rt_corrections_free(l.corrections);
+    rt_norms_free(l.norms);
     rt_timeline_free(l.tl);
     rt_labelmap_free(l.labels);
     rt_recording_close(l.rec);

@@ -77,6 +77,15 @@ def cutoffs():
     put("cutoffs", "rai", "index,cutoff,unit,normal_from\nrai,0.8,ratio,0.9\nmontreal.tonic_chin,30,%,\n")
 
 
+def norms():
+    # invented numbers, for the format only
+    head = "index,sex,age_from,age_to,percentile,value,unit,source,method\n"
+    put("norms", "basic", "# invented\n" + head + "sinbar.chin_any_3s,F,60,70,95,7.5,%,x,visual\n"
+        "sinbar.chin_any_3s,any,20,60,95,8,%,y,\nrai,any,20,90,5,0.8,ratio,z,\n")
+    put("norms", "overlap", head + "sinbar.chin_any_3s,M,60,70,95,7,%,x,\n"
+        "sinbar.chin_any_3s,M,65,75,95,8,%,x,\n")
+
+
 def xml():
     with open(os.path.join(HERE, "..", "docs", "remtone-scoring-example.xml"), "rb") as f:
         put("xml", "example", f.read())
@@ -128,6 +137,7 @@ if __name__ == "__main__":
     tables()
     labelmaps()
     cutoffs()
+    norms()
     xml()
     manifests()
     corrections()

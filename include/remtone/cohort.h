@@ -3,7 +3,7 @@
  * every index against the cohort's own labels (docs/cohort.md).
  *
  * A run writes, under an output folder, one result per night
- * (nights/ID.json, schema "remtone-night/3"), a key beside it (nights/ID.key:
+ * (nights/ID.json, schema "remtone-night/4"), a key beside it (nights/ID.key:
  * the sizes and XXH3 digests of the night's inputs and a digest of the
  * settings, so a rerun skips nights whose identity is unchanged), or a
  * failure record (nights/ID.error.json). Every file is written to a
@@ -55,6 +55,8 @@ typedef struct rt_manifest_entry {
     char sex;                 /* optional `sex` column: 'F', 'M', or 0 when not given */
     char *corrections;        /* resolved path of a reviewer's decisions (docs/corrections.md);
                                  NULL when none */
+    char *norms;              /* resolved path of the row's norms file (rt_norms_load); NULL =
+                                 the run's */
     long line;                /* manifest line of the row */
 } rt_manifest_entry;
 
@@ -69,7 +71,7 @@ typedef struct rt_manifest {
  * EDF+ annotations), optional columns `subject`, `visit`, `label_map` and
  * `cutoffs` (a row's own label map and cutoff file, for nights of several
  * sites), `age` (years) and `sex` (F or M) that place the night's indices
- * against the norms, and optional columns named after roles (`chin`,
+ * against the norms, `norms` (a row's own norms file, as `cutoffs`), and optional columns named after roles (`chin`,
  * `arm-left`, `arm-right`, `leg-left`, `leg-right`, `ecg`) that override
  * detection for that night, and an optional `corrections` column: a file of
  * a reviewer's decisions rescoring that night (docs/corrections.md). Relative paths resolve against the manifest's
@@ -120,6 +122,8 @@ typedef struct rt_cohort_options {
     unsigned part_count;       /* number of slices; 0 or 1 = the whole manifest */
     const char *cutoffs_path;  /* a lab's cutoff file (rt_cutoffs_load), NULL = published; a
                                   row's own `cutoffs` column replaces it for that night */
+    const char *norms_path;    /* a lab's norms file (rt_norms_load), NULL = the built-in table;
+                                  a row's own `norms` column replaces it for that night */
     const char *label_map_path; /* stage and event labels (rt_labelmap_load) of every night,
                                   NULL = none; a row's own `label_map` column replaces it */
     bool per_subject;          /* calibrate on subjects, not nights: each subject's mean
@@ -152,7 +156,7 @@ void rt_cohort_options_default(rt_cohort_options *options);
  * a recording file are never scored at the same time (EDFlib refuses to open
  * one file twice in a process). Returns RT_OK when the run completed, even
  * with failed nights (count in summary->failed); an error only when the run
- * could not proceed (bad options, output folder, cutoff file). A line per
+ * could not proceed (bad options, output folder, cutoff or norms file). A line per
  * night scored is appended to OUT/cohort.log ("scored ID"). summary may be
  * NULL. */
 rt_status rt_cohort_run(const rt_manifest *manifest, const rt_cohort_options *options,

@@ -39,7 +39,7 @@ typedef struct rt_run_inputs {
     const struct rt_report_options *report;
 } rt_run_inputs;
 
-/* The night result, schema "remtone-night/3" (docs/night-json.md). */
+/* The night result, schema "remtone-night/4" (docs/night-json.md). */
 rt_status rt_night_write_json(const rt_night *night, const rt_run_inputs *inputs,
                               const char *path, rt_error *err);
 /* The short text summary for people. */

@@ -474,7 +474,8 @@ typedef struct rt_sleep_context {
  * sleep behavior disorder (rt_norm_table; docs/scoring.md, "Norms"). Norms
  * never decide the level: they are context for the reader. */
 typedef enum rt_norm_band {
-    RT_NORM_NOT_PLACED = 0,    /* no norm for this index, not computed, or age outside the norms */
+    RT_NORM_NOT_PLACED = 0,    /* no norm for this index, not computed, age outside the norms,
+                                  or no row of a lab's norms file applies */
     RT_NORM_WITHIN,            /* within the normative limit (95th percentile; RAI: at or above
                                   the limit) */
     RT_NORM_BEYOND,            /* beyond the normative limit, short of the RBD cutoff */
@@ -501,11 +502,62 @@ typedef struct rt_norm_row {
 /* The norm table, one row per index that has a norm; *count its length. Static. */
 const rt_norm_row *rt_norm_table(size_t *count);
 
+/* The normative value one index was placed against: a row of a lab's norms
+ * file (rt_norms_load; line > 0), or the built-in row (line 0). Texts are
+ * valid UTF-8. */
+typedef struct rt_norm_stratum {
+    long line;                 /* the norms file's line; 0: the built-in table */
+    char sex;                  /* 'F', 'M', or 0 for women and men together */
+    double age_from, age_to;   /* years; a file's band holds age_from <= age < age_to, the
+                                  built-in one age_from <= age <= age_to */
+    double percentile;         /* e.g. 95; NaN when the limit is not a percentile */
+    double value;              /* the normative value, in the index's unit */
+    char who[64];              /* "women aged 60-69" */
+    char label[240];           /* "95th percentile (7.2 %) of women aged 60-69, lab file
+                                  norms.csv line 7" */
+    char source[200];          /* where the value comes from (the file's `source`) */
+    char method[120];          /* how those norms were scored; "" when not given */
+} rt_norm_stratum;
+
 typedef struct rt_norm_place {
     rt_norm_band band;
-    int row;                   /* the rt_norm_table row; -1 when none */
-    char text[240];            /* "above the 95th percentile of adults aged 21-88 without RBD" */
+    int row;                   /* the built-in rt_norm_table row (its measure and RBD cutoff);
+                                  -1 when none */
+    bool lab;                  /* the lab's norms file lists this index: placed against its
+                                  row, never the built-in value */
+    bool applied;              /* stratum holds the value placed against (a row applied) */
+    rt_norm_stratum stratum;
+    char text[320];            /* "above the 95th percentile (9.1 %) of adults ..." or why it
+                                  was not placed ("not placed: no age given") */
 } rt_norm_place;
+
+/* A lab's own normative values (docs/scoring.md, "Norms"), by index, sex and
+ * age band; made by rt_norms_load, freed by rt_norms_free (NULL accepted). */
+typedef struct rt_norms rt_norms;
+
+/* Loads a norms file: CSV with header `index,sex,age_from,age_to,percentile,
+ * value,unit,source` and an optional `method` column. index is an index id
+ * (remtone rules), sex F, M or any, the band holds age_from <= age < age_to
+ * (years, 0 .. 150), percentile is above 50 (below 50 for the REM Atonia
+ * Index, where lower is further from atonia), value is in the index's unit,
+ * which the unit column must state, and source (required) says where the
+ * values come from. Two rows of one index, sex and percentile whose bands
+ * overlap are refused with both lines. Errors name the file and line
+ * (RT_ERR_STAGING, RT_ERR_IO, RT_ERR_NOMEM). */
+rt_status rt_norms_load(const char *path, rt_norms **out, rt_error *err);
+void rt_norms_free(rt_norms *norms);
+/* The file the norms were read from. */
+const char *rt_norms_path(const rt_norms *norms);
+
+/* The row of `norms` that applies to index i for a person (age_years NaN
+ * or sex 0 when not known): among the rows whose band holds the age, one of
+ * the person's sex before one for either sex; within it the highest
+ * percentile (the lowest for an index where lower is worse). Returns 1 with
+ * *out filled, 0 when the file lists the index but no row applies (why says
+ * so: no age given, no row for this sex, the age outside every band), -1
+ * when the file does not list the index. */
+int rt_norms_choose(const rt_norms *norms, rt_index_id i, double age_years, char sex,
+                    rt_norm_stratum *out, char *why, size_t why_cap);
 
 /* The person the night belongs to, as far as given. */
 typedef struct rt_person {
@@ -515,7 +567,7 @@ typedef struct rt_person {
 
 
 /* The result of one night. Made only by rt_night_score (never declare one:
- * it is a large struct, about 26 kB on x86_64, mostly fixed text arrays) and freed with
+ * it is a large struct, about 48 kB on x86_64, mostly fixed text arrays) and freed with
  * rt_night_free; the arrays it points to belong to it, so a struct copy
  * shares them and must not outlive it. Its layout is public for the reports
  * and may grow between versions. Texts are NUL-terminated UTF-8. */
@@ -560,6 +612,8 @@ typedef struct rt_night {
     rt_person person;                    /* rt_night_place_norms; not given by default */
     bool norms_placed;                   /* rt_night_place_norms was called */
     rt_norm_place norms[RT_IX_COUNT];    /* each index against its norm */
+    char norms_file[512];                /* the lab's norms file placed against; "" when
+                                            only the built-in table was */
     /* NULL, or a reviewer's decisions applied (rt_night_correct,
      * remtone/corrections.h): then index, level, reasons, reservations,
      * exclusions and scorable_minutes are the corrected ones, and this holds
@@ -662,6 +716,14 @@ void rt_night_agreement(rt_night *night, const rt_timeline *tl);
  * the reason in its text. Sets night->person, night->norms_placed and
  * night->norms. RT_ERR_USAGE for an age outside 0..130 or another sex. */
 rt_status rt_night_place_norms(rt_night *night, double age_years, char sex, rt_error *err);
+/* The same with a lab's norms file (NULL: the built-in table alone): an
+ * index the file lists is placed against its row for this person
+ * (rt_norms_choose), or not placed when none applies, never against the
+ * built-in value; an index it does not list keeps the built-in table. The
+ * file's values are lab-supplied context and never decide the level.
+ * night->norms_file receives its path. */
+rt_status rt_night_place_norms_from(rt_night *night, const rt_norms *norms, double age_years,
+                                    char sex, rt_error *err);
 
 #ifdef __cplusplus
 }

@@ -42,7 +42,7 @@ int cohort_night_path(char *dst, size_t cap, const char *nights_dir, const char 
 /* ---- merge ---- */
 
 /* True when root is a night result the merge can read: schema
- * remtone-night/2 (or /1) with the objects "rem", "review" and "indices".
+ * remtone-night/4 (or /3, /2, /1) with the objects "rem", "review" and "indices".
  * A run rescores a night whose stored result is not one (a file cut short or
  * damaged), whatever its key says. */
 bool cohort_result_usable(json_t *root);

@@ -1,6 +1,6 @@
 /* The cohort manifest: one row per night naming its recording, staging,
  * events, group, optionally its subject and visit, its own label map and
- * cutoff file (nights from several sites), and any per-night channel
+ * cutoff file and norms file (nights from several sites), and any per-night channel
  * overrides. Read with the shared
  * table reader, so quoting, tabs, a byte-order mark and CRLF behave as in
  * every other table; each row is checked here (safe id, no duplicate, input
@@ -20,7 +20,7 @@
 
 enum {
     COL_ID = 0, COL_RECORDING, COL_STAGES, COL_EVENTS, COL_GROUP,
-    COL_SUBJECT, COL_VISIT, COL_LABEL_MAP, COL_CUTOFFS, COL_AGE, COL_SEX, COL_CORRECTIONS,
+    COL_SUBJECT, COL_VISIT, COL_LABEL_MAP, COL_CUTOFFS, COL_AGE, COL_SEX, COL_CORRECTIONS, COL_NORMS,
     COL_ROLE0 /* the optional columns from COL_SUBJECT on */
 };
 
@@ -104,6 +104,7 @@ static void entry_free(rt_manifest_entry *e)
     free(e->label_map);
     free(e->cutoffs);
     free(e->corrections);
+    free(e->norms);
     for (int r = 0; r < RT_ROLE_COUNT; r++)
         free(e->role_override[r]);
     memset(e, 0, sizeof *e);
@@ -205,6 +206,8 @@ static void on_row(rt_table *t, char **v)
         ok = resolve(t, l, e.id, "cutoffs", v[COL_CUTOFFS], &e.cutoffs) == RT_OK;
     if (ok && v[COL_CORRECTIONS][0])
         ok = resolve(t, l, e.id, "corrections", v[COL_CORRECTIONS], &e.corrections) == RT_OK;
+    if (ok && v[COL_NORMS][0])
+        ok = resolve(t, l, e.id, "norms", v[COL_NORMS], &e.norms) == RT_OK;
     for (int r = 0; ok && r < RT_ROLE_COUNT; r++) {
         if (v[COL_ROLE0 + r][0] && !(e.role_override[r] = strdup(v[COL_ROLE0 + r]))) {
             rt_table_fail(t, rt_fail(&t->error, RT_ERR_NOMEM, "%s: out of memory", t->path));
@@ -254,7 +257,7 @@ rt_status rt_manifest_load(const char *path, rt_manifest **out, rt_error *err)
     t.columns[COL_EVENTS] = "events";
     t.columns[COL_GROUP] = "group";
     static const char *const extra[] = {"subject", "visit",  "label_map",  "cutoffs",
-                                        "age",     "sex",    "corrections"};
+                                        "age",     "sex",    "corrections", "norms"};
     for (int k = 0; k < COL_ROLE0 - COL_SUBJECT; k++) {
         t.columns[COL_SUBJECT + k] = extra[k];
         t.optional[COL_SUBJECT + k] = true;

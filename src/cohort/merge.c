@@ -122,7 +122,8 @@ bool cohort_result_usable(json_t *root)
     const char *schema = json_string_value(json_object_get(root, "schema"));
     return schema && (strcmp(schema, "remtone-night/1") == 0 ||
                       strcmp(schema, "remtone-night/2") == 0 ||
-                      strcmp(schema, "remtone-night/3") == 0) &&
+                      strcmp(schema, "remtone-night/3") == 0 ||
+                      strcmp(schema, "remtone-night/4") == 0) &&
            json_is_object(json_object_get(root, "rem")) &&
            json_is_object(json_object_get(root, "review")) &&
            json_is_object(json_object_get(root, "indices"));
@@ -152,7 +153,7 @@ static rt_status read_result(const char *dir, const char *id, cohort_row *row, b
     bool v1 = schema && strcmp(schema, "remtone-night/1") == 0;
     if (!cohort_result_usable(root)) {
         json_decref(root);
-        return rt_fail(err, RT_ERR_STAGING, "%s: not a remtone-night/3 (or /2, /1) result", path);
+        return rt_fail(err, RT_ERR_STAGING, "%s: not a remtone-night/4 (or /3, /2, /1) result", path);
     }
     rt_copy_string(row->id, sizeof row->id, id);
     row->flagged = json_is_true(json_object_get(review, "flagged"));

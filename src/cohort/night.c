@@ -60,10 +60,15 @@ void cohort_settings_text(cohort_shared *s)
     }
 }
 
-/* The row's own cutoff file and label map, else the run's (NULL: none). */
+/* The row's own cutoff file, norms file and label map, else the run's (NULL: none). */
 static const char *night_cutoffs_path(const cohort_shared *s, const rt_manifest_entry *e)
 {
     return e->cutoffs ? e->cutoffs : s->options->cutoffs_path;
+}
+
+static const char *night_norms_path(const cohort_shared *s, const rt_manifest_entry *e)
+{
+    return e->norms ? e->norms : s->options->norms_path;
 }
 
 static const char *night_label_map_path(const cohort_shared *s, const rt_manifest_entry *e)
@@ -87,6 +92,9 @@ static rt_status night_identity(const cohort_shared *s, const rt_manifest_entry 
         st = rt_file_identity_add(id, "cutoffs", night_cutoffs_path(s, e), false, err);
     if (st == RT_OK)
         st = rt_file_identity_add(id, "label_map", night_label_map_path(s, e), false, err);
+    /* other norms place the night otherwise: another result */
+    if (st == RT_OK)
+        st = rt_file_identity_add(id, "norms", night_norms_path(s, e), false, err);
     /* a night rescored with other decisions is another result */
     if (st == RT_OK)
         st = rt_file_identity_add(id, "corrections", e->corrections, false, err);
@@ -197,6 +205,7 @@ static rt_status score_and_write(const cohort_shared *s, const rt_manifest_entry
     rt_timeline *tl = NULL;
     rt_night *night = NULL;
     rt_corrections *corrections = NULL;
+    rt_norms *norms = NULL;
     rt_role_map roles;
     rt_role_options ro;
     memset(&ro, 0, sizeof ro);
@@ -211,6 +220,9 @@ static rt_status score_and_write(const cohort_shared *s, const rt_manifest_entry
         rt_cutoffs_published(&cutoffs);
         st = rt_cutoffs_load(&cutoffs, e->cutoffs, err);
     }
+    const char *norms_path = night_norms_path(s, e);
+    if (st == RT_OK && norms_path)
+        st = rt_norms_load(norms_path, &norms, err);
     if (st == RT_OK && map_path)
         st = rt_labelmap_load(map_path, &map, err);
     if (st == RT_OK)
@@ -234,8 +246,8 @@ static rt_status score_and_write(const cohort_shared *s, const rt_manifest_entry
     /* the norms place the indices the night ends with: the corrected ones */
     if (st == RT_OK && corrections)
         st = rt_night_correct(night, tl, corrections, err);
-    if (st == RT_OK && (!isnan(e->age_years) || e->sex))
-        st = rt_night_place_norms(night, e->age_years, e->sex, err);
+    if (st == RT_OK && (!isnan(e->age_years) || e->sex || norms))
+        st = rt_night_place_norms_from(night, norms, e->age_years, e->sex, err);
     if (st == RT_OK) {
         rt_run_inputs in = {e->recording, e->stages, e->events, cut_path, map_path,
                             e->corrections, NULL};
@@ -249,6 +261,7 @@ static rt_status score_and_write(const cohort_shared *s, const rt_manifest_entry
     rt_labelmap_free(map);
     rt_night_free(night);
     rt_corrections_free(corrections);
+    rt_norms_free(norms);
     rt_timeline_free(tl);
     rt_recording_close(rec);
     return st;

@@ -249,8 +249,14 @@ static rt_status prepare(runner *r, const rt_manifest *m, const rt_cohort_option
     rt_status st = o->cutoffs_path ? rt_cutoffs_load(&r->shared.cutoffs, o->cutoffs_path, err) : RT_OK;
     if (st != RT_OK)
         return st;
-    /* the run's label map is read by every night: a bad one stops the run here,
-     * once, rather than failing each night alike */
+    /* the run's label map and norms file are read by every night: a bad one
+     * stops the run here, once, rather than failing each night alike */
+    if (o->norms_path) {
+        rt_norms *norms = NULL;
+        if ((st = rt_norms_load(o->norms_path, &norms, err)) != RT_OK)
+            return st;
+        rt_norms_free(norms);
+    }
     if (o->label_map_path) {
         rt_labelmap *map = NULL;
         if ((st = rt_labelmap_load(o->label_map_path, &map, err)) != RT_OK)

@@ -246,8 +246,14 @@ rt_status rt_table_read(rt_table *r, rt_error *err)
 
     /* The delimiter is a tab when the header line has tabs but no commas. */
     size_t h = pos;
-    while (h < len && (buf[h] == '\n' || buf[h] == '\r' || buf[h] == ' ' || buf[h] == '\t'))
-        h++;
+    for (;;) {
+        while (h < len && (buf[h] == '\n' || buf[h] == '\r' || buf[h] == ' ' || buf[h] == '\t'))
+            h++;
+        if (!(r->leading_comments && h < len && buf[h] == '#'))
+            break;
+        while (h < len && buf[h] != '\n')
+            h++;
+    }
     size_t h_end = h;
     while (h_end < len && buf[h_end] != '\n' && buf[h_end] != '\r')
         h_end++;
@@ -267,9 +273,19 @@ rt_status rt_table_read(rt_table *r, rt_error *err)
     r->line = 1;
     for (size_t i = 0; i < pos; i++)
         r->line += buf[i] == '\n';
+    bool started = false; /* a line other than a leading comment or a blank was fed */
     while (pos < len && r->status == RT_OK) {
         const unsigned char *nl = memchr(buf + pos, '\n', len - pos);
         size_t n = nl ? (size_t)(nl - (buf + pos)) + 1 : len - pos;
+        size_t first = pos;
+        while (first < pos + n && (buf[first] == ' ' || buf[first] == '\t'))
+            first++;
+        if (!started && r->leading_comments && first < pos + n && buf[first] == '#') {
+            pos += n;
+            r->line++;
+            continue;
+        }
+        started |= first < pos + n && buf[first] != '\n' && buf[first] != '\r';
         if (csv_parse(&p, buf + pos, n, on_field, on_row_end, r) != n) {
             if (csv_error(&p) == CSV_ENOMEM) /* libcsv grows its field buffer */
                 rt_table_fail(r, rt_fail(&r->error, RT_ERR_NOMEM, "%s line %ld: out of memory",

@@ -26,6 +26,8 @@ struct rt_table {
     const char *columns[RT_TABLE_MAX_COLUMNS];
     size_t n_columns;
     bool optional[RT_TABLE_MAX_COLUMNS]; /* may be missing from the header: value "" */
+    bool leading_comments;        /* lines starting with '#' before the header are skipped
+                                     (a note on where the file's values come from) */
     int column_index[RT_TABLE_MAX_COLUMNS]; /* field index of each wanted column, -1 if absent */
     bool have_header;
     long header_line;
@@ -44,7 +46,7 @@ struct rt_table {
 /* Reads t->path and calls t->on_row(t, values) for each non-blank data row,
  * values[k] being the field of t->columns[k] (trimmed; "" for an absent
  * optional column). Set path, what, columns, n_columns, optional, on_row and
- * user; zero the rest. On failure the message names the file and line. */
+ * user (and leading_comments when wanted); zero the rest. On failure the message names the file and line. */
 rt_status rt_table_read(rt_table *t, rt_error *err);
 
 /* Records the first failure of a row handler (later ones are dropped). */

@@ -63,6 +63,56 @@ static int count_deciding(const rt_night *night, bool reach, int *first)
     return n;
 }
 
+/* Where the compared measures lie against the norms, the built-in table's
+ * (adults without RBD) and the lab file's strata counted apart, each stratum
+ * named with its file and lines; or why the lab's norms did not apply. */
+static void norms_words(const rt_night *night, char *buf, size_t cap, size_t *len)
+{
+    int placed[2] = {0, 0}, beyond[2] = {0, 0};
+    const rt_norm_place *lab = NULL;
+    const char *why = NULL, *prefix = "not placed: ";
+    bool one_group = true;
+    char lines[96] = "", strata[480] = ""; /* "3, 6"; "women aged 60-69, line 3; ..." */
+    size_t used = 0, s_used = 0;
+    for (int i = 0; i < RT_IX_COUNT; i++) {
+        const rt_norm_place *np = &night->norms[i];
+        if (np->lab && !np->applied && !why && strncmp(np->text, prefix, strlen(prefix)) == 0)
+            why = np->text + strlen(prefix);
+        if (np->band == RT_NORM_NOT_PLACED)
+            continue;
+        placed[np->lab]++;
+        beyond[np->lab] += np->band == RT_NORM_BEYOND || np->band == RT_NORM_BEYOND_RBD_CUTOFF;
+        if (!np->lab)
+            continue;
+        if (lab && strcmp(lab->stratum.who, np->stratum.who) != 0)
+            one_group = false;
+        lab = lab ? lab : np;
+        int w = snprintf(lines + used, sizeof lines - used, "%s%ld", used ? ", " : "",
+                         np->stratum.line);
+        used = w > 0 && (size_t)w < sizeof lines - used ? used + (size_t)w : used;
+        w = snprintf(strata + s_used, sizeof strata - s_used, "%s%s, line %ld",
+                     s_used ? "; " : "", np->stratum.who, np->stratum.line);
+        s_used = w > 0 && (size_t)w < sizeof strata - s_used ? s_used + (size_t)w : s_used;
+    }
+    if (placed[0])
+        put(buf, cap, len, "; against adults without RBD, %d of %d compared chin measures lie "
+            "beyond the normal limit", beyond[0], placed[0]);
+    const char *slash = strrchr(night->norms_file, '/');
+    const char *file = slash ? slash + 1 : night->norms_file;
+    if (placed[1] == 1)
+        put(buf, cap, len, "; against the %s, the compared measure lies %s", lab->stratum.label,
+            beyond[1] ? "beyond it" : "within it");
+    else if (placed[1] && one_group)
+        put(buf, cap, len, "; against the lab's norms for %s (lab file %s lines %s), %d of %d "
+            "compared measures lie beyond the normal limit", lab->stratum.who, file, lines,
+            beyond[1], placed[1]);
+    else if (placed[1])
+        put(buf, cap, len, "; against the lab's norms (lab file %s: %s), %d of %d compared "
+            "measures lie beyond the normal limit", file, strata, beyond[1], placed[1]);
+    else if (why)
+        put(buf, cap, len, "; the lab's norms (%s) were not applied: %s", file, why);
+}
+
 void rt_night_plain_sentence(const rt_night *night, char *buf, size_t cap)
 {
     size_t len = 0;
@@ -99,17 +149,8 @@ void rt_night_plain_sentence(const rt_night *night, char *buf, size_t cap)
                 first >= 0 ? rules[first].title : "see the reasons");
         } else
             put(buf, cap, &len, "; no index reaches or nears a verified cutoff");
-        if (night->norms_placed) {
-            int beyond = 0, placed = 0;
-            for (int i = 0; i < RT_IX_COUNT; i++) {
-                placed += night->norms[i].band != RT_NORM_NOT_PLACED;
-                beyond += night->norms[i].band == RT_NORM_BEYOND ||
-                          night->norms[i].band == RT_NORM_BEYOND_RBD_CUTOFF;
-            }
-            if (placed)
-                put(buf, cap, &len, "; against adults without RBD, %d of %d compared chin "
-                    "measures lie beyond the normal limit", beyond, placed);
-        }
+        if (night->norms_placed)
+            norms_words(night, buf, cap, &len);
     }
     if (night->n_reservations) {
         put(buf, cap, &len, "; this is limited because ");
@@ -256,17 +297,23 @@ static void norms_text(const rt_night *night, FILE *out)
         fprintf(out, "age %g", p->age_years);
     else
         fprintf(out, "age not given");
-    fprintf(out, ", %s; norms of %s, one table for every age and both sexes; scored by eye, "
-            "so context only):\n", p->sex == 'F' ? "woman" : p->sex == 'M' ? "man" : "sex not given",
-            n ? t[0].group : "");
+    fprintf(out, ", %s; ", p->sex == 'F' ? "woman" : p->sex == 'M' ? "man" : "sex not given");
+    if (night->norms_file[0])
+        fprintf(out, "the lab's norms file %s for the indices it lists (lab-supplied), else ",
+                night->norms_file);
+    fprintf(out, "norms of %s, one table for every age and both sexes; scored by eye, "
+            "so context only):\n", n ? t[0].group : "");
     const rt_index_rule *rules = rt_index_rules();
     for (int i = 0; i < RT_IX_COUNT; i++) {
         const rt_norm_place *np = &night->norms[i];
-        if (np->row < 0)
+        if (np->row < 0 && !np->lab)
             continue;
         char v[32];
         rt_report_value_text(&rules[i], night->index[i].value, v, sizeof v);
         fprintf(out, "  %-30s %10s  %s\n", rules[i].id, v, np->text);
+        if (np->lab && np->applied)
+            fprintf(out, "  %-30s %10s  source: %s%s%s\n", "", "", np->stratum.source,
+                    np->stratum.method[0] ? "; scored: " : "", np->stratum.method);
     }
 }
 

@@ -186,27 +186,43 @@ void rt_html_periods(rt_page *p, const rt_night *n)
 }
 
 /* A band from 0 to twice the larger of the limit and the value: the normal
- * range green, beyond it amber (red from the RBD cutoff), the value a mark. */
-static void norm_band(rt_page *p, const rt_norm_row *r, double v, bool lower_worse)
+ * range green, beyond it amber (red from the RBD cutoff), the value a mark;
+ * under it the stratum it was placed against (who, ages, the lab file's
+ * line), and its full label and source as the drawing's title. */
+static void norm_band(rt_page *p, const rt_norm_place *np, const rt_norm_row *r, double v,
+                      bool lower_worse)
 {
     const double w = 220, h = 14;
-    double top = lower_worse ? 1.0 : fmax(2.0 * r->limit, 1.25 * v);
-    if (!lower_worse && isfinite(r->rbd_cutoff))
-        top = fmax(top, 1.25 * r->rbd_cutoff);
-    double lx = w * fmin(r->limit / top, 1.0);
-    rt_svg_begin(p, w, h + 4, "the value against the normative limit");
+    const rt_norm_stratum *s = &np->stratum;
+    double rbd = r && !r->rbd_cutoff_from_memory ? r->rbd_cutoff : NAN;
+    double top = lower_worse ? 1.0 : fmax(2.0 * s->value, 1.25 * v);
+    if (!lower_worse && isfinite(rbd))
+        top = fmax(top, 1.25 * rbd);
+    double lx = w * fmin(s->value / top, 1.0);
+    char label[520];
+    snprintf(label, sizeof label, "the value against the %s; source: %s", s->label, s->source);
+    rt_svg_begin(p, w, h + 18, label);
+    rt_page_start(p, "title");
+    rt_page_text(p, label);
+    rt_page_end_svg(p);
     if (lower_worse) {
         rt_svg_rect(p, 0, 2, lx, h, "#f3d9b0", "below the normative limit");
         rt_svg_rect(p, lx, 2, w - lx, h, "#cfe8d6", "within the normative range");
     } else {
-        rt_svg_rect(p, 0, 2, lx, h, "#cfe8d6", "within the 95th percentile");
-        double cx = isfinite(r->rbd_cutoff) ? w * fmin(r->rbd_cutoff / top, 1.0) : w;
-        rt_svg_rect(p, lx, 2, cx - lx, h, "#f3d9b0", "above the 95th percentile");
+        rt_svg_rect(p, 0, 2, lx, h, "#cfe8d6", "within the normative limit");
+        double cx = isfinite(rbd) ? w * fmin(rbd / top, 1.0) : w;
+        rt_svg_rect(p, lx, 2, cx - lx, h, "#f3d9b0", "above the normative limit");
         if (cx < w)
             rt_svg_rect(p, cx, 2, w - cx, h, "#e9b7b2", "at or above the RBD cutoff");
     }
     double vx = w * fmin(fmax(v / top, 0.0), 1.0);
     rt_svg_rect(p, fmax(0.0, fmin(vx - 1.5, w - 3.0)), 0, 3, h + 4, "#1b2430", "this night");
+    char who[96];
+    if (np->lab)
+        snprintf(who, sizeof who, "%s, line %ld", s->who, s->line);
+    else
+        snprintf(who, sizeof who, "women and men aged %g-%g, published", s->age_from, s->age_to);
+    rt_svg_text(p, 0, h + 15, "start", "small", who);
     rt_svg_end(p);
 }
 
@@ -224,10 +240,17 @@ void rt_html_norms(rt_page *p, const rt_night *n)
         rt_page_textf(p, "Age %g", n->person.age_years);
     else
         rt_page_text(p, "Age not given");
-    rt_page_textf(p, ", %s. Norms: %s, one table for every age and both sexes (the paper's age "
-                  "and sex percentiles are not in remtone); %s. remtone's automatic indices "
-                  "are close to these visual measures, not identical.",
-                  n->person.sex == 'F' ? "woman" : n->person.sex == 'M' ? "man" : "sex not given",
+    rt_page_textf(p, ", %s. ",
+                  n->person.sex == 'F' ? "woman" : n->person.sex == 'M' ? "man" : "sex not given");
+    if (n->norms_file[0])
+        rt_page_textf(p, "The indices the lab's norms file %s lists are placed against its row "
+                      "for this age and sex (lab-supplied values); the others against ",
+                      n->norms_file);
+    else
+        rt_page_text(p, "Norms: ");
+    rt_page_textf(p, "%s, one table for every age and both sexes (the paper's age and sex "
+                  "percentiles are not in remtone); %s. remtone's automatic indices are close "
+                  "to these visual measures, not identical.",
                   count ? t[0].group : "", count ? t[0].method : "");
     rt_page_end_html(p);
     rt_page_start(p, "table");
@@ -238,24 +261,33 @@ void rt_html_norms(rt_page *p, const rt_night *n)
     rt_page_end_html(p);
     for (int i = 0; i < RT_IX_COUNT; i++) {
         const rt_norm_place *np = &n->norms[i];
-        if (np->row < 0 || (size_t)np->row >= count)
+        if (np->row < 0 && !np->lab)
             continue;
-        const rt_norm_row *r = &t[np->row];
+        const rt_norm_row *r = np->row >= 0 && (size_t)np->row < count ? &t[np->row] : NULL;
         char v[48];
         rt_page_start(p, "tr");
         rt_page_attr(p, "data-band", rt_norm_band_name(np->band));
+        rt_page_attr(p, "data-origin", np->lab ? "lab-supplied" : "published");
         cell(p, rules[i].id, "nowrap");
         rt_report_value_text(&rules[i], n->index[i].value, v, sizeof v);
         cell(p, v, "num");
         cell(p, np->text, NULL);
         rt_page_start(p, "td");
         if (np->band != RT_NORM_NOT_PLACED)
-            norm_band(p, r, n->index[i].value, rules[i].lower_is_worse);
+            norm_band(p, np, r, n->index[i].value, rules[i].lower_is_worse);
         rt_page_end_html(p);
         rt_page_start(p, "td");
         rt_page_attr(p, "class", "muted");
-        rt_page_text(p, r->limit_source);
-        if (isfinite(r->rbd_cutoff)) {
+        if (np->lab && np->applied) {
+            rt_page_textf(p, "lab-supplied, %s line %ld: %s", n->norms_file, np->stratum.line,
+                          np->stratum.source);
+            if (np->stratum.method[0])
+                rt_page_textf(p, " (scored: %s)", np->stratum.method);
+        } else if (np->lab)
+            rt_page_textf(p, "lab file %s: no row applied", n->norms_file);
+        else
+            rt_page_text(p, r->limit_source);
+        if (r && isfinite(r->rbd_cutoff)) {
             rt_page_text(p, "; RBD cutoff: ");
             rt_page_text(p, r->rbd_cutoff_source);
         }

@@ -1,4 +1,4 @@
-/* The night result as JSON (schema "remtone-night/3", docs/night-json.md),
+/* The night result as JSON (schema "remtone-night/4", docs/night-json.md),
  * built with jansson and written atomically. */
 #include <jansson.h>
 #include <math.h>
@@ -211,6 +211,9 @@ static rt_status provenance_json(const rt_night *night, const rt_run_inputs *in,
             st = rt_file_identity_add(inputs, "label_map", in->label_map, true, err);
         if (st == RT_OK)
             st = rt_file_identity_add(inputs, "corrections", in->corrections, true, err);
+        if (st == RT_OK)
+            st = rt_file_identity_add(inputs, "norms",
+                                      night->norms_file[0] ? night->norms_file : NULL, true, err);
     }
     if (st != RT_OK) {
         json_decref(inputs);
@@ -422,42 +425,78 @@ static json_t *halves_json(const rt_night *night)
     return rt_json_done(a, ok);
 }
 
-/* null when no age or sex was given; else the person and each index placed. */
+/* The stratum an index was placed against: who, ages, percentile, and the
+ * lab file's line (null for the built-in table). */
+static json_t *stratum_json(const rt_night *night, const rt_norm_place *np)
+{
+    const rt_norm_stratum *s = &np->stratum;
+    bool ok = true;
+    json_t *o = json_object();
+    rt_json_set(o, "sex", json_string(s->sex == 'F' ? "F" : s->sex == 'M' ? "M" : "any"), &ok);
+    rt_json_set(o, "age_from", number(s->age_from), &ok);
+    rt_json_set(o, "age_to", number(s->age_to), &ok);
+    rt_json_set(o, "age_to_included", json_boolean(!np->lab), &ok);
+    rt_json_set(o, "percentile", number(s->percentile), &ok);
+    rt_json_set(o, "label", rt_json_text(s->label), &ok);
+    rt_json_set(o, "file", np->lab ? rt_json_text(night->norms_file) : json_null(), &ok);
+    rt_json_set(o, "line", np->lab ? json_integer(s->line) : json_null(), &ok);
+    return rt_json_done(o, ok);
+}
+
+/* One index against its norm (docs/night-json.md, "norms"). */
+static json_t *norm_index_json(const rt_night *night, int i)
+{
+    const rt_norm_place *np = &night->norms[i];
+    const rt_index_rule *rule = &rt_index_rules()[i];
+    size_t n = 0;
+    const rt_norm_row *t = rt_norm_table(&n);
+    const rt_norm_row *r = np->row >= 0 && (size_t)np->row < n ? &t[np->row] : NULL;
+    const rt_norm_stratum *s = &np->stratum;
+    bool shown = np->applied || !np->lab; /* a built-in row is shown even outside its ages */
+    bool ok = true;
+    json_t *x = json_object();
+    rt_json_set(x, "value", number(rounded(night->index[i].value,
+                                           strcmp(rule->unit, "%") == 0 ? 2 : 4)), &ok);
+    rt_json_set(x, "band", json_string(rt_norm_band_name(np->band)), &ok);
+    rt_json_set(x, "text", rt_json_text(np->text), &ok);
+    rt_json_set(x, "measure", json_string(!np->lab && r ? r->measure : rule->title), &ok);
+    rt_json_set(x, "normal_limit", shown ? number(s->value) : json_null(), &ok);
+    rt_json_set(x, "normal_limit_source", shown ? rt_json_text(s->source) : json_null(), &ok);
+    rt_json_set(x, "normal_limit_origin", json_string(np->lab ? "lab-supplied" : "published"), &ok);
+    rt_json_set(x, "normal_limit_from_memory", json_boolean(!np->lab && r && r->limit_from_memory),
+                &ok);
+    bool cut = r && isfinite(r->rbd_cutoff);
+    rt_json_set(x, "rbd_cutoff", cut ? number(r->rbd_cutoff) : json_null(), &ok);
+    rt_json_set(x, "rbd_cutoff_source", cut ? json_string(r->rbd_cutoff_source) : json_null(), &ok);
+    rt_json_set(x, "ages", shown ? json_pack("[f,f]", s->age_from, s->age_to) : json_null(), &ok);
+    rt_json_set(x, "group", shown ? rt_json_text(s->who) : json_null(), &ok);
+    rt_json_set(x, "method", shown && s->method[0] ? rt_json_text(s->method) : json_null(), &ok);
+    rt_json_set(x, "stratum", shown ? stratum_json(night, np) : json_null(), &ok);
+    const char *prefix = "not placed: ";
+    rt_json_set(x, "not_placed_reason",
+                np->band == RT_NORM_NOT_PLACED && strncmp(np->text, prefix, strlen(prefix)) == 0
+                    ? rt_json_text(np->text + strlen(prefix)) : json_null(), &ok);
+    return rt_json_done(x, ok);
+}
+
+/* null when no age, sex or norms file was given; else the person and each
+ * index placed. */
 static json_t *norms_json(const rt_night *night)
 {
     if (!night->norms_placed)
         return json_null();
-    size_t n = 0;
-    const rt_norm_row *t = rt_norm_table(&n);
     const rt_index_rule *rules = rt_index_rules();
     bool ok = true;
     json_t *o = json_object();
     char sex[2] = {night->person.sex, '\0'};
     rt_json_set(o, "age_years", number(night->person.age_years), &ok);
     rt_json_set(o, "sex", sex[0] ? json_string(sex) : json_null(), &ok);
+    rt_json_set(o, "file", night->norms_file[0] ? rt_json_text(night->norms_file) : json_null(),
+                &ok);
     json_t *ix = json_object();
-    for (int i = 0; i < RT_IX_COUNT && ok; i++) {
-        const rt_norm_place *np = &night->norms[i];
-        if (np->row < 0 || (size_t)np->row >= n)
-            continue;
-        const rt_norm_row *r = &t[np->row];
-        json_t *x = json_object();
-        rt_json_set(x, "value", number(rounded(night->index[i].value,
-                                               strcmp(rules[i].unit, "%") == 0 ? 2 : 4)), &ok);
-        rt_json_set(x, "band", json_string(rt_norm_band_name(np->band)), &ok);
-        rt_json_set(x, "text", json_string(np->text), &ok);
-        rt_json_set(x, "measure", json_string(r->measure), &ok);
-        rt_json_set(x, "normal_limit", number(r->limit), &ok);
-        rt_json_set(x, "normal_limit_source", json_string(r->limit_source), &ok);
-        rt_json_set(x, "normal_limit_from_memory", json_boolean(r->limit_from_memory), &ok);
-        rt_json_set(x, "rbd_cutoff", number(r->rbd_cutoff), &ok);
-        rt_json_set(x, "rbd_cutoff_source", isfinite(r->rbd_cutoff) ? json_string(r->rbd_cutoff_source)
-                                                                    : json_null(), &ok);
-        rt_json_set(x, "ages", json_pack("[f,f]", r->age_from, r->age_to), &ok);
-        rt_json_set(x, "group", json_string(r->group), &ok);
-        rt_json_set(x, "method", json_string(r->method), &ok);
-        rt_json_set(ix, rules[i].id, rt_json_done(x, ok), &ok);
-    }
+    for (int i = 0; i < RT_IX_COUNT && ok; i++)
+        if (night->norms[i].row >= 0 || night->norms[i].lab)
+            rt_json_set(ix, rules[i].id, norm_index_json(night, i), &ok);
     rt_json_set(o, "indices", rt_json_done(ix, ok), &ok);
     rt_json_set(o, "decides_level", json_false(), &ok);
     return rt_json_done(o, ok);
@@ -474,7 +513,7 @@ rt_status rt_night_write_json(const rt_night *night, const rt_run_inputs *inputs
         return st;
     bool ok = true;
     json_t *root = json_object();
-    rt_json_set(root, "schema", json_string("remtone-night/3"), &ok);
+    rt_json_set(root, "schema", json_string("remtone-night/4"), &ok);
     rt_json_set(root, "rem", json_pack("{s:I,s:f,s:f,s:I}", "epochs",
                                        (json_int_t)night->rem_epochs, "minutes",
                                        night->rem_minutes, "scorable_minutes",

@@ -9,6 +9,7 @@
 
 #include "internal.h"
 #include "remtone/score.h"
+#include "lab_rows.h"
 #include "table.h"
 
 typedef struct cutoff_rows {
@@ -16,54 +17,71 @@ typedef struct cutoff_rows {
     bool seen[RT_IX_COUNT];
 } cutoff_rows;
 
+double rt_lab_unit_max(const char *unit)
+{
+    return strcmp(unit, "%") == 0 ? 100.0 : strcmp(unit, "ratio") == 0 ? 1.0 : 1e6;
+}
+
+const rt_index_rule *rt_lab_row_check(rt_table *t, const char *id_text, int unit_col,
+                                      const char *unit_text, const char *value_text,
+                                      const char *value_name, const char *example,
+                                      rt_index_id *id, double *value)
+{
+    char q[RT_TABLE_QUOTE_MAX];
+    const rt_index_rule *rule = rt_index_rule_find(id_text, id);
+    if (!rule) {
+        rt_table_quote(q, sizeof q, id_text);
+        rt_table_fail(t, rt_fail(&t->error, RT_ERR_STAGING,
+                                 "%s line %ld: \"%s\" is not an index id (remtone rules lists them)",
+                                 t->path, t->row_line, q));
+        return NULL;
+    }
+    if (t->column_index[unit_col] < 0) {
+        rt_table_fail(t, rt_fail(&t->error, RT_ERR_STAGING,
+                                 "%s line %ld: the %s has no \"unit\" column; each row must state "
+                                 "its unit (%% for percentages, ratio for the REM Atonia Index, /h "
+                                 "for rates): add it, for example %s", t->path, t->header_line,
+                                 t->what, example));
+        return NULL;
+    }
+    if (strcmp(unit_text, rule->unit) != 0) {
+        rt_table_quote(q, sizeof q, unit_text);
+        rt_table_fail(t, rt_fail(&t->error, RT_ERR_STAGING,
+                                 "%s line %ld: unit \"%s\" does not fit %s, which is counted in "
+                                 "\"%s\"%s", t->path, t->row_line, q, id_text, rule->unit,
+                                 strcmp(rule->unit, "%") == 0
+                                     ? " (a share of 0.3 is written 30 with unit %)" : ""));
+        return NULL;
+    }
+    if (!rt_table_number(t, value_text, value_name, value))
+        return NULL;
+    double hi = rt_lab_unit_max(rule->unit);
+    if (*value < 0.0 || *value > hi) {
+        rt_table_fail(t, rt_fail(&t->error, RT_ERR_STAGING,
+                                 "%s line %ld: %s %g for %s is outside 0 .. %g", t->path,
+                                 t->row_line, value_name, *value, id_text, hi));
+        return NULL;
+    }
+    return rule;
+}
+
 static void on_cutoff_row(rt_table *t, char **v)
 {
     cutoff_rows *rows = t->user;
     rt_index_id id;
-    const rt_index_rule *rule = rt_index_rule_find(v[0], &id);
-    if (!rule) {
-        char q[RT_TABLE_QUOTE_MAX];
-        rt_table_quote(q, sizeof q, v[0]);
-        rt_table_fail(t, rt_fail(&t->error, RT_ERR_STAGING,
-                                 "%s line %ld: \"%s\" is not an index id (remtone rules lists them)",
-                                 t->path, t->row_line, q));
+    double cutoff;
+    const rt_index_rule *rule =
+        rt_lab_row_check(t, v[0], 3, v[3], v[1], "cutoff",
+                         "\"index,cutoff,unit\" and \"sinbar.chin_any_3s,18.2,%\"", &id, &cutoff);
+    if (!rule)
         return;
-    }
     if (rows->seen[id]) {
         rt_table_fail(t, rt_fail(&t->error, RT_ERR_STAGING, "%s line %ld: %s is listed twice",
                                  t->path, t->row_line, v[0]));
         return;
     }
     rows->seen[id] = true;
-    if (t->column_index[3] < 0) {
-        rt_table_fail(t, rt_fail(&t->error, RT_ERR_STAGING,
-                                 "%s line %ld: the cutoff file has no \"unit\" column; each row "
-                                 "must state its unit (%% for percentages, ratio for the REM "
-                                 "Atonia Index, /h for rates): add it, for example "
-                                 "\"index,cutoff,unit\" and \"sinbar.chin_any_3s,18.2,%%\"",
-                                 t->path, t->header_line));
-        return;
-    }
-    if (strcmp(v[3], rule->unit) != 0) {
-        char q[RT_TABLE_QUOTE_MAX];
-        rt_table_quote(q, sizeof q, v[3]);
-        rt_table_fail(t, rt_fail(&t->error, RT_ERR_STAGING,
-                                 "%s line %ld: unit \"%s\" does not fit %s, which is counted in "
-                                 "\"%s\"%s", t->path, t->row_line, q, v[0], rule->unit,
-                                 strcmp(rule->unit, "%") == 0
-                                     ? " (a share of 0.3 is written 30 with unit %)" : ""));
-        return;
-    }
-    double cutoff;
-    if (!rt_table_number(t, v[1], "cutoff", &cutoff))
-        return;
-    double hi = strcmp(rule->unit, "%") == 0 ? 100.0 : strcmp(rule->unit, "ratio") == 0 ? 1.0 : 1e6;
-    if (cutoff < 0.0 || cutoff > hi) {
-        rt_table_fail(t, rt_fail(&t->error, RT_ERR_STAGING,
-                                 "%s line %ld: cutoff %g for %s is outside 0 .. %g", t->path,
-                                 t->row_line, cutoff, v[0], hi));
-        return;
-    }
+    double hi = rt_lab_unit_max(rule->unit);
     rows->next.has[id] = true;
     rows->next.value[id] = cutoff;
     rows->next.line[id] = t->row_line;

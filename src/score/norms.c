@@ -61,37 +61,81 @@ const char *rt_norm_band_name(rt_norm_band band)
     return "unknown";
 }
 
-/* Places value v of row r; the band, and a phrase for the reports. */
-static void place(const rt_norm_row *r, double v, rt_norm_place *out)
+/* The built-in row as the stratum placed against (line 0). */
+static void builtin_stratum(const rt_norm_row *r, rt_norm_stratum *out)
 {
+    memset(out, 0, sizeof *out);
+    out->age_from = r->age_from;
+    out->age_to = r->age_to;
+    out->value = r->limit;
     bool lower_worse = rt_index_rules()[r->index].lower_is_worse;
-    /* a recalled value is never used to place anyone */
-    if (r->limit_from_memory) {
-        out->band = RT_NORM_NOT_PLACED;
-        snprintf(out->text, sizeof out->text, "not placed: the normative value was not verified");
-        return;
-    }
-    if (lower_worse) {
-        out->band = v >= r->limit ? RT_NORM_WITHIN : RT_NORM_BEYOND;
-        snprintf(out->text, sizeof out->text, "%s the low limit %.2f of %s",
-                 out->band == RT_NORM_WITHIN ? "at or above" : "below", r->limit, GROUP);
-        return;
-    }
-    bool cut = isfinite(r->rbd_cutoff) && !r->rbd_cutoff_from_memory && v >= r->rbd_cutoff;
-    out->band = v <= r->limit ? RT_NORM_WITHIN : cut ? RT_NORM_BEYOND_RBD_CUTOFF : RT_NORM_BEYOND;
-    if (out->band == RT_NORM_WITHIN)
-        snprintf(out->text, sizeof out->text, "at or below the 95th percentile (%g %%) of %s",
-                 r->limit, GROUP);
-    else if (!cut)
-        snprintf(out->text, sizeof out->text, "above the 95th percentile (%g %%) of %s", r->limit,
-                 GROUP);
+    /* the RAI's limit is given with the percentiles, not as one */
+    out->percentile = lower_worse ? NAN : 95.0;
+    snprintf(out->who, sizeof out->who, "%s", GROUP);
+    if (lower_worse)
+        snprintf(out->label, sizeof out->label, "low limit %.2f of %s", r->limit, GROUP);
     else
-        snprintf(out->text, sizeof out->text, "above the 95th percentile (%g %%) of %s, and at "
-                 "or above the %g %% that separated RBD from controls (McCarter et al. 2014)",
-                 r->limit, GROUP, r->rbd_cutoff);
+        snprintf(out->label, sizeof out->label, "95th percentile (%g %%) of %s", r->limit, GROUP);
+    snprintf(out->source, sizeof out->source, "%s", r->limit_source);
+    snprintf(out->method, sizeof out->method, "%s", r->method);
 }
 
-rt_status rt_night_place_norms(rt_night *night, double age_years, char sex, rt_error *err)
+/* Places value v against the stratum s (and the built-in row's RBD cutoff,
+ * when the index has one): the band, and a phrase for the reports. */
+static void place(const rt_norm_stratum *s, const rt_norm_row *r, bool lower_worse, double v,
+                  rt_norm_place *out)
+{
+    if (lower_worse) {
+        out->band = v >= s->value ? RT_NORM_WITHIN : RT_NORM_BEYOND;
+        snprintf(out->text, sizeof out->text, "%s the %s",
+                 out->band == RT_NORM_WITHIN ? "at or above" : "below", s->label);
+        return;
+    }
+    bool cut = r && isfinite(r->rbd_cutoff) && !r->rbd_cutoff_from_memory && v >= r->rbd_cutoff;
+    out->band = v <= s->value ? RT_NORM_WITHIN : cut ? RT_NORM_BEYOND_RBD_CUTOFF : RT_NORM_BEYOND;
+    if (out->band == RT_NORM_WITHIN)
+        snprintf(out->text, sizeof out->text, "at or below the %s", s->label);
+    else if (!cut)
+        snprintf(out->text, sizeof out->text, "above the %s", s->label);
+    else
+        snprintf(out->text, sizeof out->text, "above the %s, and at or above the %g %% that "
+                 "separated RBD from controls (McCarter et al. 2014)", s->label, r->rbd_cutoff);
+}
+
+/* Index i against the built-in row r (NULL: none) or the lab's file. */
+static void place_index(rt_night *night, const rt_norms *norms, int i, const rt_norm_row *r,
+                        double age_years, char sex)
+{
+    rt_norm_place *p = &night->norms[i];
+    const rt_index_value *v = &night->index[i];
+    bool lower_worse = rt_index_rules()[i].lower_is_worse;
+    char why[200];
+    int chosen = norms ? rt_norms_choose(norms, (rt_index_id)i, age_years, sex, &p->stratum, why,
+                                         sizeof why) : -1;
+    p->lab = chosen >= 0;
+    if (!p->lab && !r)
+        return; /* no norm for this index */
+    if (!p->lab)
+        builtin_stratum(r, &p->stratum);
+    p->applied = chosen == 1 || (!p->lab && !r->limit_from_memory &&
+                                 (isnan(age_years) || (age_years >= r->age_from &&
+                                                       age_years <= r->age_to)));
+    if (v->status == RT_STATUS_NOT_COMPUTED || !isfinite(v->value))
+        snprintf(p->text, sizeof p->text, "not placed: the index was not computed");
+    else if (chosen == 0)
+        snprintf(p->text, sizeof p->text, "not placed: %s", why);
+    /* a recalled value is never used to place anyone */
+    else if (!p->lab && r->limit_from_memory)
+        snprintf(p->text, sizeof p->text, "not placed: the normative value was not verified");
+    else if (!p->applied)
+        snprintf(p->text, sizeof p->text, "not placed: the norms cover ages %g-%g, not %g",
+                 r->age_from, r->age_to, age_years);
+    else
+        place(&p->stratum, r, lower_worse, v->value, p);
+}
+
+rt_status rt_night_place_norms_from(rt_night *night, const rt_norms *norms, double age_years,
+                                    char sex, rt_error *err)
 {
     if (!night)
         return rt_fail(err, RT_ERR_USAGE, "norms: no night");
@@ -102,24 +146,26 @@ rt_status rt_night_place_norms(rt_night *night, double age_years, char sex, rt_e
     night->person.age_years = age_years;
     night->person.sex = sex;
     night->norms_placed = true;
-    for (int i = 0; i < RT_IX_COUNT; i++) {
-        night->norms[i].band = RT_NORM_NOT_PLACED;
-        night->norms[i].row = -1;
-        night->norms[i].text[0] = '\0';
-    }
+    rt_copy_string(night->norms_file, sizeof night->norms_file, norms ? rt_norms_path(norms) : "");
     size_t n = 0;
     const rt_norm_row *t = rt_norm_table(&n);
-    for (size_t k = 0; k < n; k++) {
-        rt_norm_place *p = &night->norms[t[k].index];
-        const rt_index_value *v = &night->index[t[k].index];
-        p->row = (int)k;
-        if (v->status == RT_STATUS_NOT_COMPUTED || !isfinite(v->value))
-            snprintf(p->text, sizeof p->text, "not placed: the index was not computed");
-        else if (!isnan(age_years) && (age_years < t[k].age_from || age_years > t[k].age_to))
-            snprintf(p->text, sizeof p->text, "not placed: the norms cover ages %g-%g, not %g",
-                     t[k].age_from, t[k].age_to, age_years);
-        else
-            place(&t[k], v->value, p);
+    for (int i = 0; i < RT_IX_COUNT; i++) {
+        rt_norm_place *p = &night->norms[i];
+        memset(p, 0, sizeof *p);
+        p->band = RT_NORM_NOT_PLACED;
+        p->row = -1;
+        const rt_norm_row *r = NULL;
+        for (size_t k = 0; k < n && !r; k++)
+            if ((int)t[k].index == i) {
+                r = &t[k];
+                p->row = (int)k;
+            }
+        place_index(night, norms, i, r, age_years, sex);
     }
     return RT_OK;
+}
+
+rt_status rt_night_place_norms(rt_night *night, double age_years, char sex, rt_error *err)
+{
+    return rt_night_place_norms_from(night, NULL, age_years, sex, err);
 }

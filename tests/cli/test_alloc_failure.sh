@@ -134,6 +134,10 @@ sweep html 0 r.html --quiet --html "$work/html/r.html"
 # a reviewer's decisions (docs/corrections.md): read, checked, rescored
 printf 'elapsed_s,role,decision,reason,reviewer,decided_at\n2943,chin,confirm,,A,2026-12-01\n2946,arm-left,confirm,,A,2026-12-01\n2952,chin,exclude,artifact,A,2026-12-01\n' >"$work/decisions.csv"
 sweep corrections 0 r.json --quiet --corrections "$work/decisions.csv" --json "$work/corrections/r.json"
+# a lab's norms file (docs/scoring.md, "A lab's norms file"; invented numbers): read, a stratum
+# chosen per index, placed
+printf '# invented numbers\nindex,sex,age_from,age_to,percentile,value,unit,source,method\nsinbar.chin_any_3s,F,60,70,95,7.5,%%,invented,visual\nrai,any,20,90,5,0.8,ratio,invented,\n' >"$work/norms.csv"
+sweep norms 0 r.json --quiet --norms "$work/norms.csv" --age 64 --sex F --json "$work/norms/r.json"
 
 echo "$fails failed"
 [ "$fails" = 0 ]

@@ -41,7 +41,7 @@ has score-cautions "$work/out" "not a diagnosis"
 has score-visual-note "$work/out" "visual scoring"
 check score-json-shape 0 "$py" -c '
 import json,sys; d=json.load(open(sys.argv[1]))
-assert d["schema"]=="remtone-night/3"
+assert d["schema"]=="remtone-night/4"
 # the synthetic night is staged from start to end: complete, no gaps (docs/night-json.md)
 s=d["staging"]; assert s["complete"] is True and s["staged_hours"]==s["recording_hours"]==1.0 and s["gaps"]==[], s
 assert isinstance(d["reservations"],list) and d["review"]["with_reservations"]==(len(d["reservations"])>0)
@@ -140,7 +140,7 @@ has context-page-periods "$work/ctx.html" 'id="periods"'
 has context-page-norms "$work/ctx.html" 'data-band="'
 check context-json 0 "$py" -c '
 import csv,json,sys; d=json.load(open(sys.argv[1])); rows=list(csv.DictReader(open(sys.argv[2])))
-assert d["schema"]=="remtone-night/3"
+assert d["schema"]=="remtone-night/4"
 assert d["plain_sentence"]==d["plain_sentence"].strip() and d["plain_sentence"].endswith("is not a diagnosis.")
 assert d["sleep"]["rem_periods"]==len(d["rem_periods"])>=1
 assert abs(d["sleep"]["stages"]["R"]["minutes"]-d["rem"]["minutes"])<1e-6, d["sleep"]

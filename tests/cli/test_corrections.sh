@@ -48,7 +48,7 @@ check json-both 0 "$py" -c '
 import json, sys
 a = json.load(open(sys.argv[1])); b = json.load(open(sys.argv[2]))
 c = b["corrections"]
-assert b["schema"] == "remtone-night/3" and a["corrections"] == {"present": False}
+assert b["schema"] == "remtone-night/4" and a["corrections"] == {"present": False}
 assert c["present"] and c["reviewers"] == "Tech B" and c["minis_left_out"] == 1
 assert c["decisions"] == {"confirm": 2, "reject": 1, "add": 1, "exclude": 1}, c["decisions"]
 # the automatic indices are the uncorrected night'"'"'s, the corrected ones are b'"'"'s

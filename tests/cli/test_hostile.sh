@@ -126,7 +126,7 @@ expect cohort-damaged-rescored 0 "$bin" cohort busy/m.csv --out busy/r --jobs 1
 has cohort-damaged-rescored-counts "$work/out" "1 nights: 1 scored, 0 already current, 0 failed"
 expect cohort-damaged-result-whole 0 "$py" -c '
 import json, sys
-assert json.load(open(sys.argv[1]))["schema"] == "remtone-night/3"' busy/r/nights/good.json
+assert json.load(open(sys.argv[1]))["schema"] == "remtone-night/4"' busy/r/nights/good.json
 
 # ---- 7. a cohort short of address space ends as out of memory (exit 8 with a
 # message, nothing but the lock file left) or records the night as failed with

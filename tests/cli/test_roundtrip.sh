@@ -23,7 +23,7 @@ for case in rem norem; do
   expect "$case-json-reads" 0 "$py" -c '
 import json, sys
 d = json.load(open(sys.argv[1], encoding="utf-8"))
-assert d["schema"] == "remtone-night/3", d.get("schema")
+assert d["schema"] == "remtone-night/4", d.get("schema")
 assert d["provenance"]["inputs"]["recording"]["bytes"] > 0, d["provenance"]' "$case.json"
   # the audit table: RFC 4180 CSV with the documented header (docs/review-report.md);
   # rows only for REM mini-epochs, so none without REM

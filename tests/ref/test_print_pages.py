@@ -1,7 +1,8 @@
 """One night's review page prints on at most three pages, on A4 and on Letter.
 
 Writes two 7.5-hour synthetic nights like the demo's (an RBD night scored
-with --age/--sex, so the norms are on the page, and an apnea night with its
+with --age/--sex and the demo's lab norms file (demo/larchmere-norms.csv, invented
+numbers), so the norms with a lab's strata are on the page, and an apnea night with its
 events, whose REM apnea-hypopnea index puts reservations on the page), prints
 each page to PDF with headless Chromium at both paper sizes (the paper size
 set by an added @page rule, as a print dialog would), and counts the PDF's
@@ -55,7 +56,8 @@ def main():
     binary = os.environ["REMTONE_BIN"]
     tmp = tempfile.mkdtemp(prefix="print_pages.", dir=os.environ.get("REMTONE_TMP"))
     profile = tempfile.mkdtemp(prefix="chromium.")
-    nights = [("rbd", 11, ["--age", "68", "--sex", "M"]), ("apnea", 13, [])]
+    lab_norms = os.path.join(os.environ["REMTONE_SOURCE"], "demo", "larchmere-norms.csv")
+    nights = [("rbd", 11, ["--age", "68", "--sex", "M", "--norms", lab_norms]), ("apnea", 13, [])]
     try:
         for profile_name, seed, extra in nights:
             d = os.path.join(tmp, profile_name)
@@ -70,6 +72,7 @@ def main():
             text = open(page, encoding="utf-8").read()
             if extra:
                 assert 'id="norms"' in text, "the norms are not on the page"
+                assert 'data-origin="lab-supplied"' in text, "no lab norms on the page"
             else:
                 assert 'id="reservations"' in text, "the apnea night shows no reservations"
             for paper, (w, h) in PAPER.items():

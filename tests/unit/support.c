@@ -599,3 +599,16 @@ void rt_test_truth_recount(json_t *t, int exclude)
     rt_test_check_index(ix, NULL, "rai", secs ? q1 / (100.0 - q2) : NAN);
     rt_test_truth_free(&v);
 }
+
+rt_night *rt_test_blank_night(void)
+{
+    rt_night *n = calloc(1, sizeof *n);
+    assert_non_null(n);
+    rt_score_params_default(&n->params);
+    rt_cutoffs_published(&n->cutoffs);
+    for (int i = 0; i < RT_IX_COUNT; i++) {
+        n->index[i].value = NAN;
+        n->index[i].status = RT_STATUS_NOT_COMPUTED;
+    }
+    return n;
+}

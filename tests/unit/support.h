@@ -100,6 +100,11 @@ rt_night *rt_test_score_dir(const char *dir, const char *stages, int threads, do
 void rt_test_score_synthetic(const rt_synth_options *o, const char *dir, bool with_events,
                              rt_recording **rec, rt_night **night);
 
+/* A night made by hand (free it with free()): default parameters, the
+ * published cutoffs, every index not computed; a test sets the values it
+ * needs (value and status). */
+rt_night *rt_test_blank_night(void);
+
 /* ---- synthetic nights: files, channels and an independent truth recount ---- */
 
 #include "remtone/recording.h"

@@ -167,14 +167,7 @@ static void sleep_context_by_hand(void **state)
 
 static rt_night *night_with(double chin_any, double rai)
 {
-    rt_night *n = calloc(1, sizeof *n);
-    assert_non_null(n);
-    rt_score_params_default(&n->params);
-    rt_cutoffs_published(&n->cutoffs);
-    for (int i = 0; i < RT_IX_COUNT; i++) {
-        n->index[i].value = NAN;
-        n->index[i].status = RT_STATUS_NOT_COMPUTED;
-    }
+    rt_night *n = rt_test_blank_night();
     n->index[RT_IX_SINBAR_CHIN_ANY_3S].value = chin_any;
     n->index[RT_IX_SINBAR_CHIN_ANY_3S].status = RT_STATUS_BELOW;
     n->index[RT_IX_RAI].value = rai;

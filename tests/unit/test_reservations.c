@@ -221,7 +221,7 @@ static void said_everywhere(const scored *s, const char *code)
     assert_true(json_is_true(json_object_get(review, "with_reservations")));
     const char *statement = json_string_value(json_object_get(review, "statement"));
     assert_non_null(strstr(statement, ", with reservations"));
-    assert_string_equal(json_string_value(json_object_get(s->json, "schema")), "remtone-night/3");
+    assert_string_equal(json_string_value(json_object_get(s->json, "schema")), "remtone-night/4");
 
     char line[900];
     snprintf(line, sizeof line, "  - [%s] %s\n", code, text);
