@@ -100,8 +100,7 @@ static void field_text(const header_ctx *c, long long offset, int width, char *o
     rt_trim(out);
 }
 
-/* Quotes untrusted bytes for a message: printable ASCII as is, others \xHH. */
-static void quote_bytes(const unsigned char *p, int width, char *out, size_t cap)
+void rt_edf_quote_bytes(const unsigned char *p, int width, char *out, size_t cap)
 {
     size_t n = 0;
     for (int i = 0; i < width && n + 5 < cap; i++) {
@@ -118,7 +117,7 @@ static void quote_bytes(const unsigned char *p, int width, char *out, size_t cap
 static rt_status fail_main(const header_ctx *c, int f, const char *why)
 {
     char shown[4 * 80 + 8];
-    quote_bytes(c->bytes + MAIN_FIELDS[f].offset, MAIN_FIELDS[f].width, shown, sizeof shown);
+    rt_edf_quote_bytes(c->bytes + MAIN_FIELDS[f].offset, MAIN_FIELDS[f].width, shown, sizeof shown);
     return rt_fail(c->err, RT_ERR_RECORDING, "%s: header field \"%s\" (byte offset %d) is \"%s\": %s",
                    c->path, MAIN_FIELDS[f].name, MAIN_FIELDS[f].offset, shown, why);
 }
@@ -127,8 +126,8 @@ static rt_status fail_signal(const header_ctx *c, int f, int k, const char *why)
 {
     char shown[4 * 80 + 8], label[4 * 16 + 8];
     long long offset = signal_field_offset(c->ns, f, k);
-    quote_bytes(c->bytes + offset, SIGNAL_FIELDS[f].width, shown, sizeof shown);
-    quote_bytes(c->bytes + signal_field_offset(c->ns, S_LABEL, k), 16, label, sizeof label);
+    rt_edf_quote_bytes(c->bytes + offset, SIGNAL_FIELDS[f].width, shown, sizeof shown);
+    rt_edf_quote_bytes(c->bytes + signal_field_offset(c->ns, S_LABEL, k), 16, label, sizeof label);
     return rt_fail(c->err, RT_ERR_RECORDING,
                    "%s: signal %d of %d (\"%s\") field \"%s\" (byte offset %lld) is \"%s\": %s",
                    c->path, k + 1, c->ns, label, SIGNAL_FIELDS[f].name, offset, shown, why);

@@ -6,6 +6,7 @@
 #define REMTONE_EDF_HEADER_CHECK_H
 
 #include <stdbool.h>
+#include <stddef.h>
 
 #include "remtone/status.h"
 
@@ -34,5 +35,10 @@ typedef struct rt_edf_layout {
  * RT_ERR_RECORDING (the message names the path, the field, the signal and the
  * byte offset). Refuses EDF+D/BDF+D. */
 rt_status rt_edf_header_check(const char *path, rt_edf_layout *layout, rt_error *err);
+
+/* Quotes width untrusted bytes at p for a message, NUL-terminated in out
+ * (cap bytes): printable ASCII as is, other bytes, '"' and '\\' as \xHH;
+ * trailing spaces dropped; cut when out is full. */
+void rt_edf_quote_bytes(const unsigned char *p, int width, char *out, size_t cap);
 
 #endif

@@ -28,7 +28,9 @@
 #include <edflib.h>
 #include <errno.h>
 #include <fcntl.h>
+#include <math.h>
 #include <stdint.h>
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
@@ -36,6 +38,7 @@
 #include <unistd.h>
 
 #include "edf_header_check.h"
+#include "edf_tal.h"
 #include "edflib_lock.h"
 #include "internal.h"
 
@@ -278,7 +281,7 @@ static void copy_annotation(rt_annotation *out, const struct edf_annotation_stru
     rt_copy_string(out->text, sizeof out->text, a->annotation);
 }
 
-static rt_status read_annotations(rt_recording *rec, long long count, rt_error *err)
+static rt_status read_edflib_annotations(rt_recording *rec, long long count, rt_error *err)
 {
     if (count <= 0)
         return RT_OK;
@@ -293,16 +296,17 @@ static rt_status read_annotations(rt_recording *rec, long long count, rt_error *
         copy_annotation(&rec->annotations[i], &a);
         rec->n_annotations++;
     }
-    return sort_annotations(rec, err);
+    return RT_OK;
 }
 
 /* ---- open / close ---------------------------------------------------------- */
 
 /* Caller holds the lock. */
-static rt_status open_with_edflib(rt_recording *rec, struct edf_hdr_struct *h, rt_error *err)
+static rt_status open_with_edflib(rt_recording *rec, struct edf_hdr_struct *h, int annotation_mode,
+                                  rt_error *err)
 {
     errno = 0;
-    int rc = edfopen_file_readonly(rec->path, h, EDFLIB_READ_ALL_ANNOTATIONS);
+    int rc = edfopen_file_readonly(rec->path, h, annotation_mode);
     int saved = errno;
     /* EDFlib 1.23 reports an allocation that failed while it reads the
      * annotations as a format error; the allocator's ENOMEM tells them apart
@@ -317,7 +321,7 @@ static rt_status open_with_edflib(rt_recording *rec, struct edf_hdr_struct *h, r
     return RT_OK;
 }
 
-/* Caller holds the lock. */
+/* Caller holds the lock. The annotations are read afterwards. */
 static rt_status fill_from_header(rt_recording *rec, const struct edf_hdr_struct *h, rt_error *err)
 {
     rec->kind = kind_from_edflib(h->filetype);
@@ -327,10 +331,7 @@ static rt_status fill_from_header(rt_recording *rec, const struct edf_hdr_struct
     /* An EDF+ file with the annotation signal alone is a valid hypnogram file
      * (a separate staging file); it has no channels to score, which the role
      * step reports if it is used as a recording. */
-    rt_status s = fill_channels(rec, h, err);
-    if (s != RT_OK)
-        return s;
-    return read_annotations(rec, h->annotations_in_file, err);
+    return fill_channels(rec, h, err);
 }
 
 static rt_status recording_new(const char *path, rt_recording **out, rt_error *err)
@@ -367,6 +368,34 @@ static rt_status check_no_trailing_bytes(const char *path, const rt_edf_layout *
 }
 
 /* ---- the data records, read directly ------------------------------------ */
+
+static long long min_ll(long long a, long long b) { return a < b ? a : b; }
+
+/* "channel \"LABEL\"" for read_bytes_at's messages; returns buf. */
+static const char *channel_what(const rt_recording *rec, int channel, char *buf, size_t cap)
+{
+    snprintf(buf, cap, "channel \"%s\"", rec->channels[channel].label);
+    return buf;
+}
+
+/* Reads len bytes at offset of the file through fd (pread: no shared file
+ * position, so no lock); what names the bytes in a message. */
+static rt_status read_bytes_at(int fd, const char *path, const char *what, unsigned char *buf, size_t len,
+                               long long offset, rt_error *err)
+{
+    for (size_t done = 0; done < len;) {
+        ssize_t got = pread(fd, buf + done, len - done, (off_t)(offset + (long long)done));
+        if (got < 0 && errno == EINTR)
+            continue;
+        if (got <= 0)
+            return rt_fail(err, got < 0 ? rt_errno_status(errno, RT_ERR_IO) : RT_ERR_IO,
+                           "%s: %s: cannot read %zu bytes at byte offset %lld: %s", path, what, len - done,
+                           offset + (long long)done,
+                           got < 0 ? strerror(errno) : "the file ends early (cut after it was opened?)");
+        done += (size_t)got;
+    }
+    return RT_OK;
+}
 
 /* Maps EDFlib's channels onto the file's signals (EDFlib hides the annotation
  * signals) and checks that both agree on the record layout: the record count,
@@ -436,26 +465,143 @@ static rt_status plan_direct_reads(rt_recording *rec, const rt_edf_layout *l, co
     return RT_OK;
 }
 
+/* ---- the annotation signals, read directly -------------------------------- */
+
+static bool has_annotation_signal(const rt_edf_layout *l)
+{
+    for (int k = 0; k < l->n_signals; k++)
+        if (l->edflib_annotation[k])
+            return true;
+    return false;
+}
+
+/* Reads the annotation signals of every data record through fd into list, in
+ * blocks like read_direct: several whole records per pread when the other
+ * signals' bytes in between are few, otherwise the annotation signals' bytes
+ * of one record per pread. */
+static rt_status read_tals(const char *path, int fd, const rt_edf_layout *l, rt_tal_list *list, rt_error *err)
+{
+    int width = l->is_bdf ? 3 : 2;
+    int signal[RT_EDF_MAX_SIGNALS], n_annotation = 0;
+    long long at[RT_EDF_MAX_SIGNALS], lo = 0, hi = 0, pos = 0;
+    for (int k = 0; k < l->n_signals; k++) {
+        long long bytes = (long long)l->samples_per_record[k] * width;
+        if (l->edflib_annotation[k]) {
+            if (n_annotation == 0)
+                lo = pos;
+            signal[n_annotation] = k;
+            at[n_annotation++] = pos;
+            hi = pos + bytes;
+        }
+        pos += bytes;
+    }
+    if (n_annotation == 0)
+        return RT_OK;
+    const long long rb = l->record_bytes, span = hi - lo;
+    long long group = rb <= SPAN_BYTES && rb - span < SKIP_BYTES ? SPAN_BYTES / rb : 1;
+    group = min_ll(group, l->n_records);
+    unsigned char *buf = malloc((size_t)((group - 1) * rb + span));
+    if (!buf)
+        return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory reading the annotation signals", path);
+    rt_status s = RT_OK;
+    for (long long r0 = 0; r0 < l->n_records && s == RT_OK; r0 += group) {
+        long long g = min_ll(group, l->n_records - r0);
+        long long offset = l->header_bytes + r0 * rb + lo;
+        s = read_bytes_at(fd, path, "annotation signals", buf, (size_t)((g - 1) * rb + span), offset, err);
+        for (long long j = 0; j < g && s == RT_OK; j++)
+            for (int a = 0; a < n_annotation && s == RT_OK; a++) {
+                long long within = j * rb + at[a] - lo;
+                rt_tal_place place = {.record = r0 + j, .signal = signal[a], .offset = offset + within,
+                                      .time_keeping = a == 0};
+                size_t len = (size_t)l->samples_per_record[signal[a]] * (size_t)width;
+                s = rt_tal_read_signal(list, buf + within, len, &place, err);
+            }
+    }
+    free(buf);
+    return s;
+}
+
+/* The annotations of an EDF+/BDF+ recording whose records are read directly.
+ * EDFlib (opened without its annotations) has read the first time-keeping
+ * TAL for the start time: remtone's reading must agree with it. */
+static rt_status read_direct_annotations(rt_recording *rec, const rt_edf_layout *l, long long record_units,
+                                         long long edflib_start_units, rt_error *err)
+{
+    rt_tal_list list;
+    rt_tal_list_init(&list, rec->path, record_units);
+    rt_status s = read_tals(rec->path, rec->fd, l, &list, err);
+    if (s == RT_OK && list.start_units != edflib_start_units)
+        s = rt_fail(err, RT_ERR_INTERNAL, "%s: the first data record starts %lld x 100 ns after the header's "
+                    "start time for remtone but %lld x 100 ns for EDFlib", rec->path, list.start_units,
+                    edflib_start_units);
+    if (s != RT_OK) {
+        free(list.items);
+        return s;
+    }
+    rec->annotations = list.items;
+    rec->n_annotations = list.n;
+    return RT_OK;
+}
+
+/* EDFlib answers any fault of the first data record's time-keeping TAL with a
+ * bare format error: remtone's own reading of the annotation signals names the
+ * record and the byte. RT_ERR_RECORDING with that message, or RT_OK when it
+ * finds nothing wrong (or cannot look: EDFlib's message stands then). */
+static rt_status explain_format_error(const char *path, const rt_edf_layout *l, rt_error *err)
+{
+    if (!has_annotation_signal(l))
+        return RT_OK;
+    int fd = open(path, O_RDONLY | O_CLOEXEC);
+    if (fd < 0)
+        return RT_OK;
+    rt_tal_list list;
+    rt_tal_list_init(&list, path, llround(l->record_s * (double)RT_TAL_UNITS_PER_S));
+    rt_status s = read_tals(path, fd, l, &list, err);
+    free(list.items);
+    close(fd);
+    return s == RT_ERR_RECORDING ? s : RT_OK;
+}
+
 /* ---- open / close (continued) ------------------------------------------ */
 
-/* The whole EDFlib session of an open runs under the lock: open, header,
- * annotations and, when the records are read directly, close. */
+/* The whole EDFlib session of an open runs under the lock: open (without the
+ * annotations), header and, when the records are read directly, close; the
+ * annotation signals are read after it, through remtone's own descriptor.
+ * When remtone's layout disagrees with EDFlib's, EDFlib is opened again to
+ * read the annotations itself, and keeps its handle for the samples. */
 static rt_status open_locked(rt_recording *rec, const rt_edf_layout *layout, rt_error *err)
 {
     struct edf_hdr_struct *h = rt_calloc(1, sizeof *h);
     if (!h)
         return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", rec->path);
     rt_edflib_lock();
-    rt_status s = open_with_edflib(rec, h, err);
+    rt_status s = open_with_edflib(rec, h, EDFLIB_DO_NOT_READ_ANNOTATIONS, err);
+    bool edflib_refused = s != RT_OK;
     if (s == RT_OK)
         s = fill_from_header(rec, h, err);
     if (s == RT_OK)
         s = plan_direct_reads(rec, layout, h, err);
-    if (s == RT_OK && rec->fd >= 0) {
+    if (s == RT_OK && rec->fd < 0) {
+        edfclose_file(rec->handle);
+        rec->handle = -1;
+        s = open_with_edflib(rec, h, EDFLIB_READ_ALL_ANNOTATIONS, err);
+        if (s == RT_OK)
+            s = read_edflib_annotations(rec, h->annotations_in_file, err);
+    } else if (s == RT_OK) {
         edfclose_file(rec->handle);
         rec->handle = -1;
     }
     rt_edflib_unlock();
+    bool plus = h->filetype == EDFLIB_FILETYPE_EDFPLUS || h->filetype == EDFLIB_FILETYPE_BDFPLUS;
+    if (s == RT_OK && rec->fd >= 0 && plus)
+        s = read_direct_annotations(rec, layout, h->datarecord_duration, h->starttime_subsecond, err);
+    if (s == RT_OK)
+        s = sort_annotations(rec, err);
+    if (edflib_refused && s == RT_ERR_RECORDING && h->filetype == EDFLIB_FILE_CONTAINS_FORMAT_ERRORS) {
+        rt_error mine;
+        if (explain_format_error(rec->path, layout, &mine) != RT_OK && err)
+            *err = mine;
+    }
     free(h);
     return s;
 }
@@ -609,23 +755,6 @@ static rt_status read_through_edflib(rt_recording *rec, int channel, long long f
     return s;
 }
 
-static rt_status read_bytes_at(const rt_recording *rec, int channel, unsigned char *buf, size_t len,
-                               long long offset, rt_error *err)
-{
-    for (size_t done = 0; done < len;) {
-        ssize_t got = pread(rec->fd, buf + done, len - done, (off_t)(offset + (long long)done));
-        if (got < 0 && errno == EINTR)
-            continue;
-        if (got <= 0)
-            return rt_fail(err, got < 0 ? rt_errno_status(errno, RT_ERR_IO) : RT_ERR_IO,
-                           "%s: channel \"%s\": cannot read %zu bytes at byte offset %lld: %s",
-                           rec->path, rec->channels[channel].label, len - done, offset + (long long)done,
-                           got < 0 ? strerror(errno) : "the file ends early (cut after it was opened?)");
-        done += (size_t)got;
-    }
-    return RT_OK;
-}
-
 /* n samples from p (little-endian, 2 or 3 bytes each, two's complement) to
  * physical values the way EDFlib computes them, then to microvolts. The
  * factor is applied to EDFlib's value, as a separate multiplication (x * 1 is
@@ -655,8 +784,6 @@ static void convert(const unsigned char *p, size_t n, int width, const record_sl
     }
 }
 
-static long long min_ll(long long a, long long b) { return a < b ? a : b; }
-
 /* Reads samples [first, first + n) of channel from the records: each pread
  * covers up to slot->group records (from the first wanted sample to the last
  * one it needs) or, record by record, the channel's bytes only; never more
@@ -670,10 +797,11 @@ static rt_status read_direct(const rt_recording *rec, int channel, long long fir
     const double factor = rec->channels[channel].uv_per_unit;
     long long span = ((end - 1) / spr - first / spr) * rb + ((end - 1) % spr - first % spr + 1) * width;
     size_t cap = (size_t)min_ll(span, SPAN_BYTES);
+    char what[96];
+    channel_what(rec, channel, what, sizeof what);
     unsigned char *buf = malloc(cap);
     if (!buf)
-        return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory reading channel \"%s\"", rec->path,
-                       rec->channels[channel].label);
+        return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory reading %s", rec->path, what);
     rt_status s = RT_OK;
     for (long long pos = first; pos < end && s == RT_OK;) {
         long long r0 = pos / spr, k0 = pos % spr;
@@ -683,7 +811,7 @@ static rt_status read_direct(const rt_recording *rec, int channel, long long fir
         long long r1 = (stop - 1) / spr, k1 = (stop - 1) % spr;
         long long at = rec->header_bytes + r0 * rb + slot->offset + k0 * width;
         size_t len = (size_t)((r1 - r0) * rb + (k1 - k0 + 1) * width);
-        s = read_bytes_at(rec, channel, buf, len, at, err);
+        s = read_bytes_at(rec->fd, rec->path, what, buf, len, at, err);
         /* each record's run of the channel's samples sits at (r - r0) records
          * and (k - k0) samples from the start of the buffer */
         for (long long cur = pos; cur < stop && s == RT_OK;) {
@@ -740,8 +868,9 @@ static rt_status keep_records(const rt_recording *rec, rt_record_keep *keep, int
         keep->cap = len;
     }
     keep->rec = NULL; /* until the read succeeds */
-    rt_status s = read_bytes_at(rec, channel, keep->bytes, len,
-                                rec->header_bytes + r0 * rec->record_bytes, err);
+    char what[96];
+    rt_status s = read_bytes_at(rec->fd, rec->path, channel_what(rec, channel, what, sizeof what), keep->bytes,
+                                len, rec->header_bytes + r0 * rec->record_bytes, err);
     if (s == RT_OK) {
         keep->rec = rec;
         keep->r0 = r0;

@@ -77,6 +77,13 @@ def main(out):
         "discontinuous.edf": patch(g, 192, "EDF+D", 44),
         "trailing-bytes.edf": g + b"\x00" * 17,
         "broken-tals.edf": broken_tals(g, ns, record_bytes),
+        # one rule of the EDF+ TAL sections (Kemp & Olivan 2003) broken each;
+        # EDFlib refuses all of them with a bare format error
+        "tal-first-record-late.edf": set_tals(g, ns, record_bytes, 0, b"+1.5\x14\x14\x00"),
+        "tal-not-contiguous.edf": set_tals(g, ns, record_bytes, 5, b"+6\x14\x14\x00"),
+        "tal-no-terminator.edf": set_tals(g, ns, record_bytes, 2, b"+2\x14\x14\x00+2.5\x14Arousal\x00"),
+        "tal-garbage.edf": set_tals(g, ns, record_bytes, 7, b"+7\x14\x14\x00\x00junk"),
+        "tal-onset-no-sign.edf": set_tals(g, ns, record_bytes, 9, b"+9\x14\x14\x009\x14Arousal\x14\x00"),
         "bdf-digital-range.edf": ew.edf_bytes([ew.Signal("Chin", 4, dig=(-9000000, 8388607))], 2, bdf=True),
     }
     # text in UTF-16 or UTF-32, as some editors save it: refused by name
@@ -96,6 +103,16 @@ def main(out):
     with open(os.path.join(out, "huge.csv"), "wb") as f:
         f.write(b"start_s,duration_s,stage\n")
         f.truncate(100 * 1024 * 1024)
+
+
+def set_tals(g, ns, record_bytes, record, tals):
+    """good.edf whose annotation signal (after the chin) in data record
+    `record` (from 0) holds the bytes tals, then 0x00 to its end."""
+    data = bytearray(g)
+    start = 256 * (ns + 1) + record * record_bytes + CHIN_HZ * 2
+    size = record_bytes - CHIN_HZ * 2
+    data[start:start + size] = tals + b"\x00" * (size - len(tals))
+    return bytes(data)
 
 
 def broken_tals(g, ns, record_bytes):
