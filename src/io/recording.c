@@ -1,5 +1,5 @@
 /* The recording reader: remtone's header checks (edf_header_check.c) first,
- * then EDFlib for the header values and the annotations. EDFlib keeps a
+ * then EDFlib for the header values. EDFlib keeps a
  * process-wide table of open files and its open/close are not thread-safe
  * (edflib.h, "EDFlib and thread-safety"), so every EDFlib call runs under the
  * io/ lock (edflib_lock.h).
@@ -17,10 +17,21 @@
  * header values as EDFlib parsed them. The direct reads use the recording's
  * own descriptor and pread(2), which has no shared file position, so they
  * need no lock and run in parallel; EDFlib's handle is closed once the header
- * and the annotations are read. Should remtone's view of the record layout
- * ever disagree with EDFlib's, EDFlib's handle stays open and samples are
- * read through it, under the lock, as before. Samples come out in
- * microvolts: the physical value times the unit's factor. */
+ * is read. Should remtone's view of the record layout ever disagree with
+ * EDFlib's, EDFlib's handle stays open and samples are read through it, under
+ * the lock, as before. Samples come out in microvolts: the physical value
+ * times the unit's factor.
+ *
+ * The EDF+/BDF+ annotation signals are read the same way, several records
+ * per pread, and their TALs parsed by edf_tal.c, because EDFlib 1.23 reading
+ * them itself (EDFLIB_READ_ALL_ANNOTATIONS) makes about two read(2) calls per
+ * data record: 57,600 for an 8-hour night of 1-s records, most of the time
+ * of an open (docs/performance.md, "Opening a recording"). EDFlib is opened
+ * with EDFLIB_DO_NOT_READ_ANNOTATIONS, which still checks the header and the
+ * first time-keeping TAL, and stays the reference: remtone reads the same
+ * annotations and refuses the same files (tests/unit/test_tal_edflib.c), with
+ * a message naming the record and the byte offset where EDFlib gives a bare
+ * "format error". When the layouts disagree, EDFlib reads the annotations. */
 #define _FILE_OFFSET_BITS 64 /* 64-bit off_t for pread on 32-bit systems */
 
 #include "remtone/recording.h"
@@ -129,8 +140,7 @@ static const char *edflib_error_text(int code)
     case EDFLIB_NO_SUCH_FILE_OR_DIRECTORY: return "EDFlib cannot open the file";
     case EDFLIB_FILE_CONTAINS_FORMAT_ERRORS:
         return "EDFlib reports a format error that remtone's header checks did not pin down "
-               "(often the EDF+ patient or recording subfields, the start date, or the "
-               "annotation signal's time-keeping entries)";
+               "(often the EDF+ patient or recording subfields or the start date)";
     case EDFLIB_MAXFILES_REACHED: return "too many recordings open at once (EDFlib's limit)";
     case EDFLIB_FILE_READ_ERROR: return "read error inside EDFlib";
     case EDFLIB_FILE_ALREADY_OPENED: return "the file is already open in this process";
