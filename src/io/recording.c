@@ -265,6 +265,8 @@ static int compare_onset(const void *a, const void *b)
 static rt_status sort_annotations(rt_recording *rec, rt_error *err)
 {
     size_t n = rec->n_annotations;
+    if (n < 2)
+        return RT_OK;
     onset_key *keys = rt_calloc(n, sizeof *keys);
     rt_annotation *sorted = rt_calloc(n, sizeof *sorted);
     if (!keys || !sorted) {
