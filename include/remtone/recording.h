@@ -3,7 +3,8 @@
  * The file is opened through EDFlib after remtone's own header checks, so a
  * malformed header is reported with the field and its byte offset rather than
  * a bare "format error". Annotations of an EDF+/BDF+ file are read once at
- * open time. Samples are read by channel and sample range, so the scoring
+ * open time, by remtone from the data records as EDFlib would read them
+ * (malformed ones refused with the data record and byte offset). Samples are read by channel and sample range, so the scoring
  * stages read only the stretches they need; they are read straight from the
  * data records in blocks (not through EDFlib), with values bit-identical to
  * EDFlib's edfread_physical_samples.
@@ -12,8 +13,8 @@
  * rt_recording_close(). Pointers returned by accessors live until then.
  * Thread safety: EDFlib keeps a process-wide table of open files and is not
  * thread-safe, so remtone serialises every EDFlib call (the open, header and
- * annotations, and the close of EDFlib's handle, all inside
- * rt_recording_open) behind one lock. Sample reads take no lock: each
+ * the close of EDFlib's handle, all inside rt_recording_open) behind one
+ * lock. Sample reads take no lock: each
  * recording has its own file descriptor and reads with pread(2), which keeps
  * no file position, so reads run in parallel, also several at once on one
  * recording. Recordings may be opened, read and closed from several threads;
@@ -70,8 +71,9 @@ typedef struct rt_clock_time {
 } rt_clock_time;
 
 /* Opens path (EDF, EDF+C, BDF, BDF+C). Refuses EDF+D/BDF+D (discontinuous),
- * truncated files, trailing bytes and malformed headers with RT_ERR_RECORDING
- * (the message starts with the path and names the field and byte offset), a
+ * truncated files, trailing bytes, malformed headers and malformed EDF+
+ * annotation signals with RT_ERR_RECORDING (the message starts with the path
+ * and names the field, or the data record, and the byte offset), a
  * missing, unreadable or directory path with RT_ERR_IO (with the system's
  * reason), RT_ERR_NOMEM when out of memory, RT_ERR_USAGE without a path.
  * On success *out holds the recording; on failure *out is NULL. */
