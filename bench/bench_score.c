@@ -260,6 +260,23 @@ static double script_s(const char *night_dir)
     return rc == 0 ? s : -1.0;
 }
 
+/* Forks: returns CHILD in the child; in the parent, after the child ends, 0
+ * when it exited with 0, 1 when it failed, -1 when there is no child. */
+enum { CHILD = 2 };
+static int in_child(void)
+{
+    fflush(stdout);
+    pid_t pid = fork();
+    if (pid < 0) {
+        perror("bench_score: fork");
+        return -1;
+    }
+    if (pid == 0)
+        return CHILD;
+    int status = 0;
+    return waitpid(pid, &status, 0) < 0 || !WIFEXITED(status) || WEXITSTATUS(status) != 0;
+}
+
 int main(int argc, char **argv)
 {
     double hours[MAX_LIST], threads[MAX_LIST];
@@ -278,16 +295,11 @@ int main(int argc, char **argv)
      * process would be resident in every case's child after fork() and
      * count in its peak */
     for (int h = 0; h < n_hours; h++) {
-        fflush(stdout);
-        pid_t pid = fork();
-        if (pid < 0) {
-            perror("bench_score: fork");
-            return 1;
-        }
-        if (pid == 0)
+        int rc = in_child();
+        if (rc == CHILD)
             _exit(ensure_night(dir, hours[h], emg_hz, night_dir, sizeof night_dir) == 0 ? 0 : 1);
-        int status = 0;
-        waitpid(pid, &status, 0);
+        if (rc < 0)
+            return 1;
     }
     printf("\nbest of %d runs; file = the whole recording read from the page cache; emg = only "
            "the EMG samples the scorer reads\n", runs);
@@ -300,16 +312,12 @@ int main(int argc, char **argv)
         if (access(probe, R_OK) != 0)
             continue;
         for (int t = 0; t < n_threads; t++) {
-            fflush(stdout);
-            pid_t pid = fork();
-            if (pid < 0) {
-                perror("bench_score: fork");
-                return 1;
-            }
-            if (pid == 0)
+            int rc = in_child();
+            if (rc == CHILD)
                 _exit(run_case(night_dir, (int)threads[t], runs));
-            int status = 0;
-            if (waitpid(pid, &status, 0) < 0 || !WIFEXITED(status) || WEXITSTATUS(status) != 0)
+            if (rc < 0)
+                return 1;
+            if (rc > 0)
                 printf("%5gh %7d  failed\n", hours[h], (int)threads[t]);
         }
     }
