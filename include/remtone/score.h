@@ -527,7 +527,7 @@ typedef struct rt_norm_place {
                                   row, never the built-in value */
     bool applied;              /* stratum holds the value placed against (a row applied) */
     rt_norm_stratum stratum;
-    char text[320];            /* "above the 95th percentile (9.1 %) of adults ..." or why it
+    char text[384];            /* "above the 95th percentile (9.1 %) of adults ..." or why it
                                   was not placed ("not placed: no age given") */
 } rt_norm_place;
 
