@@ -22,7 +22,9 @@ void rt_report_value_text(const rt_index_rule *rule, double v, char *buf, size_t
 }
 
 /* The level line: its name in capitals, ", WITH RESERVATIONS" when the night
- * has any, and what it rests on (rt_report_level_means, as every report says it). */
+ * has any, and what it rests on (rt_report_level_means, as every report says
+ * it); then the reasons, each once (a reason the line already says is not
+ * repeated under it). */
 static void level_line(FILE *out, const rt_night *night)
 {
     static const char *const NAME[] = {"CLEAR", "NEAR CUTOFF", "REVIEW", "NOT ASSESSABLE"};
@@ -34,6 +36,9 @@ static void level_line(FILE *out, const rt_night *night)
     fprintf(out, "%s%s: %s%s%s\n", NAME[l], night->n_reservations ? ", WITH RESERVATIONS" : "",
             means, l == RT_REVIEW_FLAGGED ? "; physician review advised" : "",
             night->n_reservations ? "; the reservations below limit what this says" : "");
+    for (size_t i = 0; i < night->n_reasons; i++)
+        if (strcmp(night->reasons[i], means) != 0)
+            fprintf(out, "  - %s\n", night->reasons[i]);
 }
 
 /* Gaps listed in the text; the JSON result lists them all. */
@@ -162,8 +167,6 @@ rt_status rt_night_write_text(const rt_night *night, FILE *out, rt_error *err)
     }
     fprintf(out, "\n");
     level_line(out, night);
-    for (size_t i = 0; i < night->n_reasons; i++)
-        fprintf(out, "  - %s\n", night->reasons[i]);
     if (night->n_reservations) {
         fprintf(out, "Reservations:\n");
         for (size_t i = 0; i < night->n_reservations; i++)
