@@ -97,7 +97,7 @@ static void one_bout_night(double bleed_uv, char dir[4096], char stages[4200])
     o.mains_uv = 20.0;
     o.ecg_bleed_uv = bleed_uv;
     o.tonic_run_epochs = 6;
-    snprintf(dir, 4096, "%s", rt_test_dir("long_bout"));
+    snprintf(dir, 4096, "%s", rt_test_dir("long_bouts_unit"));
     rt_error err;
     if (rt_synth_write(&o, dir, &err) != RT_OK)
         fail_msg("%s", err.message);
@@ -127,7 +127,7 @@ static void blocks_change_nothing(void **state)
             rt_night_free(n);
         }
     rt_night_free(whole);
-    rt_test_dir("long_bout");
+    rt_test_dir("long_bouts_unit");
     assert_int_equal(diff, 0);
 }
 
@@ -145,7 +145,7 @@ static void blocks_with_ecg_removal(void **state)
     int apart = indices_apart(whole, blocks, "ECG removed");
     rt_night_free(whole);
     rt_night_free(blocks);
-    rt_test_dir("long_bout");
+    rt_test_dir("long_bouts_unit");
     assert_int_equal(apart, 0);
 }
 
