@@ -58,6 +58,16 @@ static void sink_begin(mark_sink *k, rt_quality_reason reason)
     k->open = false;
 }
 
+/* Whether every one of x[0..len) lies strictly between lo and hi, tested
+ * without a branch per sample (a NaN fails the test). */
+static bool clear_run(const double *x, size_t len, double lo, double hi)
+{
+    bool out = false;
+    for (size_t q = 0; q < len; q++)
+        out |= !(x[q] < hi) | !(x[q] > lo);
+    return !out;
+}
+
 static void find_clipping(const double *x, size_t n, double rate, const rt_channel_info *ch,
                           mark_sink *k)
 {
@@ -76,6 +86,8 @@ static void find_clipping(const double *x, size_t n, double rate, const rt_chann
     bool skip = inside_lo <= inside_hi;
     size_t i = 0;
     while (i < n) {
+        while (skip && i + 64 <= n && clear_run(x + i, 64, inside_lo, inside_hi))
+            i += 64;
         while (skip && i + 8 <= n) {
             bool out = false;
             for (size_t q = 0; q < 8; q++)
@@ -143,6 +155,44 @@ static bool block_quiet(const double *x, size_t len)
     return mad < RT_QUALITY_FLAT_UV;
 }
 
+/* Whether sample i (> 0) ends the constant run before it. */
+static bool ends_run(const double *x, size_t i)
+{
+    return !(x[i] == x[i - 1] && isfinite(x[i]));
+}
+
+/* The constant runs of at least run_min samples that end in [b0, b1), from
+ * *run_start (the first sample of the run going on), which it moves on to
+ * the run going on at b1. A block no longer than run_min can only close a
+ * long run at its first run end: a run that starts and ends inside the block
+ * is shorter than the block. So only the first and the last run end of the
+ * block are looked for, one from each side (on live EMG, the block's first
+ * and last sample). */
+static void constant_runs(const double *x, size_t b0, size_t b1, size_t block, double rate,
+                          size_t run_min, size_t *run_start, mark_sink *k)
+{
+    size_t i = b0 > 0 ? b0 : 1;
+    if (block > run_min) { /* every run end, in order */
+        for (; i < b1; i++)
+            if (ends_run(x, i)) {
+                if (i - *run_start >= run_min)
+                    sink_add(k, (double)*run_start / rate, (double)i / rate);
+                *run_start = i;
+            }
+        return;
+    }
+    while (i < b1 && !ends_run(x, i))
+        i++;
+    if (i >= b1)
+        return; /* the run goes on through the block */
+    if (i - *run_start >= run_min)
+        sink_add(k, (double)*run_start / rate, (double)i / rate);
+    size_t last = b1 - 1;
+    while (last > i && !ends_run(x, last))
+        last--;
+    *run_start = last;
+}
+
 /* Flat line: identical samples for RT_QUALITY_FLAT_RUN_S (a live electrode
  * on a 16-bit converter never holds one code that long), or blocks whose
  * mean absolute deviation from their own mean stays below RT_QUALITY_FLAT_UV
@@ -160,14 +210,7 @@ static void find_flat(const double *x, size_t n, double rate, mark_sink *k)
     size_t run_start = 0;
     for (size_t b0 = 0; b0 < n; b0 += block) {
         size_t b1 = b0 + block < n ? b0 + block : n;
-        /* constant runs inside this block (runs may span blocks) */
-        for (size_t i = b0; i < b1; i++) {
-            if (i > 0 && x[i] == x[i - 1] && isfinite(x[i]))
-                continue;
-            if (i > 0 && i - run_start >= run_min)
-                sink_add(k, (double)run_start / rate, (double)i / rate);
-            run_start = i;
-        }
+        constant_runs(x, b0, b1, block, rate, run_min, &run_start, k);
         bool quiet = b1 - b0 == block && block_quiet(x + b0, block);
         if (quiet) {
             if (quiet_count == 0)
@@ -203,17 +246,19 @@ static double box_mean(const double *x, size_t j, size_t h)
 
 /* The box steps of the whole signal, once: d[j] = |box_mean(x, j, h) -
  * box_mean(x, j - h, h)|, the step into boundary j, for h <= j <= n - h
- * (other entries are left as they are). The box means go into d first and
- * are turned into steps from the top down, so each mean is still there when
- * the step above it needs it. */
+ * (other entries are left unset or hold box means). Two-sample boxes (the
+ * common rates) take the difference in one pass; longer boxes put their means
+ * into d first and turn them into steps from the top down, so each mean is
+ * still there when the step above it needs it. */
 static void box_steps(const double *x, size_t n, size_t h, double *d)
 {
-    if (h == 2) /* 385-640 Hz, the common rates: s / 2 and s * 0.5 are the same number */
-        for (size_t j = 0; j + 2 <= n; j++)
-            d[j] = (x[j] + x[j + 1]) * 0.5;
-    else
-        for (size_t j = 0; j + h <= n; j++)
-            d[j] = box_mean(x, j, h);
+    if (h == 2) { /* 385-640 Hz, the common rates: s / 2 and s * 0.5 are the same number */
+        for (size_t j = 2; j + 2 <= n; j++)
+            d[j] = fabs((x[j] + x[j + 1]) * 0.5 - (x[j - 2] + x[j - 1]) * 0.5);
+        return;
+    }
+    for (size_t j = 0; j + h <= n; j++)
+        d[j] = box_mean(x, j, h);
     for (size_t j = n - h; j >= h; j--)
         d[j] = fabs(d[j] - d[j - h]);
 }
@@ -273,9 +318,14 @@ static void find_pops(const double *x, size_t n, double rate, double *d, mark_si
         left += d[j];
     for (size_t j = first + gap + 1; j <= first + gap + side; j++)
         right += d[j];
+    /* A loose first test without a branch on the data: the ratio test
+     * multiplied out, with a slack far above its rounding, so every step the
+     * exact tests below take passes it; on muscle activity almost none does. */
+    double sided = (double)side, loose = RT_QUALITY_POP_RATIO * (1.0 - 1e-9);
     for (size_t i = first; i <= last; i++) {
         double step = d[i];
-        if (isfinite(step) && step >= RT_QUALITY_POP_MIN_UV &&
+        bool maybe = (step >= RT_QUALITY_POP_MIN_UV) & (step * sided > loose * fmax(left, right));
+        if (maybe && isfinite(step) && step >= RT_QUALITY_POP_MIN_UV &&
             step > RT_QUALITY_POP_RATIO * (fmax(left, right) / (double)side) &&
             electrode_step(x, n, i, h, rate, step)) {
             double t = (double)i / rate;
