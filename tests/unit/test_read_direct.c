@@ -14,7 +14,10 @@
  *
  * EDFlib is opened on the same file while remtone has it open: EDFlib refuses
  * a file open twice in a process, so this also proves remtone's recording
- * does not keep EDFlib's handle, i.e. that its reads are the direct ones. */
+ * does not keep EDFlib's handle, i.e. that its reads are the direct ones.
+ * The path remtone takes should its layout ever disagree with EDFlib's
+ * (EDFlib reads samples and annotations) is forced through a seam and must
+ * give what the direct path gives. */
 #include "support.h"
 
 #include <edflib.h>
@@ -24,6 +27,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "io/recording_seam.h"
 #include "remtone/recording.h"
 
 enum { MAX_SIG = 6, RANDOM_READS = 60, THREADS = 4 };
@@ -72,12 +76,16 @@ static void put_headers(const file_spec *f, unsigned char *h)
     }
 }
 
-/* EDF+ time-keeping TAL of record r (Kemp & Olivan 2003, 2.2.4); it goes
- * in the first annotation signal, the others are left empty (zeros). */
+/* EDF+ time-keeping TAL of record r (Kemp & Olivan 2003, 2.2.4), and in
+ * every third record one annotation with a duration (a TAL of its own, 2.2.2);
+ * they go in the first annotation signal, the others are left empty (zeros). */
 static void put_tal(unsigned char *at, size_t nbytes, int r, double record_s)
 {
-    char tal[64];
+    char tal[96];
     int n = snprintf(tal, sizeof tal, "+%g%c%c%c", r * record_s, 0x14, 0x14, 0);
+    if (r % 3 == 1)
+        n += snprintf(tal + n, sizeof tal - (size_t)n, "+%g%c%g%cArousal %d%c%c", r * record_s + 0.125,
+                      0x15, 0.25 * r, 0x14, r, 0x14, 0);
     memset(at, 0, nbytes);
     memcpy(at, tal, (size_t)n < nbytes ? (size_t)n : nbytes);
 }
@@ -356,6 +364,91 @@ static void threads_read_one_recording(void **state)
     rt_recording_close(rec);
 }
 
+/* ---- the path of a layout disagreement ---------------------------------- */
+
+/* When remtone's record layout disagreed with EDFlib's, EDFlib would keep
+ * its handle and read the samples and the annotations: no valid file does
+ * that, so the seam forces the path, and an open through it must give the
+ * same channels, samples (through a keep too) and annotations as the direct
+ * one. The annotations of the direct open are remtone's own TAL reader's;
+ * those of the forced one EDFlib's (EDFLIB_READ_ALL_ANNOTATIONS). */
+static void compare_forced_open(const file_spec *f)
+{
+    const char *path = build_file(f);
+    rt_error err;
+    rt_recording *direct = NULL, *forced = NULL;
+    if (rt_recording_open(path, &direct, &err) != RT_OK)
+        fail_msg("%s", err.message);
+    rt_recording_seam_force_edflib(true);
+    rt_status st = rt_recording_open(path, &forced, &err);
+    rt_recording_seam_force_edflib(false);
+    if (st != RT_OK)
+        fail_msg("%s", err.message);
+    /* the forced open keeps EDFlib's handle: EDFlib refuses a second open */
+    struct edf_hdr_struct h;
+    assert_int_not_equal(edfopen_file_readonly(path, &h, EDFLIB_DO_NOT_READ_ANNOTATIONS), 0);
+    assert_int_equal(h.filetype, EDFLIB_FILE_ALREADY_OPENED);
+    int channels = rt_recording_channel_count(direct);
+    assert_int_equal(rt_recording_channel_count(forced), channels);
+    rt_record_keep *keep = NULL;
+    assert_int_equal(rt_record_keep_new(&keep, &err), RT_OK);
+    for (int c = 0; c < channels; c++) {
+        const rt_channel_info *ch = rt_recording_channel(direct, c);
+        assert_string_equal(rt_recording_channel(forced, c)->label, ch->label);
+        assert_int_equal(rt_recording_channel(forced, c)->n_samples, ch->n_samples);
+        size_t n = (size_t)ch->n_samples;
+        double *want = malloc(n * sizeof *want), *got = malloc(n * sizeof *got);
+        assert_true(want && got);
+        assert_int_equal(rt_recording_read_uv(direct, c, 0, n, want, &err), RT_OK);
+        assert_int_equal(rt_recording_read_uv(forced, c, 0, n, got, &err), RT_OK);
+        compare_values(forced, ch, "forced EDFlib path", 0, n, got, want);
+        for (int i = 0; i < RANDOM_READS; i++) {
+            long long first = (long long)(rt_test_uniform() * (double)n);
+            size_t len = 1 + (size_t)(rt_test_uniform() * (double)(n - (size_t)first - 1));
+            assert_int_equal(rt_recording_read_uv_kept(forced, keep, c, first, len, got, &err), RT_OK);
+            compare_values(forced, ch, "forced EDFlib path, kept", first, len, got, want + first);
+        }
+        free(want);
+        free(got);
+    }
+    rt_record_keep_free(keep);
+    size_t count = rt_recording_annotation_count(direct);
+    assert_int_equal(rt_recording_annotation_count(forced), count);
+    if (is_plus(f)) /* every third record holds one */
+        assert_int_equal(count, (size_t)(f->n_records + 1) / 3);
+    for (size_t i = 0; i < count; i++) {
+        const rt_annotation *a = rt_recording_annotation(direct, i), *b = rt_recording_annotation(forced, i);
+        assert_true(b->onset_s == a->onset_s);
+        assert_true(b->duration_s == a->duration_s);
+        assert_string_equal(b->text, a->text);
+    }
+    rt_recording_close(forced);
+    rt_recording_close(direct);
+}
+
+static void forced_edflib_path(void **state)
+{
+    (void)state;
+    rt_test_rng_seed(rt_test_seed() + 5);
+    file_spec plus = {.name = "forced_edfplus", .bdf = false, .reserved = "EDF+C", .n_records = 41,
+                      .record_s = "0.5", .ns = 3,
+                      .sig = {{"Chin", "uV", "-1000", "1000", -32768, 32767, 64},
+                              {"EDF Annotations", "", "-1", "1", -32768, 32767, 30},
+                              {"Tib L", "mV", "-5", "5", -2000, 2000, 101}}};
+    compare_forced_open(&plus);
+    file_spec bdfplus = {.name = "forced_bdfplus", .bdf = true, .reserved = "BDF+C", .n_records = 33,
+                         .record_s = "0.25", .ns = 3,
+                         .sig = {{"BDF Annotations", "", "-1", "1", -8388608, 8388607, 20},
+                                 {"Tib L", "uV", "-8192", "8191.99", -8388608, 8388607, 128},
+                                 {"Snore", "uV", "-500", "500", -77777, 99999, 17}}};
+    compare_forced_open(&bdfplus);
+    file_spec plain = {.name = "forced_edf", .bdf = false, .reserved = "", .n_records = 20, .record_s = "1",
+                       .ns = 2,
+                       .sig = {{"Chin", "uV", "-3276.8", "3276.7", -32768, 32767, 200},
+                               {"Leg odd", "mV", "-2.048", "2.047", -2048, 2047, 7}}};
+    compare_forced_open(&plain);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -364,6 +457,7 @@ int main(void)
         cmocka_unit_test(bdf_and_bdfplus),
         cmocka_unit_test(wide_records),
         cmocka_unit_test(threads_read_one_recording),
+        cmocka_unit_test(forced_edflib_path),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
