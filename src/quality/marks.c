@@ -6,6 +6,7 @@
 #include <ctype.h>
 #include <float.h>
 #include <math.h>
+#include <stdint.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -58,14 +59,24 @@ static void sink_begin(mark_sink *k, rt_quality_reason reason)
     k->open = false;
 }
 
-/* Whether every one of x[0..len) lies strictly between lo and hi, tested
- * without a branch per sample (a NaN fails the test). */
+/* Two doubles compared at once (GCC's and Clang's vector extension, SSE2 on
+ * x86-64): a comparison gives -1 (true) or 0 in each lane, 0 for a NaN. The
+ * compilers leave a plain loop of floating-point comparisons scalar. */
+typedef double double_pair __attribute__((vector_size(16)));
+typedef int64_t mask_pair __attribute__((vector_size(16))); /* what a comparison gives */
+
+/* Whether every one of x[0..len) (len even) lies strictly between lo and hi;
+ * a NaN fails the test. */
 static bool clear_run(const double *x, size_t len, double lo, double hi)
 {
-    bool out = false;
-    for (size_t q = 0; q < len; q++)
-        out |= !(x[q] < hi) | !(x[q] > lo);
-    return !out;
+    const double_pair low = {lo, lo}, high = {hi, hi};
+    mask_pair inside = {0, 0}; /* minus the count of samples inside, per lane */
+    for (size_t q = 0; q < len; q += 2) {
+        double_pair v;
+        memcpy(&v, x + q, sizeof v);
+        inside += (v < high) & (v > low);
+    }
+    return inside[0] + inside[1] == -(int64_t)len;
 }
 
 static void find_clipping(const double *x, size_t n, double rate, const rt_channel_info *ch,
@@ -296,6 +307,12 @@ static bool electrode_step(const double *x, size_t n, size_t i, size_t h, double
     return fabs(after - before) / (double)w >= RT_QUALITY_POP_SHIFT_SHARE * (hi - lo);
 }
 
+/* fmax(a, b) (the other when one is NaN) without a call to the C library. */
+static double larger_side(double a, double b)
+{
+    return a > b || isnan(b) ? a : b;
+}
+
 /* Electrode pop: one box step d[i] far above the mean step on each side of
  * it (the larger of the two one-sided means over RT_QUALITY_POP_SIDE_S,
  * leaving out 4 boxes next to i so the pop's own decay does not hide it),
@@ -319,22 +336,24 @@ static void find_pops(const double *x, size_t n, double rate, double *d, mark_si
     for (size_t j = first + gap + 1; j <= first + gap + side; j++)
         right += d[j];
     /* A loose first test without a branch on the data: the ratio test
-     * multiplied out, with a slack far above its rounding, so every step the
+     * multiplied out, with a slack far above its rounding, against each side
+     * (a NaN side passes, as fmax would take the other), so every step the
      * exact tests below take passes it; on muscle activity almost none does. */
     double sided = (double)side, loose = RT_QUALITY_POP_RATIO * (1.0 - 1e-9);
-    for (size_t i = first; i <= last; i++) {
-        double step = d[i];
-        bool maybe = (step >= RT_QUALITY_POP_MIN_UV) & (step * sided > loose * fmax(left, right));
-        if (maybe && isfinite(step) && step >= RT_QUALITY_POP_MIN_UV &&
-            step > RT_QUALITY_POP_RATIO * (fmax(left, right) / (double)side) &&
+    for (size_t i = first;; i++) {
+        double step = d[i], scaled = step * sided;
+        bool maybe = (step >= RT_QUALITY_POP_MIN_UV) & !(scaled <= loose * left) &
+                     !(scaled <= loose * right);
+        if (maybe && isfinite(step) &&
+            step > RT_QUALITY_POP_RATIO * (larger_side(left, right) / sided) &&
             electrode_step(x, n, i, h, rate, step)) {
             double t = (double)i / rate;
             sink_add(k, t - RT_QUALITY_POP_BEFORE_S, t + RT_QUALITY_POP_AFTER_S);
         }
-        if (i < last) {
-            left += d[i - gap] - d[i - gap - side];
-            right += d[i + 1 + gap + side] - d[i + 1 + gap];
-        }
+        if (i == last)
+            break;
+        left += d[i - gap] - d[i - gap - side];
+        right += d[i + 1 + gap + side] - d[i + 1 + gap];
     }
 }
 

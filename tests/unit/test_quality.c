@@ -362,6 +362,237 @@ static void test_marks_at_their_limits(void **state)
     free(y);
 }
 
+/* ---- the detectors against their plain definitions ---------------------
+ * rt_quality_marks takes shortcuts for speed (clear stretches passed over
+ * many samples at a time, constant runs found from each block's first and
+ * last run end, a loose ratio test before the exact one, box steps computed
+ * once); the marks must be exactly those of the definitions in quality.h
+ * written sample by sample, as below, with the same running sums. */
+typedef struct plain_sink {
+    rt_quality_mark m[512];
+    size_t count;
+    double duration_s;
+    bool open;
+    double last_end;
+} plain_sink;
+
+static void plain_add(plain_sink *k, rt_quality_reason reason, double a, double b)
+{
+    a = a < 0.0 ? 0.0 : a;
+    b = b > k->duration_s ? k->duration_s : b;
+    if (b <= a)
+        return;
+    if (k->open && a - k->last_end < RT_QUALITY_MERGE_S) {
+        if (b > k->last_end)
+            k->last_end = k->m[k->count - 1].end_s = b;
+        return;
+    }
+    assert_true(k->count < 512);
+    k->m[k->count++] = (rt_quality_mark){a, b, reason};
+    k->open = true;
+    k->last_end = b;
+}
+
+static bool plain_clips(double v, double lo, double hi)
+{
+    return !isfinite(v) || v >= hi || v <= lo;
+}
+
+static double plain_box(const double *x, size_t j, size_t h)
+{
+    double s = 0.0;
+    for (size_t q = 0; q < h; q++)
+        s += x[j + q];
+    return s / (double)h;
+}
+
+/* electrode_step of quality.h's pop definition, written out */
+static bool plain_electrode_step(const double *x, size_t n, size_t i, size_t h, double rate, double d)
+{
+    size_t w = (size_t)llround(RT_QUALITY_POP_SHIFT_S * rate);
+    w = w < 2 ? 2 : w;
+    if (i >= 2 * h && i + 3 * h <= n) {
+        double m_2 = plain_box(x, i - 2 * h, h), m_1 = plain_box(x, i - h, h);
+        double m1 = plain_box(x, i + h, h), m2 = plain_box(x, i + 2 * h, h);
+        if (fabs(m1 - m_1) < 0.25 * d && fabs(m_1 - m_2) < 0.25 * d && fabs(m2 - m1) < 0.25 * d)
+            return true;
+    }
+    if (i < w + 1 || i + w > n)
+        return false;
+    double before = 0.0, after = 0.0, lo = x[i], hi = x[i];
+    for (size_t j = 0; j < w; j++) {
+        before += x[i - 1 - j];
+        after += x[i + j];
+        lo = fmin(lo, fmin(x[i - 1 - j], x[i + j]));
+        hi = fmax(hi, fmax(x[i - 1 - j], x[i + j]));
+    }
+    return fabs(after - before) / (double)w >= RT_QUALITY_POP_SHIFT_SHARE * (hi - lo);
+}
+
+static size_t plain_marks(const double *x, size_t n, double rate, const rt_channel_info *ch,
+                          rt_quality_mark *out)
+{
+    plain_sink k = {.count = 0, .duration_s = (double)n / rate};
+    /* clipping */
+    double range = ch->phys_max - ch->phys_min, tol = RT_QUALITY_CLIP_FRACTION * range;
+    double hi = ch->phys_max - tol, lo = ch->phys_min + tol;
+    k.open = false;
+    for (size_t i = 0; i < n;) {
+        if (!plain_clips(x[i], lo, hi)) {
+            i++;
+            continue;
+        }
+        size_t j = i;
+        while (j < n && plain_clips(x[j], lo, hi))
+            j++;
+        plain_add(&k, RT_QUALITY_CLIPPING, (double)i / rate - RT_QUALITY_CLIP_PAD_S,
+                  (double)j / rate + RT_QUALITY_CLIP_PAD_S);
+        i = j;
+    }
+    /* flat: constant runs and quiet blocks, in the order the blocks end */
+    k.open = false;
+    size_t run_min = (size_t)ceil(RT_QUALITY_FLAT_RUN_S * rate);
+    size_t block = (size_t)llround(RT_QUALITY_FLAT_BLOCK_S * rate);
+    block = block < 2 ? 2 : block;
+    size_t blocks_min = (size_t)ceil(RT_QUALITY_FLAT_MIN_S / RT_QUALITY_FLAT_BLOCK_S);
+    size_t quiet_first = 0, quiet_count = 0, run_start = 0;
+    for (size_t b0 = 0; b0 < n; b0 += block) {
+        size_t b1 = b0 + block < n ? b0 + block : n;
+        for (size_t i = b0; i < b1; i++) {
+            if (i > 0 && x[i] == x[i - 1] && isfinite(x[i]))
+                continue;
+            if (i > 0 && i - run_start >= run_min)
+                plain_add(&k, RT_QUALITY_FLAT, (double)run_start / rate, (double)i / rate);
+            run_start = i;
+        }
+        bool quiet = b1 - b0 == block && reference_quiet(x + b0, block);
+        if (quiet && quiet_count++ == 0)
+            quiet_first = b0;
+        if ((!quiet || b1 == n) && quiet_count > 0) {
+            if (quiet_count >= blocks_min)
+                plain_add(&k, RT_QUALITY_FLAT, (double)quiet_first / rate,
+                          (double)(quiet_first + quiet_count * block) / rate);
+            quiet_count = 0;
+        }
+    }
+    if (n > 0 && n - run_start >= run_min)
+        plain_add(&k, RT_QUALITY_FLAT, (double)run_start / rate, (double)n / rate);
+    /* pops: each box step against the running one-sided sums */
+    k.open = false;
+    size_t h = (size_t)llround(RT_QUALITY_POP_BOX_S * rate);
+    h = h < 1 ? 1 : h;
+    size_t gap = 4 * h, side = (size_t)llround(RT_QUALITY_POP_SIDE_S * rate);
+    if (side > 0 && n >= 2 * (side + gap + h) + 2) {
+        double *d = calloc(n, sizeof *d);
+        assert_non_null(d);
+        for (size_t j = h; j + h <= n; j++)
+            d[j] = fabs(plain_box(x, j, h) - plain_box(x, j - h, h));
+        double left = 0.0, right = 0.0;
+        size_t first = side + gap + h, last = n - side - gap - h;
+        for (size_t j = first - gap - side; j < first - gap; j++)
+            left += d[j];
+        for (size_t j = first + gap + 1; j <= first + gap + side; j++)
+            right += d[j];
+        for (size_t i = first; i <= last; i++) {
+            double step = d[i];
+            if (isfinite(step) && step >= RT_QUALITY_POP_MIN_UV &&
+                step > RT_QUALITY_POP_RATIO * (fmax(left, right) / (double)side) &&
+                plain_electrode_step(x, n, i, h, rate, step)) {
+                double t = (double)i / rate;
+                plain_add(&k, RT_QUALITY_POP, t - RT_QUALITY_POP_BEFORE_S, t + RT_QUALITY_POP_AFTER_S);
+            }
+            if (i < last) {
+                left += d[i - gap] - d[i - gap - side];
+                right += d[i + 1 + gap + side] - d[i + 1 + gap];
+            }
+        }
+        free(d);
+    }
+    memcpy(out, k.m, k.count * sizeof *out);
+    return k.count;
+}
+
+/* EMG with bursts, plus what the detectors look for, at random places:
+ * constant runs a sample shorter than, as long as and longer than the
+ * flat-run limit (some across block edges), quiet stretches, clipped runs,
+ * single NaN and infinite samples, steps with a slow decay (pops), lone
+ * spikes, and stretches of a repeating 16-bit code. */
+static double *hostile_emg(size_t n, double rate)
+{
+    double *x = clean_with_bursts(n, rate);
+    size_t run_min = (size_t)ceil(RT_QUALITY_FLAT_RUN_S * rate);
+    for (int e = 0; e < 120; e++) {
+        size_t at = (size_t)(rt_test_uniform() * (double)(n - 3 * run_min - 2));
+        switch (e % 8) {
+        case 0: /* a constant run around the limit */
+        {
+            size_t len = run_min - 1 + (size_t)(rt_test_uniform() * 3.0);
+            for (size_t i = 0; i < len; i++)
+                x[at + i] = x[at];
+            break;
+        }
+        case 1: /* quiet: a lead off the skin */
+            for (size_t i = 0; i < 2 * run_min + run_min / 2; i++)
+                x[at + i] = 3.0 + 0.02 * sin((double)i);
+            break;
+        case 2: /* clipped */
+            for (size_t i = 0; i < run_min / 8 + 1; i++)
+                x[at + i] = 500.0;
+            break;
+        case 3:
+            x[at] = rt_test_uniform() < 0.5 ? NAN : -INFINITY;
+            break;
+        case 4: /* a pop: a step that decays slowly, 8-200 uV (some near the ratio limit) */
+        {
+            double size = 8.0 * pow(25.0, rt_test_uniform());
+            for (size_t i = 0; i < run_min && at + i < n; i++)
+                x[at + i] += size * exp(-(double)i / (0.2 * rate));
+            break;
+        }
+        case 5: /* a lone spike */
+            x[at] += 250.0;
+            break;
+        case 6: /* a 16-bit code held and released, sample by sample */
+            for (size_t i = 0; i < run_min / 2; i++)
+                x[at + i] = (i % 3 == 0) ? 0.0305 * (double)(i % 7) : x[at + i - 1 + (i == 0)];
+            break;
+        default: /* a large step up and down */
+            for (size_t i = 0; i < run_min / 4; i++)
+                x[at + i] += 60.0;
+            break;
+        }
+    }
+    return x;
+}
+
+static void test_marks_match_plain_definitions(void **state)
+{
+    (void)state;
+    /* box lengths 1, 2, 4 and 16 samples, rates around the common ones and odd ones */
+    const double rates[] = {200.0, 256.0, 333.0, 500.0, 512.0, 1000.0, 4096.0};
+    rt_test_rng_seed(rt_test_seed() + 11);
+    static rt_quality_mark got[512], want[512];
+    for (size_t r = 0; r < sizeof rates / sizeof rates[0]; r++)
+        for (int trial = 0; trial < 3; trial++) {
+            double rate = rates[r];
+            size_t n = (size_t)((40.0 + 7.0 * trial) * rate) + (size_t)trial;
+            double *x = hostile_emg(n, rate);
+            rt_channel_info ch = chin_info(rate);
+            size_t k = rt_quality_marks(x, n, rate, &ch, work_for(n), got, 512);
+            size_t m = plain_marks(x, n, rate, &ch, want);
+            assert_true(k > 0);
+            assert_int_equal(k, m);
+            for (size_t i = 0; i < k; i++) {
+                if (got[i].reason != want[i].reason || memcmp(&got[i].start_s, &want[i].start_s, sizeof(double)) ||
+                    memcmp(&got[i].end_s, &want[i].end_s, sizeof(double)))
+                    fail_msg("%g Hz, trial %d, mark %zu: %s %.17g-%.17g, plainly %s %.17g-%.17g", rate, trial,
+                             i, rt_quality_reason_name(got[i].reason), got[i].start_s, got[i].end_s,
+                             rt_quality_reason_name(want[i].reason), want[i].start_s, want[i].end_s);
+            }
+            free(x);
+        }
+}
+
 static void test_marks_pops(void **state)
 {
     (void)state;
@@ -526,6 +757,7 @@ int main(void)
         cmocka_unit_test(test_channel_check),
         cmocka_unit_test(test_qrs_windows),
         cmocka_unit_test(test_marks_at_their_limits),
+        cmocka_unit_test(test_marks_match_plain_definitions),
     };
     return cmocka_run_group_tests(tests, NULL, cleanup);
 }
