@@ -49,6 +49,7 @@
 #include <sys/types.h>
 #include <unistd.h>
 
+#include "digest.h"
 #include "edf_header_check.h"
 #include "edf_tal.h"
 #include "edflib_lock.h"
@@ -499,7 +500,8 @@ static bool has_annotation_signal(const rt_edf_layout *l)
  * blocks like read_direct: several whole records per pread when the other
  * signals' bytes in between are few, otherwise the annotation signals' bytes
  * of one record per pread. */
-static rt_status read_tals(const char *path, int fd, const rt_edf_layout *l, rt_tal_list *list, rt_error *err)
+static rt_status read_tals(const char *path, int fd, const rt_edf_layout *l, rt_tal_list *list,
+                           XXH3_state_t *whole, rt_error *err)
 {
     int width = l->is_bdf ? 3 : 2;
     int signal[RT_EDF_MAX_SIGNALS], n_annotation = 0;
@@ -517,17 +519,35 @@ static rt_status read_tals(const char *path, int fd, const rt_edf_layout *l, rt_
     }
     if (n_annotation == 0)
         return RT_OK;
-    const long long rb = l->record_bytes, span = hi - lo;
+    const long long rb = l->record_bytes;
+    if (whole && rb <= SPAN_BYTES) { /* whole records, every byte of the file in order */
+        lo = 0;
+        hi = rb;
+    } else {
+        whole = NULL;
+    }
+    const long long span = hi - lo;
     long long group = rb <= SPAN_BYTES && rb - span < SKIP_BYTES ? SPAN_BYTES / rb : 1;
     group = min_ll(group, l->n_records);
-    unsigned char *buf = malloc((size_t)((group - 1) * rb + span));
+    size_t buf_bytes = (size_t)((group - 1) * rb + span);
+    if (whole && (long long)buf_bytes < l->header_bytes)
+        buf_bytes = (size_t)l->header_bytes;
+    unsigned char *buf = malloc(buf_bytes);
     if (!buf)
         return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory reading the annotation signals", path);
     rt_status s = RT_OK;
+    if (whole) {
+        s = read_bytes_at(fd, path, "header", buf, (size_t)l->header_bytes, 0, err);
+        if (s == RT_OK)
+            XXH3_64bits_update(whole, buf, (size_t)l->header_bytes);
+    }
     for (long long r0 = 0; r0 < l->n_records && s == RT_OK; r0 += group) {
         long long g = min_ll(group, l->n_records - r0);
         long long offset = l->header_bytes + r0 * rb + lo;
-        s = read_bytes_at(fd, path, "annotation signals", buf, (size_t)((g - 1) * rb + span), offset, err);
+        size_t bytes = (size_t)((g - 1) * rb + span);
+        s = read_bytes_at(fd, path, "annotation signals", buf, bytes, offset, err);
+        if (s == RT_OK && whole)
+            XXH3_64bits_update(whole, buf, bytes);
         for (long long j = 0; j < g && s == RT_OK; j++)
             for (int a = 0; a < n_annotation && s == RT_OK; a++) {
                 long long within = j * rb + at[a] - lo;
@@ -549,7 +569,21 @@ static rt_status read_direct_annotations(rt_recording *rec, const rt_edf_layout 
 {
     rt_tal_list list;
     rt_tal_list_init(&list, rec->path, record_units);
-    rt_status s = read_tals(rec->path, rec->fd, l, &list, err);
+    /* every record is read for its annotation signal: the file's digest is
+     * taken on the way (digest.h), when the file does not change meanwhile */
+    XXH3_state_t *whole = XXH3_createState();
+    struct stat before, after;
+    bool identified = whole && XXH3_64bits_reset(whole) == XXH_OK && fstat(rec->fd, &before) == 0;
+    rt_status s = read_tals(rec->path, rec->fd, l, &list, identified ? whole : NULL, err);
+    if (s == RT_OK && identified && l->record_bytes <= SPAN_BYTES && fstat(rec->fd, &after) == 0 &&
+        after.st_size == before.st_size && after.st_size == l->file_bytes &&
+        after.st_mtim.tv_sec == before.st_mtim.tv_sec && after.st_mtim.tv_nsec == before.st_mtim.tv_nsec &&
+        l->file_bytes == l->header_bytes + l->n_records * l->record_bytes) {
+        char hex[17];
+        rt_digest_hex(whole, hex);
+        rt_digest_remember(&after, hex);
+    }
+    XXH3_freeState(whole);
     if (s == RT_OK && list.start_units != edflib_start_units)
         s = rt_fail(err, RT_ERR_INTERNAL, "%s: the first data record starts %lld x 100 ns after the header's "
                     "start time for remtone but %lld x 100 ns for EDFlib", rec->path, list.start_units,
@@ -576,7 +610,7 @@ static rt_status explain_format_error(const char *path, const rt_edf_layout *l, 
         return RT_OK;
     rt_tal_list list;
     rt_tal_list_init(&list, path, llround(l->record_s * (double)RT_TAL_UNITS_PER_S));
-    rt_status s = read_tals(path, fd, l, &list, err);
+    rt_status s = read_tals(path, fd, l, &list, NULL, err);
     free(list.items);
     close(fd);
     return s == RT_ERR_RECORDING ? s : RT_OK;

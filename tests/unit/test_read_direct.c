@@ -26,7 +26,10 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <fcntl.h>
+#include <sys/stat.h>
 
+#include "digest.h"
 #include "io/recording_seam.h"
 #include "remtone/recording.h"
 
@@ -449,6 +452,62 @@ static void forced_edflib_path(void **state)
     compare_forced_open(&plain);
 }
 
+/* ---- the digest taken while opening ---------------------------------------
+ * An EDF+ open reads every record for the annotation signal and takes the
+ * file's XXH3 digest on the way (common/digest.h); a later digest of the same
+ * unchanged file is that one. It must equal libxxhash's one-shot XXH3 of the
+ * whole file, and a file changed since (another size or modification time)
+ * must be read again. */
+static void one_shot_hex(const char *path, char hex[17])
+{
+    FILE *f = fopen(path, "rb");
+    assert_non_null(f);
+    assert_int_equal(fseek(f, 0, SEEK_END), 0);
+    long size = ftell(f);
+    rewind(f);
+    unsigned char *b = malloc((size_t)size + 1);
+    assert_non_null(b);
+    assert_int_equal(fread(b, 1, (size_t)size, f), (size_t)size);
+    fclose(f);
+    snprintf(hex, 17, "%016llx", (unsigned long long)XXH3_64bits(b, (size_t)size));
+    free(b);
+}
+
+static void digest_taken_while_opening(void **state)
+{
+    (void)state;
+    rt_test_rng_seed(rt_test_seed() + 6);
+    file_spec plus = {.name = "digest_edfplus", .bdf = false, .reserved = "EDF+C", .n_records = 90,
+                      .record_s = "1", .ns = 3,
+                      .sig = {{"Chin", "uV", "-1000", "1000", -32768, 32767, 256},
+                              {"EDF Annotations", "", "-1", "1", -32768, 32767, 30},
+                              {"Tib L", "uV", "-500", "500", -32768, 32767, 200}}};
+    const char *path = build_file(&plus);
+    char want[17], got[17];
+    one_shot_hex(path, want);
+    rt_error err;
+    rt_recording *rec = NULL;
+    if (rt_recording_open(path, &rec, &err) != RT_OK)
+        fail_msg("%s", err.message);
+    long long bytes = 0;
+    assert_int_equal(rt_file_digest(path, &bytes, got, &err), RT_OK);
+    assert_string_equal(got, want);
+    rt_recording_close(rec);
+    /* the same file written again (new contents, same size, a later time):
+     * its digest is taken anew */
+    struct stat before;
+    assert_int_equal(stat(path, &before), 0);
+    rt_test_rng_seed(rt_test_seed() + 7);
+    build_file(&plus);
+    struct timespec later[2] = {{0, UTIME_OMIT}, before.st_mtim};
+    later[1].tv_sec += 5;
+    assert_int_equal(utimensat(AT_FDCWD, path, later, 0), 0);
+    one_shot_hex(path, want);
+    assert_int_equal(rt_file_digest(path, &bytes, got, &err), RT_OK);
+    assert_string_equal(got, want);
+    assert_int_equal(bytes, (long long)before.st_size);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -458,6 +517,7 @@ int main(void)
         cmocka_unit_test(wide_records),
         cmocka_unit_test(threads_read_one_recording),
         cmocka_unit_test(forced_edflib_path),
+        cmocka_unit_test(digest_taken_while_opening),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
