@@ -299,7 +299,8 @@ static rt_status write_table(const char *path, const rows *r, rt_error *err)
     fputs(",corrected", f);
     for (int i = 0; i < RT_IX_COUNT; i++)
         fprintf(f, ",automatic:%s", rt_index_rules()[i].id);
-    fputs(",warnings,warning_texts,error\n", f);
+    /* age and sex last, so that readers of the columns before them keep working */
+    fputs(",warnings,warning_texts,error,age,sex\n", f);
     int no_memory = 0; /* text fields go through rt_csv_put_field (src/common/text.h) */
     for (size_t k = 0; k < r->n && !no_memory; k++) {
         const cohort_row *row = &r->v[k];
@@ -332,6 +333,11 @@ static rt_status write_table(const char *path, const rows *r, rt_error *err)
         no_memory |= rt_csv_put_field(f, row->warning_texts ? row->warning_texts : "");
         fputc(',', f);
         no_memory |= rt_csv_put_field(f, row->error);
+        fputc(',', f);
+        cohort_put_number(f, row->age);
+        fputc(',', f);
+        char sex[2] = {row->sex, '\0'};
+        no_memory |= rt_csv_put_field(f, sex);
         fputc('\n', f);
     }
     return rt_output_finish(&o, no_memory, "the cohort table", err);
