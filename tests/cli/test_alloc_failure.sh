@@ -103,57 +103,65 @@ verdict() {
   return 3
 }
 
-# sweep NAME FIRST_ALL OUTPUT_FILE ARGS...: count, then fail each N picked
+# sweep NAME FIRST_ALL NIGHTS ARGS...: count the allocations of `remtone ARGS...`, then fail
+# each N picked. Its folder $work/NAME is laid anew before every run: empty, or holding a copy
+# of the folder NIGHTS as nights/ (a cohort's results, for cohort-merge). A run that fails must
+# leave nothing in the folder but nights/, untouched; one that gets round its failure must
+# leave every file the run without a failure wrote, whole, and print the same.
 sweep() {
-  local name=$1 first=$2 file=$3; shift 3
-  local out="$work/$name"
-  mkdir -p "$out"
-  if ! REMTONE_TEST_COUNT_ALLOC="$work/$name.kinds" "$fa" score "$rec" --stages "$stages" "$@" \
+  local name=$1 first=$2 nights=$3; shift 3
+  local out="$work/$name" ref="$work/$name.refdir"
+  lay() { rm -rf "$out" && mkdir -p "$out" && { [ -z "$nights" ] || cp -a "$nights" "$out/nights"; }; }
+  lay
+  if ! REMTONE_TEST_COUNT_ALLOC="$work/$name.kinds" "$fa" "$@" \
        >"$work/$name.ref" 2>"$work/$name.referr"; then
     bad "$name: the run without a failure fails: $(head -2 "$work/$name.referr")"
     return
   fi
-  if [ -n "$file" ]; then cp "$out/$file" "$work/$name.reffile" || { bad "$name: no $file"; return; }; fi
-  rm -rf "$out" && mkdir -p "$out"
-  local total tried=0 zero=0 n rc left before=$fails
+  rm -rf "$ref" && cp -a "$out" "$ref"
+  local total tried=0 zero=0 n rc f left before=$fails
   total=$(wc -c <"$work/$name.kinds")
   for n in $(pick "$work/$name.kinds" "$first" "$strata" 3); do
     tried=$((tried + 1))
-    REMTONE_TEST_FAIL_ALLOC=$n "$fa" score "$rec" --stages "$stages" "$@" \
-      >"$work/stdout" 2>"$work/stderr" </dev/null
+    lay
+    REMTONE_TEST_FAIL_ALLOC=$n "$fa" "$@" >"$work/stdout" 2>"$work/stderr" </dev/null
     rc=$?
-    left=$(find "$out" -mindepth 1 | head -3)
+    if [ -n "$nights" ] && ! diff -r -q "$out/nights" "$nights" >/dev/null; then
+      bad "$name N=$n: nights/ changed"
+    fi
     verdict "$name" "$n" "$rc"
     case $? in
-      0) if [ -n "$left" ]; then bad "$name N=$n: left $left"; fi ;;
+      0) left=$(find "$out" -mindepth 1 -maxdepth 1 ! -name nights | head -3)
+         if [ -n "$left" ]; then bad "$name N=$n: left $(echo $left)"; fi ;;
       1) zero=$((zero + 1))
          # only a failure something got round: the same output as without it
-         if [ -n "$file" ]; then
-           if ! [ -f "$out/$file" ] || ! same "$out/$file" "$work/$name.reffile"; then
-             bad "$name N=$n: exit 0 without the whole $file"
-           elif [ -n "$(find "$out" -name '*.tmp-*')" ]; then
-             bad "$name N=$n: exit 0 leaving $(find "$out" -name '*.tmp-*' | head -1)"
+         for f in $(cd "$ref" && find . -type f ! -path './nights/*'); do
+           if ! [ -f "$out/$f" ] || ! same "$out/$f" "$ref/$f"; then
+             bad "$name N=$n: exit 0 without the whole $f"
            fi
+         done
+         if [ -n "$(find "$out" -name '*.tmp-*')" ]; then
+           bad "$name N=$n: exit 0 leaving $(find "$out" -name '*.tmp-*' | head -1)"
          elif ! cmp -s "$work/stdout" "$work/$name.ref"; then
            bad "$name N=$n: exit 0 with a different summary"
          fi ;;
       2) zero=$((zero + 1)) ;;
     esac
-    rm -rf "$out" && mkdir -p "$out"
   done
   [ "$fails" = "$before" ] && echo "ok   $name: $tried of $total allocations failed in turn ($zero got round)"
 }
 
-sweep text 15 ""
-sweep json 0 r.json --quiet --json "$work/json/r.json"
-sweep html 0 r.html --quiet --html "$work/html/r.html"
+night=(score "$rec" --stages "$stages")
+sweep text 15 "" "${night[@]}"
+sweep json 0 "" "${night[@]}" --quiet --json "$work/json/r.json"
+sweep html 0 "" "${night[@]}" --quiet --html "$work/html/r.html"
 # a reviewer's decisions (docs/corrections.md): read, checked, rescored
 printf 'elapsed_s,role,decision,reason,reviewer,decided_at\n2943,chin,confirm,,A,2026-12-01\n2946,arm-left,confirm,,A,2026-12-01\n2952,chin,exclude,artifact,A,2026-12-01\n' >"$work/decisions.csv"
-sweep corrections 0 r.json --quiet --corrections "$work/decisions.csv" --json "$work/corrections/r.json"
+sweep corrections 0 "" "${night[@]}" --quiet --corrections "$work/decisions.csv" --json "$work/corrections/r.json"
 # a lab's norms file (docs/scoring.md, "A lab's norms file"; invented numbers): read, a stratum
 # chosen per index, placed
 printf '# invented numbers\nindex,sex,age_from,age_to,percentile,value,unit,source,method\nsinbar.chin_any_3s,F,60,70,95,7.5,%%,invented,visual\nrai,any,20,90,5,0.8,ratio,invented,\n' >"$work/norms.csv"
-sweep norms 0 r.json --quiet --norms "$work/norms.csv" --age 64 --sex F --json "$work/norms/r.json"
+sweep norms 0 "" "${night[@]}" --quiet --norms "$work/norms.csv" --age 64 --sex F --json "$work/norms/r.json"
 
 # ---- cohort-merge (docs/cohort.md): the nights' results read back with jansson, the table,
 # the subjects, the calibration overall and per stratum (--by-sex, --age-bands), their cutoff
@@ -176,50 +184,7 @@ printf 'start_s,duration_s,stage\n0,30,Q\n' >"$work/bad-stages.csv"
 "$bin" cohort "$work/manifest.csv" --out "$work/cohort" --jobs 1 --quiet ||
   { echo "FAIL the cohort run: exit $?"; exit 1; }
 
-# sweep_merge NAME ARGS...: as sweep, for `remtone cohort-merge DIR ARGS...`
-sweep_merge() {
-  local name=$1; shift
-  local out="$work/$name" ref="$work/$name.refdir"
-  fresh() { rm -rf "$out" && mkdir -p "$out" && cp -a "$work/cohort/nights" "$out/"; }
-  fresh
-  if ! REMTONE_TEST_COUNT_ALLOC="$work/$name.kinds" "$fa" cohort-merge "$out" "$@" \
-       >"$work/$name.ref" 2>"$work/$name.referr"; then
-    bad "$name: the merge without a failure fails: $(head -2 "$work/$name.referr")"
-    return
-  fi
-  rm -rf "$ref" && cp -a "$out" "$ref"
-  local total tried=0 zero=0 n rc f left before=$fails
-  total=$(wc -c <"$work/$name.kinds")
-  for n in $(pick "$work/$name.kinds" 15 "$strata" 0); do
-    tried=$((tried + 1))
-    fresh
-    REMTONE_TEST_FAIL_ALLOC=$n "$fa" cohort-merge "$out" "$@" \
-      >"$work/stdout" 2>"$work/stderr" </dev/null
-    rc=$?
-    if ! diff -r -q "$out/nights" "$work/cohort/nights" >/dev/null; then
-      bad "$name N=$n: nights/ changed"
-    fi
-    verdict "$name" "$n" "$rc"
-    case $? in
-      0) left=$(find "$out" -mindepth 1 -maxdepth 1 ! -name nights | head -3)
-         if [ -n "$left" ]; then bad "$name N=$n: left $(echo $left)"; fi ;;
-      1) zero=$((zero + 1))
-         for f in $(cd "$ref" && find . -type f ! -path './nights/*'); do
-           if ! [ -f "$out/$f" ] || ! same "$out/$f" "$ref/$f"; then
-             bad "$name N=$n: exit 0 without the whole $f"
-           fi
-         done
-         if [ -n "$(find "$out" -name '*.tmp-*')" ]; then
-           bad "$name N=$n: exit 0 leaving $(find "$out" -name '*.tmp-*' | head -1)"
-         elif ! cmp -s "$work/stdout" "$work/$name.ref"; then
-           bad "$name N=$n: exit 0 with a different summary"
-         fi ;;
-      2) zero=$((zero + 1)) ;;
-    esac
-  done
-  [ "$fails" = "$before" ] && echo "ok   $name: $tried of $total allocations failed in turn ($zero got round)"
-}
-sweep_merge merge --by-sex --age-bands 60
+sweep merge 15 "$work/cohort/nights" cohort-merge "$work/merge" --by-sex --age-bands 60
 
 echo "$fails failed"
 [ "$fails" = 0 ]
