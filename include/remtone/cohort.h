@@ -198,7 +198,11 @@ typedef struct rt_cohort_merge_summary {
  * only on the results, not on the order or the parts that produced them).
  * The two calibration files are written only when both groups have a scored
  * night; every check on the inputs (groups, cutoff file) runs before the
- * first file is replaced, so a failed merge leaves the earlier files.
+ * first file is replaced, and the files are written into a staging folder
+ * OUT/.merge-XXXXXX and moved into OUT together once all are complete, so a
+ * failed merge (bad input, out of memory, a file that cannot be written)
+ * leaves the earlier files; only a rename failing during the move itself
+ * could leave some moved.
  * Uses options->out_dir, positive, negative and cutoffs_path (the cutoffs the
  * sensitivity and specificity are tabulated at besides the published ones).
  * With by_sex or age bands, every stratum is calibrated as well: the table

@@ -117,6 +117,10 @@ rt_status rt_night_write_periods_csv(const rt_night *night, const rt_recording *
 void rt_night_plain_sentence(const rt_night *night, char *buf, size_t cap);
 /* The rule table with the cutoffs in force. */
 rt_status rt_rules_write_text(const rt_cutoffs *cutoffs, FILE *out, rt_error *err);
+/* Every row of a lab's norms file (rt_norms_load), in file order: its index,
+ * its percentile, value and stratum with the file's line, and its source and
+ * method (`remtone rules --norms`). RT_ERR_IO on a write error. */
+rt_status rt_norms_write_text(const rt_norms *norms, FILE *out, rt_error *err);
 
 /* Writes the scoring parameter table (rt_score_param_table: name, default,
  * range, unit, source) as a Markdown page; docs/parameters.md is this

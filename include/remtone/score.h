@@ -548,6 +548,12 @@ rt_status rt_norms_load(const char *path, rt_norms **out, rt_error *err);
 void rt_norms_free(rt_norms *norms);
 /* The file the norms were read from. */
 const char *rt_norms_path(const rt_norms *norms);
+/* The rows of a norms file in file order (`remtone rules --norms`): how many
+ * there are (0 for NULL), and row k with its index in *index (may be NULL)
+ * and its line, stratum, value, label, source and method in *out, as
+ * rt_norms_choose fills a chosen row. False when there is no row k. */
+size_t rt_norms_count(const rt_norms *norms);
+bool rt_norms_row(const rt_norms *norms, size_t k, rt_index_id *index, rt_norm_stratum *out);
 
 /* The row of `norms` that applies to index i for a person (age_years NaN
  * or sex 0 when not known): among the rows whose band holds the age, one of

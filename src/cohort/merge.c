@@ -129,20 +129,35 @@ bool cohort_result_usable(json_t *root)
            json_is_object(json_object_get(root, "indices"));
 }
 
+/* A night's file read with jansson into *root: NULL with RT_OK when it cannot be
+ * opened or is not JSON (je says why), RT_ERR_NOMEM when jansson or the C
+ * library ran out of memory reading it -- a file read short of memory must not
+ * pass for a missing or malformed one, which would drop or fail the night. */
+static rt_status load_json(const char *path, json_t **root, json_error_t *je, rt_error *err)
+{
+    errno = 0;
+    *root = json_load_file(path, 0, je);
+    if (!*root && (json_error_code(je) == json_error_out_of_memory || errno == ENOMEM))
+        return rt_fail(err, RT_ERR_NOMEM, "%s: out of memory reading it", path);
+    return RT_OK;
+}
+
 static rt_status read_result(const char *dir, const char *id, cohort_row *row, bool *complete,
                              rt_error *err)
 {
     char path[COHORT_PATH_MAX];
     cohort_night_path(path, sizeof path, dir, id, ".key");
-    json_t *key = json_load_file(path, 0, NULL);
+    json_error_t je;
+    json_t *key, *root;
+    rt_status st = load_json(path, &key, &je, err);
     *complete = key != NULL;
     if (!key)
-        return RT_OK;
+        return st;
     copy_label(row, key);
     json_decref(key);
     cohort_night_path(path, sizeof path, dir, id, ".json");
-    json_error_t je;
-    json_t *root = json_load_file(path, 0, &je);
+    if ((st = load_json(path, &root, &je, err)) != RT_OK)
+        return st;
     if (!root)
         return rt_fail(err, RT_ERR_STAGING, "%s line %d: not valid JSON: %s", path, je.line, je.text);
     const char *schema = json_string_value(json_object_get(root, "schema"));
@@ -176,7 +191,7 @@ static rt_status read_result(const char *dir, const char *id, cohort_row *row, b
     }
     json_t *warnings = json_object_get(root, "warnings");
     row->warnings = json_is_array(warnings) ? (long)json_array_size(warnings) : 0;
-    rt_status st = join_texts(warnings, &row->warning_texts, err);
+    st = join_texts(warnings, &row->warning_texts, err);
     json_decref(root);
     cohort_night_path(path, sizeof path, dir, id, ".html");
     row->page = access(path, F_OK) == 0;
@@ -188,7 +203,10 @@ static rt_status read_failure(const char *dir, const char *id, cohort_row *row, 
     char path[COHORT_PATH_MAX];
     cohort_night_path(path, sizeof path, dir, id, ".error.json");
     json_error_t je;
-    json_t *root = json_load_file(path, 0, &je);
+    json_t *root;
+    rt_status st = load_json(path, &root, &je, err);
+    if (st != RT_OK)
+        return st;
     if (!root)
         return rt_fail(err, RT_ERR_STAGING, "%s line %d: not valid JSON: %s", path, je.line, je.text);
     rt_copy_string(row->id, sizeof row->id, id);
@@ -281,7 +299,8 @@ static rt_status write_table(const char *path, const rows *r, rt_error *err)
     fputs(",corrected", f);
     for (int i = 0; i < RT_IX_COUNT; i++)
         fprintf(f, ",automatic:%s", rt_index_rules()[i].id);
-    fputs(",warnings,warning_texts,error\n", f);
+    /* age and sex last, so that readers of the columns before them keep working */
+    fputs(",warnings,warning_texts,error,age,sex\n", f);
     int no_memory = 0; /* text fields go through rt_csv_put_field (src/common/text.h) */
     for (size_t k = 0; k < r->n && !no_memory; k++) {
         const cohort_row *row = &r->v[k];
@@ -314,6 +333,11 @@ static rt_status write_table(const char *path, const rows *r, rt_error *err)
         no_memory |= rt_csv_put_field(f, row->warning_texts ? row->warning_texts : "");
         fputc(',', f);
         no_memory |= rt_csv_put_field(f, row->error);
+        fputc(',', f);
+        cohort_put_number(f, row->age);
+        fputc(',', f);
+        char sex[2] = {row->sex, '\0'};
+        no_memory |= rt_csv_put_field(f, sex);
         fputc('\n', f);
     }
     return rt_output_finish(&o, no_memory, "the cohort table", err);
@@ -464,20 +488,16 @@ static rt_status write_calibration(const char *path, const cohort_calibration *c
 /* The format rt_cutoffs_load reads; indices without a Youden cutoff are left
  * out and so keep their published cutoff. Without any (one group, too few
  * nights) there is no file -- rt_cutoffs_load refuses one listing no index,
- * and every file remtone writes must be one it reads -- and an earlier
- * merge's file, calibrated on other results, is removed. */
+ * and every file remtone writes must be one it reads -- and the commit
+ * removes an earlier merge's file, calibrated on other results. */
 static rt_status write_calibrated_cutoffs(const char *path, const cohort_calibration *cal,
                                           size_t *calibrated_indices, rt_error *err)
 {
     *calibrated_indices = 0;
     for (int i = 0; i < RT_IX_COUNT; i++)
         *calibrated_indices += isfinite(cal->roc[i].youden_cutoff) != 0;
-    if (*calibrated_indices == 0) {
-        if (unlink(path) != 0 && errno != ENOENT)
-            return rt_fail(err, RT_ERR_IO, "%s: cannot remove the previous calibration: %s", path,
-                           strerror(errno));
+    if (*calibrated_indices == 0)
         return RT_OK;
-    }
     rt_output o;
     rt_status st = rt_output_begin(&o, path, 1, err);
     if (st != RT_OK)
@@ -498,55 +518,166 @@ static bool same_file(const char *path, const char *other)
            a.st_ino == b.st_ino;
 }
 
+/* A file's path in OUT or in the staging folder: the folder's and a name of
+ * at most 255 bytes. */
+enum { STAGED_PATH_MAX = COHORT_PATH_MAX + 320 };
+
 /* Each stratum's cutoff file (calibrated-cutoffs-TAG.csv; none when no index
- * of it has a Youden cutoff) and calibration-strata.csv; then every
- * calibrated-cutoffs-*.csv of the folder not written now is removed: an
- * earlier merge's stratum (other edges, a stratum that lost a group) would
- * describe other results. The run's own --cutoffs file is never removed. */
-static rt_status write_strata_files(const char *out_dir, const cohort_calibration *overall,
+ * of it has a Youden cutoff) and calibration-strata.csv (none without strata),
+ * in the staging folder. */
+static rt_status write_strata_files(const char *stage, const cohort_calibration *overall,
                                     cohort_strata *strata, const rt_cohort_options *o,
                                     rt_cohort_merge_summary *s, rt_error *err)
 {
-    char path[COHORT_PATH_MAX];
+    char path[STAGED_PATH_MAX];
     rt_status st = RT_OK;
     for (size_t k = 0; k < strata->n && st == RT_OK; k++) {
         cohort_stratum *t = &strata->v[k];
         if (t->sum.unknown)
             continue;
-        snprintf(path, sizeof path, "%s/calibrated-cutoffs-%s.csv", out_dir, t->tag);
+        snprintf(path, sizeof path, "%s/calibrated-cutoffs-%s.csv", stage, t->tag);
         st = write_calibrated_cutoffs(path, &t->cal, &t->sum.calibrated_indices, err);
         if (t->sum.calibrated_indices > 0)
             snprintf(t->sum.cutoffs_file, sizeof t->sum.cutoffs_file,
                      "calibrated-cutoffs-%s.csv", t->tag);
     }
-    snprintf(path, sizeof path, "%s/calibration-strata.csv", out_dir);
+    snprintf(path, sizeof path, "%s/calibration-strata.csv", stage);
     if (st == RT_OK && strata->n > 0)
         st = cohort_write_strata(path, overall, strata, o, err);
-    else if (st == RT_OK && unlink(path) != 0 && errno != ENOENT)
-        st = rt_fail(err, RT_ERR_IO, "%s: cannot remove the previous calibration: %s", path,
-                     strerror(errno));
-    DIR *d = st == RT_OK ? opendir(out_dir) : NULL;
-    if (st == RT_OK && !d)
+    for (size_t k = 0; k < strata->n && k < RT_COHORT_STRATA_MAX; k++)
+        s->strata[s->n_strata++] = strata->v[k].sum;
+    return st;
+}
+
+/* ---- the files appear together ----
+ * A merge writes every file into a staging folder OUT/.merge-XXXXXX first and
+ * moves them into OUT only when all are written, so a merge that fails (out of
+ * memory, a full disk) leaves OUT as it was: never a new cohort.csv beside an
+ * earlier calibration. Moving them (rename) and removing an earlier merge's
+ * calibration files allocate nothing. A merge killed before the end leaves at
+ * worst the staging folder. */
+
+/* The files of OUT a merge writes; those of the calibration (`calibration`
+ * set) are removed when this merge did not write them: they would describe
+ * other results. subjects.csv is written when the nights name subjects. */
+static const struct {
+    const char *name;
+    bool calibration;
+} MERGE_FILES[] = {
+    {"cohort.csv", false},          {"subjects.csv", false},
+    {"calibration.csv", true},      {"calibrated-cutoffs.csv", true},
+    {"calibration-strata.csv", true}, {"cohort.html", false},
+};
+
+typedef struct names {
+    char (*v)[256];
+    size_t n, cap;
+} names;
+
+/* The calibrated-cutoffs-*.csv of OUT that this merge did not write (an earlier
+ * merge's strata: other edges, a stratum that lost a group), to be removed
+ * with the commit; the run's own --cutoffs file is never one. */
+static rt_status stale_strata_files(const char *out_dir, const cohort_strata *strata,
+                                    const rt_cohort_options *o, names *stale, rt_error *err)
+{
+    DIR *d = opendir(out_dir);
+    if (!d)
         return rt_fail(err, rt_errno_status(errno, RT_ERR_IO), "%s: cannot open: %s", out_dir,
                        strerror(errno));
+    rt_status st = RT_OK;
     struct dirent *de;
+    char path[STAGED_PATH_MAX];
     while (st == RT_OK && (de = readdir(d)) != NULL) {
         const char *name = de->d_name;
-        if (strncmp(name, "calibrated-cutoffs-", 19) != 0 || !ends_with(name, ".csv"))
+        if (strncmp(name, "calibrated-cutoffs-", 19) != 0 || !ends_with(name, ".csv") ||
+            strlen(name) >= sizeof stale->v[0])
             continue;
         bool current = false;
         for (size_t k = 0; k < strata->n && !current; k++)
             current = strcmp(strata->v[k].sum.cutoffs_file, name) == 0;
         snprintf(path, sizeof path, "%s/%s", out_dir, name);
-        if (!current && !same_file(path, o->cutoffs_path) && unlink(path) != 0 && errno != ENOENT)
-            st = rt_fail(err, RT_ERR_IO, "%s: cannot remove the previous calibration: %s", path,
-                         strerror(errno));
+        if (current || same_file(path, o->cutoffs_path))
+            continue;
+        if (stale->n == stale->cap) {
+            size_t cap = stale->cap ? 2 * stale->cap : 8;
+            void *grown = realloc(stale->v, cap * sizeof stale->v[0]);
+            if (!grown) {
+                st = rt_fail(err, RT_ERR_NOMEM, "%s: out of memory", out_dir);
+                break;
+            }
+            stale->v = grown;
+            stale->cap = cap;
+        }
+        rt_copy_string(stale->v[stale->n++], sizeof stale->v[0], name);
     }
-    if (d)
-        closedir(d);
-    for (size_t k = 0; k < strata->n && k < RT_COHORT_STRATA_MAX; k++)
-        s->strata[s->n_strata++] = strata->v[k].sum;
+    closedir(d);
     return st;
+}
+
+/* Moves the file `name` of the staging folder into OUT when there is one;
+ * otherwise removes OUT's file when `remove_old` (ENOENT is no error). */
+static rt_status move_or_remove(const char *stage, const char *out_dir, const char *name,
+                                bool remove_old, rt_error *err)
+{
+    char from[STAGED_PATH_MAX], to[STAGED_PATH_MAX];
+    snprintf(from, sizeof from, "%s/%s", stage, name);
+    snprintf(to, sizeof to, "%s/%s", out_dir, name);
+    if (rename(from, to) == 0)
+        return RT_OK;
+    if (errno != ENOENT)
+        return rt_fail(err, rt_errno_status(errno, RT_ERR_IO), "%s: cannot write output: %s", to,
+                       strerror(errno));
+    if (remove_old && unlink(to) != 0 && errno != ENOENT)
+        return rt_fail(err, RT_ERR_IO, "%s: cannot remove the previous calibration: %s", to,
+                       strerror(errno));
+    return RT_OK;
+}
+
+/* Every file a merge writes, by name in the staging folder: the fixed ones
+ * and each stratum's cutoff file. */
+static size_t staged_names(const cohort_strata *strata, const char **out, size_t cap)
+{
+    size_t n = 0;
+    for (size_t k = 0; k < sizeof MERGE_FILES / sizeof MERGE_FILES[0] && n < cap; k++)
+        out[n++] = MERGE_FILES[k].name;
+    for (size_t k = 0; k < strata->n && n < cap; k++)
+        if (strata->v[k].sum.cutoffs_file[0])
+            out[n++] = strata->v[k].sum.cutoffs_file;
+    return n;
+}
+
+/* After a failure: the staging folder and what was written into it go. */
+static void drop_stage(const char *stage, const cohort_strata *strata)
+{
+    const char *list[sizeof MERGE_FILES / sizeof MERGE_FILES[0] + 2 * RT_COHORT_STRATA_MAX];
+    size_t n = staged_names(strata, list, sizeof list / sizeof list[0]);
+    char path[STAGED_PATH_MAX];
+    for (size_t k = 0; k < n; k++) {
+        snprintf(path, sizeof path, "%s/%s", stage, list[k]);
+        unlink(path);
+    }
+    rmdir(stage);
+}
+
+/* Moves every staged file into OUT, removes the calibration files this merge
+ * did not write, and the staging folder. */
+static rt_status commit_stage(const char *stage, const char *out_dir, const cohort_strata *strata,
+                              const names *stale, rt_error *err)
+{
+    rt_status st = RT_OK;
+    for (size_t k = 0; k < sizeof MERGE_FILES / sizeof MERGE_FILES[0] && st == RT_OK; k++)
+        st = move_or_remove(stage, out_dir, MERGE_FILES[k].name, MERGE_FILES[k].calibration, err);
+    for (size_t k = 0; k < strata->n && st == RT_OK; k++)
+        if (strata->v[k].sum.cutoffs_file[0])
+            st = move_or_remove(stage, out_dir, strata->v[k].sum.cutoffs_file, false, err);
+    for (size_t k = 0; k < stale->n && st == RT_OK; k++)
+        st = move_or_remove(stage, out_dir, stale->v[k], true, err);
+    if (st != RT_OK)
+        return st;
+    if (rmdir(stage) != 0)
+        return rt_fail(err, RT_ERR_IO, "%s: cannot remove the merge's staging folder: %s", stage,
+                       strerror(errno));
+    return RT_OK;
 }
 
 rt_status rt_cohort_merge(const rt_cohort_options *o, rt_cohort_merge_summary *summary,
@@ -571,7 +702,7 @@ rt_status rt_cohort_merge(const rt_cohort_options *o, rt_cohort_merge_summary *s
     rt_cohort_options opts = *o;
     opts.positive = positive;
     opts.negative = negative;
-    char dir[COHORT_PATH_MAX], path[COHORT_PATH_MAX];
+    char dir[COHORT_PATH_MAX], path[STAGED_PATH_MAX];
     snprintf(dir, sizeof dir, "%s/nights", o->out_dir);
     rows r = {NULL, 0, 0}, by_subject = {NULL, 0, 0};
     cohort_subjects subjects;
@@ -599,36 +730,46 @@ rt_status rt_cohort_merge(const rt_cohort_options *o, rt_cohort_merge_summary *s
         s.positives = cal->positives;
         s.negatives = cal->negatives;
     }
+    /* every file into the staging folder, then all into OUT at once */
+    char stage[COHORT_PATH_MAX];
+    snprintf(stage, sizeof stage, "%s/.merge-XXXXXX", o->out_dir);
+    bool staged = false;
     if (st == RT_OK) {
-        snprintf(path, sizeof path, "%s/cohort.csv", o->out_dir);
+        staged = mkdtemp(stage) != NULL;
+        if (!staged)
+            st = rt_fail(err, rt_errno_status(errno, RT_ERR_IO), "%s: cannot write output: %s",
+                         stage, strerror(errno));
+    }
+    if (st == RT_OK) {
+        snprintf(path, sizeof path, "%s/cohort.csv", stage);
         st = write_table(path, &r, err);
     }
     if (st == RT_OK && subjects.n > 0) {
-        snprintf(path, sizeof path, "%s/subjects.csv", o->out_dir);
+        snprintf(path, sizeof path, "%s/subjects.csv", stage);
         st = cohort_write_subjects(path, &subjects, err);
     }
     if (st == RT_OK && cal->computed) {
-        snprintf(path, sizeof path, "%s/calibration.csv", o->out_dir);
+        snprintf(path, sizeof path, "%s/calibration.csv", stage);
         st = write_calibration(path, cal, err);
     }
-    /* without a calibration now, an earlier one would describe other results */
-    static const char *const CALIBRATION_FILES[] = {"calibration.csv", "calibrated-cutoffs.csv"};
-    for (size_t k = 0; st == RT_OK && !cal->computed && k < 2; k++) {
-        snprintf(path, sizeof path, "%s/%s", o->out_dir, CALIBRATION_FILES[k]);
-        if (unlink(path) != 0 && errno != ENOENT)
-            st = rt_fail(err, RT_ERR_IO, "%s: cannot remove the previous calibration: %s", path,
-                         strerror(errno));
-    }
     if (st == RT_OK && cal->computed) {
-        snprintf(path, sizeof path, "%s/calibrated-cutoffs.csv", o->out_dir);
+        snprintf(path, sizeof path, "%s/calibrated-cutoffs.csv", stage);
         st = write_calibrated_cutoffs(path, cal, &s.calibrated_indices, err);
     }
     if (st == RT_OK)
-        st = write_strata_files(o->out_dir, cal, &strata, &opts, &s, err);
+        st = write_strata_files(stage, cal, &strata, &opts, &s, err);
     if (st == RT_OK) {
-        snprintf(path, sizeof path, "%s/cohort.html", o->out_dir);
+        snprintf(path, sizeof path, "%s/cohort.html", stage);
         st = cohort_write_html(path, r.v, r.n, &subjects, cal, &strata, &opts, err);
     }
+    names stale = {NULL, 0, 0};
+    if (st == RT_OK)
+        st = stale_strata_files(o->out_dir, &strata, &opts, &stale, err);
+    if (st == RT_OK)
+        st = commit_stage(stage, o->out_dir, &strata, &stale, err);
+    if (st != RT_OK && staged)
+        drop_stage(stage, &strata); /* what was not moved yet */
+    free(stale.v);
     s.calibrated = cal && cal->computed;
     s.subjects = subjects.n;
     if (cal)

@@ -305,6 +305,28 @@ rt_status rt_rules_write_text(const rt_cutoffs *cutoffs, FILE *out, rt_error *er
     return RT_OK;
 }
 
+rt_status rt_norms_write_text(const rt_norms *norms, FILE *out, rt_error *err)
+{
+    size_t n = rt_norms_count(norms);
+    fprintf(out, "\nNorms of the lab's file %s (%zu row%s; context only: an index is placed "
+            "against the row of the person's sex and age band, and the norms never decide the "
+            "level):\n", rt_norms_path(norms), n, n == 1 ? "" : "s");
+    for (size_t k = 0; k < n; k++) {
+        rt_index_id i;
+        rt_norm_stratum row;
+        if (!rt_norms_row(norms, k, &i, &row))
+            break;
+        fprintf(out, "%-34s %s\n", rt_index_rules()[i].id, row.label);
+        fprintf(out, "%-34s source: %s%s%s\n", "", row.source, row.method[0] ? "; scored: " : "",
+                row.method);
+    }
+    fprintf(out, "An index the file does not list keeps the built-in overall value, where there "
+            "is one (docs/scoring.md, \"Norms\").\n");
+    if (ferror(out))
+        return rt_fail(err, RT_ERR_IO, "cannot write the norms");
+    return RT_OK;
+}
+
 rt_status rt_params_write_markdown(FILE *out, rt_error *err)
 {
     size_t n = 0;

@@ -239,6 +239,21 @@ static void fill(const rt_norms *norms, const norm_row *r, rt_norm_stratum *out)
     rt_copy_string(out->method, sizeof out->method, r->method);
 }
 
+size_t rt_norms_count(const rt_norms *norms)
+{
+    return norms ? norms->n : 0;
+}
+
+bool rt_norms_row(const rt_norms *norms, size_t k, rt_index_id *index, rt_norm_stratum *out)
+{
+    if (!norms || k >= norms->n)
+        return false;
+    if (index)
+        *index = norms->rows[k].index;
+    fill(norms, &norms->rows[k], out);
+    return true;
+}
+
 int rt_norms_choose(const rt_norms *norms, rt_index_id i, double age_years, char sex,
                     rt_norm_stratum *out, char *why, size_t why_cap)
 {

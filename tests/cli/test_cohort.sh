@@ -373,5 +373,45 @@ expect strata-bad-order 2 "$bin" cohort-merge strata --age-bands 65,50
 expect strata-bad-edge 2 "$bin" cohort-merge strata --age-bands 50,x
 expect strata-bad-range 2 "$bin" cohort-merge strata --age-bands 0
 
+# ---- cohort.csv's age and sex (docs/cohort.md, "Files"): the manifest's, last in each row,
+# empty where it gives none; a failed night's from its failure record. The strata folder again,
+# with one night more that fails (its recording is a CSV file)
+{ cat data/strata.csv; echo "broken,r1/stages.csv,r1/stages.csv,,case,61,M"; } > data/person.csv
+expect person-run 0 "$bin" cohort data/person.csv --out strata --jobs 2 --quiet
+expect person-columns 0 "$py" -c '
+import csv, sys
+rows = list(csv.DictReader(open(sys.argv[1] + "/cohort.csv")))
+person = {r["id"]: r for r in csv.DictReader(open(sys.argv[2]))}
+h = list(rows[0].keys())
+assert h[:9] == ["id","group","subject","visit","flagged","level","reservations","rem_minutes","scorable_minutes"], h
+assert h[-5:] == ["warnings", "warning_texts", "error", "age", "sex"], h
+assert sorted(r["id"] for r in rows) == sorted(person), rows
+for r in rows:
+    p = person[r["id"]]
+    assert r["sex"] == p["sex"], (r["id"], r["sex"], p["sex"])
+    assert (r["age"] == "") == (p["age"] == "") and (p["age"] == "" or float(r["age"]) == float(p["age"])), (r["id"], r["age"], p["age"])
+b = [r for r in rows if r["id"] == "broken"][0]
+assert b["level"] == "failed" and b["age"] == "61" and b["sex"] == "M", b' strata data/person.csv
+# an earlier remtone's folder: keys and failure records without age and sex, a cohort.csv
+# without the two columns. It merges, the two cells empty, every other cell as before
+rm -rf older && cp -a strata older
+expect person-older-folder 0 "$py" -c '
+import csv, glob, json, sys
+d = sys.argv[1]
+for f in glob.glob(d + "/nights/*.key") + glob.glob(d + "/nights/*.error.json"):
+    j = json.load(open(f)); j.pop("age", None); j.pop("sex", None); json.dump(j, open(f, "w"))
+rows = list(csv.reader(open(d + "/cohort.csv")))
+csv.writer(open(d + "/cohort.csv", "w", newline="")).writerows(r[:-2] for r in rows)' older
+expect person-older-merge 0 "$bin" cohort-merge older
+expect person-older-table 0 "$py" -c '
+import csv, sys
+new = list(csv.DictReader(open(sys.argv[1] + "/cohort.csv")))
+was = {r["id"]: r for r in csv.DictReader(open(sys.argv[2] + "/cohort.csv"))}
+assert len(new) == len(was) == 7, new
+for r in new:
+    assert r["age"] == "" and r["sex"] == "", r
+    w = was[r["id"]]
+    assert {k: v for k, v in r.items() if k not in ("age", "sex")} == {k: v for k, v in w.items() if k not in ("age", "sex")}, r["id"]' older strata
+
 echo "$fails failure(s)"
 [ "$fails" = 0 ]

@@ -61,12 +61,51 @@ assert n["file"] is None and all(v["normal_limit_origin"]=="published" for v in 
 printf 'index,sex,age_from,age_to,percentile,value,unit,source\nsinbar.chin_any_3s,F,60,70,95,0.075,ratio,x\n' > bad-unit.csv
 check bad-unit 5 "$bin" score n/night.edf --stages n/stages.csv --norms bad-unit.csv --age 64
 has bad-unit-line "$work/err" "bad-unit.csv line 2: unit \"ratio\" does not fit sinbar.chin_any_3s"
+cp "$work/err" score-bad-unit.err
 printf 'index,sex,age_from,age_to,percentile,value,unit,source\nsinbar.chin_any_3s,F,60,70,95,7,%%,x\nsinbar.chin_any_3s,F,65,75,95,8,%%,y\n' > overlap.csv
 check overlap 5 "$bin" score n/night.edf --stages n/stages.csv --norms overlap.csv --age 64
 has overlap-lines "$work/err" "overlap.csv line 3: sinbar.chin_any_3s, sex F, percentile 95: ages 65 to under 75 overlap ages 60 to under 70 of line 2"
+cp "$work/err" score-overlap.err
 check missing 3 "$bin" score n/night.edf --stages n/stages.csv --norms nowhere.csv
+cp "$work/err" score-missing.err
 check over-input 2 "$bin" score n/night.edf --stages n/stages.csv --norms norms.csv --json norms.csv
 has help-norms <("$bin" score --help) "--norms FILE"
+
+# ---- rules --norms: the file's rows, each with its line, after the rule table (as --cutoffs
+# shows a cutoff file's); the labels are the score's own for the same rows (text-stratum above)
+check rules-norms 0 "$bin" rules --norms norms.csv
+cp "$work/out" rules-norms.txt
+has rules-norms-table rules-norms.txt "Cutoffs in force: published"
+has rules-norms-file rules-norms.txt "Norms of the lab's file norms.csv (4 rows;"
+has rules-norms-line3 rules-norms.txt "95th percentile (7.5 %) of women aged 60-69, lab file norms.csv line 3"
+has rules-norms-line4 rules-norms.txt "95th percentile (30 %) of women and men aged 60-69, lab file norms.csv line 4"
+has rules-norms-line5 rules-norms.txt "95th percentile (6 %) of men aged 60-69, lab file norms.csv line 5"
+has rules-norms-line6 rules-norms.txt "5th percentile (0.6) of women aged 60-69, lab file norms.csv line 6"
+has rules-norms-source rules-norms.txt "source: invented reference group A; scored: visual 3-s mini-epochs"
+# every data line of the file once, in file order, under its own index id (read from the file)
+check rules-norms-rows 0 "$py" -c '
+import re,sys
+want=[]
+for n,l in enumerate(open(sys.argv[1]),1):
+    if l.startswith("#") or l.startswith("index,"): continue
+    want.append((l.split(",")[0],n))
+got=[(m.group(1),int(m.group(2))) for m in re.finditer(r"^(\S+) +\S.* lab file norms\.csv line (\d+)$",open(sys.argv[2]).read(),re.M)]
+assert got==want,(got,want)' norms.csv rules-norms.txt
+printf 'index,cutoff,unit\nsinbar.chin_any_3s,25,%%\n' > lab-cutoffs.csv
+check rules-norms-cutoffs 0 "$bin" rules --cutoffs lab-cutoffs.csv --norms norms.csv
+has rules-both-cutoff "$work/out" "the lab's own: lab-cutoffs.csv line 2"
+has rules-both-norms "$work/out" "lab file norms.csv line 6"
+# a refused file: score's message and exit code, and nothing listed
+for bad in bad-unit:5:bad-unit.csv overlap:5:overlap.csv missing:3:nowhere.csv; do
+  IFS=: read -r name code file <<<"$bad"
+  check "rules-$name" "$code" "$bin" rules --norms "$file"
+  cmp -s "$work/err" "score-$name.err" && ok "rules-$name-message" || bad "rules-$name-message: $(cat "$work/err") is not $(cat "score-$name.err")"
+  [ ! -s "$work/out" ] && ok "rules-$name-nothing-listed" || bad "rules-$name-nothing-listed"
+done
+has help-rules-norms <("$bin" rules --help) "--norms FILE"
+if [ -w /dev/full ]; then
+  check rules-norms-stdout-full 7 sh -c '"$1" rules --norms norms.csv >/dev/full' sh "$bin"
+fi
 
 # ---- cohort: the run's --norms, and a row's own `norms` column replacing it
 cp norms.csv site-norms.csv

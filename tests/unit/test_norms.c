@@ -66,6 +66,30 @@ static void loads_a_good_file(void **state)
     assert_string_equal(s.who, "women aged 60-69");
     assert_non_null(strstr(s.label, "95th percentile (7.2 %) of women aged 60-69"));
     assert_non_null(strstr(s.label, "norms.csv line 5"));
+    /* every row in file order with its line (`remtone rules --norms`): the nine
+     * data rows of GOOD are its lines 4 to 12 */
+    assert_int_equal(rt_norms_count(norms), 9);
+    assert_int_equal(rt_norms_count(NULL), 0);
+    static const rt_index_id INDEX[9] = {
+        RT_IX_SINBAR_CHIN_ANY_3S, RT_IX_SINBAR_CHIN_ANY_3S, RT_IX_SINBAR_CHIN_ANY_3S,
+        RT_IX_SINBAR_CHIN_ANY_3S, RT_IX_SINBAR_CHIN_ANY_3S, RT_IX_SINBAR_CHIN_PHASIC_3S,
+        RT_IX_RAI, RT_IX_RAI, RT_IX_AASM_TONIC_CHIN};
+    for (size_t k = 0; k < 9; k++) {
+        rt_index_id i = RT_IX_COUNT;
+        assert_true(rt_norms_row(norms, k, &i, &s));
+        assert_int_equal(i, INDEX[k]);
+        assert_int_equal(s.line, (long)k + 4);
+    }
+    assert_true(rt_norms_row(norms, 2, NULL, &s));
+    assert_int_equal(s.sex, 'F');
+    assert_true(s.percentile == 90 && s.value == 5.0 && s.age_from == 60 && s.age_to == 70);
+    assert_string_equal(s.source, "invented C");
+    assert_string_equal(s.method, "");
+    assert_non_null(strstr(s.label, "90th percentile (5 %) of women aged 60-69"));
+    assert_true(rt_norms_row(norms, 7, NULL, &s));
+    assert_non_null(strstr(s.label, "2.5th percentile (0.7) of women and men aged 20-89"));
+    assert_false(rt_norms_row(norms, 9, NULL, &s));
+    assert_false(rt_norms_row(NULL, 0, NULL, &s));
     rt_norms_free(norms);
     rt_norms_free(NULL);
 }
