@@ -92,6 +92,7 @@ typedef struct item {
     size_t piece;            /* REM items: the piece of a bout */
     size_t first_epoch;      /* ITEM_NREM: the run */
     size_t epochs;
+    bool alone;              /* ITEM_NREM: no other role reads this run */
 } item;
 
 /* One job of the pool: items, their place in the sequential order, their
@@ -537,9 +538,13 @@ static rt_status nrem_run(const pass_ctx *c, worker_ctx *w, item_out *o, const i
 {
     rt_stretch *st = &w->st;
     const rt_stretch_request req = {RT_STRETCH_LEVELS, NULL, 0};
+    /* a run no other role reads is read straight through a small buffer:
+     * keeping all its records would only copy them once more */
+    st->keep = it->alone ? NULL : w->keep;
     rt_status s = rt_condition_stretch_for(&w->cond[it->role],
                                            (double)it->first_epoch * c->tl->epoch_s,
                                            it->epochs * RT_EPOCH_WHOLE_S, NULL, &req, st, err);
+    st->keep = w->keep;
     if (s == RT_OK)
         s = append_levels(st, 0, st->seconds, &o->points, &o->n_points, err);
     if (s != RT_OK || it->role != RT_ROLE_CHIN)
@@ -663,10 +668,13 @@ static rt_status nrem_items(const pass_ctx *c, item_list *l, rt_error *err)
         size_t run = 0;
         while (e + run < tl->n_epochs && is_nrem(tl->stages[e + run]) && run < c->nrem_run_epochs)
             run++;
+        size_t readers = 0;
+        for (int r = 0; r < RT_ROLE_COUNT; r++)
+            readers += c->cond_open[r] && (r == RT_ROLE_CHIN || chunk % NREM_DRIFT_STRIDE == 0);
         for (int r = 0; r < RT_ROLE_COUNT && st == RT_OK; r++) {
             if (!c->cond_open[r] || (r != RT_ROLE_CHIN && chunk % NREM_DRIFT_STRIDE != 0))
                 continue;
-            item it = {ITEM_NREM, (rt_role)r, 0, e, run};
+            item it = {ITEM_NREM, (rt_role)r, 0, e, run, readers == 1};
             st = add_item(l, it, l->n, (double)run * RT_EPOCH_S, err);
         }
         e += run;
@@ -685,7 +693,7 @@ static rt_status bout_items(const pass_ctx *c, item_list *beats, item_list *leve
     rt_status st = RT_OK;
     for (size_t b = 0; b < n_pieces && st == RT_OK; b++) {
         double seconds = (double)c->pieces[b].view.n_epochs * RT_EPOCH_S;
-        item it = {ITEM_BEATS, RT_ROLE_ECG, b, 0, c->pieces[b].view.n_epochs};
+        item it = {ITEM_BEATS, RT_ROLE_ECG, b, 0, c->pieces[b].view.n_epochs, false};
         st = add_item(beats, it, rank_levels(n_nrem, b, -1), BEATS_COST * seconds, err);
         for (int r = 0; r < RT_ROLE_COUNT && st == RT_OK; r++) {
             if (!c->cond_open[r])
