@@ -2,7 +2,9 @@
  * profile) and compare with the time needed to read the whole recording
  * file from the page cache (as `cat night.edf > /dev/null` does) and to read
  * only the EMG samples the scorer uses, measured in the same process and
- * run. Each (hours, threads) case runs in its own child process, so its
+ * run, and the filter floor: those samples through the scorer's band-pass
+ * once, on one core, timed alone (docs/performance.md, "The floor"). Each
+ * (hours, threads) case runs in its own child process, so its
  * peak resident memory is its own. With python3, numpy and scipy it also
  * times bench/straightforward.py, the same steps written plainly in numpy
  * and scipy, on the 8-hour night.
