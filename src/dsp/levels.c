@@ -82,33 +82,33 @@ static double select_kth_hoare(double *v, size_t n, size_t k)
     return v[k];
 }
 
-/* Moves the elements of v[lo..hi] that pass (x < p, or x <= p with
- * or_equal) to the front, through tmp, which it fills from both ends: no
+/* Moves the elements of src[lo..hi] that pass (x < p, or x <= p with
+ * or_equal) to the front of dst[lo..hi], which it fills from both ends: no
  * branch on the data (a comparison's outcome cannot be guessed on noise) and
  * no store waits for the one before it. Returns where the others begin. */
-static size_t partition(double *v, size_t lo, size_t hi, double p, bool or_equal, double *tmp)
+static size_t partition(const double *src, double *dst, size_t lo, size_t hi, double p,
+                        bool or_equal)
 {
-    size_t len = hi - lo + 1, a = 0, b = len;
+    size_t a = lo, b = hi + 1;
     if (or_equal)
         for (size_t j = lo; j <= hi; j++) {
-            double x = v[j];
+            double x = src[j];
             size_t in = (size_t)(x <= p);
-            tmp[a] = x;
-            tmp[b - 1] = x;
+            dst[a] = x;
+            dst[b - 1] = x;
             a += in;
             b -= 1 - in;
         }
     else
         for (size_t j = lo; j <= hi; j++) {
-            double x = v[j];
+            double x = src[j];
             size_t in = (size_t)(x < p);
-            tmp[a] = x;
-            tmp[b - 1] = x;
+            dst[a] = x;
+            dst[b - 1] = x;
             a += in;
             b -= 1 - in;
         }
-    memcpy(v + lo, tmp, len * sizeof *tmp);
-    return lo + a;
+    return a;
 }
 
 static double median3(double a, double b, double c)
@@ -121,30 +121,54 @@ static double median3(double a, double b, double c)
     return c <= a ? a : c >= b ? b : c;
 }
 
-/* Places the k-th smallest of v[0..n) (no NaN) at v[k], everything before it
- * no larger and everything after it no smaller, using tmp (n doubles). The
- * value is the k-th order statistic whatever the algorithm: this one
- * partitions without branches around a median of three, and when no element
- * lies below the pivot it splits off those equal to it, so that repeated
- * values cannot make it quadratic. */
-static double select_kth_with(double *v, size_t n, size_t k, double *tmp)
+static double min_of(const double *v, size_t from, size_t to, double m)
 {
-    size_t lo = 0, hi = n - 1;
+    for (size_t j = from; j < to; j++)
+        m = v[j] < m ? v[j] : m;
+    return m;
+}
+
+/* The k-th and (k+1)-th smallest of v[0..n) (no NaN, k + 1 < n), which
+ * it reorders, with tmp (n doubles). Each round partitions the range left
+ * from one of v and tmp into the other, without branches, around a median of
+ * three; when no element lies below the pivot it splits off those equal to
+ * it, so that repeated values cannot make it quadratic. A round that keeps
+ * the lower part leaves the upper part where it was written, untouched by
+ * later rounds, and every element above the k-th lies in the range left or
+ * in such a part, the last of which holds the smallest of them. Both values
+ * are order statistics, whatever the algorithm. */
+static void select_pair(double *v, size_t n, size_t k, double *tmp, double *kth, double *next)
+{
+    double *cur = v, *other = tmp;
+    const double *upper = NULL; /* the last upper part left behind: upper[up_lo..up_hi] */
+    size_t up_lo = 0, up_hi = 0, lo = 0, hi = n - 1;
     while (lo < hi) {
-        double p = median3(v[lo], v[lo + (hi - lo) / 2], v[hi]);
-        size_t less = partition(v, lo, hi, p, false, tmp); /* [lo, less) < p <= [less, hi] */
-        if (k < less) {
-            hi = less - 1;
-        } else if (less > lo) {
-            lo = less;
-        } else {
-            size_t equal = partition(v, lo, hi, p, true, tmp); /* [lo, equal) == p < rest */
-            if (k < equal)
-                return v[k];
-            lo = equal;
+        double p = median3(cur[lo], cur[lo + (hi - lo) / 2], cur[hi]);
+        size_t less = partition(cur, other, lo, hi, p, false); /* [lo, less) < p <= [less, hi] */
+        if (k < less || less > lo) {
+            double *t = cur;
+            cur = other;
+            other = t;
+            if (k < less) {
+                upper = cur;
+                up_lo = less;
+                up_hi = hi;
+                hi = less - 1;
+            } else {
+                lo = less;
+            }
+            continue;
         }
+        size_t equal = partition(other, cur, lo, hi, p, true); /* [lo, equal) == p < rest */
+        if (k < equal) { /* everything in (k, hi] is at least p */
+            *kth = p;
+            *next = min_of(cur, k + 1, hi + 1, upper ? min_of(upper, up_lo, up_hi + 1, INFINITY) : INFINITY);
+            return;
+        }
+        lo = equal;
     }
-    return v[k];
+    *kth = cur[k];
+    *next = upper ? min_of(upper, up_lo, up_hi + 1, INFINITY) : cur[k];
 }
 
 /* Arrays up to this size (32 KiB of doubles: the per-second levels, the
@@ -154,22 +178,15 @@ static double select_kth_with(double *v, size_t n, size_t k, double *tmp)
  * (bench-style timing of 10^5 contiguous envelope samples). */
 enum { SELECT_STACK = 4096 };
 
-static double select_kth(double *v, size_t n, size_t k)
-{
-    if (n > SELECT_STACK)
-        return select_kth_hoare(v, n, k);
-    double tmp[SELECT_STACK];
-    return select_kth_with(v, n, k, tmp);
-}
-
-/* Type-7 quantile of v[0..n) with a selection function. */
-static double quantile_with(double *v, size_t n, double q, double (*select)(double *, size_t, size_t))
+/* Type-7 quantile of v[0..n) through Hoare's selection (long arrays, or any
+ * holding NaN). */
+static double quantile_hoare(double *v, size_t n, double q)
 {
     double pos = q * (double)(n - 1);
     size_t i = (size_t)floor(pos);
     if (i >= n - 1)
-        return select(v, n, n - 1);
-    double a = select(v, n, i);
+        return select_kth_hoare(v, n, n - 1);
+    double a = select_kth_hoare(v, n, i);
     /* after selection everything above i is >= a: the next order statistic is their minimum */
     double b = v[i + 1];
     for (size_t j = i + 2; j < n; j++)
@@ -193,7 +210,15 @@ double rt_quantile(double *v, size_t n, double q)
     bool nan = false;
     for (size_t j = 0; j < n; j++)
         nan |= v[j] != v[j];
-    return quantile_with(v, n, q, nan ? select_kth_hoare : select_kth);
+    if (nan || n > SELECT_STACK)
+        return quantile_hoare(v, n, q);
+    double pos = q * (double)(n - 1);
+    size_t i = (size_t)floor(pos);
+    if (i >= n - 1) /* the largest */
+        return quantile_hoare(v, n, q);
+    double tmp[SELECT_STACK], a, b;
+    select_pair(v, n, i, tmp, &a, &b);
+    return a + (pos - (double)i) * (b - a);
 }
 
 void rt_block_quantiles(const double *env, const size_t *starts, size_t n_blocks, double q,
