@@ -16,8 +16,10 @@ rt_status rt_pages_reserve(double **p, size_t *cap, size_t need, rt_error *err)
         need = 1;
     if (need > SIZE_MAX / sizeof **p)
         return rt_fail(err, RT_ERR_NOMEM, "out of memory for %zu samples", need);
-#ifdef MREMAP_MAYMOVE
-    /* growing keeps the pages already touched: they need not fault again */
+#if defined(MREMAP_MAYMOVE) && !defined(__SANITIZE_THREAD__)
+    /* growing keeps the pages already touched: they need not fault again
+     * (not under ThreadSanitizer, which does not follow mremap: a mapping
+     * moved onto an address another thread unmapped would look like a race) */
     if (*p) {
         void *q = mremap(*p, *cap * sizeof **p, need * sizeof **p, MREMAP_MAYMOVE);
         if (q != MAP_FAILED) {
