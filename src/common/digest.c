@@ -33,8 +33,14 @@ static bool same_identity(const known_digest *k, const struct stat *st)
            k->mtime.tv_sec == st->st_mtim.tv_sec && k->mtime.tv_nsec == st->st_mtim.tv_nsec;
 }
 
-void rt_digest_remember(const struct stat *st, const char hex[17])
+void rt_digest_remember(const struct stat *before, const struct stat *after, long long bytes,
+                        const char hex[17])
 {
+    if (before->st_size != bytes || after->st_size != bytes ||
+        before->st_mtim.tv_sec != after->st_mtim.tv_sec ||
+        before->st_mtim.tv_nsec != after->st_mtim.tv_nsec)
+        return; /* changed while it was read, or not read whole */
+    const struct stat *st = after;
     pthread_mutex_lock(&known_lock);
     size_t slot = known_next;
     for (size_t i = 0; i < KNOWN_MAX; i++)
@@ -100,13 +106,11 @@ rt_status rt_file_digest(const char *path, long long *size_bytes, char hex[17], 
     }
     int failed = ferror(f);
     struct stat after;
-    bool unchanged = identified && fstat(fileno(f), &after) == 0 && after.st_size == total &&
-                     after.st_mtim.tv_sec == before.st_mtim.tv_sec &&
-                     after.st_mtim.tv_nsec == before.st_mtim.tv_nsec && before.st_size == total;
+    bool identified_after = identified && fstat(fileno(f), &after) == 0;
     fclose(f);
     rt_digest_hex(state, hex);
-    if (!failed && unchanged)
-        rt_digest_remember(&after, hex);
+    if (!failed && identified_after)
+        rt_digest_remember(&before, &after, total, hex);
     XXH3_freeState(state);
     free(buf);
     if (failed)

@@ -21,8 +21,10 @@ rt_status rt_file_digest(const char *path, long long *size_bytes, char hex[17], 
 /* The hex digest of the bytes fed to state. */
 void rt_digest_hex(XXH3_state_t *state, char hex[17]);
 
-/* Keeps hex as the digest of the file of identity *st (a regular file's
- * fstat, taken before its bytes were read and unchanged after). */
-void rt_digest_remember(const struct stat *st, const char hex[17]);
+/* Keeps hex as the digest of a regular file whose `bytes` bytes were hashed
+ * between the fstat calls *before and *after: only when the file kept its
+ * size and modification time meanwhile and that size is what was hashed. */
+void rt_digest_remember(const struct stat *before, const struct stat *after, long long bytes,
+                        const char hex[17]);
 
 #endif

@@ -160,15 +160,13 @@ static void select_pair(double *v, size_t n, size_t k, double *tmp, double *kth,
             continue;
         }
         size_t equal = partition(other, cur, lo, hi, p, true); /* [lo, equal) == p < rest */
-        if (k < equal) { /* everything in (k, hi] is at least p */
-            *kth = p;
-            *next = min_of(cur, k + 1, hi + 1, upper ? min_of(upper, up_lo, up_hi + 1, INFINITY) : INFINITY);
-            return;
-        }
+        if (k < equal) /* everything in (k, hi] is at least p */
+            break;
         lo = equal;
     }
+    double above = upper ? min_of(upper, up_lo, up_hi + 1, INFINITY) : INFINITY;
     *kth = cur[k];
-    *next = upper ? min_of(upper, up_lo, up_hi + 1, INFINITY) : cur[k];
+    *next = min_of(cur, k + 1, hi + 1, above);
 }
 
 /* Arrays up to this size (32 KiB of doubles: the per-second levels, the
@@ -178,46 +176,34 @@ static void select_pair(double *v, size_t n, size_t k, double *tmp, double *kth,
  * (bench-style timing of 10^5 contiguous envelope samples). */
 enum { SELECT_STACK = 4096 };
 
-/* Type-7 quantile of v[0..n) through Hoare's selection (long arrays, or any
- * holding NaN). */
-static double quantile_hoare(double *v, size_t n, double q)
-{
-    double pos = q * (double)(n - 1);
-    size_t i = (size_t)floor(pos);
-    if (i >= n - 1)
-        return select_kth_hoare(v, n, n - 1);
-    double a = select_kth_hoare(v, n, i);
-    /* after selection everything above i is >= a: the next order statistic is their minimum */
-    double b = v[i + 1];
-    for (size_t j = i + 2; j < n; j++)
-        if (v[j] < b)
-            b = v[j];
-    return a + (pos - (double)i) * (b - a);
-}
-
 double rt_quantile(double *v, size_t n, double q)
 {
     if (n == 1)
         return v[0];
+    /* type 7 (Hyndman & Fan 1996): between the i-th and (i+1)-th order statistics */
+    double pos = q * (double)(n - 1), a, b;
+    size_t i = (size_t)floor(pos);
     if (n <= 8) {
         qsort(v, n, sizeof *v, compare_double);
-        double pos = q * (double)(n - 1);
-        size_t i = (size_t)floor(pos);
         if (i >= n - 1)
             return v[n - 1];
-        return v[i] + (pos - (double)i) * (v[i + 1] - v[i]);
+        a = v[i];
+        b = v[i + 1];
+    } else {
+        bool nan = false;
+        for (size_t j = 0; j < n; j++)
+            nan |= v[j] != v[j];
+        if (i >= n - 1)
+            return select_kth_hoare(v, n, n - 1);
+        if (nan || n > SELECT_STACK) {
+            a = select_kth_hoare(v, n, i);
+            /* everything above i is now >= a: the next order statistic is their minimum */
+            b = min_of(v, i + 2, n, v[i + 1]);
+        } else {
+            double tmp[SELECT_STACK];
+            select_pair(v, n, i, tmp, &a, &b);
+        }
     }
-    bool nan = false;
-    for (size_t j = 0; j < n; j++)
-        nan |= v[j] != v[j];
-    if (nan || n > SELECT_STACK)
-        return quantile_hoare(v, n, q);
-    double pos = q * (double)(n - 1);
-    size_t i = (size_t)floor(pos);
-    if (i >= n - 1) /* the largest */
-        return quantile_hoare(v, n, q);
-    double tmp[SELECT_STACK], a, b;
-    select_pair(v, n, i, tmp, &a, &b);
     return a + (pos - (double)i) * (b - a);
 }
 

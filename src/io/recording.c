@@ -499,7 +499,9 @@ static bool has_annotation_signal(const rt_edf_layout *l)
 /* Reads the annotation signals of every data record through fd into list, in
  * blocks like read_direct: several whole records per pread when the other
  * signals' bytes in between are few, otherwise the annotation signals' bytes
- * of one record per pread. */
+ * of one record per pread. With whole (records of at most SPAN_BYTES), the
+ * header and whole records are read, every byte of the file in order, and
+ * fed to the hash. */
 static rt_status read_tals(const char *path, int fd, const rt_edf_layout *l, rt_tal_list *list,
                            XXH3_state_t *whole, rt_error *err)
 {
@@ -520,11 +522,9 @@ static rt_status read_tals(const char *path, int fd, const rt_edf_layout *l, rt_
     if (n_annotation == 0)
         return RT_OK;
     const long long rb = l->record_bytes;
-    if (whole && rb <= SPAN_BYTES) { /* whole records, every byte of the file in order */
+    if (whole) { /* whole records: every byte of the file, in order */
         lo = 0;
         hi = rb;
-    } else {
-        whole = NULL;
     }
     const long long span = hi - lo;
     long long group = rb <= SPAN_BYTES && rb - span < SKIP_BYTES ? SPAN_BYTES / rb : 1;
@@ -569,19 +569,16 @@ static rt_status read_direct_annotations(rt_recording *rec, const rt_edf_layout 
 {
     rt_tal_list list;
     rt_tal_list_init(&list, rec->path, record_units);
-    /* every record is read for its annotation signal: the file's digest is
-     * taken on the way (digest.h), when the file does not change meanwhile */
-    XXH3_state_t *whole = XXH3_createState();
+    /* records of at most one read are read whole for their annotation
+     * signals, and then the file's digest is taken on the way (digest.h) */
+    XXH3_state_t *whole = l->record_bytes <= SPAN_BYTES ? XXH3_createState() : NULL;
     struct stat before, after;
-    bool identified = whole && XXH3_64bits_reset(whole) == XXH_OK && fstat(rec->fd, &before) == 0;
-    rt_status s = read_tals(rec->path, rec->fd, l, &list, identified ? whole : NULL, err);
-    if (s == RT_OK && identified && l->record_bytes <= SPAN_BYTES && fstat(rec->fd, &after) == 0 &&
-        after.st_size == before.st_size && after.st_size == l->file_bytes &&
-        after.st_mtim.tv_sec == before.st_mtim.tv_sec && after.st_mtim.tv_nsec == before.st_mtim.tv_nsec &&
-        l->file_bytes == l->header_bytes + l->n_records * l->record_bytes) {
+    bool hashing = whole && XXH3_64bits_reset(whole) == XXH_OK && fstat(rec->fd, &before) == 0;
+    rt_status s = read_tals(rec->path, rec->fd, l, &list, hashing ? whole : NULL, err);
+    if (s == RT_OK && hashing && fstat(rec->fd, &after) == 0) {
         char hex[17];
         rt_digest_hex(whole, hex);
-        rt_digest_remember(&after, hex);
+        rt_digest_remember(&before, &after, l->header_bytes + l->n_records * l->record_bytes, hex);
     }
     XXH3_freeState(whole);
     if (s == RT_OK && list.start_units != edflib_start_units)

@@ -93,20 +93,14 @@ static void find_clipping(const double *x, size_t n, double rate, const rt_chann
     double inside_hi = hi - tol, inside_lo = lo + tol;
     /* With ordered limits a sample is clear exactly when it lies strictly
      * between them (a comparison with NaN or an infinity fails); runs of
-     * clear samples are passed over eight at a time. */
+     * clear samples are passed over 64, then 8, at a time. */
     bool skip = inside_lo <= inside_hi;
     size_t i = 0;
     while (i < n) {
         while (skip && i + 64 <= n && clear_run(x + i, 64, inside_lo, inside_hi))
             i += 64;
-        while (skip && i + 8 <= n) {
-            bool out = false;
-            for (size_t q = 0; q < 8; q++)
-                out |= !(x[i + q] < inside_hi) | !(x[i + q] > inside_lo);
-            if (out)
-                break;
+        while (skip && i + 8 <= n && clear_run(x + i, 8, inside_lo, inside_hi))
             i += 8;
-        }
         if (i >= n)
             break;
         bool clip = !isfinite(x[i]) || x[i] >= hi - tol || x[i] <= lo + tol;
@@ -274,7 +268,8 @@ static void box_steps(const double *x, size_t n, size_t h, double *d)
         d[j] = fabs(d[j] - d[j - h]);
 }
 
-/* Whether the step d into boundary i is an electrode's, not a muscle's: the
+/* Whether the step d into boundary i is an electrode's, not a muscle's (h:
+ * the box length in samples; quality.h): the
  * level moves (the mean over RT_QUALITY_POP_SHIFT_S after the step differs
  * from the mean before it by RT_QUALITY_POP_SHIFT_SHARE of the peak-to-peak
  * range of both stretches: a pop is a step with a slow decay), or a single
@@ -282,7 +277,7 @@ static void box_steps(const double *x, size_t n, size_t h, double *d)
  * step of each other). Both tests are in time units, so they do not depend
  * on the sampling rate. A motor-unit potential is biphasic and lasts a few
  * milliseconds: it does neither. */
-static bool electrode_step(const double *x, size_t n, size_t i, size_t h, double rate, double d)
+bool rt_quality_electrode_step(const double *x, size_t n, size_t i, size_t h, double rate, double d)
 {
     size_t w = (size_t)llround(RT_QUALITY_POP_SHIFT_S * rate);
     if (w < 2)
@@ -307,16 +302,10 @@ static bool electrode_step(const double *x, size_t n, size_t i, size_t h, double
     return fabs(after - before) / (double)w >= RT_QUALITY_POP_SHIFT_SHARE * (hi - lo);
 }
 
-/* fmax(a, b) (the other when one is NaN) without a call to the C library. */
-static double larger_side(double a, double b)
-{
-    return a > b || isnan(b) ? a : b;
-}
-
 /* Electrode pop: one box step d[i] far above the mean step on each side of
  * it (the larger of the two one-sided means over RT_QUALITY_POP_SIDE_S,
  * leaving out 4 boxes next to i so the pop's own decay does not hide it),
- * that electrode_step() calls an electrode's. Taking the larger side keeps
+ * that rt_quality_electrode_step() calls an electrode's. Taking the larger side keeps
  * the onset of a real burst, loud on one side, from being called a pop. */
 static void find_pops(const double *x, size_t n, double rate, double *d, mark_sink *k)
 {
@@ -345,8 +334,8 @@ static void find_pops(const double *x, size_t n, double rate, double *d, mark_si
         bool maybe = (step >= RT_QUALITY_POP_MIN_UV) & !(scaled <= loose * left) &
                      !(scaled <= loose * right);
         if (maybe && isfinite(step) &&
-            step > RT_QUALITY_POP_RATIO * (larger_side(left, right) / sided) &&
-            electrode_step(x, n, i, h, rate, step)) {
+            step > RT_QUALITY_POP_RATIO * (fmax(left, right) / sided) &&
+            rt_quality_electrode_step(x, n, i, h, rate, step)) {
             double t = (double)i / rate;
             sink_add(k, t - RT_QUALITY_POP_BEFORE_S, t + RT_QUALITY_POP_AFTER_S);
         }

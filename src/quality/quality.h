@@ -75,6 +75,12 @@ typedef struct rt_quality_mark {
 size_t rt_quality_marks(const double *raw_uv, size_t n, double rate_hz, const rt_channel_info *ch,
                         double *work, rt_quality_mark *marks, size_t cap);
 
+/* The pop detector's last test, on a candidate box step of size d (uV) into
+ * sample boundary i of x[0..n), boxes of h samples: whether the step is an
+ * electrode's (the level moves, or a lone box) rather than a muscle's
+ * (marks.c). rt_quality_marks calls it on the steps its ratio test keeps. */
+bool rt_quality_electrode_step(const double *x, size_t n, size_t i, size_t h, double rate, double d);
+
 /* Seconds covered by the union of the marks with the given reason
  * (reason = RT_QUALITY_REASON_COUNT: of every reason), clipped to
  * [0, duration_s]. For the "minutes not scorable by reason" summary. */

@@ -653,6 +653,13 @@ static size_t rank_labels(size_t n_nrem, size_t n_pieces, size_t pi, int role)
     return rank_levels(n_nrem, n_pieces, -1) + pi * RT_ROLE_COUNT + (size_t)role;
 }
 
+/* Whether role r reads the chunk-th NREM run: the chin every run, an open
+ * limb every NREM_DRIFT_STRIDE-th. */
+static bool reads_nrem_run(const pass_ctx *c, int r, size_t chunk)
+{
+    return c->cond_open[r] && (r == RT_ROLE_CHIN || chunk % NREM_DRIFT_STRIDE == 0);
+}
+
 /* The NREM runs (at most NREM_RUN_EPOCHS epochs each) of every open role: the
  * chin's every run, the limbs' every NREM_DRIFT_STRIDE-th. */
 static rt_status nrem_items(const pass_ctx *c, item_list *l, rt_error *err)
@@ -670,9 +677,9 @@ static rt_status nrem_items(const pass_ctx *c, item_list *l, rt_error *err)
             run++;
         size_t readers = 0;
         for (int r = 0; r < RT_ROLE_COUNT; r++)
-            readers += c->cond_open[r] && (r == RT_ROLE_CHIN || chunk % NREM_DRIFT_STRIDE == 0);
+            readers += reads_nrem_run(c, r, chunk);
         for (int r = 0; r < RT_ROLE_COUNT && st == RT_OK; r++) {
-            if (!c->cond_open[r] || (r != RT_ROLE_CHIN && chunk % NREM_DRIFT_STRIDE != 0))
+            if (!reads_nrem_run(c, r, chunk))
                 continue;
             item it = {ITEM_NREM, (rt_role)r, 0, e, run, readers == 1};
             st = add_item(l, it, l->n, (double)run * RT_EPOCH_S, err);

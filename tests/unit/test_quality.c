@@ -367,7 +367,10 @@ static void test_marks_at_their_limits(void **state)
  * many samples at a time, constant runs found from each block's first and
  * last run end, a loose ratio test before the exact one, box steps computed
  * once); the marks must be exactly those of the definitions in quality.h
- * written sample by sample, as below, with the same running sums. */
+ * written sample by sample, as below, with the same running sums. The pop's
+ * last test, which takes no shortcut, is the library's own
+ * (rt_quality_electrode_step; test_marks_pops and
+ * test_marks_spikes_are_not_pops check what it calls a pop). */
 typedef struct plain_sink {
     rt_quality_mark m[512];
     size_t count;
@@ -404,29 +407,6 @@ static double plain_box(const double *x, size_t j, size_t h)
     for (size_t q = 0; q < h; q++)
         s += x[j + q];
     return s / (double)h;
-}
-
-/* electrode_step of quality.h's pop definition, written out */
-static bool plain_electrode_step(const double *x, size_t n, size_t i, size_t h, double rate, double d)
-{
-    size_t w = (size_t)llround(RT_QUALITY_POP_SHIFT_S * rate);
-    w = w < 2 ? 2 : w;
-    if (i >= 2 * h && i + 3 * h <= n) {
-        double m_2 = plain_box(x, i - 2 * h, h), m_1 = plain_box(x, i - h, h);
-        double m1 = plain_box(x, i + h, h), m2 = plain_box(x, i + 2 * h, h);
-        if (fabs(m1 - m_1) < 0.25 * d && fabs(m_1 - m_2) < 0.25 * d && fabs(m2 - m1) < 0.25 * d)
-            return true;
-    }
-    if (i < w + 1 || i + w > n)
-        return false;
-    double before = 0.0, after = 0.0, lo = x[i], hi = x[i];
-    for (size_t j = 0; j < w; j++) {
-        before += x[i - 1 - j];
-        after += x[i + j];
-        lo = fmin(lo, fmin(x[i - 1 - j], x[i + j]));
-        hi = fmax(hi, fmax(x[i - 1 - j], x[i + j]));
-    }
-    return fabs(after - before) / (double)w >= RT_QUALITY_POP_SHIFT_SHARE * (hi - lo);
 }
 
 static size_t plain_marks(const double *x, size_t n, double rate, const rt_channel_info *ch,
@@ -497,7 +477,7 @@ static size_t plain_marks(const double *x, size_t n, double rate, const rt_chann
             double step = d[i];
             if (isfinite(step) && step >= RT_QUALITY_POP_MIN_UV &&
                 step > RT_QUALITY_POP_RATIO * (fmax(left, right) / (double)side) &&
-                plain_electrode_step(x, n, i, h, rate, step)) {
+                rt_quality_electrode_step(x, n, i, h, rate, step)) {
                 double t = (double)i / rate;
                 plain_add(&k, RT_QUALITY_POP, t - RT_QUALITY_POP_BEFORE_S, t + RT_QUALITY_POP_AFTER_S);
             }
